@@ -1,0 +1,100 @@
+"""The command line: a thin layer over the API. Bad input exits with code 2 and one line."""
+
+from __future__ import annotations
+
+import argparse
+import sys
+from collections.abc import Sequence
+
+EXIT_INPUT = 2
+
+
+def _parser() -> argparse.ArgumentParser:
+    ap = argparse.ArgumentParser(
+        prog="relayset",
+        description="Overhead-line parameters, untransposition reach study and distance-zone "
+        "settings. Results must be reviewed and approved by a licensed professional engineer.",
+    )
+    sub = ap.add_subparsers(dest="command", required=True, metavar="COMMAND")
+
+    def study_cmd(name: str, help_: str) -> argparse.ArgumentParser:
+        p = sub.add_parser(name, help=help_, description=help_)
+        p.add_argument("files", nargs="*", metavar="FILE", help="study files (TOML)")
+        p.add_argument("--demo", action="store_true", help="run every shipped demo line")
+        p.add_argument("--units", choices=("si", "us"), default="si",
+                       help="units of the printed summary (default: si)")
+        p.add_argument("--json", metavar="PATH",
+                       help="write the results as JSON (keys carry their units)")
+        return p
+
+    study_cmd("params", "line parameters from tower geometry")
+    study_cmd("reach", "fault study: per-loop reach error of the real (partly transposed) line")
+    p = study_cmd("settings", "distance-zone settings under the setting philosophy")
+    p.add_argument("--csv", metavar="PATH", help="write the settings table as CSV")
+    sub.add_parser("conductors", help="list the built-in conductor table")
+    sub.add_parser("earth-models", help="list the earth-return models")
+    return ap
+
+
+def _files(args) -> list[str]:
+    from relayset.errors import InputError
+
+    files = list(args.files)
+    if args.demo:
+        from relayset.resources import demo_studies
+
+        files += [str(p) for p in demo_studies()]
+    if not files:
+        raise InputError("give at least one study FILE or --demo", source="command line")
+    if (getattr(args, "json", None) or getattr(args, "csv", None)) and len(files) > 1:
+        raise InputError("--json/--csv take one study file at a time",
+                         source="command line", field="FILE", value=len(files))
+    return files
+
+
+def _run(args) -> int:
+    from relayset import api, io
+    from relayset.report import text
+
+    if args.command == "conductors":
+        from relayset.conductors import builtin_table
+
+        for key, e in builtin_table().items():
+            aliases = ", ".join(e.get("aliases", []))
+            print(f"{key:22s} {aliases:26s} d = {e['outside_diameter_m'] * 1e3:6.2f} mm")
+        return 0
+    if args.command == "earth-models":
+        from relayset.physics.earth import EARTH_MODELS
+
+        for name, desc in EARTH_MODELS.items():
+            print(f"{name:18s} {desc}")
+        return 0
+
+    run = getattr(api, {"params": "study_parameters"}.get(args.command, f"study_{args.command}"))
+    show = getattr(text, f"{args.command}_summary")
+    # Compute everything first so that bad input leaves no partial output behind.
+    results = [run(f) for f in _files(args)]
+    for res in results:
+        sys.stdout.write(show(res, args.units))
+    if args.json:
+        io.write_json(args.json, results[0].to_dict())
+    if getattr(args, "csv", None):
+        io.write_atomic(args.csv, results[0].settings.to_csv())
+    return 0
+
+
+def main(argv: Sequence[str] | None = None) -> int:
+    args = _parser().parse_args(argv)
+    from relayset.errors import InputError
+
+    try:
+        return _run(args)
+    except InputError as exc:
+        print(f"relayset: error: {exc}", file=sys.stderr)
+        return EXIT_INPUT
+    except BrokenPipeError:
+        return 0
+
+
+if __name__ == "__main__":
+    sys.exit(main())

@@ -1,0 +1,1 @@
+"""Report context and rendering: turns results objects into text, never computes physics."""

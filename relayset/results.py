@@ -1,0 +1,232 @@
+"""The results model: frozen dataclasses that hold every computed number of a study.
+
+One model serves the console summary, the JSON export, the report templates and a later
+recomputation check: none of them recomputes anything, they only read these objects (or the
+dictionary from :meth:`StudyResults.to_dict`, whose keys carry their units).
+
+Per-unit-length values are stored per metre (SI) and exported per km in JSON.
+"""
+
+from __future__ import annotations
+
+import cmath
+import math
+from dataclasses import dataclass, field
+from typing import Any
+
+import numpy as np
+
+from relayset.physics.longline import LongLineEquivalent
+
+PER_KM = 1e3
+
+
+def cplx(z: complex, scale: float = 1.0) -> list[float]:
+    """A complex number as [re, im] (JSON has no complex type)."""
+    z = complex(z) * scale
+    return [float(z.real), float(z.imag)]
+
+
+def polar(z: complex) -> dict[str, float]:
+    """A complex number as {magnitude, angle_deg}."""
+    return {"magnitude": float(abs(z)), "angle_deg": float(math.degrees(cmath.phase(z)))}
+
+
+def matrix(m: np.ndarray, scale: float = 1.0) -> dict[str, list[list[float]]]:
+    """A complex matrix as {"re": rows, "im": rows}."""
+    m = np.asarray(m, dtype=complex) * scale
+    return {"re": m.real.tolist(), "im": m.imag.tolist()}
+
+
+@dataclass(frozen=True)
+class K0:
+    """Residual compensation factor k0 = (Z0 - Z1)/(3 Z1) in its three usual forms."""
+
+    k0: complex
+    kr: float  #: (R0 - R1)/(3 R1)
+    kx: float  #: (X0 - X1)/(3 X1)
+    z0_over_z1: complex
+
+    def to_dict(self) -> dict[str, Any]:
+        return {
+            "k0": polar(self.k0),
+            "k0_complex": cplx(self.k0),
+            "kr": self.kr,
+            "kx": self.kx,
+            "z0_over_z1": polar(self.z0_over_z1),
+        }
+
+
+@dataclass(frozen=True)
+class CircuitSequence:
+    """Sequence quantities of one circuit (diagonal of its Z012; equal for any plan)."""
+
+    circuit: str
+    z1_ohm_per_m: complex
+    z0_ohm_per_m: complex
+    k0: K0
+    c1_f_per_m: float
+    c0_f_per_m: float
+    b1_s_per_m: float  #: positive-sequence shunt susceptance
+    charging_current_a_per_m: float  #: positive-sequence, at nominal voltage
+    z1_ohm: complex
+    z0_ohm: complex
+    charging_current_a: float
+    positive_long_line: LongLineEquivalent
+    zero_long_line: LongLineEquivalent
+
+    @property
+    def line_angle_deg(self) -> float:
+        return math.degrees(cmath.phase(self.z1_ohm_per_m))
+
+    @property
+    def long_line_flag(self) -> bool:
+        """True where the exact equivalent differs from the nominal by more than 1 %."""
+        return (self.positive_long_line.series_correction_pct > 1.0
+                or self.zero_long_line.series_correction_pct > 1.0)
+
+    def to_dict(self) -> dict[str, Any]:
+        p, z = self.positive_long_line, self.zero_long_line
+        return {
+            "circuit": self.circuit,
+            "z1_ohm_per_km": cplx(self.z1_ohm_per_m, PER_KM),
+            "z0_ohm_per_km": cplx(self.z0_ohm_per_m, PER_KM),
+            "z0_over_z1_magnitude": abs(self.z0_ohm_per_m / self.z1_ohm_per_m),
+            "line_angle_deg": self.line_angle_deg,
+            "k0": self.k0.to_dict(),
+            "c1_nf_per_km": self.c1_f_per_m * 1e12,
+            "c0_nf_per_km": self.c0_f_per_m * 1e12,
+            "b1_us_per_km": self.b1_s_per_m * PER_KM * 1e6,
+            "charging_current_a_per_km": self.charging_current_a_per_m * PER_KM,
+            "z1_ohm": cplx(self.z1_ohm),
+            "z0_ohm": cplx(self.z0_ohm),
+            "charging_current_a": self.charging_current_a,
+            "surge_impedance_ohm": cplx(p.surge_impedance_ohm),
+            "propagation_constant_per_km": cplx(p.propagation_per_m, PER_KM),
+            "z1_exact_ohm": cplx(p.z_exact_ohm),
+            "z0_exact_ohm": cplx(z.z_exact_ohm),
+            "z1_exact_correction_pct": p.series_correction_pct,
+            "z0_exact_correction_pct": z.series_correction_pct,
+            "long_line_correction_needed": self.long_line_flag,
+        }
+
+
+
+@dataclass(frozen=True)
+class Arrangement:
+    """Phase-domain and sequence matrices of the line for one transposition arrangement."""
+
+    name: str  #: "untransposed", "actual_plan" or "ideal_cycle"
+    description: str
+    zabc_ohm_per_m: np.ndarray  #: (n, n), phase order (circuit 1 then circuit 2)
+    yabc_s_per_m: np.ndarray  #: (n, n)
+    z012_ohm_per_m: np.ndarray  #: (n, n) block-wise Fortescue transform (off-diagonals kept)
+    unbalance_m0: tuple[complex, ...]  #: per circuit
+    unbalance_m2: tuple[complex, ...]
+    z0m_ohm_per_m: complex | None  #: zero-sequence mutual between circuits (double circuit)
+
+    def to_dict(self) -> dict[str, Any]:
+        d: dict[str, Any] = {
+            "description": self.description,
+            "zabc_ohm_per_km": matrix(self.zabc_ohm_per_m, PER_KM),
+            "yabc_us_per_km": matrix(self.yabc_s_per_m, PER_KM * 1e6),
+            "z012_ohm_per_km": matrix(self.z012_ohm_per_m, PER_KM),
+            "unbalance_m0_pct": [100 * abs(m) for m in self.unbalance_m0],
+            "unbalance_m2_pct": [100 * abs(m) for m in self.unbalance_m2],
+        }
+        if self.z0m_ohm_per_m is not None:
+            d["z0m_ohm_per_km"] = cplx(self.z0m_ohm_per_m, PER_KM)
+        return d
+
+
+@dataclass(frozen=True)
+class LineParameters:
+    """Everything the line-parameter engine computed for one study."""
+
+    length_m: float
+    frequency_hz: float
+    resistivity_ohm_m: float
+    earth_model: str
+    v_nominal_v: float
+    position_names: tuple[str, ...]
+    phase_labels: tuple[tuple[str, str, str], ...]
+    section_lengths_m: tuple[float, ...]
+    section_orders: tuple[tuple[str, ...], ...]  #: phase label at each position, per section
+    conductors: tuple[Any, ...]  #: ConductorData of each type used
+    z_position_ohm_per_m: np.ndarray  #: (n, n) by position, shields and bundles reduced
+    y_position_s_per_m: np.ndarray
+    arrangements: dict[str, Arrangement]
+    circuits: tuple[CircuitSequence, ...]
+    k0m: complex | None  #: Z0M / (3 Z1) of the actual plan (double circuit)
+    assumptions: tuple[str, ...]
+
+    def to_dict(self) -> dict[str, Any]:
+        return {
+            "length_km": self.length_m / 1e3,
+            "frequency_hz": self.frequency_hz,
+            "earth_resistivity_ohm_m": self.resistivity_ohm_m,
+            "earth_model": self.earth_model,
+            "nominal_voltage_kv": self.v_nominal_v / 1e3,
+            "positions": list(self.position_names),
+            "phase_labels": [list(p) for p in self.phase_labels],
+            "sections": [
+                {"length_km": ln / 1e3, "order": list(o)}
+                for ln, o in zip(self.section_lengths_m, self.section_orders, strict=True)
+            ],
+            "conductors": [
+                {
+                    "name": c.name,
+                    "description": c.description,
+                    "r_ac_ohm_per_km": c.r_ac_ohm_per_m * PER_KM,
+                    "gmr_mm": c.gmr_m * 1e3,
+                    "outside_diameter_mm": 2e3 * c.radius_m,
+                    "operating_temperature_c": c.operating_temperature_c,
+                    "source": c.source,
+                }
+                for c in self.conductors
+            ],
+            "z_by_position_ohm_per_km": matrix(self.z_position_ohm_per_m, PER_KM),
+            "circuits": [c.to_dict() for c in self.circuits],
+            "k0m": None if self.k0m is None else polar(self.k0m),
+            "arrangements": {k: a.to_dict() for k, a in self.arrangements.items()},
+            "assumptions": list(self.assumptions),
+        }
+
+
+CAUTION = (
+    "This calculation must be reviewed and approved by a licensed professional engineer "
+    "before use. Local codes, the utility's setting philosophy and the relay manufacturer's "
+    "instructions prevail over anything computed here."
+)
+
+
+@dataclass(frozen=True)
+class StudyResults:
+    """The whole study: its identity, the input basis and every result, read-only."""
+
+    relayset_version: str
+    source_file: str
+    source_sha256: str
+    study_input: dict[str, Any]  #: the study file as read (TOML tables), for the archive
+    identity: dict[str, Any]
+    parameters: LineParameters
+    reach: Any | None = None  #: ReachStudyResult when computed
+    settings: Any | None = None  #: SettingsResult when computed
+    caution: str = CAUTION
+    warnings: tuple[str, ...] = field(default_factory=tuple)
+
+    def to_dict(self) -> dict[str, Any]:
+        d: dict[str, Any] = {
+            "relayset_version": self.relayset_version,
+            "caution": self.caution,
+            "source_file": self.source_file,
+            "source_sha256": self.source_sha256,
+            "study": self.identity,
+            "parameters": self.parameters.to_dict(),
+        }
+        if self.reach is not None:
+            d["reach_study"] = self.reach.to_dict()
+        if self.settings is not None:
+            d["settings"] = self.settings.to_dict()
+        d["input"] = self.study_input
+        return d

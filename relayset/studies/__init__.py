@@ -1,0 +1,1 @@
+"""Study orchestration: from a validated study file to results objects (no printing)."""

@@ -1,0 +1,230 @@
+"""From a validated study to the arrays the physics needs: conductors, positions, sections."""
+
+from __future__ import annotations
+
+import math
+from dataclasses import dataclass
+
+import numpy as np
+
+from relayset import conductors as cond
+from relayset.errors import InputError
+from relayset.physics.conductor import bundle_offsets_m
+from relayset.study_file import Study
+
+#: Conductors closer than this (surface to surface) are taken as overlapping.
+_MIN_CLEARANCE_M = 0.0
+
+
+@dataclass(frozen=True)
+class Wire:
+    """One physical wire (a subconductor or an earth wire) at its mean height."""
+
+    x_m: float
+    y_m: float
+    conductor: cond.ConductorData
+    role: str  # "phase" or "shield"
+    group: int  # index of the phase position (0..3n-1) or of the shield wire
+    label: str  # e.g. "circuit 1, position left, sub 2"
+    field: str  # the study-file field that placed it
+    grounding: str = "continuous"
+
+
+@dataclass(frozen=True)
+class LineGeometry:
+    """Every wire of the line and the plan of transposition, SI."""
+
+    wires: tuple[Wire, ...]
+    n_circuits: int
+    position_names: tuple[str, ...]  # 3 per circuit, in the file's order
+    phase_labels: tuple[tuple[str, str, str], ...]  # per circuit
+    section_lengths_m: tuple[float, ...]
+    section_orders: tuple[tuple[int, ...], ...]  # per section: phase index at each position
+    length_m: float
+    frequency_hz: float
+    resistivity_ohm_m: float
+    earth_model: str
+    v_nominal_v: float
+    assumptions: tuple[str, ...]
+
+
+def _conductor_props(study: Study, name: str, source: str) -> dict:
+    ct = study.conductor_types[name]
+    field = f"conductor_types.{name}"
+    props: dict = {}
+    if ct.code:
+        key, entry = cond.lookup(ct.code, field=f"{field}.code", source=source)
+        props.update({k: v for k, v in entry.items() if k not in ("aliases", "source")})
+        props["_description"] = key
+        props["_source"] = entry.get("source", "built-in table")
+    explicit = {
+        "outside_diameter_m": ct.outside_diameter,
+        "gmr_m": ct.gmr,
+        "strands_aluminium": ct.strands_aluminium,
+        "strands_steel": ct.strands_steel,
+        "wire_diameter_aluminium_m": ct.wire_diameter_aluminium,
+        "wire_diameter_steel_m": ct.wire_diameter_steel,
+        "ac_resistance_ohm_per_m": ct.ac_resistance,
+        "ac_resistance_temperature_c": ct.ac_resistance_temperature,
+        "dc_resistance_20c_ohm_per_m": ct.dc_resistance_20c,
+        "temperature_coefficient_per_k": ct.temperature_coefficient,
+        "ac_dc_ratio": ct.ac_dc_ratio,
+        "operating_temperature_c": ct.operating_temperature,
+    }
+    props.update({k: v for k, v in explicit.items() if v is not None})
+    if ct.code and any(v is not None for k, v in explicit.items()
+                       if k != "operating_temperature_c"):
+        props["_description"] = f"{props['_description']} (with explicit overrides)"
+    return props
+
+
+def build_geometry(study: Study, source: str = "<study>") -> LineGeometry:
+    """Place every wire, resolve conductor data and check the geometry and the section plan."""
+    f_hz = study.system.frequency
+    resolved: dict[str, cond.ConductorData] = {}
+
+    def conductor(name: str, field: str) -> cond.ConductorData:
+        if name not in study.conductor_types:
+            from relayset.errors import suggest
+
+            raise InputError(
+                "names no entry of [conductor_types]" + suggest(name, study.conductor_types),
+                field=field, value=name, source=source,
+            )
+        if name not in resolved:
+            resolved[name] = cond.resolve(
+                name, _conductor_props(study, name, source), f_hz,
+                field=f"conductor_types.{name}", source=source,
+            )
+        return resolved[name]
+
+    wires: list[Wire] = []
+    position_names: list[str] = []
+    assumptions = [
+        "Conductor height is the average over the span, h - 2/3 * sag (parabolic sag).",
+        "Earth is homogeneous with the given resistivity; earth-return model: "
+        f"{study.system.earth_model}.",
+        "Subconductors of a bundle share one voltage (bonded at the spacers).",
+    ]
+    for c, circuit in enumerate(study.circuits):
+        labels = circuit.phase_labels
+        if len(set(labels)) != 3:
+            raise InputError("phase labels must be three different names",
+                             field=f"circuits[{c}].phase_labels", value=list(labels),
+                             source=source)
+        for k, pos in enumerate(circuit.positions):
+            field = f"circuits[{c}].positions[{k}]"
+            data = conductor(pos.conductor, f"{field}.conductor")
+            position_names.append(f"{circuit.name}/{pos.name}")
+            y0 = pos.mean_height_m
+            offsets = np.zeros((1, 2))
+            if pos.bundle is not None and pos.bundle.count > 1:
+                offsets = bundle_offsets_m(pos.bundle.count, pos.bundle.spacing,
+                                           pos.bundle.orientation)
+                if pos.bundle.spacing <= 2 * data.radius_m:
+                    raise InputError(
+                        f"bundle spacing must exceed the conductor diameter "
+                        f"({2e3 * data.radius_m:.1f} mm)",
+                        field=f"{field}.bundle.spacing", value=f"{pos.bundle.spacing:g} m",
+                        source=source)
+            for s, (dx, dy) in enumerate(offsets):
+                wires.append(Wire(pos.x + dx, y0 + dy, data, "phase", 3 * c + k,
+                                  f"circuit {circuit.name}, position {pos.name}"
+                                  + (f", subconductor {s + 1}" if len(offsets) > 1 else ""),
+                                  field))
+    for k, sw in enumerate(study.shield_wires):
+        field = f"shield_wires[{k}]"
+        data = conductor(sw.conductor, f"{field}.conductor")
+        wires.append(Wire(sw.x, sw.mean_height_m, data, "shield", k,
+                          f"shield wire {sw.name or k + 1}", field, sw.grounding))
+    if any(sw.grounding == "segmented" for sw in study.shield_wires):
+        assumptions.append(
+            "Segmented shield wires (insulated sections, each earthed at one point) carry no "
+            "power-frequency current: left out of the series impedance, kept at earth "
+            "potential for capacitance.")
+    if any(sw.grounding == "none" for sw in study.shield_wires):
+        assumptions.append("Insulated shield wires float: no current and no net charge.")
+    if any(sw.grounding == "continuous" for sw in study.shield_wires):
+        assumptions.append("Continuously earthed shield wires are at zero voltage and are "
+                           "eliminated by Kron reduction.")
+
+    # Geometry rules: above ground, no overlap.
+    for w in wires:
+        if w.y_m - w.conductor.radius_m <= 0:
+            raise InputError("conductor would be at or below ground (mean height = height - "
+                             "2/3 sag must exceed the conductor radius)",
+                             field=w.field, value=f"mean height {w.y_m:.3f} m", source=source)
+    for i in range(len(wires)):
+        for j in range(i + 1, len(wires)):
+            a, b = wires[i], wires[j]
+            d = math.hypot(a.x_m - b.x_m, a.y_m - b.y_m)
+            if d <= a.conductor.radius_m + b.conductor.radius_m + _MIN_CLEARANCE_M:
+                raise InputError(
+                    f"overlaps {b.label} ({b.field}); centres {d:.3f} m apart",
+                    field=a.field, value=a.label, source=source)
+
+    # Section plan.
+    n_c = len(study.circuits)
+    length = study.line.length
+    sections = study.line.sections
+    if sections is None:
+        lengths = (length,)
+        orders = (tuple(range(3 * n_c)),)
+    else:
+        lengths_l, orders_l = [], []
+        for s, sec in enumerate(sections):
+            field = f"line.sections[{s}].order"
+            if isinstance(sec.order, dict):
+                per_circuit = sec.order
+                names = [c.name for c in study.circuits]
+                for key in per_circuit:
+                    if key not in names:
+                        from relayset.errors import suggest
+
+                        raise InputError("names no circuit" + suggest(key, names),
+                                         field=f"{field}.{key}", source=source)
+            else:
+                if n_c != 1:
+                    raise InputError("a double-circuit section needs an order per circuit, "
+                                     "like order = { \"1\" = [...], \"2\" = [...] }",
+                                     field=field, value=list(sec.order), source=source)
+                per_circuit = {study.circuits[0].name: sec.order}
+            order: list[int] = []
+            for c, circuit in enumerate(study.circuits):
+                o = per_circuit.get(circuit.name)
+                f = f"{field}.{circuit.name}" if isinstance(sec.order, dict) else field
+                if o is None:
+                    raise InputError("has no order for this circuit", field=f, source=source)
+                labels = circuit.phase_labels
+                missing = [p for p in labels if p not in o]
+                if len(o) != 3 or missing or len(set(o)) != 3:
+                    rule = (f"phase {missing[0]!r} is missing" if missing
+                            else "must list each phase once")
+                    raise InputError(f"{rule}; an order names the phase at each of the three "
+                                     f"positions, using {list(labels)}",
+                                     field=f, value=list(o), source=source)
+                order.extend(3 * c + labels.index(p) for p in o)
+            lengths_l.append(sec.length)
+            orders_l.append(tuple(order))
+        total = sum(lengths_l)
+        if abs(total - length) > 1e-6 * length + 1e-3:
+            raise InputError(
+                f"section lengths add up to {total / 1e3:g} km but the line is "
+                f"{length / 1e3:g} km long", field="line.sections",
+                value=[f"{x / 1e3:g} km" for x in lengths_l], source=source)
+        lengths, orders = tuple(lengths_l), tuple(orders_l)
+
+    return LineGeometry(
+        wires=tuple(wires),
+        n_circuits=n_c,
+        position_names=tuple(position_names),
+        phase_labels=tuple(c.phase_labels for c in study.circuits),
+        section_lengths_m=lengths,
+        section_orders=orders,
+        length_m=length,
+        frequency_hz=f_hz,
+        resistivity_ohm_m=study.system.earth_resistivity,
+        earth_model=study.system.earth_model,
+        v_nominal_v=study.system.nominal_voltage,
+        assumptions=tuple(assumptions),
+    )

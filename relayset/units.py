@@ -1,0 +1,181 @@
+"""Quantities at the edges: parse "28 ft", "0.1859 ohm/mi", "1.5 + 12j ohm" into SI floats.
+
+Everything inside relayset is SI (m, ohm, S, F, H, Hz, V, A, W, VA, K for temperature
+differences, degree Celsius for temperatures). Text quantities from input files are parsed
+here with pint, which knows SI and US customary units; pint is imported on first use so
+that the command line starts fast.
+"""
+
+from __future__ import annotations
+
+import math
+import re
+from functools import lru_cache
+from typing import Any
+
+# Each kind names the SI unit it is stored in; the parser checks dimensionality against it.
+KINDS: dict[str, str] = {
+    "length": "m",
+    "resistance": "ohm",
+    "impedance": "ohm",
+    "resistance_per_length": "ohm/m",
+    "resistivity": "ohm*m",
+    "voltage": "V",
+    "current": "A",
+    "frequency": "Hz",
+    "power": "VA",
+    "angle": "rad",
+    "temperature": "degC",
+    "per_kelvin": "1/K",
+    "capacitance_per_length": "F/m",
+    "dimensionless": "",
+}
+
+_NUM = r"[+-]?(?:\d+\.?\d*|\.\d+)(?:[eE][+-]?\d+)?"
+_REAL = re.compile(rf"^\s*({_NUM})\s*(.*?)\s*$")
+
+
+@lru_cache(maxsize=1)
+def registry() -> Any:
+    """The one pint registry relayset uses (built once, on first use)."""
+    import pint
+
+    ureg = pint.UnitRegistry(autoconvert_offset_to_baseunit=True)
+    ureg.define("var = volt_ampere")  # reactive power, same dimension as VA
+    ureg.define("pu = 1 = p.u.")
+    return ureg
+
+
+class UnitRuleError(ValueError):
+    """A text quantity breaks a unit rule; the message is the rule, for an InputError."""
+
+
+def _to_si(magnitude: float, unit: str, kind: str) -> float:
+    target = KINDS[kind]
+    if unit == "":
+        if kind == "dimensionless":
+            return float(magnitude)
+        raise UnitRuleError(f"needs a unit of {kind.replace('_', ' ')} (for example '{target}')")
+    ureg = registry()
+    try:
+        q = ureg.Quantity(magnitude, unit)
+    except Exception as exc:  # pint raises several error types for unknown units
+        raise UnitRuleError(f"unit {unit!r} is not a known unit") from exc
+    try:
+        return float(q.to(target).magnitude) if target else float(q.to("").magnitude)
+    except Exception as exc:
+        raise UnitRuleError(
+            f"unit {unit!r} is not a unit of {kind.replace('_', ' ')} (expected like '{target}')"
+        ) from exc
+
+
+def _finite(x: float) -> float:
+    if not math.isfinite(x):
+        raise UnitRuleError("must be a finite number (NaN and infinity are not allowed)")
+    return x
+
+
+def parse_real(value: Any, kind: str) -> float:
+    """Parse a real quantity to SI.
+
+    Parameters
+    ----------
+    value : str or number
+        Text such as ``"28 ft"``; a bare number is accepted only for dimensionless kinds.
+    kind : str
+        A key of :data:`KINDS`.
+
+    Returns
+    -------
+    float
+        The value in the kind's SI unit.
+    """
+    if isinstance(value, bool):
+        raise UnitRuleError("must be a number with a unit, not true/false")
+    if isinstance(value, int | float):
+        return _finite(_to_si(float(value), "", kind))
+    if not isinstance(value, str):
+        raise UnitRuleError(f"must be text like '10 {KINDS[kind]}'")
+    text = value.strip()
+    if text.lower() in {"nan", "inf", "-inf", "+inf"} or re.match(r"^[+-]?(nan|inf)\b", text, re.I):
+        raise UnitRuleError("must be a finite number (NaN and infinity are not allowed)")
+    m = _REAL.match(text)
+    if not m:
+        raise UnitRuleError(f"is not a number followed by a unit (like '10 {KINDS[kind]}')")
+    return _finite(_to_si(float(m.group(1)), m.group(2), kind))
+
+
+def parse_complex(value: Any, kind: str = "impedance") -> complex:
+    """Parse a complex quantity such as ``"1.5 + 12j ohm"`` or ``"12j ohm"`` to SI."""
+    if isinstance(value, int | float) and not isinstance(value, bool):
+        return complex(parse_real(value, kind))
+    if not isinstance(value, str):
+        raise UnitRuleError("must be text like '1.5 + 12j ohm'")
+    text = value.strip()
+    if re.search(r"(nan|inf)", text, re.I):
+        raise UnitRuleError("must be a finite number (NaN and infinity are not allowed)")
+    # The number is the longest leading run that Python's complex() accepts; the rest is the unit.
+    m = re.match(r"^[\s\d.eE+\-jJ()]*", text)
+    head = m.group(0) if m else ""
+    number = None
+    for cut in range(len(head), 0, -1):
+        try:
+            number = complex(head[:cut].replace(" ", ""))
+        except ValueError:
+            continue
+        unit = text[cut:].strip()
+        break
+    if number is None:
+        raise UnitRuleError("is not a complex number with a unit (like '1.5 + 12j ohm')")
+    scale = _to_si(1.0, unit, kind)
+    return complex(_finite(number.real * scale), _finite(number.imag * scale))
+
+
+def parse_ratio(value: Any) -> float:
+    """Parse an instrument-transformer ratio such as ``"800/1 A"`` or ``"132000/110 V"``.
+
+    Returns
+    -------
+    float
+        Primary over secondary (dimensionless). Both sides must be positive.
+    """
+    if isinstance(value, int | float) and not isinstance(value, bool):
+        ratio = float(value)
+    elif isinstance(value, str):
+        m = re.match(rf"^\s*({_NUM})\s*(?:/|:)\s*({_NUM})\s*([A-Za-z]*)\s*$", value)
+        if not m:
+            raise UnitRuleError("is not a ratio like '800/1 A' or '132000/110 V'")
+        prim, sec = float(m.group(1)), float(m.group(2))
+        if prim <= 0 or sec <= 0:
+            raise UnitRuleError("both sides of a ratio must be greater than zero")
+        ratio = prim / sec
+    else:
+        raise UnitRuleError("is not a ratio like '800/1 A'")
+    ratio = _finite(ratio)
+    if ratio <= 0:
+        raise UnitRuleError("a ratio must be greater than zero")
+    return ratio
+
+
+def ratio_sides(value: str | float) -> tuple[float, float]:
+    """Primary and secondary sides of a ratio text (secondary 1 for a bare number)."""
+    if isinstance(value, str):
+        m = re.match(rf"^\s*({_NUM})\s*(?:/|:)\s*({_NUM})", value)
+        if m:
+            return float(m.group(1)), float(m.group(2))
+    return float(value), 1.0
+
+
+# Output unit systems: a factor from SI to the shown unit and the unit's label.
+OUTPUT_UNITS: dict[str, dict[str, tuple[float, str]]] = {
+    "si": {
+        "per_length": (1e3, "km"),  # multiply a per-metre value by this to get per km
+        "length": (1e-3, "km"),
+        "height": (1.0, "m"),
+    },
+    "us": {
+        "per_length": (1609.344, "mi"),
+        "length": (1 / 1609.344, "mi"),
+        "height": (1 / 0.3048, "ft"),
+    },
+}
