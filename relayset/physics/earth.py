@@ -13,7 +13,7 @@ earth-return correction computed here. Three models are offered, chosen by name:
 ``carson``
     Carson's infinite series [1]_, summed until the terms vanish, and its asymptotic expansion
     for large Carson parameter (``r > 18``), where the alternating series loses precision (both
-    agree with direct integration to better than 2e-7 relative there); in the
+    agree with direct integration to better than 5e-7 relative there); in the
     form given in Dommel's EMTP Theory Book [2]_.
 ``carson_truncated``
     The first term of P and the first two of Q ("modified Carson" [3]_): the form the
