@@ -1,0 +1,1114 @@
+r"""Phase-domain short-circuit solver for a two-ended, single- or double-circuit line.
+
+The network is bus S -- protected line -- bus R. Each bus has a Thevenin source (balanced
+EMF behind a balanced 3x3 phase impedance built from Z1 and Z0) or no source (open end).
+The line is a cascade of sections, each given as a series impedance matrix per metre (and
+optionally a shunt admittance matrix per metre), already in phase order. With six
+conductors, conductors 0-2 are circuit 1 (the faulted one) and 3-5 are circuit 2.
+
+Method
+------
+Every line part is represented by its chain (ABCD) matrix
+
+.. math:: \begin{bmatrix}V_0\\I_0\end{bmatrix} = \Phi
+          \begin{bmatrix}V_x\\I_x\end{bmatrix},\qquad
+          \Phi = \exp\begin{bmatrix}0 & Z\ell\\ Y\ell & 0\end{bmatrix}
+
+which is the exact solution of the multiconductor telegraph equations
+:math:`dV/dx = -ZI`, :math:`dI/dx = -YV` for a uniform section of length :math:`\ell` [1]_.
+Series-only sections reduce to :math:`\Phi = [[1, Z\ell],[0, 1]]`. Because chain matrices
+stay finite for zero length, faults at m = 0 and m = 1 need no special case.
+
+Each line end obeys n linear terminal equations :math:`G_v V + G_i I = g` (source
+:math:`V + Z_s I = E`, open end :math:`I = 0`, earthed end :math:`V = 0`, both circuits
+on one bus :math:`V_1 = V_2`). With the chain matrices these become equations in the
+voltages and currents at the fault point; together with Kirchhoff's current law there
+they give a 3n x 3n linear system per (location, source case). One batched solve yields
+the prefault state for every load case and the response to a unit fault current injected
+at each phase, i.e. the 3x3 Thevenin matrix :math:`Z_{th}` at the fault.
+
+Faults are written as exact linear constraints :math:`P_v V_F + P_i I_f = 0` (valid for
+zero resistance, so bolted faults need no resistance floor), and with
+:math:`V_F = V_{pre} - Z_{th} I_f` every fault type and resistance is one batched 3x3
+solve:
+
+.. math:: (P_i - P_v Z_{th})\, I_f = -P_v V_{pre}.
+
+All relay-end quantities follow by superposition. :func:`solve_fault_single` is an
+independent per-case reference (modified nodal analysis with a node at every section
+boundary, exact nodal matrices of each section from an eigendecomposition).
+
+References
+----------
+.. [1] C. R. Paul, *Analysis of Multiconductor Transmission Lines*, 2nd ed. Hoboken, NJ,
+   USA: Wiley, 2008, ch. 7 (chain-parameter matrix).
+.. [2] C. L. Fortescue, "Method of symmetrical co-ordinates applied to the solution of
+   polyphase networks," Trans. AIEE, vol. 37, pp. 1027-1140, 1918.
+.. [3] C. W. Ho, A. E. Ruehli and P. A. Brennan, "The modified nodal approach to network
+   analysis," IEEE Trans. Circuits Syst., vol. 22, no. 6, pp. 504-509, 1975.
+"""
+
+from __future__ import annotations
+
+import math
+from collections.abc import Mapping, Sequence
+from dataclasses import dataclass
+
+import numpy as np
+from scipy.linalg import expm
+
+from relayset.errors import InputError, suggest
+from relayset.physics.sequence import balanced_phase_matrix, fortescue_matrix, to_sequence
+
+FAULT_TYPES: tuple[str, ...] = (
+    "AG", "BG", "CG", "AB", "BC", "CA", "ABG", "BCG", "CAG", "ABC",
+)
+PARALLEL_STATES: tuple[str, ...] = ("in_service", "earthed", "isolated")
+
+#: Resistance used by :func:`fault_admittance` in place of 0 ohm [ohm]. The solvers do not
+#: use it: they write faults as exact constraints.
+R_FLOOR_OHM: float = 1e-6
+
+_PHASE_INDEX = {"A": 0, "B": 1, "C": 2}
+# Relative distance below which a fault location is taken to sit on a section boundary.
+_SNAP_REL = 1e-9
+
+
+def _name(field: str, field_names: Mapping[str, str] | None) -> str:
+    """Caller's field name for one of our parameter names (the lead maps them to file paths)."""
+    if field_names and field in field_names:
+        return field_names[field]
+    return field
+
+
+# --------------------------------------------------------------------------------------
+# Fault description
+# --------------------------------------------------------------------------------------
+
+
+def _check_fault_type(fault_type: str, field: str = "fault_type") -> tuple[list[int], bool]:
+    if fault_type not in FAULT_TYPES:
+        raise InputError(
+            f"unknown fault type; use one of {', '.join(FAULT_TYPES)}"
+            + suggest(str(fault_type), FAULT_TYPES),
+            field=field,
+            value=fault_type,
+        )
+    ground = fault_type.endswith("G")
+    letters = fault_type[:-1] if ground else fault_type
+    return [_PHASE_INDEX[c] for c in letters], ground
+
+
+def _check_resistance(r: np.ndarray, field: str) -> np.ndarray:
+    r = np.asarray(r, dtype=float)
+    if not np.all(np.isfinite(r)):
+        raise InputError("resistance must be finite", field=field, value=r.tolist())
+    if np.any(r < 0):
+        raise InputError(
+            "resistance must not be negative", field=field, value=float(r[r < 0].flat[0])
+        )
+    return r
+
+
+def fault_constraints(
+    fault_type: str, r_fault_ohm: np.ndarray | float, r_phase_ohm: np.ndarray | float
+) -> tuple[np.ndarray, np.ndarray]:
+    r"""Exact linear description :math:`P_v V + P_i I = 0` of a shunt fault.
+
+    V are the phase-to-ground voltages at the fault point and I the phase currents into
+    the fault. A phase-to-ground fault is phase-ground resistance ``r_fault``; a phase-phase
+    fault is ``r_phase`` between the two phases; a two-phase-to-ground or three-phase
+    fault joins the faulted phases to a star point through ``r_phase/2`` each, the star
+    point going to ground through ``r_fault`` (two-phase-to-ground) or floating
+    (three-phase). Zero resistances are exact (bolted fault).
+
+    Parameters
+    ----------
+    fault_type : str
+        One of :data:`FAULT_TYPES`.
+    r_fault_ohm : array_like
+        Resistance to ground [ohm], >= 0.
+    r_phase_ohm : array_like
+        Resistance between two faulted phases [ohm], >= 0; broadcast with ``r_fault_ohm``.
+
+    Returns
+    -------
+    p_v, p_i : (..., 3, 3) complex arrays
+        Coefficients of V [1] and of I [ohm].
+    """
+    phases, ground = _check_fault_type(fault_type)
+    rf = _check_resistance(r_fault_ohm, "r_fault_ohm")
+    rp = _check_resistance(r_phase_ohm, "r_phase_ohm")
+    rf, rp = np.broadcast_arrays(rf, rp)
+    shape = rf.shape
+    p_v = np.zeros((*shape, 3, 3), dtype=complex)
+    p_i = np.zeros((*shape, 3, 3), dtype=complex)
+    for o in range(3):
+        if o not in phases:
+            p_i[..., o, o] = 1.0  # healthy phase: no current into the fault
+    if len(phases) == 1:
+        (p,) = phases
+        p_v[..., p, p] = 1.0
+        p_i[..., p, p] = -rf
+    elif len(phases) == 2:
+        p, q = phases
+        if ground:
+            # V_p = (r_p/2) I_p + r_f (I_p + I_q), same for q
+            for row, col in ((p, p), (q, q)):
+                p_v[..., row, col] = 1.0
+                p_i[..., row, col] = -rp / 2
+                p_i[..., row, p] -= rf
+                p_i[..., row, q] -= rf
+        else:
+            p_i[..., p, p] = 1.0  # I_p + I_q = 0
+            p_i[..., p, q] = 1.0
+            p_v[..., q, p] = 1.0  # V_p - V_q = (r_p/2)(I_p - I_q)
+            p_v[..., q, q] = -1.0
+            p_i[..., q, p] = -rp / 2
+            p_i[..., q, q] = rp / 2
+    else:
+        p_i[..., 0, :] = 1.0  # star point not earthed: currents sum to zero
+        for row, (x, y) in ((1, (0, 1)), (2, (1, 2))):
+            p_v[..., row, x] = 1.0
+            p_v[..., row, y] = -1.0
+            p_i[..., row, x] = -rp / 2
+            p_i[..., row, y] = rp / 2
+    return p_v, p_i
+
+
+def fault_admittance(
+    fault_type: str, r_fault_ohm: np.ndarray | float, r_phase_ohm: np.ndarray | float
+) -> np.ndarray:
+    r"""Phase admittance matrix :math:`Y_f` of a shunt fault, :math:`I_f = Y_f V_F`.
+
+    Same fault model as :func:`fault_constraints`. Zero resistances are replaced by
+    :data:`R_FLOOR_OHM` because a bolted fault has no finite admittance; the solvers use the
+    exact constraints instead. For the star connection (conductance :math:`g = 2/r_p`
+    per phase, :math:`g_g = 1/r_f` to ground) the star point is eliminated (Kron):
+
+    .. math:: Y_f = g\,D - \frac{g^2}{k g + g_g}\, u u^T
+
+    with D the diagonal selector of the k faulted phases and u their indicator vector
+    (:math:`g_g = 0` for the unearthed three-phase star).
+
+    Parameters
+    ----------
+    fault_type : str
+        One of :data:`FAULT_TYPES`.
+    r_fault_ohm, r_phase_ohm : array_like
+        Resistances [ohm], >= 0, broadcast together.
+
+    Returns
+    -------
+    (..., 3, 3) complex array
+        Fault admittance matrix [S].
+    """
+    phases, ground = _check_fault_type(fault_type)
+    rf = np.maximum(_check_resistance(r_fault_ohm, "r_fault_ohm"), R_FLOOR_OHM)
+    rp = np.maximum(_check_resistance(r_phase_ohm, "r_phase_ohm"), R_FLOOR_OHM)
+    rf, rp = np.broadcast_arrays(rf, rp)
+    y = np.zeros((*rf.shape, 3, 3), dtype=complex)
+    u = np.zeros(3)
+    u[phases] = 1.0
+    if len(phases) == 1:
+        y += (1.0 / rf)[..., None, None] * np.outer(u, u)
+    elif len(phases) == 2 and not ground:
+        d = np.zeros(3)
+        d[phases[0]], d[phases[1]] = 1.0, -1.0
+        y += (1.0 / rp)[..., None, None] * np.outer(d, d)
+    else:
+        g = 2.0 / rp
+        g_g = 1.0 / rf if ground else np.zeros_like(rf)
+        k = len(phases)
+        y += g[..., None, None] * np.diag(u)
+        y -= (g * g / (k * g + g_g))[..., None, None] * np.outer(u, u)
+    return y
+
+
+# --------------------------------------------------------------------------------------
+# Network data
+# --------------------------------------------------------------------------------------
+
+
+@dataclass(frozen=True)
+class Source:
+    """Thevenin source behind a balanced impedance.
+
+    Parameters
+    ----------
+    z1_ohm : complex
+        Positive- (= negative-) sequence source impedance [ohm], real part >= 0.
+    z0_ohm : complex
+        Zero-sequence source impedance [ohm], real part >= 0.
+    """
+
+    z1_ohm: complex
+    z0_ohm: complex
+
+    def __post_init__(self) -> None:
+        for name in ("z1_ohm", "z0_ohm"):
+            z = complex(getattr(self, name))
+            if not (math.isfinite(z.real) and math.isfinite(z.imag)):
+                raise InputError("source impedance must be finite", field=name, value=z)
+            if z.real < 0:
+                raise InputError(
+                    "source resistance must not be negative", field=name, value=z
+                )
+            object.__setattr__(self, name, z)
+
+    @classmethod
+    def from_fault_levels(
+        cls,
+        v_nominal_v: float,
+        s3ph_va: float,
+        x_over_r: float,
+        s1ph_va: float | None = None,
+        z0_over_z1: complex | None = None,
+    ) -> Source:
+        r"""Source impedances from three-phase and single-phase fault levels.
+
+        .. math:: |Z_1| = \frac{V^2}{S_{3ph}},\qquad |2Z_1 + Z_0| = \frac{3V^2}{S_{1ph}}
+
+        with :math:`S = \sqrt3\,V\,I` (no voltage factor) and the same angle
+        :math:`\arctan(X/R)` for Z1 and Z0. Give exactly one of ``s1ph_va`` or
+        ``z0_over_z1``.
+
+        Parameters
+        ----------
+        v_nominal_v : float
+            Nominal line-to-line voltage [V].
+        s3ph_va : float
+            Three-phase fault level [VA].
+        x_over_r : float
+            X/R ratio of the source [1], > 0 (``inf`` for a pure reactance).
+        s1ph_va : float, optional
+            Single-phase-to-ground fault level [VA].
+        z0_over_z1 : complex, optional
+            Ratio Z0/Z1 [1]; a real ratio keeps the angle of Z1.
+        """
+        for name, value in (("v_nominal_v", v_nominal_v), ("s3ph_va", s3ph_va)):
+            if not (math.isfinite(value) and value > 0):
+                raise InputError("must be a positive number", field=name, value=value)
+        if not (x_over_r > 0) or math.isnan(x_over_r):
+            raise InputError("X/R must be positive", field="x_over_r", value=x_over_r)
+        if (s1ph_va is None) == (z0_over_z1 is None):
+            raise InputError(
+                "give exactly one of the single-phase fault level or Z0/Z1",
+                field="s1ph_va",
+                value=s1ph_va,
+            )
+        angle = math.atan(x_over_r)
+        unit = complex(math.cos(angle), math.sin(angle))
+        z1 = v_nominal_v**2 / s3ph_va * unit
+        if s1ph_va is not None:
+            if not (math.isfinite(s1ph_va) and s1ph_va > 0):
+                raise InputError("must be a positive number", field="s1ph_va", value=s1ph_va)
+            z0_mag = 3 * v_nominal_v**2 / s1ph_va - 2 * abs(z1)
+            if z0_mag < 0:
+                raise InputError(
+                    "single-phase fault level above 1.5 times the three-phase level "
+                    "needs a negative Z0",
+                    field="s1ph_va",
+                    value=s1ph_va,
+                )
+            z0 = z0_mag * unit
+        else:
+            z0 = complex(z0_over_z1) * z1
+        return cls(z1_ohm=z1, z0_ohm=z0)
+
+    def phase_matrix(self, scale: float | np.ndarray = 1.0) -> np.ndarray:
+        """Balanced 3x3 phase impedance [ohm] times ``scale`` (broadcast, shape (..., 3, 3))."""
+        scale = np.asarray(scale, dtype=float)
+        return balanced_phase_matrix(self.z1_ohm * scale, self.z0_ohm * scale)
+
+
+@dataclass(frozen=True, eq=False)
+class LineCascade:
+    """Protected line as a cascade of uniform sections, matrices in phase order.
+
+    Parameters
+    ----------
+    z_ohm_per_m : (S, n, n) complex array
+        Series impedance matrix of each section [ohm/m]; n = 3 (A, B, C) or n = 6
+        (circuit 1 A, B, C then circuit 2 A, B, C). Symmetric (reciprocal line).
+    length_m : (S,) float array
+        Section lengths [m], > 0, in order from bus S to bus R.
+    y_s_per_m : (S, n, n) complex array, optional
+        Shunt admittance matrix of each section [S/m] (j·omega·C). None: series-only.
+    """
+
+    z_ohm_per_m: np.ndarray
+    length_m: np.ndarray
+    y_s_per_m: np.ndarray | None = None
+
+    def __post_init__(self) -> None:
+        z = np.array(self.z_ohm_per_m, dtype=complex)
+        if z.ndim == 2:
+            z = z[None]
+        if z.ndim != 3 or z.shape[1] != z.shape[2] or z.shape[1] not in (3, 6):
+            raise InputError(
+                "series impedance must have shape (sections, n, n) with n = 3 or 6",
+                field="z_ohm_per_m",
+                value=z.shape,
+            )
+        length = np.atleast_1d(np.array(self.length_m, dtype=float))
+        if length.shape != (z.shape[0],):
+            raise InputError(
+                f"need one length per section ({z.shape[0]})", field="length_m",
+                value=length.shape,
+            )
+        if not np.all(np.isfinite(length)) or np.any(length <= 0):
+            raise InputError("section lengths must be positive", field="length_m",
+                             value=length.tolist())
+        _check_matrix(z, "z_ohm_per_m")
+        y = None
+        if self.y_s_per_m is not None:
+            y = np.array(self.y_s_per_m, dtype=complex)
+            if y.ndim == 2:
+                y = y[None]
+            if y.shape != z.shape:
+                raise InputError(
+                    f"shunt admittance must have the shape of the impedance {z.shape}",
+                    field="y_s_per_m", value=y.shape,
+                )
+            _check_matrix(y, "y_s_per_m")
+            y.setflags(write=False)
+        z.setflags(write=False)
+        length.setflags(write=False)
+        object.__setattr__(self, "z_ohm_per_m", z)
+        object.__setattr__(self, "length_m", length)
+        object.__setattr__(self, "y_s_per_m", y)
+
+    @property
+    def n_conductors(self) -> int:
+        """Number of phase conductors n (3 or 6)."""
+        return int(self.z_ohm_per_m.shape[1])
+
+    @property
+    def total_length_m(self) -> float:
+        """Length of the whole line [m]."""
+        return float(np.sum(self.length_m))
+
+    @property
+    def z_total_ohm(self) -> np.ndarray:
+        """Series impedance matrix of the whole line, (n, n) [ohm]."""
+        return np.einsum("s,sij->ij", self.length_m, self.z_ohm_per_m)
+
+
+def _check_matrix(a: np.ndarray, field: str) -> None:
+    if not np.all(np.isfinite(a)):
+        raise InputError("matrix entries must be finite", field=field)
+    scale = np.max(np.abs(a))
+    if scale == 0 or np.max(np.abs(a - np.swapaxes(a, -1, -2))) > 1e-9 * scale:
+        raise InputError("matrix must be symmetric and non-zero (reciprocal line)",
+                         field=field)
+
+
+# --------------------------------------------------------------------------------------
+# Results
+# --------------------------------------------------------------------------------------
+
+
+@dataclass(frozen=True, eq=False)
+class FaultSweep:
+    """Results of :func:`solve_fault_sweep`.
+
+    Fault quantities have axes ``(fault_type, m, r_fault, source_case, load_case, phase)``
+    (phase A, B, C); prefault quantities ``(source_case, load_case, phase)``. Voltages are
+    phase-to-ground phasors [V], currents phasors [A]; ``i_*`` at the line ends flow into
+    the line from that bus, ``i_f_from_*`` flow into the fault point along circuit 1 from
+    that side, ``i_fault`` flows from the fault point into the fault.
+    """
+
+    fault_types: tuple[str, ...]
+    m: np.ndarray  #: (M,) fault locations [1], fraction of the line from S
+    r_fault_ohm: np.ndarray  #: (Rf,) [ohm]
+    r_phase_ohm: np.ndarray  #: (Rf,) [ohm]
+    source_scale: np.ndarray  #: (K, 2) factors on source S and source R impedances [1]
+    emf_s_v: np.ndarray  #: (K, L) phase-A EMF of source S [V]
+    emf_r_v: np.ndarray  #: (K, L) phase-A EMF of source R [V]
+    parallel_state: str
+    v_s: np.ndarray  #: bus S voltages
+    i_s: np.ndarray  #: circuit-1 currents at S
+    i_s_parallel: np.ndarray  #: circuit-2 currents at S (zeros for n = 3 / isolated)
+    v_r: np.ndarray
+    i_r: np.ndarray
+    i_r_parallel: np.ndarray
+    v_f: np.ndarray  #: circuit-1 voltages at the fault point
+    i_fault: np.ndarray
+    i_f_from_s: np.ndarray
+    i_f_from_r: np.ndarray
+    v_s_pre: np.ndarray  #: (K, L, 3) prefault bus S voltages
+    i_s_pre: np.ndarray  #: (K, L, 3) prefault circuit-1 currents at S
+    i_s_parallel_pre: np.ndarray  #: (K, L, 3)
+
+
+@dataclass(frozen=True, eq=False)
+class FaultCase:
+    """Results of :func:`solve_fault_single`: the :class:`FaultSweep` fields for one case,
+    each a (3,) complex array [V or A]."""
+
+    v_s: np.ndarray
+    i_s: np.ndarray
+    i_s_parallel: np.ndarray
+    v_r: np.ndarray
+    i_r: np.ndarray
+    i_r_parallel: np.ndarray
+    v_f: np.ndarray
+    i_fault: np.ndarray
+    i_f_from_s: np.ndarray
+    i_f_from_r: np.ndarray
+
+
+# --------------------------------------------------------------------------------------
+# Shared input handling
+# --------------------------------------------------------------------------------------
+
+
+def _balanced(e_a: np.ndarray) -> np.ndarray:
+    """Positive-sequence phase set (..., 3) from phase-A phasors."""
+    return np.asarray(e_a, dtype=complex)[..., None] * fortescue_matrix()[:, 1]
+
+
+def _check_state(line: LineCascade, parallel_state: str, fn: Mapping[str, str] | None) -> None:
+    if parallel_state not in PARALLEL_STATES:
+        raise InputError(
+            f"unknown parallel circuit state; use one of {', '.join(PARALLEL_STATES)}"
+            + suggest(str(parallel_state), PARALLEL_STATES),
+            field=_name("parallel_state", fn),
+            value=parallel_state,
+        )
+    if line.n_conductors == 3 and parallel_state != "in_service":
+        raise InputError(
+            "a single-circuit line has no parallel circuit; leave the state at its default",
+            field=_name("parallel_state", fn),
+            value=parallel_state,
+        )
+
+
+def _check_locations(m: np.ndarray | float, fn: Mapping[str, str] | None) -> np.ndarray:
+    m = np.atleast_1d(np.asarray(m, dtype=float))
+    if m.ndim != 1 or not np.all(np.isfinite(m)) or np.any((m < 0) | (m > 1)):
+        bad = m[~((m >= 0) & (m <= 1))]
+        raise InputError(
+            "fault locations must be fractions of the line in [0, 1]",
+            field=_name("m", fn),
+            value=bad.tolist() if bad.size else m.shape,
+        )
+    return m
+
+
+def _check_scale(source_scale: np.ndarray | float, fn: Mapping[str, str] | None) -> np.ndarray:
+    sc = np.asarray(source_scale, dtype=float)
+    if sc.ndim == 0:
+        sc = sc.reshape(1)
+    if sc.ndim == 1:
+        sc = np.stack([sc, sc], axis=-1)
+    if sc.ndim != 2 or sc.shape[1] != 2:
+        raise InputError(
+            "source scale must have shape (cases,) or (cases, 2)",
+            field=_name("source_scale", fn), value=sc.shape,
+        )
+    if not np.all(np.isfinite(sc)) or np.any(sc < 0):
+        raise InputError(
+            "source impedance factors must be finite and >= 0",
+            field=_name("source_scale", fn), value=sc.tolist(),
+        )
+    return sc
+
+
+def _check_sources(
+    source_s: Source | None, source_r: Source | None, fn: Mapping[str, str] | None
+) -> None:
+    if source_s is None and source_r is None:
+        raise InputError(
+            "the line needs a source at one end at least",
+            field=_name("source_s", fn), value=None,
+        )
+
+
+def _emfs(
+    v_nominal_v: float,
+    transfer_angle_rad: np.ndarray | float,
+    emf_v: tuple[np.ndarray, np.ndarray] | None,
+    n_cases: int,
+    fn: Mapping[str, str] | None,
+) -> tuple[np.ndarray, np.ndarray]:
+    if not (math.isfinite(v_nominal_v) and v_nominal_v > 0):
+        raise InputError("nominal voltage must be positive", field=_name("v_nominal_v", fn),
+                         value=v_nominal_v)
+    if emf_v is not None:
+        e_s, e_r = (np.asarray(e, dtype=complex) for e in emf_v)
+        e_s, e_r = np.broadcast_arrays(np.atleast_1d(e_s), np.atleast_1d(e_r))
+        if e_s.ndim == 1:
+            e_s, e_r = e_s[None], e_r[None]
+        if e_s.ndim != 2 or e_s.shape[0] not in (1, n_cases):
+            raise InputError("EMFs must have shape (load,) or (source cases, load)",
+                             field=_name("emf_v", fn), value=e_s.shape)
+        if not (np.all(np.isfinite(e_s)) and np.all(np.isfinite(e_r))):
+            raise InputError("EMFs must be finite", field=_name("emf_v", fn))
+        shape = (n_cases, e_s.shape[1])
+        return np.broadcast_to(e_s, shape).copy(), np.broadcast_to(e_r, shape).copy()
+    delta = np.atleast_1d(np.asarray(transfer_angle_rad, dtype=float))
+    if delta.ndim != 1 or not np.all(np.isfinite(delta)):
+        raise InputError("transfer angles must be a finite 1-D list",
+                         field=_name("transfer_angle_rad", fn), value=delta.tolist())
+    e = v_nominal_v / math.sqrt(3)
+    e_s = np.broadcast_to(e * np.exp(1j * delta), (n_cases, delta.size)).copy()
+    e_r = np.full((n_cases, delta.size), e, dtype=complex)
+    return e_s, e_r
+
+
+def _line_matrices(line: LineCascade, parallel_state: str) -> tuple[np.ndarray, np.ndarray | None]:
+    """Series/shunt matrices actually solved. Series-only with circuit 2 isolated: circuit 2
+    carries no current (no closed path) and its floating voltages are of no interest, so
+    it is dropped."""
+    z, y = line.z_ohm_per_m, line.y_s_per_m
+    if line.n_conductors == 6 and parallel_state == "isolated" and y is None:
+        return z[:, :3, :3], None
+    return z, y
+
+
+# --------------------------------------------------------------------------------------
+# Batched solver
+# --------------------------------------------------------------------------------------
+
+
+def _split_lengths(length_m: np.ndarray, m: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
+    """Length of every section on the S side and on the R side of each fault, (M, S) [m]."""
+    edges = np.concatenate([[0.0], np.cumsum(length_m)])
+    x = m * edges[-1]
+    left = np.clip(x[:, None] - edges[None, :-1], 0.0, length_m[None, :])
+    left[m == 1.0] = length_m  # exact zero R-side length at the remote bus
+    return left, length_m[None, :] - left
+
+
+def _chain_products(
+    z: np.ndarray, y: np.ndarray | None, lengths: np.ndarray, reverse: bool
+) -> np.ndarray:
+    """Chain matrix of each cascade of section parts, (M, 2n, 2n).
+
+    ``lengths`` (M, S) are the part lengths; the product runs from the measuring end
+    (section 0 for S, section S-1 for R, ``reverse``) towards the fault. A reciprocal
+    section looks the same from either end, so the R side uses the same part matrices.
+    """
+    n_m, n_sec = lengths.shape
+    n = z.shape[-1]
+    eye = np.eye(n)
+    if y is None:
+        phi = np.zeros((n_m, 2 * n, 2 * n), dtype=complex)
+        phi[:, :n, :n] = eye
+        phi[:, n:, n:] = eye
+        phi[:, :n, n:] = np.einsum("ms,sij->mij", lengths, z)
+        return phi
+    # Balance the exponent: blocks Z·l/c and Y·l·c of similar size (c ~ surge impedance),
+    # so that the small C block keeps full relative accuracy.
+    c = np.sqrt(np.max(np.abs(z), axis=(1, 2)) / np.max(np.abs(y), axis=(1, 2)))  # (S,)
+    k = np.zeros((n_m, n_sec, 2 * n, 2 * n), dtype=complex)
+    k[..., :n, n:] = lengths[..., None, None] * (z / c[:, None, None])
+    k[..., n:, :n] = lengths[..., None, None] * (y * c[:, None, None])
+    e = expm(k)
+    e[..., :n, n:] *= c[:, None, None]
+    e[..., n:, :n] /= c[:, None, None]
+    order = range(n_sec - 1, -1, -1) if reverse else range(n_sec)
+    phi = None
+    for s in order:  # loop over sections (a handful), not over cases
+        phi = e[:, s] if phi is None else phi @ e[:, s]
+    return phi
+
+
+def _terminal(
+    n: int,
+    state: str,
+    z_src: np.ndarray | None,
+    emf: np.ndarray,
+    z_ref: float,
+) -> tuple[np.ndarray, np.ndarray]:
+    """Terminal equations ``G @ [V; I] = g`` at one line end.
+
+    Parameters: z_src (K, 3, 3) or None (open end), emf (K, L, 3). Returns G (K, n, 2n)
+    and g (K, L, n). Current-only rows are multiplied by ``z_ref`` [ohm] so that every row
+    is in volts (better pivoting).
+    """
+    n_k, n_l = emf.shape[:2]
+    g_mat = np.zeros((n_k, n, 2 * n), dtype=complex)
+    g_vec = np.zeros((n_k, n_l, n), dtype=complex)
+    eye = np.eye(3)
+    c1 = slice(0, 3)  # rows and columns of circuit 1
+    if n == 6 and state == "in_service":
+        g_mat[:, 3:, 0:3] = eye  # V1 - V2 = 0: both circuits on the bus
+        g_mat[:, 3:, 3:6] = -eye
+        if z_src is None:
+            g_mat[:, c1, 6:9] = z_ref * eye  # I1 + I2 = 0
+            g_mat[:, c1, 9:12] = z_ref * eye
+        else:
+            g_mat[:, c1, 0:3] = eye  # V1 + Zs (I1 + I2) = E
+            g_mat[:, c1, 6:9] = z_src
+            g_mat[:, c1, 9:12] = z_src
+            g_vec[..., c1] = emf
+        return g_mat, g_vec
+    if z_src is None:
+        g_mat[:, c1, n:n + 3] = z_ref * eye
+    else:
+        g_mat[:, c1, 0:3] = eye
+        g_mat[:, c1, n:n + 3] = z_src
+        g_vec[..., c1] = emf
+    if n == 6:
+        if state == "earthed":
+            g_mat[:, 3:, 3:6] = eye  # V2 = 0
+        else:
+            g_mat[:, 3:, 9:12] = z_ref * eye  # isolated: I2 = 0
+    return g_mat, g_vec
+
+
+def solve_fault_sweep(
+    line: LineCascade,
+    source_s: Source | None,
+    source_r: Source | None,
+    *,
+    v_nominal_v: float,
+    fault_types: Sequence[str],
+    m: np.ndarray,
+    r_fault_ohm: np.ndarray,
+    r_phase_ohm: np.ndarray | float = 0.0,
+    source_scale: np.ndarray | float = 1.0,
+    transfer_angle_rad: np.ndarray | float = 0.0,
+    parallel_state: str = "in_service",
+    emf_v: tuple[np.ndarray, np.ndarray] | None = None,
+    field_names: Mapping[str, str] | None = None,
+) -> FaultSweep:
+    """Solve every combination of fault type, location, resistance, source and load case.
+
+    Parameters
+    ----------
+    line : LineCascade
+        The protected line (phase order, circuit 1 faulted).
+    source_s, source_r : Source or None
+        Sources at bus S and bus R; None is an open end. One at least.
+    v_nominal_v : float
+        Nominal line-to-line voltage [V]; EMF magnitude is ``v_nominal_v/sqrt(3)``.
+    fault_types : sequence of str
+        Fault types from :data:`FAULT_TYPES`.
+    m : (M,) array
+        Fault locations on circuit 1 as fractions of the line from S [1], in [0, 1].
+    r_fault_ohm : (Rf,) array
+        Fault resistances to ground [ohm], >= 0.
+    r_phase_ohm : float or (Rf,) array
+        Phase-to-phase fault resistance [ohm], >= 0; an array pairs element-wise with
+        ``r_fault_ohm`` (same r_fault axis).
+    source_scale : (K,) or (K, 2) array
+        Source cases: factor on both source impedances, or separate factors on the S and
+        R source impedances [1], >= 0 (0 = infinite bus).
+    transfer_angle_rad : (L,) array
+        Load cases: angle by which the S EMF leads the R EMF [rad] (positive: power flows
+        S to R). Both EMFs have the nominal magnitude.
+    parallel_state : str
+        Circuit 2 state (six-conductor lines only): one of :data:`PARALLEL_STATES`.
+    emf_v : (e_s, e_r), optional
+        Phase-A EMF phasors [V], shape (L,) or (K, L), e.g. from :func:`emfs_for_load`;
+        replaces ``transfer_angle_rad``.
+    field_names : mapping, optional
+        Names to use in :class:`~relayset.errors.InputError` for the parameters above
+        (e.g. ``{"m": "reach_study.fault_locations"}``).
+
+    Returns
+    -------
+    FaultSweep
+        Arrays with axes (fault_type, m, r_fault, source_case, load_case, phase).
+    """
+    fn = field_names
+    _check_state(line, parallel_state, fn)
+    _check_sources(source_s, source_r, fn)
+    ftypes = tuple(fault_types)
+    if not ftypes:
+        raise InputError("give one fault type at least", field=_name("fault_types", fn))
+    for ft in ftypes:
+        _check_fault_type(ft, _name("fault_types", fn))
+    m = _check_locations(m, fn)
+    rf = np.atleast_1d(_check_resistance(r_fault_ohm, _name("r_fault_ohm", fn)))
+    rp = _check_resistance(r_phase_ohm, _name("r_phase_ohm", fn))
+    if rf.ndim != 1 or rp.ndim > 1 or (rp.ndim == 1 and rp.shape != rf.shape):
+        raise InputError("phase resistance must be one value or one per fault resistance",
+                         field=_name("r_phase_ohm", fn), value=np.shape(rp))
+    rp = np.broadcast_to(rp, rf.shape).copy()
+    scale = _check_scale(source_scale, fn)
+    e_s, e_r = _emfs(v_nominal_v, transfer_angle_rad, emf_v, scale.shape[0], fn)
+
+    z, y = _line_matrices(line, parallel_state)
+    n = z.shape[-1]
+    n_m, n_k, n_l = m.size, scale.shape[0], e_s.shape[1]
+    z_ref = float(np.max(np.abs(line.z_total_ohm)))
+
+    left, right = _split_lengths(line.length_m, m)
+    phi_l = _chain_products(z, y, left, reverse=False)  # (M, 2n, 2n)
+    phi_r = _chain_products(z, y, right, reverse=True)
+    zs = None if source_s is None else source_s.phase_matrix(scale[:, 0])
+    zr = None if source_r is None else source_r.phase_matrix(scale[:, 1])
+    g_l, b_l = _terminal(n, parallel_state, zs, _balanced(e_s), z_ref)
+    g_r, b_r = _terminal(n, parallel_state, zr, _balanced(e_r), z_ref)
+
+    # System in x = [V_F, I_L, I_R] (3n) for each (m, source case).
+    w_l = g_l[None] @ phi_l[:, None]  # (M, K, n, 2n): terminal rows in fault-point terms
+    w_r = g_r[None] @ phi_r[:, None]
+    a = np.zeros((n_m, n_k, 3 * n, 3 * n), dtype=complex)
+    a[..., :n, :n] = w_l[..., :n]
+    a[..., :n, n:2 * n] = w_l[..., n:]
+    a[..., n:2 * n, :n] = w_r[..., :n]
+    a[..., n:2 * n, 2 * n:] = w_r[..., n:]
+    a[..., 2 * n:, n:2 * n] = z_ref * np.eye(n)  # KCL at the fault point
+    a[..., 2 * n:, 2 * n:] = z_ref * np.eye(n)
+    rhs = np.zeros((n_m, n_k, 3 * n, n_l + 3), dtype=complex)
+    rhs[..., :n, :n_l] = np.swapaxes(b_l, -1, -2)[None]
+    rhs[..., n:2 * n, :n_l] = np.swapaxes(b_r, -1, -2)[None]
+    rhs[..., 2 * n:2 * n + 3, n_l:] = z_ref * np.eye(3)  # unit current into each fault phase
+    x = np.linalg.solve(a, rhs)  # (M, K, 3n, L + 3)
+
+    # Relay-end and fault-point quantities from x: rows of T (M, 7n, 3n).
+    t = np.zeros((n_m, 7 * n, 3 * n), dtype=complex)
+    t[:, 0:n, 0:n] = phi_l[:, :n, :n]
+    t[:, 0:n, n:2 * n] = phi_l[:, :n, n:]
+    t[:, n:2 * n, 0:n] = phi_l[:, n:, :n]
+    t[:, n:2 * n, n:2 * n] = phi_l[:, n:, n:]
+    t[:, 2 * n:3 * n, 0:n] = phi_r[:, :n, :n]
+    t[:, 2 * n:3 * n, 2 * n:] = phi_r[:, :n, n:]
+    t[:, 3 * n:4 * n, 0:n] = phi_r[:, n:, :n]
+    t[:, 3 * n:4 * n, 2 * n:] = phi_r[:, n:, n:]
+    t[:, 4 * n:, :] = np.eye(3 * n)
+    out = t[:, None] @ x  # (M, K, 7n, L + 3)
+    pre = out[..., :n_l]  # (M, K, 7n, L)
+    sens = out[..., n_l:]  # (M, K, 7n, 3) response to unit fault currents
+    vf_rows = slice(4 * n, 4 * n + 3)
+    z_th = -sens[..., vf_rows, :]  # (M, K, 3, 3)
+    v_pre = pre[..., vf_rows, :]  # (M, K, 3, L)
+
+    p_v = np.empty((len(ftypes), rf.size, 3, 3), dtype=complex)
+    p_i = np.empty_like(p_v)
+    for j, ft in enumerate(ftypes):  # loop over the (ten) fault types only
+        p_v[j], p_i[j] = fault_constraints(ft, rf, rp)
+    pv = p_v[:, None, :, None]  # (F, 1, Rf, 1, 3, 3)
+    mat = p_i[:, None, :, None] - pv @ z_th[None, :, None]  # (F, M, Rf, K, 3, 3)
+    try:
+        i_f = _solve3(mat, -(pv @ v_pre[None, :, None]))  # (F, M, Rf, K, 3, L)
+    except np.linalg.LinAlgError:
+        raise InputError(
+            "a bolted fault at a bus with zero source impedance has no finite current",
+            field=_name("source_scale", fn), value=scale.tolist(),
+        ) from None
+    res = pre[None, :, None] + sens[None, :, None] @ i_f  # (F, M, Rf, K, 7n, L)
+    res = np.swapaxes(res, -1, -2)
+
+    def part(start: int, width: int = 3) -> np.ndarray:
+        return np.ascontiguousarray(res[..., start:start + width])
+
+    zeros = np.zeros((*res.shape[:-1], 3), dtype=complex)
+    pre0 = np.swapaxes(pre[0], -1, -2)  # (K, L, 7n); prefault does not depend on m
+    return FaultSweep(
+        fault_types=ftypes,
+        m=m,
+        r_fault_ohm=rf,
+        r_phase_ohm=rp,
+        source_scale=scale,
+        emf_s_v=e_s,
+        emf_r_v=e_r,
+        parallel_state=parallel_state,
+        v_s=part(0),
+        i_s=part(n),
+        i_s_parallel=part(n + 3) if n == 6 else zeros,
+        v_r=part(2 * n),
+        i_r=part(3 * n),
+        i_r_parallel=part(3 * n + 3) if n == 6 else zeros.copy(),
+        v_f=part(4 * n),
+        i_fault=np.ascontiguousarray(np.swapaxes(i_f, -1, -2)),
+        i_f_from_s=part(5 * n),
+        i_f_from_r=part(6 * n),
+        v_s_pre=np.ascontiguousarray(pre0[..., 0:3]),
+        i_s_pre=np.ascontiguousarray(pre0[..., n:n + 3]),
+        i_s_parallel_pre=(
+            np.ascontiguousarray(pre0[..., n + 3:2 * n])
+            if n == 6 else np.zeros((*pre0.shape[:-1], 3), dtype=complex)
+        ),
+    )
+
+
+def _solve3(a: np.ndarray, b: np.ndarray) -> np.ndarray:
+    """Batched solve of 3x3 systems ``a @ x = b`` (b (..., 3, L))."""
+    return np.linalg.solve(a, b)
+
+
+# --------------------------------------------------------------------------------------
+# Load flow helper
+# --------------------------------------------------------------------------------------
+
+
+def emfs_for_load(
+    line: LineCascade,
+    source_s: Source,
+    source_r: Source,
+    *,
+    v_nominal_v: float,
+    p_w: np.ndarray | float,
+    q_var: np.ndarray | float,
+    source_scale: np.ndarray | float = 1.0,
+    parallel_state: str = "in_service",
+    field_names: Mapping[str, str] | None = None,
+) -> tuple[np.ndarray, np.ndarray]:
+    """EMFs that give three-phase power P + jQ into the line at S with V_S at nominal.
+
+    Assumption: the prefault state is computed in the positive-sequence network only
+    (each circuit reduced to its positive-sequence self and mutual impedance and
+    admittance per metre, [2]_); on an untransposed line the phase-domain solution then
+    gives a slightly unbalanced V_S and a power close to, not exactly, P + jQ. With
+    circuit 2 out of service it is left out of the load flow. V_S is the angle reference.
+
+    Parameters
+    ----------
+    line : LineCascade
+    source_s, source_r : Source
+        Both sources are needed to carry load.
+    v_nominal_v : float
+        Nominal line-to-line voltage [V]; V_S = v_nominal_v/sqrt(3) at angle 0.
+    p_w, q_var : (L,) arrays
+        Three-phase active [W] and reactive [var] power into the line at S.
+    source_scale : (K,) or (K, 2) array
+        Source cases as in :func:`solve_fault_sweep` [1].
+    parallel_state : str
+        Circuit 2 state.
+
+    Returns
+    -------
+    e_s, e_r : (K, L) complex arrays
+        Phase-A EMF phasors of the two sources [V], for ``emf_v`` of
+        :func:`solve_fault_sweep`.
+    """
+    fn = field_names
+    _check_state(line, parallel_state, fn)
+    if source_s is None or source_r is None:
+        raise InputError("a load flow needs sources at both ends",
+                         field=_name("source_r", fn), value=None)
+    if not (math.isfinite(v_nominal_v) and v_nominal_v > 0):
+        raise InputError("nominal voltage must be positive", field=_name("v_nominal_v", fn),
+                         value=v_nominal_v)
+    scale = _check_scale(source_scale, fn)
+    p, q = np.broadcast_arrays(np.atleast_1d(np.asarray(p_w, float)),
+                               np.atleast_1d(np.asarray(q_var, float)))
+    if p.ndim != 1 or not (np.all(np.isfinite(p)) and np.all(np.isfinite(q))):
+        raise InputError("load powers must be finite 1-D lists", field=_name("p_w", fn),
+                         value=p.tolist())
+    n_c = 2 if (line.n_conductors == 6 and parallel_state == "in_service") else 1
+    z1 = _positive_sequence(line.z_ohm_per_m, n_c)
+    y1 = None if line.y_s_per_m is None else _positive_sequence(line.y_s_per_m, n_c)
+    phi = _chain_products(z1, y1, line.length_m[None, :], reverse=False)[0]
+    a_, b_, c_, d_ = phi[:n_c, :n_c], phi[:n_c, n_c:], phi[n_c:, :n_c], phi[n_c:, n_c:]
+    b_inv = np.linalg.inv(b_)
+    y11, y12 = d_ @ b_inv, c_ - d_ @ b_inv @ a_  # current into the line at S
+    y21, y22 = -b_inv, b_inv @ a_  # current into the line at R
+    u = np.ones(n_c)
+    v_s = v_nominal_v / math.sqrt(3)
+    i_tot = np.conj((p + 1j * q) / (3 * v_s))  # (L,)
+    v_r = (i_tot - (u @ y11 @ u) * v_s) / (u @ y12 @ u)
+    i_r = (u @ y21 @ u) * v_s + (u @ y22 @ u) * v_r
+    e_s = v_s + source_s.z1_ohm * scale[:, 0, None] * i_tot[None, :]
+    e_r = v_r[None, :] + source_r.z1_ohm * scale[:, 1, None] * i_r[None, :]
+    return e_s, e_r
+
+
+def _positive_sequence(mat: np.ndarray, n_c: int) -> np.ndarray:
+    """(S, n_c, n_c) positive-sequence self and mutual terms of the circuits' 3x3 blocks."""
+    out = np.empty((mat.shape[0], n_c, n_c), dtype=complex)
+    for i in range(n_c):
+        for j in range(n_c):
+            out[:, i, j] = to_sequence(mat[:, 3 * i:3 * i + 3, 3 * j:3 * j + 3])[:, 1, 1]
+    return out
+
+
+# --------------------------------------------------------------------------------------
+# Per-case reference solver
+# --------------------------------------------------------------------------------------
+
+
+def _matrix_function(mat: np.ndarray, func) -> np.ndarray:
+    """f(M) for a diagonalisable matrix by eigendecomposition."""
+    w, vec = np.linalg.eig(mat)
+    return vec @ np.diag(func(w)) @ np.linalg.inv(vec)
+
+
+def _cosh_sqrt(w: np.ndarray) -> np.ndarray:
+    return np.cosh(np.sqrt(w))
+
+
+def _sinhc_sqrt(w: np.ndarray) -> np.ndarray:
+    s = np.sqrt(w)
+    small = np.abs(s) < 1e-6
+    safe = np.where(small, 1.0, s)
+    return np.where(small, 1 + w / 6, np.sinh(safe) / safe)
+
+
+def _segment_nodal(z: np.ndarray, y: np.ndarray | None, length: float) -> np.ndarray:
+    """Nodal admittance (2n, 2n) of a uniform segment [S]: currents into it at its two ends."""
+    zl = z * length
+    if y is None:
+        yi = np.linalg.inv(zl)
+        return np.block([[yi, -yi], [-yi, yi]])
+    yl = y * length
+    a = _matrix_function(zl @ yl, _cosh_sqrt)
+    b = _matrix_function(zl @ yl, _sinhc_sqrt) @ zl
+    c = yl @ _matrix_function(zl @ yl, _sinhc_sqrt)
+    d = _matrix_function(yl @ zl, _cosh_sqrt)
+    b_inv = np.linalg.inv(b)
+    return np.block([[d @ b_inv, c - d @ b_inv @ a], [-b_inv, b_inv @ a]])
+
+
+def solve_fault_single(
+    line: LineCascade,
+    source_s: Source | None,
+    source_r: Source | None,
+    *,
+    v_nominal_v: float,
+    fault_type: str,
+    m: float,
+    r_fault_ohm: float,
+    r_phase_ohm: float = 0.0,
+    source_scale: float | tuple[float, float] = 1.0,
+    transfer_angle_rad: float = 0.0,
+    parallel_state: str = "in_service",
+    emf_v: tuple[complex, complex] | None = None,
+) -> FaultCase:
+    """Solve one fault case by plain modified nodal analysis [3]_ (reference for tests).
+
+    Nodes: bus S, bus R, and the n conductors at every section boundary and at the fault
+    point. Unknowns besides node voltages: source branch currents (V + Zs I = E), current
+    transformer branches between each bus and the line ends (zero-impedance, their
+    currents are the relay currents), earthing branches of an earthed circuit 2 and the
+    fault currents (exact fault constraints). Series-only with circuit 2 isolated, circuit
+    2 floats; it is tied to ground at the S end only, which closes no current path.
+
+    Parameters are those of :func:`solve_fault_sweep` for one case (scalars).
+
+    Returns
+    -------
+    FaultCase
+    """
+    _check_state(line, parallel_state, None)
+    _check_sources(source_s, source_r, None)
+    m_arr = _check_locations(m, None)
+    if m_arr.size != 1:
+        raise InputError("one fault location", field="m", value=m_arr.tolist())
+    m = float(m_arr[0])
+    scale = _check_scale(np.atleast_1d(source_scale)[None, :] if np.ndim(source_scale)
+                         else source_scale, None)[0]
+    e_s_arr, e_r_arr = _emfs(v_nominal_v, transfer_angle_rad,
+                             None if emf_v is None else (np.array([emf_v[0]]),
+                                                         np.array([emf_v[1]])), 1, None)
+    e_s, e_r = _balanced(e_s_arr[0, 0]), _balanced(e_r_arr[0, 0])
+    p_v, p_i = fault_constraints(fault_type, r_fault_ohm, r_phase_ohm)
+
+    z, y = line.z_ohm_per_m, line.y_s_per_m
+    n = line.n_conductors
+    length = line.total_length_m
+    edges = np.concatenate([[0.0], np.cumsum(line.length_m)])
+    x_f = m * length
+    near = int(np.argmin(np.abs(edges - x_f)))
+    if abs(edges[near] - x_f) <= _SNAP_REL * length:
+        positions = list(edges)
+        j_f = near
+    else:
+        positions = sorted([*edges, x_f])
+        j_f = positions.index(x_f)
+    n_pos = len(positions)
+    n_line = n_pos * n
+    bus_s, bus_r = n_line, n_line + 3
+    n_nodes = n_line + 6
+
+    def node(j: int, c: int) -> int:
+        return j * n + c
+
+    # Branches: (from node or -1 for ground, to node or -1, impedance or None, emf)
+    # "Ammeter" branch: V_to - V_from = 0. Source branch: V_bus + Zs I = E, I into bus.
+    branches: list[tuple[str, list[int], list[int]]] = []
+    ct = {"s1": [], "s2": [], "r1": [], "r2": []}
+    last = n_pos - 1
+
+    def add_ammeter(key: str, frm: list[int], to: list[int]) -> None:
+        ct[key] = list(range(len(branches), len(branches) + 3))
+        for a_, b_ in zip(frm, to, strict=True):
+            branches.append(("amm", [a_], [b_]))
+
+    add_ammeter("s1", [bus_s + c for c in range(3)], [node(0, c) for c in range(3)])
+    add_ammeter("r1", [bus_r + c for c in range(3)], [node(last, c) for c in range(3)])
+    if n == 6:
+        if parallel_state == "in_service":
+            add_ammeter("s2", [bus_s + c for c in range(3)], [node(0, 3 + c) for c in range(3)])
+            add_ammeter("r2", [bus_r + c for c in range(3)],
+                        [node(last, 3 + c) for c in range(3)])
+        elif parallel_state == "earthed" or y is None:
+            add_ammeter("s2", [-1] * 3, [node(0, 3 + c) for c in range(3)])
+            if parallel_state == "earthed":
+                add_ammeter("r2", [-1] * 3, [node(last, 3 + c) for c in range(3)])
+    n_amm = len(branches)
+    src = []
+    for bus, source, k, emf in ((bus_s, source_s, 0, e_s), (bus_r, source_r, 1, e_r)):
+        if source is not None:
+            src.append((bus, source.phase_matrix(scale[k]), emf))
+    n_unk = n_nodes + n_amm + 3 * len(src) + 3
+    mat = np.zeros((n_unk, n_unk), dtype=complex)
+    rhs = np.zeros(n_unk, dtype=complex)
+
+    seg_y = []
+    for j in range(n_pos - 1):
+        seg_len = positions[j + 1] - positions[j]
+        sec = int(np.searchsorted(edges, positions[j], side="right") - 1)
+        yy = _segment_nodal(z[sec], None if y is None else y[sec], seg_len)
+        seg_y.append(yy)
+        idx = [node(j, c) for c in range(n)] + [node(j + 1, c) for c in range(n)]
+        mat[np.ix_(idx, idx)] += yy
+    row = n_nodes
+    for _kind, frm, to in branches:  # current flows from 'frm' to 'to'
+        f_, t_ = frm[0], to[0]
+        if f_ >= 0:
+            mat[f_, row] += 1.0
+            mat[row, f_] -= 1.0
+        mat[t_, row] -= 1.0
+        mat[row, t_] += 1.0
+        row += 1
+    src_rows = []
+    for bus, zsrc, emf in src:
+        cols = list(range(row, row + 3))
+        src_rows.append(cols)
+        for c in range(3):
+            mat[bus + c, row + c] -= 1.0  # source current enters the bus
+            mat[row + c, bus + c] = 1.0
+        mat[np.ix_(cols, cols)] = zsrc
+        rhs[cols] = emf
+        row += 3
+    f_nodes = [node(j_f, c) for c in range(3)]
+    f_cols = list(range(row, row + 3))
+    for c in range(3):
+        mat[f_nodes[c], row + c] += 1.0  # fault current leaves the fault node
+    mat[np.ix_(f_cols, f_nodes)] = p_v
+    mat[np.ix_(f_cols, f_cols)] = p_i
+    sol = np.linalg.solve(mat, rhs)
+
+    volt = sol[:n_nodes]
+
+    def current(key: str) -> np.ndarray:
+        idx = ct[key]
+        return sol[[n_nodes + i for i in idx]] if idx else np.zeros(3, dtype=complex)
+
+    def seg_currents(j: int) -> np.ndarray:
+        idx = [node(j, c) for c in range(n)] + [node(j + 1, c) for c in range(n)]
+        return seg_y[j] @ volt[idx]  # into the segment at its S end (:n) and R end (n:)
+
+    i_from_s = -seg_currents(j_f - 1)[n:n + 3] if j_f > 0 else current("s1")
+    i_from_r = -seg_currents(j_f)[:3] if j_f < last else current("r1")
+    return FaultCase(
+        v_s=volt[bus_s:bus_s + 3],
+        i_s=current("s1"),
+        i_s_parallel=current("s2"),
+        v_r=volt[bus_r:bus_r + 3],
+        i_r=current("r1"),
+        i_r_parallel=current("r2"),
+        v_f=volt[f_nodes],
+        i_fault=sol[f_cols],
+        i_f_from_s=i_from_s,
+        i_f_from_r=i_from_r,
+    )
