@@ -58,6 +58,43 @@ def study_parameters(path: str | Path) -> StudyResults:
     )
 
 
+def _run(path: str | Path, *, reach: bool, settings: bool) -> StudyResults:
+    from relayset.studies.reach import run_reach_study
+    from relayset.studies.settings import run_settings, study_philosophy
+
+    study, raw, digest = load_study(path)
+    src = str(path)
+    geo = build_geometry(study, src)
+    params = compute_parameters(geo)
+    philosophy = study_philosophy(study, src)
+    z1 = philosophy.zone1.reach_pct
+    reach_res = run_reach_study(study, geo, params, source=src, zone1_reach_pct=z1,
+                                zone1_max_pct=z1) if reach else None
+    settings_res = (run_settings(study, geo, params, reach_res, philosophy, source=src)
+                    if settings else None)
+    return StudyResults(
+        relayset_version=relayset_version(),
+        source_file=src,
+        source_sha256=digest,
+        study_input=raw,
+        identity=_identity(study),
+        parameters=params,
+        reach=reach_res,
+        settings=settings_res,
+        philosophy=philosophy.to_dict() if settings else None,
+    )
+
+
+def study_reach(path: str | Path) -> StudyResults:
+    """Line parameters and the reach study of one study file."""
+    return _run(path, reach=True, settings=False)
+
+
+def study_settings(path: str | Path) -> StudyResults:
+    """Line parameters, reach study and distance-zone settings of one study file."""
+    return _run(path, reach=True, settings=True)
+
+
 def matrix_frame(params, arrangement: str = "actual_plan", *, kind: str = "zabc",
                  per: str = "km"):
     """A pandas DataFrame view of a matrix of the results (complex, per km or per mile).

@@ -212,6 +212,7 @@ class StudyResults:
     parameters: LineParameters
     reach: Any | None = None  #: ReachStudyResult when computed
     settings: Any | None = None  #: SettingsResult when computed
+    philosophy: dict[str, Any] | None = None  #: the setting philosophy applied
     caution: str = CAUTION
     warnings: tuple[str, ...] = field(default_factory=tuple)
 
@@ -228,5 +229,6 @@ class StudyResults:
             d["reach_study"] = self.reach.to_dict()
         if self.settings is not None:
             d["settings"] = self.settings.to_dict()
+            d["philosophy"] = self.philosophy
         d["input"] = self.study_input
         return d

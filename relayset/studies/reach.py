@@ -1,0 +1,462 @@
+"""Reach study: per-loop reach error of the real line, its worst cases and zone 1 advice.
+
+The relay is set with one Z1 and one k0 (by default those of the ideally transposed line);
+the real line is solved in the phase domain section by section, so each measuring loop sees
+its own impedance. This module runs the sweep for the actual transposition plan and, for
+comparison, for the untransposed line and an ideal cycle, then condenses the results.
+"""
+
+from __future__ import annotations
+
+import cmath
+import math
+import warnings
+from dataclasses import dataclass
+from typing import Any
+
+import numpy as np
+
+from relayset.errors import InputError, suggest
+from relayset.physics import measurement, network, transposition
+from relayset.results import LineParameters, cplx, polar
+from relayset.studies.geometry import LineGeometry
+from relayset.study_file import Study
+
+LOOPS = ("AG", "BG", "CG", "AB", "BC", "CA")
+_LOOP_PHASES = {"AG": (0,), "BG": (1,), "CG": (2,), "AB": (0, 1), "BC": (1, 2), "CA": (2, 0)}
+
+
+@dataclass(frozen=True)
+class WorstCase:
+    """One extreme of the reach error and the case that produced it."""
+
+    error_pct: float
+    fault_type: str
+    m: float
+    r_fault_ohm: float
+    source_case: str
+    transfer_angle_deg: float
+    positions: tuple[str, ...]  #: tower positions of the loop's phases at the fault
+
+    def to_dict(self) -> dict[str, Any]:
+        return {
+            "error_pct": self.error_pct,
+            "fault_type": self.fault_type,
+            "location_pct": 100 * self.m,
+            "r_fault_ohm": self.r_fault_ohm,
+            "source_case": self.source_case,
+            "transfer_angle_deg": self.transfer_angle_deg,
+            "positions": list(self.positions),
+        }
+
+
+@dataclass(frozen=True)
+class LoopSummary:
+    """Worst reach errors of one measuring loop (only faults that loop is meant to see)."""
+
+    loop: str  #: in the study's phase labels, e.g. "AG", "R-Y"
+    over_at_reach: WorstCase | None  #: worst overreach at the zone 1 reach point, bolted
+    under_at_reach: WorstCase | None
+    over_line: WorstCase | None  #: worst overreach anywhere on the line, bolted
+    under_line: WorstCase | None
+    over_at_remote_bus: WorstCase | None  #: bolted, m = 1: what zone 1 must stay short of
+    #: worst reactance overreach at the zone 1 reach point for faults with Rf > 0
+    reactance_over_resistive: WorstCase | None
+
+    def to_dict(self) -> dict[str, Any]:
+        def d(w):
+            return None if w is None else w.to_dict()
+
+        return {
+            "loop": self.loop,
+            "worst_overreach_at_zone1_reach": d(self.over_at_reach),
+            "worst_underreach_at_zone1_reach": d(self.under_at_reach),
+            "worst_overreach_on_line": d(self.over_line),
+            "worst_underreach_on_line": d(self.under_line),
+            "worst_overreach_at_remote_bus": d(self.over_at_remote_bus),
+            "worst_reactance_overreach_at_zone1_reach_resistive": d(self.reactance_over_resistive),
+        }
+
+
+@dataclass(frozen=True)
+class ArrangementReach:
+    """Reach-error results of one transposition arrangement for one relay end."""
+
+    arrangement: str
+    mutual_compensation: bool
+    loops: tuple[LoopSummary, ...]
+    worst_bolted_overreach_at_remote_bus_pct: float
+    worst_bolted_overreach_on_line_pct: float
+    worst_bolted_underreach_on_line_pct: float
+    envelope_m: np.ndarray  #: (M,) locations
+    envelope_max_pct: np.ndarray  #: (6, M) bolted, max over types/sources/loads, per loop
+    envelope_min_pct: np.ndarray
+
+    def to_dict(self) -> dict[str, Any]:
+        return {
+            "arrangement": self.arrangement,
+            "mutual_compensation": self.mutual_compensation,
+            "worst_bolted_overreach_at_remote_bus_pct":
+                self.worst_bolted_overreach_at_remote_bus_pct,
+            "worst_bolted_overreach_on_line_pct": self.worst_bolted_overreach_on_line_pct,
+            "worst_bolted_underreach_on_line_pct": self.worst_bolted_underreach_on_line_pct,
+            "loops": [lp.to_dict() for lp in self.loops],
+            "envelope": {
+                "location_pct": (100 * self.envelope_m).tolist(),
+                "loops": [lp.loop for lp in self.loops],
+                "bolted_reach_error_max_pct": self.envelope_max_pct.tolist(),
+                "bolted_reach_error_min_pct": self.envelope_min_pct.tolist(),
+            },
+        }
+
+
+@dataclass(frozen=True)
+class EndReach:
+    """Everything the study found for the relay at one line end."""
+
+    end: str
+    z1_set_ohm: complex
+    k0_set: complex
+    k0m_set: complex | None
+    zone1_reach_pct: float
+    error_budget_pct: float
+    recommended_zone1_pct: float
+    governing_loop: str
+    governing_case: WorstCase | None
+    arrangements: tuple[ArrangementReach, ...]
+
+    def arrangement(self, name: str, mutual: bool | None = None) -> ArrangementReach:
+        for a in self.arrangements:
+            if a.arrangement == name and (mutual is None or a.mutual_compensation == mutual):
+                return a
+        raise KeyError(name)
+
+    def to_dict(self) -> dict[str, Any]:
+        return {
+            "end": self.end,
+            "z1_set_ohm": cplx(self.z1_set_ohm),
+            "k0_set": polar(self.k0_set),
+            "k0m_set": None if self.k0m_set is None else polar(self.k0m_set),
+            "zone1_reach_pct": self.zone1_reach_pct,
+            "error_budget_pct": self.error_budget_pct,
+            "recommended_zone1_pct": self.recommended_zone1_pct,
+            "governing_loop": self.governing_loop,
+            "governing_case": None if self.governing_case is None
+            else self.governing_case.to_dict(),
+            "arrangements": [a.to_dict() for a in self.arrangements],
+        }
+
+
+@dataclass(frozen=True)
+class ReachStudyResult:
+    """The reach study of one line: sweep axes, and per relay end the condensed results."""
+
+    fault_types: tuple[str, ...]
+    locations_pct: tuple[float, ...]
+    fault_resistances_ohm: tuple[float, ...]
+    phase_fault_resistance_ohm: float
+    source_cases: tuple[tuple[str, float], ...]
+    transfer_angles_deg: tuple[float, ...]
+    parallel_circuit: str | None
+    shunt_capacitance: bool
+    source_impedances: dict[str, dict[str, list[float]]]
+    ends: tuple[EndReach, ...]
+    n_cases: int
+    notes: tuple[str, ...]
+
+    def to_dict(self) -> dict[str, Any]:
+        return {
+            "fault_types": list(self.fault_types),
+            "location_step_pct": self.locations_pct[1] - self.locations_pct[0],
+            "fault_resistances_ohm": list(self.fault_resistances_ohm),
+            "phase_fault_resistance_ohm": self.phase_fault_resistance_ohm,
+            "source_cases": [{"name": n, "scale": s} for n, s in self.source_cases],
+            "transfer_angles_deg": list(self.transfer_angles_deg),
+            "parallel_circuit": self.parallel_circuit,
+            "shunt_capacitance": self.shunt_capacitance,
+            "source_impedances_ohm": self.source_impedances,
+            "cases_solved": self.n_cases,
+            "ends": [e.to_dict() for e in self.ends],
+            "notes": list(self.notes),
+        }
+
+
+def build_source(study: Study, name: str, source: str) -> network.Source | None:
+    """The Thevenin source of a substation from the study, or None for an open end."""
+    data = study.sources.get(name)
+    if data is None:
+        return None
+    field = f"sources.{name}"
+    if data.z1 is not None:
+        try:
+            return network.Source(z1_ohm=data.z1, z0_ohm=data.z0)
+        except InputError as exc:
+            raise exc.located(source=source, prefix=field) from None
+    try:
+        return network.Source.from_fault_levels(
+            study.system.nominal_voltage, data.fault_level_3ph, data.x_over_r,
+            s1ph_va=data.fault_level_1ph,
+            z0_over_z1=None if data.fault_level_1ph is not None else data.z0_over_z1)
+    except InputError as exc:
+        raise exc.located(source=source, prefix=field) from None
+
+
+def _loop_label(loop: str, labels: tuple[str, str, str]) -> str:
+    ph = _LOOP_PHASES[loop]
+    if len(ph) == 1:
+        return f"{labels[ph[0]]}-G"
+    return f"{labels[ph[0]]}-{labels[ph[1]]}"
+
+
+def _cascade(z_pos, y_pos, orders, lengths, shunt: bool) -> network.LineCascade:
+    zs = transposition.section_matrices(z_pos, orders)
+    ys = transposition.section_matrices(y_pos, orders) if shunt else None
+    return network.LineCascade(zs, np.asarray(lengths, float), ys)
+
+
+def _positions_at(m: float, loop: str, orders, lengths, names) -> tuple[str, ...]:
+    edges = np.cumsum(lengths) / np.sum(lengths)
+    s = int(min(np.searchsorted(edges, m - 1e-12), len(orders) - 1))
+    order = list(orders[s])
+    return tuple(names[order.index(p)].split("/", 1)[-1] for p in _LOOP_PHASES[loop])
+
+
+def run_reach_study(
+    study: Study, geo: LineGeometry, params: LineParameters, *, source: str,
+    zone1_reach_pct: float = 80.0, zone1_max_pct: float = 85.0,
+) -> ReachStudyResult:
+    """Sweep faults over the real line and condense the reach errors per loop and end.
+
+    Parameters
+    ----------
+    study, geo, params
+        The validated study, its geometry and its line parameters.
+    source : str
+        The study file name, for error messages.
+    zone1_reach_pct : float
+        Zone 1 reach at which over/underreach is reported [% of line] (the philosophy's,
+        unless ``reach_study.zone1_reach_pct`` is set).
+    zone1_max_pct : float
+        The largest zone 1 reach the philosophy allows [%].
+    """
+    rs = study.reach_study
+    names = (study.study.from_substation, study.study.to_substation)
+    if study.relay is None:
+        raise InputError("the reach study needs a [relay] table (end, CT and VT ratios)",
+                         field="relay", source=source)
+    end = study.relay.end
+    if end == "both":
+        ends = list(names)
+    elif end in names:
+        ends = [end]
+    else:
+        raise InputError(
+            f"is not an end of this line; use {names[0]!r}, {names[1]!r} or 'both'"
+            + suggest(end, names), field="relay.end", value=end, source=source)
+    for key in study.sources:
+        if key not in names:
+            raise InputError("names no end of this line" + suggest(key, names),
+                             field=f"sources.{key}", source=source)
+    src = {n: build_source(study, n, source) for n in names}
+    if src[names[0]] is None and src[names[1]] is None:
+        raise InputError(f"give a source for {names[0]!r} or {names[1]!r} (or both)",
+                         field="sources", source=source)
+    n_c = geo.n_circuits
+    if n_c == 1 and rs.parallel_circuit is not None:
+        raise InputError("the line has one circuit, so there is no parallel circuit to set",
+                         field="reach_study.parallel_circuit", value=rs.parallel_circuit,
+                         source=source)
+    parallel = (rs.parallel_circuit or "in_service") if n_c == 2 else "in_service"
+    for ft in rs.fault_types:
+        if ft not in network.FAULT_TYPES:
+            raise InputError("unknown fault type; use " + ", ".join(network.FAULT_TYPES)
+                             + suggest(ft, network.FAULT_TYPES),
+                             field="reach_study.fault_types", value=ft, source=source)
+    z1_reach = rs.zone1_reach_pct or zone1_reach_pct
+    if not 0 < z1_reach < 100:
+        raise InputError("must be between 0 and 100 % of the line",
+                         field="reach_study.zone1_reach_pct", value=z1_reach, source=source)
+    step = rs.location_step_pct
+    if step > 50:
+        raise InputError("must be at most 50 %", field="reach_study.location_step_pct",
+                         value=step, source=source)
+    n_steps = max(2, int(round(100 / step)))
+    m = np.linspace(0.0, 1.0, n_steps + 1)
+    m = np.unique(np.concatenate([m, [z1_reach / 100]]))
+    rf = np.array(rs.fault_resistances or (0.0,))
+    if 0.0 not in rf:
+        rf = np.concatenate([[0.0], rf])
+    scales = np.array([c.scale for c in rs.source_cases])
+    angles = np.array(study.load.transfer_angles if study.load else (0.0,))
+
+    # Relay settings: by default those of the ideally transposed line.
+    circ = params.circuits[0]
+    z1_set = study.relay.z1_set if study.relay.z1_set is not None else circ.z1_ohm
+    k0_set = (cmath.rect(study.relay.k0_set.magnitude, study.relay.k0_set.angle)
+              if study.relay.k0_set is not None else circ.k0.k0)
+    k0m_set = None
+    if n_c == 2:
+        k0m_set = (cmath.rect(study.relay.k0m_set.magnitude, study.relay.k0m_set.angle)
+                   if study.relay.k0m_set is not None else params.k0m)
+    budget = study.error_budget.total_pct
+
+    lengths = np.array(geo.section_lengths_m)
+    orders = [list(o) for o in geo.section_orders]
+    plans = {
+        "actual_plan": (orders, lengths),
+        "untransposed": (orders[:1], [geo.length_m]),
+        "ideal_cycle": (transposition.cyclic_orders(orders[0], n_c), [geo.length_m / 3] * 3),
+    }
+    field_names = {"m": "reach_study.location_step_pct",
+                   "r_fault_ohm": "reach_study.fault_resistances",
+                   "r_phase_ohm": "reach_study.phase_fault_resistance",
+                   "source_scale": "reach_study.source_cases"}
+    sweeps = {}
+    for key, (ords, lens) in plans.items():
+        line = _cascade(params.z_position_ohm_per_m, params.y_position_s_per_m, ords, lens,
+                        rs.shunt_capacitance)
+        try:
+            sweeps[key] = network.solve_fault_sweep(
+                line, src[names[0]], src[names[1]], v_nominal_v=geo.v_nominal_v,
+                fault_types=rs.fault_types, m=m, r_fault_ohm=rf,
+                r_phase_ohm=rs.phase_fault_resistance, source_scale=scales,
+                transfer_angle_rad=angles, parallel_state=parallel,
+                field_names=field_names)
+        except InputError as exc:
+            raise exc.located(source=source) from None
+
+    labels = geo.phase_labels[0]
+    end_results = []
+    for end_name in ends:
+        at_s = end_name == names[0]
+        arrs = []
+        variants = [(k, False) for k in plans]
+        if n_c == 2 and parallel == "in_service" and rs.mutual_compensation:
+            variants = [(k, True) for k in plans] + [("actual_plan", False)]
+        for key, mutual in variants:
+            ords, lens = plans[key]
+            if not at_s:  # seen from R the plan runs backwards
+                ords, lens = ords[::-1], list(lens)[::-1]
+            arrs.append(_condense(sweeps[key], at_s, key, mutual, z1_set, k0_set,
+                                  k0m_set if mutual else None, z1_reach, rs, labels,
+                                  ords, lens, geo.position_names))
+        actual = arrs[0]
+        worst = actual.worst_bolted_overreach_at_remote_bus_pct
+        rec = measurement.recommended_zone1_pct(worst, budget, zone1_max_pct)
+        gov = max((lp for lp in actual.loops if lp.over_at_remote_bus is not None),
+                  key=lambda lp: lp.over_at_remote_bus.error_pct, default=None)
+        end_results.append(EndReach(
+            end=end_name, z1_set_ohm=complex(z1_set), k0_set=complex(k0_set),
+            k0m_set=None if k0m_set is None else complex(k0m_set),
+            zone1_reach_pct=z1_reach, error_budget_pct=budget, recommended_zone1_pct=rec,
+            governing_loop="" if gov is None else gov.loop,
+            governing_case=None if gov is None else gov.over_at_remote_bus,
+            arrangements=tuple(arrs)))
+
+    notes = [
+        "Relay set with Z1 and k0 of the ideally transposed line unless [relay] gives them.",
+        "Reach error = (m - m_apparent)/m along the line angle, in % of the reach; positive "
+        "is overreach.",
+        "Worst bolted errors (Rf = 0) measure what untransposition does; resistive faults "
+        "add the reactance error of remote infeed and load, shown separately.",
+        f"Recommended zone 1 = (100 - worst bolted overreach at the remote bus) / "
+        f"(1 + {budget:g} % error budget), capped at {zone1_max_pct:g} %, rounded down "
+        "to 0.5 %.",
+    ]
+    if rs.shunt_capacitance:
+        notes.append("Line shunt capacitance included (exact distributed sections).")
+    else:
+        notes.append("Line shunt capacitance neglected (series impedance only).")
+    sweep = sweeps["actual_plan"]
+    return ReachStudyResult(
+        fault_types=tuple(rs.fault_types),
+        locations_pct=tuple(float(x) for x in 100 * m),
+        fault_resistances_ohm=tuple(float(x) for x in rf),
+        phase_fault_resistance_ohm=rs.phase_fault_resistance,
+        source_cases=tuple((c.name, c.scale) for c in rs.source_cases),
+        transfer_angles_deg=tuple(math.degrees(a) for a in angles),
+        parallel_circuit=parallel if n_c == 2 else None,
+        shunt_capacitance=rs.shunt_capacitance,
+        source_impedances={n: {"z1_ohm": cplx(s.z1_ohm), "z0_ohm": cplx(s.z0_ohm)}
+                           for n, s in src.items() if s is not None},
+        ends=tuple(end_results),
+        n_cases=int(sweep.v_s.size // 3) * len(plans),
+        notes=tuple(notes),
+    )
+
+
+def _condense(sw, at_s, key, mutual, z1_set, k0_set, k0m_set, z1_reach, rs, labels,
+              orders, lengths, position_names) -> ArrangementReach:
+    if at_s:
+        v, i, ip, m = sw.v_s, sw.i_s, sw.i_s_parallel, sw.m
+    else:
+        v, i, ip, m = sw.v_r, sw.i_r, sw.i_r_parallel, 1.0 - sw.m
+    loops = measurement.loop_impedances(v, i, k0_set, i_parallel=ip if mutual else None,
+                                        k0m=k0m_set or 0)
+    # axes: (F, M, Rf, K, L)
+    m_b = m[None, :, None, None, None]
+    ftypes = sw.fault_types
+    rf = sw.r_fault_ohm
+    i_reach = int(np.argmin(np.abs(m - z1_reach / 100)))
+    i_remote = int(np.argmax(m))
+    summaries = []
+    env_max, env_min = [], []
+    for loop in LOOPS:
+        meant = np.array([loop in measurement.loops_for_fault(ft) for ft in ftypes])
+        with np.errstate(all="ignore"):  # loops that see no current give inf/nan
+            along, react = measurement.reach_error_pct(loops[loop], m_b, z1_set)
+        along = np.where(meant[:, None, None, None, None], along, np.nan)
+        react = np.where(meant[:, None, None, None, None], react, np.nan)
+        bolted = np.where((rf == 0)[None, None, :, None, None], along, np.nan)
+        resist = np.where((rf > 0)[None, None, :, None, None], react, np.nan)
+
+        def pick(arr, fn, mask_m=None, arr_=None):
+            a = arr if mask_m is None else np.where(mask_m, arr, np.nan)
+            if not np.any(np.isfinite(a)):
+                return None
+            idx = np.unravel_index(fn(a), a.shape)
+            f, k_m, k_rf, k_s, k_l = idx
+            mm = float(m[k_m])
+            return WorstCase(
+                error_pct=float(a[idx]), fault_type=ftypes[f], m=mm,
+                r_fault_ohm=float(rf[k_rf]), source_case=rs.source_cases[k_s].name,
+                transfer_angle_deg=math.degrees(float(np.angle(sw.emf_s_v[k_s, k_l])
+                                                      - np.angle(sw.emf_r_v[k_s, k_l]))),
+                positions=_positions_at(mm, loop, orders, lengths, position_names))
+
+        at_reach = np.zeros_like(m, dtype=bool)
+        at_reach[i_reach] = True
+        at_remote = np.zeros_like(m, dtype=bool)
+        at_remote[i_remote] = True
+        mr = at_reach[None, :, None, None, None]
+        mrem = at_remote[None, :, None, None, None]
+        summaries.append(LoopSummary(
+            loop=_loop_label(loop, labels),
+            over_at_reach=pick(bolted, np.nanargmax, mr),
+            under_at_reach=pick(bolted, np.nanargmin, mr),
+            over_line=pick(bolted, np.nanargmax),
+            under_line=pick(bolted, np.nanargmin),
+            over_at_remote_bus=pick(bolted, np.nanargmax, mrem),
+            reactance_over_resistive=pick(resist, np.nanargmax, mr),
+        ))
+        with warnings.catch_warnings():  # all-NaN slices (m = 0) are expected
+            warnings.simplefilter("ignore", RuntimeWarning)
+            env_max.append(np.nanmax(bolted, axis=(0, 2, 3, 4)))
+            env_min.append(np.nanmin(bolted, axis=(0, 2, 3, 4)))
+
+    def extreme(attr, fn):
+        vals = [getattr(s, attr).error_pct for s in summaries if getattr(s, attr) is not None]
+        return float(fn(vals)) if vals else float("nan")
+
+    order_m = np.argsort(m)
+    return ArrangementReach(
+        arrangement=key,
+        mutual_compensation=mutual,
+        loops=tuple(summaries),
+        worst_bolted_overreach_at_remote_bus_pct=extreme("over_at_remote_bus", max),
+        worst_bolted_overreach_on_line_pct=extreme("over_line", max),
+        worst_bolted_underreach_on_line_pct=extreme("under_line", min),
+        envelope_m=m[order_m],
+        envelope_max_pct=np.array(env_max)[:, order_m],
+        envelope_min_pct=np.array(env_min)[:, order_m],
+    )
