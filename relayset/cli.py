@@ -79,7 +79,7 @@ def _run(args) -> int:
     if args.json:
         io.write_json(args.json, results[0].to_dict())
     if getattr(args, "csv", None):
-        io.write_atomic(args.csv, results[0].settings.to_csv())
+        io.write_atomic(args.csv, io.rows_to_csv(results[0].settings.rows()))
     return 0
 
 

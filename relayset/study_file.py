@@ -237,6 +237,7 @@ class ReachStudyData(_Model):
     fault_types: tuple[str, ...] = ("AG", "BG", "CG", "AB", "BC", "CA", "ABG", "BCG", "CAG",
                                     "ABC")
     location_step_pct: _number(gt=0) = 1.0  # type: ignore[valid-type]
+    locations_pct: tuple[_number(), ...] | None = None  # type: ignore[valid-type]
     fault_resistances: tuple[Resistance, ...] = (0.0, 5.0, 10.0, 20.0)  # type: ignore[valid-type]
     phase_fault_resistance: Resistance = 0.0  # type: ignore[valid-type]
     source_cases: tuple[SourceCase, ...] = (

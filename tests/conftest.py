@@ -9,49 +9,9 @@ import pytest
 
 from relayset.resources import demo_lines_dir
 
+from tomlwrite import dump_toml
+
 DEMO = demo_lines_dir()
-
-
-def _dump_toml(data: dict) -> str:
-    """Minimal TOML writer for test variants (tables, arrays of tables, scalars, inline)."""
-
-    def val(v):
-        if isinstance(v, bool):
-            return "true" if v else "false"
-        if isinstance(v, str):
-            return '"' + v.replace("\\", "\\\\").replace('"', '\\"') + '"'
-        if isinstance(v, int | float):
-            return repr(v)
-        if isinstance(v, list | tuple):
-            return "[" + ", ".join(val(x) for x in v) + "]"
-        if isinstance(v, dict):
-            return "{ " + ", ".join(f'"{k}" = {val(x)}' for k, x in v.items()) + " }"
-        if hasattr(v, "isoformat"):
-            return v.isoformat()
-        raise TypeError(type(v))
-
-    lines: list[str] = []
-
-    def table(prefix: str, d: dict):
-        scalars = {k: v for k, v in d.items()
-                   if not isinstance(v, dict) and not (isinstance(v, list) and v
-                                                       and all(isinstance(x, dict) for x in v))}
-        if prefix:
-            lines.append(f"[{prefix}]")
-        for k, v in scalars.items():
-            lines.append(f'"{k}" = {val(v)}')
-        for k, v in d.items():
-            name = f'{prefix}."{k}"' if prefix else f'"{k}"'
-            if isinstance(v, dict):
-                table(name, v)
-            elif isinstance(v, list) and v and all(isinstance(x, dict) for x in v):
-                for item in v:
-                    lines.append(f"[[{name}]]")
-                    for kk, vv in item.items():
-                        lines.append(f'"{kk}" = {val(vv)}')
-
-    table("", data)
-    return "\n".join(lines) + "\n"
 
 
 @pytest.fixture
@@ -70,7 +30,7 @@ def variant(tmp_path):
         data = tomllib.loads((DEMO / name).read_text("utf-8"))
         edit(data)
         out = tmp_path / filename
-        out.write_text(_dump_toml(data), "utf-8")
+        out.write_text(dump_toml(data), "utf-8")
         return out
 
     return make

@@ -26,9 +26,10 @@ import cmath
 import math
 
 import pytest
-from test_carson_integral import reference_delta_z
 
 from relayset.physics.earth import earth_correction_ohm_per_m
+
+from test_carson_integral import reference_delta_z
 
 MU0 = 4e-7 * math.pi
 DELTA_Z_REL_TOL = 0.05  # "less than a few percent" (Deri et al. 1981, abstract)

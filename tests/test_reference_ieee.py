@@ -29,6 +29,10 @@ from pathlib import Path
 
 import numpy as np
 import pytest
+
+from relayset.physics.impedance import kron_reduce, primitive_impedance_ohm_per_m
+from relayset.physics.shunt import shunt_admittance_s_per_m
+
 from reference_cases.ieee_feeders import (
     CONDUCTORS,
     CONFIGURATIONS,
@@ -40,9 +44,6 @@ from reference_cases.ieee_feeders import (
     RESISTIVITY_OHM_M,
     SPACINGS,
 )
-
-from relayset.physics.impedance import kron_reduce, primitive_impedance_ohm_per_m
-from relayset.physics.shunt import shunt_admittance_s_per_m
 
 SERIES_TOL_OHM_PER_MILE = 1e-4
 SHUNT_TOL_US_PER_MILE = 1e-4

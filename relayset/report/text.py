@@ -58,3 +58,13 @@ def params_summary(results, unit_system: str = "si") -> str:
     u = UNIT_SYSTEMS[unit_system]
     p = results.parameters
     return render("params.txt.j2", r=results, p=p, u=u, zip=zip)
+
+
+def reach_summary(results, unit_system: str = "si") -> str:
+    """The reach-study table of one study."""
+    return render("reach.txt.j2", r=results, u=UNIT_SYSTEMS[unit_system])
+
+
+def settings_summary(results, unit_system: str = "si") -> str:
+    """The settings table and warnings of one study."""
+    return render("settings.txt.j2", r=results, u=UNIT_SYSTEMS[unit_system])

@@ -280,9 +280,15 @@ def run_reach_study(
     if step > 50:
         raise InputError("must be at most 50 %", field="reach_study.location_step_pct",
                          value=step, source=source)
-    n_steps = max(2, int(round(100 / step)))
-    m = np.linspace(0.0, 1.0, n_steps + 1)
-    m = np.unique(np.concatenate([m, [z1_reach / 100]]))
+    if rs.locations_pct is not None:
+        for x in rs.locations_pct:
+            if not 0 <= x <= 100:
+                raise InputError("fault locations must lie between 0 and 100 % of the line",
+                                 field="reach_study.locations_pct", value=x, source=source)
+        m = np.array(rs.locations_pct, dtype=float) / 100
+    else:
+        m = np.linspace(0.0, 1.0, max(2, round(100 / step)) + 1)
+    m = np.unique(np.concatenate([m, [z1_reach / 100, 1.0]]))
     rf = np.array(rs.fault_resistances or (0.0,))
     if 0.0 not in rf:
         rf = np.concatenate([[0.0], rf])
@@ -307,7 +313,7 @@ def run_reach_study(
         "untransposed": (orders[:1], [geo.length_m]),
         "ideal_cycle": (transposition.cyclic_orders(orders[0], n_c), [geo.length_m / 3] * 3),
     }
-    field_names = {"m": "reach_study.location_step_pct",
+    field_names = {"m": "reach_study.locations_pct",
                    "r_fault_ohm": "reach_study.fault_resistances",
                    "r_phase_ohm": "reach_study.phase_fault_resistance",
                    "source_scale": "reach_study.source_cases"}
@@ -410,7 +416,7 @@ def _condense(sw, at_s, key, mutual, z1_set, k0_set, k0m_set, z1_reach, rs, labe
         bolted = np.where((rf == 0)[None, None, :, None, None], along, np.nan)
         resist = np.where((rf > 0)[None, None, :, None, None], react, np.nan)
 
-        def pick(arr, fn, mask_m=None, arr_=None):
+        def pick(arr, fn, mask_m=None, loop=loop):
             a = arr if mask_m is None else np.where(mask_m, arr, np.nan)
             if not np.any(np.isfinite(a)):
                 return None

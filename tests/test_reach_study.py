@@ -1,0 +1,144 @@
+"""The reach study through the whole pipeline: study file -> parameters -> sweep -> summary."""
+
+from __future__ import annotations
+
+import math
+
+import pytest
+
+from relayset.api import study_reach
+from relayset.cli import main
+from relayset.physics.constants import MU0_H_PER_M
+from relayset.study_file import parse_study
+
+from tomlwrite import dump_toml
+
+DEMO_1C = "ashcombe_brenwick_132kv.toml"
+DEMO_2C = "elsford_fallowby_230kv_double.toml"
+
+
+def test_ideal_cycle_has_no_reach_error_at_the_remote_bus(demo_path):
+    # Fortescue: a full cycle of three equal sections makes the line's Zabc circulant, so
+    # every loop measures m*Z1 for a fault at the end of the cycle. Issue target: < 0.1 %.
+    res = study_reach(demo_path(DEMO_1C)).reach
+    ideal = res.ends[0].arrangement("ideal_cycle")
+    for lp in ideal.loops:
+        assert abs(lp.over_at_remote_bus.error_pct) < 0.1
+        assert abs(ideal.envelope_min_pct[:, -1]).max() < 0.1
+
+
+def test_demo_with_ideal_plan_has_no_error_at_remote_bus(demo_path):
+    res = study_reach(demo_path("kessler_oxbow_115kv.toml")).reach
+    act = res.ends[0].arrangement("actual_plan")
+    assert abs(act.worst_bolted_overreach_at_remote_bus_pct) < 0.1
+
+
+def _flat_line_study(d_m=4.0, h_m=15.0, r_ohm_per_km=0.12, gmr_mm=8.0, f="50 Hz"):
+    return {
+        "study": {"line_id": "T", "title": "flat", "from_substation": "S",
+                  "to_substation": "R"},
+        "system": {"nominal_voltage": "132 kV", "frequency": f,
+                   "earth_resistivity": "100 ohm*m", "earth_model": "carson_truncated"},
+        "conductor_types": {"p": {"outside_diameter": "20 mm", "gmr": f"{gmr_mm} mm",
+                                  "ac_resistance": f"{r_ohm_per_km} ohm/km"}},
+        "circuits": [{"name": "1", "positions": [
+            {"name": "left", "x": f"{-d_m} m", "average_height": f"{h_m} m",
+             "conductor": "p"},
+            {"name": "middle", "x": "0 m", "average_height": f"{h_m} m", "conductor": "p"},
+            {"name": "right", "x": f"{d_m} m", "average_height": f"{h_m} m",
+             "conductor": "p"}]}],
+        "line": {"length": "50 km"},
+        "relay": {"end": "S", "ct_ratio": "600/1 A", "vt_ratio": "132000/110 V"},
+        "sources": {"S": {"z1": "1 + 10j ohm", "z0": "2 + 25j ohm"}},
+        "reach_study": {"fault_types": ["AB", "BC", "CA"], "fault_resistances": ["0 ohm"],
+                        "source_cases": [{"name": "only", "scale": 1.0}],
+                        "location_step_pct": 10.0},
+    }
+
+
+def test_hand_derived_flat_line_phase_loop_errors(tmp_path, monkeypatch):
+    """Untransposed flat line, radial feed, bolted phase faults (hand derivation).
+
+    With the truncated Carson earth (earth terms equal for every pair, Kersting ch. 4), the
+    phase loop X-Y of a radially fed bolted fault measures m*L*(Zxx - Zxy) and the relay
+    replica is Z1 = R + j(w*mu0/2pi)*ln(GMD/GMR), GMD = d*2^(1/3) (Glover, Overbye & Sarma,
+    6th ed., eq. 4.6.x). Hence
+        Z1 - Z_loop(X,Y) = (Zxy - (2*Z_adj + Z_out)/3)
+    and with Z_adj - Z_out = j*Delta, Delta = (w*mu0/2pi)*ln 2 (outer pair twice as far):
+        adjacent loops: + Delta*sin(theta1) / (3|Z1|) overreach,
+        outer loop:     - 2*Delta*sin(theta1) / (3|Z1|) underreach,
+    at every location. Tolerance 1e-6 percentage points.
+    """
+    data = _flat_line_study()
+    path = tmp_path / "flat.toml"
+    path.write_text(dump_toml(data), "utf-8")
+    res = study_reach(path).reach
+    omega = 2 * math.pi * 50
+    x_unit = omega * MU0_H_PER_M / (2 * math.pi)
+    gmd = 4.0 * 2 ** (1 / 3)
+    z1 = 0.12e-3 + 1j * x_unit * math.log(gmd / 8.0e-3)
+    theta = math.atan2(z1.imag, z1.real)
+    delta = x_unit * math.log(2.0)
+    e_adj = 100 * delta * math.sin(theta) / (3 * abs(z1))
+    a = res.ends[0].arrangement("untransposed")
+    by = {lp.loop: lp for lp in a.loops}
+    for loop, expected in (("A-B", e_adj), ("B-C", e_adj), ("C-A", -2 * e_adj)):
+        lp = by[loop]
+        assert lp.over_line.error_pct == pytest.approx(expected, abs=1e-6)
+        assert lp.under_line.error_pct == pytest.approx(expected, abs=1e-6)
+    assert e_adj == pytest.approx(3.5, abs=1.0)  # a few percent: common practice, no source
+
+
+@pytest.mark.parametrize(("edit", "words"), [
+    (lambda d: d["relay"].update(end="Ashcomb"), ["relay.end", "not an end",
+                                                  "did you mean 'Ashcombe'"]),
+    (lambda d: d.setdefault("reach_study", {}).update(parallel_circuit="earthed"),
+     ["reach_study.parallel_circuit", "one circuit"]),
+    (lambda d: d.setdefault("reach_study", {}).update(fault_resistances=["-5 ohm"]),
+     ["reach_study.fault_resistances", "at least 0"]),
+    (lambda d: d["sources"]["Ashcombe"].update(z1="-1.5 + 12j ohm"),
+     ["sources.Ashcombe", "negative resistance"]),
+    (lambda d: d.setdefault("reach_study", {}).update(locations_pct=[50, 120]),
+     ["reach_study.locations_pct", "between 0 and 100"]),
+    (lambda d: d.setdefault("reach_study", {}).update(fault_types=["AG", "XG"]),
+     ["reach_study.fault_types", "unknown fault type"]),
+])
+def test_reach_bad_input(capsys, tmp_path, variant, edit, words):
+    path = variant(DEMO_1C, edit)
+    out = tmp_path / "r.json"
+    assert main(["reach", str(path), "--json", str(out)]) == 2
+    err = capsys.readouterr().err.strip()
+    assert len(err.splitlines()) == 1 and "Traceback" not in err
+    for w in words:
+        assert w in err, err
+    assert not out.exists()
+
+
+def test_double_circuit_mutual_compensation_reported(demo_path):
+    # Ground loops on a double circuit with the parallel line in service underreach without
+    # mutual compensation (IEEE Std C37.113-2015, parallel-line clause; from memory): the
+    # worst underreach without compensation is much larger than with it.
+    res = study_reach(demo_path(DEMO_2C)).reach
+    e = res.ends[0]
+    with_m = e.arrangement("actual_plan", mutual=True)
+    without = e.arrangement("actual_plan", mutual=False)
+    assert (without.worst_bolted_underreach_on_line_pct
+            < with_m.worst_bolted_underreach_on_line_pct - 5)
+
+
+def test_both_ends_and_json(tmp_path, variant):
+    path = variant(DEMO_1C, lambda d: d["relay"].update(end="both"))
+    out = tmp_path / "r.json"
+    assert main(["reach", str(path), "--json", str(out)]) == 0
+    import json
+
+    d = json.loads(out.read_text())
+    ends = d["reach_study"]["ends"]
+    assert [e["end"] for e in ends] == ["Ashcombe", "Brenwick"]
+    lp = ends[0]["arrangements"][0]["loops"][0]
+    assert "error_pct" in lp["worst_overreach_at_remote_bus"]
+    assert 0 < ends[0]["recommended_zone1_pct"] <= 100
+
+
+def test_study_validates_in_memory():
+    assert parse_study(_flat_line_study(), "mem").line.length == 50e3
