@@ -324,7 +324,7 @@ class SettingsResult:
         return [w.rule_id for w in self.warnings]
 
     def to_dict(self) -> dict[str, Any]:
-        """JSON-ready nested data; complex values as ``{"re": .., "im": ..}``."""
+        """JSON-ready nested data; complex values as ``[re, im]``."""
         zones = {}
         for z in self.zones:
             zones[z.zone] = {
@@ -466,8 +466,9 @@ class SettingsResult:
         return rows
 
 
-def _c(z: complex | None) -> dict[str, float] | None:
-    return None if z is None else {"re": float(z.real), "im": float(z.imag)}
+def _c(z: complex | None) -> list[float] | None:
+    """A complex value as [re, im], the project's JSON convention."""
+    return None if z is None else [float(z.real), float(z.imag)]
 
 
 def _deg(x: float | None) -> float | None:
@@ -511,16 +512,15 @@ def _zone1_target(w: _Work) -> tuple[complex, str, list[Check]]:
     rule = f"{pct:g} % of the line"
     limit = 100.0 - z1.min_margin_pct
     rec, over = i.recommended_zone1_pct, i.worst_overreach_pct
+    # The recommendation already carries the error budget: below the setting, it rules.
+    exceeds = rec is not None and rec < pct
     if over is not None:
-        exceeds = pct * (1 + over / 100) > limit
-    else:
-        # Without the overreach figure, a recommendation below the setting is the study's verdict.
-        exceeds = rec is not None and rec < pct
+        exceeds = exceeds or pct * (1 + over / 100) > limit
     if exceeds and z1.reduce_to_reach_study and rec is not None and rec < pct:
         w.warn(
             "zone1_reduced_by_reach_study",
             f"Zone 1 reduced from {pct:g} % to the reach study's recommended {rec:g} % of the "
-            "line (worst-case overreach exceeds the margin)",
+            "line (worst-case overreach plus the error budget exceed the margin)",
             "check the reach study's assumptions (transposition, earth resistivity)",
         )
         rule = f"{rec:g} % of the line (reach study recommendation; philosophy {pct:g} %)"
