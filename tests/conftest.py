@@ -28,6 +28,9 @@ def variant(tmp_path):
 
     def make(name: str, edit, filename: str = "variant.toml") -> Path:
         data = tomllib.loads((DEMO / name).read_text("utf-8"))
+        phil = data["study"].get("philosophy", "default")
+        if phil != "default":  # keep the demo's relative philosophy path valid from tmp_path
+            data["study"]["philosophy"] = str(DEMO / phil)
         edit(data)
         out = tmp_path / filename
         out.write_text(dump_toml(data), "utf-8")

@@ -208,6 +208,12 @@ def _loop_label(loop: str, labels: tuple[str, str, str]) -> str:
     return f"{labels[ph[0]]}-{labels[ph[1]]}"
 
 
+def fault_label(fault_type: str, labels: tuple[str, str, str]) -> str:
+    """A fault type in the study's phase labels, e.g. "ABG" -> "L1-L2-G"."""
+    parts = [labels["ABC".index(ch)] for ch in fault_type if ch in "ABC"]
+    return "-".join(parts + (["G"] if fault_type.endswith("G") else []))
+
+
 def _cascade(z_pos, y_pos, orders, lengths, shunt: bool) -> network.LineCascade:
     zs = transposition.section_matrices(z_pos, orders)
     ys = transposition.section_matrices(y_pos, orders) if shunt else None
@@ -424,7 +430,7 @@ def _condense(sw, at_s, key, mutual, z1_set, k0_set, k0m_set, z1_reach, rs, labe
             f, k_m, k_rf, k_s, k_l = idx
             mm = float(m[k_m])
             return WorstCase(
-                error_pct=float(a[idx]), fault_type=ftypes[f], m=mm,
+                error_pct=float(a[idx]), fault_type=fault_label(ftypes[f], labels), m=mm,
                 r_fault_ohm=float(rf[k_rf]), source_case=rs.source_cases[k_s].name,
                 transfer_angle_deg=math.degrees(float(np.angle(sw.emf_s_v[k_s, k_l])
                                                       - np.angle(sw.emf_r_v[k_s, k_l]))),
