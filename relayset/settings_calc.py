@@ -43,6 +43,8 @@ import numpy as np
 from relayset.errors import InputError
 from relayset.philosophy import Philosophy, default_philosophy
 from relayset.physics import zones as zp
+from relayset.physics.sequence import residual_compensation, residual_compensation_split
+from relayset.results import K0 as K0Forms
 
 ZONE_LABELS = {"zone1": "Zone 1", "zone2": "Zone 2", "zone3": "Zone 3", "reverse": "Reverse zone"}
 _SOURCE = "<settings inputs>"
@@ -262,16 +264,6 @@ class ZoneSetting:
                                 forward=forward) | zp.quad_contains(
             z_primary_ohm, self.x_reach_primary_ohm, self.r_reach_ground_primary_ohm,
             line_angle_rad, forward=forward)
-
-
-@dataclass(frozen=True)
-class K0Forms:
-    """Residual compensation in three forms [1]."""
-
-    k0: complex
-    kr: float
-    kx: float
-    z0_over_z1: complex
 
 
 @dataclass(frozen=True)
@@ -661,7 +653,7 @@ def compute_settings(
         return complex(z) if isinstance(x, complex) else float(z)
 
     # k0 in three forms, all from one k0 (given, or from the line totals).
-    k0_calc = complex(zp.k0_factor(zl, i.z0_line_ohm))
+    k0_calc = complex(residual_compensation(zl, i.z0_line_ohm))
     k0 = i.k0 if i.k0 is not None else k0_calc
     z0_eff = zl * (1 + 3 * k0)
     if i.k0 is not None and abs(z0_eff - i.z0_line_ohm) > 1e-3 * abs(i.z0_line_ohm):
@@ -672,7 +664,7 @@ def compute_settings(
             "of the line totals; the given k0 is used",
             "check which k0 the relay should use (e.g. the reach study's effective value)",
         )
-    kr, kx = zp.k0_split(zl, z0_eff)
+    kr, kx = residual_compensation_split(zl, z0_eff)
     k0_forms = K0Forms(k0=k0, kr=float(kr), kx=float(kx), z0_over_z1=1 + 3 * k0)
 
     # Load.

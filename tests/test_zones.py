@@ -8,6 +8,7 @@ import numpy as np
 import pytest
 
 from relayset.physics import zones as zp
+from relayset.physics.sequence import residual_compensation, residual_compensation_split
 
 # ---------------------------------------------------------------- Warrington
 
@@ -184,9 +185,9 @@ def test_k0_forms_hand_values():
     # Hand values for Z1 = 4 + 40j, Z0 = 10 + 130j:
     # k0 = (6 + 90j)/(12 + 120j) = (10872 + 360j)/14544 = 0.747525 + 0.024752j;
     # kR = (10 - 4)/12 = 0.5; kX = (130 - 40)/120 = 0.75. Identity: 1 + 3 k0 = Z0/Z1.
-    k0 = complex(zp.k0_factor(4 + 40j, 10 + 130j))
+    k0 = complex(residual_compensation(4 + 40j, 10 + 130j))
     assert k0 == pytest.approx(10872 / 14544 + 360j / 14544, rel=1e-12)
-    kr, kx = zp.k0_split(4 + 40j, 10 + 130j)
+    kr, kx = residual_compensation_split(4 + 40j, 10 + 130j)
     assert (float(kr), float(kx)) == pytest.approx((0.5, 0.75), rel=1e-12)
     assert 1 + 3 * k0 == pytest.approx((10 + 130j) / (4 + 40j), rel=1e-12)
 

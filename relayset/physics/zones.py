@@ -432,39 +432,3 @@ def infeed_factor(
     zr = np.asarray(z_source_remote, dtype=complex)
     return 1.0 + (zs + zl) / zr
 
-
-def k0_factor(z1: complex | np.ndarray, z0: complex | np.ndarray) -> np.ndarray:
-    r"""Residual (zero-sequence) compensation factor :math:`k_0 = (Z_0 - Z_1)/(3 Z_1)`.
-
-    Parameters
-    ----------
-    z1, z0 : complex or array
-        Positive- and zero-sequence impedance [ohm].
-
-    Returns
-    -------
-    ndarray of complex
-        k0 [1].
-    """
-    z1 = np.asarray(z1, dtype=complex)
-    return (np.asarray(z0, dtype=complex) - z1) / (3.0 * z1)
-
-
-def k0_split(z1: complex | np.ndarray, z0: complex | np.ndarray) -> tuple[np.ndarray, np.ndarray]:
-    r"""Separate resistive and reactive compensation factors.
-
-    .. math:: k_R = \frac{R_0 - R_1}{3 R_1},\qquad k_X = \frac{X_0 - X_1}{3 X_1}
-
-    Parameters
-    ----------
-    z1, z0 : complex or array
-        Positive- and zero-sequence impedance [ohm]; R1 and X1 non-zero.
-
-    Returns
-    -------
-    (kR, kX) : tuple of ndarray
-        [1].
-    """
-    z1 = np.asarray(z1, dtype=complex)
-    z0 = np.asarray(z0, dtype=complex)
-    return (z0.real - z1.real) / (3.0 * z1.real), (z0.imag - z1.imag) / (3.0 * z1.imag)
