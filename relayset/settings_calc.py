@@ -44,7 +44,7 @@ from relayset.errors import InputError
 from relayset.philosophy import Philosophy, default_philosophy
 from relayset.physics import zones as zp
 from relayset.physics.sequence import residual_compensation, residual_compensation_split
-from relayset.results import K0 as K0Forms
+from relayset.results import K0
 
 ZONE_LABELS = {"zone1": "Zone 1", "zone2": "Zone 2", "zone3": "Zone 3", "reverse": "Reverse zone"}
 _SOURCE = "<settings inputs>"
@@ -297,7 +297,7 @@ class SettingsResult:
     length_m: float
     secondary_factor: float
     zones: tuple[ZoneSetting, ...]
-    k0: K0Forms
+    k0: K0
     k0m: complex | None
     load: LoadCheck
     sources: tuple[SourceEnd, ...]
@@ -665,7 +665,7 @@ def compute_settings(
             "check which k0 the relay should use (e.g. the reach study's effective value)",
         )
     kr, kx = residual_compensation_split(zl, z0_eff)
-    k0_forms = K0Forms(k0=k0, kr=float(kr), kx=float(kx), z0_over_z1=1 + 3 * k0)
+    k0_forms = K0(k0=k0, kr=float(kr), kx=float(kx), z0_over_z1=1 + 3 * k0)
 
     # Load.
     z_load = float(zp.min_load_impedance_ohm(i.v_min_pu * i.v_nominal_ll_v, i.s_max_va))
