@@ -187,7 +187,6 @@ class RelayData(_Model):
     end: str
     ct_ratio: Annotated[float, BeforeValidator(units.parse_ratio)]
     vt_ratio: Annotated[float, BeforeValidator(units.parse_ratio)]
-    ct_secondary: _quantity("current", gt=0) = 1.0  # type: ignore[valid-type]
     z1_set: ComplexOhm | None = None  # type: ignore[valid-type]
     k0_set: K0Setting | None = None
     k0m_set: K0Setting | None = None
@@ -221,11 +220,19 @@ class SourceData(_Model):
         return self
 
 
+class PowerFlow(_Model):
+    """A prefault load case: power into the line at the relay end (from end for "both")."""
+
+    active_power: _quantity("power")  # type: ignore[valid-type]
+    reactive_power: _quantity("power") = 0.0  # type: ignore[valid-type]
+
+
 class LoadData(_Model):
     max_apparent_power: Power  # type: ignore[valid-type]
     min_voltage: _number(gt=0, ge=None) = 0.9  # type: ignore[valid-type]
     load_angle_max: Angle = math.radians(30.0)  # type: ignore[valid-type]
     transfer_angles: tuple[Angle, ...] = (0.0,)  # type: ignore[valid-type]
+    power_flows: tuple[PowerFlow, ...] = ()
 
 
 class SourceCase(_Model):

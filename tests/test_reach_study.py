@@ -142,3 +142,78 @@ def test_both_ends_and_json(tmp_path, variant):
 
 def test_study_validates_in_memory():
     assert parse_study(_flat_line_study(), "mem").line.length == 50e3
+
+
+def _flows(*pq):
+    def edit(d):
+        d["load"].pop("transfer_angles", None)
+        d["load"]["power_flows"] = [{"active_power": f"{p} MW", "reactive_power": f"{q} Mvar"}
+                                    for p, q in pq]
+    return edit
+
+
+def test_export_load_makes_resistive_ground_faults_overreach(variant):
+    # With fault resistance, remote infeed leads the relay current when the relay end exports
+    # power, so the measured reactance drops and the relay overreaches; importing reverses
+    # the effect (G. Ziegler, Numerical Distance Protection, 4th ed., sec. 3.3; from memory).
+    exp = study_reach(variant(DEMO_1C, _flows((120, 0)), "exp.toml")).reach.ends[0]
+    imp = study_reach(variant(DEMO_1C, _flows((-120, 0)), "imp.toml")).reach.ends[0]
+
+    def x_err(e):
+        lp = next(lp for lp in e.arrangement("actual_plan").loops if lp.loop == "A-G")
+        return lp.reactance_over_resistive.error_pct
+
+    assert x_err(exp) > x_err(imp) + 5
+    # bolted errors hardly depend on load (untransposition, not infeed): within 1 point
+    a_exp = exp.arrangement("actual_plan").worst_bolted_overreach_at_remote_bus_pct
+    a_imp = imp.arrangement("actual_plan").worst_bolted_overreach_at_remote_bus_pct
+    assert abs(a_exp - a_imp) < 1.0
+
+
+def test_power_flows_need_both_sources(capsys, tmp_path, variant):
+    def edit(d):
+        _flows((50, 0))(d)
+        d["sources"].pop("Brenwick")
+
+    path = variant(DEMO_1C, edit)
+    assert main(["reach", str(path)]) == 2
+    assert "load.power_flows" in capsys.readouterr().err
+
+
+@pytest.mark.parametrize("end", ["Ashcombe", "Brenwick"])
+def test_power_flow_is_delivered_at_the_relay_end(demo_path, end):
+    # A fault of 1 Mohm leaves the prefault state; the complex power into the line at the
+    # relay end must be the requested P + jQ within 1 % (the load flow is solved in the
+    # positive-sequence network, so the untransposed line's unbalance costs a little).
+    import numpy as np
+
+    from relayset.api import load_study
+    from relayset.physics import network
+    from relayset.studies.geometry import build_geometry
+    from relayset.studies.parameters import compute_parameters
+    from relayset.studies.reach import _cascade, _emfs_for_power_flows, build_source
+
+    study, _, _ = load_study(demo_path(DEMO_1C))
+    geo = build_geometry(study)
+    par = compute_parameters(geo)
+    names = (study.study.from_substation, study.study.to_substation)
+    src = {n: build_source(study, n, "t") for n in names}
+    line = _cascade(par.z_position_ohm_per_m, par.y_position_s_per_m,
+                    [list(o) for o in geo.section_orders], geo.section_lengths_m, False)
+
+    class _Load:  # the two fields the helper reads
+        power_flows = (type("F", (), {"active_power": 90e6, "reactive_power": 20e6})(),)
+
+    class _Study:
+        load = _Load()
+
+    emf = _emfs_for_power_flows(_Study(), line, src, names, end, np.array([1.0]),
+                                "in_service", geo.v_nominal_v)
+    sw = network.solve_fault_sweep(line, src[names[0]], src[names[1]],
+                                   v_nominal_v=geo.v_nominal_v, fault_types=["AG"],
+                                   m=np.array([0.5]), r_fault_ohm=np.array([1e6]),
+                                   emf_v=emf)
+    v, i = (sw.v_s, sw.i_s) if end == names[0] else (sw.v_r, sw.i_r)
+    s = complex(np.sum(v[0, 0, 0, 0, 0] * np.conj(i[0, 0, 0, 0, 0])))
+    assert s.real == pytest.approx(90e6, rel=0.01)
+    assert s.imag == pytest.approx(20e6, abs=0.01 * 90e6)

@@ -46,6 +46,8 @@ def fmt_polar(z: complex, digits: int = 4) -> str:
 def fmt_float(x: float, digits: int = 3) -> str:
     if x is None or (isinstance(x, float) and not math.isfinite(x)):
         return "-"
+    if abs(x) < 0.5 * 10.0**-digits:
+        x = 0.0  # no "-0.00"
     return f"{x:.{digits}f}"
 
 

@@ -300,6 +300,11 @@ def run_reach_study(
         rf = np.concatenate([[0.0], rf])
     scales = np.array([c.scale for c in rs.source_cases])
     angles = np.array(study.load.transfer_angles if study.load else (0.0,))
+    if study.load and study.load.power_flows:
+        if src[names[0]] is None or src[names[1]] is None:
+            raise InputError("load cases given as power flows need sources at both ends",
+                             field="load.power_flows", source=source)
+        angles = np.zeros(len(study.load.power_flows))  # replaced by the EMFs of each flow
 
     # Relay settings: by default those of the ideally transposed line.
     circ = params.circuits[0]
@@ -328,11 +333,13 @@ def run_reach_study(
         line = _cascade(params.z_position_ohm_per_m, params.y_position_s_per_m, ords, lens,
                         rs.shunt_capacitance)
         try:
+            emf = _emfs_for_power_flows(study, line, src, names, ends[0], scales, parallel,
+                                        geo.v_nominal_v)
             sweeps[key] = network.solve_fault_sweep(
                 line, src[names[0]], src[names[1]], v_nominal_v=geo.v_nominal_v,
                 fault_types=rs.fault_types, m=m, r_fault_ohm=rf,
                 r_phase_ohm=rs.phase_fault_resistance, source_scale=scales,
-                transfer_angle_rad=angles, parallel_state=parallel,
+                transfer_angle_rad=angles, parallel_state=parallel, emf_v=emf,
                 field_names=field_names)
         except InputError as exc:
             raise exc.located(source=source) from None
@@ -395,6 +402,29 @@ def run_reach_study(
         n_cases=int(sweep.v_s.size // 3) * len(plans),
         notes=tuple(notes),
     )
+
+
+def _emfs_for_power_flows(study, line, src, names, relay_end, scales, parallel, v_nom):
+    """EMFs of both sources for the P, Q load cases at the relay end (None: use angles).
+
+    The positive-sequence load flow of :func:`relayset.physics.network.emfs_for_load`
+    fixes the relay-end voltage at nominal; seen from the far end the line is reversed.
+    """
+    if not (study.load and study.load.power_flows):
+        return None
+    p = np.array([f.active_power for f in study.load.power_flows])
+    q = np.array([f.reactive_power for f in study.load.power_flows])
+    if relay_end == names[0]:
+        return network.emfs_for_load(line, src[names[0]], src[names[1]], v_nominal_v=v_nom,
+                                     p_w=p, q_var=q, source_scale=scales,
+                                     parallel_state=parallel)
+    rev = network.LineCascade(line.z_ohm_per_m[::-1], line.length_m[::-1],
+                              None if line.y_s_per_m is None else line.y_s_per_m[::-1])
+    e_r, e_s = network.emfs_for_load(rev, src[names[1]], src[names[0]], v_nominal_v=v_nom,
+                                     p_w=p, q_var=q, source_scale=scales[..., ::-1]
+                                     if np.ndim(scales) == 2 else scales,
+                                     parallel_state=parallel)
+    return e_s, e_r
 
 
 def _condense(sw, at_s, key, mutual, z1_set, k0_set, k0m_set, z1_reach, rs, labels,
