@@ -13,8 +13,8 @@ earth-return correction computed here. Three models are offered, chosen by name:
 ``carson``
     Carson's infinite series [1]_, summed until the terms vanish, and its asymptotic expansion
     for large Carson parameter (``r > 18``), where the alternating series loses precision (both
-    agree with direct integration to better than 5e-7 relative there); in the
-    form given in Dommel's EMTP Theory Book [2]_.
+    agree with direct integration to better than 5e-7 relative there), both as given by
+    Carson [1]_ and restated in [2]_.
 ``carson_truncated``
     The first term of P and the first two of Q ("modified Carson" [3]_): the form the
     distribution test feeders and most handbook tables use. Good only for small r (low
@@ -27,8 +27,8 @@ References
 ----------
 .. [1] J. R. Carson, "Wave propagation in overhead wires with ground return," Bell Syst. Tech.
    J., vol. 5, pp. 539-554, 1926.
-.. [2] H. W. Dommel, EMTP Theory Book, 2nd ed. Vancouver: Microtran Power System Analysis,
-   1992, sec. 4.1.2.
+.. [2] P. M. Anderson, Analysis of Faulted Power Systems. New York: IEEE Press, 1995,
+   ch. 4 (Carson's series for P and Q; section from memory).
 .. [3] W. H. Kersting, Distribution System Modeling and Analysis, 4th ed. Boca Raton: CRC
    Press, 2017, ch. 4.
 .. [4] A. Deri, G. Tevan, A. Semlyen and A. Castanheira, "The complex ground return plane: a

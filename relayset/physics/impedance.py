@@ -5,7 +5,8 @@ References
 .. [1] W. H. Kersting, Distribution System Modeling and Analysis, 4th ed. CRC Press, 2017,
    sec. 4.1-4.2 (primitive matrix and Kron reduction).
 .. [2] G. Kron, Tensor Analysis of Networks. New York: Wiley, 1939.
-.. [3] H. W. Dommel, EMTP Theory Book, 2nd ed., 1992, sec. 4.1.3 (bundled conductors).
+.. [3] J. Arrillaga and N. R. Watson, Computer Modelling of Electrical Power Systems, 2nd ed.
+   Chichester: Wiley, 2001, ch. 2 (bundled conductors; chapter from memory).
 """
 
 from __future__ import annotations
