@@ -67,9 +67,10 @@ def _run(path: str | Path, *, reach: bool, settings: bool) -> StudyResults:
     geo = build_geometry(study, src)
     params = compute_parameters(geo)
     philosophy = study_philosophy(study, src)
-    z1 = philosophy.zone1.reach_pct
-    reach_res = run_reach_study(study, geo, params, source=src, zone1_reach_pct=z1,
-                                zone1_max_pct=z1) if reach else None
+    z1 = philosophy.zone1
+    reach_res = run_reach_study(
+        study, geo, params, source=src, zone1_reach_pct=z1.reach_pct,
+        zone1_max_pct=z1.reach_pct, zone1_margin_pct=z1.min_margin_pct) if reach else None
     settings_res = (run_settings(study, geo, params, reach_res, philosophy, source=src)
                     if settings else None)
     return StudyResults(

@@ -87,20 +87,21 @@ def test_loops_for_fault():
 
 
 @pytest.mark.parametrize(
-    ("overreach", "budget", "cap", "expected"),
+    ("overreach", "budget", "cap", "margin", "expected"),
     [
-        (5.0, 10.0, 100.0, 86.0),  # 95 / 1.10 = 86.36 -> 86.0
-        (5.0, 10.0, 80.0, 80.0),  # capped by the philosophy
-        (-3.0, 10.0, 100.0, 90.5),  # underreach not counted: 100 / 1.1 = 90.91 -> 90.5
-        (15.0, 0.0, 100.0, 85.0),  # exactly 85: stays 85.0 (no float slip to 84.5)
-        (14.5, 2.0, 100.0, 83.5),  # 85.5 / 1.02 = 83.82 -> 83.5
-        (0.0, 0.0, 100.0, 100.0),
-        (120.0, 5.0, 85.0, 0.0),  # no positive reach is safe
+        (5.0, 10.0, 100.0, 0.0, 86.5),  # 100 / 1.15 = 86.96 -> 86.5
+        (5.0, 10.0, 80.0, 0.0, 80.0),  # capped by the philosophy
+        (-3.0, 10.0, 100.0, 0.0, 90.5),  # underreach not counted: 100 / 1.1 = 90.91 -> 90.5
+        (25.0, 0.0, 100.0, 0.0, 80.0),  # exactly 80: stays 80.0 (no float slip to 79.5)
+        (14.5, 2.0, 100.0, 0.0, 85.5),  # 100 / 1.165 = 85.84 -> 85.5
+        (0.0, 0.0, 100.0, 0.0, 100.0),
+        (120.0, 5.0, 85.0, 0.0, 44.0),  # 100 / 2.25 = 44.44 -> 44.0
+        (5.0, 10.0, 100.0, 10.0, 78.0),  # 90 / 1.15 = 78.26 -> 78.0
     ],
 )
-def test_recommended_zone1_hand_values(overreach, budget, cap, expected):
-    # Hand-derived from r (1 + b/100) <= 100 - max(0, e), rounded down to 0.5 %.
-    assert recommended_zone1_pct(overreach, budget, cap) == expected
+def test_recommended_zone1_hand_values(overreach, budget, cap, margin, expected):
+    # Hand-derived from r (1 + (b + max(0, e))/100) <= 100 - margin, rounded down to 0.5 %.
+    assert recommended_zone1_pct(overreach, budget, cap, margin) == expected
 
 
 def test_recommended_zone1_bad_input():
@@ -112,3 +113,6 @@ def test_recommended_zone1_bad_input():
     assert err.value.field == "philosophy_max_pct"
     with pytest.raises(InputError):
         recommended_zone1_pct(float("nan"), 10.0, 80.0)
+    with pytest.raises(InputError) as err:
+        recommended_zone1_pct(5.0, 10.0, 80.0, margin_pct=100.0)
+    assert err.value.field == "margin_pct"

@@ -23,7 +23,7 @@ Hand derivation (formulas of relayset.settings_calc's module notes):
   = n (cos 30 + 10 sin 30) = n (sqrt(3)/2 + 5) = 5.866025 n ohm.
 
 Default philosophy (infeed given as 1), reach study: recommended 75 %, worst overreach 15 %:
-- zone 1: 80 % x 1.15 = 92 % > 100 - 10 = 90 % -> reduced to 75 %: 3u, |.| = 30.14963 ohm,
+- zone 1: recommendation 75 % < 80 % (the budget is in it) -> reduced to 75 %: 3u, |.| = 30.14963 ohm,
   secondary 20.09975 ohm;
 - zone 2 (max_of_both): 120 % = 4.8u against 4u + 0.5 x 2u = 5u -> 5u = 50.24938 ohm (125 %),
   secondary 33.49959; the adjacent zone 1 end 4u + 0.8 x 2u = 5.6u lies outside -> no warning;
@@ -174,7 +174,9 @@ def test_zone2_change_moves_only_zone2():
 
 
 def test_zone1_not_reduced_when_not_allowed():
-    ph = default_philosophy().with_changes({"zone1": {"reduce_to_reach_study": False}})
+    # A utility margin of 10 % short of the remote bus (the default is 0 %).
+    ph10 = default_philosophy().with_changes({"zone1": {"min_margin_pct": 10.0}})
+    ph = ph10.with_changes({"zone1": {"reduce_to_reach_study": False}})
     r = compute_settings(inputs(), ph)
     assert r.zone("zone1").reach_pct == pytest.approx(80.0, rel=1e-12)
     assert r.warning_ids() == ["zone1_overreach_exceeds_margin"]
@@ -183,12 +185,11 @@ def test_zone1_not_reduced_when_not_allowed():
     assert check.passed is False and "92 %" in check.detail
     # Small overreach: 80 x 1.10 = 88 % <= 90 %, and no recommendation below the setting:
     # nothing changes.
-    r = compute_settings(inputs(worst_overreach_pct=10.0, recommended_zone1_pct=None),
-                         default_philosophy())
+    r = compute_settings(inputs(worst_overreach_pct=10.0, recommended_zone1_pct=None), ph10)
     assert r.zone("zone1").reach_pct == pytest.approx(80.0) and r.warning_ids() == []
     # The recommendation carries the error budget: below the setting it rules even when
     # the bare overreach is inside the margin.
-    r = compute_settings(inputs(worst_overreach_pct=10.0), default_philosophy())
+    r = compute_settings(inputs(worst_overreach_pct=10.0), ph10)
     assert r.zone("zone1").reach_pct == pytest.approx(inputs().recommended_zone1_pct)
 
 

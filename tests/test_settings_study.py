@@ -95,13 +95,13 @@ def test_settings_exports(tmp_path, demo_path):
 
 
 def test_zone1_follows_reach_study_when_budget_is_large(variant):
-    # With a 30 % relay error in the budget the recommendation is
-    # floor2((100 - e) / 1.35) < 80 %, so zone 1 must be reduced to it (philosophy flag on).
+    # With a 30 % relay error in the budget (35 % in all) the recommendation is
+    # floor2(100 / (1 + (35 + e)/100)) < 80 %, so zone 1 must be reduced to it (flag on).
     res = study_settings(variant(DEMO, lambda d: d.setdefault("error_budget", {}).update(
         relay_pct=30.0)))
     rec = res.reach.ends[0].recommended_zone1_pct
     e = res.reach.ends[0].arrangement("actual_plan").worst_bolted_overreach_at_remote_bus_pct
     budget = 1.0 + 1.0 + 30.0 + 3.0
-    assert rec == pytest.approx(int((100 - max(e, 0)) / (1 + budget / 100) * 2) / 2)
+    assert rec == pytest.approx(int(100 / (1 + (budget + max(e, 0)) / 100) * 2) / 2)
     assert res.settings.zone("zone1").reach_pct == pytest.approx(rec)
     assert "zone1_reduced_by_reach_study" in res.settings.warning_ids()

@@ -144,21 +144,23 @@ def loops_for_fault(fault_type: str) -> tuple[str, ...]:
 
 
 def recommended_zone1_pct(
-    worst_overreach_pct: float, error_budget_pct: float, philosophy_max_pct: float
+    worst_overreach_pct: float,
+    error_budget_pct: float,
+    philosophy_max_pct: float,
+    margin_pct: float = 0.0,
 ) -> float:
-    r"""Largest zone 1 reach that does not operate for a fault at the remote bus.
+    r"""Largest zone 1 reach whose worst-case reach stays short of the remote bus.
 
-    A relay set at reach r (fraction of the line) operates when the fault's apparent
-    fraction is below r. For a fault at the remote bus (m = 1) the study finds the apparent
-    fraction :math:`m_{app} = 1 - e` with e the worst overreach (underreach, e < 0, is not
-    counted in favour). Measurement errors (CT, VT, relay and line data, summed into the
-    budget b) can make the relay reach up to :math:`r(1 + b)`. Zone 1 must stay short of
-    the remote bus:
+    A relay set at reach r (percent of the line) can reach further than set by the error
+    budget b (CT, VT, relay and line-data errors, summed) and by the untransposition
+    overreach e that the study computed for the meant loops (underreach, e < 0, is not
+    counted in favour). Both are fractions of the setting, so the worst-case reach is
+    :math:`r\,(1 + (b + \max(0, e))/100)`, and it must stay at least the margin m short
+    of the remote bus:
 
-    .. math:: r\,(1 + b/100) \le 100\,(1 - \max(0, e)/100)
-              \;\Rightarrow\; r \le \frac{100 - \max(0, e)}{1 + b/100}\ [\%]
+    .. math:: r \le \frac{100 - m}{1 + (b + \max(0, e))/100}\ [\%]
 
-    capped at the protection philosophy's maximum and rounded down to 0.5 %.
+    capped at the protection philosophy's zone 1 and rounded down to 0.5 %.
 
     Parameters
     ----------
@@ -168,16 +170,19 @@ def recommended_zone1_pct(
     error_budget_pct : float
         Sum of the CT, VT, relay and line-data errors [%], >= 0.
     philosophy_max_pct : float
-        Maximum zone 1 reach the protection philosophy allows [%], in (0, 100].
+        Zone 1 reach of the protection philosophy, the upper limit [%], in (0, 100].
+    margin_pct : float
+        Extra margin short of the remote bus beyond the errors [%], in [0, 100).
 
     Returns
     -------
     float
-        Recommended zone 1 reach [% of line]; 0.0 when no positive reach is safe.
+        Recommended zone 1 reach [% of line].
     """
     for name, value in (("worst_overreach_pct", worst_overreach_pct),
                         ("error_budget_pct", error_budget_pct),
-                        ("philosophy_max_pct", philosophy_max_pct)):
+                        ("philosophy_max_pct", philosophy_max_pct),
+                        ("margin_pct", margin_pct)):
         if not math.isfinite(value):
             raise InputError("must be a finite number", field=name, value=value)
     if error_budget_pct < 0:
@@ -186,7 +191,10 @@ def recommended_zone1_pct(
     if not 0 < philosophy_max_pct <= 100:
         raise InputError("maximum zone 1 reach must be in (0, 100] %",
                          field="philosophy_max_pct", value=philosophy_max_pct)
-    limit = (100.0 - max(0.0, worst_overreach_pct)) / (1 + error_budget_pct / 100)
+    if not 0 <= margin_pct < 100:
+        raise InputError("margin must be in [0, 100) %", field="margin_pct", value=margin_pct)
+    total = error_budget_pct + max(0.0, worst_overreach_pct)
+    limit = (100.0 - margin_pct) / (1 + total / 100)
     reach = min(limit, philosophy_max_pct)
     # Round down to 0.5 %; the small tolerance keeps e.g. 84.99999999999999 at 85.
     return max(0.0, math.floor(reach * 2 + 1e-9) / 2)

@@ -229,7 +229,7 @@ def _positions_at(m: float, loop: str, orders, lengths, names) -> tuple[str, ...
 
 def run_reach_study(
     study: Study, geo: LineGeometry, params: LineParameters, *, source: str,
-    zone1_reach_pct: float = 80.0, zone1_max_pct: float = 85.0,
+    zone1_reach_pct: float = 80.0, zone1_max_pct: float = 85.0, zone1_margin_pct: float = 0.0,
 ) -> ReachStudyResult:
     """Sweep faults over the real line and condense the reach errors per loop and end.
 
@@ -244,6 +244,8 @@ def run_reach_study(
         unless ``reach_study.zone1_reach_pct`` is set).
     zone1_max_pct : float
         The largest zone 1 reach the philosophy allows [%].
+    zone1_margin_pct : float
+        Margin short of the remote bus beyond the errors [%] (philosophy).
     """
     rs = study.reach_study
     names = (study.study.from_substation, study.study.to_substation)
@@ -361,7 +363,7 @@ def run_reach_study(
                                   ords, lens, geo.position_names))
         actual = arrs[0]
         worst = actual.worst_bolted_overreach_at_remote_bus_pct
-        rec = measurement.recommended_zone1_pct(worst, budget, zone1_max_pct)
+        rec = measurement.recommended_zone1_pct(worst, budget, zone1_max_pct, zone1_margin_pct)
         gov = max((lp for lp in actual.loops if lp.over_at_remote_bus is not None),
                   key=lambda lp: lp.over_at_remote_bus.error_pct, default=None)
         end_results.append(EndReach(
@@ -378,9 +380,9 @@ def run_reach_study(
         "is overreach.",
         "Worst bolted errors (Rf = 0) measure what untransposition does; resistive faults "
         "add the reactance error of remote infeed and load, shown separately.",
-        f"Recommended zone 1 = (100 - worst bolted overreach at the remote bus) / "
-        f"(1 + {budget:g} % error budget), capped at {zone1_max_pct:g} %, rounded down "
-        "to 0.5 %.",
+        f"Recommended zone 1 = ({100 - zone1_margin_pct:g} %) / (1 + ({budget:g} % error "
+        "budget + worst bolted overreach at the remote bus)/100), capped at "
+        f"{zone1_max_pct:g} %, rounded down to 0.5 %.",
     ]
     if rs.shunt_capacitance:
         notes.append("Line shunt capacitance included (exact distributed sections).")

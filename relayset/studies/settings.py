@@ -85,8 +85,9 @@ def run_settings(study: Study, geo: LineGeometry, params: LineParameters,
     if reach is not None:
         er = next(e for e in reach.ends if e.end == end)
         rec = er.recommended_zone1_pct
-        a = er.arrangement("actual_plan")
-        worst = a.worst_bolted_overreach_at_remote_bus_pct
+        # Worst-case zone 1 overreach in % of its setting: error budget + untransposition.
+        e = er.arrangement("actual_plan").worst_bolted_overreach_at_remote_bus_pct
+        worst = er.error_budget_pct + max(0.0, e)
     fr = study.fault_resistance
     inputs = SettingsInputs(
         z1_line_ohm=study.relay.z1_set if study.relay.z1_set is not None else circ.z1_ohm,
