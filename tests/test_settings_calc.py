@@ -23,8 +23,8 @@ Hand derivation (formulas of relayset.settings_calc's module notes):
   = n (cos 30 + 10 sin 30) = n (sqrt(3)/2 + 5) = 5.866025 n ohm.
 
 Default philosophy (infeed given as 1), reach study: recommended 75 %, worst overreach 15 %:
-- zone 1: recommendation 75 % < 80 % (the budget is in it) -> reduced to 75 %: 3u, |.| = 30.14963 ohm,
-  secondary 20.09975 ohm;
+- zone 1: recommendation 75 % < 80 % (the budget is in it) -> reduced to 75 %: 3u,
+  |.| = 30.14963 ohm, secondary 20.09975 ohm;
 - zone 2 (max_of_both): 120 % = 4.8u against 4u + 0.5 x 2u = 5u -> 5u = 50.24938 ohm (125 %),
   secondary 33.49959; the adjacent zone 1 end 4u + 0.8 x 2u = 5.6u lies outside -> no warning;
 - zone 3: 4u + 1.2 x 3.2u = 7.84u = 78.79102 ohm (196 %), secondary 52.52735; its load
