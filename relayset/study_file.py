@@ -229,10 +229,17 @@ class PowerFlow(_Model):
 
 class LoadData(_Model):
     max_apparent_power: Power  # type: ignore[valid-type]
-    min_voltage: _number(gt=0, ge=None) = 0.9  # type: ignore[valid-type]
+    min_voltage: _quantity("dimensionless", gt=0) = 0.9  # type: ignore[valid-type]
     load_angle_max: Angle = math.radians(30.0)  # type: ignore[valid-type]
     transfer_angles: tuple[Angle, ...] = (0.0,)  # type: ignore[valid-type]
     power_flows: tuple[PowerFlow, ...] = ()
+
+    @model_validator(mode="after")
+    def _check(self) -> LoadData:
+        if not 0 <= self.load_angle_max < math.pi / 2:
+            raise ValueError(f"load_angle_max must be at least 0 deg and below 90 deg, not "
+                             f"{math.degrees(self.load_angle_max):g} deg")
+        return self
 
 
 class SourceCase(_Model):

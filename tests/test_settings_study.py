@@ -105,3 +105,27 @@ def test_zone1_follows_reach_study_when_budget_is_large(variant):
     assert rec == pytest.approx(int(100 / (1 + (budget + max(e, 0)) / 100) * 2) / 2)
     assert res.settings.zone("zone1").reach_pct == pytest.approx(rec)
     assert "zone1_reduced_by_reach_study" in res.settings.warning_ids()
+
+
+def test_settings_error_names_the_study_field(capsys, tmp_path, variant):
+    # A load angle of 95 deg breaks the rule 0 <= angle < 90 deg; the message must name the
+    # study file's field and speak in degrees.
+    err = _run_bad(capsys, tmp_path, variant(DEMO, lambda d: d["load"].update(
+        load_angle_max="95 deg")))
+    assert "load" in err and "below 90 deg, not 95 deg" in err
+
+
+def test_settings_input_errors_are_readdressed_to_study_fields():
+    from relayset.errors import InputError
+    from relayset.studies.settings import _in_study_terms
+
+    exc = _in_study_terms(InputError("must be > 0", field="tower_footing_ohm", value=-1,
+                                     source="<settings inputs>"), "line.toml")
+    assert str(exc) == ("line.toml: fault_resistance.tower_footing_resistance = -1: "
+                        "must be > 0")
+
+
+def test_min_voltage_accepts_pu_text(variant):
+    res = study_settings(variant(DEMO, lambda d: d["load"].update(min_voltage="0.9 pu")))
+    # Z_load,min = (0.9 x 132 kV)^2 / 160 MVA = 88.209 ohm (identity)
+    assert res.settings.load.z_min_primary_ohm == pytest.approx((0.9 * 132e3) ** 2 / 160e6)

@@ -89,7 +89,15 @@ def run_settings(study: Study, geo: LineGeometry, params: LineParameters,
         e = er.arrangement("actual_plan").worst_bolted_overreach_at_remote_bus_pct
         worst = er.error_budget_pct + max(0.0, e)
     fr = study.fault_resistance
-    inputs = SettingsInputs(
+    try:
+        return compute_settings(_inputs(study, geo, params, circ, k0, src_relay, src_remote,
+                                        rec, worst, fr, source), philosophy)
+    except InputError as exc:
+        raise _in_study_terms(exc, source) from None
+
+
+def _inputs(study, geo, params, circ, k0, src_relay, src_remote, rec, worst, fr, source):
+    return SettingsInputs(
         z1_line_ohm=study.relay.z1_set if study.relay.z1_set is not None else circ.z1_ohm,
         z0_line_ohm=circ.z0_ohm,
         length_m=geo.length_m,
@@ -111,7 +119,26 @@ def run_settings(study: Study, geo: LineGeometry, params: LineParameters,
         recommended_zone1_pct=rec,
         worst_overreach_pct=worst,
     )
-    try:
-        return compute_settings(inputs, philosophy)
-    except InputError as exc:
-        raise exc.located(source=source) from None
+
+
+#: Names of the settings inputs in the study file, for error messages.
+_STUDY_FIELDS = {
+    "ct_ratio": "relay.ct_ratio",
+    "vt_ratio": "relay.vt_ratio",
+    "z1_line_ohm": "relay.z1_set",
+    "k0": "relay.k0_set",
+    "s_max_va": "load.max_apparent_power",
+    "v_min_pu": "load.min_voltage",
+    "load_angle_max_rad": "load.load_angle_max",
+    "adjacent_lines": "adjacent_lines",
+    "reverse_lines": "lines_behind",
+    "tower_footing_ohm": "fault_resistance.tower_footing_resistance",
+    "arc_length_phase_m": "fault_resistance.arc_length",
+}
+
+
+def _in_study_terms(exc: InputError, source: str) -> InputError:
+    """The settings error re-addressed to the study file and its field."""
+    base, bracket, rest = exc.field.partition("[")
+    field = _STUDY_FIELDS.get(base, base) + bracket + rest
+    return InputError(exc.rule, field=field, value=exc.value, source=source)
