@@ -11,7 +11,7 @@ from __future__ import annotations
 
 import cmath
 import math
-from dataclasses import dataclass, field
+from dataclasses import dataclass
 from typing import Any
 
 import numpy as np
@@ -214,7 +214,6 @@ class StudyResults:
     settings: Any | None = None  #: SettingsResult when computed
     philosophy: dict[str, Any] | None = None  #: the setting philosophy applied
     caution: str = CAUTION
-    warnings: tuple[str, ...] = field(default_factory=tuple)
 
     def to_dict(self) -> dict[str, Any]:
         d: dict[str, Any] = {

@@ -155,27 +155,3 @@ def parse_ratio(value: Any) -> float:
     if ratio <= 0:
         raise UnitRuleError("a ratio must be greater than zero")
     return ratio
-
-
-def ratio_sides(value: str | float) -> tuple[float, float]:
-    """Primary and secondary sides of a ratio text (secondary 1 for a bare number)."""
-    if isinstance(value, str):
-        m = re.match(rf"^\s*({_NUM})\s*(?:/|:)\s*({_NUM})", value)
-        if m:
-            return float(m.group(1)), float(m.group(2))
-    return float(value), 1.0
-
-
-# Output unit systems: a factor from SI to the shown unit and the unit's label.
-OUTPUT_UNITS: dict[str, dict[str, tuple[float, str]]] = {
-    "si": {
-        "per_length": (1e3, "km"),  # multiply a per-metre value by this to get per km
-        "length": (1e-3, "km"),
-        "height": (1.0, "m"),
-    },
-    "us": {
-        "per_length": (1609.344, "mi"),
-        "length": (1 / 1609.344, "mi"),
-        "height": (1 / 0.3048, "ft"),
-    },
-}

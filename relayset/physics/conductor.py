@@ -187,8 +187,3 @@ def bundle_equivalent_gmr_m(gmr_m: float, count: int, spacing_m: float) -> float
         return gmr_m
     a = spacing_m / (2 * math.sin(math.pi / count))
     return float((count * gmr_m * a ** (count - 1)) ** (1.0 / count))
-
-
-def bundle_equivalent_radius_m(radius_m: float, count: int, spacing_m: float) -> float:
-    """Equivalent radius of a symmetric bundle for capacitance (the GMR formula with r)."""
-    return bundle_equivalent_gmr_m(radius_m, count, spacing_m)
