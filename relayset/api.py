@@ -15,10 +15,10 @@ from importlib.metadata import PackageNotFoundError, version
 from pathlib import Path
 from typing import Any
 
-from relayset.results import StudyResults
+from relayset.inputs.study_file import Study, parse_study, read_toml
+from relayset.results.study import StudyResults
 from relayset.studies.geometry import build_geometry
 from relayset.studies.parameters import compute_parameters
-from relayset.study_file import Study, parse_study, read_toml
 
 
 def relayset_version() -> str:

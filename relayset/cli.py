@@ -57,7 +57,7 @@ def _run(args) -> int:
     from relayset.report import text
 
     if args.command == "conductors":
-        from relayset.conductors import builtin_table
+        from relayset.inputs.conductors import builtin_table
 
         for key, e in builtin_table().items():
             aliases = ", ".join(e.get("aliases", []))

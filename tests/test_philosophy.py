@@ -9,7 +9,7 @@ import pytest
 from pydantic import ValidationError
 
 from relayset.errors import InputError
-from relayset.philosophy import default_philosophy, load_philosophy, philosophy_from_dict
+from relayset.inputs.philosophy import default_philosophy, load_philosophy, philosophy_from_dict
 
 
 def _write(tmp_path, text):

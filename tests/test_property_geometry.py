@@ -12,9 +12,9 @@ from hypothesis import HealthCheck, given, settings
 from hypothesis import strategies as st
 
 from relayset.errors import InputError
+from relayset.inputs.study_file import parse_study
 from relayset.studies.geometry import build_geometry
 from relayset.studies.parameters import compute_parameters
-from relayset.study_file import parse_study
 
 metres = st.floats(min_value=-40, max_value=60) | st.sampled_from([float("nan"), float("inf")])
 

@@ -8,8 +8,8 @@ import pytest
 
 from relayset.api import study_reach
 from relayset.cli import main
+from relayset.inputs.study_file import parse_study
 from relayset.physics.constants import MU0_H_PER_M
-from relayset.study_file import parse_study
 
 from tomlwrite import dump_toml
 

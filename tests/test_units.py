@@ -10,7 +10,7 @@ import math
 
 import pytest
 
-from relayset.units import UnitRuleError, parse_complex, parse_ratio, parse_real
+from relayset.inputs.units import UnitRuleError, parse_complex, parse_ratio, parse_real
 
 
 @pytest.mark.parametrize(("text", "kind", "si"), [

@@ -7,10 +7,10 @@ from dataclasses import dataclass
 
 import numpy as np
 
-from relayset import conductors as cond
 from relayset.errors import InputError
+from relayset.inputs import conductors as cond
+from relayset.inputs.study_file import Study
 from relayset.physics.conductor import bundle_offsets_m
-from relayset.study_file import Study
 
 #: Conductors closer than this (surface to surface) are taken as overlapping.
 _MIN_CLEARANCE_M = 0.0

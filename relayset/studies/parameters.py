@@ -14,7 +14,7 @@ from relayset.physics.sequence import (
     to_sequence,
     unbalance_factors,
 )
-from relayset.results import K0, Arrangement, CircuitSequence, LineParameters
+from relayset.results.parameters import K0, Arrangement, CircuitSequence, LineParameters
 from relayset.studies.geometry import LineGeometry
 
 

@@ -11,174 +11,25 @@ from __future__ import annotations
 import cmath
 import math
 import warnings
-from dataclasses import dataclass
-from typing import Any
 
 import numpy as np
 
 from relayset.errors import InputError, suggest
+from relayset.inputs.study_file import Study
 from relayset.physics import measurement, network, transposition
-from relayset.results import LineParameters, cplx, polar
+from relayset.results.parameters import LineParameters
+from relayset.results.reach import (
+    ArrangementReach,
+    EndReach,
+    LoopSummary,
+    ReachStudyResult,
+    WorstCase,
+)
+from relayset.results.serialize import cplx
 from relayset.studies.geometry import LineGeometry
-from relayset.study_file import Study
 
 LOOPS = ("AG", "BG", "CG", "AB", "BC", "CA")
 _LOOP_PHASES = {"AG": (0,), "BG": (1,), "CG": (2,), "AB": (0, 1), "BC": (1, 2), "CA": (2, 0)}
-
-
-@dataclass(frozen=True)
-class WorstCase:
-    """One extreme of the reach error and the case that produced it."""
-
-    error_pct: float
-    fault_type: str
-    m: float
-    r_fault_ohm: float
-    source_case: str
-    transfer_angle_deg: float
-    positions: tuple[str, ...]  #: tower positions of the loop's phases at the fault
-
-    def to_dict(self) -> dict[str, Any]:
-        return {
-            "error_pct": self.error_pct,
-            "fault_type": self.fault_type,
-            "location_pct": 100 * self.m,
-            "r_fault_ohm": self.r_fault_ohm,
-            "source_case": self.source_case,
-            "transfer_angle_deg": self.transfer_angle_deg,
-            "positions": list(self.positions),
-        }
-
-
-@dataclass(frozen=True)
-class LoopSummary:
-    """Worst reach errors of one measuring loop (only faults that loop is meant to see)."""
-
-    loop: str  #: in the study's phase labels, e.g. "AG", "R-Y"
-    over_at_reach: WorstCase | None  #: worst overreach at the zone 1 reach point, bolted
-    under_at_reach: WorstCase | None
-    over_line: WorstCase | None  #: worst overreach anywhere on the line, bolted
-    under_line: WorstCase | None
-    over_at_remote_bus: WorstCase | None  #: bolted, m = 1: what zone 1 must stay short of
-    #: worst reactance overreach at the zone 1 reach point for faults with Rf > 0
-    reactance_over_resistive: WorstCase | None
-
-    def to_dict(self) -> dict[str, Any]:
-        def d(w):
-            return None if w is None else w.to_dict()
-
-        return {
-            "loop": self.loop,
-            "worst_overreach_at_zone1_reach": d(self.over_at_reach),
-            "worst_underreach_at_zone1_reach": d(self.under_at_reach),
-            "worst_overreach_on_line": d(self.over_line),
-            "worst_underreach_on_line": d(self.under_line),
-            "worst_overreach_at_remote_bus": d(self.over_at_remote_bus),
-            "worst_reactance_overreach_at_zone1_reach_resistive": d(self.reactance_over_resistive),
-        }
-
-
-@dataclass(frozen=True)
-class ArrangementReach:
-    """Reach-error results of one transposition arrangement for one relay end."""
-
-    arrangement: str
-    mutual_compensation: bool
-    loops: tuple[LoopSummary, ...]
-    worst_bolted_overreach_at_remote_bus_pct: float
-    worst_bolted_overreach_on_line_pct: float
-    worst_bolted_underreach_on_line_pct: float
-    envelope_m: np.ndarray  #: (M,) locations
-    envelope_max_pct: np.ndarray  #: (6, M) bolted, max over types/sources/loads, per loop
-    envelope_min_pct: np.ndarray
-
-    def to_dict(self) -> dict[str, Any]:
-        return {
-            "arrangement": self.arrangement,
-            "mutual_compensation": self.mutual_compensation,
-            "worst_bolted_overreach_at_remote_bus_pct":
-                self.worst_bolted_overreach_at_remote_bus_pct,
-            "worst_bolted_overreach_on_line_pct": self.worst_bolted_overreach_on_line_pct,
-            "worst_bolted_underreach_on_line_pct": self.worst_bolted_underreach_on_line_pct,
-            "loops": [lp.to_dict() for lp in self.loops],
-            "envelope": {
-                "location_pct": (100 * self.envelope_m).tolist(),
-                "loops": [lp.loop for lp in self.loops],
-                "bolted_reach_error_max_pct": self.envelope_max_pct.tolist(),
-                "bolted_reach_error_min_pct": self.envelope_min_pct.tolist(),
-            },
-        }
-
-
-@dataclass(frozen=True)
-class EndReach:
-    """Everything the study found for the relay at one line end."""
-
-    end: str
-    z1_set_ohm: complex
-    k0_set: complex
-    k0m_set: complex | None
-    zone1_reach_pct: float
-    error_budget_pct: float
-    recommended_zone1_pct: float
-    governing_loop: str
-    governing_case: WorstCase | None
-    arrangements: tuple[ArrangementReach, ...]
-
-    def arrangement(self, name: str, mutual: bool | None = None) -> ArrangementReach:
-        for a in self.arrangements:
-            if a.arrangement == name and (mutual is None or a.mutual_compensation == mutual):
-                return a
-        raise KeyError(name)
-
-    def to_dict(self) -> dict[str, Any]:
-        return {
-            "end": self.end,
-            "z1_set_ohm": cplx(self.z1_set_ohm),
-            "k0_set": polar(self.k0_set),
-            "k0m_set": None if self.k0m_set is None else polar(self.k0m_set),
-            "zone1_reach_pct": self.zone1_reach_pct,
-            "error_budget_pct": self.error_budget_pct,
-            "recommended_zone1_pct": self.recommended_zone1_pct,
-            "governing_loop": self.governing_loop,
-            "governing_case": None if self.governing_case is None
-            else self.governing_case.to_dict(),
-            "arrangements": [a.to_dict() for a in self.arrangements],
-        }
-
-
-@dataclass(frozen=True)
-class ReachStudyResult:
-    """The reach study of one line: sweep axes, and per relay end the condensed results."""
-
-    fault_types: tuple[str, ...]
-    locations_pct: tuple[float, ...]
-    fault_resistances_ohm: tuple[float, ...]
-    phase_fault_resistance_ohm: float
-    source_cases: tuple[tuple[str, float], ...]
-    transfer_angles_deg: tuple[float, ...]
-    parallel_circuit: str | None
-    shunt_capacitance: bool
-    source_impedances: dict[str, dict[str, list[float]]]
-    ends: tuple[EndReach, ...]
-    n_cases: int
-    notes: tuple[str, ...]
-
-    def to_dict(self) -> dict[str, Any]:
-        return {
-            "fault_types": list(self.fault_types),
-            "location_step_pct": self.locations_pct[1] - self.locations_pct[0],
-            "fault_resistances_ohm": list(self.fault_resistances_ohm),
-            "phase_fault_resistance_ohm": self.phase_fault_resistance_ohm,
-            "source_cases": [{"name": n, "scale": s} for n, s in self.source_cases],
-            "transfer_angles_deg": list(self.transfer_angles_deg),
-            "parallel_circuit": self.parallel_circuit,
-            "shunt_capacitance": self.shunt_capacitance,
-            "source_impedances_ohm": self.source_impedances,
-            "cases_solved": self.n_cases,
-            "ends": [e.to_dict() for e in self.ends],
-            "notes": list(self.notes),
-        }
 
 
 def build_source(study: Study, name: str, source: str) -> network.Source | None:

@@ -6,12 +6,14 @@ import math
 from pathlib import Path
 
 from relayset.errors import InputError
-from relayset.philosophy import Philosophy, default_philosophy, load_philosophy
-from relayset.results import LineParameters
-from relayset.settings_calc import SettingsInputs, SettingsResult, compute_settings
+from relayset.inputs.philosophy import Philosophy, default_philosophy, load_philosophy
+from relayset.inputs.study_file import Study
+from relayset.results.parameters import LineParameters
+from relayset.results.reach import ReachStudyResult
+from relayset.results.settings import SettingsResult
+from relayset.settings.calc import SettingsInputs, compute_settings
 from relayset.studies.geometry import LineGeometry
-from relayset.studies.reach import ReachStudyResult, build_source
-from relayset.study_file import Study
+from relayset.studies.reach import build_source
 
 #: Insulator flashover length per kV of nominal voltage for the ground-fault arc when the
 #: study gives none [m/kV] (common practice, no source: about 1.3 m at 132 kV).

@@ -1,4 +1,4 @@
-"""The results model: frozen dataclasses that hold every computed number of a study.
+"""Line-parameter results: frozen dataclasses of every computed line quantity.
 
 One model serves the console summary, the JSON export, the report templates and a later
 recomputation check: none of them recomputes anything, they only read these objects (or the
@@ -17,25 +17,7 @@ from typing import Any
 import numpy as np
 
 from relayset.physics.longline import LongLineEquivalent
-
-PER_KM = 1e3
-
-
-def cplx(z: complex, scale: float = 1.0) -> list[float]:
-    """A complex number as [re, im] (JSON has no complex type)."""
-    z = complex(z) * scale
-    return [float(z.real), float(z.imag)]
-
-
-def polar(z: complex) -> dict[str, float]:
-    """A complex number as {magnitude, angle_deg}."""
-    return {"magnitude": float(abs(z)), "angle_deg": float(math.degrees(cmath.phase(z)))}
-
-
-def matrix(m: np.ndarray, scale: float = 1.0) -> dict[str, list[list[float]]]:
-    """A complex matrix as {"re": rows, "im": rows}."""
-    m = np.asarray(m, dtype=complex) * scale
-    return {"re": m.real.tolist(), "im": m.imag.tolist()}
+from relayset.results.serialize import PER_KM, cplx, matrix, polar
 
 
 @dataclass(frozen=True)
@@ -191,43 +173,3 @@ class LineParameters:
             "arrangements": {k: a.to_dict() for k, a in self.arrangements.items()},
             "assumptions": list(self.assumptions),
         }
-
-
-CAUTION = (
-    "This calculation must be reviewed and approved by a licensed professional engineer "
-    "before use. Local codes, the utility's setting philosophy and the relay manufacturer's "
-    "instructions prevail over anything computed here."
-)
-
-
-@dataclass(frozen=True)
-class StudyResults:
-    """The whole study: its identity, the input basis and every result, read-only."""
-
-    relayset_version: str
-    source_file: str
-    source_sha256: str
-    study_input: dict[str, Any]  #: the study file as read (TOML tables), for the archive
-    identity: dict[str, Any]
-    parameters: LineParameters
-    reach: Any | None = None  #: ReachStudyResult when computed
-    settings: Any | None = None  #: SettingsResult when computed
-    philosophy: dict[str, Any] | None = None  #: the setting philosophy applied
-    caution: str = CAUTION
-
-    def to_dict(self) -> dict[str, Any]:
-        d: dict[str, Any] = {
-            "relayset_version": self.relayset_version,
-            "caution": self.caution,
-            "source_file": self.source_file,
-            "source_sha256": self.source_sha256,
-            "study": self.identity,
-            "parameters": self.parameters.to_dict(),
-        }
-        if self.reach is not None:
-            d["reach_study"] = self.reach.to_dict()
-        if self.settings is not None:
-            d["settings"] = self.settings.to_dict()
-            d["philosophy"] = self.philosophy
-        d["input"] = self.study_input
-        return d

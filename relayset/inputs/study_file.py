@@ -15,8 +15,8 @@ from typing import Annotated, Any, Literal
 
 from pydantic import BaseModel, BeforeValidator, ConfigDict, Field, ValidationError, model_validator
 
-from relayset import units
 from relayset.errors import InputError, suggest
+from relayset.inputs import units
 
 SCHEMA = "relayset-study/1"
 

@@ -1,0 +1,1 @@
+"""Inputs parsed and validated at the edge: study file, philosophy, conductors, units."""

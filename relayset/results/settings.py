@@ -1,0 +1,276 @@
+"""Settings results: zone reaches, characteristics, checks and warnings of one relay."""
+
+from __future__ import annotations
+
+import cmath
+import math
+from dataclasses import dataclass, field
+from typing import Any
+
+import numpy as np
+
+from relayset.physics import zones as zp
+from relayset.results.parameters import K0
+
+
+@dataclass(frozen=True)
+class Check:
+    """One pass/fail check of a zone."""
+
+    check_id: str
+    passed: bool
+    detail: str
+
+
+@dataclass(frozen=True)
+class SettingWarning:
+    """Something the engineer should look at: a rule id, what happened, what to consider."""
+
+    rule_id: str
+    message: str
+    consider: str
+
+
+@dataclass(frozen=True)
+class ZoneSetting:
+    """One zone's reach, delay, characteristic and checks (impedances [ohm], angles [rad])."""
+
+    zone: str
+    label: str
+    direction: str
+    rule: str
+    reach_primary_ohm: complex
+    reach_secondary_ohm: complex
+    reach_pct: float
+    delay_s: float
+    shape: str
+    infeed_factor: complex | None
+    # mho
+    char_angle_rad: float | None
+    mho_diameter_primary_ohm: float | None
+    mho_diameter_secondary_ohm: float | None
+    # quadrilateral
+    x_reach_primary_ohm: float | None
+    x_reach_secondary_ohm: float | None
+    r_reach_phase_primary_ohm: float | None
+    r_reach_phase_secondary_ohm: float | None
+    r_reach_ground_primary_ohm: float | None
+    r_reach_ground_secondary_ohm: float | None
+    arc_resistance_phase_ohm: float | None
+    arc_resistance_ground_ohm: float | None
+    # load
+    load_reach_pct_of_min: float
+    checks: tuple[Check, ...] = ()
+
+    def contains(self, z_primary_ohm: complex | np.ndarray, line_angle_rad: float) -> np.ndarray:
+        """Whether primary impedances lie inside this zone's characteristic."""
+        if self.shape == "mho":
+            return zp.mho_contains(z_primary_ohm, self.mho_diameter_primary_ohm,
+                                   self.char_angle_rad)
+        forward = self.direction == "forward"
+        return zp.quad_contains(z_primary_ohm, self.x_reach_primary_ohm,
+                                self.r_reach_phase_primary_ohm, line_angle_rad,
+                                forward=forward) | zp.quad_contains(
+            z_primary_ohm, self.x_reach_primary_ohm, self.r_reach_ground_primary_ohm,
+            line_angle_rad, forward=forward)
+
+
+@dataclass(frozen=True)
+class LoadCheck:
+    """Minimum load impedance [ohm] and the limits used."""
+
+    z_min_primary_ohm: float
+    z_min_secondary_ohm: float
+    load_angle_max_rad: float
+    encroachment_limit_pct: float
+    r_limit_primary_ohm: float | None
+
+
+@dataclass(frozen=True)
+class SourceEnd:
+    """SIR and IEEE Std C37.113 line class at one end."""
+
+    end: str
+    z_source_ohm: complex
+    sir: float
+    line_class: str
+
+
+@dataclass(frozen=True)
+class SettingsResult:
+    """Computed distance-zone settings."""
+
+    line_z1_primary_ohm: complex
+    line_z1_secondary_ohm: complex
+    line_angle_rad: float
+    length_m: float
+    secondary_factor: float
+    zones: tuple[ZoneSetting, ...]
+    k0: K0
+    k0m: complex | None
+    load: LoadCheck
+    sources: tuple[SourceEnd, ...]
+    arc_current_a: float | None
+    warnings: tuple[SettingWarning, ...] = field(default=())
+
+    def zone(self, name: str) -> ZoneSetting:
+        """The zone called ``"zone1"``, ``"zone2"``, ``"zone3"`` or ``"reverse"``."""
+        for z in self.zones:
+            if z.zone == name:
+                return z
+        raise KeyError(name)
+
+    def warning_ids(self) -> list[str]:
+        """The rule ids of the warnings, in order."""
+        return [w.rule_id for w in self.warnings]
+
+    def to_dict(self) -> dict[str, Any]:
+        """JSON-ready nested data; complex values as ``[re, im]``."""
+        zones = {}
+        for z in self.zones:
+            zones[z.zone] = {
+                "label": z.label,
+                "direction": z.direction,
+                "rule": z.rule,
+                "reach_primary_ohm": _c(z.reach_primary_ohm),
+                "reach_primary_magnitude_ohm": abs(z.reach_primary_ohm),
+                "reach_secondary_ohm": _c(z.reach_secondary_ohm),
+                "reach_secondary_magnitude_ohm": abs(z.reach_secondary_ohm),
+                "reach_angle_deg": math.degrees(cmath.phase(z.reach_primary_ohm)),
+                "reach_pct": z.reach_pct,
+                "delay_s": z.delay_s,
+                "shape": z.shape,
+                "infeed_factor": _c(z.infeed_factor),
+                "char_angle_deg": _deg(z.char_angle_rad),
+                "mho_diameter_primary_ohm": z.mho_diameter_primary_ohm,
+                "mho_diameter_secondary_ohm": z.mho_diameter_secondary_ohm,
+                "x_reach_primary_ohm": z.x_reach_primary_ohm,
+                "x_reach_secondary_ohm": z.x_reach_secondary_ohm,
+                "r_reach_phase_primary_ohm": z.r_reach_phase_primary_ohm,
+                "r_reach_phase_secondary_ohm": z.r_reach_phase_secondary_ohm,
+                "r_reach_ground_primary_ohm": z.r_reach_ground_primary_ohm,
+                "r_reach_ground_secondary_ohm": z.r_reach_ground_secondary_ohm,
+                "arc_resistance_phase_ohm": z.arc_resistance_phase_ohm,
+                "arc_resistance_ground_ohm": z.arc_resistance_ground_ohm,
+                "load_reach_pct_of_min": z.load_reach_pct_of_min,
+                "checks": [
+                    {"check_id": c.check_id, "passed": c.passed, "detail": c.detail}
+                    for c in z.checks
+                ],
+            }
+        k = self.k0
+        return {
+            "line": {
+                "z1_primary_ohm": _c(self.line_z1_primary_ohm),
+                "z1_secondary_ohm": _c(self.line_z1_secondary_ohm),
+                "angle_deg": math.degrees(self.line_angle_rad),
+                "length_m": self.length_m,
+                "secondary_factor": self.secondary_factor,
+            },
+            "k0": {
+                "k0": _c(k.k0),
+                "k0_magnitude": abs(k.k0),
+                "k0_angle_deg": math.degrees(cmath.phase(k.k0)),
+                "kr": k.kr,
+                "kx": k.kx,
+                "z0_over_z1": _c(k.z0_over_z1),
+                "z0_over_z1_magnitude": abs(k.z0_over_z1),
+                "z0_over_z1_angle_deg": math.degrees(cmath.phase(k.z0_over_z1)),
+            },
+            "k0m": None if self.k0m is None else {
+                "k0m": _c(self.k0m),
+                "k0m_magnitude": abs(self.k0m),
+                "k0m_angle_deg": math.degrees(cmath.phase(self.k0m)),
+            },
+            "load": {
+                "z_min_primary_ohm": self.load.z_min_primary_ohm,
+                "z_min_secondary_ohm": self.load.z_min_secondary_ohm,
+                "load_angle_max_deg": math.degrees(self.load.load_angle_max_rad),
+                "encroachment_limit_pct": self.load.encroachment_limit_pct,
+                "r_limit_primary_ohm": self.load.r_limit_primary_ohm,
+            },
+            "sources": [
+                {"end": s.end, "z_source_ohm": _c(s.z_source_ohm), "sir": s.sir,
+                 "line_class": s.line_class}
+                for s in self.sources
+            ],
+            "arc_current_a": self.arc_current_a,
+            "zones": zones,
+            "warnings": [
+                {"rule_id": w.rule_id, "message": w.message, "consider": w.consider}
+                for w in self.warnings
+            ],
+        }
+
+    def rows(self) -> list[tuple[str, float | str, str]]:
+        """Settings as (name, value, unit) rows with descriptive, vendor-neutral names."""
+        ohm, deg = "Ω", "°"
+        k = self.k0
+        rows: list[tuple[str, float | str, str]] = [
+            ("Line positive-sequence impedance, primary", abs(self.line_z1_primary_ohm), ohm),
+            ("Line positive-sequence impedance, secondary", abs(self.line_z1_secondary_ohm), ohm),
+            ("Line angle", math.degrees(self.line_angle_rad), deg),
+            ("Residual compensation factor k0, magnitude", abs(k.k0), ""),
+            ("Residual compensation factor k0, angle", math.degrees(cmath.phase(k.k0)), deg),
+            ("Residual compensation, resistive part (R0−R1)/(3R1)", k.kr, ""),
+            ("Residual compensation, reactive part (X0−X1)/(3X1)", k.kx, ""),
+            ("Zero- to positive-sequence ratio Z0/Z1, magnitude", abs(k.z0_over_z1), ""),
+            ("Zero- to positive-sequence ratio Z0/Z1, angle",
+             math.degrees(cmath.phase(k.z0_over_z1)), deg),
+        ]
+        if self.k0m is not None:
+            rows += [
+                ("Mutual compensation factor k0m, magnitude", abs(self.k0m), ""),
+                ("Mutual compensation factor k0m, angle", math.degrees(cmath.phase(self.k0m)),
+                 deg),
+            ]
+        for z in self.zones:
+            n = z.label
+            rows += [
+                (f"{n} direction", z.direction, ""),
+                (f"{n} reach, primary", abs(z.reach_primary_ohm), ohm),
+                (f"{n} reach, secondary", abs(z.reach_secondary_ohm), ohm),
+                (f"{n} reach angle", math.degrees(cmath.phase(z.reach_primary_ohm)), deg),
+                (f"{n} reach, percent of line", z.reach_pct, "%"),
+                (f"{n} time delay", z.delay_s, "s"),
+            ]
+            if z.shape == "mho":
+                rows += [
+                    (f"{n} mho diameter, primary", z.mho_diameter_primary_ohm, ohm),
+                    (f"{n} mho diameter, secondary", z.mho_diameter_secondary_ohm, ohm),
+                    (f"{n} mho characteristic angle", math.degrees(z.char_angle_rad), deg),
+                ]
+            else:
+                rows += [
+                    (f"{n} reactive reach, primary", z.x_reach_primary_ohm, ohm),
+                    (f"{n} reactive reach, secondary", z.x_reach_secondary_ohm, ohm),
+                    (f"{n} resistive reach, phase loops, primary", z.r_reach_phase_primary_ohm,
+                     ohm),
+                    (f"{n} resistive reach, phase loops, secondary",
+                     z.r_reach_phase_secondary_ohm, ohm),
+                    (f"{n} resistive reach, ground loops, primary",
+                     z.r_reach_ground_primary_ohm, ohm),
+                    (f"{n} resistive reach, ground loops, secondary",
+                     z.r_reach_ground_secondary_ohm, ohm),
+                    (f"{n} resistive blinder angle", math.degrees(self.line_angle_rad), deg),
+                ]
+        rows += [
+            ("Minimum load impedance, primary", self.load.z_min_primary_ohm, ohm),
+            ("Minimum load impedance, secondary", self.load.z_min_secondary_ohm, ohm),
+            ("Maximum load angle", math.degrees(self.load.load_angle_max_rad), deg),
+        ]
+        for s in self.sources:
+            rows += [
+                (f"Source-to-line impedance ratio (SIR), {s.end} end", s.sir, ""),
+                (f"Line class by SIR (IEEE Std C37.113), {s.end} end", s.line_class, ""),
+            ]
+        return rows
+
+
+def _c(z: complex | None) -> list[float] | None:
+    """A complex value as [re, im], the project's JSON convention."""
+    return None if z is None else [float(z.real), float(z.imag)]
+
+
+def _deg(x: float | None) -> float | None:
+    return None if x is None else math.degrees(x)

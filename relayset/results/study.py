@@ -1,0 +1,49 @@
+"""The whole study's results: identity, input basis and every result, read-only."""
+
+from __future__ import annotations
+
+from dataclasses import dataclass
+from typing import Any
+
+from relayset.results.parameters import LineParameters
+from relayset.results.reach import ReachStudyResult
+from relayset.results.settings import SettingsResult
+
+CAUTION = (
+    "This calculation must be reviewed and approved by a licensed professional engineer "
+    "before use. Local codes, the utility's setting philosophy and the relay manufacturer's "
+    "instructions prevail over anything computed here."
+)
+
+
+@dataclass(frozen=True)
+class StudyResults:
+    """The whole study: its identity, the input basis and every result, read-only."""
+
+    relayset_version: str
+    source_file: str
+    source_sha256: str
+    study_input: dict[str, Any]  #: the study file as read (TOML tables), for the archive
+    identity: dict[str, Any]
+    parameters: LineParameters
+    reach: ReachStudyResult | None = None
+    settings: SettingsResult | None = None
+    philosophy: dict[str, Any] | None = None  #: the setting philosophy applied
+    caution: str = CAUTION
+
+    def to_dict(self) -> dict[str, Any]:
+        d: dict[str, Any] = {
+            "relayset_version": self.relayset_version,
+            "caution": self.caution,
+            "source_file": self.source_file,
+            "source_sha256": self.source_sha256,
+            "study": self.identity,
+            "parameters": self.parameters.to_dict(),
+        }
+        if self.reach is not None:
+            d["reach_study"] = self.reach.to_dict()
+        if self.settings is not None:
+            d["settings"] = self.settings.to_dict()
+            d["philosophy"] = self.philosophy
+        d["input"] = self.study_input
+        return d

@@ -1,0 +1,1 @@
+"""The setting rules: zone reaches, characteristics and checks under a philosophy."""
