@@ -12,13 +12,13 @@ import numpy as np
 import pytest
 
 from relayset.errors import InputError
+from relayset.physics.faults import FAULT_TYPES
 from relayset.physics.measurement import (
     loop_impedances,
     loops_for_fault,
     reach_error_pct,
     recommended_zone1_pct,
 )
-from relayset.physics.network import FAULT_TYPES
 
 
 def test_loop_impedances_invert_the_loop_equations():

@@ -1,4 +1,4 @@
-"""Tests of the phase-domain fault solver (relayset.physics.network).
+"""Tests of the phase-domain fault solver (relayset.physics.network, faults, loadflow, chain).
 
 Checks are identities from Kirchhoff's laws and Fortescue's transform, textbook line
 equations, or agreement between the batched solver and the independent per-case
@@ -13,19 +13,18 @@ import numpy as np
 import pytest
 
 from relayset.errors import InputError
+from relayset.physics.faults import FAULT_TYPES, fault_admittance, fault_constraints
+from relayset.physics.loadflow import emfs_for_load
 from relayset.physics.measurement import loop_impedances, loops_for_fault, reach_error_pct
 from relayset.physics.network import (
-    FAULT_TYPES,
     PARALLEL_STATES,
     LineCascade,
     Source,
-    emfs_for_load,
-    fault_admittance,
-    fault_constraints,
-    solve_fault_single,
     solve_fault_sweep,
 )
 from relayset.physics.sequence import balanced_phase_matrix, to_sequence
+
+from reference_solver import solve_fault_single
 
 V_NOM = 132e3
 OMEGA = 2 * math.pi * 50

@@ -16,7 +16,7 @@ import numpy as np
 
 from relayset.errors import InputError, suggest
 from relayset.inputs.study_file import Study
-from relayset.physics import measurement, network, transposition
+from relayset.physics import loadflow, measurement, network, transposition
 from relayset.results.parameters import LineParameters
 from relayset.results.reach import (
     ArrangementReach,
@@ -260,7 +260,7 @@ def run_reach_study(
 def _emfs_for_power_flows(study, line, src, names, relay_end, scales, parallel, v_nom):
     """EMFs of both sources for the P, Q load cases at the relay end (None: use angles).
 
-    The positive-sequence load flow of :func:`relayset.physics.network.emfs_for_load`
+    The positive-sequence load flow of :func:`relayset.physics.loadflow.emfs_for_load`
     fixes the relay-end voltage at nominal; seen from the far end the line is reversed.
     """
     if not (study.load and study.load.power_flows):
@@ -268,12 +268,12 @@ def _emfs_for_power_flows(study, line, src, names, relay_end, scales, parallel, 
     p = np.array([f.active_power for f in study.load.power_flows])
     q = np.array([f.reactive_power for f in study.load.power_flows])
     if relay_end == names[0]:
-        return network.emfs_for_load(line, src[names[0]], src[names[1]], v_nominal_v=v_nom,
+        return loadflow.emfs_for_load(line, src[names[0]], src[names[1]], v_nominal_v=v_nom,
                                      p_w=p, q_var=q, source_scale=scales,
                                      parallel_state=parallel)
     rev = network.LineCascade(line.z_ohm_per_m[::-1], line.length_m[::-1],
                               None if line.y_s_per_m is None else line.y_s_per_m[::-1])
-    e_r, e_s = network.emfs_for_load(rev, src[names[1]], src[names[0]], v_nominal_v=v_nom,
+    e_r, e_s = loadflow.emfs_for_load(rev, src[names[1]], src[names[0]], v_nominal_v=v_nom,
                                      p_w=p, q_var=q, source_scale=scales[..., ::-1]
                                      if np.ndim(scales) == 2 else scales,
                                      parallel_state=parallel)

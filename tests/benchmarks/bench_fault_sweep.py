@@ -17,16 +17,15 @@ from __future__ import annotations
 import itertools
 import sys
 import timeit
+from pathlib import Path
 
 import numpy as np
 
-from relayset.physics.network import (
-    FAULT_TYPES,
-    LineCascade,
-    Source,
-    solve_fault_single,
-    solve_fault_sweep,
-)
+from relayset.physics.faults import FAULT_TYPES
+from relayset.physics.network import LineCascade, Source, solve_fault_sweep
+
+sys.path.insert(0, str(Path(__file__).resolve().parents[1]))  # tests/: reference solver
+from reference_solver import solve_fault_single
 
 V_NOM = 132e3
 Z_ABC_KM = np.array(
