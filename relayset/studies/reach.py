@@ -65,6 +65,21 @@ def fault_label(fault_type: str, labels: tuple[str, str, str]) -> str:
     return "-".join(parts + (["G"] if fault_type.endswith("G") else []))
 
 
+#: Smallest location step [%] and largest number of fault cases a reach study accepts.
+MIN_STEP_PCT = 0.01
+MAX_CASES = 10_000_000
+
+
+def _same_cascade(a: network.LineCascade, b: network.LineCascade) -> bool:
+    """True when two cascades are the same line, so one sweep serves both: the same section
+    matrices, and section lengths equal to rounding (e.g. 9 mi each and 27 mi / 3)."""
+    if (a.y_s_per_m is None) != (b.y_s_per_m is None) or a.length_m.shape != b.length_m.shape:
+        return False
+    return (np.allclose(a.length_m, b.length_m, rtol=1e-12, atol=0)
+            and np.array_equal(a.z_ohm_per_m, b.z_ohm_per_m)
+            and (a.y_s_per_m is None or np.array_equal(a.y_s_per_m, b.y_s_per_m)))
+
+
 def _cascade(z_pos, y_pos, orders, lengths, shunt: bool) -> network.LineCascade:
     zs = transposition.section_matrices(z_pos, orders)
     ys = transposition.section_matrices(y_pos, orders) if shunt else None
@@ -181,10 +196,26 @@ def run_reach_study(
                    "r_fault_ohm": "reach_study.fault_resistances",
                    "r_phase_ohm": "reach_study.phase_fault_resistance",
                    "source_scale": "reach_study.source_cases"}
+    lines = {key: _cascade(params.z_position_ohm_per_m, params.y_position_s_per_m, ords, lens,
+                           rs.shunt_capacitance) for key, (ords, lens) in plans.items()}
+    # Identical arrangements (one-section line: actual plan = untransposed; ideal plan =
+    # ideal cycle) are solved once and reported under each name.
+    same_as: dict[str, str] = {}
+    for key, line in lines.items():
+        same_as[key] = next((k for k in same_as if same_as[k] == k
+                             and _same_cascade(lines[k], line)), key)
+    per_arrangement = len(rs.fault_types) * m.size * rf.size * scales.shape[0] * angles.size
+    n_distinct = len(set(same_as.values()))
+    if step < MIN_STEP_PCT or per_arrangement * n_distinct > MAX_CASES:
+        raise InputError(
+            f"asks for {per_arrangement * n_distinct:,} fault cases; the study allows a "
+            f"location step of at least {MIN_STEP_PCT:g} % and at most {MAX_CASES:,} cases",
+            field="reach_study.location_step_pct", value=step, source=source)
     sweeps = {}
-    for key, (ords, lens) in plans.items():
-        line = _cascade(params.z_position_ohm_per_m, params.y_position_s_per_m, ords, lens,
-                        rs.shunt_capacitance)
+    for key, line in lines.items():
+        if same_as[key] != key:
+            sweeps[key] = sweeps[same_as[key]]
+            continue
         try:
             emf = _emfs_for_power_flows(study, line, src, names, ends[0], scales, parallel,
                                         geo.v_nominal_v)
