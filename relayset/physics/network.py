@@ -50,7 +50,7 @@ References
 from __future__ import annotations
 
 import math
-from collections.abc import Mapping, Sequence
+from collections.abc import Collection, Mapping, Sequence
 from dataclasses import dataclass
 
 import numpy as np
@@ -61,7 +61,7 @@ from relayset.physics.faults import (
     FAULT_TYPES,
     check_fault_type,
     check_resistance,
-    fault_constraints,
+    fault_currents,
 )
 from relayset.physics.sequence import balanced_phase_matrix, fortescue_matrix
 
@@ -272,7 +272,8 @@ class FaultSweep:
     (phase A, B, C); prefault quantities ``(source_case, load_case, phase)``. Voltages are
     phase-to-ground phasors [V], currents phasors [A]; ``i_*`` at the line ends flow into
     the line from that bus, ``i_f_from_*`` flow into the fault point along circuit 1 from
-    that side, ``i_fault`` flows from the fault point into the fault.
+    that side, ``i_fault`` flows from the fault point into the fault. Results left out by
+    the ``outputs`` argument of :func:`solve_fault_sweep` are None.
     """
 
     fault_types: tuple[str, ...]
@@ -283,16 +284,16 @@ class FaultSweep:
     emf_s_v: np.ndarray  #: (K, L) phase-A EMF of source S [V]
     emf_r_v: np.ndarray  #: (K, L) phase-A EMF of source R [V]
     parallel_state: str
-    v_s: np.ndarray  #: bus S voltages
-    i_s: np.ndarray  #: circuit-1 currents at S
-    i_s_parallel: np.ndarray  #: circuit-2 currents at S (zeros for n = 3 / isolated)
-    v_r: np.ndarray
-    i_r: np.ndarray
-    i_r_parallel: np.ndarray
-    v_f: np.ndarray  #: circuit-1 voltages at the fault point
+    v_s: np.ndarray | None  #: bus S voltages
+    i_s: np.ndarray | None  #: circuit-1 currents at S
+    i_s_parallel: np.ndarray | None  #: circuit-2 currents at S (zeros for n = 3 / isolated)
+    v_r: np.ndarray | None
+    i_r: np.ndarray | None
+    i_r_parallel: np.ndarray | None
+    v_f: np.ndarray | None  #: circuit-1 voltages at the fault point
     i_fault: np.ndarray
-    i_f_from_s: np.ndarray
-    i_f_from_r: np.ndarray
+    i_f_from_s: np.ndarray | None
+    i_f_from_r: np.ndarray | None
     v_s_pre: np.ndarray  #: (K, L, 3) prefault bus S voltages
     i_s_pre: np.ndarray  #: (K, L, 3) prefault circuit-1 currents at S
     i_s_parallel_pre: np.ndarray  #: (K, L, 3)
@@ -482,6 +483,7 @@ def solve_fault_sweep(
     parallel_state: str = "in_service",
     emf_v: tuple[np.ndarray, np.ndarray] | None = None,
     field_names: Mapping[str, str] | None = None,
+    outputs: Collection[str] | None = None,
 ) -> FaultSweep:
     """Solve every combination of fault type, location, resistance, source and load case.
 
@@ -516,6 +518,9 @@ def solve_fault_sweep(
     field_names : mapping, optional
         Names to use in :class:`~relayset.errors.InputError` for the parameters above
         (e.g. ``{"m": "reach_study.fault_locations"}``).
+    outputs : collection of str, optional
+        Per-case results to form, from :data:`SWEEP_OUTPUTS` (default all); the others are
+        None in the result. ``i_fault`` and the prefault quantities are always formed.
 
     Returns
     -------
@@ -569,7 +574,8 @@ def solve_fault_sweep(
     rhs[..., 2 * n:2 * n + 3, n_l:] = z_ref * np.eye(3)  # unit current into each fault phase
     x = np.linalg.solve(a, rhs)  # (M, K, 3n, L + 3)
 
-    # Relay-end and fault-point quantities from x: rows of T (M, 7n, 3n).
+    # Rows of T (M, 7n, 3n) map x to the line-end and fault-point quantities; only the
+    # fault-point voltages and the requested outputs are formed.
     t = np.zeros((n_m, 7 * n, 3 * n), dtype=complex)
     t[:, 0:n, 0:n] = phi_l[:, :n, :n]
     t[:, 0:n, n:2 * n] = phi_l[:, :n, n:]
@@ -580,34 +586,47 @@ def solve_fault_sweep(
     t[:, 3 * n:4 * n, 0:n] = phi_r[:, n:, :n]
     t[:, 3 * n:4 * n, 2 * n:] = phi_r[:, n:, n:]
     t[:, 4 * n:, :] = np.eye(3 * n)
-    out = t[:, None] @ x  # (M, K, 7n, L + 3)
-    pre = out[..., :n_l]  # (M, K, 7n, L)
-    sens = out[..., n_l:]  # (M, K, 7n, 3) response to unit fault currents
-    vf_rows = slice(4 * n, 4 * n + 3)
-    z_th = -sens[..., vf_rows, :]  # (M, K, 3, 3)
-    v_pre = pre[..., vf_rows, :]  # (M, K, 3, L)
+    starts = {"v_s": 0, "i_s": n, "i_s_parallel": n + 3, "v_r": 2 * n, "i_r": 3 * n,
+              "i_r_parallel": 3 * n + 3, "v_f": 4 * n, "i_f_from_s": 5 * n,
+              "i_f_from_r": 6 * n}
+    wanted = _check_outputs(outputs, fn)
+    blocks = [k for k in starts if k in wanted and (n == 6 or not k.endswith("parallel"))]
+    rows = np.concatenate([np.arange(4 * n, 4 * n + 3)]
+                          + [np.arange(starts[k], starts[k] + 3) for k in blocks])
+    out = t[:, None, rows] @ x  # (M, K, 3 + 3B, L + 3)
+    z_th = -out[..., :3, n_l:]  # (M, K, 3, 3) Thevenin impedance at the fault point
+    v_pre = out[..., :3, :n_l]  # (M, K, 3, L) prefault voltages there
+    # Output blocks as (B, M, 1, K, L, 3) before and (B, M, 1, K, 1, 3) per unit current j.
+    pre_o = np.moveaxis(out[..., 3:, :n_l].reshape(n_m, n_k, len(blocks), 3, n_l),
+                        (2, 4), (0, 3))[:, :, None]
+    sens_o = np.moveaxis(out[..., 3:, n_l:].reshape(n_m, n_k, len(blocks), 3, 3),
+                         (2, 4), (0, 3))[:, :, None, :, None]  # (B, M, 1, K, 1, j, 3)
 
-    p_v = np.empty((len(ftypes), rf.size, 3, 3), dtype=complex)
-    p_i = np.empty_like(p_v)
-    for j, ft in enumerate(ftypes):  # loop over the (ten) fault types only
-        p_v[j], p_i[j] = fault_constraints(ft, rf, rp)
-    pv = p_v[:, None, :, None]  # (F, 1, Rf, 1, 3, 3)
-    mat = p_i[:, None, :, None] - pv @ z_th[None, :, None]  # (F, M, Rf, K, 3, 3)
-    try:
-        i_f = _solve3(mat, -(pv @ v_pre[None, :, None]))  # (F, M, Rf, K, 3, L)
-    except np.linalg.LinAlgError:
-        raise InputError(
-            "a bolted fault at a bus with zero source impedance has no finite current",
-            field=_name("source_scale", fn), value=scale.tolist(),
-        ) from None
-    res = pre[None, :, None] + sens[None, :, None] @ i_f  # (F, M, Rf, K, 7n, L)
-    res = np.swapaxes(res, -1, -2)
+    res = np.empty((len(blocks), len(ftypes), n_m, rf.size, n_k, n_l, 3), dtype=complex)
+    i_fault = np.zeros((len(ftypes), n_m, rf.size, n_k, n_l, 3), dtype=complex)
+    zt, vp = z_th[:, None], v_pre[:, None]  # broadcast over the fault resistances
+    rf_b, rp_b = rf[None, :, None], rp[None, :, None]
+    for f, ft in enumerate(ftypes):  # loop over the (ten) fault types only
+        try:
+            cur = fault_currents(ft, zt, vp, rf_b, rp_b)  # (M, Rf, K, L) per phase
+        except np.linalg.LinAlgError:
+            raise InputError(
+                "a bolted fault at a bus with zero source impedance has no finite current",
+                field=_name("source_scale", fn), value=scale.tolist(),
+            ) from None
+        tgt = res[:, f]
+        first = True
+        for j, c in enumerate(cur):
+            if c is None:
+                continue
+            i_fault[f, ..., j] = c
+            term = sens_o[..., j, :] * c[..., None]
+            np.add(pre_o if first else tgt, term, out=tgt)
+            first = False
 
-    def part(start: int, width: int = 3) -> np.ndarray:
-        return np.ascontiguousarray(res[..., start:start + width])
-
-    zeros = np.zeros((*res.shape[:-1], 3), dtype=complex)
-    pre0 = np.swapaxes(pre[0], -1, -2)  # (K, L, 7n); prefault does not depend on m
+    fields = {k: res[blocks.index(k)] if k in blocks else np.zeros_like(i_fault)
+              for k in starts if k in wanted}
+    pre0 = np.swapaxes(t[0, None, :2 * n] @ x[0, :, :, :n_l], -1, -2)  # (K, L, 2n)
     return FaultSweep(
         fault_types=ftypes,
         m=m,
@@ -617,16 +636,16 @@ def solve_fault_sweep(
         emf_s_v=e_s,
         emf_r_v=e_r,
         parallel_state=parallel_state,
-        v_s=part(0),
-        i_s=part(n),
-        i_s_parallel=part(n + 3) if n == 6 else zeros,
-        v_r=part(2 * n),
-        i_r=part(3 * n),
-        i_r_parallel=part(3 * n + 3) if n == 6 else zeros.copy(),
-        v_f=part(4 * n),
-        i_fault=np.ascontiguousarray(np.swapaxes(i_f, -1, -2)),
-        i_f_from_s=part(5 * n),
-        i_f_from_r=part(6 * n),
+        v_s=fields.get("v_s"),
+        i_s=fields.get("i_s"),
+        i_s_parallel=fields.get("i_s_parallel"),
+        v_r=fields.get("v_r"),
+        i_r=fields.get("i_r"),
+        i_r_parallel=fields.get("i_r_parallel"),
+        v_f=fields.get("v_f"),
+        i_fault=i_fault,
+        i_f_from_s=fields.get("i_f_from_s"),
+        i_f_from_r=fields.get("i_f_from_r"),
         v_s_pre=np.ascontiguousarray(pre0[..., 0:3]),
         i_s_pre=np.ascontiguousarray(pre0[..., n:n + 3]),
         i_s_parallel_pre=(
@@ -636,7 +655,20 @@ def solve_fault_sweep(
     )
 
 
-def _solve3(a: np.ndarray, b: np.ndarray) -> np.ndarray:
-    """Batched solve of 3x3 systems ``a @ x = b`` (b (..., 3, L))."""
-    return np.linalg.solve(a, b)
+#: Names of the per-case results of :func:`solve_fault_sweep` that ``outputs`` may select.
+SWEEP_OUTPUTS: tuple[str, ...] = (
+    "v_s", "i_s", "i_s_parallel", "v_r", "i_r", "i_r_parallel", "v_f", "i_f_from_s",
+    "i_f_from_r",
+)
+
+
+def _check_outputs(outputs: Collection[str] | None, fn: Mapping[str, str] | None) -> set[str]:
+    if outputs is None:
+        return set(SWEEP_OUTPUTS)
+    bad = [o for o in outputs if o not in SWEEP_OUTPUTS]
+    if bad:
+        raise InputError(f"unknown output; use some of {', '.join(SWEEP_OUTPUTS)}"
+                         + suggest(str(bad[0]), SWEEP_OUTPUTS),
+                         field=_name("outputs", fn), value=bad[0])
+    return set(outputs)
 
