@@ -624,7 +624,9 @@ def solve_fault_sweep(
             np.add(pre_o if first else tgt, term, out=tgt)
             first = False
 
-    fields = {k: res[blocks.index(k)] if k in blocks else np.zeros_like(i_fault)
+    # Circuit 2 of a single-circuit line carries nothing: a read-only zero view, no memory.
+    zeros = np.broadcast_to(np.zeros((), dtype=complex), i_fault.shape)
+    fields = {k: res[blocks.index(k)] if k in blocks else zeros
               for k in starts if k in wanted}
     pre0 = np.swapaxes(t[0, None, :2 * n] @ x[0, :, :, :n_l], -1, -2)  # (K, L, 2n)
     return FaultSweep(
