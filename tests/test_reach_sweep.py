@@ -81,3 +81,26 @@ def test_too_many_cases_are_refused(variant, capsys):
     assert main(["reach", str(variant(DEMO_1C, edit))]) == 2
     err = capsys.readouterr().err.strip()
     assert "reach_study.location_step_pct" in err and "10,000,000" in err
+
+
+def test_chunked_sweep_condenses_to_the_same_results(demo_path, monkeypatch):
+    # Consistency: condensing the sweep in chunks of a few locations gives the worst cases
+    # and envelopes of the sweep condensed at once (errors to 1e-9 relative; the location
+    # of each worst case is the same unless two cases tie to rounding).
+    import relayset.studies.reach as reach
+
+    path = demo_path("elsford_fallowby_230kv_double.toml")
+    whole = study_reach(path).reach
+    monkeypatch.setattr(reach, "CHUNK_CASES", 1000)  # a few locations per chunk
+    calls = _count_sweeps(monkeypatch)
+    chunked = study_reach(path).reach
+    assert calls[0] > 20  # many chunks per arrangement
+    for e1, e2 in zip(whole.ends, chunked.ends, strict=True):
+        for a1, a2 in zip(e1.arrangements, e2.arrangements, strict=True):
+            np.testing.assert_allclose(a2.envelope_max_pct, a1.envelope_max_pct, rtol=1e-9,
+                                       atol=1e-9)
+            for l1, l2 in zip(a1.loops, a2.loops, strict=True):
+                for w1, w2 in zip(l1.to_dict().values(), l2.to_dict().values(), strict=True):
+                    if isinstance(w1, dict):
+                        assert w2["error_pct"] == pytest.approx(w1["error_pct"], rel=1e-9,
+                                                                abs=1e-9)
