@@ -546,7 +546,9 @@ def test_fault_currents_satisfy_the_fault_constraints():
     v = rng.normal(size=(4, 3, 2)) + 1j * rng.normal(size=(4, 3, 2))
     for rf, rp in ((0.0, 0.0), (7.0, 0.0), (0.0, 3.0), (2.5, 1.5)):
         for ft in FAULT_TYPES:
-            cur = fault_currents(ft, z_th, v, np.full(4, rf), np.full(4, rp))
+            cur = fault_currents(ft, np.moveaxis(z_th, 0, -1)[..., None],
+                                 np.moveaxis(v, 0, 1), np.full((4, 1), rf),
+                                 np.full((4, 1), rp))  # phase axes first
             i = np.stack([np.zeros((4, 2)) if c is None else c for c in cur], axis=-2)
             v_f = v - z_th @ i
             p_v, p_i = fault_constraints(ft, rf, rp)

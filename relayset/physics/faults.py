@@ -197,17 +197,19 @@ def fault_currents(
     ----------
     fault_type : str
         One of :data:`FAULT_TYPES`.
-    z_th_ohm : (..., 3, 3) complex array
-        Thevenin impedance matrix at the fault point [ohm].
-    v_pre_v : (..., 3, L) complex array
-        Prefault phase voltages at the fault point [V], L load cases.
+    z_th_ohm : (3, 3, ...) complex array
+        Thevenin impedance matrix at the fault point [ohm], phase axes first.
+    v_pre_v : (3, ...) complex array
+        Prefault phase voltages at the fault point [V], phase axis first.
     r_fault_ohm, r_phase_ohm : array_like
-        Resistances [ohm], >= 0, broadcast with the leading axes ``...``.
+        Resistances [ohm], >= 0. All trailing shapes broadcast together (phase axes
+        first so that each operation runs over contiguous case axes).
 
     Returns
     -------
-    list of three (..., L) complex arrays or None
-        Current into the fault of phase A, B, C [A]; None for a phase that carries none.
+    list of three complex arrays or None
+        Current into the fault of phase A, B, C [A] (broadcast shape of the cases); None
+        for a phase that carries none.
 
     Raises
     ------
@@ -215,14 +217,14 @@ def fault_currents(
         If a case has no finite solution (bolted fault on a zero Thevenin impedance).
     """
     phases, ground = check_fault_type(fault_type)
-    rf = np.asarray(r_fault_ohm, dtype=float)[..., None]
-    rp = np.asarray(r_phase_ohm, dtype=float)[..., None]
+    rf = np.asarray(r_fault_ohm, dtype=float)
+    rp = np.asarray(r_phase_ohm, dtype=float)
 
     def z(i: int, j: int) -> np.ndarray:
-        return z_th_ohm[..., i, j, None]
+        return z_th_ohm[i, j]
 
     def v(i: int) -> np.ndarray:
-        return v_pre_v[..., i, :]
+        return v_pre_v[i]
 
     out: list[np.ndarray | None] = [None, None, None]
     if len(phases) == 1:

@@ -594,39 +594,48 @@ def solve_fault_sweep(
     rows = np.concatenate([np.arange(4 * n, 4 * n + 3)]
                           + [np.arange(starts[k], starts[k] + 3) for k in blocks])
     out = t[:, None, rows] @ x  # (M, K, 3 + 3B, L + 3)
-    z_th = -out[..., :3, n_l:]  # (M, K, 3, 3) Thevenin impedance at the fault point
-    v_pre = out[..., :3, :n_l]  # (M, K, 3, L) prefault voltages there
-    # Output blocks as (B, M, 1, K, L, 3) before and (B, M, 1, K, 1, 3) per unit current j.
-    pre_o = np.moveaxis(out[..., 3:, :n_l].reshape(n_m, n_k, len(blocks), 3, n_l),
-                        (2, 4), (0, 3))[:, :, None]
-    sens_o = np.moveaxis(out[..., 3:, n_l:].reshape(n_m, n_k, len(blocks), 3, 3),
-                         (2, 4), (0, 3))[:, :, None, :, None]  # (B, M, 1, K, 1, j, 3)
-
-    res = np.empty((len(blocks), len(ftypes), n_m, rf.size, n_k, n_l, 3), dtype=complex)
-    i_fault = np.zeros((len(ftypes), n_m, rf.size, n_k, n_l, 3), dtype=complex)
-    zt, vp = z_th[:, None], v_pre[:, None]  # broadcast over the fault resistances
-    rf_b, rp_b = rf[None, :, None], rp[None, :, None]
+    # Internal layout: phase axes first and the location axis last, cases as
+    # (Rf, K, L, M), so that every element-wise step runs over contiguous locations; the
+    # result fields are views with the documented axis order.
+    n_b = len(blocks)
+    z_th = -np.transpose(out[..., :3, n_l:], (2, 3, 1, 0))[:, :, None, :, None, :]
+    v_pre = np.transpose(out[..., :3, :n_l], (2, 1, 3, 0))[:, None]  # (3, 1, K, L, M)
+    pre_o = np.transpose(out[..., 3:, :n_l].reshape(n_m, n_k, n_b, 3, n_l),
+                         (2, 3, 1, 4, 0))[:, :, None]  # (B, 3, 1, K, L, M)
+    sens_o = np.transpose(out[..., 3:, n_l:].reshape(n_m, n_k, n_b, 3, 3),
+                          (4, 2, 3, 1, 0))[..., None, :, None, :]  # (j, B, 3, 1, K, 1, M)
+    res = np.empty((n_b, 3, len(ftypes), rf.size, n_k, n_l, n_m), dtype=complex)
+    i_fault = np.zeros((3, len(ftypes), rf.size, n_k, n_l, n_m), dtype=complex)
+    rf_b, rp_b = rf[:, None, None, None], rp[:, None, None, None]
     for f, ft in enumerate(ftypes):  # loop over the (ten) fault types only
         try:
-            cur = fault_currents(ft, zt, vp, rf_b, rp_b)  # (M, Rf, K, L) per phase
+            cur = fault_currents(ft, z_th, v_pre, rf_b, rp_b)  # (Rf, K, L, M) per phase
         except np.linalg.LinAlgError:
             raise InputError(
                 "a bolted fault at a bus with zero source impedance has no finite current",
                 field=_name("source_scale", fn), value=scale.tolist(),
             ) from None
-        tgt = res[:, f]
-        first = True
-        for j, c in enumerate(cur):
-            if c is None:
-                continue
-            i_fault[f, ..., j] = c
-            term = sens_o[..., j, :] * c[..., None]
-            np.add(pre_o if first else tgt, term, out=tgt)
-            first = False
+        phases, ground = check_fault_type(ft)
+        if len(phases) == 2 and not ground:  # I_q = -I_p: one term
+            p, q = phases
+            terms = [(sens_o[p] - sens_o[q], cur[p])]
+        else:
+            terms = [(sens_o[j], cur[j]) for j in phases]
+        for j in phases:
+            i_fault[j, f] = cur[j]
+        tgt = res[:, :, f]
+        np.multiply(terms[0][0], terms[0][1], out=tgt)
+        for sens_j, c in terms[1:]:
+            tgt += sens_j * c
+        tgt += pre_o
+
+    def view(a: np.ndarray) -> np.ndarray:  # (3, F, Rf, K, L, M) -> (F, M, Rf, K, L, 3)
+        return np.transpose(a, (1, 5, 2, 3, 4, 0))
 
     # Circuit 2 of a single-circuit line carries nothing: a read-only zero view, no memory.
-    zeros = np.broadcast_to(np.zeros((), dtype=complex), i_fault.shape)
-    fields = {k: res[blocks.index(k)] if k in blocks else zeros
+    zeros = np.broadcast_to(np.zeros((), dtype=complex), (len(ftypes), n_m, rf.size, n_k,
+                                                          n_l, 3))
+    fields = {k: view(res[blocks.index(k)]) if k in blocks else zeros
               for k in starts if k in wanted}
     pre0 = np.swapaxes(t[0, None, :2 * n] @ x[0, :, :, :n_l], -1, -2)  # (K, L, 2n)
     return FaultSweep(
@@ -645,7 +654,7 @@ def solve_fault_sweep(
         i_r=fields.get("i_r"),
         i_r_parallel=fields.get("i_r_parallel"),
         v_f=fields.get("v_f"),
-        i_fault=i_fault,
+        i_fault=view(i_fault),
         i_f_from_s=fields.get("i_f_from_s"),
         i_f_from_r=fields.get("i_f_from_r"),
         v_s_pre=np.ascontiguousarray(pre0[..., 0:3]),
