@@ -90,14 +90,14 @@ def test_resistance_temperature_correction_hand_values():
     # 0.1188 * (1 + 0.00403 * 55) = 0.1188 * 1.22165 = 0.14513202 ohm/km.
     alpha = 0.00403
     assert resistance_at_temperature(0.1188e-3, 20.0, 75.0, alpha) * 1e3 == pytest.approx(
-        0.14513202, rel=1e-12)
+        0.14513202, rel=1e-12, abs=0)
     # From a reference at 50 degC to 75 degC: R75 = R50 (1 + 55 a)/(1 + 30 a)
     # = 0.1859 * 1.22165/1.1209 = 0.202607... ohm/mi (hand: 1.22165/1.1209 = 1.0898832)
     assert resistance_at_temperature(0.1859, 50.0, 75.0, alpha) == pytest.approx(
-        0.1859 * 1.0898832, rel=1e-7)
+        0.1859 * 1.0898832, rel=1e-7, abs=0)
     # Back to 20 degC from 50 degC: R20 = R50/(1 + 30 a) = 0.1859/1.1209
     assert resistance_at_temperature(0.1859, 50.0, 20.0, alpha) == pytest.approx(
-        0.1859 / 1.1209, rel=1e-12)
+        0.1859 / 1.1209, rel=1e-12, abs=0)
 
 
 def _kelvin_ratio(x: float) -> float:
@@ -121,7 +121,7 @@ def test_skin_effect_ratio_against_kelvin_functions_and_table(x, handbook):
     rho = 2 * math.pi * f * MU0 * a * a / x**2
     r_dc = rho / (math.pi * a * a)
     got = skin_effect_ratio(r_dc, a, f)
-    assert got == pytest.approx(_kelvin_ratio(x), rel=1e-12)  # scipy.special ber/bei
+    assert got == pytest.approx(_kelvin_ratio(x), rel=1e-12, abs=0)  # scipy.special ber/bei
     assert got == pytest.approx(handbook, abs=5e-4)  # table, half a unit of the 3rd decimal
 
 
@@ -133,8 +133,8 @@ def test_skin_effect_ratio_limits():
     def ratio(x):
         return skin_effect_ratio(2 * math.pi * f * MU0 / x**2 / math.pi, a, f)
 
-    assert ratio(0.3) - 1 == pytest.approx(0.3**4 / 192, rel=1e-3)
-    assert ratio(40.0) == pytest.approx(40 / (2 * math.sqrt(2)) + 0.25, rel=1e-3)
+    assert ratio(0.3) - 1 == pytest.approx(0.3**4 / 192, rel=1e-3, abs=0)
+    assert ratio(40.0) == pytest.approx(40 / (2 * math.sqrt(2)) + 0.25, rel=1e-3, abs=0)
 
 
 # ------------------------------------------------------------------ m0/m2 unbalance
