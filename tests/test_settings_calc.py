@@ -11,7 +11,7 @@ and magnitudes are multiples of |u| = sqrt(101) = 10.049876 ohm:
 - CT 800/1, VT 132000/110: secondary factor 800/1200 = 2/3;
 - load 160 MVA at 0.9 pu of 132 kV, load angles up to 30 deg.
 
-Hand derivation (formulas of relayset.settings.calc's module notes):
+Hand derivation (formulas of relayset.settings.compute's module notes):
 
 - k0 = (Z0 - Z1)/(3 Z1) = 2/3 at 0 deg; kR = (12-4)/12 = 2/3, kX = (120-40)/120 = 2/3;
   Z0/Z1 = 3 at 0 deg.
@@ -48,7 +48,8 @@ import pytest
 
 from relayset.errors import InputError
 from relayset.inputs.philosophy import default_philosophy
-from relayset.settings.calc import SettingsInputs, compute_settings
+from relayset.settings.compute import compute_settings
+from relayset.settings.inputs import SettingsInputs
 
 U = 1 + 10j
 MAG_U = math.sqrt(101)

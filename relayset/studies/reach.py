@@ -26,6 +26,7 @@ from relayset.results.reach import (
     WorstCase,
 )
 from relayset.results.serialize import cplx
+from relayset.settings.zone1 import recommended_zone1_pct
 from relayset.studies.geometry import LineGeometry
 
 LOOPS = ("AG", "BG", "CG", "AB", "BC", "CA")
@@ -214,7 +215,7 @@ def run_reach_study(
                                   ords, lens, geo.position_names))
         actual = arrs[0]
         worst = actual.worst_bolted_overreach_at_remote_bus_pct
-        rec = measurement.recommended_zone1_pct(worst, budget, zone1_max_pct, zone1_margin_pct)
+        rec = recommended_zone1_pct(worst, budget, zone1_max_pct, zone1_margin_pct)
         gov = max((lp for lp in actual.loops if lp.over_at_remote_bus is not None),
                   key=lambda lp: lp.over_at_remote_bus.error_pct, default=None)
         end_results.append(EndReach(

@@ -11,7 +11,8 @@ from relayset.inputs.study_file import Study
 from relayset.results.parameters import LineParameters
 from relayset.results.reach import ReachStudyResult
 from relayset.results.settings import SettingsResult
-from relayset.settings.calc import SettingsInputs, compute_settings
+from relayset.settings.compute import compute_settings
+from relayset.settings.inputs import SettingsInputs
 from relayset.studies.geometry import LineGeometry
 from relayset.studies.reach import build_source
 
