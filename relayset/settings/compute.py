@@ -103,6 +103,15 @@ def compute_settings(
             "of the line totals; the given k0 is used",
             "check which k0 the relay should use (e.g. the reach study's effective value)",
         )
+    zc = i.z1_line_computed_ohm
+    if zc is not None and abs(zl - zc) > 0.01 * abs(zc):
+        w.warn(
+            "z1_differs_from_line",
+            f"the given Z1 replica {abs(zl):.4g} Ω∠{math.degrees(cmath.phase(zl)):.2f}° differs "
+            f"from the computed line Z1 {abs(zc):.4g} Ω∠{math.degrees(cmath.phase(zc)):.2f}° "
+            f"by {100 * abs(zl - zc) / abs(zc):.3g} %; every reach follows the given value",
+            "check the source of relay.z1_set (measured, or another line model)",
+        )
     kr, kx = residual_compensation_split(zl, z0_eff)
     k0_forms = K0(k0=k0, kr=float(kr), kx=float(kx), z0_over_z1=1 + 3 * k0)
 

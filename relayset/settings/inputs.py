@@ -81,6 +81,8 @@ class SettingsInputs:
         Largest load (power-factor) angle of the load range [rad], 0 <= angle < π/2.
     k0 : complex, optional
         Residual compensation factor the relay is set with [1]; default ``k0_line``.
+    z1_line_computed_ohm : complex, optional
+        The line's Z1 from its parameters [ohm], what a given replica is compared with.
     k0_line : complex, optional
         The line's own k0 [1], what a given ``k0`` is compared with; default
         (Z0 − Z1)/(3 Z1) of ``z0_line_ohm`` and ``z1_line_ohm``.
@@ -118,6 +120,7 @@ class SettingsInputs:
     load_angle_max_rad: float
     k0: complex | None = None
     k0_line: complex | None = None
+    z1_line_computed_ohm: complex | None = None
     k0m: complex | None = None
     adjacent_lines: Sequence[tuple[str, complex]] = ()
     reverse_lines: Sequence[tuple[str, complex]] = ()
@@ -152,6 +155,9 @@ class SettingsInputs:
             if abs(1 + 3 * k0) == 0:
                 raise InputError("must not equal -1/3", field="k0", value=k0, source=_SOURCE)
             put("k0", k0)
+        if self.z1_line_computed_ohm is not None:
+            put("z1_line_computed_ohm", _cplx("z1_line_computed_ohm",
+                                              self.z1_line_computed_ohm, inductive=True))
         if self.k0_line is not None:
             put("k0_line", _cplx("k0_line", self.k0_line))
         if self.k0m is not None:

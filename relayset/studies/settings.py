@@ -112,6 +112,7 @@ def run_settings(study: Study, geo: LineGeometry, params: LineParameters, relay:
                 z0_line_ohm=circ.z0_ohm,
                 k0=relay.k0_set,
                 k0_line=circ.k0.k0,
+                z1_line_computed_ohm=circ.z1_ohm,
                 length_m=geo.length_m,
                 ct_ratio=relay.ct_ratio,
                 vt_ratio=relay.vt_ratio,
