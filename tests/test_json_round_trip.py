@@ -55,6 +55,7 @@ def _close(a, b):
 _DIMENSIONLESS = {"k0", "k0_complex", "kr", "kx", "z0_over_z1", "z0_over_z1_magnitude",
                   "k0m", "k0m_set", "k0_set", "magnitude", "k0_magnitude", "k0m_magnitude",
                   "scale", "cases_solved", "sir", "secondary_factor", "infeed_factor",
+                  "ct_ratio", "vt_ratio",
                   "unbalance_m0_pct", "unbalance_m2_pct", "re", "im"}
 _UNITS = ("_km", "_m", "_mm", "_ohm", "_ohm_per_km", "_pct", "_deg", "_hz", "_kv", "_a",
           "_a_per_km", "_nf_per_km", "_us_per_km", "_per_km", "_ohm_m", "_c", "_s",
@@ -243,7 +244,7 @@ def test_reach_json_round_trip(tmp_path, demo_path, demo):
 
 
 def _zone_keys(shape: str) -> set[str]:
-    base = {"label", "direction", "rule", "reach_primary_ohm", "reach_primary_magnitude_ohm",
+    base = {"direction", "rule", "reach_primary_ohm", "reach_primary_magnitude_ohm",
             "reach_secondary_ohm", "reach_secondary_magnitude_ohm", "reach_angle_deg",
             "reach_pct", "delay_s", "shape", "infeed_factor", "checks"}
     if shape == "mho":
@@ -258,43 +259,73 @@ def test_settings_json_round_trip(tmp_path, demo_path, demo):
     path = demo_path(demo)
     d = _export("settings", path, tmp_path)
     res = relayset.study_settings(path)
-    s = res.settings
-    j = d["settings"]
-    assert set(j) >= {"zones", "k0", "k0m", "load", "sources", "warnings"}
-    assert set(j["zones"]) == {"zone1", "zone2", "zone3", "reverse"}
-    for name, jz in j["zones"].items():
-        z = s.zone(name)
-        assert set(jz) >= _zone_keys(z.shape)
-        _close(_c(jz["reach_primary_ohm"]), z.reach_primary_ohm)
-        _close(_c(jz["reach_secondary_ohm"]), z.reach_secondary_ohm)
-        # secondary = primary x CT ratio / VT ratio (README "Settings")
-        _close(_c(jz["reach_secondary_ohm"]), z.reach_primary_ohm * s.secondary_factor)
-        _close(jz["reach_primary_magnitude_ohm"], abs(z.reach_primary_ohm))
-        _close(jz["reach_angle_deg"], math.degrees(cmath.phase(z.reach_primary_ohm)))
-        _close(jz["reach_pct"], z.reach_pct)
-        assert jz["delay_s"] == z.delay_s
-        if z.shape == "mho":
-            _close(jz["char_angle_deg"], math.degrees(z.char_angle_rad))
-            _close(jz["mho_diameter_primary_ohm"], z.mho_diameter_primary_ohm)
-        assert [c["check_id"] for c in jz["checks"]] == [c.check_id for c in z.checks]
-    _close(_c(j["k0"]["k0"]), s.k0.k0)
-    _close(j["k0"]["kr"], s.k0.kr)
-    _close(j["k0"]["kx"], s.k0.kx)
-    _close(_c(j["k0"]["z0_over_z1"]), s.k0.z0_over_z1)
-    if s.k0m is None:
-        assert j["k0m"] is None
+    # relay basis, resolved once (README "JSON export": `relay`)
+    rb, jr = res.relay, d["relay"]
+    assert set(jr) == {"ends", "z1_set_ohm", "k0_set", "k0m_set", "z1_from", "k0_from",
+                       "k0m_from", "ct_ratio", "vt_ratio"}
+    assert jr["ends"] == list(rb.ends)
+    _close(_c(jr["z1_set_ohm"]), rb.z1_set_ohm)
+    assert set(jr["k0_set"]) == {"magnitude", "angle_deg"}
+    _close(_c(jr["k0_set"]), rb.k0_set)
+    if rb.k0m_set is None:
+        assert jr["k0m_set"] is None
     else:
-        _close(_c(j["k0m"]["k0m"]), s.k0m)
-    _close(j["load"]["z_min_primary_ohm"], s.load.z_min_primary_ohm)
-    _close(j["load"]["load_angle_max_deg"], math.degrees(s.load.load_angle_max_rad))
-    for js, src in zip(j["sources"], s.sources, strict=True):
-        _close(_c(js["z_source_ohm"]), src.z_source_ohm)
-        _close(js["sir"], src.sir)
-        assert (js["end"], js["line_class"]) == (src.end, src.line_class)
-    assert [w["rule_id"] for w in j["warnings"]] == s.warning_ids()
-    line = j["line"]
-    _close(_c(line["z1_primary_ohm"]), s.line_z1_primary_ohm)
-    _close(line["angle_deg"], math.degrees(s.line_angle_rad))
-    _close(line["length_m"], s.length_m)
+        _close(_c(jr["k0m_set"]), rb.k0m_set)
+    assert jr["z1_from"] == jr["k0_from"] == "line parameters"  # the demos give none
+    _close(jr["ct_ratio"], rb.ct_ratio)
+    _close(jr["vt_ratio"], rb.vt_ratio)
+    assert list(d["settings"]) == ["ends"]
+    assert len(d["settings"]["ends"]) == len(res.settings)
+    for j, s in zip(d["settings"]["ends"], res.settings, strict=True):
+        assert set(j) >= {"end", "remote_end", "line", "zones", "k0", "k0m", "load",
+                          "sources", "warnings"}
+        assert (j["end"], j["remote_end"]) == (s.end, s.remote_end)
+        assert set(j["zones"]) == {"zone1", "zone2", "zone3", "reverse"}
+        for name, jz in j["zones"].items():
+            z = s.zone(name)
+            assert set(jz) >= _zone_keys(z.shape)
+            _close(_c(jz["reach_primary_ohm"]), z.reach_primary_ohm)
+            _close(_c(jz["reach_secondary_ohm"]), z.reach_secondary_ohm)
+            # secondary = primary x CT ratio / VT ratio (README "Settings")
+            _close(_c(jz["reach_secondary_ohm"]),
+                   z.reach_primary_ohm * rb.ct_ratio / rb.vt_ratio)
+            _close(jz["reach_primary_magnitude_ohm"], abs(z.reach_primary_ohm))
+            _close(jz["reach_angle_deg"], math.degrees(cmath.phase(z.reach_primary_ohm)))
+            _close(jz["reach_pct"], z.reach_pct)
+            assert jz["delay_s"] == z.delay_s
+            if z.shape == "mho":
+                _close(jz["char_angle_deg"], math.degrees(z.char_angle_rad))
+                _close(jz["mho_diameter_primary_ohm"], z.mho_diameter_primary_ohm)
+            assert [c["check_id"] for c in jz["checks"]] == [c.check_id for c in z.checks]
+        # k0 in the same form as parameters.circuits[].k0 (README "Settings")
+        assert set(j["k0"]) == {"k0", "k0_complex", "kr", "kx", "z0_over_z1"}
+        assert set(j["k0"]["k0"]) == {"magnitude", "angle_deg"}
+        _close(_c(j["k0"]["k0"]), s.k0.k0)
+        _close(_c(j["k0"]["k0_complex"]), s.k0.k0)
+        _close(j["k0"]["kr"], s.k0.kr)
+        _close(j["k0"]["kx"], s.k0.kx)
+        _close(_c(j["k0"]["z0_over_z1"]), s.k0.z0_over_z1)
+        _close(s.k0.k0, rb.k0_set)  # the relay's k0, resolved once
+        if s.k0m is None:
+            assert j["k0m"] is None
+        else:
+            assert set(j["k0m"]) == {"magnitude", "angle_deg"}
+            _close(_c(j["k0m"]), s.k0m)
+        _close(j["load"]["z_min_primary_ohm"], s.load.z_min_primary_ohm)
+        _close(j["load"]["load_angle_max_deg"], math.degrees(s.load.load_angle_max_rad))
+        for js, src in zip(j["sources"], s.sources, strict=True):
+            assert set(js) == {"end", "role", "z_source_ohm", "sir", "line_class"}
+            _close(_c(js["z_source_ohm"]), src.z_source_ohm)
+            _close(js["sir"], src.sir)
+            assert (js["end"], js["role"], js["line_class"]) == (src.end, src.role,
+                                                                 src.line_class)
+        assert [w["rule_id"] for w in j["warnings"]] == s.warning_ids()
+        line = j["line"]
+        assert set(line) == {"z1_primary_ohm", "z1_secondary_ohm", "angle_deg", "length_km",
+                             "secondary_factor"}
+        _close(_c(line["z1_primary_ohm"]), s.line_z1_primary_ohm)
+        _close(line["angle_deg"], math.degrees(s.line_angle_rad))
+        _close(line["length_km"], s.length_m / 1e3)
+        _close(line["length_km"], d["parameters"]["length_km"])  # one length, one unit
+        assert _unitless_numbers(j) == []
     assert d["philosophy"] == json.loads(json.dumps(res.philosophy))
-    assert _unitless_numbers(j) == []

@@ -105,32 +105,41 @@ def test_far_end_of_a_palindromic_line_mirrors_the_near_end(variant):
 
 
 _RELAY_GIVEN = [
-    pytest.param(DEMO_1C, {"z1_set": "3 + 30j ohm"}, id="z1_set",
-                 marks=pytest.mark.xfail(strict=True, reason="relay resolved twice; fixed by "
-                                         "the pipeline rework")),
+    pytest.param(DEMO_1C, {"z1_set": "3 + 30j ohm"}, id="z1_set"),
     pytest.param(DEMO_1C, {"k0_set": {"magnitude": 0.7, "angle": "-5 deg"}}, id="k0_set"),
     pytest.param(DEMO_1C, {"z1_set": "3 + 30j ohm",
                            "k0_set": {"magnitude": 0.7, "angle": "-5 deg"}}, id="both"),
-    pytest.param(DEMO_2C, {"k0m_set": {"magnitude": 0.3, "angle": "-5 deg"}}, id="k0m_set",
-                 marks=pytest.mark.xfail(strict=True, reason="relay resolved twice (settings "
-                                         "ignore relay.k0m_set); fixed by the pipeline "
-                                         "rework")),
+    pytest.param(DEMO_2C, {"k0m_set": {"magnitude": 0.3, "angle": "-5 deg"}}, id="k0m_set"),
+    pytest.param(DEMO_2C, {"z1_set": "5 + 26j ohm", "relay_end": "both"}, id="both_ends"),
 ]
 
 
 @pytest.mark.parametrize(("demo", "given"), _RELAY_GIVEN)
 def test_reach_and_settings_see_the_same_relay(variant, demo, given):
     # One relay, one set of settings: the reach study measures with the Z1, k0 and k0m the
-    # settings then issue (DEVELOPERS.md: one source of truth per quantity). Today, with
-    # z1_set alone the reach study keeps the line's k0 while the settings derive
-    # (Z0_line - Z1_set)/(3 Z1_set); with k0m_set the settings ignore it.
-    res = relayset.study_settings(variant(demo, lambda d: d["relay"].update(given)))
-    end = res.reach.ends[0]
-    s = res.settings
-    assert_allclose(s.line_z1_primary_ohm, end.z1_set_ohm, rtol=1e-12, atol=0)
-    assert_allclose(s.k0.k0, end.k0_set, rtol=1e-12, atol=0)
-    if end.k0m_set is not None or s.k0m is not None:
-        assert_allclose(s.k0m, end.k0m_set, rtol=1e-12, atol=0)
+    # settings then issue (DEVELOPERS.md: one source of truth per quantity). Before the
+    # pipeline rework, with z1_set alone the reach study kept the line's k0 while the
+    # settings derived (Z0_line - Z1_set)/(3 Z1_set), and the settings ignored k0m_set.
+    given = dict(given)
+    end_name = given.pop("relay_end", None)
+
+    def edit(d):
+        d["relay"].update(given)
+        if end_name:
+            d["relay"]["end"] = end_name
+            for line in d.get("adjacent_lines", []):  # both ends: each line names its bus
+                line["bus"] = d["study"]["to_substation"]
+    res = relayset.study_settings(variant(demo, edit))
+    assert len(res.settings) == len(res.reach.ends) == (2 if end_name else 1)
+    for end in res.reach.ends:
+        (s,) = [x for x in res.settings if x.end == end.end]
+        assert_allclose(s.line_z1_primary_ohm, end.z1_set_ohm, rtol=1e-12, atol=0)
+        assert_allclose(s.k0.k0, end.k0_set, rtol=1e-12, atol=0)
+        if end.k0m_set is not None or s.k0m is not None:
+            assert_allclose(s.k0m, end.k0m_set, rtol=1e-12, atol=0)
+        # and both equal the relay basis in the results
+        assert_allclose(end.z1_set_ohm, res.relay.z1_set_ohm, rtol=1e-12, atol=0)
+        assert_allclose(end.k0_set, res.relay.k0_set, rtol=1e-12, atol=0)
 
 
 # ------------------------------------------------------------------ error budget glue
@@ -154,7 +163,7 @@ def test_error_budget_reaches_the_zone1_recommendation_and_the_settings(variant)
     r = math.floor(min(80.0, 100.0 / (1 + total / 100)) * 2) / 2  # default philosophy
     assert end.recommended_zone1_pct == r
     assert r < 80.0  # the budget rules here, so the settings must follow it
-    z1 = res.settings.zone("zone1")
+    z1 = res.settings[0].zone("zone1")
     assert z1.reach_pct == pytest.approx(r, rel=1e-12, abs=0)
     (check,) = [c for c in z1.checks if c.check_id == "reach_study_margin"]
     worst = float(re.search(r"worst-case reach ([0-9.]+) %", check.detail).group(1))
@@ -195,7 +204,7 @@ def test_arc_lengths_reach_the_settings(variant, tmp_path, demo, arc_length, pha
     # Warrington's formula with those lengths (1e-9 relative).
     (tmp_path / "quad_philosophy.toml").write_text(
         '[characteristic]\nshape = "quadrilateral"\n', "utf-8")
-    s = relayset.study_settings(variant(demo, _quadrilateral(arc_length))).settings
+    (s,) = relayset.study_settings(variant(demo, _quadrilateral(arc_length))).settings
     i_arc = s.arc_current_a
     assert i_arc is not None and i_arc > 0
     for z in s.zones:
