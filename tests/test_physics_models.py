@@ -7,13 +7,18 @@ Each check names its source beside it; remembered values say "from memory".
 from __future__ import annotations
 
 import cmath
+import itertools
 import math
 
 import numpy as np
 import pytest
 from numpy.testing import assert_allclose
 
-from relayset.physics.conductor import resistance_at_temperature, skin_effect_ratio
+from relayset.physics.conductor import (
+    ALUMINIUM_LAYERS,
+    resistance_at_temperature,
+    skin_effect_ratio,
+)
 from relayset.physics.longline import long_line_equivalent
 from relayset.physics.sequence import unbalance_factors
 
@@ -173,3 +178,31 @@ def test_unbalance_factors_zero_for_a_balanced_matrix():
 
     m0, m2 = unbalance_factors(to_sequence(balanced_phase_matrix(0.1 + 0.4j, 0.3 + 1.2j)))
     assert abs(m0) < 1e-14 and abs(m2) < 1e-14
+
+
+# ------------------------------------------------------------- stranding layer table
+
+_BAD_72_7 = pytest.mark.xfail(strict=True, reason="ALUMINIUM_LAYERS[(72, 7)] is "
+                              "(12, 18, 24, 18); concentric lay gives (9, 15, 21, 27)")
+
+
+@pytest.mark.parametrize("construction", [
+    pytest.param(k, marks=_BAD_72_7) if k == (72, 7) else k
+    for k in ALUMINIUM_LAYERS])
+def test_aluminium_layers_are_concentric_lay(construction):
+    # Concentric lay (ASTM B232/B232M for ACSR, ASTM B231/B231M for all-aluminium; IEC 61089,
+    # now EN 50182): the layers add up to the aluminium wire count, and each layer, laid on
+    # a larger circle, holds more wires than the one beneath it (six more when the wires are
+    # of one size). A rule of the standards' construction tables, from memory.
+    layers = ALUMINIUM_LAYERS[construction]
+    assert sum(layers) == construction[0]
+    assert all(b > a for a, b in itertools.pairwise(layers)), layers
+
+
+@_BAD_72_7
+def test_aluminium_layers_72_7():
+    # 72/7 ACSR (e.g. the 1590 kcmil "Kiwi" construction): four aluminium layers of 9, 15,
+    # 21 and 27 wires over a 7-wire steel core (ASTM B232 construction tables; from memory).
+    # With the table's (12, 18, 24, 18) the GMR of a Kiwi-sized conductor comes out 12.9 mm
+    # instead of 13.9 mm (7 % low).
+    assert ALUMINIUM_LAYERS[(72, 7)] == (9, 15, 21, 27)
