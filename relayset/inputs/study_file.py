@@ -9,6 +9,7 @@ from __future__ import annotations
 
 import datetime as dt
 import math
+import re
 import tomllib
 from pathlib import Path
 from typing import Annotated, Any, Literal
@@ -392,6 +393,9 @@ class SourceCase(_Model):
 MIN_LOCATION_STEP_PCT = 0.01
 
 
+Zone1Pct = _number(gt=0, lt=100, rule="must be between 0 and 100 % of the line")
+
+
 class ReachStudyData(_Model):
     fault_types: Annotated[tuple[_text(10), ...], AfterValidator(_non_empty)] = (  # type: ignore[valid-type]
         "AG", "BG", "CG", "AB", "BC", "CA", "ABG", "BCG", "CAG", "ABC")
@@ -407,7 +411,7 @@ class ReachStudyData(_Model):
     parallel_circuit: Literal["in_service", "earthed", "isolated"] | None = None
     mutual_compensation: bool = True
     shunt_capacitance: bool = False
-    zone1_reach_pct: _number(gt=0, lt=100, rule="must be between 0 and 100 % of the line") | None = None  # type: ignore[valid-type]
+    zone1_reach_pct: Zone1Pct | None = None  # type: ignore[valid-type]
 
 
 class ErrorBudget(_Model):
@@ -504,14 +508,59 @@ def _resolve_model(loc: tuple, root: type[BaseModel]) -> type[BaseModel] | None:
     return None
 
 
-def format_validation_error(exc: ValidationError, source: str, root: type[BaseModel]):
-    """The first pydantic error as one :class:`InputError` (file, field, value, rule)."""
-    err = exc.errors()[0]
+_BARE_KEY = re.compile(r"^[A-Za-z0-9_-]+$")
+
+
+def _key(k: str) -> str:
+    """A table key as the user would write it in TOML (quoted unless bare)."""
+    return k if _BARE_KEY.match(k) else '"' + k.replace('"', '\\"') + '"'
+
+
+def field_path(loc: tuple, data: Any, *, missing: bool = False) -> str:
+    """The dotted field path of a validation error, as the user wrote it in the file.
+
+    The validation library puts its own type tags into the location (``tuple[Circuit]``,
+    ``function-after[...]``); only the parts that index into the file's data are kept.
+    """
+    out = ""
+    cur = data
+    for i, part in enumerate(loc):
+        last = i == len(loc) - 1
+        if isinstance(part, int) and isinstance(cur, list | tuple) and 0 <= part < len(cur):
+            out += f"[{part}]"
+            cur = cur[part]
+        elif isinstance(part, str) and isinstance(cur, dict) and part in cur:
+            out += ("." if out else "") + _key(part)
+            cur = cur[part]
+        elif missing and last and isinstance(part, str) and isinstance(cur, dict):
+            out += ("." if out else "") + _key(part)
+    return out
+
+
+def _plain_words(msg: str) -> str:
+    """The validation library's wording in the study file's terms (TOML lists and tables)."""
+    for old, new in (("Value error, ", ""), ("Assertion failed, ", ""),
+                     (" after validation", ""), ("a valid tuple", "a list"),
+                     ("Tuple", "List"), ("a valid dictionary", "a table"),
+                     ("Dictionary", "Table")):
+        msg = msg.replace(old, new)
+    return msg
+
+
+def format_validation_error(exc: ValidationError, source: str, root: type[BaseModel],
+                            data: Any = None) -> InputError:
+    """The most telling validation error as one :class:`InputError` (file, field, value, rule).
+
+    An unknown key comes first: a misspelt key also makes the right key "missing", and the
+    misspelling is what the user has to fix.
+    """
+    errors = exc.errors()
+    err = next((e for e in errors if e.get("type") == "extra_forbidden"), errors[0])
     loc = tuple(err.get("loc", ()))
-    field = ".".join(str(p) if not isinstance(p, int) else f"[{p}]" for p in loc)
-    field = field.replace(".[", "[")
-    value = err.get("input")
     kind = err.get("type", "")
+    field = field_path(loc, data, missing=kind == "missing") if data is not None else ".".join(
+        str(p) if not isinstance(p, int) else f"[{p}]" for p in loc).replace(".[", "[")
+    value = err.get("input")
     if kind == "extra_forbidden":
         owner = _resolve_model(loc, root)
         known = [f.alias or n for n, f in owner.model_fields.items()] if owner else []
@@ -520,38 +569,222 @@ def format_validation_error(exc: ValidationError, source: str, root: type[BaseMo
         return InputError(rule, field=field, source=source)
     if kind == "missing":
         return InputError("is required but missing", field=field, source=source)
-    msg = err.get("msg", "is not valid")
-    msg = msg.removeprefix("Value error, ").removeprefix("Assertion failed, ")
+    msg = _plain_words(err.get("msg", "is not valid"))
     if isinstance(value, dict | list):
         value = None
     return InputError(msg, field=field, value=value, source=source)
 
 
+def _duplicate_key(text: str, exc: tomllib.TOMLDecodeError, source: str) -> InputError | None:
+    """A key or table given twice, named by its dotted path (TOML forbids it)."""
+    if "overwrite" not in str(exc) and "twice" not in str(exc):
+        return None
+    line_no = getattr(exc, "lineno", None)
+    if line_no is None:
+        m = re.search(r"line (\d+)", str(exc))
+        line_no = int(m.group(1)) if m else None
+    if not line_no:
+        return None
+    lines = text.splitlines()
+    table = ""
+    for ln in lines[: line_no - 1]:
+        h = re.match(r"^\s*\[\[?\s*([^\]]+?)\s*\]\]?\s*(#.*)?$", ln)
+        if h:
+            table = h.group(1)
+    here = lines[line_no - 1] if line_no <= len(lines) else ""
+    h = re.match(r"^\s*\[\[?\s*([^\]]+?)\s*\]\]?", here)
+    key = h.group(1) if h else here.split("=", 1)[0].strip()
+    field = key if h or not table else f"{table}.{key}"
+    return InputError(f"is given twice (line {line_no}); keep one", field=field or "?",
+                      source=source)
+
+
 def read_toml(path: str | Path) -> dict:
-    """Read a TOML file; a missing file or bad TOML is an InputError naming the file."""
+    """Read a TOML file; a missing file or bad TOML is an InputError naming the file.
+
+    A UTF-8 byte-order mark (as some editors write it) is accepted.
+    """
+    return parse_toml_bytes(read_bytes(path), str(path))
+
+
+def read_bytes(path: str | Path) -> bytes:
+    """The bytes of an input file, or an InputError saying why they cannot be read."""
     p = Path(path)
-    if not p.is_file():
-        raise InputError("file does not exist", source=str(path))
     try:
-        return tomllib.loads(p.read_text("utf-8"))
-    except tomllib.TOMLDecodeError as exc:
-        raise InputError(f"is not valid TOML ({exc})", source=str(path)) from None
+        if p.is_dir():
+            raise InputError("is a folder, not a study file", source=str(path))
+        return p.read_bytes()
+    except FileNotFoundError:
+        raise InputError("file does not exist", source=str(path)) from None
+    except OSError as exc:
+        raise InputError(f"cannot be read ({exc.strerror or exc})", source=str(path)) from None
+
+
+def parse_toml_bytes(raw: bytes, source: str) -> dict:
+    """Decode (UTF-8, optional byte-order mark) and parse TOML text."""
+    try:
+        text = raw.decode("utf-8-sig")
     except UnicodeDecodeError:
-        raise InputError("is not UTF-8 text", source=str(path)) from None
+        raise InputError("is not UTF-8 text", source=source) from None
+    try:
+        return tomllib.loads(text)
+    except tomllib.TOMLDecodeError as exc:
+        dup = _duplicate_key(text, exc, source)
+        if dup is not None:
+            raise dup from None
+        raise InputError(f"is not valid TOML ({exc})", source=source) from None
 
 
 def parse_study(data: dict, source: str = "<study>") -> Study:
-    """Validate a study dictionary (as read from TOML) into a :class:`Study`."""
+    """Validate a study dictionary (as read from TOML) into a :class:`Study`.
+
+    Field rules are checked by the model, then every rule that ties fields together
+    (:func:`check_study`).
+    """
     try:
         study = Study.model_validate(data)
     except ValidationError as exc:
-        raise format_validation_error(exc, source, Study) from None
+        raise format_validation_error(exc, source, Study, data) from None
     if study.schema_ != SCHEMA:
         raise InputError(f"unsupported schema; this version reads {SCHEMA!r}",
                          field="schema", value=study.schema_, source=source)
+    check_study(study, data, source)
     return study
 
 
 def load_study(path: str | Path) -> Study:
     """Read and validate a study file."""
     return parse_study(read_toml(path), source=str(path))
+
+
+# -- Rules that tie fields together ---------------------------------------------------------
+
+def _raw(data: Any, *path: str | int) -> Any:
+    """The user's own text at ``path`` of the raw tables (to echo it in messages)."""
+    for p in path:
+        try:
+            data = data[p]
+        except (KeyError, IndexError, TypeError):
+            return None
+    return data
+
+
+def _in_users_unit(si: float, example: Any) -> str:
+    """``si`` [m] written in the unit of the user's text ``example`` (like "80 km")."""
+    unit = "km"
+    if isinstance(example, str):
+        m = re.match(r"^\s*[+-]?[\d.eE+-]+\s*(.*?)\s*$", example)
+        if m and m.group(1):
+            unit = m.group(1)
+    try:
+        factor = units.parse_real(f"1 {unit}", "length")
+    except ValueError:
+        unit, factor = "km", 1e3
+    return f"{si / factor:.6g} {unit}"
+
+
+def check_study(study: Study, data: dict, source: str) -> None:
+    """Every rule of the study file that ties two or more fields together.
+
+    Raises
+    ------
+    InputError
+        Naming the field as the user wrote it and the user's own value.
+    """
+    ends = study.ends
+
+    def fail(rule: str, field: str, value: Any = None) -> None:
+        raise InputError(rule, field=field, value=value, source=source)
+
+    if ends[0] == ends[1]:
+        fail("must differ from study.from_substation", "study.to_substation", ends[1])
+    names = [c.name for c in study.circuits]
+    if len(set(names)) != len(names):
+        fail("the two circuits need different names", "circuits[1].name", names[1])
+    placed = [(f"circuits[{c}].positions[{k}]", ("circuits", c, "positions", k), pos)
+              for c, circ in enumerate(study.circuits) for k, pos in enumerate(circ.positions)]
+    placed += [(f"shield_wires[{k}]", ("shield_wires", k), sw)
+               for k, sw in enumerate(study.shield_wires)]
+    for field, path, p in placed:
+        if p.height is not None and p.sag >= p.height:
+            fail(f"must be less than the attachment height ({_raw(data, *path, 'height')}): "
+                 "the conductor would touch the ground at mid-span", f"{field}.sag",
+                 _raw(data, *path, "sag"))
+
+    # The transposition plan covers the whole line.
+    sections = study.line.sections
+    if sections is not None:
+        total = sum(s.length for s in sections)
+        length = study.line.length
+        if abs(total - length) > 1e-6 * length + 1e-3:
+            raw_len = _raw(data, "line", "length")
+            fail(f"section lengths add up to {_in_users_unit(total, raw_len)} but the line is "
+                 f"{raw_len} long", "line.sections",
+                 [_raw(data, "line", "sections", k, "length") for k in range(len(sections))])
+
+    if study.relay is not None:
+        end = study.relay.end
+        if end != "both" and end not in ends:
+            fail(f"is not an end of this line; use {ends[0]!r}, {ends[1]!r} or 'both'"
+                 + suggest(end, ends), "relay.end", end)
+    for key in study.sources:
+        if key not in ends:
+            fail(f"names no end of this line (the ends are {ends[0]!r} and {ends[1]!r})"
+                 + suggest(key, ends), f"sources.{_key(key)}")
+
+    rs = study.reach_study
+    if len(study.circuits) == 1 and rs.parallel_circuit is not None:
+        fail("the line has one circuit, so there is no parallel circuit to set",
+             "reach_study.parallel_circuit", rs.parallel_circuit)
+    if "fault_types" in rs.model_fields_set:
+        # Imported only when the file lists fault types (the solver pulls in scipy).
+        from relayset.physics.network import FAULT_TYPES
+
+        for k, ft in enumerate(rs.fault_types):
+            if ft not in FAULT_TYPES:
+                fail("unknown fault type; use " + ", ".join(FAULT_TYPES)
+                     + suggest(ft, FAULT_TYPES), f"reach_study.fault_types[{k}]", ft)
+    if study.load is not None and study.load.power_flows:
+        missing = [e for e in ends if e not in study.sources]
+        if missing:
+            fail(f"load cases given as power flows need sources at both ends (none at "
+                 f"{missing[0]!r})", "load.power_flows")
+
+
+def check_reach_inputs(study: Study, source: str) -> None:
+    """What the reach study needs beyond a valid file: a relay, and a source behind it."""
+    if study.relay is None:
+        raise InputError("the reach study needs a [relay] table (end, CT and VT ratios)",
+                         field="relay", source=source)
+    ends = study.ends
+    if not any(e in study.sources for e in ends):
+        raise InputError(f"give a source for {ends[0]!r} or {ends[1]!r} (or both)",
+                         field="sources", source=source)
+    for end in study.relay_ends:
+        if end not in study.sources:
+            raise InputError(
+                f"the relay at {end!r} has no source behind it, so it would measure no fault "
+                f"current; add a [sources.{_key(end)}] table", field="relay.end",
+                value=study.relay.end, source=source)
+
+
+def check_settings_inputs(study: Study, source: str) -> None:
+    """What the settings need beyond the reach study: a [load] table."""
+    check_reach_inputs(study, source)
+    if study.load is None:
+        raise InputError("settings need a [load] table (maximum load, minimum voltage)",
+                         field="load", source=source)
+
+
+def study_warnings(study: Study) -> tuple[str, ...]:
+    """Things that are allowed but probably wrong, one sentence each."""
+    out = []
+    phases = [p.mean_height_m for c in study.circuits for p in c.positions]
+    top = max(phases)
+    for k, sw in enumerate(study.shield_wires):
+        if sw.mean_height_m < top:
+            out.append(
+                f"Warning: shield wire {sw.name or k + 1} (shield_wires[{k}]) hangs at "
+                f"{sw.mean_height_m:.2f} m mean height, below the highest phase conductor "
+                f"({top:.2f} m); earth wires normally run above the phases: check the heights.")
+    return tuple(out)

@@ -7,7 +7,7 @@ from pathlib import Path
 
 from relayset.errors import InputError
 from relayset.inputs.philosophy import Philosophy, default_philosophy, load_philosophy
-from relayset.inputs.study_file import Study
+from relayset.inputs.study_file import Study, check_settings_inputs
 from relayset.results.parameters import LineParameters
 from relayset.results.reach import ReachStudyResult
 from relayset.results.settings import SettingsResult
@@ -66,12 +66,7 @@ def run_settings(study: Study, geo: LineGeometry, params: LineParameters,
                  reach: ReachStudyResult | None, philosophy: Philosophy, *,
                  source: str) -> SettingsResult:
     """Settings of the relay at ``relay.end`` (the first end when the study says "both")."""
-    if study.relay is None:
-        raise InputError("settings need a [relay] table (end, CT and VT ratios)",
-                         field="relay", source=source)
-    if study.load is None:
-        raise InputError("settings need a [load] table (maximum load, minimum voltage)",
-                         field="load", source=source)
+    check_settings_inputs(study, source)
     names = (study.study.from_substation, study.study.to_substation)
     end = names[0] if study.relay.end == "both" else study.relay.end
     other = names[1] if end == names[0] else names[0]
@@ -141,6 +136,8 @@ _STUDY_FIELDS = {
 
 def _in_study_terms(exc: InputError, source: str) -> InputError:
     """The settings error re-addressed to the study file and its field."""
+    if exc.source and exc.source != "<settings inputs>" and exc.source != source:
+        return exc  # an error in another file (an adjacent line's study) stays against it
     base, bracket, rest = exc.field.partition("[")
     field = _STUDY_FIELDS.get(base, base) + bracket + rest
     return InputError(exc.rule, field=field, value=exc.value, source=source)
