@@ -76,11 +76,25 @@ def _run(args) -> int:
     results = [run(f) for f in _files(args)]
     for res in results:
         sys.stdout.write(show(res, args.units))
+    # Every output file is rendered first, then all are written or none.
+    outputs = []
     if args.json:
-        io.write_json(args.json, results[0].to_dict())
+        outputs.append(("--json", args.json, io.to_json(results[0].to_dict())))
     if getattr(args, "csv", None):
-        io.write_atomic(args.csv, io.rows_to_csv(results[0].settings.rows()))
+        outputs.append(("--csv", args.csv, io.csv_bytes(_settings_csv(results[0]))))
+    io.write_all(outputs)
     return 0
+
+
+def _settings_csv(res) -> str:
+    from relayset import io
+
+    ident = res.identity
+    end = res.study_input.get("relay", {}).get("end", "")
+    if end == "both":  # settings are made for the from end (see run_settings)
+        end = ident["from_substation"]
+    return io.rows_to_csv(res.settings.rows(), columns={
+        "line_id": ident["line_id"], "revision": ident["revision"], "relay_end": end})
 
 
 def main(argv: Sequence[str] | None = None) -> int:
