@@ -71,7 +71,7 @@ def _complex_quantity(kind: str = "impedance", *, min_abs: float = 1e-3, max_abs
     def parse(v: Any) -> complex:
         z = units.parse_complex(v, kind)
         if not min_abs <= abs(z) <= max_abs:
-            raise ValueError(f"magnitude must lie between {min_abs:g} and {max_abs:g} ohm "
+            raise ValueError(f"must have a magnitude between {min_abs:g} and {max_abs:g} ohm "
                              "(plausible range)")
         return z
 
@@ -227,8 +227,8 @@ class Bundle(_Model):
     spacing: _quantity("length", gt=0, le=3.0)  # type: ignore[valid-type]
     #: Rotation of the subconductor polygon [rad]; 0 ("horizontal"): a twin bundle lies
     #: horizontally; 90 deg ("vertical"): one above the other. See bundle_offsets_m.
-    orientation: Annotated[float, BeforeValidator(_orientation), BeforeValidator(  # type: ignore[valid-type]
-        lambda v: units.parse_real(v, "angle"))] = 0.0
+    orientation: Annotated[float, BeforeValidator(lambda v: units.parse_real(v, "angle")),
+                           BeforeValidator(_orientation)] = 0.0  # (validators run last first)
 
     @model_validator(mode="after")
     def _check(self) -> Bundle:

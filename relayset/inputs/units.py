@@ -97,7 +97,8 @@ def _to_si(magnitude: float, unit: str, kind: str) -> float:
     if unit == "":
         if kind == "dimensionless":
             return float(magnitude)
-        raise UnitRuleError(f"needs a unit of {kind.replace('_', ' ')} (for example '{target}')")
+        raise UnitRuleError(f"needs a unit of {kind.replace('_', ' ')} (for example "
+                            f"'{target_example(kind)}')")
     ureg = registry()
     try:
         q = ureg.Quantity(magnitude, unit)
@@ -122,7 +123,7 @@ def _unit_hint(unit: str, kind: str) -> str:
 
 def target_example(kind: str) -> str:
     """A unit of the kind to show in messages."""
-    return KINDS[kind] or "pu"
+    return {"angle": "deg", "voltage": "kV", "power": "MVA"}.get(kind, KINDS[kind] or "pu")
 
 
 def _decimal_comma(text: str) -> None:
@@ -164,7 +165,8 @@ def parse_real(value: Any, kind: str) -> float:
     _decimal_comma(text)
     m = _REAL.match(text)
     if not m:
-        raise UnitRuleError(f"is not a number followed by a unit (like '10 {KINDS[kind]}')")
+        raise UnitRuleError("is not a number followed by a unit (like "
+                            f"'10 {target_example(kind)}')")
     return _finite(_to_si(float(m.group(1)), m.group(2), kind))
 
 
