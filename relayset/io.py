@@ -108,13 +108,14 @@ def write_json(path: str | Path, obj: dict) -> None:
 CSV_DIGITS = 12
 
 
-def rows_to_csv(rows, *, columns: dict[str, str] | None = None) -> str:
-    """CSV text of (name, value, unit) rows, with a header line.
+def rows_to_csv(rows, header=("setting", "value", "unit"), *,
+                columns: dict[str, str] | None = None) -> str:
+    """CSV text of rows ending in (name, value, unit), with a header line.
 
-    ``columns`` (like line id, revision, relay end) are repeated on every row, first, so
-    that tables of several lines can be pasted together. Numbers are written with
-    :data:`CSV_DIGITS` significant digits; lines end in CR LF (RFC 4180). Write the text
-    with :data:`CSV_ENCODING` so a spreadsheet shows the ohm and degree signs.
+    ``columns`` (like line id and revision) are repeated first on every row, so that tables
+    of several lines can be pasted together. Numbers are written with :data:`CSV_DIGITS`
+    significant digits; lines end in CR LF (RFC 4180). Write the text with
+    :data:`CSV_ENCODING` so a spreadsheet shows the ohm and degree signs.
     """
     import csv
     import io as _io
@@ -122,10 +123,10 @@ def rows_to_csv(rows, *, columns: dict[str, str] | None = None) -> str:
     columns = columns or {}
     buf = _io.StringIO()
     w = csv.writer(buf, lineterminator="\r\n")
-    w.writerow([*columns, "setting", "value", "unit"])
-    for name, value, unit in rows:
+    w.writerow([*columns, *header])
+    for *lead, value, unit in rows:
         shown = value if isinstance(value, str) else format(float(value), f".{CSV_DIGITS}g")
-        w.writerow([*columns.values(), name, shown, unit])
+        w.writerow([*columns.values(), *lead, shown, unit])
     return buf.getvalue()
 
 

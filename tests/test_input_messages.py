@@ -263,7 +263,7 @@ def test_csv_is_spreadsheet_friendly(tmp_path, demo_path):
     raw = out.read_bytes()
     assert raw.startswith(b"\xef\xbb\xbf")  # UTF-8 byte-order mark
     rows = list(csv.reader(raw.decode("utf-8-sig").splitlines()))
-    assert rows[0][:3] == ["line_id", "revision", "relay_end"]
+    assert rows[0][:3] == ["line_id", "revision", "end"]
     assert all(r[:3] == ["NM-AB-1", "B", "Ashcombe"] for r in rows[1:]), rows[1]
     assert "Ω" in {r[5] for r in rows}
     for r in rows[1:]:

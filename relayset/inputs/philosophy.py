@@ -248,9 +248,9 @@ def load_philosophy(path: str | Path) -> Philosophy:
     except OSError as exc:
         rule = f"cannot read the philosophy file ({exc.strerror})"
         raise InputError(rule, source=source) from None
-    from relayset.inputs.study_file import parse_toml_bytes
+    from relayset.inputs.study_file import loads_toml
 
-    data = parse_toml_bytes(raw, source)  # byte-order mark accepted, duplicate keys named
+    data = loads_toml(raw, source)  # byte-order mark accepted, duplicate keys named
     return philosophy_from_dict(data, source)
 
 

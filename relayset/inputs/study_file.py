@@ -431,6 +431,9 @@ class AdjacentLine(_Model):
     name: _text(200)  # type: ignore[valid-type]
     z1: ComplexOhm | None = None  # type: ignore[valid-type]
     study: Annotated[str, AfterValidator(_path_text)] | None = None
+    #: the substation of this line the adjacent line leaves (default: for adjacent_lines the
+    #: relay's remote end, for lines_behind the relay's own end; needed when relay.end is both)
+    bus: _text(100) | None = None  # type: ignore[valid-type]
 
     @model_validator(mode="after")
     def _check(self) -> AdjacentLine:
@@ -604,11 +607,12 @@ def read_toml(path: str | Path) -> dict:
 
     A UTF-8 byte-order mark (as some editors write it) is accepted.
     """
-    return parse_toml_bytes(read_bytes(path), str(path))
+    return loads_toml(read_bytes(path), str(path))
 
 
 def read_bytes(path: str | Path) -> bytes:
-    """The bytes of an input file, or an InputError saying why they cannot be read."""
+    """The bytes of an input file, read once (the archive hashes exactly what was parsed);
+    an InputError says why they cannot be read."""
     p = Path(path)
     try:
         if p.is_dir():
@@ -620,8 +624,12 @@ def read_bytes(path: str | Path) -> bytes:
         raise InputError(f"cannot be read ({exc.strerror or exc})", source=str(path)) from None
 
 
-def parse_toml_bytes(raw: bytes, source: str) -> dict:
-    """Decode (UTF-8, optional byte-order mark) and parse TOML text."""
+def loads_toml(raw: bytes, source: str) -> dict:
+    """Decode (UTF-8, optional byte-order mark) and parse TOML bytes.
+
+    Bad TOML or text that is not UTF-8 is an InputError naming the file; a key given twice
+    is named by its dotted path.
+    """
     try:
         text = raw.decode("utf-8-sig")
     except UnicodeDecodeError:
@@ -744,6 +752,11 @@ def check_study(study: Study, data: dict, source: str) -> None:
             if ft not in FAULT_TYPES:
                 fail("unknown fault type; use " + ", ".join(FAULT_TYPES)
                      + suggest(ft, FAULT_TYPES), f"reach_study.fault_types[{k}]", ft)
+    for which in ("adjacent_lines", "lines_behind"):
+        for k, line in enumerate(getattr(study, which)):
+            if line.bus is not None and line.bus not in ends:
+                fail("is not an end of this line" + suggest(line.bus, ends),
+                     f"{which}[{k}].bus", line.bus)
     if study.load is not None and study.load.power_flows:
         missing = [e for e in ends if e not in study.sources]
         if missing:
@@ -769,11 +782,20 @@ def check_reach_inputs(study: Study, source: str) -> None:
 
 
 def check_settings_inputs(study: Study, source: str) -> None:
-    """What the settings need beyond the reach study: a [load] table."""
+    """What the settings need beyond the reach study: a [load] table, and with a relay at
+    both ends the bus each adjacent line leaves."""
     check_reach_inputs(study, source)
     if study.load is None:
         raise InputError("settings need a [load] table (maximum load, minimum voltage)",
                          field="load", source=source)
+    if study.relay is not None and study.relay.end == "both":
+        ends = study.ends
+        for which in ("adjacent_lines", "lines_behind"):
+            for k, line in enumerate(getattr(study, which)):
+                if line.bus is None:
+                    raise InputError(
+                        f"say which end the line leaves ({ends[0]!r} or {ends[1]!r}): "
+                        "relay.end is 'both'", field=f"{which}[{k}].bus", source=source)
 
 
 def study_warnings(study: Study) -> tuple[str, ...]:
