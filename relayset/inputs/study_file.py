@@ -194,7 +194,7 @@ class SystemData(_Model):
 
     @model_validator(mode="after")
     def _check(self) -> SystemData:
-        from relayset.physics.earth import EARTH_MODELS
+        from relayset.physics.earth_models import EARTH_MODELS
 
         if self.earth_model not in EARTH_MODELS:
             raise ValueError(
