@@ -28,7 +28,11 @@ SOLID_GMR_FACTOR: float = math.exp(-0.25)
 
 #: Aluminium wire counts per layer, innermost first, for common stranding codes.
 #: Standard concentric lay (each layer adds six wires for equal diameters; ACSR aluminium
-#: layers over a steel core follow the published constructions).
+#: layers over a steel core follow the published constructions). Source: the construction
+#: tables of ASTM B231/B231M (all-aluminium) and ASTM B232/B232M (ACSR); IEC 61089 /
+#: EN 50182 use the same lays. Rows entered from memory, not checked against the standards.
+#: The (72, 7) row is wrong: a 72/7 ACSR has 9, 15, 21, 27 aluminium wires, and no layer
+#: can hold fewer wires than the one beneath it (tests/test_physics_models.py, xfail).
 ALUMINIUM_LAYERS: dict[tuple[int, int], tuple[int, ...]] = {
     (6, 1): (6,),
     (7, 0): (1, 6),
