@@ -8,14 +8,14 @@ comparison, for the untransposed line and an ideal cycle, then condenses the res
 
 from __future__ import annotations
 
-import cmath
 import math
 import warnings
 
 import numpy as np
 
-from relayset.errors import InputError, suggest
-from relayset.inputs.study_file import Study
+from relayset.errors import InputError
+from relayset.inputs.philosophy import Philosophy
+from relayset.inputs.study_file import Study, check_reach_inputs
 from relayset.physics import loadflow, measurement, network, transposition
 from relayset.results.parameters import LineParameters
 from relayset.results.reach import (
@@ -25,8 +25,11 @@ from relayset.results.reach import (
     ReachStudyResult,
     WorstCase,
 )
+from relayset.results.relay import RelayBasis
 from relayset.results.serialize import cplx
+from relayset.settings.zone1 import recommended_zone1_pct
 from relayset.studies.geometry import LineGeometry
+from relayset.studies.relay import line_ends
 
 LOOPS = ("AG", "BG", "CG", "AB", "BC", "CA")
 _LOOP_PHASES = {"AG": (0,), "BG": (1,), "CG": (2,), "AB": (0, 1), "BC": (1, 2), "CA": (2, 0)}
@@ -65,8 +68,7 @@ def fault_label(fault_type: str, labels: tuple[str, str, str]) -> str:
     return "-".join(parts + (["G"] if fault_type.endswith("G") else []))
 
 
-#: Smallest location step [%] and largest number of fault cases a reach study accepts.
-MIN_STEP_PCT = 0.01
+#: Largest number of fault cases a reach study solves (all arrangements).
 MAX_CASES = 10_000_000
 #: Fault cases solved and condensed at a time (bounds the sweep's memory).
 CHUNK_CASES = 100_000
@@ -96,8 +98,8 @@ def _positions_at(m: float, loop: str, orders, lengths, names) -> tuple[str, ...
 
 
 def run_reach_study(
-    study: Study, geo: LineGeometry, params: LineParameters, *, source: str,
-    zone1_reach_pct: float = 80.0, zone1_max_pct: float = 85.0, zone1_margin_pct: float = 0.0,
+    study: Study, geo: LineGeometry, params: LineParameters, relay: RelayBasis,
+    philosophy: Philosophy, *, source: str,
 ) -> ReachStudyResult:
     """Sweep faults over the real line and condense the reach errors per loop and end.
 
@@ -105,65 +107,31 @@ def run_reach_study(
     ----------
     study, geo, params
         The validated study, its geometry and its line parameters.
+    relay : RelayBasis
+        The relay ends and the Z1, k0 and k0m they are set with (resolved once).
+    philosophy : Philosophy
+        Gives the zone 1 reach at which over/underreach is reported (unless
+        ``reach_study.zone1_reach_pct`` is set), its cap and its margin.
     source : str
         The study file name, for error messages.
-    zone1_reach_pct : float
-        Zone 1 reach at which over/underreach is reported [% of line] (the philosophy's,
-        unless ``reach_study.zone1_reach_pct`` is set).
-    zone1_max_pct : float
-        The largest zone 1 reach the philosophy allows [%].
-    zone1_margin_pct : float
-        Margin short of the remote bus beyond the errors [%] (philosophy).
     """
     rs = study.reach_study
-    names = (study.study.from_substation, study.study.to_substation)
-    if study.relay is None:
-        raise InputError("the reach study needs a [relay] table (end, CT and VT ratios)",
-                         field="relay", source=source)
-    end = study.relay.end
-    if end == "both":
-        ends = list(names)
-    elif end in names:
-        ends = [end]
-    else:
-        raise InputError(
-            f"is not an end of this line; use {names[0]!r}, {names[1]!r} or 'both'"
-            + suggest(end, names), field="relay.end", value=end, source=source)
-    for key in study.sources:
-        if key not in names:
-            raise InputError("names no end of this line" + suggest(key, names),
-                             field=f"sources.{key}", source=source)
+    names = line_ends(study)
+    check_reach_inputs(study, source)  # the file's own rules were checked when it was read
+    ends = list(relay.ends)
     src = {n: build_source(study, n, source) for n in names}
-    if src[names[0]] is None and src[names[1]] is None:
-        raise InputError(f"give a source for {names[0]!r} or {names[1]!r} (or both)",
-                         field="sources", source=source)
     n_c = geo.n_circuits
-    if n_c == 1 and rs.parallel_circuit is not None:
-        raise InputError("the line has one circuit, so there is no parallel circuit to set",
-                         field="reach_study.parallel_circuit", value=rs.parallel_circuit,
-                         source=source)
     parallel = (rs.parallel_circuit or "in_service") if n_c == 2 else "in_service"
-    for ft in rs.fault_types:
-        if ft not in network.FAULT_TYPES:
-            raise InputError("unknown fault type; use " + ", ".join(network.FAULT_TYPES)
-                             + suggest(ft, network.FAULT_TYPES),
-                             field="reach_study.fault_types", value=ft, source=source)
+    zone1_max_pct = zone1_reach_pct = philosophy.zone1.reach_pct
+    zone1_margin_pct = philosophy.zone1.min_margin_pct
     z1_reach = rs.zone1_reach_pct or zone1_reach_pct
-    if not 0 < z1_reach < 100:
+    if not 0 < z1_reach < 100:  # the philosophy's value when the study gives none
         raise InputError("must be between 0 and 100 % of the line",
                          field="reach_study.zone1_reach_pct", value=z1_reach, source=source)
-    step = rs.location_step_pct
-    if step > 50:
-        raise InputError("must be at most 50 %", field="reach_study.location_step_pct",
-                         value=step, source=source)
     if rs.locations_pct is not None:
-        for x in rs.locations_pct:
-            if not 0 <= x <= 100:
-                raise InputError("fault locations must lie between 0 and 100 % of the line",
-                                 field="reach_study.locations_pct", value=x, source=source)
         m = np.array(rs.locations_pct, dtype=float) / 100
     else:
-        m = np.linspace(0.0, 1.0, max(2, round(100 / step)) + 1)
+        m = np.linspace(0.0, 1.0, max(2, round(100 / rs.location_step_pct)) + 1)
     m = np.unique(np.concatenate([m, [z1_reach / 100, 1.0]]))
     rf = np.array(rs.fault_resistances or (0.0,))
     if 0.0 not in rf:
@@ -171,20 +139,9 @@ def run_reach_study(
     scales = np.array([c.scale for c in rs.source_cases])
     angles = np.array(study.load.transfer_angles if study.load else (0.0,))
     if study.load and study.load.power_flows:
-        if src[names[0]] is None or src[names[1]] is None:
-            raise InputError("load cases given as power flows need sources at both ends",
-                             field="load.power_flows", source=source)
         angles = np.zeros(len(study.load.power_flows))  # replaced by the EMFs of each flow
 
-    # Relay settings: by default those of the ideally transposed line.
-    circ = params.circuits[0]
-    z1_set = study.relay.z1_set if study.relay.z1_set is not None else circ.z1_ohm
-    k0_set = (cmath.rect(study.relay.k0_set.magnitude, study.relay.k0_set.angle)
-              if study.relay.k0_set is not None else circ.k0.k0)
-    k0m_set = None
-    if n_c == 2:
-        k0m_set = (cmath.rect(study.relay.k0m_set.magnitude, study.relay.k0m_set.angle)
-                   if study.relay.k0m_set is not None else params.k0m)
+    z1_set, k0_set, k0m_set = relay.z1_set_ohm, relay.k0_set, relay.k0m_set
     budget = study.error_budget.total_pct
 
     lengths = np.array(geo.section_lengths_m)
@@ -208,11 +165,11 @@ def run_reach_study(
                              and _same_cascade(lines[k], line)), key)
     per_arrangement = len(rs.fault_types) * m.size * rf.size * scales.shape[0] * angles.size
     n_distinct = len(set(same_as.values()))
-    if step < MIN_STEP_PCT or per_arrangement * n_distinct > MAX_CASES:
+    if per_arrangement * n_distinct > MAX_CASES:  # the step itself is checked on reading
         raise InputError(
-            f"asks for {per_arrangement * n_distinct:,} fault cases; the study allows a "
-            f"location step of at least {MIN_STEP_PCT:g} % and at most {MAX_CASES:,} cases",
-            field="reach_study.location_step_pct", value=step, source=source)
+            f"asks for {per_arrangement * n_distinct:,} fault cases; the reach study solves "
+            f"at most {MAX_CASES:,}: use a coarser step or fewer resistances or cases",
+            field="reach_study.location_step_pct", value=rs.location_step_pct, source=source)
     labels = geo.phase_labels[0]
     variants = [(k, False) for k in plans]
     if n_c == 2 and parallel == "in_service" and rs.mutual_compensation:
@@ -264,7 +221,7 @@ def run_reach_study(
                 key, emfs[same_as[key]], rs, labels, ords, lens, geo.position_names))
         actual = arrs[0]
         worst = actual.worst_bolted_overreach_at_remote_bus_pct
-        rec = measurement.recommended_zone1_pct(worst, budget, zone1_max_pct, zone1_margin_pct)
+        rec = recommended_zone1_pct(worst, budget, zone1_max_pct, zone1_margin_pct)
         gov = max((lp for lp in actual.loops if lp.over_at_remote_bus is not None),
                   key=lambda lp: lp.over_at_remote_bus.error_pct, default=None)
         end_results.append(EndReach(

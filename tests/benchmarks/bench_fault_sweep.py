@@ -91,21 +91,22 @@ def demo_variant(folder: Path, step_pct: float) -> Path:
 
 def reach_study_runner(path: Path):
     """A warm, in-process reach study of a study file (parsing and parameters done once)."""
-    from relayset.api import load_study
     from relayset.studies.geometry import build_geometry
     from relayset.studies.parameters import compute_parameters
+    from relayset.studies.pipeline import load
     from relayset.studies.reach import run_reach_study
+    from relayset.studies.relay import resolve_relay
     from relayset.studies.settings import study_philosophy
 
-    study, _, _ = load_study(path)
-    geo = build_geometry(study, str(path))
+    src = str(path)
+    study = load(path).study
+    geo = build_geometry(study, src)
     params = compute_parameters(geo)
-    z1 = study_philosophy(study, str(path)).zone1
+    relay = resolve_relay(study, params, source=src)
+    philosophy = study_philosophy(study, src)
 
     def run():
-        return run_reach_study(study, geo, params, source=str(path),
-                               zone1_reach_pct=z1.reach_pct, zone1_max_pct=z1.reach_pct,
-                               zone1_margin_pct=z1.min_margin_pct)
+        return run_reach_study(study, geo, params, relay, philosophy, source=src)
 
     return run
 

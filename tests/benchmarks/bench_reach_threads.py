@@ -23,15 +23,19 @@ DEMO = demo_lines_dir() / "greyholt_ivel_400kv_twin.toml"
 LIMITS = {"OMP_NUM_THREADS": "1", "OPENBLAS_NUM_THREADS": "1", "MKL_NUM_THREADS": "1"}
 WARM = """
 import sys, timeit
-from relayset.api import load_study
 from relayset.studies.geometry import build_geometry
 from relayset.studies.parameters import compute_parameters
+from relayset.studies.pipeline import load
 from relayset.studies.reach import run_reach_study
+from relayset.studies.relay import resolve_relay
+from relayset.studies.settings import study_philosophy
 path = sys.argv[1]
-study, _, _ = load_study(path)
+study = load(path).study
 geo = build_geometry(study, path)
 params = compute_parameters(geo)
-run = lambda: run_reach_study(study, geo, params, source=path)
+relay = resolve_relay(study, params, source=path)
+phil = study_philosophy(study, path)
+run = lambda: run_reach_study(study, geo, params, relay, phil, source=path)
 run()
 print(min(timeit.repeat(run, number=1, repeat=7)))
 """
