@@ -598,12 +598,15 @@ def solve_fault_sweep(
     # (Rf, K, L, M), so that every element-wise step runs over contiguous locations; the
     # result fields are views with the documented axis order.
     n_b = len(blocks)
-    z_th = -np.transpose(out[..., :3, n_l:], (2, 3, 1, 0))[:, :, None, :, None, :]
-    v_pre = np.transpose(out[..., :3, :n_l], (2, 1, 3, 0))[:, None]  # (3, 1, K, L, M)
-    pre_o = np.transpose(out[..., 3:, :n_l].reshape(n_m, n_k, n_b, 3, n_l),
-                         (2, 3, 1, 4, 0))[:, :, None]  # (B, 3, 1, K, L, M)
-    sens_o = np.transpose(out[..., 3:, n_l:].reshape(n_m, n_k, n_b, 3, 3),
-                          (4, 2, 3, 1, 0))[..., None, :, None, :]  # (j, B, 3, 1, K, 1, M)
+    def tr(a: np.ndarray, axes: tuple[int, ...]) -> np.ndarray:  # transposed copy
+        return np.ascontiguousarray(np.transpose(a, axes))
+
+    z_th = -tr(out[..., :3, n_l:], (2, 3, 1, 0))[:, :, None, :, None, :]
+    v_pre = tr(out[..., :3, :n_l], (2, 1, 3, 0))[:, None]  # (3, 1, K, L, M)
+    pre_o = tr(out[..., 3:, :n_l].reshape(n_m, n_k, n_b, 3, n_l),
+               (2, 3, 1, 4, 0))[:, :, None]  # (B, 3, 1, K, L, M)
+    sens_o = tr(out[..., 3:, n_l:].reshape(n_m, n_k, n_b, 3, 3),
+                (4, 2, 3, 1, 0))[..., None, :, None, :]  # (j, B, 3, 1, K, 1, M)
     res = np.empty((n_b, 3, len(ftypes), rf.size, n_k, n_l, n_m), dtype=complex)
     i_fault = np.zeros((3, len(ftypes), rf.size, n_k, n_l, n_m), dtype=complex)
     rf_b, rp_b = rf[:, None, None, None], rp[:, None, None, None]

@@ -399,6 +399,8 @@ class _Condenser:
     def result(self, key, emfs, rs, labels, orders, lengths, position_names) -> ArrangementReach:
         """The condensed results, reported under arrangement name ``key``."""
         emf_s, emf_r = emfs
+        angle = np.angle(emf_s) - np.angle(emf_r)  # (K, L) transfer angles [rad]
+        ft_labels = [fault_label(ft, labels) for ft in self.ftypes]
 
         def case(lp, pick):
             has_finite, val, idx = self.best[(lp, pick)]
@@ -407,10 +409,9 @@ class _Condenser:
             f, k_m, k_rf, k_s, k_l = idx
             mm = float(self.m[k_m])
             return WorstCase(
-                error_pct=val, fault_type=fault_label(self.ftypes[f], labels), m=mm,
+                error_pct=val, fault_type=ft_labels[f], m=mm,
                 r_fault_ohm=float(self.rf[k_rf]), source_case=rs.source_cases[k_s].name,
-                transfer_angle_deg=math.degrees(float(np.angle(emf_s[k_s, k_l])
-                                                      - np.angle(emf_r[k_s, k_l]))),
+                transfer_angle_deg=math.degrees(float(angle[k_s, k_l])),
                 positions=_positions_at(mm, lp, orders, lengths, position_names))
 
         summaries = [LoopSummary(loop=_loop_label(lp, labels),
