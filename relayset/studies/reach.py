@@ -70,8 +70,10 @@ def fault_label(fault_type: str, labels: tuple[str, str, str]) -> str:
 
 #: Largest number of fault cases a reach study solves (all arrangements).
 MAX_CASES = 10_000_000
-#: Fault cases solved and condensed at a time (bounds the sweep's memory).
+#: Fault cases solved and condensed at a time (bounds the sweep's memory, some 0.5 kB a
+#: case while a chunk is worked on), and the most at one location (the smallest chunk).
 CHUNK_CASES = 100_000
+MAX_CASES_PER_LOCATION = 400_000
 
 
 def _same_cascade(a: network.LineCascade, b: network.LineCascade) -> bool:
@@ -165,6 +167,12 @@ def run_reach_study(
                              and _same_cascade(lines[k], line)), key)
     per_arrangement = len(rs.fault_types) * m.size * rf.size * scales.shape[0] * angles.size
     n_distinct = len(set(same_as.values()))
+    per_location = per_arrangement // m.size
+    if per_location > MAX_CASES_PER_LOCATION:  # one location is the smallest chunk
+        raise InputError(
+            f"asks for {per_location:,} fault cases at each location (fault types x "
+            f"resistances x source cases x load cases); at most {MAX_CASES_PER_LOCATION:,}",
+            field="reach_study", source=source)
     if per_arrangement * n_distinct > MAX_CASES:  # the step itself is checked on reading
         raise InputError(
             f"asks for {per_arrangement * n_distinct:,} fault cases; the reach study solves "
@@ -186,7 +194,7 @@ def run_reach_study(
                     k0m_set if mutual else None, z1_reach, rs.fault_types, rf, m)
     outputs = [o for e in ends for o in (("v_s", "i_s", "i_s_parallel") if e == names[0]
                                          else ("v_r", "i_r", "i_r_parallel"))]
-    m_chunk = max(1, CHUNK_CASES // max(1, per_arrangement // m.size))
+    m_chunk = max(1, CHUNK_CASES // per_location)
     emfs = {}
     for key, line in lines.items():
         if same_as[key] != key:
