@@ -108,13 +108,13 @@ def test_chunked_sweep_condenses_to_the_same_results(demo_path, monkeypatch):
 
 def test_too_many_cases_at_one_location_are_refused(variant, capsys):
     # Rule (memory bound): one location is the smallest chunk of the sweep, so the cases
-    # at one location are limited: 10 types x 200 resistances x 100 source cases x 2 loads
-    # = 400 000 at most; 1 more source case is refused naming the table.
+    # at one location are limited to 200 000: 10 types x 100 resistances x 100 source
+    # cases x 2 loads is the most; 1 more source case is refused naming the table.
     def edit(data):
         rs = data.setdefault("reach_study", {})
-        rs["fault_resistances"] = [f"{r} ohm" for r in range(200)]
+        rs["fault_resistances"] = [f"{r} ohm" for r in range(100)]
         rs["source_cases"] = [{"name": f"c{k}", "scale": 1.0} for k in range(101)]
 
     assert main(["reach", str(variant(DEMO_1C, edit))]) == 2
     err = capsys.readouterr().err.strip()
-    assert "reach_study" in err and "404,000 fault cases at each location" in err
+    assert "reach_study" in err and "202,000 fault cases at each location" in err

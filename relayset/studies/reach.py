@@ -73,7 +73,7 @@ MAX_CASES = 10_000_000
 #: Fault cases solved and condensed at a time (bounds the sweep's memory, some 0.5 kB a
 #: case while a chunk is worked on), and the most at one location (the smallest chunk).
 CHUNK_CASES = 100_000
-MAX_CASES_PER_LOCATION = 400_000
+MAX_CASES_PER_LOCATION = 200_000
 
 
 def _same_cascade(a: network.LineCascade, b: network.LineCascade) -> bool:

@@ -9,7 +9,8 @@
 3. The same study at a 0.12 % location step (100 080 cases per arrangement). Target:
    under 100 ms.
 4. Peak memory of a whole ``relayset reach`` process at a 0.01 % step (the smallest the
-   study accepts; 3.6 million cases). Target: under 300 MB.
+   study accepts; 3.6 million cases), and with the most cases one location may have.
+   Target: under 300 MB.
 
 Run on demand, single-threaded BLAS::
 
@@ -89,6 +90,29 @@ def demo_variant(folder: Path, step_pct: float) -> Path:
     return path
 
 
+def widest_location_variant(folder: Path) -> Path:
+    """The 230 kV double-circuit demo at the most cases one location may have (the smallest
+    chunk of the sweep): 10 types x 100 resistances x 100 source cases x 2 loads, relays at
+    both ends, shunt capacitance on."""
+    from relayset.resources import demo_lines_dir
+
+    name = "elsford_fallowby_230kv_double.toml"
+    data = tomllib.loads((demo_lines_dir() / name).read_text("utf-8"))
+    phil = data["study"].get("philosophy", "default")
+    if phil != "default":
+        data["study"]["philosophy"] = str(demo_lines_dir() / phil)
+    rs = data.setdefault("reach_study", {})
+    rs["fault_resistances"] = [f"{r} ohm" for r in range(100)]
+    rs["source_cases"] = [{"name": f"c{k}", "scale": 1.0 + k / 100} for k in range(100)]
+    rs["location_step_pct"] = 12.5
+    rs["shunt_capacitance"] = True
+    data["relay"]["end"] = "both"
+    data.setdefault("load", {})["transfer_angles"] = ["0 deg", "10 deg"]
+    path = folder / "bench_widest.toml"
+    path.write_text(dump_toml(data), "utf-8")
+    return path
+
+
 def reach_study_runner(path: Path):
     """A warm, in-process reach study of a study file (parsing and parameters done once)."""
     from relayset.studies.geometry import build_geometry
@@ -163,6 +187,12 @@ def main(argv: list[str]) -> None:
             rss = peak_rss_mb(path)
             print(f"relayset reach at 0.01 % step (3 x 1 200 120 cases): peak RSS {rss:.0f} MB,"
                   f" {timeit.default_timer() - t0:.1f} s whole process")
+            path = widest_location_variant(Path(tmp))
+            t0 = timeit.default_timer()
+            rss = peak_rss_mb(path)
+            print(f"relayset reach, 230 kV double circuit, both ends, 200 000 cases at each "
+                  f"location (6 million cases): peak RSS {rss:.0f} MB, "
+                  f"{timeit.default_timer() - t0:.1f} s whole process")
 
 
 if __name__ == "__main__":
