@@ -42,9 +42,65 @@ def _parser() -> argparse.ArgumentParser:
     study_cmd("reach", "fault study: per-loop reach error of the real (partly transposed) line")
     p = study_cmd("settings", "distance-zone settings under the setting philosophy")
     p.add_argument("--csv", metavar="PATH", help="write the settings table as CSV")
+    _fleet_parsers(sub)
     sub.add_parser("conductors", help="list the built-in conductor table")
     sub.add_parser("earth-models", help="list the earth-return models")
     return ap
+
+
+# --- fleet: batch and demo (relayset/fleet/) ---------------------------------------------
+def _fleet_parsers(sub) -> None:
+    p = sub.add_parser("batch", help="compute and report every line of a folder or line register",
+                       description="Compute, report and register every study in a folder "
+                       "(recursively) or every row of a line register (.csv or .xlsx).")
+    p.add_argument("source", metavar="PATH", help="folder of study files, or a line register")
+    _fleet_options(p)
+    p = sub.add_parser("demo", help="run the shipped demo fleet end to end",
+                       description="Compute, report and register the shipped demo lines.")
+    _fleet_options(p)
+
+
+def _fleet_options(p) -> None:
+    p.add_argument("-o", "--out", required=True, metavar="OUT", help="output folder")
+    p.add_argument("--jobs", type=int, default=None, metavar="N",
+                   help="local worker processes (default: one per core; 1 = no pool)")
+    p.add_argument("--cluster", metavar="ADDRESS", default=None,
+                   help="Dask distributed scheduler to send the work to (tcp://host:8786); "
+                   "needs relayset[cluster]")
+    p.add_argument("--force", action="store_true",
+                   help="recompute lines whose outputs match their input hash and version")
+    p.add_argument("--no-report", dest="report", action="store_false",
+                   help="results JSON and register only, no HTML/PDF reports")
+
+
+def _run_fleet(args) -> int:
+    from relayset.errors import InputError
+    from relayset.fleet.batch import run_batch, run_demo
+
+    if args.jobs is not None and args.jobs < 1:
+        raise InputError("must be 1 or more", field="--jobs", value=args.jobs,
+                         source="command line")
+    opts = {"workers": args.jobs, "cluster": args.cluster, "force": args.force,
+            "report": args.report}
+    try:
+        if args.command == "demo":
+            s = run_demo(args.out, **opts)
+        else:
+            s = run_batch(args.source, args.out, **opts)
+    except KeyboardInterrupt:
+        print("relayset: interrupted; the register lists the lines that finished",
+              file=sys.stderr)
+        return 130
+    print(f"{s.total} line(s): {s.computed} computed, {s.skipped} up to date, "
+          f"{len(s.failures)} failed, in {s.seconds:.1f} s")
+    for p in s.register:
+        print(f"  {p}")
+    if s.failures:
+        print(f"relayset: {len(s.failures)} line(s) failed:", file=sys.stderr)
+        for _, err in s.failures:
+            print(f"  {err}", file=sys.stderr)
+        return EXIT_INPUT
+    return 0
 
 
 def _files(args) -> list[str]:
@@ -64,6 +120,8 @@ def _files(args) -> list[str]:
 
 
 def _run(args) -> int:
+    if args.command in ("batch", "demo"):
+        return _run_fleet(args)
     if args.command == "conductors":
         from relayset.inputs.conductors import builtin_table
 

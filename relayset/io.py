@@ -25,6 +25,12 @@ def _clean(obj: Any) -> Any:
     return obj
 
 
+def _umask() -> int:
+    mask = os.umask(0)
+    os.umask(mask)
+    return mask
+
+
 def write_atomic(path: str | Path, data: str | bytes) -> None:
     """Write a file so that readers see either the old file or the whole new one."""
     target = Path(path)
@@ -32,6 +38,7 @@ def write_atomic(path: str | Path, data: str | bytes) -> None:
     mode = "wb" if isinstance(data, bytes) else "w"
     fd, tmp = tempfile.mkstemp(prefix=f".{target.name}.", dir=target.parent)
     try:
+        os.chmod(tmp, 0o666 & ~_umask())  # mkstemp makes 0600; outputs follow the user's umask
         with os.fdopen(fd, mode, **({} if mode == "wb" else {"encoding": "utf-8"})) as fh:
             fh.write(data)
         os.replace(tmp, target)
