@@ -294,7 +294,7 @@ def rx_svg(end: dict[str, Any], extra_loci: list[tuple[str, list[complex]]] | No
             arc = [zmin * cmath.exp(1j * (base + a))
                    for a in [-phi + 2 * phi * i / 40 for i in range(41)]]
             outer = [far * cmath.exp(1j * (base + phi)), far * cmath.exp(1j * (base - phi))]
-            region = [*arc, *outer] if base == 0.0 else [*arc, *outer]
+            region = [*arc, *outer]
             hp = ax.fill([q.real for q in region], [q.imag for q in region], facecolor="none",
                          edgecolor="0.45", hatch="\\\\\\", lw=0.5,
                          label=f"load region (|Z| ≥ {zmin:.1f} Ω, ±{math.degrees(phi):.0f}°)")
