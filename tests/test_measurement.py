@@ -16,9 +16,9 @@ from relayset.physics.measurement import (
     loop_impedances,
     loops_for_fault,
     reach_error_pct,
-    recommended_zone1_pct,
 )
 from relayset.physics.network import FAULT_TYPES
+from relayset.settings.zone1 import recommended_zone1_pct
 
 
 def test_loop_impedances_invert_the_loop_equations():

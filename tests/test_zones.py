@@ -9,6 +9,7 @@ import pytest
 
 from relayset.physics import zones as zp
 from relayset.physics.sequence import residual_compensation, residual_compensation_split
+from relayset.settings.checks import line_class
 
 # ---------------------------------------------------------------- Warrington
 
@@ -146,11 +147,11 @@ def test_sir_and_line_class_thresholds():
     # IEEE Std C37.113-2015, IEEE Guide for Protective Relay Applications to Transmission
     # Lines, line-length classes by SIR (thresholds from memory): short >= 4, long <= 0.5.
     assert float(zp.sir(3 + 40j, 0.3 + 4j)) == pytest.approx(10.0, rel=1e-12)
-    assert zp.line_class(4.0) == "short"
-    assert zp.line_class(3.99) == "medium"
-    assert zp.line_class(0.51) == "medium"
-    assert zp.line_class(0.5) == "long"
-    assert list(zp.line_class(np.array([10.0, 1.0, 0.1]))) == ["short", "medium", "long"]
+    assert line_class(4.0) == "short"
+    assert line_class(3.99) == "medium"
+    assert line_class(0.51) == "medium"
+    assert line_class(0.5) == "long"
+    assert list(line_class(np.array([10.0, 1.0, 0.1]))) == ["short", "medium", "long"]
 
 
 def _infeed_by_circuit(zs, zl, zr, zx):

@@ -29,10 +29,6 @@ WARRINGTON_WIND_SI = 3.0 * FT_M / MPH_M_PER_S
 #: Current exponent of Warrington's formula [1].
 WARRINGTON_EXPONENT = 1.4
 
-# Line-length classes of IEEE Std C37.113-2015 [2] by source-to-line impedance ratio. The
-# thresholds are quoted from memory of that guide (short SIR >= 4, long SIR <= 0.5).
-SIR_SHORT_MIN = 4.0
-SIR_LONG_MAX = 0.5
 
 
 def warrington_arc_resistance_ohm(
@@ -367,26 +363,6 @@ def sir(z_source_ohm: complex | np.ndarray, z_line_ohm: complex | np.ndarray) ->
     return np.abs(np.asarray(z_source_ohm, dtype=complex)) / np.abs(
         np.asarray(z_line_ohm, dtype=complex)
     )
-
-
-def line_class(sir_value: float | np.ndarray) -> str | np.ndarray:
-    """Line-length class by SIR per IEEE Std C37.113-2015 [2] (thresholds from memory).
-
-    short: SIR >= 4; medium: 0.5 < SIR < 4; long: SIR <= 0.5.
-
-    Parameters
-    ----------
-    sir_value : float or array
-        Source-to-line impedance ratio [1].
-
-    Returns
-    -------
-    str or ndarray of str
-        ``"short"``, ``"medium"`` or ``"long"``.
-    """
-    s = np.asarray(sir_value, dtype=float)
-    out = np.where(s >= SIR_SHORT_MIN, "short", np.where(s <= SIR_LONG_MAX, "long", "medium"))
-    return str(out) if out.ndim == 0 else out
 
 
 def infeed_factor(

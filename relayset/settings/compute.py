@@ -1,0 +1,327 @@
+r"""Distance-zone settings from line data and a setting philosophy.
+
+:func:`compute_settings` turns :class:`SettingsInputs` (line impedances, instrument
+transformer ratios, load, neighbouring lines, sources) and a
+:class:`relayset.inputs.philosophy.Philosophy` into a frozen :class:`SettingsResult`: reaches of
+zones 1, 2, 3 and reverse in primary and secondary ohms, the characteristic parameters, k0
+in three forms, the load check, SIR and line class, and warnings.
+
+Conventions
+-----------
+- Impedances are per phase in the positive-sequence plane [ohm]; percentages of the line
+  are of :math:`|Z_{1,line}|`.
+- Each zone rule gives a *target* impedance :math:`Z_t` the zone must just reach. A mho
+  zone's diameter at the characteristic angle θ passes through it,
+  :math:`D = |Z_t|/\cos(\arg Z_t - θ)`; a quadrilateral's reactive reach is
+  :math:`X = \mathrm{Im}\,Z_t`.
+- Infeed: targets beyond the remote bus are :math:`Z_L + K\,m\,Z_{adj}` (see
+  :func:`relayset.physics.zones.infeed_factor`). The zone 2 check against the adjacent
+  line's zone 1 is made without infeed (K = 1): when the remote source is out of service,
+  zone 2 reaches furthest.
+- Resistive reach (quadrilateral), in the same per-phase plane: phase loops see half the
+  phase-to-phase arc resistance, :math:`R_{ph} = (1+m)\,R_{arc}/2`; ground loops with
+  residual compensation see :math:`R_f/(1+k_0)`, taken by magnitude,
+  :math:`R_g = (1+m)\,(R_{arc} + R_{tower})/|1+k_0|` (single-end feed; remote infeed into
+  the fault resistance is not included). The arc current is ``arc_current_a`` if given,
+  otherwise the smallest phase-to-phase fault current at the remote bus fed from the relay
+  end alone, :math:`I = V_{LL}/|2(Z_S + Z_L)|` (smallest current, largest arc resistance);
+  the same current is used for the ground arc since the zero-sequence source is unknown.
+- Load: :math:`|Z_{load,min}| = (v_{min} V_n)^2/S_{max}` at angles within
+  ±``load_angle_max_rad`` of 0 (export) and of π (import).
+"""
+
+from __future__ import annotations
+
+import cmath
+import math
+from dataclasses import replace
+from typing import Any
+
+import numpy as np
+
+from relayset.errors import InputError
+from relayset.inputs.philosophy import Philosophy, default_philosophy
+from relayset.physics import zones as zp
+from relayset.physics.sequence import residual_compensation, residual_compensation_split
+from relayset.results.parameters import K0
+from relayset.results.settings import Check, LoadCheck, SettingsResult, SourceEnd, ZoneSetting
+from relayset.settings.checks import SIR_SHORT_MIN, line_class
+from relayset.settings.context import ZONE_LABELS, RuleContext, pick_line
+from relayset.settings.inputs import _SOURCE, SettingsInputs
+from relayset.settings.resistive import arc_current, load_rays
+from relayset.settings.reverse import reverse_target
+from relayset.settings.zone1 import zone1_target
+from relayset.settings.zone2 import zone2_target
+from relayset.settings.zone3 import zone3_target
+
+
+def compute_settings(
+    inputs: SettingsInputs, philosophy: Philosophy | None = None
+) -> SettingsResult:
+    """Distance-zone settings for one relay.
+
+    Parameters
+    ----------
+    inputs : SettingsInputs
+        Line, transformer, load, network and reach-study data [SI].
+    philosophy : Philosophy, optional
+        Setting rules; default :func:`relayset.inputs.philosophy.default_philosophy`.
+
+    Returns
+    -------
+    SettingsResult
+
+    Raises
+    ------
+    InputError
+        Data the philosophy needs is missing (arc lengths and current for quadrilaterals), or
+        the load angle leaves no room for a resistive blinder.
+    """
+    ph = philosophy if philosophy is not None else default_philosophy()
+    i = inputs
+    w = RuleContext(i, ph)
+    zl = i.z1_line_ohm
+    theta = cmath.phase(zl)
+    fsec = i.ct_ratio / i.vt_ratio
+
+    def sec(x: Any) -> Any:
+        z = zp.secondary_ohm(x, i.ct_ratio, i.vt_ratio)
+        return complex(z) if isinstance(x, complex) else float(z)
+
+    # k0 in three forms, all from one k0 (given, or from the line totals).
+    # The line's own k0 is the reference a given k0 is compared with; a given Z1 replica
+    # does not change it (k0 is a property of the line).
+    k0_calc = (i.k0_line if i.k0_line is not None
+               else complex(residual_compensation(zl, i.z0_line_ohm)))
+    k0 = i.k0 if i.k0 is not None else k0_calc
+    z0_eff = zl * (1 + 3 * k0)
+    if i.k0 is not None and abs(k0 - k0_calc) > 1e-3 * abs(k0_calc):
+        w.warn(
+            "k0_differs_from_line",
+            f"the given k0 = {abs(k0):.4g}∠{math.degrees(cmath.phase(k0)):.2f}° differs from "
+            f"(Z0 − Z1)/(3 Z1) = {abs(k0_calc):.4g}∠{math.degrees(cmath.phase(k0_calc)):.2f}° "
+            "of the line totals; the given k0 is used",
+            "check which k0 the relay should use (e.g. the reach study's effective value)",
+        )
+    zc = i.z1_line_computed_ohm
+    if zc is not None and abs(zl - zc) > 0.01 * abs(zc):
+        w.warn(
+            "z1_differs_from_line",
+            f"the given Z1 replica {abs(zl):.4g} Ω∠{math.degrees(cmath.phase(zl)):.2f}° differs "
+            f"from the computed line Z1 {abs(zc):.4g} Ω∠{math.degrees(cmath.phase(zc)):.2f}° "
+            f"by {100 * abs(zl - zc) / abs(zc):.3g} %; every reach follows the given value",
+            "check the source of relay.z1_set (measured, or another line model)",
+        )
+    kr, kx = residual_compensation_split(zl, z0_eff)
+    k0_forms = K0(k0=k0, kr=float(kr), kx=float(kx), z0_over_z1=1 + 3 * k0)
+
+    # Load.
+    z_load = float(zp.min_load_impedance_ohm(i.v_min_pu * i.v_nominal_ll_v, i.s_max_va))
+    phi = i.load_angle_max_rad
+    enc_pct = ph.load.encroachment_limit_pct
+
+    # Sources: SIR and line class.
+    sources = []
+    for role, end, zs in (("relay", i.end, i.source_z1_relay_ohm),
+                          ("remote", i.remote_end, i.source_z1_remote_ohm)):
+        if zs is not None:
+            s = float(zp.sir(zs, zl))
+            sources.append(SourceEnd(end, zs, s, str(line_class(s)), role=role))
+    if sources and sources[0].role == "relay" and sources[0].line_class == "short":
+        w.warn(
+            "short_line",
+            f"short line by SIR (SIR = {sources[0].sir:.3g} >= {SIR_SHORT_MIN:g} at the relay "
+            "end): zone 1 underreach accuracy is poor",
+            "consider a pilot scheme or line differential protection, and a shorter zone 1",
+        )
+
+    # Quadrilateral data.
+    quad = ph.characteristic.shape == "quadrilateral"
+    arc_i = arc_current(i)
+    r_limit = None
+    if quad:
+        for name in ("arc_length_phase_m", "arc_length_ground_m"):
+            if getattr(i, name) is None:
+                raise InputError("is needed for a quadrilateral characteristic", field=name,
+                                 source=_SOURCE)
+        if arc_i is None:
+            raise InputError(
+                "is needed for a quadrilateral characteristic (or give source_z1_relay_ohm)",
+                field="arc_current_a", source=_SOURCE,
+            )
+        # Blinder parallel to the line angle through the load point at the largest angle.
+        r_limit = ph.resistive.load_limit_pct / 100 * z_load * (
+            math.cos(phi) - math.sin(phi) / math.tan(theta)
+        )
+        if r_limit <= 0:
+            raise InputError(
+                "leaves no room for a resistive blinder (the load angle reaches the line angle)",
+                field="load_angle_max_rad", value=phi, source=_SOURCE,
+            )
+    if ph.characteristic.mho_angle_deg == "line":
+        char_angle = theta
+    else:
+        char_angle = math.radians(float(ph.characteristic.mho_angle_deg))
+
+    # Zone targets.
+    t1, rule1, checks1 = zone1_target(w)
+    t2, rule2, k2 = zone2_target(w)
+    t3, rule3, k3 = zone3_target(w)
+    tr, ruler = reverse_target(w)
+    specs = [
+        ("zone1", t1, rule1, ph.zone1.delay_s, None, checks1),
+        ("zone2", t2, rule2, ph.zone2.delay_s, k2, []),
+        ("zone3", t3, rule3, ph.zone3.delay_s, k3, []),
+        ("reverse", tr, ruler, ph.reverse.delay_s, None, []),
+    ]
+
+    built: list[ZoneSetting] = []
+    for zone, target, rule, delay, k, checks in specs:
+        label = ZONE_LABELS[zone]
+        forward = zone != "reverse"
+        mho: dict[str, Any] = dict(char_angle_rad=None, mho_diameter_primary_ohm=None,
+                                   mho_diameter_secondary_ohm=None)
+        qd: dict[str, Any] = dict(
+            x_reach_primary_ohm=None, x_reach_secondary_ohm=None,
+            r_reach_phase_primary_ohm=None, r_reach_phase_secondary_ohm=None,
+            r_reach_ground_primary_ohm=None, r_reach_ground_secondary_ohm=None,
+            arc_resistance_phase_ohm=None, arc_resistance_ground_ohm=None,
+        )
+        if not quad:
+            ang = char_angle if forward else math.remainder(char_angle + math.pi, 2 * math.pi)
+            d = float(zp.mho_diameter_for_point_ohm(target, ang))
+            mho.update(char_angle_rad=ang, mho_diameter_primary_ohm=d,
+                       mho_diameter_secondary_ohm=sec(d))
+            reach_load = zp.mho_reach_along_ohm(d, ang, load_rays(phi, [ang]))
+        else:
+            rs = ph.resistive
+            t_arc = delay if rs.arc_time_s == "zone_delay" else float(rs.arc_time_s)
+            ra_ph = float(zp.warrington_arc_resistance_ohm(
+                arc_i, i.arc_length_phase_m, rs.wind_speed_m_per_s, t_arc))
+            ra_g = float(zp.warrington_arc_resistance_ohm(
+                arc_i, i.arc_length_ground_m, rs.wind_speed_m_per_s, t_arc))
+            m = 1 + rs.margin_pct / 100
+            r_ph = m * ra_ph / 2
+            r_g = m * (ra_g + i.tower_footing_ohm) / abs(1 + k0)
+            cut = max(r_ph, r_g) > r_limit
+            checks.append(Check(
+                "resistive_load_limit", not cut,
+                f"resistive reach phase {r_ph:.4g} Ω, ground {r_g:.4g} Ω against the load "
+                f"limit {r_limit:.4g} Ω (primary)",
+            ))
+            if cut:
+                w.warn(
+                    f"{zone}_resistive_reach_limited_by_load",
+                    f"{label}: resistive reach cut to {r_limit:.4g} Ω primary "
+                    f"({ph.resistive.load_limit_pct:g} % of the minimum load resistance); "
+                    f"the arc and footing resistance needs phase {r_ph:.4g} Ω, ground "
+                    f"{r_g:.4g} Ω",
+                    "accept less resistive coverage, or use load-encroachment blocking or a "
+                    "pilot scheme for high-resistance faults",
+                )
+                r_ph, r_g = min(r_ph, r_limit), min(r_g, r_limit)
+            x = float(target.imag if forward else -target.imag)
+            qd.update(
+                x_reach_primary_ohm=x, x_reach_secondary_ohm=sec(x),
+                r_reach_phase_primary_ohm=r_ph, r_reach_phase_secondary_ohm=sec(r_ph),
+                r_reach_ground_primary_ohm=r_g, r_reach_ground_secondary_ohm=sec(r_g),
+                arc_resistance_phase_ohm=ra_ph, arc_resistance_ground_ohm=ra_g,
+            )
+            reach_load = np.concatenate([
+                zp.quad_reach_along_ohm(
+                    x, r, theta,
+                    load_rays(phi, np.angle(zp.quad_vertices_ohm(x, r, theta, forward=forward))),
+                    forward=forward)
+                for r in (r_ph, r_g)
+            ])
+        load_pct = float(np.max(reach_load)) / z_load * 100
+        # A blinder cut to the load limit lands exactly on it; allow for rounding.
+        enc_ok = load_pct <= enc_pct * (1 + 1e-9)
+        checks.append(Check(
+            "load_encroachment", enc_ok,
+            f"reach along the load angles is {load_pct:.4g} % of the minimum load impedance "
+            f"(limit {enc_pct:g} %)",
+        ))
+        if not enc_ok:
+            w.warn(
+                f"{zone}_load_encroachment",
+                f"{label} reaches {load_pct:.4g} % of the minimum load impedance "
+                f"{z_load:.4g} Ω along the load angles (limit {enc_pct:g} %)",
+                "reduce the reach, use a quadrilateral or a load-encroachment blinder",
+            )
+        built.append(ZoneSetting(
+            zone=zone, direction="forward" if forward else "reverse", rule=rule,
+            reach_primary_ohm=complex(target), reach_secondary_ohm=sec(complex(target)),
+            reach_pct=abs(target) / abs(zl) * 100, delay_s=delay,
+            shape=ph.characteristic.shape, infeed_factor=k, **mho, **qd,
+            load_reach_pct_of_min=load_pct, checks=tuple(checks),
+        ))
+
+    zs = {z.zone: z for z in built}
+    # Zone 2 against the adjacent line's zone 1, without infeed (the furthest zone 2 reaches).
+    z2p = ph.zone2
+    if z2p.check_adjacent_zone1 and i.adjacent_lines:
+        name, zadj = pick_line(i.adjacent_lines, longest=False)
+        point = zl + z2p.adjacent_zone1_pct / 100 * zadj
+        past = bool(zs["zone2"].contains(point, theta))
+        _add_check(zs, "zone2", Check(
+            "past_adjacent_zone1", not past,
+            f"end of zone 1 of '{name}' ({z2p.adjacent_zone1_pct:g} % of it, "
+            f"{abs(point):.4g} Ω from the relay) is {'inside' if past else 'outside'} zone 2",
+        ))
+        if past:
+            w.warn(
+                "zone2_past_adjacent_zone1",
+                f"Zone 2 reaches past zone 1 of the shortest adjacent line '{name}' when there is "
+                "no infeed",
+                "reduce zone 2, or raise its time delay to grade with the adjacent zone 2",
+            )
+    # Reaches must grow from zone 1 to zone 3 along the line angle.
+    for lo, hi in (("zone1", "zone2"), ("zone2", "zone3")):
+        ok = zs[hi].reach_pct > zs[lo].reach_pct
+        _add_check(zs, hi, Check(
+            f"reach_above_{lo}", ok,
+            f"{zs[hi].reach_pct:.4g} % of the line against {zs[lo].reach_pct:.4g} % for {lo}",
+        ))
+        if not ok:
+            w.warn(
+                f"{hi}_not_above_{lo}",
+                f"{ZONE_LABELS[hi]} ({zs[hi].reach_pct:.4g} %) does not reach beyond "
+                f"{ZONE_LABELS[lo]} ({zs[lo].reach_pct:.4g} %)",
+                "review the philosophy percentages for this line's neighbours",
+            )
+    if not i.adjacent_lines:
+        w.warn(
+            "no_adjacent_line",
+            f"no adjacent line given: zone 2 is {zs['zone2'].reach_pct:.4g} % and zone 3 "
+            f"{zs['zone3'].reach_pct:.4g} % of the line, and zone 2 was not checked against "
+            "the adjacent zone 1",
+            "give the lines leaving the remote bus",
+        )
+
+    return SettingsResult(
+        end=i.end,
+        remote_end=i.remote_end,
+        line_z1_primary_ohm=zl,
+        line_z1_secondary_ohm=sec(zl),
+        line_angle_rad=theta,
+        length_m=i.length_m,
+        secondary_factor=fsec,
+        zones=tuple(zs[n] for n in ("zone1", "zone2", "zone3", "reverse")),
+        k0=k0_forms,
+        k0m=i.k0m,
+        load=LoadCheck(
+            z_min_primary_ohm=z_load,
+            z_min_secondary_ohm=sec(z_load),
+            load_angle_max_rad=phi,
+            encroachment_limit_pct=enc_pct,
+            r_limit_primary_ohm=r_limit,
+        ),
+        sources=tuple(sources),
+        arc_current_a=arc_i,
+        warnings=tuple(w.warnings),
+    )
+
+
+def _add_check(zs: dict[str, ZoneSetting], zone: str, check: Check) -> None:
+    zs[zone] = replace(zs[zone], checks=(*zs[zone].checks, check))

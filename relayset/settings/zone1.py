@@ -1,0 +1,112 @@
+r"""Zone 1: the one place where its reach is chosen.
+
+Derivation
+----------
+A relay set at reach r (percent of the line) can reach further than set by the error budget
+b (CT, VT, relay and line-data errors, summed) and by the overreach e that the reach study
+found for the meant loops at the remote bus (underreach, e < 0, is not counted in favour).
+Both are fractions of the setting, so the worst-case reach is r (1 + (b + max(0, e))/100),
+and it must stay the philosophy's margin short of the remote bus.
+"""
+
+from __future__ import annotations
+
+import math
+
+from relayset.errors import InputError
+from relayset.results.settings import Check
+from relayset.settings.context import RuleContext
+
+
+def recommended_zone1_pct(
+    worst_overreach_pct: float,
+    error_budget_pct: float,
+    philosophy_max_pct: float,
+    margin_pct: float = 0.0,
+) -> float:
+    r"""Largest zone 1 reach whose worst-case reach stays short of the remote bus.
+
+    A relay set at reach r (percent of the line) can reach further than set by the error
+    budget b (CT, VT, relay and line-data errors, summed) and by the untransposition
+    overreach e that the study computed for the meant loops (underreach, e < 0, is not
+    counted in favour). Both are fractions of the setting, so the worst-case reach is
+    :math:`r\,(1 + (b + \max(0, e))/100)`, and it must stay at least the margin m short
+    of the remote bus:
+
+    .. math:: r \le \frac{100 - m}{1 + (b + \max(0, e))/100}\ [\%]
+
+    capped at the protection philosophy's zone 1 and rounded down to 0.5 %.
+
+    Parameters
+    ----------
+    worst_overreach_pct : float
+        Worst reach error of the meant loops over all studied cases [%] (positive:
+        overreach).
+    error_budget_pct : float
+        Sum of the CT, VT, relay and line-data errors [%], >= 0.
+    philosophy_max_pct : float
+        Zone 1 reach of the protection philosophy, the upper limit [%], in (0, 100].
+    margin_pct : float
+        Extra margin short of the remote bus beyond the errors [%], in [0, 100).
+
+    Returns
+    -------
+    float
+        Recommended zone 1 reach [% of line].
+    """
+    for name, value in (("worst_overreach_pct", worst_overreach_pct),
+                        ("error_budget_pct", error_budget_pct),
+                        ("philosophy_max_pct", philosophy_max_pct),
+                        ("margin_pct", margin_pct)):
+        if not math.isfinite(value):
+            raise InputError("must be a finite number", field=name, value=value)
+    if error_budget_pct < 0:
+        raise InputError("error budget must not be negative", field="error_budget_pct",
+                         value=error_budget_pct)
+    if not 0 < philosophy_max_pct <= 100:
+        raise InputError("maximum zone 1 reach must be in (0, 100] %",
+                         field="philosophy_max_pct", value=philosophy_max_pct)
+    if not 0 <= margin_pct < 100:
+        raise InputError("margin must be in [0, 100) %", field="margin_pct", value=margin_pct)
+    total = error_budget_pct + max(0.0, worst_overreach_pct)
+    limit = (100.0 - margin_pct) / (1 + total / 100)
+    reach = min(limit, philosophy_max_pct)
+    # Round down to 0.5 %; the small tolerance keeps e.g. 84.99999999999999 at 85.
+    return max(0.0, math.floor(reach * 2 + 1e-9) / 2)
+
+
+def zone1_target(w: RuleContext) -> tuple[complex, str, list[Check]]:
+    i, z1 = w.inputs, w.ph.zone1
+    pct = z1.reach_pct
+    rule = f"{pct:g} % of the line"
+    limit = 100.0 - z1.min_margin_pct
+    rec, over = i.recommended_zone1_pct, i.worst_overreach_pct
+    # The recommendation already carries the error budget: below the setting, it rules.
+    exceeds = rec is not None and rec < pct
+    if over is not None:
+        exceeds = exceeds or pct * (1 + over / 100) > limit
+    if exceeds and z1.reduce_to_reach_study and rec is not None and rec < pct:
+        w.warn(
+            "zone1_reduced_by_reach_study",
+            f"Zone 1 reduced from {pct:g} % to the reach study's recommended {rec:g} % of the "
+            "line (worst-case overreach plus the error budget exceed the margin)",
+            "check the reach study's assumptions (transposition, earth resistivity)",
+        )
+        rule = f"{rec:g} % of the line (reach study recommendation; philosophy {pct:g} %)"
+        pct = rec
+    elif exceeds:
+        w.warn(
+            "zone1_overreach_exceeds_margin",
+            f"Zone 1 at {pct:g} % of the line may overreach past the margin of "
+            f"{z1.min_margin_pct:g} % short of the remote bus",
+            "reduce zone 1 (to the reach study's recommended value if given), or allow the "
+            "automatic reduction in the philosophy",
+        )
+    checks = []
+    if over is not None:
+        eff = pct * (1 + over / 100)
+        checks.append(Check(
+            "reach_study_margin", eff <= limit,
+            f"worst-case reach {eff:.4g} % of the line against the limit {limit:g} %",
+        ))
+    return pct / 100 * i.z1_line_ohm, rule, checks
