@@ -51,8 +51,8 @@ def _parser() -> argparse.ArgumentParser:
     p.add_argument("-o", "--output", required=True, metavar="DIR", help="output folder")
     p.add_argument("--paper", choices=("a4", "letter"), default="a4",
                    help="paper size (default: a4)")
-    p.add_argument("--units", choices=("si", "us"), default="si",
-                   help="units of lengths in the report (default: si)")
+    p.add_argument("--units", choices=("si", "us"), default=None,
+                   help="units of lengths in the report (default: those of the study file)")
     # --- end report ---
     sub.add_parser("conductors", help="list the built-in conductor table")
     sub.add_parser("earth-models", help="list the earth-return models")

@@ -39,10 +39,14 @@ def philosophy_path(results) -> Path:
     return path
 
 
-def make_report(results, *, units: str = "si", paper: str = "a4",
+def make_report(results, *, units: str | None = None, paper: str = "a4",
                 environ: dict[str, str] | None = None) -> ReportFiles:
-    """Render one study's report (HTML, PDF/A-3b and results JSON) from its results."""
+    """Render one study's report (HTML, PDF/A-3b and results JSON) from its results.
+
+    ``units`` None means the units the study file is written in.
+    """
     from relayset import io
+    from relayset.inputs.unit_system import study_unit_system
     from relayset.report.context import build_context, document_date
     from relayset.report.html import render_html
     from relayset.report.pdf import EmbeddedFile, html_to_pdf
@@ -56,7 +60,8 @@ def make_report(results, *, units: str = "si", paper: str = "a4",
         raise InputError("changed after it was read; run the report again", source=str(src))
     env = dict(os.environ if environ is None else environ)
     results_json = io.to_json(results.to_dict())
-    ctx = build_context(results, units=units, paper=paper, environ=env,
+    ctx = build_context(results, units=units or study_unit_system(results.study_input),
+                        paper=paper, environ=env,
                         results_json=results_json)
     html = render_html(ctx, study_bytes.decode("utf-8"))
     files = [
@@ -79,14 +84,15 @@ def make_report(results, *, units: str = "si", paper: str = "a4",
     return ReportFiles(ctx["doc_id"], html, pdf, results_json, str(src))
 
 
-def report_for_study(path: str | Path, units: str = "si", paper: str = "a4") -> ReportFiles:
+def report_for_study(path: str | Path, units: str | None = None,
+                     paper: str = "a4") -> ReportFiles:
     """Compute a study (parameters, reach study, settings) and render its report."""
     from relayset.api import study_settings
 
     return make_report(study_settings(path), units=units, paper=paper)
 
 
-def _worker(args: tuple[str, str, str]):
+def _worker(args: tuple[str, str | None, str]):
     path, units, paper = args
     try:
         return report_for_study(path, units, paper)
@@ -110,7 +116,7 @@ def check_output_dir(out_dir: str | Path) -> Path:
     return out
 
 
-def render_reports(paths: Sequence[str | Path], *, units: str = "si", paper: str = "a4",
+def render_reports(paths: Sequence[str | Path], *, units: str | None = None, paper: str = "a4",
                    jobs: int | None = None) -> list[ReportFiles]:
     """Render every study's report in memory; the first bad input raises InputError.
 

@@ -418,11 +418,13 @@ def _reach(d: dict[str, Any]) -> dict[str, Any] | None:
 
 
 def _zone(name: str, z: dict[str, Any]) -> dict[str, Any]:
+    from relayset.settings.context import ZONE_LABELS
+
     P = PRECISION
     quad = z["shape"] == "quadrilateral"
     return {
         "zone": name,
-        "label": z["label"],
+        "label": ZONE_LABELS.get(name, name),
         "direction": z["direction"],
         "rule": z["rule"],
         "reach_pri": num(z["reach_primary_magnitude_ohm"], P["ohm"]),
@@ -441,34 +443,29 @@ def _zone(name: str, z: dict[str, Any]) -> dict[str, Any]:
         "rph_sec": num(z["r_reach_phase_secondary_ohm"], P["ohm"]) if quad else None,
         "rg_pri": num(z["r_reach_ground_primary_ohm"], P["ohm"]) if quad else None,
         "rg_sec": num(z["r_reach_ground_secondary_ohm"], P["ohm"]) if quad else None,
-        "arc_ph": num(z["arc_resistance_phase_ohm"], 2),
-        "arc_g": num(z["arc_resistance_ground_ohm"], 2),
         "load_pct": num(z["load_reach_pct_of_min"], 1),
         "checks": [{"id": c["check_id"], "passed": c["passed"], "detail": c["detail"]}
                    for c in z["checks"]],
     }
 
 
-def _settings_ends(r, d: dict[str, Any]) -> list[dict[str, Any]]:
-    """One block per relay end. Today the results hold one SettingsResult; a sequence (one
-    per end) is laid out the same way, end by end."""
-    if r.settings is None:
+def _settings_ends(d: dict[str, Any]) -> list[dict[str, Any]]:
+    """One block per relay end, in the order of the results (``settings.ends``)."""
+    if d.get("settings") is None:
         return []
-    many = isinstance(r.settings, list | tuple)
-    objs = list(r.settings) if many else [r.settings]
-    dicts = [s.to_dict() for s in objs] if many else [d["settings"]]
-    reach_ends = [e["end"] for e in d["reach_study"]["ends"]] if d.get("reach_study") else []
-    relay_end = str((r.study_input.get("relay", {}) or {}).get("end", ""))
+    from relayset.settings.context import ZONE_LABELS
+
     P = PRECISION
     out = []
-    for i, (obj, s) in enumerate(zip(objs, dicts, strict=True)):
-        end = getattr(obj, "end", None) or (reach_ends[i] if i < len(reach_ends)
-                                             else relay_end)
+    for i, s in enumerate(d["settings"]["ends"]):
         line = s["line"]
         k0 = s["k0"]
         load = s["load"]
+        zones = {name: dict(z, label=ZONE_LABELS.get(name, name))
+                 for name, z in s["zones"].items()}
         out.append({
-            "end": str(end),
+            "end": str(s["end"]),
+            "remote_end": str(s.get("remote_end", "")),
             "index": i,
             "z1_pri": cnum(line["z1_primary_ohm"], P["ohm"]),
             "z1_sec": cnum(line["z1_secondary_ohm"], P["ohm"]),
@@ -476,30 +473,29 @@ def _settings_ends(r, d: dict[str, Any]) -> list[dict[str, Any]]:
             "z1_sec_mag": num(math.hypot(*line["z1_secondary_ohm"]), P["ohm"]),
             "angle": num(line["angle_deg"], P["deg"]),
             "secondary_factor": num(line["secondary_factor"], 5),
-            "k0_mag": num(k0["k0_magnitude"], P["pu"]),
-            "k0_ang": num(k0["k0_angle_deg"], P["deg"]),
+            "k0_mag": num(k0["k0"]["magnitude"], P["pu"]),
+            "k0_ang": num(k0["k0"]["angle_deg"], P["deg"]),
             "kr": num(k0["kr"], P["pu"]),
             "kx": num(k0["kx"], P["pu"]),
-            "z0z1_mag": num(k0["z0_over_z1_magnitude"], P["pu"]),
-            "z0z1_ang": num(k0["z0_over_z1_angle_deg"], P["deg"]),
-            "k0m": None if s["k0m"] is None else pnum(
-                {"magnitude": s["k0m"]["k0m_magnitude"],
-                 "angle_deg": s["k0m"]["k0m_angle_deg"]}, P["pu"]),
+            "z0z1_mag": num(k0["z0_over_z1"]["magnitude"], P["pu"]),
+            "z0z1_ang": num(k0["z0_over_z1"]["angle_deg"], P["deg"]),
+            "k0m": None if s["k0m"] is None else pnum(s["k0m"], P["pu"]),
             "load_zmin_pri": num(load["z_min_primary_ohm"], P["ohm"]),
             "load_zmin_sec": num(load["z_min_secondary_ohm"], P["ohm"]),
             "load_angle": num(load["load_angle_max_deg"], P["deg"]),
             "encroachment_limit": num(load["encroachment_limit_pct"], 1),
             "r_limit": num(load["r_limit_primary_ohm"], P["ohm"]),
-            "sources": [{"end": x["end"], "z": cnum(x["z_source_ohm"], P["ohm"]),
+            "sources": [{"end": f"{x['end']} ({x.get('role', '')})",
+                         "z": cnum(x["z_source_ohm"], P["ohm"]),
                          "sir": num(x["sir"], 2), "line_class": x["line_class"]}
                         for x in s["sources"]],
             "arc_current": num(s["arc_current_a"], 0),
             "zones": [_zone(name, z) for name, z in s["zones"].items()],
             "warnings": [{"rule_id": w["rule_id"], "message": w["message"],
                           "consider": w["consider"]} for w in s["warnings"]],
-            "failed_checks": [(z["label"], c["check_id"]) for z in s["zones"].values()
+            "failed_checks": [(name, c["check_id"]) for name, z in s["zones"].items()
                               for c in z["checks"] if not c["passed"]],
-            "settings_dict": s,
+            "settings_dict": {**s, "zones": zones},
         })
     return out
 
@@ -559,7 +555,7 @@ def build_context(results, *, units: str = "si", paper: str = "a4",
     ident = _identity(results, d, u)
     dates = document_date(d["study"], dict(os.environ if environ is None else environ))
     verification = _verification(results)
-    settings = _settings_ends(results, d)
+    settings = _settings_ends(d)
     reach = _reach(d)
     failed = verification["verdict"] == "failed checks" or any(
         s["failed_checks"] for s in settings)

@@ -25,23 +25,19 @@ class EmbeddedFile:
     relationship: str  #: "Source" for inputs, "Data" for results
 
 
-class FetchRefused(Exception):
-    """Raised for any URL the report tries to load (it must load none)."""
-
-
-def _fetcher_class():
+def refusing_fetcher(requested: list[str] | None = None):
+    """A WeasyPrint URL fetcher that refuses every URL (and notes it in ``requested``)."""
     from weasyprint.urls import FatalURLFetchingError, URLFetcher
 
     class RefuseAll(URLFetcher):
         """Refuses every URL: the report's HTML is self-contained."""
 
-        requested: list[str] = []
-
         def fetch(self, url, headers=None):
-            RefuseAll.requested.append(url)
+            if requested is not None:
+                requested.append(url)
             raise FatalURLFetchingError(f"the report loads no external resource: {url}")
 
-    return RefuseAll
+    return RefuseAll()
 
 
 @contextmanager
@@ -72,7 +68,8 @@ def _dedupe_af(document, pdf) -> None:
     af[:] = unique
 
 
-def html_to_pdf(html: str, files: Sequence[EmbeddedFile], when: dt.datetime) -> bytes:
+def html_to_pdf(html: str, files: Sequence[EmbeddedFile], when: dt.datetime,
+                requested: list[str] | None = None) -> bytes:
     """PDF/A-3b bytes of the report.
 
     Parameters
@@ -83,11 +80,13 @@ def html_to_pdf(html: str, files: Sequence[EmbeddedFile], when: dt.datetime) -> 
         Associated files, embedded in name order.
     when : datetime
         Creation and modification date of the embedded files (UTC).
+    requested : list, optional
+        Receives every URL the document tried to load (loading any is an error).
     """
     import weasyprint
 
     mimetypes.add_type("application/toml", ".toml")  # unknown to Python 3.11
-    fetcher = _fetcher_class()()
+    fetcher = refusing_fetcher(requested)
     with _source_date_epoch(when):
         doc = weasyprint.HTML(string=html, url_fetcher=fetcher, base_url=None)
         attachments = [

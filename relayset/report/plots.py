@@ -247,7 +247,7 @@ def rx_svg(end: dict[str, Any], extra_loci: list[tuple[str, list[complex]]] | No
         ax.set_aspect("equal", adjustable="box")
         pts: list[complex] = [0j, zl]
         handles = []
-        for k, (name, z) in enumerate(s["zones"].items()):
+        for k, z in enumerate(s["zones"].values()):
             style = {"color": GREYS[k % len(GREYS)], "ls": STYLES[k % len(STYLES)], "lw": 1.1}
             if z["shape"] == "mho":
                 dia = z["mho_diameter_primary_ohm"]
