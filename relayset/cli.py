@@ -42,6 +42,18 @@ def _parser() -> argparse.ArgumentParser:
     study_cmd("reach", "fault study: per-loop reach error of the real (partly transposed) line")
     p = study_cmd("settings", "distance-zone settings under the setting philosophy")
     p.add_argument("--csv", metavar="PATH", help="write the settings table as CSV")
+    # --- report (issue 11) ---
+    p = sub.add_parser("report", help="calculation report: HTML and archival PDF/A-3b",
+                       description="Write <line_id>_rev<revision>.html, .pdf (PDF/A-3b with the "
+                       "study, the philosophy and the results embedded) and .json per study.")
+    p.add_argument("files", nargs="*", metavar="FILE", help="study files (TOML)")
+    p.add_argument("--demo", action="store_true", help="report every shipped demo line")
+    p.add_argument("-o", "--output", required=True, metavar="DIR", help="output folder")
+    p.add_argument("--paper", choices=("a4", "letter"), default="a4",
+                   help="paper size (default: a4)")
+    p.add_argument("--units", choices=("si", "us"), default=None,
+                   help="units of lengths in the report (default: those of the study file)")
+    # --- end report ---
     _fleet_parsers(sub)
     sub.add_parser("conductors", help="list the built-in conductor table")
     sub.add_parser("earth-models", help="list the earth-return models")
@@ -136,6 +148,15 @@ def _run(args) -> int:
             print(f"{name:18s} {desc}")
         return 0
 
+    if args.command == "report":
+        from relayset.report import build
+
+        files = _files(args)
+        build.check_output_dir(args.output)
+        reports = build.render_reports(files, units=args.units, paper=args.paper)
+        for path in build.write_reports(reports, args.output):
+            print(f"report: {path.with_suffix('.html')} and {path.name}")
+        return 0
     from relayset import io
     from relayset.inputs.unit_system import study_unit_system
     from relayset.report import text

@@ -85,6 +85,15 @@ class StudyInfo(_Model):
     notes: str = ""
 
 
+class Revision(_Model):
+    """One entry of the revision history (``[[revisions]]``), printed in the report."""
+
+    revision: str
+    date: dt.date
+    description: str = ""
+    by: str = ""
+
+
 class SystemData(_Model):
     nominal_voltage: _quantity("voltage", gt=0)  # type: ignore[valid-type]
     frequency: _quantity("frequency", gt=0)  # type: ignore[valid-type]
@@ -303,6 +312,7 @@ class Study(_Model):
 
     schema_: str = Field(default=SCHEMA, alias="schema")
     study: StudyInfo
+    revisions: tuple[Revision, ...] = ()
     system: SystemData
     conductor_types: dict[str, ConductorType]
     circuits: tuple[Circuit] | tuple[Circuit, Circuit]
