@@ -66,17 +66,9 @@ def up_to_date(out_dir: Path, p: PlannedJob, version: str, report: bool) -> dict
         return None
     if d.get("source_sha256") != p.sha256 or d.get("relayset_version") != version:
         return None
-    if report and _report_available() and not (out_dir / f"{p.stem}.pdf").is_file():
+    if report and not all((out_dir / f"{p.stem}{s}").is_file() for s in (".pdf", ".html")):
         return None
     return d
-
-
-def _report_available() -> bool:
-    try:
-        from relayset.report import render_report_files  # type: ignore[attr-defined] # noqa: F401
-    except ImportError:
-        return False
-    return True
 
 
 def run_batch(source: str | Path, out_dir: str | Path, *, workers: int | None = None,

@@ -54,13 +54,8 @@ class PlannedJob:
 
 def safe_stem(line_id: str, revision: str) -> str:
     """The output file stem ``<line_id>_rev<revision>`` (the report's naming rule)."""
-    try:
-        from relayset.report.context import safe_stem as report_stem
-    except ImportError:  # the report package is not there: same rule
-        def clean(s: str) -> str:
-            return re.sub(r"[^A-Za-z0-9._-]+", "_", str(s)).strip("._") or "line"
+    from relayset.report.context import safe_stem as report_stem
 
-        return f"{clean(line_id)}_rev{clean(revision)}"
     return report_stem(line_id, revision)
 
 

@@ -41,15 +41,11 @@ def init_worker() -> None:
 
 
 def render_report(results) -> dict[str, bytes]:
-    """The calculation report of a study as files (``.html``, ``.pdf``), when available.
+    """The calculation report of a study as files by suffix (``.html``, ``.pdf``, ``.json``)."""
+    from relayset.report.build import make_report
 
-    Returns an empty mapping when the installed relayset has no report renderer yet.
-    """
-    try:
-        from relayset.report import render_report_files  # type: ignore[attr-defined]
-    except ImportError:
-        return {}
-    return dict(render_report_files(results))
+    r = make_report(results)
+    return {".html": r.html.encode("utf-8"), ".pdf": r.pdf, ".json": r.json.encode("utf-8")}
 
 
 def compute_line(index: int, study_path: str, stem: str, report: bool = True) -> Outcome:
@@ -75,11 +71,9 @@ def compute_line(index: int, study_path: str, stem: str, report: bool = True) ->
     try:
         results = pipeline.run(Path(study_path), reach=True, settings=True)
         d = results.to_dict()
-        files = render_report(results) if report else {}
-        files = {f"{stem}{Path(name).suffix}" if name.startswith(".") else name: data
-                 for name, data in files.items()}
-        files[f"{stem}.json"] = to_json(d).encode("utf-8")
-        report_file = next((n for n in files if n.endswith(".pdf")), None)
+        rendered = render_report(results) if report else {".json": to_json(d).encode()}
+        files = {f"{stem}{suffix}": data for suffix, data in rendered.items()}
+        report_file = f"{stem}.pdf" if report else None
         rows = tuple(rows_from_results(d, results_file=f"{stem}.json", report_file=report_file))
     except InputError as exc:
         return Outcome(index, stem, error=str(exc), seconds=time.perf_counter() - t0)
