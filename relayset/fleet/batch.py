@@ -109,6 +109,7 @@ def run_batch(source: str | Path, out_dir: str | Path, *, workers: int | None = 
     if out.exists() and not out.is_dir():
         raise InputError("the output folder is a file", field="-o", value=str(out),
                          source="command line")
+    client = runners.connect(cluster) if cluster else None  # unreachable: nothing written
     try:
         out.mkdir(parents=True, exist_ok=True)
     except OSError as exc:
@@ -174,7 +175,7 @@ def run_batch(source: str | Path, out_dir: str | Path, *, workers: int | None = 
                 written_inputs.add(i)
         tasks = [(i, str(p.study_path), p.stem, report) for i, p in planned.items()]
         if cluster:
-            results = runners.run_dask(tasks, cluster)
+            results = runners.run_dask(tasks, client)
         else:
             n = workers or runners.default_workers()
             n = min(n, max(1, len(tasks)))
@@ -197,6 +198,8 @@ def run_batch(source: str | Path, out_dir: str | Path, *, workers: int | None = 
         # interrupted or not: the register lists exactly the lines that finished
         refresh(final=True)
         progress.close()
+        if client is not None:
+            client.close()
         summary.seconds = time.monotonic() - t0
     return summary
 

@@ -45,30 +45,36 @@ def run_pool(tasks: Sequence[Task], workers: int) -> Iterator[Outcome]:
         pool.shutdown(wait=False, cancel_futures=True)
 
 
-def run_dask(tasks: Sequence[Task], address: str) -> Iterator[Outcome]:
-    """Send the lines to the Dask distributed scheduler at ``address``.
+def connect(address: str):
+    """A client of the Dask distributed scheduler at ``address`` (``tcp://host:8786``).
 
     The workers must see the study files at the same paths (a shared file system) and have
     the same relayset installed; they return the outputs, which this process writes.
     """
     try:
-        from distributed import Client, as_completed
+        from distributed import Client
     except ImportError:
         raise InputError("--cluster needs the optional extra: pip install 'relayset[cluster]'",
                          field="--cluster", value=address, source="command line") from None
     try:
-        client = Client(address, timeout="10s")
-    except (OSError, TimeoutError) as exc:
+        return Client(address, timeout="10s")
+    except (OSError, TimeoutError, ValueError) as exc:
         raise InputError(f"cannot reach the Dask scheduler ({exc})".replace("\n", " "),
                          field="--cluster", value=address, source="command line") from None
+
+
+def run_dask(tasks: Sequence[Task], client) -> Iterator[Outcome]:
+    """Compute the lines on the Dask cluster of ``client``."""
+    from distributed import as_completed
+
+    futures = [client.submit(compute_line, *t, pure=False,
+                             key=f"relayset-line-{t[0]}-{os.getpid()}") for t in tasks]
+    by_key = {f.key: t for f, t in zip(futures, tasks, strict=True)}
     try:
-        futures = [client.submit(compute_line, *t, pure=False, key=f"relayset-line-{t[0]}-"
-                                 f"{os.getpid()}") for t in tasks]
-        by_key = {f.key: t for f, t in zip(futures, tasks, strict=True)}
         for f in as_completed(futures):
             yield _result(f, by_key[f.key])
     finally:
-        client.close()
+        client.cancel(futures)
 
 
 def _result(future, task: Task) -> Outcome:
