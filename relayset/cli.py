@@ -67,6 +67,20 @@ def _fleet_parsers(sub) -> None:
                        "(recursively) or every row of a line register (.csv or .xlsx).")
     p.add_argument("source", metavar="PATH", help="folder of study files, or a line register")
     _fleet_options(p)
+    p = sub.add_parser("verify", help="check archived report PDFs against their embedded "
+                       "files and a recomputation",
+                       description="Check each archived report: embedded files against the "
+                       "printed and stored SHA-256, results against a recomputation with the "
+                       "installed relayset. Exit 0 only when everything matches.")
+    p.add_argument("reports", nargs="+", metavar="REPORT.pdf")
+    p = sub.add_parser("compare", help="what changed between two revisions of a line",
+                       description="Changed inputs, results and settings between two study "
+                       "files or archived report PDFs, as a table and an HTML and PDF change "
+                       "sheet.")
+    p.add_argument("old", metavar="OLD", help="study file or archived report PDF")
+    p.add_argument("new", metavar="NEW", help="study file or archived report PDF")
+    p.add_argument("-o", "--out", metavar="DIR", default=None,
+                   help="write the change sheet (HTML and PDF) here")
     p = sub.add_parser("demo", help="run the shipped demo fleet end to end",
                        description="Compute, report and register the shipped demo lines.")
     _fleet_options(p)
@@ -83,6 +97,34 @@ def _fleet_options(p) -> None:
                    help="recompute lines whose outputs match their input hash and version")
     p.add_argument("--no-report", dest="report", action="store_false",
                    help="results JSON and register only, no HTML/PDF reports")
+
+
+def _run_archive(args) -> int:
+    from relayset.errors import InputError
+
+    if args.command == "compare":
+        from relayset.archive.compare import compare, format_table, write_change_sheet
+
+        c = compare(args.old, args.new)
+        sys.stdout.write(format_table(c))
+        if args.out:
+            for path in write_change_sheet(c, args.out):
+                print(f"  {path}")
+        return 0
+    from relayset.archive.verify import format_verification, verify_report
+
+    code = 0
+    for pdf in args.reports:  # one bad file never stops the others
+        try:
+            v = verify_report(pdf)
+        except InputError as exc:
+            print(f"relayset: error: {exc}", file=sys.stderr)
+            code = max(code, EXIT_INPUT)
+            continue
+        sys.stdout.write(format_verification(v, all_checks=True))
+        if not v.passed:
+            code = max(code, 1)
+    return code
 
 
 def _run_fleet(args) -> int:
@@ -134,6 +176,8 @@ def _files(args) -> list[str]:
 def _run(args) -> int:
     if args.command in ("batch", "demo"):
         return _run_fleet(args)
+    if args.command in ("verify", "compare"):
+        return _run_archive(args)
     if args.command == "conductors":
         from relayset.inputs.conductors import builtin_table
 
