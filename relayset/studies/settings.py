@@ -16,7 +16,6 @@ from relayset.settings.compute import compute_settings
 from relayset.settings.inputs import SettingsInputs
 from relayset.studies.geometry import LineGeometry
 from relayset.studies.reach import build_source
-from relayset.studies.relay import line_ends
 
 #: Insulator flashover length per kV of nominal voltage for the ground-fault arc when the
 #: study gives none [m/kV] (common practice, no source: about 1.3 m at 132 kV).
@@ -42,7 +41,7 @@ def _lines_at(study: Study, relay_end: str, *, remote: bool, source: str
     """Lines leaving the relay's remote bus (``remote``) or its own bus, as (name, Z1)."""
     from relayset.studies.pipeline import line_parameters
 
-    names = line_ends(study)
+    names = study.ends
     other = names[1] if relay_end == names[0] else names[0]
     want = other if remote else relay_end
     out = []
@@ -78,7 +77,7 @@ def run_settings(study: Study, geo: LineGeometry, params: LineParameters, relay:
                  source: str) -> tuple[SettingsResult, ...]:
     """Settings of the relay at each of ``relay.ends``, in the study's end order."""
     check_settings_inputs(study, source)
-    names = line_ends(study)
+    names = study.ends
     out = []
     for end in relay.ends:
         other = names[1] if end == names[0] else names[0]
