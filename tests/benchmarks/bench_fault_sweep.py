@@ -126,7 +126,7 @@ def reach_study_runner(path: Path):
     study = load(path).study
     geo = build_geometry(study, src)
     params = compute_parameters(geo)
-    relay = resolve_relay(study, params, source=src)
+    relay = resolve_relay(study, params)
     philosophy = study_philosophy(study, src)
 
     def run():

@@ -33,7 +33,7 @@ path = sys.argv[1]
 study = load(path).study
 geo = build_geometry(study, path)
 params = compute_parameters(geo)
-relay = resolve_relay(study, params, source=path)
+relay = resolve_relay(study, params)
 phil = study_philosophy(study, path)
 run = lambda: run_reach_study(study, geo, params, relay, phil, source=path)
 run()
