@@ -5,9 +5,9 @@ from __future__ import annotations
 import math
 from pathlib import Path
 
-from relayset.errors import InputError, suggest
+from relayset.errors import InputError
 from relayset.inputs.philosophy import Philosophy, default_philosophy, load_philosophy
-from relayset.inputs.study_file import Study
+from relayset.inputs.study_file import Study, check_settings_inputs
 from relayset.results.parameters import LineParameters
 from relayset.results.reach import ReachStudyResult
 from relayset.results.relay import RelayBasis
@@ -16,7 +16,6 @@ from relayset.settings.compute import compute_settings
 from relayset.settings.inputs import SettingsInputs
 from relayset.studies.geometry import LineGeometry
 from relayset.studies.reach import build_source
-from relayset.studies.relay import line_ends
 
 #: Insulator flashover length per kV of nominal voltage for the ground-fault arc when the
 #: study gives none [m/kV] (common practice, no source: about 1.3 m at 132 kV).
@@ -42,22 +41,13 @@ def _lines_at(study: Study, relay_end: str, *, remote: bool, source: str
     """Lines leaving the relay's remote bus (``remote``) or its own bus, as (name, Z1)."""
     from relayset.studies.pipeline import line_parameters
 
-    names = line_ends(study)
+    names = study.ends
     other = names[1] if relay_end == names[0] else names[0]
     want = other if remote else relay_end
     out = []
     for which, default_bus in (("adjacent_lines", other), ("lines_behind", relay_end)):
         for k, line in enumerate(getattr(study, which)):
-            bus = line.bus
-            if bus is None:
-                if study.relay is not None and study.relay.end == "both":
-                    raise InputError(
-                        f"say which end the line leaves ({names[0]!r} or {names[1]!r}): "
-                        "relay.end is 'both'", field=f"{which}[{k}].bus", source=source)
-                bus = default_bus
-            elif bus not in names:
-                raise InputError("is not an end of this line" + suggest(bus, names),
-                                 field=f"{which}[{k}].bus", value=bus, source=source)
+            bus = line.bus or default_bus  # the bus rules are checked when the file is read
             if bus != want:
                 continue
             if line.z1 is not None:
@@ -86,10 +76,8 @@ def run_settings(study: Study, geo: LineGeometry, params: LineParameters, relay:
                  reach: ReachStudyResult | None, philosophy: Philosophy, *,
                  source: str) -> tuple[SettingsResult, ...]:
     """Settings of the relay at each of ``relay.ends``, in the study's end order."""
-    if study.load is None:
-        raise InputError("settings need a [load] table (maximum load, minimum voltage)",
-                         field="load", source=source)
-    names = line_ends(study)
+    check_settings_inputs(study, source)
+    names = study.ends
     out = []
     for end in relay.ends:
         other = names[1] if end == names[0] else names[0]
@@ -155,6 +143,8 @@ _STUDY_FIELDS = {
 
 def _in_study_terms(exc: InputError, source: str) -> InputError:
     """The settings error re-addressed to the study file and its field."""
+    if exc.source and exc.source != "<settings inputs>" and exc.source != source:
+        return exc  # an error in another file (an adjacent line's study) stays against it
     base, bracket, rest = exc.field.partition("[")
     field = _STUDY_FIELDS.get(base, base) + bracket + rest
     return InputError(exc.rule, field=field, value=exc.value, source=source)
