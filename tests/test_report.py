@@ -252,4 +252,5 @@ def test_unwritable_output_folder(tmp_path, demo_path, capsys):
                str(blocker / "sub")])
     err = capsys.readouterr().err
     assert rc == 2
-    assert "cannot write the output folder" in err and str(blocker / "sub") in err
+    assert "cannot write the output folder" in err and "file/sub" in err
+    assert "Not a directory" in err
