@@ -513,8 +513,8 @@ def solve_fault_sweep(
     parallel_state : str
         Circuit 2 state (six-conductor lines only): one of :data:`PARALLEL_STATES`.
     emf_v : (e_s, e_r), optional
-        Phase-A EMF phasors [V], shape (L,) or (K, L), e.g. from :func:`emfs_for_load`;
-        replaces ``transfer_angle_rad``.
+        Phase-A EMF phasors [V], shape (L,) or (K, L), e.g. from
+        :func:`~relayset.physics.loadflow.emfs_for_load`; replaces ``transfer_angle_rad``.
     field_names : mapping, optional
         Names to use in :class:`~relayset.errors.InputError` for the parameters above
         (e.g. ``{"m": "reach_study.fault_locations"}``).
