@@ -3,6 +3,7 @@
 from __future__ import annotations
 
 from dataclasses import dataclass
+from pathlib import PurePath
 from typing import Any
 
 from relayset.results.parameters import LineParameters
@@ -37,7 +38,7 @@ class StudyResults:
         d: dict[str, Any] = {
             "relayset_version": self.relayset_version,
             "caution": self.caution,
-            "source_file": self.source_file,
+            "source_file": PurePath(self.source_file).name,  # no folder: same bytes anywhere
             "source_sha256": self.source_sha256,
             "study": self.identity,
             "parameters": self.parameters.to_dict(),

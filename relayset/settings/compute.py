@@ -155,8 +155,9 @@ def compute_settings(
         )
         if r_limit <= 0:
             raise InputError(
-                "leaves no room for a resistive blinder (the load angle reaches the line angle)",
-                field="load_angle_max_rad", value=phi, source=_SOURCE,
+                f"leaves no room for a resistive blinder (the load angle reaches the line angle "
+                f"{math.degrees(theta):.4g} deg)",
+                field="load_angle_max_rad", value=f"{math.degrees(phi):g} deg", source=_SOURCE,
             )
     if ph.characteristic.mho_angle_deg == "line":
         char_angle = theta
