@@ -299,3 +299,27 @@ def test_bundle_orientation_words(variant, word, angle):
 
     by_word = with_orientation(word).circuits[0].positions[0].bundle.orientation
     assert by_word == with_orientation(angle).circuits[0].positions[0].bundle.orientation
+
+
+@pytest.mark.parametrize(("field", "value", "words"), [
+    ("ct_ratio", "1/400 A", "steps down"),
+    ("ct_ratio", "400/1 V", "in A, not V"),
+    ("vt_ratio", "66000/110 A", "in V, not A"),
+    ("vt_ratio", "0.11/132 kV", "steps down"),
+])
+def test_instrument_transformer_ratio_rules(variant, capsys, field, value, words):
+    # A CT or VT steps current or voltage down, and its ratio is in amperes or volts
+    # (IEC 61869-2/-3 rated quantities; from memory).
+    path = variant(DEMO_1C, lambda d: d["relay"].update({field: value}))
+    assert main(["params", str(path)]) == 2
+    err = capsys.readouterr().err.strip()
+    assert f"relay.{field}" in err and words in err and "\n" not in err
+
+
+def test_vt_ratio_checked_against_the_line_voltage(variant, capsys):
+    # A 132 kV VT ratio (1200) on a 66 kV line gives 55 V on the secondary: outside the
+    # 56-250 V of VT secondaries (common practice, no source).
+    path = variant(DEMO_1C, lambda d: d["system"].update(nominal_voltage="66 kV"))
+    assert main(["params", str(path)]) == 2
+    err = capsys.readouterr().err.strip()
+    assert "relay.vt_ratio" in err and "55 V on the secondary" in err

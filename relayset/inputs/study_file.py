@@ -323,17 +323,37 @@ class K0Setting(_Model):
     angle: Angle = 0.0  # type: ignore[valid-type]
 
 
-def _ratio(v: Any) -> float:
+def _ratio(v: Any, unit: str, what: str) -> float:
+    if isinstance(v, str):
+        m = re.match(rf"^\s*{units.NUMBER}\s*[/:]\s*{units.NUMBER}\s*([A-Za-z]*)\s*$", v)
+        written = m.group(1) if m else ""
+        if written and written.upper() != unit.upper() and not (
+                unit == "V" and written.lower() == "kv"):
+            raise ValueError(f"a {what} ratio is in {unit}, not {written}")
     r = units.parse_ratio(v)
     if r > 1e5:
         raise ValueError("must be at most 100000 (plausible range)")
+    if r < 1:
+        raise ValueError(f"a {what} steps down: write primary/secondary (ratio at least 1)")
     return r
+
+
+def _ct_ratio(v: Any) -> float:
+    return _ratio(v, "A", "CT")
+
+
+def _vt_ratio(v: Any) -> float:
+    return _ratio(v, "V", "VT")
+
+
+#: Plausible VT secondary voltage at nominal primary voltage [V] (common practice, no source).
+VT_SECONDARY_MIN_V, VT_SECONDARY_MAX_V = 56.0, 250.0
 
 
 class RelayData(_Model):
     end: _text(100, min_len=1)  # type: ignore[valid-type]
-    ct_ratio: Annotated[float, BeforeValidator(_ratio)]
-    vt_ratio: Annotated[float, BeforeValidator(_ratio)]
+    ct_ratio: Annotated[float, BeforeValidator(_ct_ratio)]
+    vt_ratio: Annotated[float, BeforeValidator(_vt_ratio)]
     z1_set: ComplexOhm | None = None  # type: ignore[valid-type]
     k0_set: K0Setting | None = None
     k0m_set: K0Setting | None = None
@@ -716,6 +736,16 @@ def check_study(study: Study, data: dict, source: str) -> None:
 
     if ends[0] == ends[1]:
         fail("must differ from study.from_substation", "study.to_substation", ends[1])
+    if study.relay is not None:
+        # VT secondaries are about 57.7-240 V (100-120 V line to line, or that over sqrt 3;
+        # 240 V in a few grids): common practice, no source. The bounds allow a VT primary a
+        # little off the nominal voltage; outside them the ratio or the voltage is wrong.
+        v_sec = study.system.nominal_voltage / study.relay.vt_ratio
+        if not VT_SECONDARY_MIN_V <= v_sec <= VT_SECONDARY_MAX_V:
+            fail(f"gives {v_sec:.4g} V on the secondary at the nominal "
+                 f"{_raw(data, 'system', 'nominal_voltage')}; VT secondaries are "
+                 f"{VT_SECONDARY_MIN_V:g}-{VT_SECONDARY_MAX_V:g} V: check the ratio against "
+                 "the line voltage", "relay.vt_ratio", _raw(data, "relay", "vt_ratio"))
     names = [c.name for c in study.circuits]
     if len(set(names)) != len(names):
         fail("the two circuits need different names", "circuits[1].name", names[1])

@@ -31,7 +31,8 @@ KINDS: dict[str, str] = {
     "dimensionless": "",
 }
 
-_NUM = r"[+-]?(?:\d+\.?\d*|\.\d+)(?:[eE][+-]?\d+)?"
+#: A decimal number as written in a study file (regular expression, no groups).
+NUMBER = _NUM = r"[+-]?(?:\d+\.?\d*|\.\d+)(?:[eE][+-]?\d+)?"
 _REAL = re.compile(rf"^\s*({_NUM})\s*(.*?)\s*$")
 _DECIMAL_COMMA = re.compile(r"^\s*[+-]?\d+,\d+")
 
