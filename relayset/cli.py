@@ -168,8 +168,8 @@ def _files(args) -> list[str]:
     if not files:
         raise InputError("give at least one study FILE or --demo", source="command line")
     if (getattr(args, "json", None) or getattr(args, "csv", None)) and len(files) > 1:
-        raise InputError("--json/--csv take one study file at a time",
-                         source="command line", field="FILE", value=len(files))
+        raise InputError(f"--json and --csv take one study file at a time, not {len(files)} "
+                         "(use 'relayset batch' for many)", source="command line")
     return files
 
 

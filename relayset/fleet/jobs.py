@@ -38,7 +38,7 @@ class Job:
     path: Path  #: the study file
     status: str | None = None  #: status override from the register
     philosophy: Path | None = None  #: philosophy override from the register (absolute)
-    error: str | None = None  #: the row is unusable (one line)
+    error: InputError | None = None  #: why the row is unusable
 
 
 @dataclass(frozen=True)
@@ -157,16 +157,16 @@ def _row_job(register: Path, n: int, row: dict[str, str]) -> Job:
     study = row.get("study", "")
     if not study:
         return Job(label, register, error=InputError("is empty", field="study",
-                                                     source=label).args[0])
+                                                     source=label))
     path = resolve(study)
     if not path.is_file():
         return Job(label, path, error=InputError("study file does not exist", field="study",
-                                                 value=study, source=label).args[0])
+                                                 value=study, source=label))
     status = row.get("status") or None
     if status is not None and status not in STATUSES:
         return Job(label, path, error=InputError(
             "must be one of " + ", ".join(STATUSES), field="status", value=status,
-            source=label).args[0])
+            source=label))
     phil_text = row.get("philosophy") or None
     philosophy = None
     if phil_text is not None:
@@ -174,7 +174,7 @@ def _row_job(register: Path, n: int, row: dict[str, str]) -> Job:
         if not philosophy.is_file():
             return Job(label, path, error=InputError(
                 "philosophy file does not exist", field="philosophy", value=phil_text,
-                source=label).args[0])
+                source=label))
     return Job(label, path, status=status, philosophy=philosophy)
 
 
@@ -189,8 +189,8 @@ def plan_job(job: Job, out_dir: Path) -> PlannedJob:
     """
     from relayset.inputs.study_file import loads_toml, read_bytes
 
-    if job.error:
-        raise InputError(job.error)
+    if job.error is not None:
+        raise job.error
     src = str(job.path)
     data = read_bytes(job.path)
     tables = loads_toml(data, src)
