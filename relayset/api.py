@@ -60,7 +60,7 @@ def study_parameters(path: str | Path) -> StudyResults:
 
 def _run(path: str | Path, *, reach: bool, settings: bool) -> StudyResults:
     from relayset.studies.reach import run_reach_study
-    from relayset.studies.settings import run_settings, study_philosophy
+    from relayset.studies.settings import study_philosophy
 
     study, raw, digest = load_study(path)
     src = str(path)
@@ -71,8 +71,13 @@ def _run(path: str | Path, *, reach: bool, settings: bool) -> StudyResults:
     reach_res = run_reach_study(
         study, geo, params, source=src, zone1_reach_pct=z1.reach_pct,
         zone1_max_pct=z1.reach_pct, zone1_margin_pct=z1.min_margin_pct) if reach else None
-    settings_res = (run_settings(study, geo, params, reach_res, philosophy, source=src)
-                    if settings else None)
+    settings_res = verification = None
+    if settings:
+        from relayset.studies.verification import settle_and_verify
+
+        by_end, verification = settle_and_verify(study, geo, params, reach_res, philosophy,
+                                                 source=src)
+        settings_res = next(iter(by_end.values()))
     return StudyResults(
         relayset_version=relayset_version(),
         source_file=src,
@@ -83,6 +88,7 @@ def _run(path: str | Path, *, reach: bool, settings: bool) -> StudyResults:
         reach=reach_res,
         settings=settings_res,
         philosophy=philosophy.to_dict() if settings else None,
+        verification=verification,
     )
 
 

@@ -8,6 +8,7 @@ from typing import Any
 from relayset.results.parameters import LineParameters
 from relayset.results.reach import ReachStudyResult
 from relayset.results.settings import SettingsResult
+from relayset.results.verification import VerificationResult
 
 CAUTION = (
     "This calculation must be reviewed and approved by a licensed professional engineer "
@@ -29,6 +30,7 @@ class StudyResults:
     reach: ReachStudyResult | None = None
     settings: SettingsResult | None = None
     philosophy: dict[str, Any] | None = None  #: the setting philosophy applied
+    verification: VerificationResult | None = None  #: the settings tested by simulation
     caution: str = CAUTION
 
     def to_dict(self) -> dict[str, Any]:
@@ -45,5 +47,7 @@ class StudyResults:
         if self.settings is not None:
             d["settings"] = self.settings.to_dict()
             d["philosophy"] = self.philosophy
+        if self.verification is not None:
+            d["verification"] = self.verification.to_dict()
         d["input"] = self.study_input
         return d

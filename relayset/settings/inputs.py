@@ -99,6 +99,10 @@ class SettingsInputs:
         Zone 1 reach recommended by the untransposition reach study [% of the line].
     worst_overreach_pct : float, optional
         Worst-case zone 1 overreach found by the reach study [% of the zone 1 setting].
+    infeed_range : (complex, complex), optional
+        Smallest and largest infeed factor K at the remote bus found by fault simulation
+        (source cases, parallel circuit) [1]; with ``infeed = "computed"`` zone 2 is graded
+        at the smallest and zone 3 sized at the largest.
     """
 
     z1_line_ohm: complex
@@ -122,6 +126,7 @@ class SettingsInputs:
     tower_footing_ohm: float = 0.0
     recommended_zone1_pct: float | None = None
     worst_overreach_pct: float | None = None
+    infeed_range: tuple[complex, complex] | None = None
 
     def __post_init__(self) -> None:
         def put(name: str, value: Any) -> None:

@@ -3,6 +3,7 @@
 from __future__ import annotations
 
 import math
+from dataclasses import replace
 from pathlib import Path
 
 from relayset.errors import InputError
@@ -65,8 +66,15 @@ def _phase_spacing_m(geo: LineGeometry) -> float:
 
 def run_settings(study: Study, geo: LineGeometry, params: LineParameters,
                  reach: ReachStudyResult | None, philosophy: Philosophy, *,
-                 source: str) -> SettingsResult:
-    """Settings of the relay at ``relay.end`` (the first end when the study says "both")."""
+                 source: str, end: str | None = None,
+                 zone1_limit: tuple[float, float] | None = None,
+                 infeed_range: tuple[complex, complex] | None = None) -> SettingsResult:
+    """Settings of the relay at ``end`` (default ``relay.end``, the first when "both").
+
+    ``zone1_limit`` (recommended reach [%], worst overreach [% of setting]) and
+    ``infeed_range`` (K min, K max) come from the verification's fault simulation; the
+    stricter of the reach study's and the simulation's zone 1 limits applies.
+    """
     if study.relay is None:
         raise InputError("settings need a [relay] table (end, CT and VT ratios)",
                          field="relay", source=source)
@@ -74,7 +82,8 @@ def run_settings(study: Study, geo: LineGeometry, params: LineParameters,
         raise InputError("settings need a [load] table (maximum load, minimum voltage)",
                          field="load", source=source)
     names = (study.study.from_substation, study.study.to_substation)
-    end = names[0] if study.relay.end == "both" else study.relay.end
+    if end is None:
+        end = names[0] if study.relay.end == "both" else study.relay.end
     other = names[1] if end == names[0] else names[0]
     circ = params.circuits[0]
     k0 = None
@@ -85,21 +94,33 @@ def run_settings(study: Study, geo: LineGeometry, params: LineParameters,
     src_relay = build_source(study, end, source)
     src_remote = build_source(study, other, source)
     rec = worst = None
-    if reach is not None:
-        er = next(e for e in reach.ends if e.end == end)
+    er = None if reach is None else next((e for e in reach.ends if e.end == end), None)
+    if er is not None:
         rec = er.recommended_zone1_pct
         # Worst-case zone 1 overreach in % of its setting: error budget + untransposition.
         e = er.arrangement("actual_plan").worst_bolted_overreach_at_remote_bus_pct
         worst = er.error_budget_pct + max(0.0, e)
+    if zone1_limit is not None:
+        rec = zone1_limit[0] if rec is None else min(rec, zone1_limit[0])
+        worst = zone1_limit[1] if worst is None else max(worst, zone1_limit[1])
     fr = study.fault_resistance
     try:
-        return compute_settings(_inputs(study, geo, params, circ, k0, src_relay, src_remote,
-                                        rec, worst, fr, source), philosophy)
+        inputs = _inputs(study, geo, params, circ, k0, src_relay, src_remote, rec, worst, fr,
+                         source, end)
+        if infeed_range is not None:
+            inputs = replace(inputs, infeed_range=infeed_range)
+        return compute_settings(inputs, philosophy)
     except InputError as exc:
         raise _in_study_terms(exc, source) from None
 
 
-def _inputs(study, geo, params, circ, k0, src_relay, src_remote, rec, worst, fr, source):
+def _inputs(study, geo, params, circ, k0, src_relay, src_remote, rec, worst, fr, source,
+            end):
+    # adjacent_lines leave the to-substation, lines_behind the from-substation: a relay at
+    # the to-substation grades on the lines behind the from-substation relay.
+    ahead, behind = "adjacent_lines", "lines_behind"
+    if end == study.study.to_substation:
+        ahead, behind = behind, ahead
     return SettingsInputs(
         z1_line_ohm=study.relay.z1_set if study.relay.z1_set is not None else circ.z1_ohm,
         z0_line_ohm=circ.z0_ohm,
@@ -112,8 +133,8 @@ def _inputs(study, geo, params, circ, k0, src_relay, src_remote, rec, worst, fr,
         load_angle_max_rad=study.load.load_angle_max,
         k0=k0,
         k0m=params.k0m,
-        adjacent_lines=_adjacent(study, "adjacent_lines", source),
-        reverse_lines=_adjacent(study, "lines_behind", source),
+        adjacent_lines=_adjacent(study, ahead, source),
+        reverse_lines=_adjacent(study, behind, source),
         source_z1_relay_ohm=None if src_relay is None else src_relay.z1_ohm,
         source_z1_remote_ohm=None if src_remote is None else src_remote.z1_ohm,
         arc_length_phase_m=fr.arc_length or _phase_spacing_m(geo),
