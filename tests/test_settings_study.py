@@ -107,8 +107,7 @@ def test_zone1_follows_reach_study_when_budget_is_large(variant):
     # top of the simulated overreach); never beyond the reach study's recommendation.
     assert res.settings.zone("zone1").reach_pct <= rec
     assert "zone1_reduced_by_reach_study" in res.settings.warning_ids()
-    assert res.verification.end(res.settings_end if hasattr(res, "settings_end") else
-                                res.reach.ends[0].end).check(
+    assert res.verification.end(res.reach.ends[0].end).check(
         "zone1", "no_operation_at_remote_bus").passed
 
 

@@ -103,6 +103,9 @@ class SettingsInputs:
         Smallest and largest infeed factor K at the remote bus found by fault simulation
         (source cases, parallel circuit) [1]; with ``infeed = "computed"`` zone 2 is graded
         at the smallest and zone 3 sized at the largest.
+    reverse_cover_ohm : float, optional
+        How far past the relay bus, along the line angle, the remote end's zone 2 reaches,
+        with the verification tolerance [ohm]; the reverse zone reaches at least this far.
     """
 
     z1_line_ohm: complex
@@ -127,6 +130,7 @@ class SettingsInputs:
     recommended_zone1_pct: float | None = None
     worst_overreach_pct: float | None = None
     infeed_range: tuple[complex, complex] | None = None
+    reverse_cover_ohm: float | None = None
 
     def __post_init__(self) -> None:
         def put(name: str, value: Any) -> None:

@@ -68,7 +68,8 @@ def run_settings(study: Study, geo: LineGeometry, params: LineParameters,
                  reach: ReachStudyResult | None, philosophy: Philosophy, *,
                  source: str, end: str | None = None,
                  zone1_limit: tuple[float, float] | None = None,
-                 infeed_range: tuple[complex, complex] | None = None) -> SettingsResult:
+                 infeed_range: tuple[complex, complex] | None = None,
+                 reverse_cover_ohm: float | None = None) -> SettingsResult:
     """Settings of the relay at ``end`` (default ``relay.end``, the first when "both").
 
     ``zone1_limit`` (recommended reach [%], worst overreach [% of setting]) and
@@ -107,8 +108,9 @@ def run_settings(study: Study, geo: LineGeometry, params: LineParameters,
     try:
         inputs = _inputs(study, geo, params, circ, k0, src_relay, src_remote, rec, worst, fr,
                          source, end)
-        if infeed_range is not None:
-            inputs = replace(inputs, infeed_range=infeed_range)
+        if infeed_range is not None or reverse_cover_ohm is not None:
+            inputs = replace(inputs, infeed_range=infeed_range,
+                             reverse_cover_ohm=reverse_cover_ohm)
         return compute_settings(inputs, philosophy)
     except InputError as exc:
         raise _in_study_terms(exc, source) from None
