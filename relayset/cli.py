@@ -7,6 +7,8 @@ import sys
 from collections.abc import Sequence
 
 EXIT_INPUT = 2
+#: A study whose settings failed a verification check (outputs are still written).
+EXIT_FAILED_CHECKS = 3
 
 
 def _parser() -> argparse.ArgumentParser:
@@ -80,7 +82,9 @@ def _run(args) -> int:
         io.write_json(args.json, results[0].to_dict())
     if getattr(args, "csv", None):
         io.write_atomic(args.csv, io.rows_to_csv(results[0].settings.rows()))
-    return 0
+    failed = any(getattr(r, "verification", None) is not None
+                 and r.verification.verdict == "failed checks" for r in results)
+    return EXIT_FAILED_CHECKS if failed else 0
 
 
 def main(argv: Sequence[str] | None = None) -> int:

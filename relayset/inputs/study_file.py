@@ -84,6 +84,18 @@ class StudyInfo(_Model):
     philosophy: str = "default"
     notes: str = ""
 
+    @model_validator(mode="after")
+    def _check_signatures(self) -> StudyInfo:
+        # Who signs: a calculation for review names its preparer; an approved one also its
+        # checker and approver.
+        needed = {"for review": ("prepared_by",),
+                  "approved": ("prepared_by", "checked_by", "approved_by")}.get(self.status, ())
+        missing = [f for f in needed if not getattr(self, f).strip()]
+        if missing:
+            raise ValueError(f"status {self.status!r} needs a name in "
+                             + " and ".join(missing))
+        return self
+
 
 class SystemData(_Model):
     nominal_voltage: _quantity("voltage", gt=0)  # type: ignore[valid-type]

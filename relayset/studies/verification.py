@@ -233,10 +233,11 @@ class _View:
     loops: dict[str, np.ndarray]  # (F, M, Rf, K, L)
     m_end: np.ndarray  # (M,)
     mutual: bool
+    forward: np.ndarray  # (F, M, Rf, K, L) negative-sequence directional decision
 
 
-def _view(run: _Run, at_s: bool, k0: complex, k0m: complex | None, *, behind: bool = False
-          ) -> _View:
+def _view(run: _Run, at_s: bool, k0: complex, k0m: complex | None, *, behind: bool = False,
+          line_angle: float = math.radians(80.0)) -> _View:
     sw = run.sweep
     if run.faulted == "parallel":
         # The protected circuit is circuit 2 of the swapped line; its parallel is the faulted.
@@ -253,7 +254,25 @@ def _view(run: _Run, at_s: bool, k0: complex, k0m: complex | None, *, behind: bo
     use_m = k0m is not None and run.state == "in_service"
     loops = measurement.loop_impedances(v, i, k0, i_parallel=ip if use_m else None,
                                         k0m=k0m if use_m else 0)
-    return _View(run, loops, sw.m if at_s else 1.0 - sw.m, use_m)
+    return _View(run, loops, sw.m if at_s else 1.0 - sw.m, use_m, _forward(v, i, line_angle))
+
+
+def _forward(v: np.ndarray, i: np.ndarray, line_angle_rad: float) -> np.ndarray:
+    r"""Negative-sequence directional element: forward where :math:`V_2/I_2` lies behind.
+
+    For a fault in front of the relay :math:`V_2 = -Z_{2,behind} I_2`, so
+    :math:`\mathrm{Re}(V_2 \bar I_2 e^{-j\theta}) < 0`; for one behind it, > 0 [1]_.
+    Balanced cases (negative-sequence current below 2 % of the largest phase current) are
+    left to the impedance characteristic.
+
+    .. [1] IEEE Std C37.113-2015, directional supervision of distance elements.
+    """
+    a = cmath.exp(2j * math.pi / 3)
+    v2 = (v[..., 0] + a * a * v[..., 1] + a * v[..., 2]) / 3
+    i2 = (i[..., 0] + a * a * i[..., 1] + a * i[..., 2]) / 3
+    small = np.abs(i2) < 0.02 * np.max(np.abs(i), axis=-1)
+    torque = (v2 * np.conj(i2) * cmath.exp(-1j * line_angle_rad)).real
+    return small | (torque < 0)
 
 
 def _scale(view: _View, zone: ZoneSetting, theta: float, z_line: float, ftypes,
@@ -274,6 +293,8 @@ def _scale(view: _View, zone: ZoneSetting, theta: float, z_line: float, ftypes,
         z = view.loops[loop][idx]
         s = reach_scale(z, zone, loop in _GROUND, theta)
         s = np.where(np.abs(z) >= _Z_SMALL * z_line, s, close_in)
+        fwd = view.forward[idx]
+        s = np.where(fwd if zone.direction == "forward" else ~fwd, s, np.inf)
         sub = best[idx]
         better = s < sub
         best[idx] = np.where(better, s, sub)
@@ -446,7 +467,7 @@ def verify_end(sim: Simulation, end: str, st: SettingsResult, *, study: Study,
         rfp = np.stack([sw.r_fault_ohm, sw.r_phase_ohm], axis=1)
         rf_ax = (None, None, slice(None), None, None)
         if run.faulted == "protected":
-            v = _view(run, at_s, st.k0.k0, k0m)
+            v = _view(run, at_s, st.k0.k0, k0m, line_angle=theta)
             m_ax = v.m_end[None, :, None, None, None]
             s1, w1 = _scale(v, z1, theta, zl, ft)
             o1, u1 = _scale(v, z1, theta, zl, ft, close_in=0.0)
@@ -465,20 +486,16 @@ def verify_end(sim: Simulation, end: str, st: SettingsResult, *, study: Study,
                               _describe(v, u2, labels, "protected line", rfp))
             acc["z1_ext"].add((s1 - 1) * 100, np.isclose(m_ax, 1.0) & every, t, d1)
             # Faults at the relay's own bus, behind it (resistive only: see the notes).
-            vb = _view(run, at_s, st.k0.k0, k0m, behind=True)
+            vb = _view(run, at_s, st.k0.k0, k0m, behind=True, line_angle=theta)
             at_own = np.isclose(vb.m_end, 0.0)[None, :, None, None, None]
             resist = (rfp[:, 0] + rfp[:, 1] > 0)[rf_ax]
-            # Two-phase-to-ground loops behind the relay are left to the directional
-            # element (sequence-quantity supervision), as in the relays themselves.
-            single = np.array([not (len(f) == 3 and f.endswith("G")) for f in ft])
-            single = single[:, None, None, None, None]
             for zone in (z1, z2, z3):
                 sb, wb = _scale(vb, zone, theta, zl, ft)
-                acc["fwd_behind"].add((sb - 1) * 100, at_own & resist & single, t,
+                acc["fwd_behind"].add((sb - 1) * 100, at_own & resist, t,
                                       _describe(vb, wb, labels, "behind the relay", rfp))
         else:
             for key, km in (("z1_par", k0m), ("z1_par_nomut", None)):
-                v = _view(run, at_s, st.k0.k0, km)
+                v = _view(run, at_s, st.k0.k0, km, line_angle=theta)
                 s1, w1 = _scale(v, z1, theta, zl, ft)
                 acc[key].add((s1 - 1) * 100, np.ones(s1.shape, dtype=bool), t,
                              _describe(v, w1, labels, "parallel circuit", rfp))
@@ -523,7 +540,7 @@ def verify_end(sim: Simulation, end: str, st: SettingsResult, *, study: Study,
     if remote is not None:
         checks.append(_reverse_check(st, zr, remote, t, other))
     lim = zone1_limit_pct(sim, end, st, t, 0.0)
-    return EndVerification(end, tuple(checks), infeed_range(sim, end), lim)
+    return EndVerification(end, tuple(checks), infeed_range(sim, end), lim, st)
 
 
 def _beyond_bus_checks(sim, end, st, *, study, tolerance_pct, source, adjacent_zone1_pct):
@@ -703,11 +720,39 @@ def verify_settings(study: Study, geo: LineGeometry, params_by_rho: dict[float, 
         "moves faults further out); zone 2 and 3 are judged at Z_line + K Z_adjacent with K "
         "from the simulated remote-bus faults.",
         f"Verification tolerance {t:g} % (the study's error budget).",
+        *_resistive_basis(study, geo, settings_by_end),
     )
     return VerificationResult(
         verdict=verdict, reason=reason, tolerance_pct=t, ends=tuple(ends),
         parallel_states=sim.states, source_cases=sim.case_names,
         earth_resistivities_ohm_m=sim.resistivities, cases_solved=sim.n_cases, notes=notes)
+
+
+def _resistive_basis(study: Study, geo: LineGeometry, settings_by_end) -> tuple[str, ...]:
+    """How the resistive reach was chosen and what the simulation adds, in words."""
+    from relayset.studies.settings import INSULATOR_M_PER_KV, _phase_spacing_m
+
+    if not any(z.shape == "quadrilateral" for st in settings_by_end.values()
+               for z in st.zones):
+        return ()
+    fr = study.fault_resistance
+    ground_m = INSULATOR_M_PER_KV * geo.v_nominal_v / 1e3
+    phase_m = fr.arc_length if fr.arc_length is not None else _phase_spacing_m(geo)
+    return (
+        "Resistive reach basis, per loop: phase loops R_arc,phase/2 (the arc is shared by "
+        "the two phases of the loop); ground loops (R_arc,ground + R_tower)/|1 + k0| "
+        "(residual compensation divides the fault resistance); both times (1 + margin), "
+        "single-end feed.",
+        f"Arc lengths: phase {phase_m:.3g} m "
+        + ("(study input fault_resistance.arc_length)" if fr.arc_length is not None
+           else "(default: the smallest phase spacing)")
+        + f", ground {ground_m:.3g} m (default: {INSULATOR_M_PER_KV:g} m per kV of nominal "
+        f"voltage, insulator flashover length); tower footing {fr.tower_footing_resistance:g} "
+        "ohm.",
+        "Remote infeed into the fault resistance is not in the settings formula; the "
+        "verification simulates it for every source case, and resistive faults the zones "
+        "then miss are reported under the must-operate checks.",
+    )
 
 
 def with_zone(st: SettingsResult, zone: ZoneSetting) -> SettingsResult:
@@ -814,12 +859,13 @@ def _worst_remote_bus_scale(sim: Simulation, end: str, st: SettingsResult) -> fl
     z1 = st.zone("zone1")
     zl = abs(st.line_z1_primary_ohm)
     k0m = st.k0m if sim.mutual else None
+    theta = st.line_angle_rad
     worst = math.inf
     for run in sim.runs:
         if run.faulted != "protected":
             continue
-        v = _view(run, at_s, st.k0.k0, k0m)
-        s, _ = _scale(v, z1, st.line_angle_rad, zl, run.sweep.fault_types)
+        v = _view(run, at_s, st.k0.k0, k0m, line_angle=theta)
+        s, _ = _scale(v, z1, theta, zl, run.sweep.fault_types)
         at_bus = np.isclose(v.m_end, 1.0)[None, :, None, None, None]
         worst = min(worst, float(np.min(np.where(at_bus, s, np.inf))))
     return worst if math.isfinite(worst) else None
