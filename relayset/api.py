@@ -10,96 +10,42 @@ Example
 
 from __future__ import annotations
 
-import hashlib
-from importlib.metadata import PackageNotFoundError, version
 from pathlib import Path
-from typing import Any
 
-from relayset.inputs.study_file import Study, parse_study, read_toml
 from relayset.results.study import StudyResults
-from relayset.studies.geometry import build_geometry
-from relayset.studies.parameters import compute_parameters
+from relayset.studies import pipeline
+from relayset.studies.pipeline import LoadedStudy, relayset_version
+
+__all__ = [
+    "LoadedStudy",
+    "load_study",
+    "matrix_frame",
+    "relayset_version",
+    "sequence_frame",
+    "study_parameters",
+    "study_reach",
+    "study_settings",
+]
 
 
-def relayset_version() -> str:
-    try:
-        return version("relayset")
-    except PackageNotFoundError:  # running from a source tree without installing
-        return "0+unknown"
-
-
-def load_study(path: str | Path) -> tuple[Study, dict[str, Any], str]:
-    """Read and validate a study file: the model, the raw tables and the file's SHA-256."""
-    raw = read_toml(path)
-    digest = hashlib.sha256(Path(path).read_bytes()).hexdigest()
-    return parse_study(raw, source=str(path)), raw, digest
-
-
-def _identity(study: Study) -> dict[str, Any]:
-    info = study.study.model_dump()
-    if info.get("revision_date") is not None:
-        info["revision_date"] = info["revision_date"].isoformat()
-    info["nominal_voltage_kv"] = study.system.nominal_voltage / 1e3
-    return info
+def load_study(path: str | Path) -> LoadedStudy:
+    """Read and validate a study file: its bytes, their SHA-256, the tables and the model."""
+    return pipeline.load(path)
 
 
 def study_parameters(path: str | Path) -> StudyResults:
     """Line parameters of one study file."""
-    study, raw, digest = load_study(path)
-    geo = build_geometry(study, str(path))
-    params = compute_parameters(geo)
-    return StudyResults(
-        relayset_version=relayset_version(),
-        source_file=str(path),
-        source_sha256=digest,
-        study_input=raw,
-        identity=_identity(study),
-        parameters=params,
-    )
-
-
-def _run(path: str | Path, *, reach: bool, settings: bool) -> StudyResults:
-    from relayset.studies.reach import run_reach_study
-    from relayset.studies.settings import study_philosophy
-
-    study, raw, digest = load_study(path)
-    src = str(path)
-    geo = build_geometry(study, src)
-    params = compute_parameters(geo)
-    philosophy = study_philosophy(study, src)
-    z1 = philosophy.zone1
-    reach_res = run_reach_study(
-        study, geo, params, source=src, zone1_reach_pct=z1.reach_pct,
-        zone1_max_pct=z1.reach_pct, zone1_margin_pct=z1.min_margin_pct) if reach else None
-    settings_res = verification = None
-    if settings:
-        from relayset.studies.verification import settle_and_verify
-
-        by_end, verification = settle_and_verify(study, geo, params, reach_res, philosophy,
-                                                 source=src)
-        settings_res = next(iter(by_end.values()))
-    return StudyResults(
-        relayset_version=relayset_version(),
-        source_file=src,
-        source_sha256=digest,
-        study_input=raw,
-        identity=_identity(study),
-        parameters=params,
-        reach=reach_res,
-        settings=settings_res,
-        philosophy=philosophy.to_dict() if settings else None,
-        verification=verification,
-    )
+    return pipeline.run(path)
 
 
 def study_reach(path: str | Path) -> StudyResults:
     """Line parameters and the reach study of one study file."""
-    return _run(path, reach=True, settings=False)
+    return pipeline.run(path, reach=True)
 
 
 def study_settings(path: str | Path) -> StudyResults:
-    """Line parameters, reach study and distance-zone settings of one study file."""
-    return _run(path, reach=True, settings=True)
+    """Line parameters, reach study and distance-zone settings (one per relay end)."""
+    return pipeline.run(path, reach=True, settings=True)
 
 
 def matrix_frame(params, arrangement: str = "actual_plan", *, kind: str = "zabc",

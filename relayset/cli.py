@@ -7,8 +7,17 @@ import sys
 from collections.abc import Sequence
 
 EXIT_INPUT = 2
-#: A study whose settings failed a verification check (outputs are still written).
+#: A study whose settings failed a verification check (its outputs are still written).
 EXIT_FAILED_CHECKS = 3
+
+
+def _version() -> str:
+    from importlib.metadata import PackageNotFoundError, version
+
+    try:
+        return version("relayset")
+    except PackageNotFoundError:
+        return "0+unknown"
 
 
 def _parser() -> argparse.ArgumentParser:
@@ -17,14 +26,16 @@ def _parser() -> argparse.ArgumentParser:
         description="Overhead-line parameters, untransposition reach study and distance-zone "
         "settings. Results must be reviewed and approved by a licensed professional engineer.",
     )
+    ap.add_argument("--version", action="version", version=f"relayset {_version()}")
     sub = ap.add_subparsers(dest="command", required=True, metavar="COMMAND")
 
     def study_cmd(name: str, help_: str) -> argparse.ArgumentParser:
         p = sub.add_parser(name, help=help_, description=help_)
         p.add_argument("files", nargs="*", metavar="FILE", help="study files (TOML)")
         p.add_argument("--demo", action="store_true", help="run every shipped demo line")
-        p.add_argument("--units", choices=("si", "us"), default="si",
-                       help="units of the printed summary (default: si)")
+        p.add_argument("--units", choices=("si", "us"), default=None,
+                       help="units of the printed summary (default: those of the study file's "
+                       "line length)")
         p.add_argument("--json", metavar="PATH",
                        help="write the results as JSON (keys carry their units)")
         return p
@@ -55,9 +66,6 @@ def _files(args) -> list[str]:
 
 
 def _run(args) -> int:
-    from relayset import api, io
-    from relayset.report import text
-
     if args.command == "conductors":
         from relayset.inputs.conductors import builtin_table
 
@@ -66,24 +74,34 @@ def _run(args) -> int:
             print(f"{key:22s} {aliases:26s} d = {e['outside_diameter_m'] * 1e3:6.2f} mm")
         return 0
     if args.command == "earth-models":
-        from relayset.physics.earth import EARTH_MODELS
+        from relayset.physics.earth_models import EARTH_MODELS
 
         for name, desc in EARTH_MODELS.items():
             print(f"{name:18s} {desc}")
         return 0
 
-    run = getattr(api, {"params": "study_parameters"}.get(args.command, f"study_{args.command}"))
+    from relayset import io
+    from relayset.inputs.unit_system import study_unit_system
+    from relayset.report import text
+    from relayset.studies import pipeline
+
+    flags = {"params": {}, "reach": {"reach": True}, "settings": {"settings": True}}
     show = getattr(text, f"{args.command}_summary")
     # Compute everything first so that bad input leaves no partial output behind.
-    results = [run(f) for f in _files(args)]
+    results = [pipeline.run(f, **flags[args.command]) for f in _files(args)]
     for res in results:
-        sys.stdout.write(show(res, args.units))
+        units = args.units or study_unit_system(res.study_input)
+        sys.stdout.write(show(res, units))
     if args.json:
         io.write_json(args.json, results[0].to_dict())
     if getattr(args, "csv", None):
-        io.write_atomic(args.csv, io.rows_to_csv(results[0].settings.rows()))
-    failed = any(getattr(r, "verification", None) is not None
-                 and r.verification.verdict == "failed checks" for r in results)
+        from relayset.report.tables import settings_rows
+
+        rows = [(t.end, *row) for t in results[0].settings for row in settings_rows(t)]
+        io.write_atomic(args.csv, io.rows_to_csv(rows, header=("end", "setting", "value",
+                                                               "unit")))
+    failed = any(r.verification is not None and r.verification.verdict == "failed checks"
+                 for r in results)
     return EXIT_FAILED_CHECKS if failed else 0
 
 

@@ -49,14 +49,14 @@ def write_json(path: str | Path, obj: dict) -> None:
     write_atomic(path, to_json(obj))
 
 
-def rows_to_csv(rows) -> str:
-    """CSV text of (name, value, unit) rows, with a header line."""
+def rows_to_csv(rows, header=("setting", "value", "unit")) -> str:
+    """CSV text of rows ending in (name, value, unit), with a header line."""
     import csv
     import io as _io
 
     buf = _io.StringIO()
     w = csv.writer(buf, lineterminator="\n")
-    w.writerow(["setting", "value", "unit"])
-    for name, value, unit in rows:
-        w.writerow([name, value if isinstance(value, str) else repr(float(value)), unit])
+    w.writerow(list(header))
+    for *lead, value, unit in rows:
+        w.writerow([*lead, value if isinstance(value, str) else repr(float(value)), unit])
     return buf.getvalue()

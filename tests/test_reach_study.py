@@ -193,7 +193,7 @@ def test_power_flow_is_delivered_at_the_relay_end(demo_path, end):
     from relayset.studies.parameters import compute_parameters
     from relayset.studies.reach import _cascade, _emfs_for_power_flows, build_source
 
-    study, _, _ = load_study(demo_path(DEMO_1C))
+    study = load_study(demo_path(DEMO_1C)).study
     geo = build_geometry(study)
     par = compute_parameters(geo)
     names = (study.study.from_substation, study.study.to_substation)

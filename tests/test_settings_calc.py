@@ -48,6 +48,7 @@ import pytest
 
 from relayset.errors import InputError
 from relayset.inputs.philosophy import default_philosophy
+from relayset.report.tables import settings_rows
 from relayset.settings.compute import compute_settings
 from relayset.settings.inputs import SettingsInputs
 
@@ -278,7 +279,7 @@ def test_given_k0_forms_are_consistent():
     assert r.k0.k0 == 0.7 and r.k0.z0_over_z1 == pytest.approx(3.1, rel=1e-12)
     assert (r.k0.kr, r.k0.kx) == pytest.approx((0.7, 0.7), rel=1e-12)
     assert "k0_differs_from_line" in r.warning_ids()
-    assert r.to_dict()["k0m"]["k0m_magnitude"] == pytest.approx(abs(0.3 - 0.02j), rel=1e-12)
+    assert r.to_dict()["k0m"]["magnitude"] == pytest.approx(abs(0.3 - 0.02j), rel=1e-12)
 
 
 def test_to_dict_and_rows_match_the_result():
@@ -291,7 +292,7 @@ def test_to_dict_and_rows_match_the_result():
         [z2.reach_secondary_ohm.real, z2.reach_secondary_ohm.imag], rel=1e-12)
     assert d["zones"]["zone2"]["delay_s"] == 0.35
     assert d["load"]["z_min_secondary_ohm"] == pytest.approx(58.806, rel=1e-9)
-    rows = {name: (value, unit) for name, value, unit in r.rows()}
+    rows = {name: (value, unit) for name, value, unit in settings_rows(r)}
     assert rows["Zone 1 reactive reach, secondary"] == (pytest.approx(20.0, rel=1e-12), "Ω")
     assert rows["Zone 2 time delay"] == (0.35, "s")
     assert rows["Line angle"][0] == pytest.approx(math.degrees(THETA), rel=1e-12)

@@ -61,7 +61,7 @@ def test_adjacent_line_from_its_study_file(tmp_path, variant, demo_path):
 
     res = study_settings(variant(DEMO, use_file))
     z_other = study_settings(other).parameters.circuits[0].z1_ohm
-    z2 = res.settings.zone("zone2")
+    z2 = res.settings[0].zone("zone2")
     line = res.parameters.circuits[0].z1_ohm
     # zone 2 (max of 120 % and line + 50 % adjacent, infeed 1) is at least line + 0.5 Z_adj
     assert abs(z2.reach_primary_ohm) >= abs(line + 0.5 * z_other) - 1e-9
@@ -69,9 +69,9 @@ def test_adjacent_line_from_its_study_file(tmp_path, variant, demo_path):
 
 def test_philosophy_file_changes_zone1_only(tmp_path, variant):
     (tmp_path / "p.toml").write_text("[zone1]\nreach_pct = 75.0\n", "utf-8")
-    base = study_settings(variant(DEMO, lambda d: None, "base.toml")).settings
+    base = study_settings(variant(DEMO, lambda d: None, "base.toml")).settings[0]
     new = study_settings(variant(DEMO, lambda d: d["study"].update(philosophy="p.toml"),
-                                 "p_study.toml")).settings
+                                 "p_study.toml")).settings[0]
     assert new.zone("zone1").reach_pct == pytest.approx(75.0)
     assert base.zone("zone1").reach_pct == pytest.approx(80.0)
     for z in ("zone2", "zone3", "reverse"):
@@ -85,11 +85,12 @@ def test_settings_exports(tmp_path, demo_path):
     d = json.loads(out_json.read_text())
     assert "settings" in d and "philosophy" in d and "reach_study" in d
     rows = list(csv.reader(out_csv.open(encoding="utf-8")))
-    assert rows[0] == ["setting", "value", "unit"]
-    names = [r[0] for r in rows]
+    assert rows[0] == ["end", "setting", "value", "unit"]
+    assert {r[0] for r in rows[1:]} == {d["settings"]["ends"][0]["end"]}
+    names = [r[1] for r in rows]
     assert "Zone 1 reach, secondary" in names
     # secondary = primary * CT ratio / VT ratio (800 / 1200), identity to 1e-9
-    val = {r[0]: r[2 - 1] for r in rows[1:]}
+    val = {r[1]: r[2] for r in rows[1:]}
     assert float(val["Zone 1 reach, secondary"]) == pytest.approx(
         float(val["Zone 1 reach, primary"]) * 800 / 1200, rel=1e-9)
 
@@ -105,10 +106,9 @@ def test_zone1_follows_reach_study_when_budget_is_large(variant):
     assert rec == pytest.approx(int(100 / (1 + (budget + max(e, 0)) / 100) * 2) / 2)
     # The fault simulation may limit zone 1 further (remote-bus faults with the tolerance on
     # top of the simulated overreach); never beyond the reach study's recommendation.
-    assert res.settings.zone("zone1").reach_pct <= rec
-    assert "zone1_reduced_by_reach_study" in res.settings.warning_ids()
-    assert res.verification.end(res.reach.ends[0].end).check(
-        "zone1", "no_operation_at_remote_bus").passed
+    assert res.settings[0].zone("zone1").reach_pct <= rec
+    assert "zone1_reduced_by_reach_study" in res.settings[0].warning_ids()
+    assert res.verification.ends[0].check("zone1", "no_operation_at_remote_bus").passed
 
 
 def test_settings_error_names_the_study_field(capsys, tmp_path, variant):
@@ -132,4 +132,4 @@ def test_settings_input_errors_are_readdressed_to_study_fields():
 def test_min_voltage_accepts_pu_text(variant):
     res = study_settings(variant(DEMO, lambda d: d["load"].update(min_voltage="0.9 pu")))
     # Z_load,min = (0.9 x 132 kV)^2 / 160 MVA = 88.209 ohm (identity)
-    assert res.settings.load.z_min_primary_ohm == pytest.approx((0.9 * 132e3) ** 2 / 160e6)
+    assert res.settings[0].load.z_min_primary_ohm == pytest.approx((0.9 * 132e3) ** 2 / 160e6)

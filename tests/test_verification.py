@@ -19,6 +19,7 @@ from relayset import api
 from relayset.cli import main
 from relayset.physics import measurement, network
 from relayset.physics.sequence import balanced_phase_matrix
+from relayset.studies import pipeline
 from relayset.studies.geometry import build_geometry
 from relayset.studies.parameters import compute_parameters
 from relayset.studies.reach import _cascade, build_source
@@ -29,7 +30,7 @@ D400 = "greyholt_ivel_400kv_twin.toml"
 
 
 def _line(path):
-    study, _, _ = api.load_study(path)
+    study = pipeline.load(path).study
     geo = build_geometry(study, str(path))
     params = compute_parameters(geo)
     line = _cascade(params.z_position_ohm_per_m, params.y_position_s_per_m,
@@ -70,7 +71,7 @@ def test_finding1_zone1_clear_of_remote_bus_with_parallel_circuit_earthed(demo_p
     # mutual compensation input: the parallel circuit's CTs are isolated).
     path = demo_path(D230)
     res = api.study_settings(path)
-    st = res.settings
+    st = res.settings[0]
     z1 = st.zone("zone1")
     sw = _sweep(path, fault_types=("AG", "BG", "CG", "ABG", "BCG", "CAG"), m=[1.0],
                 rf=[0.0], state="earthed")
@@ -95,7 +96,7 @@ def test_finding2_mutual_compensation_on_parallel_circuit_faults_is_reported(dem
     # measures the bus voltage, its own circuit's currents and (k0m) the faulted circuit's.
     path = demo_path(D230)
     res = api.study_settings(path)
-    st = res.settings
+    st = res.settings[0]
     z1 = st.zone("zone1")
     _, _, line, _, _ = _line(path)
     p = [3, 4, 5, 0, 1, 2]
@@ -131,7 +132,7 @@ def test_finding3_quad_zone1_clear_of_resistive_double_phase_ground_faults(demo_
     # two-phase-to-ground faults at the remote bus (zone 1 was chosen from bolted errors).
     path = demo_path(name)
     res = api.study_settings(path)
-    st = res.settings
+    st = res.settings[0]
     z1 = st.zone("zone1")
     assert z1.shape == "quadrilateral"
     for state in (("in_service", "earthed", "isolated") if name == D230 else ("in_service",)):
@@ -143,42 +144,41 @@ def test_finding3_quad_zone1_clear_of_resistive_double_phase_ground_faults(demo_
 # ---------------------------------------------------------------- finding 4
 
 
-def _with_lines_behind(d):
-    d["lines_behind"] = [{"name": "Ashcombe - Westfold 132 kV", "z1": "4 + 11j ohm"}]
+def _lines_at_both_buses(d):
+    names = (d["study"]["from_substation"], d["study"]["to_substation"])
+    d["adjacent_lines"] = [
+        {"name": "Brenwick - Corran Vale 132 kV", "z1": "6 + 15j ohm", "bus": names[1]},
+        {"name": "Ashcombe - Westfold 132 kV", "z1": "4 + 11j ohm", "bus": names[0]},
+    ]
 
 
 def test_finding4_relay_at_to_substation_grades_on_lines_at_the_remote_bus(variant):
     # Finding 4: with relay.end at the to-substation, zone 2 was graded on the lines leaving
-    # its own bus. adjacent_lines leave the to-substation, lines_behind the from-substation.
+    # its own bus. Lines tied to a named bus: the relay at Brenwick grades on Ashcombe's.
     def edit(d):
-        _with_lines_behind(d)
+        _lines_at_both_buses(d)
         d["relay"]["end"] = d["study"]["to_substation"]
 
     res = api.study_settings(variant(D132, edit))
-    z2 = res.settings.zone("zone2")
+    z2 = res.settings[0].zone("zone2")
+    assert res.settings[0].end == "Brenwick"
     assert "Westfold" in z2.rule and "Corran Vale" not in z2.rule
 
 
 def test_finding4_both_ends_give_settings_and_verification_for_each_end(variant):
+    # Finding 4: relay.end = "both" silently gave settings for the first end only.
     def edit(d):
-        _with_lines_behind(d)
+        _lines_at_both_buses(d)
         d["relay"]["end"] = "both"
 
     res = api.study_settings(variant(D132, edit))
-    ends = {e.end: e for e in res.verification.ends}
-    assert set(ends) == {"Ashcombe", "Brenwick"}
-    assert "Corran Vale" in ends["Ashcombe"].settings.zone("zone2").rule
-    assert "Westfold" in ends["Brenwick"].settings.zone("zone2").rule
+    by_end = {st.end: st for st in res.settings}
+    assert set(by_end) == {"Ashcombe", "Brenwick"}
+    assert "Corran Vale" in by_end["Ashcombe"].zone("zone2").rule
+    assert "Westfold" in by_end["Brenwick"].zone("zone2").rule
     d = res.to_dict()["verification"]
     assert [e["end"] for e in d["ends"]] == ["Ashcombe", "Brenwick"]
-    assert d["ends"][1]["settings"]["zones"]["zone1"]["reach_pct"] > 0
-
-
-@pytest.mark.xfail(strict=True, reason="StudyResults.settings holds one end; settings per "
-                   "relay end in the results model come with the issue-7 pipeline rework")
-def test_finding4_results_model_settings_per_end(variant):
-    res = api.study_settings(variant(D132, lambda d: d["relay"].update(end="both")))
-    assert isinstance(res.settings, tuple | list | dict)
+    assert all(e["checks"] for e in d["ends"])
 
 
 # ---------------------------------------------------------------- finding 5
@@ -197,7 +197,7 @@ def test_finding5_zone2_coverage_on_an_untransposed_line(variant, tmp_path):
     phil = _philosophy(tmp_path, '[zone2]\nrule = "line_pct"\nreach_pct = 105.0\n')
     path = variant(D230, lambda d: d["study"].update(philosophy=phil))
     res = api.study_settings(path)
-    st = res.settings
+    st = res.settings[0]
     assert st.zone("zone2").reach_pct == pytest.approx(105.0)
     chk = res.verification.ends[0].check("zone2", "covers_whole_line")
     assert not chk.passed
@@ -276,13 +276,13 @@ def test_finding6_computed_infeed_includes_the_parallel_circuit(variant):
         source_cases=[{"name": "nominal", "scale": 1.0}]))
     res = api.study_settings(path)
     _study, _, _, s_s, s_r = _line(path)
-    zl = res.settings.line_z1_primary_ohm
+    zl = res.settings[0].line_z1_primary_ohm
     closed = 2 * (1 + (s_s.z1_ohm + zl / 2) / s_r.z1_ohm)
-    k3 = res.settings.zone("zone3").infeed_factor
+    k3 = res.settings[0].zone("zone3").infeed_factor
     assert abs(closed) > 4.5
     assert_allclose(abs(k3), abs(closed), rtol=0.03, atol=0)
     # Zone 2 is graded at the minimum infeed (remote source out, parallel circuit out: 1).
-    k2 = res.settings.zone("zone2").infeed_factor
+    k2 = res.settings[0].zone("zone2").infeed_factor
     inf = res.verification.ends[0].infeed
     assert k2 == inf.k_min and abs(k2) == pytest.approx(1.0, rel=1e-6)
 
@@ -293,7 +293,7 @@ def test_finding6_reverse_zone_covers_the_remote_zone2(demo_path):
     res = api.study_settings(demo_path(D132))
     chk = res.verification.ends[0].check("reverse", "covers_remote_zone2")
     assert chk.passed and chk.margin_pct >= res.verification.tolerance_pct - 1e-9
-    assert "remote end's zone 2" in res.settings.zone("reverse").rule
+    assert "remote end's zone 2" in res.settings[0].zone("reverse").rule
 
 
 def test_zone2_short_of_adjacent_zone1_and_zone3_clear_of_load(demo_path):
@@ -321,7 +321,7 @@ def test_finding7_target_outside_its_own_quadrilateral_is_a_fail(demo_path):
     # Finding 7: a zone's own target point could fall outside its quadrilateral (a target
     # at another angle than the line, beyond the left blinder). Independent: contains().
     res = api.study_settings(demo_path(D230))
-    st = res.settings
+    st = res.settings[0]
     outside = [z.zone for z in st.zones if not z.contains(z.reach_primary_ohm,
                                                            st.line_angle_rad)]
     chk = res.verification.ends[0].check("all", "target_inside_own_zone")
@@ -405,7 +405,8 @@ def test_symmetric_line_gives_identical_verdicts_at_both_ends(variant):
                                   "order": d["line"]["sections"][0]["order"]}]
         names = (d["study"]["from_substation"], d["study"]["to_substation"])
         d["sources"] = {n: {"z1": "1 + 10j ohm", "z0": "2 + 25j ohm"} for n in names}
-        d["lines_behind"] = list(d["adjacent_lines"])
+        d["adjacent_lines"] = [dict(line, bus=n) for line in d["adjacent_lines"]
+                               for n in names]
         d["load"]["transfer_angles"] = ["-10 deg", "10 deg"]
         d["relay"]["end"] = "both"
 
@@ -416,7 +417,8 @@ def test_symmetric_line_gives_identical_verdicts_at_both_ends(variant):
         assert ca.passed == cb.passed and ca.cases_run == cb.cases_run
         if ca.margin_pct is not None:
             assert_allclose(ca.margin_pct, cb.margin_pct, rtol=1e-6, atol=1e-6)
-    for za, zb in zip(a.settings.zones, b.settings.zones, strict=True):
+    sa, sb = res.settings
+    for za, zb in zip(sa.zones, sb.zones, strict=True):
         assert_allclose(za.reach_primary_ohm, zb.reach_primary_ohm, rtol=1e-9, atol=0)
 
 
@@ -428,7 +430,7 @@ def test_reach_scale_agrees_with_zone_contains(demo_path):
     rng = np.random.default_rng(8)
     pts = rng.normal(0, 40, 4000) + 1j * rng.normal(10, 40, 4000)
     for name in (D132, D230):
-        st = api.study_settings(demo_path(name)).settings
+        st = api.study_settings(demo_path(name)).settings[0]
         for z in st.zones:
             s = np.minimum(reach_scale(pts, z, True, st.line_angle_rad),
                            reach_scale(pts, z, False, st.line_angle_rad))

@@ -294,6 +294,9 @@ class AdjacentLine(_Model):
     name: str
     z1: ComplexOhm | None = None  # type: ignore[valid-type]
     study: str | None = None
+    #: the substation of this line the adjacent line leaves (default: for adjacent_lines the
+    #: relay's remote end, for lines_behind the relay's own end; needed when relay.end is both)
+    bus: str | None = None
 
     @model_validator(mode="after")
     def _check(self) -> AdjacentLine:
@@ -382,17 +385,27 @@ def format_validation_error(exc: ValidationError, source: str, root: type[BaseMo
     return InputError(msg, field=field, value=value, source=source)
 
 
-def read_toml(path: str | Path) -> dict:
-    """Read a TOML file; a missing file or bad TOML is an InputError naming the file."""
+def read_bytes(path: str | Path) -> bytes:
+    """The bytes of an input file, read once (the archive hashes exactly what was parsed)."""
     p = Path(path)
     if not p.is_file():
         raise InputError("file does not exist", source=str(path))
+    return p.read_bytes()
+
+
+def loads_toml(data: bytes, source: str) -> dict:
+    """Parse TOML bytes; bad TOML or text that is not UTF-8 is an InputError naming the file."""
     try:
-        return tomllib.loads(p.read_text("utf-8"))
+        return tomllib.loads(data.decode("utf-8"))
     except tomllib.TOMLDecodeError as exc:
-        raise InputError(f"is not valid TOML ({exc})", source=str(path)) from None
+        raise InputError(f"is not valid TOML ({exc})", source=source) from None
     except UnicodeDecodeError:
-        raise InputError("is not UTF-8 text", source=str(path)) from None
+        raise InputError("is not UTF-8 text", source=source) from None
+
+
+def read_toml(path: str | Path) -> dict:
+    """Read a TOML file; a missing file or bad TOML is an InputError naming the file."""
+    return loads_toml(read_bytes(path), str(path))
 
 
 def parse_study(data: dict, source: str = "<study>") -> Study:

@@ -43,13 +43,7 @@ import math
 import numpy as np
 
 from relayset.physics.constants import EULER_GAMMA, MU0_H_PER_M
-
-EARTH_MODELS: dict[str, str] = {
-    "carson": "Carson's full series, asymptotic form for large Carson parameter (default)",
-    "carson_truncated": "Carson's series truncated to P = pi/8, Q = -0.0386 + ln(2/r)/2 "
-    "(reproduces distribution test feeder tables)",
-    "deri": "Deri's complex-depth image plane (closed form, within a few percent of Carson)",
-}
+from relayset.physics.earth_models import EARTH_MODELS
 
 #: Above this Carson parameter the asymptotic expansion replaces the power series.
 _R_ASYMPTOTIC: float = 18.0

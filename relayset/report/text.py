@@ -1,17 +1,45 @@
-"""Console summaries rendered from templates/ with Jinja2 (presentation lives there)."""
+"""Console summaries rendered from templates/ with Jinja2 (presentation lives there).
+
+Templates do no arithmetic: unit conversions are the methods of :class:`OutputUnits`, and
+every other number comes from the results model as it is.
+"""
 
 from __future__ import annotations
 
 import cmath
 import math
+from dataclasses import dataclass
 from typing import Any
 
 from relayset.resources import templates_dir
 
-#: Output unit systems: label and factor from per-metre values.
-UNIT_SYSTEMS: dict[str, dict[str, Any]] = {
-    "si": {"per": "km", "per_m": 1e3, "len": "km", "len_m": 1e-3},
-    "us": {"per": "mi", "per_m": 1609.344, "len": "mi", "len_m": 1 / 1609.344},
+MILE_M = 1609.344  # exact, international mile
+
+
+@dataclass(frozen=True)
+class OutputUnits:
+    """The output unit system of a summary: SI (per km) or US customary (per mile)."""
+
+    name: str  #: "si" or "us"
+    per: str  #: "km" or "mi"
+    metres: float  #: metres in one ``per`` unit
+
+    def length(self, x_m: float) -> float:
+        """A length [m] in km or miles."""
+        return x_m / self.metres
+
+    def per_length(self, x_per_m: Any) -> Any:
+        """A per-metre quantity (complex or real) per km or per mile."""
+        return x_per_m * self.metres
+
+    def nf_per_length(self, c_f_per_m: float) -> float:
+        """A capacitance [F/m] in nF per km or per mile."""
+        return c_f_per_m * 1e9 * self.metres
+
+
+UNIT_SYSTEMS = {
+    "si": OutputUnits("si", "km", 1e3),
+    "us": OutputUnits("us", "mi", MILE_M),
 }
 
 
@@ -29,6 +57,7 @@ def _env():
     env.filters["c"] = fmt_complex
     env.filters["p"] = fmt_polar
     env.filters["f"] = fmt_float
+    env.filters["pct"] = fmt_pct_of
     return env
 
 
@@ -51,22 +80,33 @@ def fmt_float(x: float, digits: int = 3) -> str:
     return f"{x:.{digits}f}"
 
 
+def fmt_pct_of(ratio: complex | float, digits: int = 3) -> str:
+    """The magnitude of a ratio in percent (e.g. an unbalance factor)."""
+    return fmt_float(100 * abs(ratio), digits)
+
+
 def render(template: str, **context: Any) -> str:
     return _env().get_template(template).render(**context)
 
 
+def _context(results, unit_system: str) -> dict[str, Any]:
+    from relayset.report.tables import settings_rows
+    from relayset.settings.context import ZONE_LABELS
+
+    return {"r": results, "p": results.parameters, "u": UNIT_SYSTEMS[unit_system],
+            "zone_labels": ZONE_LABELS, "settings_rows": settings_rows, "zip": zip}
+
+
 def params_summary(results, unit_system: str = "si") -> str:
     """The readable parameter summary of one study."""
-    u = UNIT_SYSTEMS[unit_system]
-    p = results.parameters
-    return render("params.txt.j2", r=results, p=p, u=u, zip=zip)
+    return render("params.txt.j2", **_context(results, unit_system))
 
 
 def reach_summary(results, unit_system: str = "si") -> str:
     """The reach-study table of one study."""
-    return render("reach.txt.j2", r=results, u=UNIT_SYSTEMS[unit_system])
+    return render("reach.txt.j2", **_context(results, unit_system))
 
 
 def settings_summary(results, unit_system: str = "si") -> str:
-    """The settings table and warnings of one study."""
-    return render("settings.txt.j2", r=results, u=UNIT_SYSTEMS[unit_system])
+    """The settings table and warnings of one study, one block per relay end."""
+    return render("settings.txt.j2", **_context(results, unit_system))

@@ -115,6 +115,12 @@ class EndReach:
                 return a
         raise KeyError(name)
 
+    @property
+    def ideal_cycle_gain_pct(self) -> float:
+        """How much less the remote-bus overreach would be with a full ideal cycle [points]."""
+        return (self.arrangement("actual_plan").worst_bolted_overreach_at_remote_bus_pct
+                - self.arrangement("ideal_cycle").worst_bolted_overreach_at_remote_bus_pct)
+
     def to_dict(self) -> dict[str, Any]:
         return {
             "end": self.end,

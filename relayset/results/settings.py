@@ -11,6 +11,7 @@ import numpy as np
 
 from relayset.physics import zones as zp
 from relayset.results.parameters import K0
+from relayset.results.serialize import PER_KM, cplx, polar
 
 
 @dataclass(frozen=True)
@@ -35,8 +36,7 @@ class SettingWarning:
 class ZoneSetting:
     """One zone's reach, delay, characteristic and checks (impedances [ohm], angles [rad])."""
 
-    zone: str
-    label: str
+    zone: str  #: "zone1", "zone2", "zone3" or "reverse"
     direction: str
     rule: str
     reach_primary_ohm: complex
@@ -90,16 +90,19 @@ class LoadCheck:
 class SourceEnd:
     """SIR and IEEE Std C37.113 line class at one end."""
 
-    end: str
+    end: str  #: substation name
     z_source_ohm: complex
     sir: float
     line_class: str
+    role: str = "relay"  #: "relay" (behind the relay) or "remote"
 
 
 @dataclass(frozen=True)
 class SettingsResult:
-    """Computed distance-zone settings."""
+    """Computed distance-zone settings of the relay at one line end."""
 
+    end: str  #: the relay's substation
+    remote_end: str
     line_z1_primary_ohm: complex
     line_z1_secondary_ohm: complex
     line_angle_rad: float
@@ -125,22 +128,21 @@ class SettingsResult:
         return [w.rule_id for w in self.warnings]
 
     def to_dict(self) -> dict[str, Any]:
-        """JSON-ready nested data; complex values as ``[re, im]``."""
+        """JSON-ready nested data (the conventions of :mod:`relayset.results.serialize`)."""
         zones = {}
         for z in self.zones:
             zones[z.zone] = {
-                "label": z.label,
                 "direction": z.direction,
                 "rule": z.rule,
-                "reach_primary_ohm": _c(z.reach_primary_ohm),
+                "reach_primary_ohm": cplx(z.reach_primary_ohm),
                 "reach_primary_magnitude_ohm": abs(z.reach_primary_ohm),
-                "reach_secondary_ohm": _c(z.reach_secondary_ohm),
+                "reach_secondary_ohm": cplx(z.reach_secondary_ohm),
                 "reach_secondary_magnitude_ohm": abs(z.reach_secondary_ohm),
                 "reach_angle_deg": math.degrees(cmath.phase(z.reach_primary_ohm)),
                 "reach_pct": z.reach_pct,
                 "delay_s": z.delay_s,
                 "shape": z.shape,
-                "infeed_factor": _c(z.infeed_factor),
+                "infeed_factor": None if z.infeed_factor is None else cplx(z.infeed_factor),
                 "char_angle_deg": _deg(z.char_angle_rad),
                 "mho_diameter_primary_ohm": z.mho_diameter_primary_ohm,
                 "mho_diameter_secondary_ohm": z.mho_diameter_secondary_ohm,
@@ -158,30 +160,18 @@ class SettingsResult:
                     for c in z.checks
                 ],
             }
-        k = self.k0
         return {
+            "end": self.end,
+            "remote_end": self.remote_end,
             "line": {
-                "z1_primary_ohm": _c(self.line_z1_primary_ohm),
-                "z1_secondary_ohm": _c(self.line_z1_secondary_ohm),
+                "z1_primary_ohm": cplx(self.line_z1_primary_ohm),
+                "z1_secondary_ohm": cplx(self.line_z1_secondary_ohm),
                 "angle_deg": math.degrees(self.line_angle_rad),
-                "length_m": self.length_m,
+                "length_km": self.length_m / PER_KM,
                 "secondary_factor": self.secondary_factor,
             },
-            "k0": {
-                "k0": _c(k.k0),
-                "k0_magnitude": abs(k.k0),
-                "k0_angle_deg": math.degrees(cmath.phase(k.k0)),
-                "kr": k.kr,
-                "kx": k.kx,
-                "z0_over_z1": _c(k.z0_over_z1),
-                "z0_over_z1_magnitude": abs(k.z0_over_z1),
-                "z0_over_z1_angle_deg": math.degrees(cmath.phase(k.z0_over_z1)),
-            },
-            "k0m": None if self.k0m is None else {
-                "k0m": _c(self.k0m),
-                "k0m_magnitude": abs(self.k0m),
-                "k0m_angle_deg": math.degrees(cmath.phase(self.k0m)),
-            },
+            "k0": self.k0.to_dict(),
+            "k0m": None if self.k0m is None else polar(self.k0m),
             "load": {
                 "z_min_primary_ohm": self.load.z_min_primary_ohm,
                 "z_min_secondary_ohm": self.load.z_min_secondary_ohm,
@@ -190,8 +180,8 @@ class SettingsResult:
                 "r_limit_primary_ohm": self.load.r_limit_primary_ohm,
             },
             "sources": [
-                {"end": s.end, "z_source_ohm": _c(s.z_source_ohm), "sir": s.sir,
-                 "line_class": s.line_class}
+                {"end": s.end, "role": s.role, "z_source_ohm": cplx(s.z_source_ohm),
+                 "sir": s.sir, "line_class": s.line_class}
                 for s in self.sources
             ],
             "arc_current_a": self.arc_current_a,
@@ -201,75 +191,6 @@ class SettingsResult:
                 for w in self.warnings
             ],
         }
-
-    def rows(self) -> list[tuple[str, float | str, str]]:
-        """Settings as (name, value, unit) rows with descriptive, vendor-neutral names."""
-        ohm, deg = "Ω", "°"
-        k = self.k0
-        rows: list[tuple[str, float | str, str]] = [
-            ("Line positive-sequence impedance, primary", abs(self.line_z1_primary_ohm), ohm),
-            ("Line positive-sequence impedance, secondary", abs(self.line_z1_secondary_ohm), ohm),
-            ("Line angle", math.degrees(self.line_angle_rad), deg),
-            ("Residual compensation factor k0, magnitude", abs(k.k0), ""),
-            ("Residual compensation factor k0, angle", math.degrees(cmath.phase(k.k0)), deg),
-            ("Residual compensation, resistive part (R0−R1)/(3R1)", k.kr, ""),
-            ("Residual compensation, reactive part (X0−X1)/(3X1)", k.kx, ""),
-            ("Zero- to positive-sequence ratio Z0/Z1, magnitude", abs(k.z0_over_z1), ""),
-            ("Zero- to positive-sequence ratio Z0/Z1, angle",
-             math.degrees(cmath.phase(k.z0_over_z1)), deg),
-        ]
-        if self.k0m is not None:
-            rows += [
-                ("Mutual compensation factor k0m, magnitude", abs(self.k0m), ""),
-                ("Mutual compensation factor k0m, angle", math.degrees(cmath.phase(self.k0m)),
-                 deg),
-            ]
-        for z in self.zones:
-            n = z.label
-            rows += [
-                (f"{n} direction", z.direction, ""),
-                (f"{n} reach, primary", abs(z.reach_primary_ohm), ohm),
-                (f"{n} reach, secondary", abs(z.reach_secondary_ohm), ohm),
-                (f"{n} reach angle", math.degrees(cmath.phase(z.reach_primary_ohm)), deg),
-                (f"{n} reach, percent of line", z.reach_pct, "%"),
-                (f"{n} time delay", z.delay_s, "s"),
-            ]
-            if z.shape == "mho":
-                rows += [
-                    (f"{n} mho diameter, primary", z.mho_diameter_primary_ohm, ohm),
-                    (f"{n} mho diameter, secondary", z.mho_diameter_secondary_ohm, ohm),
-                    (f"{n} mho characteristic angle", math.degrees(z.char_angle_rad), deg),
-                ]
-            else:
-                rows += [
-                    (f"{n} reactive reach, primary", z.x_reach_primary_ohm, ohm),
-                    (f"{n} reactive reach, secondary", z.x_reach_secondary_ohm, ohm),
-                    (f"{n} resistive reach, phase loops, primary", z.r_reach_phase_primary_ohm,
-                     ohm),
-                    (f"{n} resistive reach, phase loops, secondary",
-                     z.r_reach_phase_secondary_ohm, ohm),
-                    (f"{n} resistive reach, ground loops, primary",
-                     z.r_reach_ground_primary_ohm, ohm),
-                    (f"{n} resistive reach, ground loops, secondary",
-                     z.r_reach_ground_secondary_ohm, ohm),
-                    (f"{n} resistive blinder angle", math.degrees(self.line_angle_rad), deg),
-                ]
-        rows += [
-            ("Minimum load impedance, primary", self.load.z_min_primary_ohm, ohm),
-            ("Minimum load impedance, secondary", self.load.z_min_secondary_ohm, ohm),
-            ("Maximum load angle", math.degrees(self.load.load_angle_max_rad), deg),
-        ]
-        for s in self.sources:
-            rows += [
-                (f"Source-to-line impedance ratio (SIR), {s.end} end", s.sir, ""),
-                (f"Line class by SIR (IEEE Std C37.113), {s.end} end", s.line_class, ""),
-            ]
-        return rows
-
-
-def _c(z: complex | None) -> list[float] | None:
-    """A complex value as [re, im], the project's JSON convention."""
-    return None if z is None else [float(z.real), float(z.imag)]
 
 
 def _deg(x: float | None) -> float | None:

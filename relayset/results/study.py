@@ -7,6 +7,7 @@ from typing import Any
 
 from relayset.results.parameters import LineParameters
 from relayset.results.reach import ReachStudyResult
+from relayset.results.relay import RelayBasis
 from relayset.results.settings import SettingsResult
 from relayset.results.verification import VerificationResult
 
@@ -27,8 +28,9 @@ class StudyResults:
     study_input: dict[str, Any]  #: the study file as read (TOML tables), for the archive
     identity: dict[str, Any]
     parameters: LineParameters
+    relay: RelayBasis | None = None  #: the relay basis, resolved once (reach and settings)
     reach: ReachStudyResult | None = None
-    settings: SettingsResult | None = None
+    settings: tuple[SettingsResult, ...] | None = None  #: one per relay end
     philosophy: dict[str, Any] | None = None  #: the setting philosophy applied
     verification: VerificationResult | None = None  #: the settings tested by simulation
     caution: str = CAUTION
@@ -42,10 +44,12 @@ class StudyResults:
             "study": self.identity,
             "parameters": self.parameters.to_dict(),
         }
+        if self.relay is not None:
+            d["relay"] = self.relay.to_dict()
         if self.reach is not None:
             d["reach_study"] = self.reach.to_dict()
         if self.settings is not None:
-            d["settings"] = self.settings.to_dict()
+            d["settings"] = {"ends": [s.to_dict() for s in self.settings]}
             d["philosophy"] = self.philosophy
         if self.verification is not None:
             d["verification"] = self.verification.to_dict()

@@ -11,7 +11,6 @@ from dataclasses import dataclass
 from typing import Any
 
 from relayset.results.serialize import cplx
-from relayset.results.settings import SettingsResult
 
 VERDICTS = ("verified", "failed checks", "not verified")
 
@@ -104,7 +103,6 @@ class EndVerification:
     checks: tuple[ZoneVerification, ...]
     infeed: InfeedRange | None
     zone1_limit_pct: float | None  #: longest zone 1 the external cases allow [% of line]
-    settings: SettingsResult | None = None  #: the settings of this end, as verified
 
     @property
     def passed(self) -> bool:
@@ -123,7 +121,6 @@ class EndVerification:
             "zone1_limit_pct": self.zone1_limit_pct,
             "infeed": None if self.infeed is None else self.infeed.to_dict(),
             "checks": [c.to_dict() for c in self.checks],
-            "settings": None if self.settings is None else self.settings.to_dict(),
         }
 
 

@@ -89,16 +89,28 @@ def compute_settings(
         return complex(z) if isinstance(x, complex) else float(z)
 
     # k0 in three forms, all from one k0 (given, or from the line totals).
-    k0_calc = complex(residual_compensation(zl, i.z0_line_ohm))
+    # The line's own k0 is the reference a given k0 is compared with; a given Z1 replica
+    # does not change it (k0 is a property of the line).
+    k0_calc = (i.k0_line if i.k0_line is not None
+               else complex(residual_compensation(zl, i.z0_line_ohm)))
     k0 = i.k0 if i.k0 is not None else k0_calc
     z0_eff = zl * (1 + 3 * k0)
-    if i.k0 is not None and abs(z0_eff - i.z0_line_ohm) > 1e-3 * abs(i.z0_line_ohm):
+    if i.k0 is not None and abs(k0 - k0_calc) > 1e-3 * abs(k0_calc):
         w.warn(
             "k0_differs_from_line",
             f"the given k0 = {abs(k0):.4g}∠{math.degrees(cmath.phase(k0)):.2f}° differs from "
             f"(Z0 − Z1)/(3 Z1) = {abs(k0_calc):.4g}∠{math.degrees(cmath.phase(k0_calc)):.2f}° "
             "of the line totals; the given k0 is used",
             "check which k0 the relay should use (e.g. the reach study's effective value)",
+        )
+    zc = i.z1_line_computed_ohm
+    if zc is not None and abs(zl - zc) > 0.01 * abs(zc):
+        w.warn(
+            "z1_differs_from_line",
+            f"the given Z1 replica {abs(zl):.4g} Ω∠{math.degrees(cmath.phase(zl)):.2f}° differs "
+            f"from the computed line Z1 {abs(zc):.4g} Ω∠{math.degrees(cmath.phase(zc)):.2f}° "
+            f"by {100 * abs(zl - zc) / abs(zc):.3g} %; every reach follows the given value",
+            "check the source of relay.z1_set (measured, or another line model)",
         )
     kr, kx = residual_compensation_split(zl, z0_eff)
     k0_forms = K0(k0=k0, kr=float(kr), kx=float(kx), z0_over_z1=1 + 3 * k0)
@@ -110,11 +122,12 @@ def compute_settings(
 
     # Sources: SIR and line class.
     sources = []
-    for end, zs in (("relay", i.source_z1_relay_ohm), ("remote", i.source_z1_remote_ohm)):
+    for role, end, zs in (("relay", i.end, i.source_z1_relay_ohm),
+                          ("remote", i.remote_end, i.source_z1_remote_ohm)):
         if zs is not None:
             s = float(zp.sir(zs, zl))
-            sources.append(SourceEnd(end, zs, s, str(line_class(s))))
-    if sources and sources[0].end == "relay" and sources[0].line_class == "short":
+            sources.append(SourceEnd(end, zs, s, str(line_class(s)), role=role))
+    if sources and sources[0].role == "relay" and sources[0].line_class == "short":
         w.warn(
             "short_line",
             f"short line by SIR (SIR = {sources[0].sir:.3g} >= {SIR_SHORT_MIN:g} at the relay "
@@ -237,7 +250,7 @@ def compute_settings(
                 "reduce the reach, use a quadrilateral or a load-encroachment blinder",
             )
         built.append(ZoneSetting(
-            zone=zone, label=label, direction="forward" if forward else "reverse", rule=rule,
+            zone=zone, direction="forward" if forward else "reverse", rule=rule,
             reach_primary_ohm=complex(target), reach_secondary_ohm=sec(complex(target)),
             reach_pct=abs(target) / abs(zl) * 100, delay_s=delay,
             shape=ph.characteristic.shape, infeed_factor=k, **mho, **qd,
@@ -287,6 +300,8 @@ def compute_settings(
         )
 
     return SettingsResult(
+        end=i.end,
+        remote_end=i.remote_end,
         line_z1_primary_ohm=zl,
         line_z1_secondary_ohm=sec(zl),
         line_angle_rad=theta,

@@ -65,7 +65,8 @@ class SettingsInputs:
     Parameters
     ----------
     z1_line_ohm, z0_line_ohm : complex
-        Positive- and zero-sequence impedance of the whole protected line [ohm].
+        Positive-sequence replica the relay is set with and zero-sequence impedance of the
+        whole protected line [ohm].
     length_m : float
         Line length [m].
     ct_ratio, vt_ratio : float
@@ -79,7 +80,14 @@ class SettingsInputs:
     load_angle_max_rad : float
         Largest load (power-factor) angle of the load range [rad], 0 <= angle < π/2.
     k0 : complex, optional
-        Residual compensation factor (e.g. from the reach study); default (Z0 − Z1)/(3 Z1).
+        Residual compensation factor the relay is set with [1]; default ``k0_line``.
+    z1_line_computed_ohm : complex, optional
+        The line's Z1 from its parameters [ohm], what a given replica is compared with.
+    k0_line : complex, optional
+        The line's own k0 [1], what a given ``k0`` is compared with; default
+        (Z0 − Z1)/(3 Z1) of ``z0_line_ohm`` and ``z1_line_ohm``.
+    end, remote_end : str
+        Names of the relay's end and the remote end (for messages and results).
     k0m : complex, optional
         Mutual compensation factor of a double-circuit line, Z0m/(3 Z1) [1]; reported only.
     adjacent_lines : sequence of (name, z1_ohm)
@@ -118,6 +126,8 @@ class SettingsInputs:
     v_min_pu: float
     load_angle_max_rad: float
     k0: complex | None = None
+    k0_line: complex | None = None
+    z1_line_computed_ohm: complex | None = None
     k0m: complex | None = None
     adjacent_lines: Sequence[tuple[str, complex]] = ()
     reverse_lines: Sequence[tuple[str, complex]] = ()
@@ -129,6 +139,8 @@ class SettingsInputs:
     tower_footing_ohm: float = 0.0
     recommended_zone1_pct: float | None = None
     worst_overreach_pct: float | None = None
+    end: str = "relay"
+    remote_end: str = "remote"
     infeed_range: tuple[complex, complex] | None = None
     reverse_cover_ohm: float | None = None
 
@@ -152,6 +164,11 @@ class SettingsInputs:
             if abs(1 + 3 * k0) == 0:
                 raise InputError("must not equal -1/3", field="k0", value=k0, source=_SOURCE)
             put("k0", k0)
+        if self.z1_line_computed_ohm is not None:
+            put("z1_line_computed_ohm", _cplx("z1_line_computed_ohm",
+                                              self.z1_line_computed_ohm, inductive=True))
+        if self.k0_line is not None:
+            put("k0_line", _cplx("k0_line", self.k0_line))
         if self.k0m is not None:
             put("k0m", _cplx("k0m", self.k0m))
         put("adjacent_lines", _lines("adjacent_lines", self.adjacent_lines))

@@ -8,13 +8,13 @@ comparison, for the untransposed line and an ideal cycle, then condenses the res
 
 from __future__ import annotations
 
-import cmath
 import math
 import warnings
 
 import numpy as np
 
 from relayset.errors import InputError, suggest
+from relayset.inputs.philosophy import Philosophy
 from relayset.inputs.study_file import Study
 from relayset.physics import measurement, network, transposition
 from relayset.results.parameters import LineParameters
@@ -25,9 +25,11 @@ from relayset.results.reach import (
     ReachStudyResult,
     WorstCase,
 )
+from relayset.results.relay import RelayBasis
 from relayset.results.serialize import cplx
 from relayset.settings.zone1 import recommended_zone1_pct
 from relayset.studies.geometry import LineGeometry
+from relayset.studies.relay import line_ends
 
 LOOPS = ("AG", "BG", "CG", "AB", "BC", "CA")
 _LOOP_PHASES = {"AG": (0,), "BG": (1,), "CG": (2,), "AB": (0, 1), "BC": (1, 2), "CA": (2, 0)}
@@ -80,8 +82,8 @@ def _positions_at(m: float, loop: str, orders, lengths, names) -> tuple[str, ...
 
 
 def run_reach_study(
-    study: Study, geo: LineGeometry, params: LineParameters, *, source: str,
-    zone1_reach_pct: float = 80.0, zone1_max_pct: float = 85.0, zone1_margin_pct: float = 0.0,
+    study: Study, geo: LineGeometry, params: LineParameters, relay: RelayBasis,
+    philosophy: Philosophy, *, source: str,
 ) -> ReachStudyResult:
     """Sweep faults over the real line and condense the reach errors per loop and end.
 
@@ -89,30 +91,17 @@ def run_reach_study(
     ----------
     study, geo, params
         The validated study, its geometry and its line parameters.
+    relay : RelayBasis
+        The relay ends and the Z1, k0 and k0m they are set with (resolved once).
+    philosophy : Philosophy
+        Gives the zone 1 reach at which over/underreach is reported (unless
+        ``reach_study.zone1_reach_pct`` is set), its cap and its margin.
     source : str
         The study file name, for error messages.
-    zone1_reach_pct : float
-        Zone 1 reach at which over/underreach is reported [% of line] (the philosophy's,
-        unless ``reach_study.zone1_reach_pct`` is set).
-    zone1_max_pct : float
-        The largest zone 1 reach the philosophy allows [%].
-    zone1_margin_pct : float
-        Margin short of the remote bus beyond the errors [%] (philosophy).
     """
     rs = study.reach_study
-    names = (study.study.from_substation, study.study.to_substation)
-    if study.relay is None:
-        raise InputError("the reach study needs a [relay] table (end, CT and VT ratios)",
-                         field="relay", source=source)
-    end = study.relay.end
-    if end == "both":
-        ends = list(names)
-    elif end in names:
-        ends = [end]
-    else:
-        raise InputError(
-            f"is not an end of this line; use {names[0]!r}, {names[1]!r} or 'both'"
-            + suggest(end, names), field="relay.end", value=end, source=source)
+    names = line_ends(study)
+    ends = list(relay.ends)
     for key in study.sources:
         if key not in names:
             raise InputError("names no end of this line" + suggest(key, names),
@@ -132,6 +121,8 @@ def run_reach_study(
             raise InputError("unknown fault type; use " + ", ".join(network.FAULT_TYPES)
                              + suggest(ft, network.FAULT_TYPES),
                              field="reach_study.fault_types", value=ft, source=source)
+    zone1_max_pct = zone1_reach_pct = philosophy.zone1.reach_pct
+    zone1_margin_pct = philosophy.zone1.min_margin_pct
     z1_reach = rs.zone1_reach_pct or zone1_reach_pct
     if not 0 < z1_reach < 100:
         raise InputError("must be between 0 and 100 % of the line",
@@ -160,15 +151,7 @@ def run_reach_study(
                              field="load.power_flows", source=source)
         angles = np.zeros(len(study.load.power_flows))  # replaced by the EMFs of each flow
 
-    # Relay settings: by default those of the ideally transposed line.
-    circ = params.circuits[0]
-    z1_set = study.relay.z1_set if study.relay.z1_set is not None else circ.z1_ohm
-    k0_set = (cmath.rect(study.relay.k0_set.magnitude, study.relay.k0_set.angle)
-              if study.relay.k0_set is not None else circ.k0.k0)
-    k0m_set = None
-    if n_c == 2:
-        k0m_set = (cmath.rect(study.relay.k0m_set.magnitude, study.relay.k0m_set.angle)
-                   if study.relay.k0m_set is not None else params.k0m)
+    z1_set, k0_set, k0m_set = relay.z1_set_ohm, relay.k0_set, relay.k0m_set
     budget = study.error_budget.total_pct
 
     lengths = np.array(geo.section_lengths_m)

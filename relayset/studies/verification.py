@@ -316,6 +316,7 @@ class _Acc:
     case: VerificationCase | None = None
 
     def add(self, margin: np.ndarray, mask: np.ndarray, required: float, describe) -> None:
+        mask = np.broadcast_to(mask, margin.shape)
         margin = np.where(mask, margin, np.inf)
         self.n_run += int(np.count_nonzero(mask))
         self.n_fail += int(np.count_nonzero(mask & ~(margin >= required - 1e-9)))
@@ -436,14 +437,6 @@ def zone1_limit_pct(sim: Simulation, end: str, st: SettingsResult, tolerance_pct
     return math.floor(lim * 2 + 1e-9) / 2
 
 
-def _lines_at(study: Study, bus: str, names, source: str) -> list[tuple[str, complex]]:
-    """Lines leaving a bus: adjacent_lines leave the to-substation, lines_behind the from."""
-    from relayset.studies.settings import _adjacent
-
-    which = "adjacent_lines" if bus == names[1] else "lines_behind"
-    return _adjacent(study, which, source)
-
-
 def verify_end(sim: Simulation, end: str, st: SettingsResult, *, study: Study,
                tolerance_pct: float, remote: SettingsResult | None, source: str,
                zone2_adjacent_zone1_pct: float = 80.0) -> EndVerification:
@@ -540,14 +533,16 @@ def verify_end(sim: Simulation, end: str, st: SettingsResult, *, study: Study,
     if remote is not None:
         checks.append(_reverse_check(st, zr, remote, t, other))
     lim = zone1_limit_pct(sim, end, st, t, 0.0)
-    return EndVerification(end, tuple(checks), infeed_range(sim, end), lim, st)
+    return EndVerification(end, tuple(checks), infeed_range(sim, end), lim)
 
 
 def _beyond_bus_checks(sim, end, st, *, study, tolerance_pct, source, adjacent_zone1_pct):
     """Zone 2 against the adjacent zone 1 at minimum infeed; zone 3 coverage at maximum."""
+    from relayset.studies.settings import _lines_at
+
     names = sim.names
     remote_bus = names[1] if end == names[0] else names[0]
-    lines = _lines_at(study, remote_bus, names, source)
+    lines = _lines_at(study, end, remote=True, source=source)
     inf = infeed_range(sim, end)
     if not lines or inf is None:
         return []
@@ -673,7 +668,8 @@ def check_tolerance(tolerance_pct: float, source: str) -> float:
 
 def verify_settings(study: Study, geo: LineGeometry, params_by_rho: dict[float, LineParameters],
                     settings_by_end: dict[str, SettingsResult], *, source: str,
-                    zone2_adjacent_zone1_pct: float = 80.0) -> VerificationResult:
+                    zone2_adjacent_zone1_pct: float = 80.0,
+                    ends: Sequence[str] | None = None) -> VerificationResult:
     """Run the verification of the settings of every end.
 
     Parameters
@@ -694,13 +690,15 @@ def verify_settings(study: Study, geo: LineGeometry, params_by_rho: dict[float, 
     m = verification_grid(settings_by_end, names, t)
     rf = rf_pairs_for(study, list(settings_by_end.values()))
     sim = simulate(study, geo, params_by_rho, m=m, rf_pairs=rf, source=source)
-    ends = []
+    results = []
     for end, st in settings_by_end.items():
+        if ends is not None and end not in ends:
+            continue
         other = names[1] if end == names[0] else names[0]
-        ends.append(verify_end(sim, end, st, study=study, tolerance_pct=t,
-                               remote=settings_by_end.get(other), source=source,
-                               zone2_adjacent_zone1_pct=zone2_adjacent_zone1_pct))
-    failed = [(e.end, c) for e in ends for c in e.checks if not c.passed]
+        results.append(verify_end(sim, end, st, study=study, tolerance_pct=t,
+                                  remote=settings_by_end.get(other), source=source,
+                                  zone2_adjacent_zone1_pct=zone2_adjacent_zone1_pct))
+    failed = [(e.end, c) for e in results for c in e.checks if not c.passed]
     if failed:
         verdict = "failed checks"
         reason = f"{len(failed)} check(s) failed: " + "; ".join(
@@ -723,7 +721,7 @@ def verify_settings(study: Study, geo: LineGeometry, params_by_rho: dict[float, 
         *_resistive_basis(study, geo, settings_by_end),
     )
     return VerificationResult(
-        verdict=verdict, reason=reason, tolerance_pct=t, ends=tuple(ends),
+        verdict=verdict, reason=reason, tolerance_pct=t, ends=tuple(results),
         parallel_states=sim.states, source_cases=sim.case_names,
         earth_resistivities_ohm_m=sim.resistivities, cases_solved=sim.n_cases, notes=notes)
 
@@ -763,43 +761,51 @@ def with_zone(st: SettingsResult, zone: ZoneSetting) -> SettingsResult:
 # --------------------------------------------------------------------------- pipeline
 
 
-def settle_and_verify(study: Study, geo: LineGeometry, params: LineParameters, reach,
-                      philosophy, *, source: str
-                      ) -> tuple[dict[str, SettingsResult], VerificationResult]:
+def settle_and_verify(study: Study, geo: LineGeometry, params: LineParameters, relay,
+                      reach, philosophy, *, source: str
+                      ) -> tuple[tuple[SettingsResult, ...], VerificationResult]:
     """Settings of every relay end, closed by simulation, and their verification.
 
-    1. Preliminary settings per end (the rules of :mod:`relayset.settings`).
+    1. Preliminary settings at both ends (the rules of :mod:`relayset.settings`); the end
+       the study does not ask for is needed for its zone 2 (the reverse zone must cover it).
     2. A first simulation of the faults at both buses (every parallel-circuit state, source
        and load case, the resistive targets) gives per end the worst zone 1 overreach and
        the infeed range at the remote bus.
-    3. Final settings with zone 1 limited by that overreach (the same zone 1 rule, with the
-       tolerance) and the simulated infeed range.
-    4. The verification of the final settings.
+    3. Final settings: zone 1 limited by that overreach (the zone 1 rule of
+       :func:`relayset.settings.zone1.recommended_zone1_pct`, with the tolerance), infeed
+       from the simulation, reverse zone covering the other end's zone 2.
+    4. The verification of the final settings of the ends the study asks for.
     """
     from relayset.settings.zone1 import recommended_zone1_pct
     from relayset.studies.settings import run_settings
 
     names = (study.study.from_substation, study.study.to_substation)
     t = check_tolerance(study.error_budget.total_pct, source)
-    wanted = list(names) if study.relay.end == "both" else [study.relay.end]
-    prelim: dict[str, SettingsResult] = {}
-    for end in names:
-        try:
-            prelim[end] = run_settings(study, geo, params, reach, philosophy, source=source,
-                                       end=end)
-        except InputError:
-            if end in wanted:
-                raise
+    wanted = tuple(relay.ends)
+
+    def settings_at(simulated):
+        out = {}
+        for end in names:
+            try:
+                out[end] = run_settings(study, geo, params, relay, reach, philosophy,
+                                        source=source, ends=(end,),
+                                        simulated=simulated)[0]
+            except InputError:
+                if end in wanted:
+                    raise
+        return out
+
+    prelim = settings_at({})
     rho = study.system.earth_resistivity
     sim0 = simulate(study, geo, {rho: params}, m=np.array([0.0, 1.0]),
                     rf_pairs=rf_pairs_for(study, list(prelim.values())), source=source,
                     parallel=False)
     z1p = philosophy.zone1
-    final: dict[str, SettingsResult] = {}
-    args: dict[str, dict] = {}
+    simulated: dict[str, dict] = {}
+    overreach: dict[str, float] = {}
     for end, st in prelim.items():
+        sim_end: dict = {}
         s_min = _worst_remote_bus_scale(sim0, end, st)
-        kwargs = {}
         if s_min is not None:
             # The worst case appears at s_min x reach (fraction of the line) though it sits
             # at the remote bus: the zone overreaches by e % of its setting.
@@ -807,51 +813,45 @@ def settle_and_verify(study: Study, geo: LineGeometry, params: LineParameters, r
             b = t + t * max(0.0, e) / 100  # tolerance applied on top of the overreach
             rec = recommended_zone1_pct(e, b, z1p.reach_pct, z1p.min_margin_pct)
             if rec > 0:
-                kwargs["zone1_limit"] = (rec, b + max(0.0, e))
+                sim_end["zone1_limit"] = (rec, b + max(0.0, e))
+                overreach[end] = e
         if philosophy.zone2.infeed == "computed" or philosophy.zone3.infeed == "computed":
             inf = infeed_range(sim0, end)
             if inf is not None:
-                kwargs["infeed_range"] = (inf.k_min, inf.k_max)
-        final[end] = run_settings(study, geo, params, reach, philosophy, source=source,
-                                  end=end, **kwargs)
-        args[end] = kwargs
-        if "zone1_limit" in kwargs and final[end].zone("zone1").reach_pct < st.zone(
-                "zone1").reach_pct - 1e-9:
-            from relayset.results.settings import SettingWarning
-
-            final[end] = replace(final[end], warnings=(*final[end].warnings, SettingWarning(
-                "zone1_limited_by_simulation",
-                f"Zone 1 limited to {final[end].zone('zone1').reach_pct:.4g} % of the line: "
-                f"the worst fault at the remote bus over every parallel-circuit state, source "
-                f"and load case and fault resistance overreaches by {e:.3g} % of the setting",
-                "review the governing case in the verification; a pilot scheme restores "
-                "instantaneous coverage of the line end")))
+                sim_end["infeed_range"] = (inf.k_min, inf.k_max)
+        simulated[end] = sim_end
+    final = settings_at(simulated)
     # The reverse zone of each end covers the other end's zone 2 past this bus.
-    for end in list(final):
+    again = False
+    for end in final:
         other = names[1] if end == names[0] else names[0]
         if other not in final:
             continue
         rem = final[other]
         over = abs(rem.zone("zone2").reach_primary_ohm) - abs(rem.line_z1_primary_ohm)
-        if over > 0:
-            cover = over / (1 - t / 100) * (1 + 1e-6)
-            if cover > abs(final[end].zone("reverse").reach_primary_ohm):
-                warns = [w for w in final[end].warnings
-                         if w.rule_id == "zone1_limited_by_simulation"]
-                st = run_settings(study, geo, params, reach, philosophy, source=source,
-                                  end=end, **args[end], reverse_cover_ohm=cover)
-                final[end] = replace(st, warnings=(*st.warnings, *warns))
+        cover = over / (1 - t / 100) * (1 + 1e-6)
+        if over > 0 and cover > abs(final[end].zone("reverse").reach_primary_ohm):
+            simulated[end]["reverse_cover_ohm"] = cover
+            again = True
+    if again:
+        final = settings_at(simulated)
+    for end, st in final.items():
+        if st.zone("zone1").reach_pct < prelim[end].zone("zone1").reach_pct - 1e-9 and (
+                end in overreach):
+            from relayset.results.settings import SettingWarning
+
+            final[end] = replace(st, warnings=(*st.warnings, SettingWarning(
+                "zone1_limited_by_simulation",
+                f"Zone 1 at most {simulated[end]['zone1_limit'][0]:.4g} % of the line: the "
+                "worst fault at the remote bus over every parallel-circuit state, source and "
+                f"load case and fault resistance overreaches by {overreach[end]:.3g} % of the "
+                "setting",
+                "review the governing case in the verification; a pilot scheme restores "
+                "instantaneous coverage of the line end")))
     ver = verify_settings(study, geo, {rho: params}, final, source=source,
-                          zone2_adjacent_zone1_pct=philosophy.zone2.adjacent_zone1_pct)
-    ver = replace(ver, ends=tuple(e for e in ver.ends if e.end in wanted))
-    failed = [(e.end, c) for e in ver.ends for c in e.checks if not c.passed]
-    if failed:
-        ver = replace(ver, verdict="failed checks", reason=f"{len(failed)} check(s) failed: "
-                      + "; ".join(f"{e} {c.zone} {c.check_id}" for e, c in failed[:4]))
-    else:
-        ver = replace(ver, verdict="verified",
-                      reason="every check passed in every simulated case")
-    return {e: final[e] for e in wanted if e in final}, ver
+                          zone2_adjacent_zone1_pct=philosophy.zone2.adjacent_zone1_pct,
+                          ends=wanted)
+    return tuple(final[e] for e in wanted), ver
 
 
 def _worst_remote_bus_scale(sim: Simulation, end: str, st: SettingsResult) -> float | None:

@@ -20,7 +20,7 @@ def main() -> None:
     for name in ("ashcombe_brenwick_132kv.toml", "elsford_fallowby_230kv_double.toml",
                  "greyholt_ivel_400kv_twin.toml"):
         path = demo_lines_dir() / name
-        study, _, _ = load_study(path)
+        study = load_study(path).study
         geo = build_geometry(study, str(path))
         compute_parameters(geo)  # warm up
         n = 200

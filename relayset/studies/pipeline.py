@@ -1,0 +1,97 @@
+"""The one pipeline: read the file once, hash those bytes, parse, resolve the relay once, then
+geometry -> parameters -> reach study -> settings. Nothing here prints or writes."""
+
+from __future__ import annotations
+
+import hashlib
+from dataclasses import dataclass
+from importlib.metadata import PackageNotFoundError, version
+from pathlib import Path
+from typing import Any
+
+from relayset.inputs.study_file import Study, loads_toml, parse_study, read_bytes
+from relayset.results.parameters import LineParameters
+from relayset.results.study import StudyResults
+from relayset.studies.geometry import build_geometry
+from relayset.studies.parameters import compute_parameters
+
+
+def relayset_version() -> str:
+    """The installed relayset version ("0+unknown" in an uninstalled source tree)."""
+    try:
+        return version("relayset")
+    except PackageNotFoundError:
+        return "0+unknown"
+
+
+@dataclass(frozen=True)
+class LoadedStudy:
+    """A study file as read: its bytes, their SHA-256, the TOML tables and the model."""
+
+    source: str
+    data: bytes
+    sha256: str
+    tables: dict[str, Any]
+    study: Study
+
+
+def load(path: str | Path) -> LoadedStudy:
+    """Read a study file once and validate it; the hash is of exactly the bytes parsed."""
+    src = str(path)
+    data = read_bytes(path)
+    tables = loads_toml(data, src)
+    return LoadedStudy(src, data, hashlib.sha256(data).hexdigest(), tables,
+                       parse_study(tables, source=src))
+
+
+def identity(study: Study) -> dict[str, Any]:
+    """The study's identity block (line id, title, ends, revision, names, voltage)."""
+    info = study.study.model_dump()
+    if info.get("revision_date") is not None:
+        info["revision_date"] = info["revision_date"].isoformat()
+    info["nominal_voltage_kv"] = study.system.nominal_voltage / 1e3
+    return info
+
+
+def line_parameters(path: str | Path) -> LineParameters:
+    """The line parameters of a study file (e.g. an adjacent line's)."""
+    loaded = load(path)
+    return compute_parameters(build_geometry(loaded.study, loaded.source))
+
+
+def run(path: str | Path, *, reach: bool = False, settings: bool = False) -> StudyResults:
+    """Compute a study: parameters always, the reach study and settings on request."""
+    from relayset.studies.reach import run_reach_study
+    from relayset.studies.relay import resolve_relay
+    from relayset.studies.settings import study_philosophy
+
+    reach = reach or settings  # zone 1 follows the reach study
+    loaded = load(path)
+    study, src = loaded.study, loaded.source
+    geo = build_geometry(study, src)
+    params = compute_parameters(geo)
+    relay = philosophy = reach_res = settings_res = None
+    if reach:
+        relay = resolve_relay(study, params, source=src)
+        philosophy = study_philosophy(study, src)
+        reach_res = run_reach_study(study, geo, params, relay, philosophy, source=src)
+    verification = None
+    if settings:
+        from relayset.studies.verification import settle_and_verify
+
+        # Settings closed by fault simulation (zone 1, infeed, reverse zone), then verified.
+        settings_res, verification = settle_and_verify(study, geo, params, relay, reach_res,
+                                                       philosophy, source=src)
+    return StudyResults(
+        relayset_version=relayset_version(),
+        source_file=src,
+        source_sha256=loaded.sha256,
+        study_input=loaded.tables,
+        identity=identity(study),
+        parameters=params,
+        relay=relay,
+        reach=reach_res,
+        settings=settings_res,
+        philosophy=philosophy.to_dict() if settings else None,
+        verification=verification,
+    )
