@@ -27,7 +27,7 @@ from relayset.studies.relay import resolve_relay
 from relayset.studies.verification import settle_and_verify, verify_settings
 
 sys.path.insert(0, str(Path(__file__).resolve().parent.parent))
-from tomlwrite import dump_toml  # noqa: E402
+from tomlwrite import dump_toml
 
 TARGET_S = 1.0
 
@@ -57,7 +57,7 @@ def main() -> int:
         relay = resolve_relay(study, params, source=src)
         phil = study_philosophy(study, src)
         reach = run_reach_study(study, geo, params, relay, phil, source=src)
-        settings, ver = settle_and_verify(study, geo, params, relay, reach, phil, source=src)
+        settings, _ver = settle_and_verify(study, geo, params, relay, reach, phil, source=src)
         by_end = {s.end: s for s in settings}
         rho = study.system.earth_resistivity
 
