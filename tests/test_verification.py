@@ -449,3 +449,49 @@ def test_tolerance_out_of_range_is_one_line_exit_2(variant, tmp_path, capsys):
     err = capsys.readouterr().err.strip()
     assert len(err.splitlines()) == 1 and "error_budget" in err and "50 %" in err
     assert not out.exists()
+
+
+def test_unknown_bus_of_an_adjacent_line_is_one_line_exit_2(variant, tmp_path, capsys):
+    path = variant(D132, lambda d: d["adjacent_lines"][0].update(bus="Brenwik"))
+    out = tmp_path / "x.json"
+    assert main(["settings", str(path), "--json", str(out)]) == 2
+    err = capsys.readouterr().err.strip()
+    assert len(err.splitlines()) == 1 and "adjacent_lines[0].bus" in err
+    assert not out.exists()
+
+
+def test_resistivity_range_not_containing_the_study_value_is_one_line_exit_2(variant, tmp_path,
+                                                                            capsys):
+    path = variant(D132, lambda d: d["system"].update(
+        earth_resistivity_range=["300 ohm*m", "1000 ohm*m"]))
+    out = tmp_path / "x.json"
+    assert main(["settings", str(path), "--json", str(out)]) == 2
+    err = capsys.readouterr().err.strip()
+    assert len(err.splitlines()) == 1 and "earth_resistivity_range" in err
+    assert not out.exists()
+
+
+def test_earth_resistivity_range_is_swept(variant, demo_path):
+    # The 132 kV demo gives 30-1000 ohm*m around its 100 ohm*m. The line's own k0 moves
+    # with the resistivity (Carson: the earth-return depth grows with rho) while the relay
+    # keeps one k0; the verification solves the line at each and names the resistivity of
+    # each governing case. More cases can only lower the worst remote-bus margin.
+    from relayset.studies.verification import params_by_resistivity
+
+    res = api.study_settings(demo_path(D132))
+    v = res.verification
+    assert v.earth_resistivities_ohm_m == (30.0, 100.0, 1000.0)
+    loaded = pipeline.load(demo_path(D132))
+    geo = build_geometry(loaded.study, loaded.source)
+    by_rho = params_by_resistivity(loaded.study, geo, compute_parameters(geo), "")
+    k0 = {r: p.circuits[0].k0.k0 for r, p in by_rho.items()}
+    assert abs(k0[1000.0] - k0[30.0]) > 0.02 * abs(k0[100.0])
+    cases = [c.governing_case for c in v.ends[0].checks if c.governing_case is not None]
+    assert all(g.earth_resistivity_ohm_m in (30.0, 100.0, 1000.0) for g in cases)
+    assert {g.earth_resistivity_ohm_m for g in cases} - {100.0}
+    single = api.study_settings(variant(D132, lambda d: d["system"].pop(
+        "earth_resistivity_range")))
+    assert single.verification.earth_resistivities_ohm_m == (100.0,)
+    assert single.verification.cases_solved * 3 == v.cases_solved
+    assert (v.ends[0].zone1_limit_pct or 0) <= (single.verification.ends[0].zone1_limit_pct
+                                                 or 0) + 0.5

@@ -102,6 +102,18 @@ class SystemData(_Model):
     frequency: _quantity("frequency", gt=0)  # type: ignore[valid-type]
     earth_resistivity: _quantity("resistivity", gt=0)  # type: ignore[valid-type]
     earth_model: str = "carson"
+    # Uncertainty of the resistivity [low, high], swept by the verification (k0 moves with it).
+    earth_resistivity_range: tuple[_quantity("resistivity", gt=0),  # type: ignore[valid-type]
+                                   _quantity("resistivity", gt=0)] | None = None  # type: ignore[valid-type]
+
+    @model_validator(mode="after")
+    def _check_range(self) -> SystemData:
+        r = self.earth_resistivity_range
+        if r is not None and not r[0] <= self.earth_resistivity <= r[1]:
+            raise ValueError(
+                f"earth_resistivity_range [{r[0]:g}, {r[1]:g}] ohm*m must run from low to "
+                f"high and contain earth_resistivity = {self.earth_resistivity:g} ohm*m")
+        return self
 
     @model_validator(mode="after")
     def _check(self) -> SystemData:

@@ -219,7 +219,7 @@ def simulate(study: Study, geo: LineGeometry, params_by_rho: dict[float, LinePar
                     all_names += [n for n in labels if n not in all_names]
     return Simulation(names, geo.phase_labels[0], tuple(runs), n_c, mutual,
                       tuple(all_names), tuple(states) if n_c == 2 else ("none",),
-                      tuple(params_by_rho))
+                      tuple(sorted(params_by_rho)))
 
 
 # --------------------------------------------------------------------------- measurement
@@ -761,6 +761,27 @@ def with_zone(st: SettingsResult, zone: ZoneSetting) -> SettingsResult:
 # --------------------------------------------------------------------------- pipeline
 
 
+def params_by_resistivity(study: Study, geo: LineGeometry, params: LineParameters,
+                          source: str) -> dict[float, LineParameters]:
+    """Line parameters at the study's resistivity and at the ends of its uncertainty range.
+
+    The relay keeps the k0 of its settings while the line's own k0 moves with the earth
+    resistivity, so the verification solves the line at each of them.
+    """
+    from relayset.studies.geometry import build_geometry
+    from relayset.studies.parameters import compute_parameters
+
+    rho = study.system.earth_resistivity
+    out = {float(rho): params}
+    rng = study.system.earth_resistivity_range
+    for r in () if rng is None else rng:
+        if float(r) not in out:
+            system = study.system.model_copy(update={"earth_resistivity": r})
+            other = study.model_copy(update={"system": system})
+            out[float(r)] = compute_parameters(build_geometry(other, source))
+    return out
+
+
 def settle_and_verify(study: Study, geo: LineGeometry, params: LineParameters, relay,
                       reach, philosophy, *, source: str
                       ) -> tuple[tuple[SettingsResult, ...], VerificationResult]:
@@ -796,8 +817,8 @@ def settle_and_verify(study: Study, geo: LineGeometry, params: LineParameters, r
         return out
 
     prelim = settings_at({})
-    rho = study.system.earth_resistivity
-    sim0 = simulate(study, geo, {rho: params}, m=np.array([0.0, 1.0]),
+    by_rho = params_by_resistivity(study, geo, params, source)
+    sim0 = simulate(study, geo, by_rho, m=np.array([0.0, 1.0]),
                     rf_pairs=rf_pairs_for(study, list(prelim.values())), source=source,
                     parallel=False)
     z1p = philosophy.zone1
@@ -848,7 +869,7 @@ def settle_and_verify(study: Study, geo: LineGeometry, params: LineParameters, r
                 "setting",
                 "review the governing case in the verification; a pilot scheme restores "
                 "instantaneous coverage of the line end")))
-    ver = verify_settings(study, geo, {rho: params}, final, source=source,
+    ver = verify_settings(study, geo, by_rho, final, source=source,
                           zone2_adjacent_zone1_pct=philosophy.zone2.adjacent_zone1_pct,
                           ends=wanted)
     return tuple(final[e] for e in wanted), ver
