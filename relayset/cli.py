@@ -92,17 +92,26 @@ def _run(args) -> int:
     for res in results:
         units = args.units or study_unit_system(res.study_input)
         sys.stdout.write(show(res, units))
+    # Every output file is rendered first, then all are written or none.
+    outputs = []
     if args.json:
-        io.write_json(args.json, results[0].to_dict())
+        outputs.append(("--json", args.json, io.to_json(results[0].to_dict())))
     if getattr(args, "csv", None):
-        from relayset.report.tables import settings_rows
-
-        rows = [(t.end, *row) for t in results[0].settings for row in settings_rows(t)]
-        io.write_atomic(args.csv, io.rows_to_csv(rows, header=("end", "setting", "value",
-                                                               "unit")))
+        outputs.append(("--csv", args.csv, io.csv_bytes(_settings_csv(results[0]))))
+    io.write_all(outputs)
     failed = any(r.verification is not None and r.verification.verdict == "failed checks"
                  for r in results)
     return EXIT_FAILED_CHECKS if failed else 0
+
+
+def _settings_csv(res) -> str:
+    from relayset import io
+    from relayset.report.tables import settings_rows
+
+    rows = [(t.end, *row) for t in res.settings for row in settings_rows(t)]
+    ident = res.identity
+    return io.rows_to_csv(rows, header=("end", "setting", "value", "unit"),
+                          columns={"line_id": ident["line_id"], "revision": ident["revision"]})
 
 
 def main(argv: Sequence[str] | None = None) -> int:

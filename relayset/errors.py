@@ -3,7 +3,12 @@
 from __future__ import annotations
 
 import difflib
+import re
 from collections.abc import Iterable
+
+#: Longest error message (without the "relayset: error: " prefix) [characters]: one line
+#: that fits a terminal or a log, whatever text the user's file holds.
+MESSAGE_LIMIT = 280
 
 
 class InputError(ValueError):
@@ -21,13 +26,15 @@ class InputError(ValueError):
         super().__init__(self._format())
 
     def _format(self) -> str:
-        where = self.source or "<input>"
+        where = shorten(self.source or "<input>", 80, keep_end=True)
         parts = [where]
         if self.field:
             shown = "" if self.value is None else f" = {_short(self.value)}"
-            parts.append(f"{self.field}{shown}")
-        parts.append(self.rule)
-        return ": ".join(parts).replace("\n", " ")
+            field = re.sub(r"[^.\[\]\s]{41,}", lambda m: shorten(m.group(0), 40), self.field)
+            parts.append(f"{shorten(field, 100)}{shown}")
+        parts.append(shorten_words(self.rule, 40))
+        text = " ".join(": ".join(parts).split())  # one line, whatever the text held
+        return shorten(text, MESSAGE_LIMIT)
 
     def located(self, *, source: str | None = None, prefix: str | None = None) -> InputError:
         """Return a copy with the file name set and/or the field path prefixed."""
@@ -39,9 +46,30 @@ class InputError(ValueError):
         )
 
 
+def shorten(text: str, limit: int, *, keep_end: bool = False) -> str:
+    """``text`` cut to at most ``limit`` characters, marked with "..." where it was cut.
+
+    ``keep_end`` keeps the end (a file name) rather than the start.
+    """
+    if len(text) <= limit:
+        return text
+    if keep_end:
+        return "..." + text[len(text) - limit + 3:]
+    head = (limit - 3) * 2 // 3
+    return text[:head] + "..." + text[len(text) - (limit - 3 - head):]
+
+
+def shorten_words(text: str, limit: int) -> str:
+    """Every run of more than ``limit`` non-blank characters in ``text`` shortened."""
+    if len(text) <= limit:
+        return text
+    return re.sub(rf"\S{{{limit + 1},}}", lambda m: shorten(m.group(0), limit), text)
+
+
 def _short(value: object, limit: int = 60) -> str:
-    text = repr(value) if isinstance(value, str) else str(value)
-    return text if len(text) <= limit else text[: limit - 3] + "..."
+    if isinstance(value, str):
+        return repr(shorten(value, limit - 2))
+    return shorten(str(value), limit)
 
 
 def suggest(word: str, choices: Iterable[str]) -> str:

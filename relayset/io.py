@@ -25,19 +25,73 @@ def _clean(obj: Any) -> Any:
     return obj
 
 
+def _umask() -> int:
+    """The process umask (read by setting it and putting it back)."""
+    mask = os.umask(0o022)
+    os.umask(mask)
+    return mask
+
+
+def _check_target(target: Path, label: str) -> None:
+    """An InputError (naming the option) if ``target`` cannot become a file."""
+    from relayset.errors import InputError
+
+    if target.is_dir():
+        raise InputError("is a folder; give a file name", field=label, value=str(target),
+                         source="command line")
+    for parent in target.parents:
+        if parent.exists():
+            if not parent.is_dir():
+                raise InputError(f"cannot be created: {str(parent)!r} is a file, not a folder",
+                                 field=label, value=str(target), source="command line")
+            break
+
+
+def write_all(outputs: list[tuple[str, str | Path, str | bytes]]) -> None:
+    """Write every output, or none: all temporary files first, then all renames.
+
+    Parameters
+    ----------
+    outputs : list of (label, path, data)
+        ``label`` names the option that asked for the file (``--json``), for messages.
+
+    Files get the permissions of a new file under the user's umask (not the 0600 of a
+    temporary file), so colleagues can read an archive the umask lets them read.
+    """
+    from relayset.errors import InputError
+
+    targets = [(label, Path(path), data) for label, path, data in outputs]
+    for label, target, _ in targets:
+        try:
+            _check_target(target, label)
+        except OSError as exc:  # e.g. a name too long for the file system
+            raise InputError(f"cannot be written ({exc.strerror or exc})", field=label,
+                             value=str(target), source="command line") from None
+    mode = 0o666 & ~_umask()
+    temps: list[tuple[str, Path]] = []
+    try:
+        for label, target, data in targets:
+            try:
+                target.parent.mkdir(parents=True, exist_ok=True)
+                fd, tmp = tempfile.mkstemp(prefix=f".{target.name[:50]}.", dir=target.parent)
+                temps.append((tmp, target))
+                os.fchmod(fd, mode)
+                with os.fdopen(fd, "wb") as fh:
+                    fh.write(data.encode("utf-8") if isinstance(data, str) else data)
+            except OSError as exc:
+                raise InputError(f"cannot be written ({exc.strerror or exc})", field=label,
+                                 value=str(target), source="command line") from None
+        for tmp, target in temps:
+            os.replace(tmp, target)
+    except BaseException:
+        for tmp, _ in temps:
+            Path(tmp).unlink(missing_ok=True)
+        raise
+
+
 def write_atomic(path: str | Path, data: str | bytes) -> None:
     """Write a file so that readers see either the old file or the whole new one."""
-    target = Path(path)
-    target.parent.mkdir(parents=True, exist_ok=True)
-    mode = "wb" if isinstance(data, bytes) else "w"
-    fd, tmp = tempfile.mkstemp(prefix=f".{target.name}.", dir=target.parent)
-    try:
-        with os.fdopen(fd, mode, **({} if mode == "wb" else {"encoding": "utf-8"})) as fh:
-            fh.write(data)
-        os.replace(tmp, target)
-    except BaseException:
-        Path(tmp).unlink(missing_ok=True)
-        raise
+    write_all([("output", path, data)])
 
 
 def to_json(obj: dict) -> str:
@@ -49,14 +103,36 @@ def write_json(path: str | Path, obj: dict) -> None:
     write_atomic(path, to_json(obj))
 
 
-def rows_to_csv(rows, header=("setting", "value", "unit")) -> str:
-    """CSV text of rows ending in (name, value, unit), with a header line."""
+#: Significant digits of numbers in CSV files: enough for any setting, none of the binary
+#: noise (29.999999999999996 is written 30).
+CSV_DIGITS = 12
+
+
+def rows_to_csv(rows, header=("setting", "value", "unit"), *,
+                columns: dict[str, str] | None = None) -> str:
+    """CSV text of rows ending in (name, value, unit), with a header line.
+
+    ``columns`` (like line id and revision) are repeated first on every row, so that tables
+    of several lines can be pasted together. Numbers are written with :data:`CSV_DIGITS`
+    significant digits; lines end in CR LF (RFC 4180). Write the text with
+    :data:`CSV_ENCODING` so a spreadsheet shows the ohm and degree signs.
+    """
     import csv
     import io as _io
 
+    columns = columns or {}
     buf = _io.StringIO()
-    w = csv.writer(buf, lineterminator="\n")
-    w.writerow(list(header))
+    w = csv.writer(buf, lineterminator="\r\n")
+    w.writerow([*columns, *header])
     for *lead, value, unit in rows:
-        w.writerow([*lead, value if isinstance(value, str) else repr(float(value)), unit])
+        shown = value if isinstance(value, str) else format(float(value), f".{CSV_DIGITS}g")
+        w.writerow([*columns.values(), *lead, shown, unit])
     return buf.getvalue()
+
+
+#: UTF-8 with a byte-order mark: spreadsheet programs then read it as UTF-8 (Ω, °).
+CSV_ENCODING = "utf-8-sig"
+
+
+def csv_bytes(text: str) -> bytes:
+    return text.encode(CSV_ENCODING)

@@ -2,8 +2,8 @@
 
 from __future__ import annotations
 
-import numpy as np
 import pytest
+from numpy.testing import assert_allclose
 
 import relayset
 
@@ -15,12 +15,12 @@ def test_matrix_frame_matches_results(demo_path):
     res = relayset.study_parameters(demo_path(DEMOS[2]))
     df = relayset.matrix_frame(res.parameters, "untransposed")
     assert df.shape == (6, 6) and list(df.columns[:3]) == ["1A", "1B", "1C"]
-    assert np.allclose(df.to_numpy(), res.parameters.arrangements["untransposed"]
-                       .zabc_ohm_per_m * 1e3, rtol=1e-15)
+    assert_allclose(df.to_numpy(), res.parameters.arrangements["untransposed"]
+                    .zabc_ohm_per_m * 1e3, rtol=1e-15, atol=0)
     seq = relayset.sequence_frame(res.parameters, per="mi")
     # 1 mi = 1609.344 m exactly (NIST SP 811)
     assert seq["z1_ohm_per_mi"].iloc[0] == pytest.approx(
-        res.parameters.circuits[0].z1_ohm_per_m * 1609.344, rel=1e-15)
+        res.parameters.circuits[0].z1_ohm_per_m * 1609.344, rel=1e-15, abs=0)
 
 
 def test_lazy_api_names():

@@ -62,7 +62,7 @@ def test_hand_derived_flat_line_phase_loop_errors(tmp_path, monkeypatch):
     With the truncated Carson earth (earth terms equal for every pair, Kersting ch. 4), the
     phase loop X-Y of a radially fed bolted fault measures m*L*(Zxx - Zxy) and the relay
     replica is Z1 = R + j(w*mu0/2pi)*ln(GMD/GMR), GMD = d*2^(1/3) (Glover, Overbye & Sarma,
-    6th ed., eq. 4.6.x). Hence
+    6th ed., sec. 4.6, Deq = (Dab Dbc Dca)^(1/3); equation number not recorded). Hence
         Z1 - Z_loop(X,Y) = (Zxy - (2*Z_adj + Z_out)/3)
     and with Z_adj - Z_out = j*Delta, Delta = (w*mu0/2pi)*ln 2 (outer pair twice as far):
         adjacent loops: + Delta*sin(theta1) / (3|Z1|) overreach,

@@ -84,13 +84,13 @@ def test_settings_exports(tmp_path, demo_path):
                  "--csv", str(out_csv)]) == 0
     d = json.loads(out_json.read_text())
     assert "settings" in d and "philosophy" in d and "reach_study" in d
-    rows = list(csv.reader(out_csv.open(encoding="utf-8")))
-    assert rows[0] == ["end", "setting", "value", "unit"]
-    assert {r[0] for r in rows[1:]} == {d["settings"]["ends"][0]["end"]}
-    names = [r[1] for r in rows]
+    rows = list(csv.reader(out_csv.open(encoding="utf-8-sig", newline="")))
+    assert rows[0] == ["line_id", "revision", "end", "setting", "value", "unit"]
+    assert {r[2] for r in rows[1:]} == {d["settings"]["ends"][0]["end"]}
+    names = [r[3] for r in rows]
     assert "Zone 1 reach, secondary" in names
     # secondary = primary * CT ratio / VT ratio (800 / 1200), identity to 1e-9
-    val = {r[1]: r[2] for r in rows[1:]}
+    val = {r[3]: r[4] for r in rows[1:]}
     assert float(val["Zone 1 reach, secondary"]) == pytest.approx(
         float(val["Zone 1 reach, primary"]) * 800 / 1200, rel=1e-9)
 

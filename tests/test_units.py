@@ -64,3 +64,45 @@ def test_ratios():
 def test_bad_quantities(text, kind, rule):
     with pytest.raises(UnitRuleError, match=rule):
         parse_real(text, kind)
+
+
+def test_fast_unit_table_agrees_with_pint():
+    """Every unit of the no-pint fast path converts as pint (the general-purpose unit
+    library) converts it, to 1e-12 relative."""
+    from relayset.inputs.units import FAST_UNITS, KINDS, registry
+
+    ureg = registry()
+    for kind, table in FAST_UNITS.items():
+        for unit, factor in table.items():
+            expected = ureg.Quantity(1.0, unit).to(KINDS[kind] or "").magnitude
+            assert factor == pytest.approx(expected, rel=1e-12, abs=0), (kind, unit)
+
+
+def test_common_units_do_not_load_pint():
+    import subprocess
+    import sys
+
+    code = ("import sys; from relayset.inputs.study_file import load_study; "
+            "from relayset.resources import demo_studies; "
+            "[load_study(p) for p in demo_studies()]; print('pint' in sys.modules)")
+    out = subprocess.run([sys.executable, "-c", code], capture_output=True, text=True,
+                         check=True).stdout.strip()
+    assert out == "False"
+
+
+@pytest.mark.parametrize("text", ["100 ohm-m", "100 ohm.m", "100 ohm m", "100 Ω·m",
+                                  "100 ohm*m", "100 ohms-m", "328.084 ohm-ft"])
+def test_resistivity_spellings(text):
+    assert parse_real(text, "resistivity") == pytest.approx(100.0, rel=1e-5)
+
+
+@pytest.mark.parametrize(("text", "kind"), [("21,5 m", "length"), ("1,5 + 12j ohm", "impedance")])
+def test_decimal_comma_hint(text, kind):
+    parse = parse_complex if kind == "impedance" else parse_real
+    with pytest.raises(UnitRuleError, match="decimal comma"):
+        parse(text, kind)
+
+
+def test_decimal_comma_in_ratio():
+    with pytest.raises(UnitRuleError, match="decimal comma"):
+        parse_ratio("800,5/1 A")

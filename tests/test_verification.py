@@ -443,7 +443,8 @@ def test_reach_scale_agrees_with_zone_contains(demo_path):
 
 
 def test_tolerance_out_of_range_is_one_line_exit_2(variant, tmp_path, capsys):
-    path = variant(D132, lambda d: d.setdefault("error_budget", {}).update(relay_pct=60.0))
+    # Each term is at most 50 % (inputs); their sum, the tolerance, must stay below 50 %.
+    path = variant(D132, lambda d: d.setdefault("error_budget", {}).update(relay_pct=45.0))
     out = tmp_path / "x.json"
     assert main(["settings", str(path), "--json", str(out)]) == 2
     err = capsys.readouterr().err.strip()

@@ -248,12 +248,9 @@ def load_philosophy(path: str | Path) -> Philosophy:
     except OSError as exc:
         rule = f"cannot read the philosophy file ({exc.strerror})"
         raise InputError(rule, source=source) from None
-    try:
-        data = tomllib.loads(raw.decode("utf-8"))
-    except UnicodeDecodeError:
-        raise InputError("is not UTF-8 text", source=source) from None
-    except tomllib.TOMLDecodeError as exc:
-        raise InputError(f"is not valid TOML: {exc}", source=source) from None
+    from relayset.inputs.study_file import loads_toml
+
+    data = loads_toml(raw, source)  # byte-order mark accepted, duplicate keys named
     return philosophy_from_dict(data, source)
 
 

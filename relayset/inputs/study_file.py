@@ -9,11 +9,20 @@ from __future__ import annotations
 
 import datetime as dt
 import math
+import re
 import tomllib
 from pathlib import Path
 from typing import Annotated, Any, Literal
 
-from pydantic import BaseModel, BeforeValidator, ConfigDict, Field, ValidationError, model_validator
+from pydantic import (
+    AfterValidator,
+    BaseModel,
+    BeforeValidator,
+    ConfigDict,
+    Field,
+    ValidationError,
+    model_validator,
+)
 
 from relayset.errors import InputError, suggest
 from relayset.inputs import units
@@ -21,49 +30,140 @@ from relayset.inputs import units
 SCHEMA = "relayset-study/1"
 
 
-def _quantity(kind: str, *, gt: float | None = None, ge: float | None = None, what: str = ""):
-    """An SI float parsed from text with units, with an optional bound."""
+_DEG = math.pi / 180.0
+
+
+def _quantity(kind: str, *, gt: float | None = None, ge: float | None = None,
+              le: float | None = None, lt: float | None = None,
+              show: tuple[str, float] | None = None):
+    """An SI float parsed from text with units, within bounds (SI) shown in ``show`` units.
+
+    The upper bounds are plausibility limits (far beyond any real line, well inside what the
+    numerics handle), so that a typing slip gets a message instead of nonsense results.
+    """
+    unit, factor = show or (units.target_example(kind), 1.0)
+
+    def fmt(x: float) -> str:
+        return f"{x / factor:g} {unit}".strip()
 
     def parse(v: Any) -> float:
         x = units.parse_real(v, kind)
-        if gt is not None and not x > gt:
-            raise ValueError(f"must be greater than {gt:g} {units.KINDS[kind]}{what}")
-        if ge is not None and not x >= ge:
-            raise ValueError(f"must be at least {ge:g} {units.KINDS[kind]}{what}")
+        _bounds(x, gt, ge, le, lt, fmt)
         return x
 
     return Annotated[float, BeforeValidator(parse)]
 
 
-def _complex_quantity(kind: str = "impedance"):
-    return Annotated[complex, BeforeValidator(lambda v: units.parse_complex(v, kind))]
+def _bounds(x, gt, ge, le, lt, fmt) -> None:
+    if gt is not None and not x > gt:
+        raise ValueError(f"must be greater than {fmt(gt)}")
+    if ge is not None and not x >= ge:
+        raise ValueError(f"must be at least {fmt(ge)}")
+    if le is not None and not x <= le:
+        raise ValueError(f"must be at most {fmt(le)} (plausible range)")
+    if lt is not None and not x < lt:
+        raise ValueError(f"must be less than {fmt(lt)}")
 
 
-def _number(*, gt: float | None = None, ge: float | None = None):
+def _complex_quantity(kind: str = "impedance", *, min_abs: float = 1e-3, max_abs: float = 1e4):
+    """A complex SI quantity whose magnitude lies in [min_abs, max_abs] [ohm]."""
+
+    def parse(v: Any) -> complex:
+        z = units.parse_complex(v, kind)
+        if not min_abs <= abs(z) <= max_abs:
+            raise ValueError(f"must have a magnitude between {min_abs:g} and {max_abs:g} ohm "
+                             "(plausible range)")
+        return z
+
+    return Annotated[complex, BeforeValidator(parse)]
+
+
+def _number(*, gt: float | None = None, ge: float | None = None, le: float | None = None,
+            lt: float | None = None, unit: str = "", rule: str = ""):
+    """A plain number within bounds; ``rule`` replaces the bound messages when given."""
+
     def parse(v: Any) -> float:
+        if isinstance(v, str) and units._DECIMAL_COMMA.match(v):
+            raise ValueError("uses a decimal comma; write a number with a decimal point")
         if isinstance(v, bool) or not isinstance(v, int | float):
             raise ValueError("must be a plain number")
         x = float(v)
         if not math.isfinite(x):
             raise ValueError("must be a finite number")
-        if gt is not None and not x > gt:
-            raise ValueError(f"must be greater than {gt:g}")
-        if ge is not None and not x >= ge:
-            raise ValueError(f"must be at least {ge:g}")
+        try:
+            _bounds(x, gt, ge, le, lt, lambda b: f"{b:g}{unit}")
+        except ValueError:
+            if rule:
+                raise ValueError(rule) from None
+            raise
         return x
 
     return Annotated[float, BeforeValidator(parse)]
 
 
+def _text(max_len: int = 100, *, min_len: int = 0):
+    def check(v: str) -> str:
+        if len(v) > max_len:
+            raise ValueError(f"is too long ({len(v)} characters; at most {max_len})")
+        if len(v) < min_len:
+            raise ValueError("must not be empty")
+        return v
+
+    return Annotated[str, AfterValidator(check)]
+
+
+def _path_text(v: str) -> str:
+    """A file path as text: short enough for any file system, no NUL character."""
+    if "\0" in v or len(v) > 1024 or any(len(p) > 255 for p in v.replace("\\", "/").split("/")):
+        raise ValueError("is not a usable file path (at most 1024 characters, 255 per "
+                         "folder or file name)")
+    return v
+
+
+def _non_empty(v: tuple) -> tuple:
+    if len(v) == 0:
+        raise ValueError("must not be empty: give at least one entry")
+    return v
+
+
+def _orientation(v: Any) -> Any:
+    """Bundle orientation: an angle, or "horizontal" (0 deg) / "vertical" (90 deg)."""
+    if isinstance(v, str) and v.strip().lower() in ("horizontal", "vertical"):
+        return "0 deg" if v.strip().lower() == "horizontal" else "90 deg"
+    return v
+
+
+def _order(v: Any) -> Any:
+    """A section order: a list of phase labels, or one such list per circuit name."""
+    def labels(x: Any) -> tuple[str, ...]:
+        if not isinstance(x, list | tuple) or not all(isinstance(p, str) for p in x):
+            raise ValueError("must be a list of phase labels, like [\"A\", \"B\", \"C\"]")
+        return tuple(x)
+
+    if isinstance(v, dict):
+        return {str(k): labels(x) for k, x in v.items()}
+    return labels(v)
+
+
+Name = _text(100)
 Length = _quantity("length", gt=0)
-LengthAny = _quantity("length")
-NonNegLength = _quantity("length", ge=0)
-ResPerLength = _quantity("resistance_per_length", gt=0)
-Temperature = _quantity("temperature", gt=-273.15)
-Angle = _quantity("angle")
-Power = _quantity("power", gt=0)
-Resistance = _quantity("resistance", ge=0)
+ResPerLength = _quantity("resistance_per_length", ge=1e-6, le=0.1, show=("ohm/km", 1e-3))
+Temperature = _quantity("temperature", ge=-70.0, le=300.0)
+Angle = _quantity("angle", ge=-360 * _DEG, le=360 * _DEG, show=("deg", _DEG))
+Resistance = _quantity("resistance", ge=0, le=1e3)
 ComplexOhm = _complex_quantity()
+LocationPct = _number(ge=0, le=100, rule="fault locations must lie between 0 and 100 % of the "
+                      "line")
+# Conductor and tower dimensions.
+XPosition = _quantity("length", ge=-100.0, le=100.0)
+Height = _quantity("length", gt=0, le=400.0)
+Sag = _quantity("length", ge=0, le=200.0)
+Diameter = _quantity("length", ge=1e-3, le=0.2, show=("mm", 1e-3))
+WireDiameter = _quantity("length", ge=1e-4, le=0.02, show=("mm", 1e-3))
+LineLength = _quantity("length", gt=0, le=3e6, show=("km", 1e3))
+Power = _quantity("power", gt=0, le=1e11, show=("MVA", 1e6))
+FaultLevel = _quantity("power", ge=1e6, le=1e12, show=("MVA", 1e6))
+SignedPower = _quantity("power", ge=-1e11, le=1e11, show=("MW", 1e6))
 
 
 class _Model(BaseModel):
@@ -71,18 +171,18 @@ class _Model(BaseModel):
 
 
 class StudyInfo(_Model):
-    line_id: str
-    title: str
-    from_substation: str
-    to_substation: str
-    revision: str = "A"
+    line_id: _text(100, min_len=1)  # type: ignore[valid-type]
+    title: _text(200)  # type: ignore[valid-type]
+    from_substation: _text(100, min_len=1)  # type: ignore[valid-type]
+    to_substation: _text(100, min_len=1)  # type: ignore[valid-type]
+    revision: Name = "A"  # type: ignore[valid-type]
     revision_date: dt.date | None = None
     status: Literal["draft", "for review", "approved"] = "draft"
-    prepared_by: str = ""
-    checked_by: str = ""
-    approved_by: str = ""
-    philosophy: str = "default"
-    notes: str = ""
+    prepared_by: Name = ""  # type: ignore[valid-type]
+    checked_by: Name = ""  # type: ignore[valid-type]
+    approved_by: Name = ""  # type: ignore[valid-type]
+    philosophy: Annotated[str, AfterValidator(_path_text)] = "default"
+    notes: _text(10_000) = ""  # type: ignore[valid-type]
 
     @model_validator(mode="after")
     def _check_signatures(self) -> StudyInfo:
@@ -98,9 +198,10 @@ class StudyInfo(_Model):
 
 
 class SystemData(_Model):
-    nominal_voltage: _quantity("voltage", gt=0)  # type: ignore[valid-type]
+    nominal_voltage: _quantity("voltage", ge=1e3, le=1.5e6, show=("kV", 1e3))  # type: ignore[valid-type]
     frequency: _quantity("frequency", gt=0)  # type: ignore[valid-type]
-    earth_resistivity: _quantity("resistivity", gt=0)  # type: ignore[valid-type]
+    # Sea water (about 0.2 ohm*m) to dry rock (about 1e4 ohm*m), with room on both sides.
+    earth_resistivity: _quantity("resistivity", ge=0.1, le=1e5)  # type: ignore[valid-type]
     earth_model: str = "carson"
     # Uncertainty of the resistivity [low, high], swept by the verification (k0 moves with it).
     earth_resistivity_range: tuple[_quantity("resistivity", gt=0),  # type: ignore[valid-type]
@@ -117,7 +218,7 @@ class SystemData(_Model):
 
     @model_validator(mode="after")
     def _check(self) -> SystemData:
-        from relayset.physics.earth import EARTH_MODELS
+        from relayset.physics.earth_models import EARTH_MODELS
 
         if self.earth_model not in EARTH_MODELS:
             raise ValueError(
@@ -130,35 +231,44 @@ class SystemData(_Model):
 
 
 class ConductorType(_Model):
-    code: str | None = None
-    outside_diameter: Length | None = None  # type: ignore[valid-type]
-    gmr: Length | None = None  # type: ignore[valid-type]
-    strands_aluminium: int | None = Field(default=None, ge=1)
-    strands_steel: int | None = Field(default=None, ge=0)
-    wire_diameter_aluminium: Length | None = None  # type: ignore[valid-type]
-    wire_diameter_steel: Length | None = None  # type: ignore[valid-type]
+    code: Name | None = None  # type: ignore[valid-type]
+    outside_diameter: Diameter | None = None  # type: ignore[valid-type]
+    gmr: _quantity("length", ge=1e-4, le=0.1, show=("mm", 1e-3)) | None = None  # type: ignore[valid-type]
+    strands_aluminium: int | None = Field(default=None, ge=1, le=500)
+    strands_steel: int | None = Field(default=None, ge=0, le=200)
+    wire_diameter_aluminium: WireDiameter | None = None  # type: ignore[valid-type]
+    wire_diameter_steel: WireDiameter | None = None  # type: ignore[valid-type]
     ac_resistance: ResPerLength | None = None  # type: ignore[valid-type]
     ac_resistance_temperature: Temperature | None = None  # type: ignore[valid-type]
     dc_resistance_20c: ResPerLength | None = None  # type: ignore[valid-type]
-    temperature_coefficient: _quantity("per_kelvin", ge=0) | None = None  # type: ignore[valid-type]
-    ac_dc_ratio: _number(ge=1.0) | None = None  # type: ignore[valid-type]
+    temperature_coefficient: _quantity("per_kelvin", ge=0, le=0.01) | None = None  # type: ignore[valid-type]
+    ac_dc_ratio: _number(ge=1.0, le=2.0) | None = None  # type: ignore[valid-type]
     operating_temperature: Temperature | None = None  # type: ignore[valid-type]
 
 
 class Bundle(_Model):
     count: int = Field(ge=1, le=8)
-    spacing: Length  # type: ignore[valid-type]
-    orientation: Angle = 0.0  # type: ignore[valid-type]
+    spacing: _quantity("length", gt=0, le=3.0)  # type: ignore[valid-type]
+    #: Rotation of the subconductor polygon [rad]; 0 ("horizontal"): a twin bundle lies
+    #: horizontally; 90 deg ("vertical"): one above the other. See bundle_offsets_m.
+    orientation: Annotated[float, BeforeValidator(lambda v: units.parse_real(v, "angle")),
+                           BeforeValidator(_orientation)] = 0.0  # (validators run last first)
+
+    @model_validator(mode="after")
+    def _check(self) -> Bundle:
+        if not abs(self.orientation) <= 2 * math.pi:
+            raise ValueError("orientation must lie between -360 deg and 360 deg")
+        return self
 
 
 class _Placed(_Model):
     """A conductor hung at a position on the tower."""
 
-    x: LengthAny  # type: ignore[valid-type]
-    height: LengthAny | None = None  # type: ignore[valid-type]
-    sag: NonNegLength = 0.0  # type: ignore[valid-type]
-    average_height: LengthAny | None = None  # type: ignore[valid-type]
-    conductor: str
+    x: XPosition  # type: ignore[valid-type]
+    height: Height | None = None  # type: ignore[valid-type]
+    sag: Sag = 0.0  # type: ignore[valid-type]
+    average_height: Height | None = None  # type: ignore[valid-type]
+    conductor: Name  # type: ignore[valid-type]
 
     @model_validator(mode="after")
     def _check_height(self) -> _Placed:
@@ -177,40 +287,68 @@ class _Placed(_Model):
 
 
 class Position(_Placed):
-    name: str
+    name: Name  # type: ignore[valid-type]
     bundle: Bundle | None = None
 
 
+def _three_labels(v: tuple[str, ...]) -> tuple[str, ...]:
+    if len(v) != 3 or len(set(v)) != 3:
+        raise ValueError("must be three different phase labels, like [\"A\", \"B\", \"C\"]")
+    if any(len(p) > 20 or not p.strip() for p in v):
+        raise ValueError("each phase label must be 1 to 20 characters")
+    return v
+
+
+def _three_positions(v: tuple) -> tuple:
+    if len(v) != 3:
+        raise ValueError(f"a circuit needs exactly three positions, one per phase (found "
+                         f"{len(v)})")
+    return v
+
+
 class Circuit(_Model):
-    name: str
-    phase_labels: tuple[str, str, str] = ("A", "B", "C")
-    positions: tuple[Position, Position, Position]
+    name: _text(50, min_len=1)  # type: ignore[valid-type]
+    phase_labels: Annotated[tuple[str, ...], AfterValidator(_three_labels)] = ("A", "B", "C")
+    positions: Annotated[tuple[Position, ...], AfterValidator(_three_positions)]
+
+
+def _one_or_two(v: tuple) -> tuple:
+    if not 1 <= len(v) <= 2:
+        raise ValueError(f"give one or two [[circuits]] (found {len(v)})")
+    return v
 
 
 class ShieldWire(_Placed):
-    name: str = ""
+    name: Name = ""  # type: ignore[valid-type]
     grounding: Literal["continuous", "segmented", "none"] = "continuous"
 
 
 class Section(_Model):
-    length: Length  # type: ignore[valid-type]
-    order: tuple[str, ...] | dict[str, tuple[str, ...]]
+    length: LineLength  # type: ignore[valid-type]
+    order: Annotated[tuple[str, ...] | dict[str, tuple[str, ...]], BeforeValidator(_order)]
 
 
 class LineData(_Model):
-    length: Length  # type: ignore[valid-type]
-    sections: tuple[Section, ...] | None = None
+    length: LineLength  # type: ignore[valid-type]
+    sections: Annotated[tuple[Section, ...], AfterValidator(_non_empty)] | None = None
 
 
 class K0Setting(_Model):
-    magnitude: _number(ge=0)  # type: ignore[valid-type]
+    magnitude: _number(ge=0, le=10)  # type: ignore[valid-type]
     angle: Angle = 0.0  # type: ignore[valid-type]
 
 
+def _ratio(v: Any) -> float:
+    r = units.parse_ratio(v)
+    if r > 1e5:
+        raise ValueError("must be at most 100000 (plausible range)")
+    return r
+
+
 class RelayData(_Model):
-    end: str
-    ct_ratio: Annotated[float, BeforeValidator(units.parse_ratio)]
-    vt_ratio: Annotated[float, BeforeValidator(units.parse_ratio)]
+    end: _text(100, min_len=1)  # type: ignore[valid-type]
+    ct_ratio: Annotated[float, BeforeValidator(_ratio)]
+    vt_ratio: Annotated[float, BeforeValidator(_ratio)]
     z1_set: ComplexOhm | None = None  # type: ignore[valid-type]
     k0_set: K0Setting | None = None
     k0m_set: K0Setting | None = None
@@ -219,10 +357,10 @@ class RelayData(_Model):
 class SourceData(_Model):
     z1: ComplexOhm | None = None  # type: ignore[valid-type]
     z0: ComplexOhm | None = None  # type: ignore[valid-type]
-    fault_level_3ph: Power | None = None  # type: ignore[valid-type]
-    fault_level_1ph: Power | None = None  # type: ignore[valid-type]
-    x_over_r: _number(gt=0) | None = None  # type: ignore[valid-type]
-    z0_over_z1: _number(gt=0) | None = None  # type: ignore[valid-type]
+    fault_level_3ph: FaultLevel | None = None  # type: ignore[valid-type]
+    fault_level_1ph: FaultLevel | None = None  # type: ignore[valid-type]
+    x_over_r: _number(ge=0.1, le=500) | None = None  # type: ignore[valid-type]
+    z0_over_z1: _number(ge=0.05, le=20) | None = None  # type: ignore[valid-type]
 
     @model_validator(mode="after")
     def _check(self) -> SourceData:
@@ -247,15 +385,18 @@ class SourceData(_Model):
 class PowerFlow(_Model):
     """A prefault load case: power into the line at the relay end (from end for "both")."""
 
-    active_power: _quantity("power")  # type: ignore[valid-type]
-    reactive_power: _quantity("power") = 0.0  # type: ignore[valid-type]
+    active_power: SignedPower  # type: ignore[valid-type]
+    reactive_power: SignedPower = 0.0  # type: ignore[valid-type]
+
+
+TransferAngle = _quantity("angle", ge=-90 * _DEG, le=90 * _DEG, show=("deg", _DEG))
 
 
 class LoadData(_Model):
     max_apparent_power: Power  # type: ignore[valid-type]
-    min_voltage: _quantity("dimensionless", gt=0) = 0.9  # type: ignore[valid-type]
+    min_voltage: _quantity("dimensionless", ge=0.5, le=1.2, show=("pu", 1.0)) = 0.9  # type: ignore[valid-type]
     load_angle_max: Angle = math.radians(30.0)  # type: ignore[valid-type]
-    transfer_angles: tuple[Angle, ...] = (0.0,)  # type: ignore[valid-type]
+    transfer_angles: Annotated[tuple[TransferAngle, ...], AfterValidator(_non_empty)] = (0.0,)  # type: ignore[valid-type]
     power_flows: tuple[PowerFlow, ...] = ()
 
     @model_validator(mode="after")
@@ -267,18 +408,26 @@ class LoadData(_Model):
 
 
 class SourceCase(_Model):
-    name: str
-    scale: _number(gt=0)  # type: ignore[valid-type]
+    name: Name  # type: ignore[valid-type]
+    scale: _number(ge=0.01, le=100)  # type: ignore[valid-type]
+
+
+#: Finest fault-location step [% of the line]: 10 000 locations, already far finer than any
+#: reach setting resolution (the reach study also limits its total case count).
+MIN_LOCATION_STEP_PCT = 0.01
+
+
+Zone1Pct = _number(gt=0, lt=100, rule="must be between 0 and 100 % of the line")
 
 
 class ReachStudyData(_Model):
-    fault_types: tuple[str, ...] = ("AG", "BG", "CG", "AB", "BC", "CA", "ABG", "BCG", "CAG",
-                                    "ABC")
-    location_step_pct: _number(gt=0) = 1.0  # type: ignore[valid-type]
-    locations_pct: tuple[_number(), ...] | None = None  # type: ignore[valid-type]
+    fault_types: Annotated[tuple[_text(10), ...], AfterValidator(_non_empty)] = (  # type: ignore[valid-type]
+        "AG", "BG", "CG", "AB", "BC", "CA", "ABG", "BCG", "CAG", "ABC")
+    location_step_pct: _number(ge=MIN_LOCATION_STEP_PCT, le=50, unit=" %") = 1.0  # type: ignore[valid-type]
+    locations_pct: Annotated[tuple[LocationPct, ...], AfterValidator(_non_empty)] | None = None  # type: ignore[valid-type]
     fault_resistances: tuple[Resistance, ...] = (0.0, 5.0, 10.0, 20.0)  # type: ignore[valid-type]
     phase_fault_resistance: Resistance = 0.0  # type: ignore[valid-type]
-    source_cases: tuple[SourceCase, ...] = (
+    source_cases: Annotated[tuple[SourceCase, ...], AfterValidator(_non_empty)] = (
         SourceCase(name="strong", scale=0.5),
         SourceCase(name="nominal", scale=1.0),
         SourceCase(name="weak", scale=2.0),
@@ -286,16 +435,16 @@ class ReachStudyData(_Model):
     parallel_circuit: Literal["in_service", "earthed", "isolated"] | None = None
     mutual_compensation: bool = True
     shunt_capacitance: bool = False
-    zone1_reach_pct: _number(gt=0) | None = None  # type: ignore[valid-type]
+    zone1_reach_pct: Zone1Pct | None = None  # type: ignore[valid-type]
 
 
 class ErrorBudget(_Model):
     """Measurement and data errors in percent of reach (defaults: common practice, no source)."""
 
-    ct_pct: _number(ge=0) = 1.0  # type: ignore[valid-type]
-    vt_pct: _number(ge=0) = 1.0  # type: ignore[valid-type]
-    relay_pct: _number(ge=0) = 5.0  # type: ignore[valid-type]
-    line_data_pct: _number(ge=0) = 3.0  # type: ignore[valid-type]
+    ct_pct: _number(ge=0, le=50) = 1.0  # type: ignore[valid-type]
+    vt_pct: _number(ge=0, le=50) = 1.0  # type: ignore[valid-type]
+    relay_pct: _number(ge=0, le=50) = 5.0  # type: ignore[valid-type]
+    line_data_pct: _number(ge=0, le=50) = 3.0  # type: ignore[valid-type]
 
     @property
     def total_pct(self) -> float:
@@ -303,12 +452,12 @@ class ErrorBudget(_Model):
 
 
 class AdjacentLine(_Model):
-    name: str
+    name: _text(200)  # type: ignore[valid-type]
     z1: ComplexOhm | None = None  # type: ignore[valid-type]
-    study: str | None = None
+    study: Annotated[str, AfterValidator(_path_text)] | None = None
     #: the substation of this line the adjacent line leaves (default: for adjacent_lines the
     #: relay's remote end, for lines_behind the relay's own end; needed when relay.end is both)
-    bus: str | None = None
+    bus: _text(100) | None = None  # type: ignore[valid-type]
 
     @model_validator(mode="after")
     def _check(self) -> AdjacentLine:
@@ -319,7 +468,7 @@ class AdjacentLine(_Model):
 
 class FaultResistanceData(_Model):
     tower_footing_resistance: Resistance = 10.0  # type: ignore[valid-type]
-    arc_length: Length | None = None  # type: ignore[valid-type]
+    arc_length: _quantity("length", gt=0, le=100.0) | None = None  # type: ignore[valid-type]
 
 
 class Study(_Model):
@@ -328,12 +477,12 @@ class Study(_Model):
     schema_: str = Field(default=SCHEMA, alias="schema")
     study: StudyInfo
     system: SystemData
-    conductor_types: dict[str, ConductorType]
-    circuits: tuple[Circuit] | tuple[Circuit, Circuit]
+    conductor_types: dict[_text(100), ConductorType]  # type: ignore[valid-type]
+    circuits: Annotated[tuple[Circuit, ...], AfterValidator(_one_or_two)]
     shield_wires: tuple[ShieldWire, ...] = ()
     line: LineData
     relay: RelayData | None = None
-    sources: dict[str, SourceData] = Field(default_factory=dict)
+    sources: dict[_text(100), SourceData] = Field(default_factory=dict)  # type: ignore[valid-type]
     load: LoadData | None = None
     reach_study: ReachStudyData = ReachStudyData()
     error_budget: ErrorBudget = ErrorBudget()
@@ -342,6 +491,18 @@ class Study(_Model):
     fault_resistance: FaultResistanceData = FaultResistanceData()
 
     model_config = ConfigDict(frozen=True, extra="forbid", populate_by_name=True)
+
+    @property
+    def ends(self) -> tuple[str, str]:
+        """The substations at the two ends: (from, to)."""
+        return (self.study.from_substation, self.study.to_substation)
+
+    @property
+    def relay_ends(self) -> tuple[str, ...]:
+        """The end(s) the relay sits at ("both" means both)."""
+        if self.relay is None:
+            return ()
+        return self.ends if self.relay.end == "both" else (self.relay.end,)
 
 
 def _resolve_model(loc: tuple, root: type[BaseModel]) -> type[BaseModel] | None:
@@ -374,14 +535,59 @@ def _resolve_model(loc: tuple, root: type[BaseModel]) -> type[BaseModel] | None:
     return None
 
 
-def format_validation_error(exc: ValidationError, source: str, root: type[BaseModel]):
-    """The first pydantic error as one :class:`InputError` (file, field, value, rule)."""
-    err = exc.errors()[0]
+_BARE_KEY = re.compile(r"^[A-Za-z0-9_-]+$")
+
+
+def _key(k: str) -> str:
+    """A table key as the user would write it in TOML (quoted unless bare)."""
+    return k if _BARE_KEY.match(k) else '"' + k.replace('"', '\\"') + '"'
+
+
+def field_path(loc: tuple, data: Any, *, missing: bool = False) -> str:
+    """The dotted field path of a validation error, as the user wrote it in the file.
+
+    The validation library puts its own type tags into the location (``tuple[Circuit]``,
+    ``function-after[...]``); only the parts that index into the file's data are kept.
+    """
+    out = ""
+    cur = data
+    for i, part in enumerate(loc):
+        last = i == len(loc) - 1
+        if isinstance(part, int) and isinstance(cur, list | tuple) and 0 <= part < len(cur):
+            out += f"[{part}]"
+            cur = cur[part]
+        elif isinstance(part, str) and isinstance(cur, dict) and part in cur:
+            out += ("." if out else "") + _key(part)
+            cur = cur[part]
+        elif missing and last and isinstance(part, str) and isinstance(cur, dict):
+            out += ("." if out else "") + _key(part)
+    return out
+
+
+def _plain_words(msg: str) -> str:
+    """The validation library's wording in the study file's terms (TOML lists and tables)."""
+    for old, new in (("Value error, ", ""), ("Assertion failed, ", ""),
+                     (" after validation", ""), ("a valid tuple", "a list"),
+                     ("Tuple", "List"), ("a valid dictionary", "a table"),
+                     ("Dictionary", "Table")):
+        msg = msg.replace(old, new)
+    return msg
+
+
+def format_validation_error(exc: ValidationError, source: str, root: type[BaseModel],
+                            data: Any = None) -> InputError:
+    """The most telling validation error as one :class:`InputError` (file, field, value, rule).
+
+    An unknown key comes first: a misspelt key also makes the right key "missing", and the
+    misspelling is what the user has to fix.
+    """
+    errors = exc.errors()
+    err = next((e for e in errors if e.get("type") == "extra_forbidden"), errors[0])
     loc = tuple(err.get("loc", ()))
-    field = ".".join(str(p) if not isinstance(p, int) else f"[{p}]" for p in loc)
-    field = field.replace(".[", "[")
-    value = err.get("input")
     kind = err.get("type", "")
+    field = field_path(loc, data, missing=kind == "missing") if data is not None else ".".join(
+        str(p) if not isinstance(p, int) else f"[{p}]" for p in loc).replace(".[", "[")
+    value = err.get("input")
     if kind == "extra_forbidden":
         owner = _resolve_model(loc, root)
         known = [f.alias or n for n, f in owner.model_fields.items()] if owner else []
@@ -390,48 +596,241 @@ def format_validation_error(exc: ValidationError, source: str, root: type[BaseMo
         return InputError(rule, field=field, source=source)
     if kind == "missing":
         return InputError("is required but missing", field=field, source=source)
-    msg = err.get("msg", "is not valid")
-    msg = msg.removeprefix("Value error, ").removeprefix("Assertion failed, ")
+    msg = _plain_words(err.get("msg", "is not valid"))
     if isinstance(value, dict | list):
         value = None
     return InputError(msg, field=field, value=value, source=source)
 
 
-def read_bytes(path: str | Path) -> bytes:
-    """The bytes of an input file, read once (the archive hashes exactly what was parsed)."""
-    p = Path(path)
-    if not p.is_file():
-        raise InputError("file does not exist", source=str(path))
-    return p.read_bytes()
-
-
-def loads_toml(data: bytes, source: str) -> dict:
-    """Parse TOML bytes; bad TOML or text that is not UTF-8 is an InputError naming the file."""
-    try:
-        return tomllib.loads(data.decode("utf-8"))
-    except tomllib.TOMLDecodeError as exc:
-        raise InputError(f"is not valid TOML ({exc})", source=source) from None
-    except UnicodeDecodeError:
-        raise InputError("is not UTF-8 text", source=source) from None
+def _duplicate_key(text: str, exc: tomllib.TOMLDecodeError, source: str) -> InputError | None:
+    """A key or table given twice, named by its dotted path (TOML forbids it)."""
+    if "overwrite" not in str(exc) and "twice" not in str(exc):
+        return None
+    line_no = getattr(exc, "lineno", None)
+    if line_no is None:
+        m = re.search(r"line (\d+)", str(exc))
+        line_no = int(m.group(1)) if m else None
+    if not line_no:
+        return None
+    lines = text.splitlines()
+    table = ""
+    for ln in lines[: line_no - 1]:
+        h = re.match(r"^\s*\[\[?\s*([^\]]+?)\s*\]\]?\s*(#.*)?$", ln)
+        if h:
+            table = h.group(1)
+    here = lines[line_no - 1] if line_no <= len(lines) else ""
+    h = re.match(r"^\s*\[\[?\s*([^\]]+?)\s*\]\]?", here)
+    key = h.group(1) if h else here.split("=", 1)[0].strip()
+    field = key if h or not table else f"{table}.{key}"
+    return InputError(f"is given twice (line {line_no}); keep one", field=field or "?",
+                      source=source)
 
 
 def read_toml(path: str | Path) -> dict:
-    """Read a TOML file; a missing file or bad TOML is an InputError naming the file."""
+    """Read a TOML file; a missing file or bad TOML is an InputError naming the file.
+
+    A UTF-8 byte-order mark (as some editors write it) is accepted.
+    """
     return loads_toml(read_bytes(path), str(path))
 
 
+def read_bytes(path: str | Path) -> bytes:
+    """The bytes of an input file, read once (the archive hashes exactly what was parsed);
+    an InputError says why they cannot be read."""
+    p = Path(path)
+    try:
+        if p.is_dir():
+            raise InputError("is a folder, not a study file", source=str(path))
+        return p.read_bytes()
+    except FileNotFoundError:
+        raise InputError("file does not exist", source=str(path)) from None
+    except OSError as exc:
+        raise InputError(f"cannot be read ({exc.strerror or exc})", source=str(path)) from None
+
+
+def loads_toml(raw: bytes, source: str) -> dict:
+    """Decode (UTF-8, optional byte-order mark) and parse TOML bytes.
+
+    Bad TOML or text that is not UTF-8 is an InputError naming the file; a key given twice
+    is named by its dotted path.
+    """
+    try:
+        text = raw.decode("utf-8-sig")
+    except UnicodeDecodeError:
+        raise InputError("is not UTF-8 text", source=source) from None
+    try:
+        return tomllib.loads(text)
+    except tomllib.TOMLDecodeError as exc:
+        dup = _duplicate_key(text, exc, source)
+        if dup is not None:
+            raise dup from None
+        raise InputError(f"is not valid TOML ({exc})", source=source) from None
+
+
 def parse_study(data: dict, source: str = "<study>") -> Study:
-    """Validate a study dictionary (as read from TOML) into a :class:`Study`."""
+    """Validate a study dictionary (as read from TOML) into a :class:`Study`.
+
+    Field rules are checked by the model, then every rule that ties fields together
+    (:func:`check_study`).
+    """
     try:
         study = Study.model_validate(data)
     except ValidationError as exc:
-        raise format_validation_error(exc, source, Study) from None
+        raise format_validation_error(exc, source, Study, data) from None
     if study.schema_ != SCHEMA:
         raise InputError(f"unsupported schema; this version reads {SCHEMA!r}",
                          field="schema", value=study.schema_, source=source)
+    check_study(study, data, source)
     return study
 
 
 def load_study(path: str | Path) -> Study:
     """Read and validate a study file."""
     return parse_study(read_toml(path), source=str(path))
+
+
+# -- Rules that tie fields together ---------------------------------------------------------
+
+def _raw(data: Any, *path: str | int) -> Any:
+    """The user's own text at ``path`` of the raw tables (to echo it in messages)."""
+    for p in path:
+        try:
+            data = data[p]
+        except (KeyError, IndexError, TypeError):
+            return None
+    return data
+
+
+def _in_users_unit(si: float, example: Any) -> str:
+    """``si`` [m] written in the unit of the user's text ``example`` (like "80 km")."""
+    unit = "km"
+    if isinstance(example, str):
+        m = re.match(r"^\s*[+-]?[\d.eE+-]+\s*(.*?)\s*$", example)
+        if m and m.group(1):
+            unit = m.group(1)
+    try:
+        factor = units.parse_real(f"1 {unit}", "length")
+    except ValueError:
+        unit, factor = "km", 1e3
+    return f"{si / factor:.6g} {unit}"
+
+
+def check_study(study: Study, data: dict, source: str) -> None:
+    """Every rule of the study file that ties two or more fields together.
+
+    Raises
+    ------
+    InputError
+        Naming the field as the user wrote it and the user's own value.
+    """
+    ends = study.ends
+
+    def fail(rule: str, field: str, value: Any = None) -> None:
+        raise InputError(rule, field=field, value=value, source=source)
+
+    if ends[0] == ends[1]:
+        fail("must differ from study.from_substation", "study.to_substation", ends[1])
+    names = [c.name for c in study.circuits]
+    if len(set(names)) != len(names):
+        fail("the two circuits need different names", "circuits[1].name", names[1])
+    placed = [(f"circuits[{c}].positions[{k}]", ("circuits", c, "positions", k), pos)
+              for c, circ in enumerate(study.circuits) for k, pos in enumerate(circ.positions)]
+    placed += [(f"shield_wires[{k}]", ("shield_wires", k), sw)
+               for k, sw in enumerate(study.shield_wires)]
+    for field, path, p in placed:
+        if p.height is not None and p.sag >= p.height:
+            fail(f"must be less than the attachment height ({_raw(data, *path, 'height')}): "
+                 "the conductor would touch the ground at mid-span", f"{field}.sag",
+                 _raw(data, *path, "sag"))
+
+    # The transposition plan covers the whole line.
+    sections = study.line.sections
+    if sections is not None:
+        total = sum(s.length for s in sections)
+        length = study.line.length
+        if abs(total - length) > 1e-6 * length + 1e-3:
+            raw_len = _raw(data, "line", "length")
+            fail(f"section lengths add up to {_in_users_unit(total, raw_len)} but the line is "
+                 f"{raw_len} long", "line.sections",
+                 [_raw(data, "line", "sections", k, "length") for k in range(len(sections))])
+
+    if study.relay is not None:
+        end = study.relay.end
+        if end != "both" and end not in ends:
+            fail(f"is not an end of this line; use {ends[0]!r}, {ends[1]!r} or 'both'"
+                 + suggest(end, ends), "relay.end", end)
+    for key in study.sources:
+        if key not in ends:
+            fail(f"names no end of this line (the ends are {ends[0]!r} and {ends[1]!r})"
+                 + suggest(key, ends), f"sources.{_key(key)}")
+
+    rs = study.reach_study
+    if len(study.circuits) == 1 and rs.parallel_circuit is not None:
+        fail("the line has one circuit, so there is no parallel circuit to set",
+             "reach_study.parallel_circuit", rs.parallel_circuit)
+    if "fault_types" in rs.model_fields_set:
+        # Imported only when the file lists fault types (the solver pulls in scipy).
+        from relayset.physics.network import FAULT_TYPES
+
+        for k, ft in enumerate(rs.fault_types):
+            if ft not in FAULT_TYPES:
+                fail("unknown fault type; use " + ", ".join(FAULT_TYPES)
+                     + suggest(ft, FAULT_TYPES), f"reach_study.fault_types[{k}]", ft)
+    for which in ("adjacent_lines", "lines_behind"):
+        for k, line in enumerate(getattr(study, which)):
+            if line.bus is not None and line.bus not in ends:
+                fail("is not an end of this line" + suggest(line.bus, ends),
+                     f"{which}[{k}].bus", line.bus)
+    if study.load is not None and study.load.power_flows:
+        missing = [e for e in ends if e not in study.sources]
+        if missing:
+            fail(f"load cases given as power flows need sources at both ends (none at "
+                 f"{missing[0]!r})", "load.power_flows")
+
+
+def check_reach_inputs(study: Study, source: str) -> None:
+    """What the reach study needs beyond a valid file: a relay, and a source behind it."""
+    if study.relay is None:
+        raise InputError("the reach study needs a [relay] table (end, CT and VT ratios)",
+                         field="relay", source=source)
+    ends = study.ends
+    if not any(e in study.sources for e in ends):
+        raise InputError(f"give a source for {ends[0]!r} or {ends[1]!r} (or both)",
+                         field="sources", source=source)
+    for end in study.relay_ends:
+        if end not in study.sources:
+            raise InputError(
+                f"the relay at {end!r} has no source behind it, so it would measure no fault "
+                f"current; add a [sources.{_key(end)}] table", field="relay.end",
+                value=study.relay.end, source=source)
+
+
+def check_settings_inputs(study: Study, source: str) -> None:
+    """What the settings need beyond the reach study: a [load] table, and with a relay at
+    both ends the bus each adjacent line leaves."""
+    check_reach_inputs(study, source)
+    if study.load is None:
+        raise InputError("settings need a [load] table (maximum load, minimum voltage)",
+                         field="load", source=source)
+    if study.relay is not None and study.relay.end == "both":
+        ends = study.ends
+        for which in ("adjacent_lines", "lines_behind"):
+            for k, line in enumerate(getattr(study, which)):
+                if line.bus is None:
+                    raise InputError(
+                        f"say which end the line leaves ({ends[0]!r} or {ends[1]!r}): "
+                        "relay.end is 'both'", field=f"{which}[{k}].bus", source=source)
+
+
+def study_warnings(study: Study) -> tuple[str, ...]:
+    """Things that are allowed but probably wrong, one sentence each."""
+    out = []
+    phases = [p.mean_height_m for c in study.circuits for p in c.positions]
+    top = max(phases)
+    for k, sw in enumerate(study.shield_wires):
+        if sw.mean_height_m < top:
+            out.append(
+                f"Warning: shield wire {sw.name or k + 1} (shield_wires[{k}]) hangs at "
+                f"{sw.mean_height_m:.2f} m mean height, below the highest phase conductor "
+                f"({top:.2f} m); earth wires normally run above the phases: check the heights.")
+    return tuple(out)

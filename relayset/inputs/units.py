@@ -33,6 +33,44 @@ KINDS: dict[str, str] = {
 
 _NUM = r"[+-]?(?:\d+\.?\d*|\.\d+)(?:[eE][+-]?\d+)?"
 _REAL = re.compile(rf"^\s*({_NUM})\s*(.*?)\s*$")
+_DECIMAL_COMMA = re.compile(r"^\s*[+-]?\d+,\d+")
+
+_MI, _FT = 1609.344, 0.3048  # exact by definition (NIST SP 811, Appendix B)
+_DEG = math.pi / 180.0
+
+#: SI factors of the units study files use most, so that the common case needs no pint
+#: (building pint's registry costs 0.2-0.4 s). Every entry is checked against pint in
+#: tests/test_units.py; anything not listed here goes to pint.
+FAST_UNITS: dict[str, dict[str, float]] = {
+    "length": {"m": 1.0, "mm": 1e-3, "cm": 1e-2, "km": 1e3, "ft": _FT, "in": 0.0254,
+               "mi": _MI, "yd": 0.9144},
+    "resistance": {"ohm": 1.0, "kohm": 1e3},
+    "impedance": {"ohm": 1.0, "kohm": 1e3},
+    "resistance_per_length": {"ohm/m": 1.0, "ohm/km": 1e-3, "ohm/mi": 1 / _MI,
+                              "ohm/ft": 1 / _FT, "ohm/kft": 1 / (1e3 * _FT)},
+    "resistivity": {"ohm*m": 1.0},
+    "voltage": {"V": 1.0, "kV": 1e3, "MV": 1e6},
+    "current": {"A": 1.0, "kA": 1e3},
+    "frequency": {"Hz": 1.0},
+    "power": {"VA": 1.0, "kVA": 1e3, "MVA": 1e6, "GVA": 1e9, "W": 1.0, "kW": 1e3, "MW": 1e6,
+              "GW": 1e9, "var": 1.0, "kvar": 1e3, "Mvar": 1e6},
+    "angle": {"deg": _DEG, "degree": _DEG, "degrees": _DEG, "rad": 1.0},
+    "temperature": {"degC": 1.0},
+    "per_kelvin": {"1/K": 1.0},
+    "dimensionless": {"pu": 1.0},
+}
+
+# Spellings engineers use that pint reads otherwise ("ohm-m" would be ohm minus metre).
+_ALIASES = [
+    (re.compile(r"(?i)\b(ohms?|Ω)\s*[-.·⋅]\s*(m|ft)\b"), r"ohm*\2"),
+    (re.compile(r"(?i)\bohms\b|Ω"), "ohm"),
+]
+
+
+def _normalise_unit(unit: str) -> str:
+    for pattern, repl in _ALIASES:
+        unit = pattern.sub(repl, unit)
+    return unit.strip()
 
 
 @lru_cache(maxsize=1)
@@ -52,21 +90,46 @@ class UnitRuleError(ValueError):
 
 def _to_si(magnitude: float, unit: str, kind: str) -> float:
     target = KINDS[kind]
+    unit = _normalise_unit(unit)
+    fast = FAST_UNITS[kind].get(unit)
+    if fast is not None:
+        return magnitude * fast
     if unit == "":
         if kind == "dimensionless":
             return float(magnitude)
-        raise UnitRuleError(f"needs a unit of {kind.replace('_', ' ')} (for example '{target}')")
+        raise UnitRuleError(f"needs a unit of {kind.replace('_', ' ')} (for example "
+                            f"'{target_example(kind)}')")
     ureg = registry()
     try:
         q = ureg.Quantity(magnitude, unit)
     except Exception as exc:  # pint raises several error types for unknown units
-        raise UnitRuleError(f"unit {unit!r} is not a known unit") from exc
+        raise UnitRuleError(f"unit {unit!r} is not a known unit"
+                            + _unit_hint(unit, kind)) from exc
     try:
         return float(q.to(target).magnitude) if target else float(q.to("").magnitude)
     except Exception as exc:
         raise UnitRuleError(
             f"unit {unit!r} is not a unit of {kind.replace('_', ' ')} (expected like '{target}')"
         ) from exc
+
+
+def _unit_hint(unit: str, kind: str) -> str:
+    if unit.startswith(","):
+        return " (use a decimal point, not a decimal comma)"
+    from relayset.errors import suggest
+
+    return suggest(unit, FAST_UNITS[kind]) or f" (for example '{target_example(kind)}')"
+
+
+def target_example(kind: str) -> str:
+    """A unit of the kind to show in messages."""
+    return {"angle": "deg", "voltage": "kV", "power": "MVA"}.get(kind, KINDS[kind] or "pu")
+
+
+def _decimal_comma(text: str) -> None:
+    if _DECIMAL_COMMA.match(text):
+        raise UnitRuleError("uses a decimal comma; write the number with a decimal point "
+                            f"(like {text.strip().replace(',', '.', 1)!r})")
 
 
 def _finite(x: float) -> float:
@@ -99,9 +162,11 @@ def parse_real(value: Any, kind: str) -> float:
     text = value.strip()
     if text.lower() in {"nan", "inf", "-inf", "+inf"} or re.match(r"^[+-]?(nan|inf)\b", text, re.I):
         raise UnitRuleError("must be a finite number (NaN and infinity are not allowed)")
+    _decimal_comma(text)
     m = _REAL.match(text)
     if not m:
-        raise UnitRuleError(f"is not a number followed by a unit (like '10 {KINDS[kind]}')")
+        raise UnitRuleError("is not a number followed by a unit (like "
+                            f"'10 {target_example(kind)}')")
     return _finite(_to_si(float(m.group(1)), m.group(2), kind))
 
 
@@ -114,6 +179,7 @@ def parse_complex(value: Any, kind: str = "impedance") -> complex:
     text = value.strip()
     if re.search(r"(nan|inf)", text, re.I):
         raise UnitRuleError("must be a finite number (NaN and infinity are not allowed)")
+    _decimal_comma(text)
     # The number is the longest leading run that Python's complex() accepts; the rest is the unit.
     m = re.match(r"^[\s\d.eE+\-jJ()]*", text)
     head = m.group(0) if m else ""
@@ -142,6 +208,7 @@ def parse_ratio(value: Any) -> float:
     if isinstance(value, int | float) and not isinstance(value, bool):
         ratio = float(value)
     elif isinstance(value, str):
+        _decimal_comma(value)
         m = re.match(rf"^\s*({_NUM})\s*(?:/|:)\s*({_NUM})\s*([A-Za-z]*)\s*$", value)
         if not m:
             raise UnitRuleError("is not a ratio like '800/1 A' or '132000/110 V'")

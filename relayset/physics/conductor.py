@@ -28,7 +28,10 @@ SOLID_GMR_FACTOR: float = math.exp(-0.25)
 
 #: Aluminium wire counts per layer, innermost first, for common stranding codes.
 #: Standard concentric lay (each layer adds six wires for equal diameters; ACSR aluminium
-#: layers over a steel core follow the published constructions).
+#: layers over a steel core follow the published constructions). Source: the construction
+#: tables of ASTM B231/B231M (all-aluminium) and ASTM B232/B232M (ACSR); IEC 61089 /
+#: EN 50182 use the same lays. Rows entered from memory, not checked against the standards.
+#: Each layer holds more wires than the one beneath it (tests/test_physics_models.py).
 ALUMINIUM_LAYERS: dict[tuple[int, int], tuple[int, ...]] = {
     (6, 1): (6,),
     (7, 0): (1, 6),
@@ -43,7 +46,7 @@ ALUMINIUM_LAYERS: dict[tuple[int, int], tuple[int, ...]] = {
     (48, 7): (12, 15, 21),
     (54, 7): (12, 18, 24),
     (54, 19): (12, 18, 24),
-    (72, 7): (12, 18, 24, 18),
+    (72, 7): (9, 15, 21, 27),
 }
 
 

@@ -9,7 +9,7 @@ import numpy as np
 
 from relayset.errors import InputError
 from relayset.inputs import conductors as cond
-from relayset.inputs.study_file import Study
+from relayset.inputs.study_file import Study, study_warnings
 from relayset.physics.conductor import bundle_offsets_m
 
 #: Conductors closer than this (surface to surface) are taken as overlapping.
@@ -106,12 +106,8 @@ def build_geometry(study: Study, source: str = "<study>") -> LineGeometry:
         f"{study.system.earth_model}.",
         "Subconductors of a bundle share one voltage (bonded at the spacers).",
     ]
+    assumptions.extend(study_warnings(study))
     for c, circuit in enumerate(study.circuits):
-        labels = circuit.phase_labels
-        if len(set(labels)) != 3:
-            raise InputError("phase labels must be three different names",
-                             field=f"circuits[{c}].phase_labels", value=list(labels),
-                             source=source)
         for k, pos in enumerate(circuit.positions):
             field = f"circuits[{c}].positions[{k}]"
             data = conductor(pos.conductor, f"{field}.conductor")
@@ -206,12 +202,6 @@ def build_geometry(study: Study, source: str = "<study>") -> LineGeometry:
                 order.extend(3 * c + labels.index(p) for p in o)
             lengths_l.append(sec.length)
             orders_l.append(tuple(order))
-        total = sum(lengths_l)
-        if abs(total - length) > 1e-6 * length + 1e-3:
-            raise InputError(
-                f"section lengths add up to {total / 1e3:g} km but the line is "
-                f"{length / 1e3:g} km long", field="line.sections",
-                value=[f"{x / 1e3:g} km" for x in lengths_l], source=source)
         lengths, orders = tuple(lengths_l), tuple(orders_l)
 
     return LineGeometry(

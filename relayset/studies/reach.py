@@ -13,9 +13,9 @@ import warnings
 
 import numpy as np
 
-from relayset.errors import InputError, suggest
+from relayset.errors import InputError
 from relayset.inputs.philosophy import Philosophy
-from relayset.inputs.study_file import Study
+from relayset.inputs.study_file import Study, check_reach_inputs
 from relayset.physics import measurement, network, transposition
 from relayset.results.parameters import LineParameters
 from relayset.results.reach import (
@@ -101,44 +101,21 @@ def run_reach_study(
     """
     rs = study.reach_study
     names = line_ends(study)
+    check_reach_inputs(study, source)  # the file's own rules were checked when it was read
     ends = list(relay.ends)
-    for key in study.sources:
-        if key not in names:
-            raise InputError("names no end of this line" + suggest(key, names),
-                             field=f"sources.{key}", source=source)
     src = {n: build_source(study, n, source) for n in names}
-    if src[names[0]] is None and src[names[1]] is None:
-        raise InputError(f"give a source for {names[0]!r} or {names[1]!r} (or both)",
-                         field="sources", source=source)
     n_c = geo.n_circuits
-    if n_c == 1 and rs.parallel_circuit is not None:
-        raise InputError("the line has one circuit, so there is no parallel circuit to set",
-                         field="reach_study.parallel_circuit", value=rs.parallel_circuit,
-                         source=source)
     parallel = (rs.parallel_circuit or "in_service") if n_c == 2 else "in_service"
-    for ft in rs.fault_types:
-        if ft not in network.FAULT_TYPES:
-            raise InputError("unknown fault type; use " + ", ".join(network.FAULT_TYPES)
-                             + suggest(ft, network.FAULT_TYPES),
-                             field="reach_study.fault_types", value=ft, source=source)
     zone1_max_pct = zone1_reach_pct = philosophy.zone1.reach_pct
     zone1_margin_pct = philosophy.zone1.min_margin_pct
     z1_reach = rs.zone1_reach_pct or zone1_reach_pct
-    if not 0 < z1_reach < 100:
+    if not 0 < z1_reach < 100:  # the philosophy's value when the study gives none
         raise InputError("must be between 0 and 100 % of the line",
                          field="reach_study.zone1_reach_pct", value=z1_reach, source=source)
-    step = rs.location_step_pct
-    if step > 50:
-        raise InputError("must be at most 50 %", field="reach_study.location_step_pct",
-                         value=step, source=source)
     if rs.locations_pct is not None:
-        for x in rs.locations_pct:
-            if not 0 <= x <= 100:
-                raise InputError("fault locations must lie between 0 and 100 % of the line",
-                                 field="reach_study.locations_pct", value=x, source=source)
         m = np.array(rs.locations_pct, dtype=float) / 100
     else:
-        m = np.linspace(0.0, 1.0, max(2, round(100 / step)) + 1)
+        m = np.linspace(0.0, 1.0, max(2, round(100 / rs.location_step_pct)) + 1)
     m = np.unique(np.concatenate([m, [z1_reach / 100, 1.0]]))
     rf = np.array(rs.fault_resistances or (0.0,))
     if 0.0 not in rf:
@@ -146,9 +123,6 @@ def run_reach_study(
     scales = np.array([c.scale for c in rs.source_cases])
     angles = np.array(study.load.transfer_angles if study.load else (0.0,))
     if study.load and study.load.power_flows:
-        if src[names[0]] is None or src[names[1]] is None:
-            raise InputError("load cases given as power flows need sources at both ends",
-                             field="load.power_flows", source=source)
         angles = np.zeros(len(study.load.power_flows))  # replaced by the EMFs of each flow
 
     z1_set, k0_set, k0m_set = relay.z1_set_ohm, relay.k0_set, relay.k0m_set

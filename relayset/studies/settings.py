@@ -6,9 +6,9 @@ import math
 from pathlib import Path
 from typing import Any
 
-from relayset.errors import InputError, suggest
+from relayset.errors import InputError
 from relayset.inputs.philosophy import Philosophy, default_philosophy, load_philosophy
-from relayset.inputs.study_file import Study
+from relayset.inputs.study_file import Study, check_settings_inputs
 from relayset.results.parameters import LineParameters
 from relayset.results.reach import ReachStudyResult
 from relayset.results.relay import RelayBasis
@@ -49,16 +49,7 @@ def _lines_at(study: Study, relay_end: str, *, remote: bool, source: str
     out = []
     for which, default_bus in (("adjacent_lines", other), ("lines_behind", relay_end)):
         for k, line in enumerate(getattr(study, which)):
-            bus = line.bus
-            if bus is None:
-                if study.relay is not None and study.relay.end == "both":
-                    raise InputError(
-                        f"say which end the line leaves ({names[0]!r} or {names[1]!r}): "
-                        "relay.end is 'both'", field=f"{which}[{k}].bus", source=source)
-                bus = default_bus
-            elif bus not in names:
-                raise InputError("is not an end of this line" + suggest(bus, names),
-                                 field=f"{which}[{k}].bus", value=bus, source=source)
+            bus = line.bus or default_bus  # the bus rules are checked when the file is read
             if bus != want:
                 continue
             if line.z1 is not None:
@@ -95,9 +86,7 @@ def run_settings(study: Study, geo: LineGeometry, params: LineParameters, relay:
     it and the reach study's applies), ``infeed_range`` (K min, K max) and
     ``reverse_cover_ohm``.
     """
-    if study.load is None:
-        raise InputError("settings need a [load] table (maximum load, minimum voltage)",
-                         field="load", source=source)
+    check_settings_inputs(study, source)
     names = line_ends(study)
     out = []
     for end in ends or relay.ends:
@@ -171,6 +160,8 @@ _STUDY_FIELDS = {
 
 def _in_study_terms(exc: InputError, source: str) -> InputError:
     """The settings error re-addressed to the study file and its field."""
+    if exc.source and exc.source != "<settings inputs>" and exc.source != source:
+        return exc  # an error in another file (an adjacent line's study) stays against it
     base, bracket, rest = exc.field.partition("[")
     field = _STUDY_FIELDS.get(base, base) + bracket + rest
     return InputError(exc.rule, field=field, value=exc.value, source=source)
