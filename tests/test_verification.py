@@ -496,3 +496,26 @@ def test_earth_resistivity_range_is_swept(variant, demo_path):
     assert single.verification.cases_solved * 3 == v.cases_solved
     assert (v.ends[0].zone1_limit_pct or 0) <= (single.verification.ends[0].zone1_limit_pct
                                                  or 0) + 0.5
+
+
+def test_both_ends_with_their_own_instrument_transformers(variant, capsys, tmp_path):
+    # Secondary ohms = primary x CT ratio / VT ratio (identity), each end with its own CT.
+    def edit(d):
+        _lines_at_both_buses(d)
+        d["relay"]["end"] = "both"
+        d["relay"]["at"] = {"Brenwick": {"ct_ratio": "600/1 A"}}
+
+    res = api.study_settings(variant(D132, edit))
+    a, b = res.settings
+    assert (a.end, b.end) == ("Ashcombe", "Brenwick")
+    assert_allclose(a.secondary_factor, 800 / 1200, rtol=1e-12, atol=0)
+    assert_allclose(b.secondary_factor, 600 / 1200, rtol=1e-12, atol=0)
+    for st in (a, b):
+        z = st.zone("zone2")
+        assert_allclose(z.reach_secondary_ohm, z.reach_primary_ohm * st.secondary_factor,
+                        rtol=1e-12, atol=0)
+    bad = variant(D132, lambda d: d["relay"].update(at={"Brenwik": {"ct_ratio": "600/1 A"}}),
+                  filename="bad.toml")
+    assert main(["settings", str(bad)]) == 2
+    err = capsys.readouterr().err.strip()
+    assert len(err.splitlines()) == 1 and "relay.at.Brenwik" in err and "Brenwick" in err

@@ -345,6 +345,13 @@ def _ratio(v: Any) -> float:
     return r
 
 
+class EndTransformers(_Model):
+    """Instrument-transformer ratios of the relay at one end, where they differ."""
+
+    ct_ratio: Annotated[float, BeforeValidator(_ratio)] | None = None
+    vt_ratio: Annotated[float, BeforeValidator(_ratio)] | None = None
+
+
 class RelayData(_Model):
     end: _text(100, min_len=1)  # type: ignore[valid-type]
     ct_ratio: Annotated[float, BeforeValidator(_ratio)]
@@ -352,6 +359,15 @@ class RelayData(_Model):
     z1_set: ComplexOhm | None = None  # type: ignore[valid-type]
     k0_set: K0Setting | None = None
     k0m_set: K0Setting | None = None
+    #: ``[relay.at.SUBSTATION]``: CT/VT ratios of the relay at that end, if not the above.
+    at: dict[str, EndTransformers] = Field(default_factory=dict)
+
+    def ratios(self, end: str) -> tuple[float, float]:
+        """(CT ratio, VT ratio) of the relay at ``end``."""
+        own = self.at.get(end)
+        ct = own.ct_ratio if own is not None and own.ct_ratio is not None else self.ct_ratio
+        vt = own.vt_ratio if own is not None and own.vt_ratio is not None else self.vt_ratio
+        return ct, vt
 
 
 class SourceData(_Model):
@@ -759,6 +775,10 @@ def check_study(study: Study, data: dict, source: str) -> None:
         if end != "both" and end not in ends:
             fail(f"is not an end of this line; use {ends[0]!r}, {ends[1]!r} or 'both'"
                  + suggest(end, ends), "relay.end", end)
+        for key in study.relay.at:
+            if key not in ends:
+                fail(f"names no end of this line (the ends are {ends[0]!r} and {ends[1]!r})"
+                     + suggest(key, ends), f"relay.at.{_key(key)}")
     for key in study.sources:
         if key not in ends:
             fail(f"names no end of this line (the ends are {ends[0]!r} and {ends[1]!r})"
