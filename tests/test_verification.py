@@ -519,3 +519,29 @@ def test_both_ends_with_their_own_instrument_transformers(variant, capsys, tmp_p
     assert main(["settings", str(bad)]) == 2
     err = capsys.readouterr().err.strip()
     assert len(err.splitlines()) == 1 and "relay.at.Brenwik" in err and "Brenwick" in err
+
+
+def test_source_case_per_end(variant, capsys):
+    # A case that weakens one end only reaches the solver as its own (S, R) pair: the
+    # infeed factor of the bolted remote-bus fault then follows the closed form
+    # K = 1 + (Zs + ZL)/Zr with only Zs scaled (single circuit; the 132 kV line is partly
+    # transposed, so 2 % against the positive-sequence closed form).
+    def edit(d):
+        d.setdefault("reach_study", {})["source_cases"] = [
+            {"name": "Ashcombe weak", "at": {"Ashcombe": 4.0}}]
+        d["system"].pop("earth_resistivity_range")
+
+    path = variant(D132, edit)
+    res = api.study_settings(path)
+    v = res.verification
+    assert "Ashcombe weak" in v.source_cases
+    _, _, _, s_s, s_r = _line(path)
+    zl = res.settings[0].line_z1_primary_ohm
+    k = v.ends[0].infeed
+    assert_allclose(abs(k.k_max), abs(1 + (4 * s_s.z1_ohm + zl) / s_r.z1_ohm), rtol=0.02,
+                    atol=0)
+    bad = variant(D132, lambda d: d.setdefault("reach_study", {}).update(
+        source_cases=[{"name": "x", "at": {"Ashcomb": 2.0}}]), filename="bad.toml")
+    assert main(["settings", str(bad)]) == 2
+    err = capsys.readouterr().err.strip()
+    assert len(err.splitlines()) == 1 and "source_cases[0].at.Ashcomb" in err

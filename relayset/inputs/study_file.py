@@ -425,7 +425,13 @@ class LoadData(_Model):
 
 class SourceCase(_Model):
     name: Name  # type: ignore[valid-type]
-    scale: _number(ge=0.01, le=100)  # type: ignore[valid-type]
+    scale: _number(ge=0.01, le=100) = 1.0  # type: ignore[valid-type]
+    #: Per-end factors, e.g. ``at = {Elsford = 2.0}`` (weak there); ends not named: ``scale``.
+    at: dict[str, _number(ge=0.01, le=100)] = Field(default_factory=dict)  # type: ignore[valid-type]
+
+    def scale_at(self, end: str) -> float:
+        """The factor on the source impedance at ``end`` [1]."""
+        return float(self.at.get(end, self.scale))
 
 
 #: Finest fault-location step [% of the line]: 10 000 locations, already far finer than any
@@ -785,6 +791,11 @@ def check_study(study: Study, data: dict, source: str) -> None:
                  + suggest(key, ends), f"sources.{_key(key)}")
 
     rs = study.reach_study
+    for k, case in enumerate(rs.source_cases):
+        for key in case.at:
+            if key not in ends:
+                fail(f"names no end of this line (the ends are {ends[0]!r} and {ends[1]!r})"
+                     + suggest(key, ends), f"reach_study.source_cases[{k}].at.{_key(key)}")
     if len(study.circuits) == 1 and rs.parallel_circuit is not None:
         fail("the line has one circuit, so there is no parallel circuit to set",
              "reach_study.parallel_circuit", rs.parallel_circuit)

@@ -133,16 +133,21 @@ def _source_configs(study: Study, names, src, source: str):
     cases = study.reach_study.source_cases
     out = []
     if src[names[0]] is not None and src[names[1]] is not None:
-        pairs = list(itertools.product(cases, cases))
-        scales = np.array([[a.scale, b.scale] for a, b in pairs])
-        labels = tuple(a.name if a.name == b.name and len(cases) > 0 and a is b
-                       else f"{names[0]} {a.name}, {names[1]} {b.name}" for a, b in pairs)
+        # Each end strong or weak independently: every pair of the uniform cases, plus the
+        # cases the study gives per end as they are.
+        uniform = [c for c in cases if not c.at]
+        pairs = [(a.scale, b.scale, a.name if a is b
+                  else f"{names[0]} {a.name}, {names[1]} {b.name}")
+                 for a, b in itertools.product(uniform, uniform)]
+        pairs += [(c.scale_at(names[0]), c.scale_at(names[1]), c.name) for c in cases if c.at]
+        scales = np.array([p[:2] for p in pairs])
+        labels = tuple(p[2] for p in pairs)
         out.append((src[names[0]], src[names[1]], scales, labels, True))
     for k, n in enumerate(names):
         other = names[1 - k]
         if src[n] is None:
             continue
-        scales = np.array([[c.scale, c.scale] for c in cases])
+        scales = np.array([[c.scale_at(n), c.scale_at(n)] for c in cases])
         labels = tuple(f"{n} {c.name}, {other} out of service" for c in cases)
         s_s, s_r = (src[n], None) if k == 0 else (None, src[n])
         out.append((s_s, s_r, scales, labels, False))
