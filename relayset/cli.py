@@ -44,9 +44,119 @@ def _parser() -> argparse.ArgumentParser:
     study_cmd("reach", "fault study: per-loop reach error of the real (partly transposed) line")
     p = study_cmd("settings", "distance-zone settings under the setting philosophy")
     p.add_argument("--csv", metavar="PATH", help="write the settings table as CSV")
+    # --- report (issue 11) ---
+    p = sub.add_parser("report", help="calculation report: HTML and archival PDF/A-3b",
+                       description="Write <line_id>_rev<revision>.html, .pdf (PDF/A-3b with the "
+                       "study, the philosophy and the results embedded) and .json per study.")
+    p.add_argument("files", nargs="*", metavar="FILE", help="study files (TOML)")
+    p.add_argument("--demo", action="store_true", help="report every shipped demo line")
+    p.add_argument("-o", "--output", required=True, metavar="DIR", help="output folder")
+    p.add_argument("--paper", choices=("a4", "letter"), default="a4",
+                   help="paper size (default: a4)")
+    p.add_argument("--units", choices=("si", "us"), default=None,
+                   help="units of lengths in the report (default: those of the study file)")
+    # --- end report ---
+    _fleet_parsers(sub)
     sub.add_parser("conductors", help="list the built-in conductor table")
     sub.add_parser("earth-models", help="list the earth-return models")
     return ap
+
+
+# --- fleet: batch and demo (relayset/fleet/) ---------------------------------------------
+def _fleet_parsers(sub) -> None:
+    p = sub.add_parser("batch", help="compute and report every line of a folder or line register",
+                       description="Compute, report and register every study in a folder "
+                       "(recursively) or every row of a line register (.csv or .xlsx).")
+    p.add_argument("source", metavar="PATH", help="folder of study files, or a line register")
+    _fleet_options(p)
+    p = sub.add_parser("verify", help="check archived report PDFs against their embedded "
+                       "files and a recomputation",
+                       description="Check each archived report: embedded files against the "
+                       "printed and stored SHA-256, results against a recomputation with the "
+                       "installed relayset. Exit 0 only when everything matches.")
+    p.add_argument("reports", nargs="+", metavar="REPORT.pdf")
+    p = sub.add_parser("compare", help="what changed between two revisions of a line",
+                       description="Changed inputs, results and settings between two study "
+                       "files or archived report PDFs, as a table and an HTML and PDF change "
+                       "sheet.")
+    p.add_argument("old", metavar="OLD", help="study file or archived report PDF")
+    p.add_argument("new", metavar="NEW", help="study file or archived report PDF")
+    p.add_argument("-o", "--out", metavar="DIR", default=None,
+                   help="write the change sheet (HTML and PDF) here")
+    p = sub.add_parser("demo", help="run the shipped demo fleet end to end",
+                       description="Compute, report and register the shipped demo lines.")
+    _fleet_options(p)
+
+
+def _fleet_options(p) -> None:
+    p.add_argument("-o", "--out", required=True, metavar="OUT", help="output folder")
+    p.add_argument("--jobs", type=int, default=None, metavar="N",
+                   help="local worker processes (default: one per core; 1 = no pool)")
+    p.add_argument("--cluster", metavar="ADDRESS", default=None,
+                   help="Dask distributed scheduler to send the work to (tcp://host:8786); "
+                   "needs relayset[cluster]")
+    p.add_argument("--force", action="store_true",
+                   help="recompute lines whose outputs match their input hash and version")
+    p.add_argument("--no-report", dest="report", action="store_false",
+                   help="results JSON and register only, no HTML/PDF reports")
+
+
+def _run_archive(args) -> int:
+    from relayset.errors import InputError
+
+    if args.command == "compare":
+        from relayset.archive.compare import compare, format_table, write_change_sheet
+
+        c = compare(args.old, args.new)
+        sys.stdout.write(format_table(c))
+        if args.out:
+            for path in write_change_sheet(c, args.out):
+                print(f"  {path}")
+        return 0
+    from relayset.archive.verify import format_verification, verify_report
+
+    code = 0
+    for pdf in args.reports:  # one bad file never stops the others
+        try:
+            v = verify_report(pdf)
+        except InputError as exc:
+            print(f"relayset: error: {exc}", file=sys.stderr)
+            code = max(code, EXIT_INPUT)
+            continue
+        sys.stdout.write(format_verification(v, all_checks=True))
+        if not v.passed:
+            code = max(code, 1)
+    return code
+
+
+def _run_fleet(args) -> int:
+    from relayset.errors import InputError
+    from relayset.fleet.batch import run_batch, run_demo
+
+    if args.jobs is not None and args.jobs < 1:
+        raise InputError("must be 1 or more", field="--jobs", value=args.jobs,
+                         source="command line")
+    opts = {"workers": args.jobs, "cluster": args.cluster, "force": args.force,
+            "report": args.report}
+    try:
+        if args.command == "demo":
+            s = run_demo(args.out, **opts)
+        else:
+            s = run_batch(args.source, args.out, **opts)
+    except KeyboardInterrupt:
+        print("relayset: interrupted; the register lists the lines that finished",
+              file=sys.stderr)
+        return 130
+    print(f"{s.total} line(s): {s.computed} computed, {s.skipped} up to date, "
+          f"{len(s.failures)} failed, in {s.seconds:.1f} s")
+    for p in s.register:
+        print(f"  {p}")
+    if s.failures:
+        print(f"relayset: {len(s.failures)} line(s) failed:", file=sys.stderr)
+        for _, err in s.failures:
+            print(f"  {err}", file=sys.stderr)
+        return EXIT_INPUT
+    return 0
 
 
 def _files(args) -> list[str]:
@@ -66,6 +176,10 @@ def _files(args) -> list[str]:
 
 
 def _run(args) -> int:
+    if args.command in ("batch", "demo"):
+        return _run_fleet(args)
+    if args.command in ("verify", "compare"):
+        return _run_archive(args)
     if args.command == "conductors":
         from relayset.inputs.conductors import builtin_table
 
@@ -80,6 +194,15 @@ def _run(args) -> int:
             print(f"{name:18s} {desc}")
         return 0
 
+    if args.command == "report":
+        from relayset.report import build
+
+        files = _files(args)
+        build.check_output_dir(args.output)
+        reports = build.render_reports(files, units=args.units, paper=args.paper)
+        for path in build.write_reports(reports, args.output):
+            print(f"report: {path.with_suffix('.html')} and {path.name}")
+        return 0
     from relayset import io
     from relayset.inputs.unit_system import study_unit_system
     from relayset.report import text

@@ -197,6 +197,15 @@ class StudyInfo(_Model):
         return self
 
 
+class Revision(_Model):
+    """One entry of the revision history (``[[revisions]]``), printed in the report."""
+
+    revision: str
+    date: dt.date
+    description: str = ""
+    by: str = ""
+
+
 class SystemData(_Model):
     nominal_voltage: _quantity("voltage", ge=1e3, le=1.5e6, show=("kV", 1e3))  # type: ignore[valid-type]
     frequency: _quantity("frequency", gt=0)  # type: ignore[valid-type]
@@ -498,6 +507,7 @@ class Study(_Model):
 
     schema_: str = Field(default=SCHEMA, alias="schema")
     study: StudyInfo
+    revisions: tuple[Revision, ...] = ()
     system: SystemData
     conductor_types: dict[_text(100), ConductorType]  # type: ignore[valid-type]
     circuits: Annotated[tuple[Circuit, ...], AfterValidator(_one_or_two)]

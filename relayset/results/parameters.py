@@ -122,6 +122,24 @@ class Arrangement:
 
 
 @dataclass(frozen=True)
+class WirePosition:
+    """Where one physical wire hangs in the cross-section (for drawings), SI."""
+
+    role: str  #: "phase" or "shield"
+    label: str  #: e.g. "circuit 1, position left, subconductor 2" or "shield wire EW1"
+    position: str  #: phase position "circuit/position", or the shield wire's name
+    x_m: float  #: horizontal offset from the tower centre line
+    y_m: float  #: average height above ground, h - 2/3 sag
+    diameter_m: float
+    grounding: str | None  #: shield wires: continuous / segmented / none
+
+    def to_dict(self) -> dict[str, Any]:
+        return {"role": self.role, "label": self.label, "position": self.position,
+                "x_m": self.x_m, "average_height_m": self.y_m,
+                "diameter_mm": self.diameter_m * 1e3, "grounding": self.grounding}
+
+
+@dataclass(frozen=True)
 class LineParameters:
     """Everything the line-parameter engine computed for one study."""
 
@@ -141,6 +159,7 @@ class LineParameters:
     circuits: tuple[CircuitSequence, ...]
     k0m: complex | None  #: Z0M / (3 Z1) of the actual plan (double circuit)
     assumptions: tuple[str, ...]
+    wires: tuple[WirePosition, ...] = ()  #: every wire of the cross-section
 
     def to_dict(self) -> dict[str, Any]:
         return {
@@ -172,4 +191,5 @@ class LineParameters:
             "k0m": None if self.k0m is None else polar(self.k0m),
             "arrangements": {k: a.to_dict() for k, a in self.arrangements.items()},
             "assumptions": list(self.assumptions),
+            "wires": [w.to_dict() for w in self.wires],
         }

@@ -14,7 +14,13 @@ from relayset.physics.sequence import (
     to_sequence,
     unbalance_factors,
 )
-from relayset.results.parameters import K0, Arrangement, CircuitSequence, LineParameters
+from relayset.results.parameters import (
+    K0,
+    Arrangement,
+    CircuitSequence,
+    LineParameters,
+    WirePosition,
+)
 from relayset.studies.geometry import LineGeometry
 
 
@@ -156,4 +162,11 @@ def compute_parameters(geo: LineGeometry) -> LineParameters:
         circuits=tuple(circuits),
         k0m=k0m,
         assumptions=geo.assumptions + tuple(n for c in conductors for n in c.notes),
+        wires=tuple(
+            WirePosition(w.role, w.label,
+                         geo.position_names[w.group] if w.role == "phase"
+                         else w.label.removeprefix("shield wire "),
+                         float(w.x_m), float(w.y_m), 2 * w.conductor.radius_m,
+                         w.grounding if w.role == "shield" else None)
+            for w in geo.wires),
     )

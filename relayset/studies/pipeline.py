@@ -9,7 +9,14 @@ from importlib.metadata import PackageNotFoundError, version
 from pathlib import Path
 from typing import Any
 
-from relayset.inputs.study_file import Study, loads_toml, parse_study, read_bytes
+from relayset.inputs.study_file import (
+    Study,
+    check_reach_inputs,
+    check_settings_inputs,
+    loads_toml,
+    parse_study,
+    read_bytes,
+)
 from relayset.results.parameters import LineParameters
 from relayset.results.study import StudyResults
 from relayset.studies.geometry import build_geometry
@@ -72,7 +79,8 @@ def run(path: str | Path, *, reach: bool = False, settings: bool = False) -> Stu
     params = compute_parameters(geo)
     relay = philosophy = reach_res = settings_res = None
     if reach:
-        relay = resolve_relay(study, params, source=src)
+        (check_settings_inputs if settings else check_reach_inputs)(study, src)
+        relay = resolve_relay(study, params)
         philosophy = study_philosophy(study, src)
         reach_res = run_reach_study(study, geo, params, relay, philosophy, source=src)
     verification = None

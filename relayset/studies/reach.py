@@ -29,7 +29,6 @@ from relayset.results.relay import RelayBasis
 from relayset.results.serialize import cplx
 from relayset.settings.zone1 import recommended_zone1_pct
 from relayset.studies.geometry import LineGeometry
-from relayset.studies.relay import line_ends
 
 LOOPS = ("AG", "BG", "CG", "AB", "BC", "CA")
 _LOOP_PHASES = {"AG": (0,), "BG": (1,), "CG": (2,), "AB": (0, 1), "BC": (1, 2), "CA": (2, 0)}
@@ -100,7 +99,7 @@ def run_reach_study(
         The study file name, for error messages.
     """
     rs = study.reach_study
-    names = line_ends(study)
+    names = study.ends
     check_reach_inputs(study, source)  # the file's own rules were checked when it was read
     ends = list(relay.ends)
     src = {n: build_source(study, n, source) for n in names}

@@ -4,18 +4,12 @@ from __future__ import annotations
 
 import cmath
 
-from relayset.errors import InputError, suggest
 from relayset.inputs.study_file import Study
 from relayset.results.parameters import LineParameters
 from relayset.results.relay import RelayBasis
 
 
-def line_ends(study: Study) -> tuple[str, str]:
-    """The substations at the from and to ends of the line."""
-    return study.study.from_substation, study.study.to_substation
-
-
-def resolve_relay(study: Study, params: LineParameters, *, source: str) -> RelayBasis:
+def resolve_relay(study: Study, params: LineParameters) -> RelayBasis:
     """The relay basis of a study: ``[relay]`` values where given, else the line's own.
 
     Z1 and k0 default to those of the ideally transposed line (the diagonal of its Z012),
@@ -23,18 +17,9 @@ def resolve_relay(study: Study, params: LineParameters, *, source: str) -> Relay
     a property of the line, and the relay's zero-sequence replica is Z1_set (1 + 3 k0).
     """
     relay = study.relay
-    if relay is None:
-        raise InputError("the reach study and the settings need a [relay] table (end, CT and "
-                         "VT ratios)", field="relay", source=source)
-    names = line_ends(study)
-    if relay.end == "both":
-        ends = names
-    elif relay.end in names:
-        ends = (relay.end,)
-    else:
-        raise InputError(
-            f"is not an end of this line; use {names[0]!r}, {names[1]!r} or 'both'"
-            + suggest(relay.end, names), field="relay.end", value=relay.end, source=source)
+    if relay is None:  # a caller's mistake: inputs.check_reach_inputs says it to the user
+        raise ValueError("resolve_relay needs a study with a [relay] table")
+    ends = study.relay_ends  # relay.end was checked against the line's ends when read
     circ = params.circuits[0]
     k0m = None
     if len(params.circuits) == 2:

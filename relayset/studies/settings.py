@@ -17,7 +17,6 @@ from relayset.settings.compute import compute_settings
 from relayset.settings.inputs import SettingsInputs
 from relayset.studies.geometry import LineGeometry
 from relayset.studies.reach import build_source
-from relayset.studies.relay import line_ends
 
 #: Insulator flashover length per kV of nominal voltage for the ground-fault arc when the
 #: study gives none [m/kV] (common practice, no source: about 1.3 m at 132 kV).
@@ -43,7 +42,7 @@ def _lines_at(study: Study, relay_end: str, *, remote: bool, source: str
     """Lines leaving the relay's remote bus (``remote``) or its own bus, as (name, Z1)."""
     from relayset.studies.pipeline import line_parameters
 
-    names = line_ends(study)
+    names = study.ends
     other = names[1] if relay_end == names[0] else names[0]
     want = other if remote else relay_end
     out = []
@@ -87,7 +86,7 @@ def run_settings(study: Study, geo: LineGeometry, params: LineParameters, relay:
     ``reverse_cover_ohm``.
     """
     check_settings_inputs(study, source)
-    names = line_ends(study)
+    names = study.ends
     out = []
     for end in ends or relay.ends:
         other = names[1] if end == names[0] else names[0]

@@ -1,0 +1,212 @@
+"""A fleet batch: find the lines, skip those up to date, compute the rest in parallel, write
+each line's outputs atomically as it finishes, and keep the register in step.
+
+Nothing is lost on interruption: every file goes to a temporary name and is renamed into place,
+a line's results JSON is written last (so a line counts as done only when all of its files are
+there), and the register on disk lists only lines whose outputs are complete.
+"""
+
+from __future__ import annotations
+
+import json
+import re
+import time
+from dataclasses import dataclass, field
+from pathlib import Path
+from typing import Any, TextIO
+
+from relayset.errors import InputError
+from relayset.fleet.jobs import PlannedJob, find_jobs, plan_job
+from relayset.fleet.progress import Progress
+from relayset.fleet.register import failed_row, rows_from_results, write_register
+
+#: The HTML index and .xlsx are rewritten at most this often during a run [s] (the CSV after
+#: every line); all three are written at the end.
+REGISTER_REFRESH_S = 3.0
+
+#: What write_atomic leaves behind when a process is killed mid-write: ".NAME.XXXXXXXX".
+_STALE_TMP = re.compile(r"^\..+\.(json|pdf|html|csv|xlsx|toml)\.[A-Za-z0-9_]{8}$")
+
+
+@dataclass
+class BatchSummary:
+    """What a batch did."""
+
+    out_dir: Path
+    total: int = 0
+    computed: int = 0
+    skipped: int = 0
+    failures: list[tuple[str, str]] = field(default_factory=list)  #: (line, one-line error)
+    rows: list[dict[str, Any]] = field(default_factory=list)
+    register: list[Path] = field(default_factory=list)
+    seconds: float = 0.0
+
+    @property
+    def ok(self) -> bool:
+        return not self.failures
+
+
+def _clean_stale(out_dir: Path) -> None:
+    for folder in (out_dir, out_dir / "studies"):
+        if folder.is_dir():
+            for f in folder.iterdir():
+                if f.is_file() and _STALE_TMP.match(f.name):
+                    f.unlink(missing_ok=True)
+
+
+def up_to_date(out_dir: Path, p: PlannedJob, version: str, report: bool) -> dict | None:
+    """The existing results of a line when its input hash and the version match, else None.
+
+    With ``report``, the line's report must be there too.
+    """
+    path = out_dir / f"{p.stem}.json"
+    try:
+        d = json.loads(path.read_text("utf-8"))
+    except (OSError, ValueError):
+        return None
+    if d.get("source_sha256") != p.sha256 or d.get("relayset_version") != version:
+        return None
+    if report and not all((out_dir / f"{p.stem}{s}").is_file() for s in (".pdf", ".html")):
+        return None
+    return d
+
+
+def run_batch(source: str | Path, out_dir: str | Path, *, workers: int | None = None,
+              cluster: str | None = None, force: bool = False, report: bool = True,
+              title: str | None = None, stream: TextIO | None = None) -> BatchSummary:
+    """Compute every line of a folder or line register into ``out_dir``.
+
+    Parameters
+    ----------
+    source : path
+        A folder of study files (searched recursively) or a line register (.csv / .xlsx).
+    out_dir : path
+        Where the results, reports and the register go.
+    workers : int, optional
+        Local worker processes (default: one per core; 1 computes in this process).
+    cluster : str, optional
+        Address of a Dask distributed scheduler (``tcp://host:8786``) to send the work to.
+    force : bool
+        Recompute lines whose outputs are up to date.
+    report : bool
+        Render each line's calculation report (when the report renderer is installed).
+
+    Raises
+    ------
+    InputError
+        The source as a whole is unusable (one line); nothing is written then.
+    """
+    from relayset.fleet import cluster as runners
+    from relayset.io import write_atomic
+    from relayset.studies.pipeline import relayset_version
+
+    t0 = time.monotonic()
+    out = Path(out_dir)
+    jobs = find_jobs(source)
+    if not jobs:
+        raise InputError("no study files found (TOML files with schema = "
+                         "\"relayset-study/1\")", source=str(source))
+    if out.exists() and not out.is_dir():
+        raise InputError("the output folder is a file", field="-o", value=str(out),
+                         source="command line")
+    client = runners.connect(cluster) if cluster else None  # unreachable: nothing written
+    try:
+        out.mkdir(parents=True, exist_ok=True)
+    except OSError as exc:
+        raise InputError(f"cannot create the output folder ({exc.strerror})", field="-o",
+                         value=str(out), source="command line") from None
+    _clean_stale(out)
+    title = title or f"relayset register: {source}"
+    version = relayset_version()
+    summary = BatchSummary(out, total=len(jobs))
+    progress = Progress(len(jobs), stream=stream)
+    rows_by_job: dict[int, list[dict[str, Any]]] = {}
+
+    def fail(i: int, label: str, error: str, study: str | None = None) -> None:
+        summary.failures.append((label, error))
+        rows_by_job[i] = [failed_row(label, error, study)]
+
+    # plan: read each study once, apply register overrides, name outputs, skip what is done
+    planned: dict[int, PlannedJob] = {}
+    stems: dict[str, str] = {}
+    for i, job in enumerate(jobs):
+        try:
+            p = plan_job(job, out)
+        except InputError as exc:
+            fail(i, job.label, str(exc), str(job.path))
+            progress.finished(job.label, str(exc))
+            continue
+        if p.stem in stems:
+            err = (f"{job.label}: study.line_id and study.revision give the same output name "
+                   f"{p.stem!r} as {stems[p.stem]}")
+            fail(i, job.label, err, str(job.path))
+            progress.finished(job.label, err)
+            continue
+        stems[p.stem] = job.label
+        done = None if force else up_to_date(out, p, version, report)
+        if done is not None:
+            rows_by_job[i] = rows_from_results(
+                done, results_file=f"{p.stem}.json",
+                report_file=f"{p.stem}.pdf" if (out / f"{p.stem}.pdf").is_file() else None)
+            summary.skipped += 1
+            progress.skip(1)
+            continue
+        planned[i] = p
+    if summary.skipped:
+        progress.message(f"relayset: {summary.skipped} line(s) up to date (same input hash "
+                         f"and version), skipped; --force recomputes them")
+
+    last_full = [time.monotonic()]
+
+    def refresh(final: bool = False) -> None:
+        rows = [r for k in sorted(rows_by_job) for r in rows_by_job[k]]
+        due = final or time.monotonic() - last_full[0] >= REGISTER_REFRESH_S
+        summary.register = write_register(out, rows, title=title,
+                                          formats=("csv", "xlsx", "html") if due else ("csv",))
+        if due:
+            last_full[0] = time.monotonic()
+        summary.rows = rows
+
+    written_inputs: set[int] = set()
+    try:
+        for i, p in planned.items():  # effective study files the pipeline reads
+            if p.effective is not None:
+                write_atomic(p.study_path, p.effective)
+                written_inputs.add(i)
+        tasks = [(i, str(p.study_path), p.stem, report) for i, p in planned.items()]
+        if cluster:
+            results = runners.run_dask(tasks, client)
+        else:
+            n = workers or runners.default_workers()
+            n = min(n, max(1, len(tasks)))
+            results = runners.run_serial(tasks) if n == 1 else runners.run_pool(tasks, n)
+        for res in results:
+            p = planned[res.index]
+            if res.ok:
+                # the JSON last: a line is done only when every one of its files is in place
+                for name in sorted(res.files, key=lambda n: n.endswith(".json")):
+                    write_atomic(out / name, res.files[name])
+                rows_by_job[res.index] = list(res.rows)
+                summary.computed += 1
+            else:
+                if res.index in written_inputs:
+                    p.study_path.unlink(missing_ok=True)
+                fail(res.index, p.job.label, res.error or "failed", str(p.job.path))
+            progress.finished(p.job.label, res.error)
+            refresh()
+    finally:
+        # interrupted or not: the register lists exactly the lines that finished
+        refresh(final=True)
+        progress.close()
+        if client is not None:
+            client.close()
+        summary.seconds = time.monotonic() - t0
+    return summary
+
+
+def run_demo(out_dir: str | Path, **kwargs: Any) -> BatchSummary:
+    """The shipped demo fleet, end to end: results, reports, register and index."""
+    from relayset.resources import demo_lines_dir
+
+    kwargs.setdefault("title", "relayset demo fleet (invented lines)")
+    return run_batch(demo_lines_dir(), out_dir, **kwargs)

@@ -1,0 +1,87 @@
+"""Where the per-line work runs: in this process, a local process pool, or a Dask cluster.
+
+Each runner takes the tasks ``(index, study_path, stem, report)`` and yields
+:class:`~relayset.fleet.worker.Outcome` objects as lines finish, in any order.
+"""
+
+from __future__ import annotations
+
+import os
+from collections.abc import Iterator, Sequence
+
+from relayset.errors import InputError
+from relayset.fleet.worker import Outcome, compute_line, init_worker
+
+Task = tuple[int, str, str, bool]
+
+
+def run_serial(tasks: Sequence[Task]) -> Iterator[Outcome]:
+    """Compute the lines one after the other in this process."""
+    for t in tasks:
+        yield compute_line(*t)
+
+
+def default_workers() -> int:
+    """One worker per core this process may use."""
+    try:
+        return max(1, len(os.sched_getaffinity(0)))
+    except AttributeError:  # not on Linux
+        return max(1, os.cpu_count() or 1)
+
+
+def run_pool(tasks: Sequence[Task], workers: int) -> Iterator[Outcome]:
+    """Compute the lines on a local process pool of ``workers`` processes."""
+    import multiprocessing
+    from concurrent.futures import ProcessPoolExecutor, as_completed
+
+    # spawn: fresh interpreters, so the thread limits apply before numpy loads
+    ctx = multiprocessing.get_context("spawn")
+    pool = ProcessPoolExecutor(max_workers=workers, mp_context=ctx, initializer=init_worker)
+    try:
+        futures = {pool.submit(compute_line, *t): t for t in tasks}
+        for f in as_completed(futures):
+            yield _result(f, futures[f])
+    finally:
+        pool.shutdown(wait=False, cancel_futures=True)
+
+
+def connect(address: str):
+    """A client of the Dask distributed scheduler at ``address`` (``tcp://host:8786``).
+
+    The workers must see the study files at the same paths (a shared file system) and have
+    the same relayset installed; they return the outputs, which this process writes.
+    """
+    try:
+        from distributed import Client
+    except ImportError:
+        raise InputError("--cluster needs the optional extra: pip install 'relayset[cluster]'",
+                         field="--cluster", value=address, source="command line") from None
+    try:
+        return Client(address, timeout="10s")
+    except (OSError, TimeoutError, ValueError) as exc:
+        raise InputError(f"cannot reach the Dask scheduler ({exc})".replace("\n", " "),
+                         field="--cluster", value=address, source="command line") from None
+
+
+def run_dask(tasks: Sequence[Task], client) -> Iterator[Outcome]:
+    """Compute the lines on the Dask cluster of ``client``."""
+    from distributed import as_completed
+
+    futures = [client.submit(compute_line, *t, pure=False,
+                             key=f"relayset-line-{t[0]}-{os.getpid()}") for t in tasks]
+    by_key = {f.key: t for f, t in zip(futures, tasks, strict=True)}
+    try:
+        for f in as_completed(futures):
+            yield _result(f, by_key[f.key])
+    finally:
+        client.cancel(futures)
+
+
+def _result(future, task: Task) -> Outcome:
+    """The outcome of a finished future; a lost worker is that line's error, not the fleet's."""
+    try:
+        return future.result()
+    except Exception as exc:
+        index, path, stem, _ = task
+        return Outcome(index, stem, error=f"{path}: the worker computing this line failed "
+                       f"({type(exc).__name__}: {exc})".replace("\n", " "))

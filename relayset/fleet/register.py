@@ -1,0 +1,187 @@
+"""The register of results: one row per relay end of each line, as CSV, .xlsx and HTML.
+
+Every value is read from a study's results JSON (``StudyResults.to_dict()``), so a line
+computed now and a line skipped because its report is up to date give the same row.
+"""
+
+from __future__ import annotations
+
+import math
+from pathlib import Path
+from typing import Any
+
+#: Register columns, in order, with what each holds (the HTML index and README use these).
+COLUMNS: tuple[tuple[str, str], ...] = (
+    ("line_id", "line ID"),
+    ("revision", "revision"),
+    ("status", "status (draft / for review / approved)"),
+    ("title", "title"),
+    ("end", "relay end"),
+    ("remote_end", "remote end"),
+    ("z1_r_ohm", "line Z1, resistance, primary [ohm]"),
+    ("z1_x_ohm", "line Z1, reactance, primary [ohm]"),
+    ("z0_r_ohm", "line Z0, resistance, primary [ohm]"),
+    ("z0_x_ohm", "line Z0, reactance, primary [ohm]"),
+    ("k0_magnitude", "k0 used by the relay, magnitude [-]"),
+    ("k0_angle_deg", "k0 used by the relay, angle [deg]"),
+    ("zone1_primary_ohm", "zone 1 reach, primary [ohm]"),
+    ("zone2_primary_ohm", "zone 2 reach, primary [ohm]"),
+    ("zone3_primary_ohm", "zone 3 reach, primary [ohm]"),
+    ("reverse_primary_ohm", "reverse zone reach, primary [ohm]"),
+    ("zone1_secondary_ohm", "zone 1 reach, secondary [ohm]"),
+    ("zone2_secondary_ohm", "zone 2 reach, secondary [ohm]"),
+    ("zone3_secondary_ohm", "zone 3 reach, secondary [ohm]"),
+    ("reverse_secondary_ohm", "reverse zone reach, secondary [ohm]"),
+    ("worst_reach_error_pct", "worst bolted overreach at the remote bus, actual plan [%]"),
+    ("verification", "verification verdict"),
+    ("warnings", "number of setting warnings"),
+    ("input_sha256", "SHA-256 of the study file computed"),
+    ("relayset_version", "relayset version"),
+    ("report_file", "report (PDF)"),
+    ("results_file", "results (JSON)"),
+    ("study_file", "study file"),
+    ("error", "why the line was not computed"),
+)
+NAMES = tuple(c for c, _ in COLUMNS)
+ZONES = ("zone1", "zone2", "zone3", "reverse")
+NOT_VERIFIED = "not verified"
+
+
+def _re_im(z: Any) -> tuple[float | None, float | None]:
+    if isinstance(z, list | tuple) and len(z) == 2:
+        return float(z[0]), float(z[1])
+    return None, None
+
+
+def rows_from_results(d: dict[str, Any], *, results_file: str,
+                      report_file: str | None) -> list[dict[str, Any]]:
+    """Register rows of one study (one per relay end) from its results JSON.
+
+    Parameters
+    ----------
+    d : dict
+        ``StudyResults.to_dict()`` of a study computed with settings.
+    results_file, report_file : str
+        Output file names, relative to the register.
+    """
+    s = d.get("study", {})
+    c = d["parameters"]["circuits"][0]
+    z1r, z1x = _re_im(c.get("z1_ohm"))
+    z0r, z0x = _re_im(c.get("z0_ohm"))
+    k0 = (d.get("relay") or {}).get("k0_set") or {}
+    verdict = (d.get("verification") or {}).get("verdict") or NOT_VERIFIED
+    reach_ends = {e["end"]: e for e in (d.get("reach_study") or {}).get("ends", [])}
+    base = {
+        "line_id": s.get("line_id"), "revision": s.get("revision"), "status": s.get("status"),
+        "title": s.get("title"),
+        "z1_r_ohm": z1r, "z1_x_ohm": z1x, "z0_r_ohm": z0r, "z0_x_ohm": z0x,
+        "k0_magnitude": k0.get("magnitude"), "k0_angle_deg": k0.get("angle_deg"),
+        "verification": verdict, "input_sha256": d.get("source_sha256"),
+        "relayset_version": d.get("relayset_version"), "report_file": report_file,
+        "results_file": results_file, "study_file": d.get("source_file"), "error": None,
+    }
+    rows = []
+    for end in (d.get("settings") or {}).get("ends", []):
+        row = dict(base, end=end["end"], remote_end=end.get("remote_end"),
+                   warnings=len(end.get("warnings", [])))
+        for z in ZONES:
+            zone = end.get("zones", {}).get(z) or {}
+            row[f"{z}_primary_ohm"] = zone.get("reach_primary_magnitude_ohm")
+            row[f"{z}_secondary_ohm"] = zone.get("reach_secondary_magnitude_ohm")
+        gov = (reach_ends.get(end["end"]) or {}).get("governing_case") or {}
+        row["worst_reach_error_pct"] = gov.get("error_pct")
+        rows.append({k: row.get(k) for k in NAMES})
+    return rows
+
+
+def failed_row(label: str, error: str, study_file: str | None = None) -> dict[str, Any]:
+    """The register row of a line that was not computed."""
+    row = dict.fromkeys(NAMES)
+    row.update(line_id=None, study_file=study_file or label, error=error)
+    return row
+
+
+def _cell(v: Any) -> str:
+    if v is None:
+        return ""
+    if isinstance(v, float):
+        return repr(v) if math.isfinite(v) else ""
+    return str(v)
+
+
+def register_csv(rows: list[dict[str, Any]]) -> str:
+    """The register as CSV text (full precision, one header row)."""
+    import csv
+    import io
+
+    buf = io.StringIO()
+    w = csv.writer(buf, lineterminator="\n")
+    w.writerow(NAMES)
+    for r in rows:
+        w.writerow([_cell(r.get(k)) for k in NAMES])
+    return buf.getvalue()
+
+
+def register_xlsx(rows: list[dict[str, Any]]) -> bytes:
+    """The register as an .xlsx workbook (sheet "register", header row frozen)."""
+    import io
+
+    from openpyxl import Workbook
+
+    wb = Workbook()
+    ws = wb.active
+    ws.title = "register"
+    ws.append(list(NAMES))
+    for r in rows:
+        ws.append([r.get(k) for k in NAMES])
+    ws.freeze_panes = "A2"
+    buf = io.BytesIO()
+    wb.save(buf)
+    return buf.getvalue()
+
+
+def _fmt(x: Any, digits: int = 3) -> str:
+    if x is None:
+        return "–"
+    if isinstance(x, float):
+        return f"{x:.{digits}f}" if math.isfinite(x) else "–"
+    return str(x)
+
+
+def register_html(rows: list[dict[str, Any]], *, title: str, skipped: int = 0) -> str:
+    """The HTML index page: every line with its key values and a link to its report."""
+    import jinja2
+
+    from relayset.resources import templates_dir
+    from relayset.results.study import CAUTION
+
+    env = jinja2.Environment(loader=jinja2.FileSystemLoader(str(templates_dir())),
+                             autoescape=True, undefined=jinja2.StrictUndefined)
+    env.filters["n"] = _fmt
+    done = [r for r in rows if not r.get("error")]
+    failed = [r for r in rows if r.get("error")]
+    lines = len({(r["line_id"], r["revision"]) for r in done})
+    return env.get_template("fleet/index.html.j2").render(
+        title=title, rows=done, failed=failed, lines=lines, caution=CAUTION,
+        columns=dict(COLUMNS), skipped=skipped)
+
+
+def write_register(out_dir: Path, rows: list[dict[str, Any]], *, title: str,
+                   formats: tuple[str, ...] = ("csv", "xlsx", "html")) -> list[Path]:
+    """Write the register beside the reports (atomically) and return the paths written."""
+    from relayset.io import write_atomic
+
+    rows = sorted(rows, key=lambda r: (r.get("error") is not None, str(r.get("line_id")),
+                                       str(r.get("revision")), str(r.get("end")),
+                                       str(r.get("study_file"))))
+    written = []
+    if "csv" in formats:
+        write_atomic(out_dir / "register.csv", register_csv(rows))
+        written.append(out_dir / "register.csv")
+    if "xlsx" in formats:
+        write_atomic(out_dir / "register.xlsx", register_xlsx(rows))
+        written.append(out_dir / "register.xlsx")
+    if "html" in formats:
+        write_atomic(out_dir / "index.html", register_html(rows, title=title))
+        written.append(out_dir / "index.html")
+    return written

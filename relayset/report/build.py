@@ -1,0 +1,169 @@
+"""Make the calculation reports of study files: compute, render, then write atomically.
+
+Nothing is written until every requested report has been rendered, so a bad input leaves
+no report behind (not even for the good files given with it).
+"""
+
+from __future__ import annotations
+
+import hashlib
+import os
+from collections.abc import Sequence
+from dataclasses import dataclass
+from pathlib import Path
+
+from relayset.errors import InputError
+
+
+@dataclass(frozen=True)
+class ReportFiles:
+    """One study's report, rendered in memory."""
+
+    stem: str  #: ``<line_id>_rev<revision>``
+    html: str
+    pdf: bytes
+    json: str  #: the results JSON (also embedded in the PDF)
+    source: str  #: the study file
+
+
+def philosophy_path(results) -> Path:
+    """The philosophy file the study named ("default" is the shipped file)."""
+    name = results.identity.get("philosophy", "default")
+    if name == "default":
+        from relayset.inputs.philosophy import DEFAULT_FILE
+
+        return Path(__file__).resolve().parent.parent / "data" / DEFAULT_FILE
+    path = Path(name)
+    if not path.is_absolute():
+        path = Path(results.source_file).parent / path
+    return path
+
+
+def make_report(results, *, units: str | None = None, paper: str = "a4",
+                environ: dict[str, str] | None = None) -> ReportFiles:
+    """Render one study's report (HTML, PDF/A-3b and results JSON) from its results.
+
+    ``units`` None means the units the study file is written in.
+    """
+    from relayset import io
+    from relayset.inputs.unit_system import study_unit_system
+    from relayset.report.context import build_context, document_date
+    from relayset.report.html import render_html
+    from relayset.report.pdf import EmbeddedFile, html_to_pdf
+
+    src = Path(results.source_file)
+    try:
+        study_bytes = src.read_bytes()
+    except OSError as exc:
+        raise InputError(f"cannot be read ({exc.strerror})", source=str(src)) from None
+    if hashlib.sha256(study_bytes).hexdigest() != results.source_sha256:
+        raise InputError("changed after it was read; run the report again", source=str(src))
+    env = dict(os.environ if environ is None else environ)
+    results_json = io.to_json(results.to_dict())
+    ctx = build_context(results, units=units or study_unit_system(results.study_input),
+                        paper=paper, environ=env,
+                        results_json=results_json)
+    html = render_html(ctx, study_bytes.decode("utf-8"))
+    files = [
+        EmbeddedFile(src.name, study_bytes, "The study file (input)", "Source"),
+        EmbeddedFile(f"{ctx['doc_id']}.results.json", results_json.encode("utf-8"),
+                     "The results (JSON, keys carry their units)", "Data"),
+    ]
+    if results.settings is not None:
+        ph = philosophy_path(results)
+        try:
+            ph_bytes = ph.read_bytes()
+        except OSError as exc:
+            raise InputError(f"philosophy file cannot be read ({exc.strerror})",
+                             field="study.philosophy", value=str(ph),
+                             source=str(src)) from None
+        name = ph.name if ph.name != src.name else f"philosophy_{ph.name}"
+        files.append(EmbeddedFile(name, ph_bytes, "The setting philosophy (input)", "Source"))
+    when = document_date(results.identity, env).when
+    pdf = html_to_pdf(html, files, when)
+    return ReportFiles(ctx["doc_id"], html, pdf, results_json, str(src))
+
+
+def report_for_study(path: str | Path, units: str | None = None,
+                     paper: str = "a4") -> ReportFiles:
+    """Compute a study (parameters, reach study, settings) and render its report."""
+    from relayset.api import study_settings
+
+    return make_report(study_settings(path), units=units, paper=paper)
+
+
+def _worker(args: tuple[str, str | None, str]):
+    path, units, paper = args
+    try:
+        return report_for_study(path, units, paper)
+    except InputError as exc:  # exceptions with keyword-only fields do not pickle
+        return ("error", exc.rule, exc.field, exc.value, exc.source)
+
+
+def check_output_dir(out_dir: str | Path) -> Path:
+    """Create the output folder if needed and make sure a file can be written there."""
+    import tempfile
+
+    out = Path(out_dir)
+    try:
+        out.mkdir(parents=True, exist_ok=True)
+        fd, probe = tempfile.mkstemp(prefix=".relayset-probe-", dir=out)
+        os.close(fd)
+        os.unlink(probe)
+    except OSError as exc:
+        raise InputError(f"the output folder cannot be written ({exc.strerror})",
+                         field="-o", value=str(out_dir), source="command line") from None
+    return out
+
+
+def render_reports(paths: Sequence[str | Path], *, units: str | None = None, paper: str = "a4",
+                   jobs: int | None = None) -> list[ReportFiles]:
+    """Render every study's report in memory; the first bad input raises InputError.
+
+    Several studies are rendered in parallel processes (at most ``jobs``, default the CPU
+    count), each computing and rendering one study.
+    """
+    paths = [str(p) for p in paths]
+    jobs = max(1, min(jobs or os.cpu_count() or 1, len(paths)))
+    if jobs == 1:
+        reports = [report_for_study(p, units, paper) for p in paths]
+    else:
+        import multiprocessing as mp
+        from concurrent.futures import ProcessPoolExecutor
+
+        # Import the heavy renderers once; forked workers inherit them.
+        import matplotlib.figure  # noqa: F401
+        import weasyprint  # noqa: F401
+
+        with ProcessPoolExecutor(jobs, mp_context=mp.get_context("fork")) as pool:
+            out = list(pool.map(_worker, [(p, units, paper) for p in paths]))
+        for item in out:
+            if isinstance(item, tuple):
+                _, rule, field, value, source = item
+                raise InputError(rule, field=field, value=value, source=source)
+        reports = out
+    seen: dict[str, str] = {}
+    for r in reports:
+        if r.stem in seen:
+            raise InputError(f"gives the same report name {r.stem!r} as {seen[r.stem]}",
+                             field="study.line_id", source=r.source)
+        seen[r.stem] = r.source
+    return reports
+
+
+def write_reports(reports: Sequence[ReportFiles], out_dir: str | Path) -> list[Path]:
+    """Write each report's HTML, PDF and results JSON atomically; return the PDF paths."""
+    from relayset import io
+
+    out = check_output_dir(out_dir)
+    written = []
+    try:
+        for r in reports:
+            io.write_atomic(out / f"{r.stem}.html", r.html)
+            io.write_atomic(out / f"{r.stem}.json", r.json)
+            io.write_atomic(out / f"{r.stem}.pdf", r.pdf)
+            written.append(out / f"{r.stem}.pdf")
+    except OSError as exc:
+        raise InputError(f"the output folder cannot be written ({exc.strerror})",
+                         field="-o", value=str(out_dir), source="command line") from None
+    return written

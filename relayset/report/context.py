@@ -1,0 +1,613 @@
+"""The presentation context of the calculation report: formatted text from the results model.
+
+Everything the report prints comes from :class:`relayset.results.StudyResults` and its
+``to_dict()`` (the same numbers the JSON export carries). Nothing here computes physics: the
+only arithmetic is unit conversion for ``--units us`` and formatting to fixed precision.
+The Jinja2 templates in ``templates/report/`` then lay the context out.
+"""
+
+from __future__ import annotations
+
+import cmath
+import datetime as dt
+import math
+import re
+from dataclasses import dataclass
+from typing import Any
+
+#: Printed precision (decimals) of each kind of number; the tests read the PDF at these.
+PRECISION = {
+    "ohm": 3,  # line and zone impedances [ohm]
+    "ohm_per_len": 4,  # per-length impedances [ohm/km or ohm/mi]
+    "pu": 3,  # k0, kr, kx, ratios
+    "deg": 1,
+    "pct": 2,
+    "len": 2,
+    "cap": 3,  # nF per length
+    "s": 2,
+}
+
+MI_PER_KM = 1 / 1.609344
+FT_PER_M = 1 / 0.3048
+IN_PER_MM = 1 / 25.4
+
+#: Output unit systems: labels and factors from the JSON's per-km, km, m and mm values.
+UNITS: dict[str, dict[str, Any]] = {
+    "si": {"per": "km", "per_km": 1.0, "len": "km", "km": 1.0, "short": "m", "m": 1.0,
+           "small": "mm", "mm": 1.0},
+    "us": {"per": "mi", "per_km": 1.609344, "len": "mi", "km": MI_PER_KM, "short": "ft",
+           "m": FT_PER_M, "small": "in", "mm": IN_PER_MM},
+}
+
+PAPERS = {"a4": "A4", "letter": "letter"}
+
+STATUS_TEXT = {"draft": "Draft", "for review": "For review", "approved": "Approved"}
+
+NOT_VERIFIED = "not verified"
+
+ARRANGEMENT_TEXT = {
+    "actual_plan": "actual transposition plan",
+    "untransposed": "untransposed",
+    "ideal_cycle": "ideal transposition cycle",
+}
+
+WORST_KEYS = (
+    ("worst_overreach_at_zone1_reach", "over at Z1 reach"),
+    ("worst_underreach_at_zone1_reach", "under at Z1 reach"),
+    ("worst_overreach_on_line", "over on line"),
+    ("worst_underreach_on_line", "under on line"),
+    ("worst_overreach_at_remote_bus", "over at remote bus"),
+    ("worst_reactance_overreach_at_zone1_reach_resistive", "X over, Rf > 0"),
+)
+
+
+def num(x: Any, digits: int = 3) -> str:
+    """A number at fixed decimals, with a real minus sign; '–' when absent or not finite."""
+    if x is None or isinstance(x, bool):
+        return "–"
+    x = float(x)
+    if not math.isfinite(x):
+        return "–"
+    text = f"{x:.{digits}f}"
+    if float(text) == 0.0:
+        text = text.lstrip("-")  # no "-0.000"
+    return text.replace("-", "\u2212")
+
+
+def cnum(z: Any, digits: int = 3) -> str:
+    """A complex value ([re, im] or complex) as 'a + jb'."""
+    z = _complex(z)
+    if z is None:
+        return "–"
+    sign = "+" if float(num(z.imag, digits).replace("\u2212", "-")) >= 0 else "\u2212"
+    return f"{num(z.real, digits)} {sign} j{num(abs(z.imag), digits)}"
+
+
+def pnum(z: Any, digits: int = 3, angle_digits: int = 1) -> str:
+    """A complex value ([re, im], {magnitude, angle_deg} or complex) as 'r ∠ θ°'."""
+    if isinstance(z, dict):
+        mag, ang = z["magnitude"], z["angle_deg"]
+    else:
+        c = _complex(z)
+        if c is None:
+            return "–"
+        mag, ang = abs(c), math.degrees(cmath.phase(c))
+    return f"{num(mag, digits)} \u2220 {num(ang, angle_digits)}\u00b0"
+
+
+def _complex(z: Any) -> complex | None:
+    if z is None:
+        return None
+    if isinstance(z, list | tuple):
+        return complex(z[0], z[1])
+    return complex(z)
+
+
+def safe_stem(line_id: str, revision: str) -> str:
+    """The report's file stem ``<line_id>_rev<revision>``, with only safe file-name characters."""
+    def clean(s: str) -> str:
+        return re.sub(r"[^A-Za-z0-9._-]+", "_", str(s)).strip("._") or "line"
+
+    return f"{clean(line_id)}_rev{clean(revision)}"
+
+
+@dataclass(frozen=True)
+class Dates:
+    """The document date: from SOURCE_DATE_EPOCH, else the study's revision date."""
+
+    when: dt.datetime  #: UTC, used for the PDF metadata and the attachments
+
+    @property
+    def date_text(self) -> str:
+        return self.when.date().isoformat()
+
+    @property
+    def iso(self) -> str:
+        return self.when.strftime("%Y-%m-%dT%H:%M:%SZ")
+
+
+def document_date(identity: dict[str, Any], environ: dict[str, str]) -> Dates:
+    """The date the report carries, so that the same input gives the same bytes.
+
+    SOURCE_DATE_EPOCH (the reproducible-builds convention) wins; otherwise the study's
+    revision date at 00:00 UTC; otherwise today's date (still the same bytes within a day).
+    """
+    sde = environ.get("SOURCE_DATE_EPOCH", "").strip()
+    if sde.isdigit():
+        return Dates(dt.datetime.fromtimestamp(int(sde), tz=dt.UTC))
+    rev = identity.get("revision_date")
+    day = dt.date.fromisoformat(rev) if rev else dt.datetime.now(dt.UTC).date()
+    return Dates(dt.datetime(day.year, day.month, day.day, tzinfo=dt.UTC))
+
+
+# --------------------------------------------------------------------------- building blocks
+def _identity(r, d: dict[str, Any], u: dict[str, Any]) -> dict[str, Any]:
+    s = d["study"]
+    p = d["parameters"]
+    relay = r.study_input.get("relay", {}) or {}
+    return {
+        "line_id": s["line_id"],
+        "title": s["title"],
+        "from_substation": s["from_substation"],
+        "to_substation": s["to_substation"],
+        "revision": s["revision"],
+        "revision_date": s.get("revision_date") or "–",
+        "status": s["status"],
+        "status_text": STATUS_TEXT.get(s["status"], s["status"]),
+        "prepared_by": s.get("prepared_by", ""),
+        "checked_by": s.get("checked_by", ""),
+        "approved_by": s.get("approved_by", ""),
+        "philosophy": s.get("philosophy", "default"),
+        "notes": s.get("notes", ""),
+        "voltage_kv": num(s["nominal_voltage_kv"], 0),
+        "frequency_hz": num(p["frequency_hz"], 0),
+        "length": num(p["length_km"] * u["km"], PRECISION["len"]),
+        "relay_end": str(relay.get("end", "–")),
+        "n_circuits": len(p["circuits"]),
+    }
+
+
+def _revisions(r) -> list[dict[str, str]]:
+    rows = []
+    for rev in r.study_input.get("revisions", []) or []:
+        date = rev.get("date")
+        rows.append({
+            "revision": str(rev.get("revision", "")),
+            "date": date.isoformat() if hasattr(date, "isoformat") else str(date or ""),
+            "description": str(rev.get("description", "")),
+            "by": str(rev.get("by", "")),
+        })
+    return rows
+
+
+def _input_tables(r, d: dict[str, Any], u: dict[str, Any]) -> dict[str, Any]:
+    """The study's inputs as read (the user's own text with units) plus resolved conductors."""
+    raw = r.study_input
+    p = d["parameters"]
+
+    def text(v: Any) -> str:
+        if isinstance(v, dict):
+            return ", ".join(f"{k} = {text(x)}" for k, x in v.items())
+        if isinstance(v, list | tuple):
+            return ", ".join(text(x) for x in v)
+        if isinstance(v, bool):
+            return "yes" if v else "no"
+        return str(v)
+
+    def kv(table: Any) -> list[tuple[str, str]]:
+        if not isinstance(table, dict):
+            return []
+        return [(str(k), text(v)) for k, v in table.items()]
+
+    conductors = []
+    for c in p["conductors"]:
+        src = str(c.get("source") or "")
+        conductors.append({
+            "name": c["name"],
+            "description": c["description"],
+            "r_ac": num(c["r_ac_ohm_per_km"] * u["per_km"], PRECISION["ohm_per_len"]),
+            "gmr": num(c["gmr_mm"] * u["mm"], 2 if u["small"] == "mm" else 3),
+            "diameter": num(c["outside_diameter_mm"] * u["mm"], 2 if u["small"] == "mm" else 3),
+            "temperature": num(c["operating_temperature_c"], 0),
+            "source": src,
+            "from_memory": "from memory" in src.lower(),
+        })
+    positions = []
+    for c, circ in enumerate(raw.get("circuits", [])):
+        for pos in circ.get("positions", []):
+            b = pos.get("bundle")
+            positions.append({
+                "circuit": str(circ.get("name", c + 1)),
+                "name": str(pos.get("name", "")),
+                "x": str(pos.get("x", "")),
+                "height": str(pos.get("height", pos.get("average_height", ""))),
+                "height_kind": "attachment" if "height" in pos else "average",
+                "sag": str(pos.get("sag", "–")),
+                "conductor": str(pos.get("conductor", "")),
+                "bundle": (f"{b.get('count')} × {b.get('spacing')}"
+                           + (f", {b.get('orientation')}" if b.get("orientation") else "")
+                           if isinstance(b, dict) else "single"),
+            })
+    shields = [{
+        "name": str(sw.get("name", k + 1)),
+        "x": str(sw.get("x", "")),
+        "height": str(sw.get("height", sw.get("average_height", ""))),
+        "sag": str(sw.get("sag", "–")),
+        "conductor": str(sw.get("conductor", "")),
+        "grounding": str(sw.get("grounding", "continuous")),
+    } for k, sw in enumerate(raw.get("shield_wires", []))]
+    sections = []
+    for k, (sec, raw_sec) in enumerate(zip(p["sections"],
+                                          (raw.get("line", {}) or {}).get("sections") or
+                                          [{}] * len(p["sections"]), strict=False)):
+        sections.append({
+            "index": k + 1,
+            "length": num(sec["length_km"] * u["km"], PRECISION["len"]),
+            "order": " ".join(sec["order"]),
+            "given": text(raw_sec.get("order", "")) if isinstance(raw_sec, dict) else "",
+        })
+    sources = [(str(name), kv(tab)) for name, tab in (raw.get("sources", {}) or {}).items()]
+    adjacent = [(str(a.get("name", "")), text({k: v for k, v in a.items() if k != "name"}))
+                for a in raw.get("adjacent_lines", []) or []]
+    behind = [(str(a.get("name", "")), text({k: v for k, v in a.items() if k != "name"}))
+              for a in raw.get("lines_behind", []) or []]
+    return {
+        "system": kv(raw.get("system", {})),
+        "conductors": conductors,
+        "conductor_types": [(str(k), kv(v)) for k, v in raw.get("conductor_types", {}).items()],
+        "positions": positions,
+        "shields": shields,
+        "sections": sections,
+        "relay": kv(raw.get("relay", {})),
+        "sources": sources,
+        "load": kv(raw.get("load", {})),
+        "reach_study": kv(raw.get("reach_study", {})),
+        "error_budget": kv(raw.get("error_budget", {})),
+        "fault_resistance": kv(raw.get("fault_resistance", {})),
+        "adjacent": adjacent,
+        "behind": behind,
+    }
+
+
+def _matrix(m: dict[str, list[list[float]]], scale: float, digits: int) -> list[list[str]]:
+    return [[cnum((re_, im_), digits) for re_, im_ in zip(rr, ri, strict=True)]
+            for rr, ri in zip(m["re"], m["im"], strict=True)]
+
+
+def _parameters(d: dict[str, Any], u: dict[str, Any]) -> dict[str, Any]:
+    p = d["parameters"]
+    k = u["per_km"]
+    P = PRECISION
+
+    def scaled(pair: list[float], f: float) -> list[float]:
+        return [pair[0] * f, pair[1] * f]
+
+    def mscaled(m: dict, f: float) -> dict:
+        return {"re": [[x * f for x in row] for row in m["re"]],
+                "im": [[x * f for x in row] for row in m["im"]]}
+
+    labels = p["phase_labels"]
+    n_c = len(labels)
+    phase_names = [(f"{c + 1}·{lab}" if n_c > 1 else lab)
+                   for c, ls in enumerate(labels) for lab in ls]
+    seq_names = [(f"{c + 1}·{s}" if n_c > 1 else s) for c in range(n_c) for s in "012"]
+    circuits = []
+    for c in p["circuits"]:
+        circuits.append({
+            "circuit": c["circuit"],
+            "z1_per": cnum(scaled(c["z1_ohm_per_km"], k), P["ohm_per_len"]),
+            "z0_per": cnum(scaled(c["z0_ohm_per_km"], k), P["ohm_per_len"]),
+            "z1": cnum(c["z1_ohm"], P["ohm"]),
+            "z0": cnum(c["z0_ohm"], P["ohm"]),
+            "z1_polar": pnum(c["z1_ohm"], P["ohm"]),
+            "z0_polar": pnum(c["z0_ohm"], P["ohm"]),
+            "line_angle": num(c["line_angle_deg"], P["deg"] + 1),
+            "k0": pnum(c["k0"]["k0"], P["pu"]),
+            "k0_mag": num(c["k0"]["k0"]["magnitude"], P["pu"]),
+            "k0_ang": num(c["k0"]["k0"]["angle_deg"], P["deg"] + 1),
+            "k0_complex": cnum(c["k0"]["k0_complex"], P["pu"]),
+            "kr": num(c["k0"]["kr"], P["pu"]),
+            "kx": num(c["k0"]["kx"], P["pu"]),
+            "z0_over_z1": pnum(c["k0"]["z0_over_z1"], P["pu"]),
+            "c1": num(c["c1_nf_per_km"] * k, P["cap"]),
+            "c0": num(c["c0_nf_per_km"] * k, P["cap"]),
+            "b1": num(c["b1_us_per_km"] * k, P["cap"]),
+            "ic_per": num(c["charging_current_a_per_km"] * k, P["cap"]),
+            "ic": num(c["charging_current_a"], 1),
+            "zc": pnum(c["surge_impedance_ohm"], 1),
+            "z1_exact": cnum(c["z1_exact_ohm"], P["ohm"]),
+            "z0_exact": cnum(c["z0_exact_ohm"], P["ohm"]),
+            "z1_corr": num(c["z1_exact_correction_pct"], P["pct"]),
+            "z0_corr": num(c["z0_exact_correction_pct"], P["pct"]),
+            "long_line": c["long_line_correction_needed"],
+        })
+    arrangements = []
+    for name, a in p["arrangements"].items():
+        arrangements.append({
+            "name": name,
+            "title": ARRANGEMENT_TEXT.get(name, name),
+            "description": a["description"],
+            "zabc": _matrix(mscaled(a["zabc_ohm_per_km"], k), 1.0, P["ohm_per_len"]),
+            "z012": _matrix(mscaled(a["z012_ohm_per_km"], k), 1.0, P["ohm_per_len"]),
+            "m0": [num(x, P["pct"]) for x in a["unbalance_m0_pct"]],
+            "m2": [num(x, P["pct"]) for x in a["unbalance_m2_pct"]],
+            "z0m": cnum(scaled(a["z0m_ohm_per_km"], k), P["ohm_per_len"])
+            if "z0m_ohm_per_km" in a else None,
+        })
+    return {
+        "length": num(p["length_km"] * u["km"], P["len"]),
+        "earth_model": p["earth_model"],
+        "resistivity": num(p["earth_resistivity_ohm_m"], 0),
+        "circuits": circuits,
+        "arrangements": arrangements,
+        "phase_names": phase_names,
+        "seq_names": seq_names,
+        "k0m": pnum(p["k0m"], P["pu"]) if p["k0m"] else None,
+        "assumptions": list(p["assumptions"]),
+    }
+
+
+def _worst(w: dict[str, Any] | None) -> dict[str, str] | None:
+    if w is None:
+        return None
+    return {
+        "error": num(w["error_pct"], PRECISION["pct"]),
+        "fault_type": w["fault_type"],
+        "location": num(w["location_pct"], 1),
+        "rf": num(w["r_fault_ohm"], 1),
+        "source_case": w["source_case"],
+        "transfer_angle": num(w["transfer_angle_deg"], 1),
+        "positions": " / ".join(w["positions"]),
+    }
+
+
+def _reach(d: dict[str, Any]) -> dict[str, Any] | None:
+    q = d.get("reach_study")
+    if q is None:
+        return None
+    P = PRECISION
+    ends = []
+    for e in q["ends"]:
+        arrs = []
+        for a in e["arrangements"]:
+            loops = []
+            for lp in a["loops"]:
+                loops.append({"loop": lp["loop"],
+                              "worst": [_worst(lp[key]) for key, _ in WORST_KEYS]})
+            title = ARRANGEMENT_TEXT.get(a["arrangement"], a["arrangement"])
+            if e["k0m_set"] is not None:
+                title += (", with mutual compensation" if a["mutual_compensation"]
+                          else ", without mutual compensation")
+            arrs.append({
+                "name": a["arrangement"],
+                "title": title,
+                "mutual": a["mutual_compensation"],
+                "over_remote": num(a["worst_bolted_overreach_at_remote_bus_pct"], P["pct"]),
+                "over_line": num(a["worst_bolted_overreach_on_line_pct"], P["pct"]),
+                "under_line": num(a["worst_bolted_underreach_on_line_pct"], P["pct"]),
+                "loops": loops,
+                "envelope": a["envelope"],
+            })
+        ends.append({
+            "end": e["end"],
+            "z1_set": cnum(e["z1_set_ohm"], P["ohm"]),
+            "k0_set": pnum(e["k0_set"], P["pu"]),
+            "k0m_set": pnum(e["k0m_set"], P["pu"]) if e["k0m_set"] else None,
+            "zone1_reach": num(e["zone1_reach_pct"], 1),
+            "error_budget": num(e["error_budget_pct"], 1),
+            "recommended_zone1": num(e["recommended_zone1_pct"], 1),
+            "governing_loop": e["governing_loop"],
+            "governing_case": _worst(e["governing_case"]),
+            "arrangements": arrs,
+        })
+    return {
+        "fault_types": ", ".join(q["fault_types"]),
+        "location_step": num(q["location_step_pct"], 1),
+        "fault_resistances": ", ".join(num(x, 1) for x in q["fault_resistances_ohm"]),
+        "phase_fault_resistance": num(q["phase_fault_resistance_ohm"], 1),
+        "source_cases": ", ".join(f"{c['name']} (× {num(c['scale'], 2)})"
+                                  for c in q["source_cases"]),
+        "transfer_angles": ", ".join(num(x, 1) for x in q["transfer_angles_deg"]),
+        "parallel_circuit": q["parallel_circuit"] or "–",
+        "shunt_capacitance": "included" if q["shunt_capacitance"] else "neglected",
+        "cases": f"{q['cases_solved']:,}".replace(",", "\u2009"),
+        "notes": list(q["notes"]),
+        "ends": ends,
+        "worst_headers": [h for _, h in WORST_KEYS],
+    }
+
+
+def _zone(name: str, z: dict[str, Any]) -> dict[str, Any]:
+    from relayset.settings.context import ZONE_LABELS
+
+    P = PRECISION
+    quad = z["shape"] == "quadrilateral"
+    return {
+        "zone": name,
+        "label": ZONE_LABELS.get(name, name),
+        "direction": z["direction"],
+        "rule": z["rule"],
+        "reach_pri": num(z["reach_primary_magnitude_ohm"], P["ohm"]),
+        "reach_sec": num(z["reach_secondary_magnitude_ohm"], P["ohm"]),
+        "angle": num(z["reach_angle_deg"], P["deg"]),
+        "pct": num(z["reach_pct"], 1),
+        "delay": num(z["delay_s"], P["s"]),
+        "shape": z["shape"],
+        "infeed": pnum(z["infeed_factor"], P["pu"]) if z["infeed_factor"] else None,
+        "mho_d_pri": None if quad else num(z["mho_diameter_primary_ohm"], P["ohm"]),
+        "mho_d_sec": None if quad else num(z["mho_diameter_secondary_ohm"], P["ohm"]),
+        "mho_angle": None if quad else num(z["char_angle_deg"], P["deg"]),
+        "x_pri": num(z["x_reach_primary_ohm"], P["ohm"]) if quad else None,
+        "x_sec": num(z["x_reach_secondary_ohm"], P["ohm"]) if quad else None,
+        "rph_pri": num(z["r_reach_phase_primary_ohm"], P["ohm"]) if quad else None,
+        "rph_sec": num(z["r_reach_phase_secondary_ohm"], P["ohm"]) if quad else None,
+        "rg_pri": num(z["r_reach_ground_primary_ohm"], P["ohm"]) if quad else None,
+        "rg_sec": num(z["r_reach_ground_secondary_ohm"], P["ohm"]) if quad else None,
+        "load_pct": num(z["load_reach_pct_of_min"], 1),
+        "checks": [{"id": c["check_id"], "passed": c["passed"], "detail": c["detail"]}
+                   for c in z["checks"]],
+    }
+
+
+def _settings_ends(d: dict[str, Any]) -> list[dict[str, Any]]:
+    """One block per relay end, in the order of the results (``settings.ends``)."""
+    if d.get("settings") is None:
+        return []
+    from relayset.settings.context import ZONE_LABELS
+
+    P = PRECISION
+    out = []
+    for i, s in enumerate(d["settings"]["ends"]):
+        line = s["line"]
+        k0 = s["k0"]
+        load = s["load"]
+        zones = {name: dict(z, label=ZONE_LABELS.get(name, name))
+                 for name, z in s["zones"].items()}
+        out.append({
+            "end": str(s["end"]),
+            "remote_end": str(s.get("remote_end", "")),
+            "index": i,
+            "z1_pri": cnum(line["z1_primary_ohm"], P["ohm"]),
+            "z1_sec": cnum(line["z1_secondary_ohm"], P["ohm"]),
+            "z1_pri_mag": num(math.hypot(*line["z1_primary_ohm"]), P["ohm"]),
+            "z1_sec_mag": num(math.hypot(*line["z1_secondary_ohm"]), P["ohm"]),
+            "angle": num(line["angle_deg"], P["deg"]),
+            "secondary_factor": num(line["secondary_factor"], 5),
+            "k0_mag": num(k0["k0"]["magnitude"], P["pu"]),
+            "k0_ang": num(k0["k0"]["angle_deg"], P["deg"]),
+            "kr": num(k0["kr"], P["pu"]),
+            "kx": num(k0["kx"], P["pu"]),
+            "z0z1_mag": num(k0["z0_over_z1"]["magnitude"], P["pu"]),
+            "z0z1_ang": num(k0["z0_over_z1"]["angle_deg"], P["deg"]),
+            "k0m": None if s["k0m"] is None else pnum(s["k0m"], P["pu"]),
+            "load_zmin_pri": num(load["z_min_primary_ohm"], P["ohm"]),
+            "load_zmin_sec": num(load["z_min_secondary_ohm"], P["ohm"]),
+            "load_angle": num(load["load_angle_max_deg"], P["deg"]),
+            "encroachment_limit": num(load["encroachment_limit_pct"], 1),
+            "r_limit": num(load["r_limit_primary_ohm"], P["ohm"]),
+            "sources": [{"end": f"{x['end']} ({x.get('role', '')})",
+                         "z": cnum(x["z_source_ohm"], P["ohm"]),
+                         "sir": num(x["sir"], 2), "line_class": x["line_class"]}
+                        for x in s["sources"]],
+            "arc_current": num(s["arc_current_a"], 0),
+            "zones": [_zone(name, z) for name, z in s["zones"].items()],
+            "warnings": [{"rule_id": w["rule_id"], "message": w["message"],
+                          "consider": w["consider"]} for w in s["warnings"]],
+            "failed_checks": [(name, c["check_id"]) for name, z in s["zones"].items()
+                              for c in z["checks"] if not c["passed"]],
+            "settings_dict": {**s, "zones": zones},
+        })
+    return out
+
+
+def _verification(r) -> dict[str, Any]:
+    """The verification section: one row per relay end and check; "not verified" when the
+    study has none (parameters or reach only)."""
+    v = getattr(r, "verification", None)
+    if v is None:
+        return {"verdict": NOT_VERIFIED, "present": False, "zones": []}
+    vd = v.to_dict() if hasattr(v, "to_dict") else dict(v)
+    zones = []
+    # One row per end and check (results/verification.py: ends[].checks[]).
+    for e in vd.get("ends", []) or []:
+        for c in e.get("checks", []) or []:
+            fails = []
+            if c.get("result") == "FAIL":
+                g = c.get("governing_case")
+                case = c.get("requirement", "")
+                if g:
+                    case = (f"{g['fault_type']} on the {g['faulted']} at "
+                            f"{num(g['location_pct'], PRECISION['pct'])} %, Rf "
+                            f"{g['r_fault_ohm']:.3g} ohm, {g['source_case']}, parallel "
+                            f"{g['parallel_state']}, {g['earth_resistivity_ohm_m']:g} ohm*m, "
+                            f"loop {g['loop']}")
+                fails.append({"case": case, "detail": str(c.get("consider", ""))})
+            zones.append({
+                "end": str(e.get("end", "")),
+                "zone": f"{c.get('zone', '')} {c.get('check_id', '')}",
+                "cases_run": str(c.get("cases_run", "–")),
+                "margin": num(c.get("margin_pct"), PRECISION["pct"]),
+                "fails": fails,
+            })
+    return {"verdict": str(vd.get("verdict", NOT_VERIFIED)), "present": True, "zones": zones}
+
+
+def build_context(results, *, units: str = "si", paper: str = "a4",
+                  environ: dict[str, str] | None = None,
+                  results_json: str | None = None) -> dict[str, Any]:
+    """The whole presentation context of one report.
+
+    Parameters
+    ----------
+    results : StudyResults
+        The study's results (parameters, reach study and settings).
+    units : {"si", "us"}
+        Units of lengths and per-length values in the report.
+    paper : {"a4", "letter"}
+    environ : dict, optional
+        Environment (for SOURCE_DATE_EPOCH); defaults to ``os.environ``.
+    results_json : str, optional
+        The results JSON text (its SHA-256 is printed); made from ``results`` when absent.
+    """
+    import hashlib
+    import os
+
+    from relayset import io
+    from relayset.report import plots
+
+    if units not in UNITS:
+        raise ValueError(f"units must be one of {', '.join(UNITS)}")
+    if paper not in PAPERS:
+        raise ValueError(f"paper must be one of {', '.join(PAPERS)}")
+    u = UNITS[units]
+    d = results.to_dict()
+    if results_json is None:
+        results_json = io.to_json(d)
+    ident = _identity(results, d, u)
+    dates = document_date(d["study"], dict(os.environ if environ is None else environ))
+    verification = _verification(results)
+    settings = _settings_ends(d)
+    reach = _reach(d)
+    failed = verification["verdict"] == "failed checks" or any(
+        s["failed_checks"] for s in settings)
+    # Only an approved calculation without failed checks is for use.
+    not_for_use = ident["status"] != "approved" or failed
+    ctx: dict[str, Any] = {
+        "id": ident,
+        "doc_id": safe_stem(ident["line_id"], ident["revision"]),
+        "paper": PAPERS[paper],
+        "units": units,
+        "u": u,
+        "caution": results.caution,
+        "version": results.relayset_version,
+        "source_file": os.path.basename(results.source_file),
+        "source_sha256": results.source_sha256,
+        "results_sha256": hashlib.sha256(results_json.encode("utf-8")).hexdigest(),
+        "date": dates.date_text,
+        "date_iso": dates.iso,
+        "revisions": _revisions(results),
+        "inputs": _input_tables(results, d, u),
+        "params": _parameters(d, u),
+        "reach": reach,
+        "settings": settings,
+        "verification": verification,
+        "failed": failed,
+        "not_for_use": not_for_use,
+        "philosophy": _philosophy_rows(d.get("philosophy")),
+        "keywords": f"{ident['line_id']}, revision {ident['revision']}, distance protection, "
+                    "setting calculation",
+    }
+    ctx["figures"] = plots.figures(results, d, ctx)
+    return ctx
+
+
+def _philosophy_rows(ph: dict[str, Any] | None) -> list[tuple[str, list[tuple[str, str]]]]:
+    if not ph:
+        return []
+    out = []
+    for table, values in ph.items():
+        if isinstance(values, dict):
+            out.append((str(table), [(str(k), str(v)) for k, v in values.items()]))
+        else:
+            out.append(("", [(str(table), str(values))]))
+    return out

@@ -1,0 +1,100 @@
+"""The archival PDF: WeasyPrint, PDF/A-3b, with the inputs and the results embedded.
+
+The HTML is self-contained, so the URL fetcher refuses every URL (file, network, data):
+nothing outside the document can reach the PDF. Dates come from the caller (the study's
+revision date or SOURCE_DATE_EPOCH), so the same input gives the same bytes.
+"""
+
+from __future__ import annotations
+
+import datetime as dt
+import mimetypes
+import os
+from collections.abc import Sequence
+from contextlib import contextmanager
+from dataclasses import dataclass
+
+
+@dataclass(frozen=True)
+class EmbeddedFile:
+    """A file carried inside the PDF as an associated file."""
+
+    name: str
+    data: bytes
+    description: str
+    relationship: str  #: "Source" for inputs, "Data" for results
+
+
+def refusing_fetcher(requested: list[str] | None = None):
+    """A WeasyPrint URL fetcher that refuses every URL (and notes it in ``requested``)."""
+    from weasyprint.urls import FatalURLFetchingError, URLFetcher
+
+    class RefuseAll(URLFetcher):
+        """Refuses every URL: the report's HTML is self-contained."""
+
+        def fetch(self, url, headers=None):
+            if requested is not None:
+                requested.append(url)
+            raise FatalURLFetchingError(f"the report loads no external resource: {url}")
+
+    return RefuseAll()
+
+
+@contextmanager
+def _source_date_epoch(when: dt.datetime):
+    """fontTools stamps font subsets with the time unless SOURCE_DATE_EPOCH is set."""
+    old = os.environ.get("SOURCE_DATE_EPOCH")
+    os.environ["SOURCE_DATE_EPOCH"] = str(int(when.timestamp()))
+    try:
+        yield
+    finally:
+        if old is None:
+            os.environ.pop("SOURCE_DATE_EPOCH", None)
+        else:
+            os.environ["SOURCE_DATE_EPOCH"] = old
+
+
+def _dedupe_af(document, pdf) -> None:
+    """WeasyPrint 70 lists each associated file twice in the catalog's /AF array."""
+    af = pdf.catalog.get("AF")
+    if af is None:
+        return
+    seen, unique = set(), []
+    for ref in af:
+        key = str(ref)
+        if key not in seen:
+            seen.add(key)
+            unique.append(ref)
+    af[:] = unique
+
+
+def html_to_pdf(html: str, files: Sequence[EmbeddedFile], when: dt.datetime,
+                requested: list[str] | None = None) -> bytes:
+    """PDF/A-3b bytes of the report.
+
+    Parameters
+    ----------
+    html : str
+        The self-contained report HTML (metadata in ``<title>`` and ``<meta>``).
+    files : sequence of EmbeddedFile
+        Associated files, embedded in name order.
+    when : datetime
+        Creation and modification date of the embedded files (UTC).
+    requested : list, optional
+        Receives every URL the document tried to load (loading any is an error).
+    """
+    import weasyprint
+
+    mimetypes.add_type("application/toml", ".toml")  # unknown to Python 3.11
+    fetcher = refusing_fetcher(requested)
+    with _source_date_epoch(when):
+        doc = weasyprint.HTML(string=html, url_fetcher=fetcher, base_url=None)
+        attachments = [
+            weasyprint.Attachment(string=f.data, name=f.name, description=f.description,
+                                  created=when, modified=when, relationship=f.relationship,
+                                  url_fetcher=fetcher)
+            for f in sorted(files, key=lambda f: f.name)
+        ]
+        rendered = doc.render()
+        return rendered.write_pdf(pdf_variant="pdf/a-3b", attachments=attachments,
+                                  finisher=_dedupe_af, uncompressed_pdf=False)
