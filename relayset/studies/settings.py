@@ -134,6 +134,7 @@ def run_settings(study: Study, geo: LineGeometry, params: LineParameters, relay:
                 worst_overreach_pct=worst,
                 infeed_range=sim.get("infeed_range"),
                 reverse_cover_ohm=sim.get("reverse_cover_ohm"),
+                resistive_need_ohm=sim.get("resistive_need_ohm"),
             )
             out.append(compute_settings(inputs, philosophy))
         except InputError as exc:

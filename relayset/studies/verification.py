@@ -520,6 +520,7 @@ def verify_end(sim: Simulation, end: str, st: SettingsResult, *, study: Study,
             "zone 1 does not operate for any fault on the parallel circuit "
             f"({'with' if sim.mutual else 'without'} mutual compensation) with {t:g} % margin",
             par, t, consider))
+    checks[0] = _resistive_need(checks[0], z1, theta, st)
     checks.append(_finish(
         "zone2", "covers_whole_line",
         f"zone 2 operates for every fault on the protected line up to {other} with {t:g} % "
@@ -527,6 +528,7 @@ def verify_end(sim: Simulation, end: str, st: SettingsResult, *, study: Study,
         acc["z2_int"], t,
         "lengthen zone 2 until the worst underreach plus the error budget still covers the "
         "remote bus"))
+    checks[-1] = _resistive_need(checks[-1], z2, theta, st)
     checks.append(_finish(
         "forward", "no_operation_behind",
         "zones 1 to 3 do not operate for resistive faults at the relay's own bus (behind it)",
@@ -584,6 +586,7 @@ def _beyond_bus_checks(sim, end, st, *, study, tolerance_pct, source, adjacent_z
         1, 0, cov - 100.0, 0.0, True, None,
         "" if cov >= 100 else "beyond that point remote backup rests on the adjacent line's "
         "own protection and on breaker-failure protection"))
+    out[-1] = replace(out[-1], required_margin_pct=None)  # reported, not judged
     return out
 
 
@@ -604,6 +607,26 @@ def _targets_inside(st: SettingsResult) -> ZoneVerification:
         "" if ok else f"{', '.join(bad)}: the target lies outside the resistive blinders "
         "(its angle differs from the line angle); widen the left blinder or aim the rule "
         "along the line angle")
+
+
+def _resistive_need(chk: ZoneVerification, zone: ZoneSetting, theta: float,
+                    st: SettingsResult) -> ZoneVerification:
+    """Add to a failed must-operate check the resistive reach its governing case needs."""
+    g = chk.governing_case
+    if chk.passed or g is None or zone.shape != "quadrilateral":
+        return chk
+    z = g.z_apparent_primary_ohm
+    need = z.real - z.imag / math.tan(theta)  # blinder offset through the case [ohm]
+    ground = g.loop.endswith("-G")
+    have = zone.r_reach_ground_primary_ohm if ground else zone.r_reach_phase_primary_ohm
+    if need <= have:
+        return chk
+    limit = st.load.r_limit_primary_ohm
+    text = (f"the governing case needs a resistive reach of {need:.4g} Ω for "
+            f"{'ground' if ground else 'phase'} loops (set {have:.4g} Ω"
+            + (f", load limit {limit:.4g} Ω" if limit is not None else "") + "): remote "
+            "infeed raises the apparent fault resistance; ")
+    return replace(chk, consider=text + chk.consider)
 
 
 def _both(z: np.ndarray, zone: ZoneSetting, theta: float) -> np.ndarray:
@@ -808,6 +831,7 @@ def settle_and_verify(study: Study, geo: LineGeometry, params: LineParameters, r
     names = (study.study.from_substation, study.study.to_substation)
     t = check_tolerance(study.error_budget.total_pct, source)
     wanted = tuple(relay.ends)
+    study = _lines_on_their_buses(study)
 
     def settings_at(simulated):
         out = {}
@@ -823,14 +847,31 @@ def settle_and_verify(study: Study, geo: LineGeometry, params: LineParameters, r
 
     prelim = settings_at({})
     by_rho = params_by_resistivity(study, geo, params, source)
-    sim0 = simulate(study, geo, by_rho, m=np.array([0.0, 1.0]),
+    m0 = [0.0, 1.0]
+    for end, st in prelim.items():  # where zone 1 must still operate, seen from each end
+        x = st.zone("zone1").reach_pct / 100 * (1 - t / 100)
+        m0.append(x if end == names[0] else 1 - x)
+    sim0 = simulate(study, geo, by_rho, m=np.unique(m0),
                     rf_pairs=rf_pairs_for(study, list(prelim.values())), source=source,
                     parallel=False)
+    st_tower = study.fault_resistance.tower_footing_resistance
+    needs = {end: _resistive_needs(sim0, end, st, t, st_tower) for end, st in prelim.items()}
+    # Zone 2's blinder is widened for remote infeed into the fault resistance (time-graded,
+    # load permitting). Zone 1's is not: a wider zone 1 blinder admits resistive faults at
+    # the remote bus and must then be shorter; what it would take is reported instead.
+    simulated: dict[str, dict] = {
+        end: {"resistive_need_ohm": {k: v for k, v in need.items() if k != "zone1"}}
+        for end, need in needs.items()}
+    wide = settings_at({end: {"resistive_need_ohm": need} for end, need in needs.items()})
     z1p = philosophy.zone1
-    simulated: dict[str, dict] = {}
     overreach: dict[str, float] = {}
+    advice: dict[str, tuple[float, float | None]] = {}
     for end, st in prelim.items():
-        sim_end: dict = {}
+        sim_end = simulated[end]
+        if end in wide and "zone1" in needs[end]:
+            z1w = wide[end].zone("zone1")
+            advice[end] = (z1w.r_reach_ground_primary_ohm,
+                           zone1_limit_pct(sim0, end, wide[end], t, z1p.min_margin_pct))
         s_min = _worst_remote_bus_scale(sim0, end, st)
         if s_min is not None:
             # The worst case appears at s_min x reach (fraction of the line) though it sits
@@ -845,7 +886,6 @@ def settle_and_verify(study: Study, geo: LineGeometry, params: LineParameters, r
             inf = infeed_range(sim0, end)
             if inf is not None:
                 sim_end["infeed_range"] = (inf.k_min, inf.k_max)
-        simulated[end] = sim_end
     final = settings_at(simulated)
     # The reverse zone of each end covers the other end's zone 2 past this bus.
     again = False
@@ -877,7 +917,78 @@ def settle_and_verify(study: Study, geo: LineGeometry, params: LineParameters, r
     ver = verify_settings(study, geo, by_rho, final, source=source,
                           zone2_adjacent_zone1_pct=philosophy.zone2.adjacent_zone1_pct,
                           ends=wanted)
+    ends = []
+    for e in ver.ends:
+        checks = list(e.checks)
+        for k, c in enumerate(checks):
+            if (c.zone, c.check_id) == ("zone1", "operates_for_internal_faults") and (
+                    not c.passed and e.end in advice):
+                r_g, lim = advice[e.end]
+                checks[k] = replace(c, consider=c.consider + (
+                    f"; widened for the simulated infeed (ground blinder {r_g:.4g} Ω) zone 1 "
+                    f"could reach only {lim:g} % of the line" if lim is not None else ""))
+        ends.append(replace(e, checks=tuple(checks)))
+    ver = replace(ver, ends=tuple(ends))
     return tuple(final[e] for e in wanted), ver
+
+
+def _lines_on_their_buses(study: Study) -> Study:
+    """The study with every adjacent line and line behind tied to the bus it leaves.
+
+    A line without ``bus`` is relative to the study's relay end (adjacent lines leave its
+    remote bus, lines behind its own). The verification also sets the other end (its zone 2
+    is what the reverse zone must cover), so the buses are fixed here once.
+    """
+    if study.relay is None or study.relay.end not in study.ends:
+        return study
+    own = study.relay.end
+    remote = study.ends[1] if own == study.ends[0] else study.ends[0]
+    update = {}
+    for which, bus in (("adjacent_lines", remote), ("lines_behind", own)):
+        lines = getattr(study, which)
+        if any(line.bus is None for line in lines):
+            update[which] = tuple(line if line.bus is not None
+                                  else line.model_copy(update={"bus": bus}) for line in lines)
+    return study.model_copy(update=update) if update else study
+
+
+def _resistive_needs(sim: Simulation, end: str, st: SettingsResult, tolerance_pct: float,
+                     tower_ohm: float) -> dict[str, tuple[float, float]]:
+    """Blinder offset (phase, ground loops) each quadrilateral zone needs to operate for the
+    simulated resistive faults it must cover, remote infeed included [ohm]."""
+    at_s = end == sim.names[0]
+    theta = st.line_angle_rad
+    zl = abs(st.line_z1_primary_ohm)
+    k0m = st.k0m if sim.mutual else None
+    out = {}
+    for name in ("zone1", "zone2"):
+        zone = st.zone(name)
+        if zone.shape != "quadrilateral":
+            continue
+        lim = (zone.reach_pct / 100 * (1 - tolerance_pct / 100) if name == "zone1"
+               else 1.0)
+        need = {True: 0.0, False: 0.0}
+        for run in sim.runs:
+            if run.faulted != "protected" or not run.sources[0 if at_s else 1]:
+                continue
+            sw = run.sweep
+            v = _view(run, at_s, st.k0.k0, k0m, line_angle=theta)
+            rfp = np.stack([sw.r_fault_ohm, sw.r_phase_ohm], axis=1)
+            rf_ok = _rf_mask(rfp, zone, tower_ohm)[None, None, :, None, None]
+            m_ok = (v.m_end <= lim + 1e-9)[None, :, None, None, None]
+            for loop in LOOPS:
+                idx = [f for f, ft in enumerate(sw.fault_types)
+                       if loop in measurement.loops_for_fault(ft)]
+                z = v.loops[loop][idx]
+                ok = (rf_ok & m_ok & v.forward[idx] & (np.abs(z) >= _Z_SMALL * zl)
+                      & (z.imag <= zone.x_reach_primary_ohm)
+                      & (math.cos(theta) * z.real + math.sin(theta) * z.imag >= 0))
+                if np.any(ok):
+                    off = z.real - z.imag / math.tan(theta)
+                    ground = loop in _GROUND
+                    need[ground] = max(need[ground], float(np.max(off[ok])))
+        out[name] = (need[False], need[True])
+    return out
 
 
 def _worst_remote_bus_scale(sim: Simulation, end: str, st: SettingsResult) -> float | None:

@@ -54,7 +54,7 @@ def main() -> int:
         study, src = loaded.study, loaded.source
         geo = build_geometry(study, src)
         params = compute_parameters(geo)
-        relay = resolve_relay(study, params, source=src)
+        relay = resolve_relay(study, params)
         phil = study_philosophy(study, src)
         reach = run_reach_study(study, geo, params, relay, phil, source=src)
         settings, _ver = settle_and_verify(study, geo, params, relay, reach, phil, source=src)
