@@ -545,3 +545,20 @@ def test_source_case_per_end(variant, capsys):
     assert main(["settings", str(bad)]) == 2
     err = capsys.readouterr().err.strip()
     assert len(err.splitlines()) == 1 and "source_cases[0].at.Ashcomb" in err
+
+
+def test_remote_infeed_into_fault_resistance_widens_zone2(demo_path):
+    # Finding 7: remote infeed into the fault resistance was ignored. With a strong remote
+    # source the apparent resistance of a resistive fault near the remote bus grows by about
+    # (1 + I_remote/I_relay) (circuit laws); the simulation finds it and zone 2's ground
+    # blinder is widened, here up to the load limit, and the FAIL names what it needs.
+    res = api.study_settings(demo_path(D400))
+    st = res.settings[0]
+    z2 = st.zone("zone2")
+    arc_rule = 1.2 * (z2.arc_resistance_ground_ohm + 10.0) / abs(1 + st.k0.k0)
+    assert z2.r_reach_ground_primary_ohm > 2 * arc_rule
+    assert_allclose(z2.r_reach_ground_primary_ohm, st.load.r_limit_primary_ohm, rtol=1e-12,
+                    atol=0)
+    assert "zone2_resistive_reach_limited_by_load" in st.warning_ids()
+    chk = res.verification.ends[0].check("zone2", "covers_whole_line")
+    assert not chk.passed and "needs a resistive reach of" in chk.consider

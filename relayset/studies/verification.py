@@ -781,11 +781,6 @@ def _resistive_basis(study: Study, geo: LineGeometry, settings_by_end) -> tuple[
     )
 
 
-def with_zone(st: SettingsResult, zone: ZoneSetting) -> SettingsResult:
-    """A copy of the settings with one zone replaced (used by tests and what-if studies)."""
-    return replace(st, zones=tuple(zone if z.zone == zone.zone else z for z in st.zones))
-
-
 # --------------------------------------------------------------------------- pipeline
 
 
