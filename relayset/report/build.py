@@ -111,8 +111,8 @@ def check_output_dir(out_dir: str | Path) -> Path:
         os.close(fd)
         os.unlink(probe)
     except OSError as exc:
-        raise InputError(f"the output folder cannot be written ({exc.strerror})",
-                         field="-o", value=str(out_dir), source="command line") from None
+        raise InputError(f"cannot write the output folder {out_dir} ({exc.strerror})",
+                         field="-o", source="command line") from None
     return out
 
 
@@ -164,6 +164,6 @@ def write_reports(reports: Sequence[ReportFiles], out_dir: str | Path) -> list[P
             io.write_atomic(out / f"{r.stem}.pdf", r.pdf)
             written.append(out / f"{r.stem}.pdf")
     except OSError as exc:
-        raise InputError(f"the output folder cannot be written ({exc.strerror})",
-                         field="-o", value=str(out_dir), source="command line") from None
+        raise InputError(f"cannot write the output folder {out_dir} ({exc.strerror})",
+                         field="-o", source="command line") from None
     return written

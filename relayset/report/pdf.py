@@ -83,8 +83,15 @@ def html_to_pdf(html: str, files: Sequence[EmbeddedFile], when: dt.datetime,
     requested : list, optional
         Receives every URL the document tried to load (loading any is an error).
     """
+    import logging
+
     import weasyprint
 
+    # WeasyPrint logs every SVG presentation property of inline SVG as an unknown CSS
+    # property (the SVG renderer still applies them); thousands of lines, no information.
+    log = logging.getLogger("weasyprint")
+    level = log.level
+    log.setLevel(logging.ERROR)
     mimetypes.add_type("application/toml", ".toml")  # unknown to Python 3.11
     fetcher = refusing_fetcher(requested)
     with _source_date_epoch(when):
@@ -95,6 +102,9 @@ def html_to_pdf(html: str, files: Sequence[EmbeddedFile], when: dt.datetime,
                                   url_fetcher=fetcher)
             for f in sorted(files, key=lambda f: f.name)
         ]
-        rendered = doc.render()
-        return rendered.write_pdf(pdf_variant="pdf/a-3b", attachments=attachments,
-                                  finisher=_dedupe_af, uncompressed_pdf=False)
+        try:
+            rendered = doc.render()
+            return rendered.write_pdf(pdf_variant="pdf/a-3b", attachments=attachments,
+                                      finisher=_dedupe_af, uncompressed_pdf=False)
+        finally:
+            log.setLevel(level)
