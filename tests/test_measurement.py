@@ -12,12 +12,12 @@ import numpy as np
 import pytest
 
 from relayset.errors import InputError
+from relayset.physics.faults import FAULT_TYPES
 from relayset.physics.measurement import (
     loop_impedances,
     loops_for_fault,
     reach_error_pct,
 )
-from relayset.physics.network import FAULT_TYPES
 from relayset.settings.zone1 import recommended_zone1_pct
 
 

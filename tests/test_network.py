@@ -1,4 +1,4 @@
-"""Tests of the phase-domain fault solver (relayset.physics.network).
+"""Tests of the phase-domain fault solver (relayset.physics.network, faults, loadflow, chain).
 
 Checks are identities from Kirchhoff's laws and Fortescue's transform, textbook line
 equations, or agreement between the batched solver and the independent per-case
@@ -13,19 +13,18 @@ import numpy as np
 import pytest
 
 from relayset.errors import InputError
+from relayset.physics.faults import FAULT_TYPES, fault_admittance, fault_constraints
+from relayset.physics.loadflow import emfs_for_load
 from relayset.physics.measurement import loop_impedances, loops_for_fault, reach_error_pct
 from relayset.physics.network import (
-    FAULT_TYPES,
     PARALLEL_STATES,
     LineCascade,
     Source,
-    emfs_for_load,
-    fault_admittance,
-    fault_constraints,
-    solve_fault_single,
     solve_fault_sweep,
 )
 from relayset.physics.sequence import balanced_phase_matrix, to_sequence
+
+from reference_solver import solve_fault_single
 
 V_NOM = 132e3
 OMEGA = 2 * math.pi * 50
@@ -482,3 +481,145 @@ def test_bad_sources_and_lines_raise_input_error():
     assert err.value.field == "source_scale"
     with pytest.raises(InputError, match="did you mean"):
         fault_admittance("ACG", 1.0, 1.0)
+
+
+# ------------------------------------------------------------------------------------
+# Chain matrices, closed-form fault currents, random lines against the reference
+# ------------------------------------------------------------------------------------
+
+
+def _random_line(rng, n, shunt, n_sec=3):
+    """Random reciprocal line: symmetric Z with dominant self terms, Maxwell-like Y."""
+    zs, ys = [], []
+    for _ in range(n_sec):
+        r = rng.uniform(0.02, 0.1, (n, n))
+        x = rng.uniform(0.1, 0.3, (n, n))
+        z = (r + r.T) / 2 + 1j * (x + x.T) / 2 + np.diag(rng.uniform(0.05, 0.1, n)
+                                                          + 1j * rng.uniform(0.2, 0.3, n))
+        c = -rng.uniform(0.3, 1.5, (n, n))
+        c = (c + c.T) / 2
+        np.fill_diagonal(c, rng.uniform(8, 10, n))
+        zs.append(z / 1e3)
+        ys.append(1j * OMEGA * c * 1e-12)
+    lengths = rng.uniform(5e3, 120e3, n_sec)
+    return LineCascade(np.stack(zs), lengths, np.stack(ys) if shunt else None)
+
+
+@pytest.mark.parametrize("n", [3, 6])
+def test_chain_matrices_match_scipy_expm(n):
+    # Independent check (scipy.linalg.expm, a general-purpose library): the modal chain
+    # matrix of a uniform section equals exp([[0, Z l], [Y l, 0]]) [Paul 2008, ch. 7]. The
+    # batched Pade fallback is checked the same way. Tolerance: 1e-12 of each block's norm.
+    from scipy.linalg import expm
+
+    from relayset.physics.chain import _pade_section, section_chain_matrices
+
+    rng = np.random.default_rng(11 + n)
+    line = _random_line(rng, n, True)
+    lengths = np.array([[0.0] * 3, [1.0, 2e3, 5e4], [4e5, 1e5, 3e5]])
+    phi = section_chain_matrices(line.z_ohm_per_m, line.y_s_per_m, lengths)
+    for s in range(3):
+        pade = _pade_section(line.z_ohm_per_m[s], line.y_s_per_m[s], lengths[:, s])
+        for k in range(3):
+            ln = lengths[k, s]
+            big = np.block([[np.zeros((n, n)), line.z_ohm_per_m[s] * ln],
+                            [line.y_s_per_m[s] * ln, np.zeros((n, n))]])
+            want = expm(big)
+            for got in (phi[k, s], pade[k]):
+                for rows in (slice(0, n), slice(n, 2 * n)):
+                    for cols in (slice(0, n), slice(n, 2 * n)):
+                        ref = want[rows, cols]
+                        scale = max(np.max(np.abs(ref)), 1e-300)
+                        np.testing.assert_allclose(got[rows, cols], ref, rtol=0,
+                                                   atol=1e-12 * scale)
+
+
+def test_fault_currents_satisfy_the_fault_constraints():
+    # Independent formulations: the closed-form currents with V_F = V - Z_th I must satisfy
+    # P_v V_F + P_i I = 0 of fault_constraints (Kirchhoff), for random Thevenin data,
+    # bolted and resistive. Tolerance 1e-12 of |V|.
+    from relayset.physics.faults import fault_currents
+
+    rng = np.random.default_rng(5)
+    a = rng.normal(size=(4, 3, 3)) + 1j * rng.normal(size=(4, 3, 3))
+    z_th = a @ np.swapaxes(a, -1, -2) + 3 * np.eye(3)  # symmetric, well conditioned
+    v = rng.normal(size=(4, 3, 2)) + 1j * rng.normal(size=(4, 3, 2))
+    for rf, rp in ((0.0, 0.0), (7.0, 0.0), (0.0, 3.0), (2.5, 1.5)):
+        for ft in FAULT_TYPES:
+            cur = fault_currents(ft, np.moveaxis(z_th, 0, -1)[..., None],
+                                 np.moveaxis(v, 0, 1), np.full((4, 1), rf),
+                                 np.full((4, 1), rp))  # phase axes first
+            i = np.stack([np.zeros((4, 2)) if c is None else c for c in cur], axis=-2)
+            v_f = v - z_th @ i
+            p_v, p_i = fault_constraints(ft, rf, rp)
+            res = p_v @ v_f + p_i @ i
+            assert np.max(np.abs(res)) <= 1e-12 * np.max(np.abs(v)), (ft, rf, rp)
+
+
+@pytest.mark.parametrize(("n", "shunt", "state"), [(3, True, "in_service"),
+                                                   (6, True, "in_service"),
+                                                   (6, True, "earthed"),
+                                                   (6, False, "isolated")])
+def test_sweep_equals_reference_on_random_lines(n, shunt, state):
+    # Random lines, locations and resistances: the batched sweep (modal chain matrices,
+    # closed-form fault currents) against the per-case modified nodal analysis
+    # (tests/reference_solver.py). Tolerance 1e-9 of the largest voltage or current.
+    rng = np.random.default_rng(100 + n + shunt + len(state))
+    line = _random_line(rng, n, shunt, n_sec=int(rng.integers(1, 5)))
+    m = np.concatenate([[0.0, 1.0], rng.uniform(0, 1, 4)])
+    rf = np.array([0.0, rng.uniform(1, 40)])
+    rp = np.array([0.0, rng.uniform(0.1, 8)])
+    scale = np.array([[1.0, 1.0], [rng.uniform(0.1, 3), rng.uniform(0.1, 3)]])
+    delta = np.radians(rng.uniform(-40, 40, 2))
+    sw = solve_fault_sweep(line, SRC_S, SRC_R, v_nominal_v=V_NOM, fault_types=FAULT_TYPES,
+                           m=m, r_fault_ohm=rf, r_phase_ohm=rp, source_scale=scale,
+                           transfer_angle_rad=delta, parallel_state=state)
+    names = ["v_s", "i_s", "i_s_parallel", "v_r", "i_r", "i_r_parallel", "v_f", "i_fault",
+             "i_f_from_s", "i_f_from_r"]
+    v_scale = max(np.max(np.abs(getattr(sw, k))) for k in names if k.startswith("v"))
+    i_scale = max(np.max(np.abs(getattr(sw, k))) for k in names if k.startswith("i"))
+    for _ in range(40):
+        f, i, r, k, ld = (rng.integers(len(FAULT_TYPES)), rng.integers(m.size),
+                          rng.integers(2), rng.integers(2), rng.integers(2))
+        ref = solve_fault_single(line, SRC_S, SRC_R, v_nominal_v=V_NOM,
+                                 fault_type=FAULT_TYPES[f], m=m[i], r_fault_ohm=rf[r],
+                                 r_phase_ohm=rp[r], source_scale=tuple(scale[k]),
+                                 transfer_angle_rad=delta[ld], parallel_state=state)
+        for name in names:
+            tol = 1e-9 * (v_scale if name.startswith("v") else i_scale)
+            np.testing.assert_allclose(getattr(sw, name)[f, i, r, k, ld], getattr(ref, name),
+                                       rtol=0, atol=tol, err_msg=name)
+
+
+def test_selected_outputs_equal_the_full_sweep():
+    # Consistency: asking only for the relay-end results gives the same numbers (1e-12
+    # relative, different matrix products) and leaves the others out.
+    line = double_circuit(True)
+    kw = dict(v_nominal_v=V_NOM, fault_types=FAULT_TYPES, m=np.linspace(0, 1, 7),
+              r_fault_ohm=np.array([0.0, 9.0]), transfer_angle_rad=np.radians([12.0]))
+    full = solve_fault_sweep(line, SRC_S, SRC_R, **kw)
+    part = solve_fault_sweep(line, SRC_S, SRC_R, outputs=("v_r", "i_r_parallel"), **kw)
+    for name in ("v_r", "i_r_parallel", "i_fault"):
+        np.testing.assert_allclose(getattr(part, name), getattr(full, name), rtol=1e-12,
+                                   atol=1e-12 * np.max(np.abs(getattr(full, name))))
+    assert part.v_s is None and part.i_f_from_s is None
+    with pytest.raises(InputError) as err:
+        solve_fault_sweep(line, SRC_S, SRC_R, outputs=("v_x",), **kw)
+    assert err.value.field == "outputs"
+
+
+def test_modal_and_pade_paths_give_the_same_sweep(monkeypatch):
+    # The Pade fallback (forced by a zero condition limit) and the modal path are two
+    # exact evaluations of the same chain matrices; sweeps agree to 1e-11 relative.
+    import relayset.physics.chain as chain
+
+    line = single_circuit(True)
+    kw = dict(v_nominal_v=V_NOM, fault_types=FAULT_TYPES, m=np.linspace(0, 1, 5),
+              r_fault_ohm=np.array([0.0, 4.0]))
+    modal = solve_fault_sweep(line, SRC_S, SRC_R, **kw)
+    monkeypatch.setattr(chain, "MODAL_COND_MAX", 0.0)
+    pade = solve_fault_sweep(line, SRC_S, SRC_R, **kw)
+    for name in ("v_s", "i_s", "v_r", "i_r", "i_fault"):
+        ref = getattr(modal, name)
+        np.testing.assert_allclose(getattr(pade, name), ref, rtol=0,
+                                   atol=1e-11 * np.max(np.abs(ref)))

@@ -19,7 +19,6 @@ from __future__ import annotations
 import math
 
 import numpy as np
-from scipy.special import jv
 
 from relayset.physics.constants import MU0_H_PER_M
 
@@ -98,6 +97,8 @@ def skin_effect_ratio(r_dc_ohm_per_m: float, radius_m: float, frequency_hz: floa
     ka = k * radius_m
     if abs(ka) < 1e-6:
         return 1.0
+    from scipy.special import jv  # heavy import (~0.2 s): only when skin effect is computed
+
     ratio = ka / 2 * jv(0, ka) / jv(1, ka)
     return float(np.real(ratio))
 

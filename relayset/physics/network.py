@@ -34,9 +34,10 @@ solve:
 
 .. math:: (P_i - P_v Z_{th})\, I_f = -P_v V_{pre}.
 
-All relay-end quantities follow by superposition. :func:`solve_fault_single` is an
-independent per-case reference (modified nodal analysis with a node at every section
-boundary, exact nodal matrices of each section from an eigendecomposition).
+All relay-end quantities follow by superposition. Fault models live in
+:mod:`relayset.physics.faults`, the chain matrices in :mod:`relayset.physics.chain` and the
+prefault load flow in :mod:`relayset.physics.loadflow`; the test suite checks this solver
+against an independent per-case modified nodal analysis (``tests/reference_solver.py``).
 
 References
 ----------
@@ -44,34 +45,32 @@ References
    USA: Wiley, 2008, ch. 7 (chain-parameter matrix).
 .. [2] C. L. Fortescue, "Method of symmetrical co-ordinates applied to the solution of
    polyphase networks," Trans. AIEE, vol. 37, pp. 1027-1140, 1918.
-.. [3] C. W. Ho, A. E. Ruehli and P. A. Brennan, "The modified nodal approach to network
-   analysis," IEEE Trans. Circuits Syst., vol. 22, no. 6, pp. 504-509, 1975.
 """
 
 from __future__ import annotations
 
 import math
-from collections.abc import Mapping, Sequence
+from collections.abc import Collection, Mapping, Sequence
 from dataclasses import dataclass
 
 import numpy as np
-from scipy.linalg import expm
 
 from relayset.errors import InputError, suggest
-from relayset.physics.sequence import balanced_phase_matrix, fortescue_matrix, to_sequence
-
-FAULT_TYPES: tuple[str, ...] = (
-    "AG", "BG", "CG", "AB", "BC", "CA", "ABG", "BCG", "CAG", "ABC",
+from relayset.physics.chain import chain_products
+from relayset.physics.faults import (
+    FAULT_TYPES,
+    check_fault_type,
+    check_resistance,
+    fault_currents,
 )
+from relayset.physics.sequence import balanced_phase_matrix, fortescue_matrix
+
+__all__ = [
+    "FAULT_TYPES", "PARALLEL_STATES", "FaultSweep", "LineCascade", "Source",
+    "solve_fault_sweep",
+]
+
 PARALLEL_STATES: tuple[str, ...] = ("in_service", "earthed", "isolated")
-
-#: Resistance used by :func:`fault_admittance` in place of 0 ohm [ohm]. The solvers do not
-#: use it: they write faults as exact constraints.
-R_FLOOR_OHM: float = 1e-6
-
-_PHASE_INDEX = {"A": 0, "B": 1, "C": 2}
-# Relative distance below which a fault location is taken to sit on a section boundary.
-_SNAP_REL = 1e-9
 
 
 def _name(field: str, field_names: Mapping[str, str] | None) -> str:
@@ -79,150 +78,6 @@ def _name(field: str, field_names: Mapping[str, str] | None) -> str:
     if field_names and field in field_names:
         return field_names[field]
     return field
-
-
-# --------------------------------------------------------------------------------------
-# Fault description
-# --------------------------------------------------------------------------------------
-
-
-def _check_fault_type(fault_type: str, field: str = "fault_type") -> tuple[list[int], bool]:
-    if fault_type not in FAULT_TYPES:
-        raise InputError(
-            f"unknown fault type; use one of {', '.join(FAULT_TYPES)}"
-            + suggest(str(fault_type), FAULT_TYPES),
-            field=field,
-            value=fault_type,
-        )
-    ground = fault_type.endswith("G")
-    letters = fault_type[:-1] if ground else fault_type
-    return [_PHASE_INDEX[c] for c in letters], ground
-
-
-def _check_resistance(r: np.ndarray, field: str) -> np.ndarray:
-    r = np.asarray(r, dtype=float)
-    if not np.all(np.isfinite(r)):
-        raise InputError("resistance must be finite", field=field, value=r.tolist())
-    if np.any(r < 0):
-        raise InputError(
-            "resistance must not be negative", field=field, value=float(r[r < 0].flat[0])
-        )
-    return r
-
-
-def fault_constraints(
-    fault_type: str, r_fault_ohm: np.ndarray | float, r_phase_ohm: np.ndarray | float
-) -> tuple[np.ndarray, np.ndarray]:
-    r"""Exact linear description :math:`P_v V + P_i I = 0` of a shunt fault.
-
-    V are the phase-to-ground voltages at the fault point and I the phase currents into
-    the fault. A phase-to-ground fault is phase-ground resistance ``r_fault``; a phase-phase
-    fault is ``r_phase`` between the two phases; a two-phase-to-ground or three-phase
-    fault joins the faulted phases to a star point through ``r_phase/2`` each, the star
-    point going to ground through ``r_fault`` (two-phase-to-ground) or floating
-    (three-phase). Zero resistances are exact (bolted fault).
-
-    Parameters
-    ----------
-    fault_type : str
-        One of :data:`FAULT_TYPES`.
-    r_fault_ohm : array_like
-        Resistance to ground [ohm], >= 0.
-    r_phase_ohm : array_like
-        Resistance between two faulted phases [ohm], >= 0; broadcast with ``r_fault_ohm``.
-
-    Returns
-    -------
-    p_v, p_i : (..., 3, 3) complex arrays
-        Coefficients of V [1] and of I [ohm].
-    """
-    phases, ground = _check_fault_type(fault_type)
-    rf = _check_resistance(r_fault_ohm, "r_fault_ohm")
-    rp = _check_resistance(r_phase_ohm, "r_phase_ohm")
-    rf, rp = np.broadcast_arrays(rf, rp)
-    shape = rf.shape
-    p_v = np.zeros((*shape, 3, 3), dtype=complex)
-    p_i = np.zeros((*shape, 3, 3), dtype=complex)
-    for o in range(3):
-        if o not in phases:
-            p_i[..., o, o] = 1.0  # healthy phase: no current into the fault
-    if len(phases) == 1:
-        (p,) = phases
-        p_v[..., p, p] = 1.0
-        p_i[..., p, p] = -rf
-    elif len(phases) == 2:
-        p, q = phases
-        if ground:
-            # V_p = (r_p/2) I_p + r_f (I_p + I_q), same for q
-            for row, col in ((p, p), (q, q)):
-                p_v[..., row, col] = 1.0
-                p_i[..., row, col] = -rp / 2
-                p_i[..., row, p] -= rf
-                p_i[..., row, q] -= rf
-        else:
-            p_i[..., p, p] = 1.0  # I_p + I_q = 0
-            p_i[..., p, q] = 1.0
-            p_v[..., q, p] = 1.0  # V_p - V_q = (r_p/2)(I_p - I_q)
-            p_v[..., q, q] = -1.0
-            p_i[..., q, p] = -rp / 2
-            p_i[..., q, q] = rp / 2
-    else:
-        p_i[..., 0, :] = 1.0  # star point not earthed: currents sum to zero
-        for row, (x, y) in ((1, (0, 1)), (2, (1, 2))):
-            p_v[..., row, x] = 1.0
-            p_v[..., row, y] = -1.0
-            p_i[..., row, x] = -rp / 2
-            p_i[..., row, y] = rp / 2
-    return p_v, p_i
-
-
-def fault_admittance(
-    fault_type: str, r_fault_ohm: np.ndarray | float, r_phase_ohm: np.ndarray | float
-) -> np.ndarray:
-    r"""Phase admittance matrix :math:`Y_f` of a shunt fault, :math:`I_f = Y_f V_F`.
-
-    Same fault model as :func:`fault_constraints`. Zero resistances are replaced by
-    :data:`R_FLOOR_OHM` because a bolted fault has no finite admittance; the solvers use the
-    exact constraints instead. For the star connection (conductance :math:`g = 2/r_p`
-    per phase, :math:`g_g = 1/r_f` to ground) the star point is eliminated (Kron):
-
-    .. math:: Y_f = g\,D - \frac{g^2}{k g + g_g}\, u u^T
-
-    with D the diagonal selector of the k faulted phases and u their indicator vector
-    (:math:`g_g = 0` for the unearthed three-phase star).
-
-    Parameters
-    ----------
-    fault_type : str
-        One of :data:`FAULT_TYPES`.
-    r_fault_ohm, r_phase_ohm : array_like
-        Resistances [ohm], >= 0, broadcast together.
-
-    Returns
-    -------
-    (..., 3, 3) complex array
-        Fault admittance matrix [S].
-    """
-    phases, ground = _check_fault_type(fault_type)
-    rf = np.maximum(_check_resistance(r_fault_ohm, "r_fault_ohm"), R_FLOOR_OHM)
-    rp = np.maximum(_check_resistance(r_phase_ohm, "r_phase_ohm"), R_FLOOR_OHM)
-    rf, rp = np.broadcast_arrays(rf, rp)
-    y = np.zeros((*rf.shape, 3, 3), dtype=complex)
-    u = np.zeros(3)
-    u[phases] = 1.0
-    if len(phases) == 1:
-        y += (1.0 / rf)[..., None, None] * np.outer(u, u)
-    elif len(phases) == 2 and not ground:
-        d = np.zeros(3)
-        d[phases[0]], d[phases[1]] = 1.0, -1.0
-        y += (1.0 / rp)[..., None, None] * np.outer(d, d)
-    else:
-        g = 2.0 / rp
-        g_g = 1.0 / rf if ground else np.zeros_like(rf)
-        k = len(phases)
-        y += g[..., None, None] * np.diag(u)
-        y -= (g * g / (k * g + g_g))[..., None, None] * np.outer(u, u)
-    return y
 
 
 # --------------------------------------------------------------------------------------
@@ -417,7 +272,8 @@ class FaultSweep:
     (phase A, B, C); prefault quantities ``(source_case, load_case, phase)``. Voltages are
     phase-to-ground phasors [V], currents phasors [A]; ``i_*`` at the line ends flow into
     the line from that bus, ``i_f_from_*`` flow into the fault point along circuit 1 from
-    that side, ``i_fault`` flows from the fault point into the fault.
+    that side, ``i_fault`` flows from the fault point into the fault. Results left out by
+    the ``outputs`` argument of :func:`solve_fault_sweep` are None.
     """
 
     fault_types: tuple[str, ...]
@@ -428,36 +284,20 @@ class FaultSweep:
     emf_s_v: np.ndarray  #: (K, L) phase-A EMF of source S [V]
     emf_r_v: np.ndarray  #: (K, L) phase-A EMF of source R [V]
     parallel_state: str
-    v_s: np.ndarray  #: bus S voltages
-    i_s: np.ndarray  #: circuit-1 currents at S
-    i_s_parallel: np.ndarray  #: circuit-2 currents at S (zeros for n = 3 / isolated)
-    v_r: np.ndarray
-    i_r: np.ndarray
-    i_r_parallel: np.ndarray
-    v_f: np.ndarray  #: circuit-1 voltages at the fault point
+    v_s: np.ndarray | None  #: bus S voltages
+    i_s: np.ndarray | None  #: circuit-1 currents at S
+    i_s_parallel: np.ndarray | None  #: circuit-2 currents at S (zeros for n = 3 / isolated)
+    v_r: np.ndarray | None
+    i_r: np.ndarray | None
+    i_r_parallel: np.ndarray | None
+    v_f: np.ndarray | None  #: circuit-1 voltages at the fault point
     i_fault: np.ndarray
-    i_f_from_s: np.ndarray
-    i_f_from_r: np.ndarray
+    i_f_from_s: np.ndarray | None
+    i_f_from_r: np.ndarray | None
     v_s_pre: np.ndarray  #: (K, L, 3) prefault bus S voltages
     i_s_pre: np.ndarray  #: (K, L, 3) prefault circuit-1 currents at S
     i_s_parallel_pre: np.ndarray  #: (K, L, 3)
 
-
-@dataclass(frozen=True, eq=False)
-class FaultCase:
-    """Results of :func:`solve_fault_single`: the :class:`FaultSweep` fields for one case,
-    each a (3,) complex array [V or A]."""
-
-    v_s: np.ndarray
-    i_s: np.ndarray
-    i_s_parallel: np.ndarray
-    v_r: np.ndarray
-    i_r: np.ndarray
-    i_r_parallel: np.ndarray
-    v_f: np.ndarray
-    i_fault: np.ndarray
-    i_f_from_s: np.ndarray
-    i_f_from_r: np.ndarray
 
 
 # --------------------------------------------------------------------------------------
@@ -583,39 +423,6 @@ def _split_lengths(length_m: np.ndarray, m: np.ndarray) -> tuple[np.ndarray, np.
     return left, length_m[None, :] - left
 
 
-def _chain_products(
-    z: np.ndarray, y: np.ndarray | None, lengths: np.ndarray, reverse: bool
-) -> np.ndarray:
-    """Chain matrix of each cascade of section parts, (M, 2n, 2n).
-
-    ``lengths`` (M, S) are the part lengths; the product runs from the measuring end
-    (section 0 for S, section S-1 for R, ``reverse``) towards the fault. A reciprocal
-    section looks the same from either end, so the R side uses the same part matrices.
-    """
-    n_m, n_sec = lengths.shape
-    n = z.shape[-1]
-    eye = np.eye(n)
-    if y is None:
-        phi = np.zeros((n_m, 2 * n, 2 * n), dtype=complex)
-        phi[:, :n, :n] = eye
-        phi[:, n:, n:] = eye
-        phi[:, :n, n:] = np.einsum("ms,sij->mij", lengths, z)
-        return phi
-    # Balance the exponent: blocks Z·l/c and Y·l·c of similar size (c ~ surge impedance),
-    # so that the small C block keeps full relative accuracy.
-    c = np.sqrt(np.max(np.abs(z), axis=(1, 2)) / np.max(np.abs(y), axis=(1, 2)))  # (S,)
-    k = np.zeros((n_m, n_sec, 2 * n, 2 * n), dtype=complex)
-    k[..., :n, n:] = lengths[..., None, None] * (z / c[:, None, None])
-    k[..., n:, :n] = lengths[..., None, None] * (y * c[:, None, None])
-    e = expm(k)
-    e[..., :n, n:] *= c[:, None, None]
-    e[..., n:, :n] /= c[:, None, None]
-    order = range(n_sec - 1, -1, -1) if reverse else range(n_sec)
-    phi = None
-    for s in order:  # loop over sections (a handful), not over cases
-        phi = e[:, s] if phi is None else phi @ e[:, s]
-    return phi
-
 
 def _terminal(
     n: int,
@@ -676,6 +483,7 @@ def solve_fault_sweep(
     parallel_state: str = "in_service",
     emf_v: tuple[np.ndarray, np.ndarray] | None = None,
     field_names: Mapping[str, str] | None = None,
+    outputs: Collection[str] | None = None,
 ) -> FaultSweep:
     """Solve every combination of fault type, location, resistance, source and load case.
 
@@ -705,11 +513,14 @@ def solve_fault_sweep(
     parallel_state : str
         Circuit 2 state (six-conductor lines only): one of :data:`PARALLEL_STATES`.
     emf_v : (e_s, e_r), optional
-        Phase-A EMF phasors [V], shape (L,) or (K, L), e.g. from :func:`emfs_for_load`;
-        replaces ``transfer_angle_rad``.
+        Phase-A EMF phasors [V], shape (L,) or (K, L), e.g. from
+        :func:`~relayset.physics.loadflow.emfs_for_load`; replaces ``transfer_angle_rad``.
     field_names : mapping, optional
         Names to use in :class:`~relayset.errors.InputError` for the parameters above
         (e.g. ``{"m": "reach_study.fault_locations"}``).
+    outputs : collection of str, optional
+        Per-case results to form, from :data:`SWEEP_OUTPUTS` (default all); the others are
+        None in the result. ``i_fault`` and the prefault quantities are always formed.
 
     Returns
     -------
@@ -723,10 +534,10 @@ def solve_fault_sweep(
     if not ftypes:
         raise InputError("give one fault type at least", field=_name("fault_types", fn))
     for ft in ftypes:
-        _check_fault_type(ft, _name("fault_types", fn))
+        check_fault_type(ft, _name("fault_types", fn))
     m = _check_locations(m, fn)
-    rf = np.atleast_1d(_check_resistance(r_fault_ohm, _name("r_fault_ohm", fn)))
-    rp = _check_resistance(r_phase_ohm, _name("r_phase_ohm", fn))
+    rf = np.atleast_1d(check_resistance(r_fault_ohm, _name("r_fault_ohm", fn)))
+    rp = check_resistance(r_phase_ohm, _name("r_phase_ohm", fn))
     if rf.ndim != 1 or rp.ndim > 1 or (rp.ndim == 1 and rp.shape != rf.shape):
         raise InputError("phase resistance must be one value or one per fault resistance",
                          field=_name("r_phase_ohm", fn), value=np.shape(rp))
@@ -740,8 +551,8 @@ def solve_fault_sweep(
     z_ref = float(np.max(np.abs(line.z_total_ohm)))
 
     left, right = _split_lengths(line.length_m, m)
-    phi_l = _chain_products(z, y, left, reverse=False)  # (M, 2n, 2n)
-    phi_r = _chain_products(z, y, right, reverse=True)
+    phi_l = chain_products(z, y, left, reverse=False)  # (M, 2n, 2n)
+    phi_r = chain_products(z, y, right, reverse=True)
     zs = None if source_s is None else source_s.phase_matrix(scale[:, 0])
     zr = None if source_r is None else source_r.phase_matrix(scale[:, 1])
     g_l, b_l = _terminal(n, parallel_state, zs, _balanced(e_s), z_ref)
@@ -763,7 +574,8 @@ def solve_fault_sweep(
     rhs[..., 2 * n:2 * n + 3, n_l:] = z_ref * np.eye(3)  # unit current into each fault phase
     x = np.linalg.solve(a, rhs)  # (M, K, 3n, L + 3)
 
-    # Relay-end and fault-point quantities from x: rows of T (M, 7n, 3n).
+    # Rows of T (M, 7n, 3n) map x to the line-end and fault-point quantities; only the
+    # fault-point voltages and the requested outputs are formed.
     t = np.zeros((n_m, 7 * n, 3 * n), dtype=complex)
     t[:, 0:n, 0:n] = phi_l[:, :n, :n]
     t[:, 0:n, n:2 * n] = phi_l[:, :n, n:]
@@ -774,34 +586,61 @@ def solve_fault_sweep(
     t[:, 3 * n:4 * n, 0:n] = phi_r[:, n:, :n]
     t[:, 3 * n:4 * n, 2 * n:] = phi_r[:, n:, n:]
     t[:, 4 * n:, :] = np.eye(3 * n)
-    out = t[:, None] @ x  # (M, K, 7n, L + 3)
-    pre = out[..., :n_l]  # (M, K, 7n, L)
-    sens = out[..., n_l:]  # (M, K, 7n, 3) response to unit fault currents
-    vf_rows = slice(4 * n, 4 * n + 3)
-    z_th = -sens[..., vf_rows, :]  # (M, K, 3, 3)
-    v_pre = pre[..., vf_rows, :]  # (M, K, 3, L)
+    starts = {"v_s": 0, "i_s": n, "i_s_parallel": n + 3, "v_r": 2 * n, "i_r": 3 * n,
+              "i_r_parallel": 3 * n + 3, "v_f": 4 * n, "i_f_from_s": 5 * n,
+              "i_f_from_r": 6 * n}
+    wanted = _check_outputs(outputs, fn)
+    blocks = [k for k in starts if k in wanted and (n == 6 or not k.endswith("parallel"))]
+    rows = np.concatenate([np.arange(4 * n, 4 * n + 3)]
+                          + [np.arange(starts[k], starts[k] + 3) for k in blocks])
+    out = t[:, None, rows] @ x  # (M, K, 3 + 3B, L + 3)
+    # Internal layout: phase axes first and the location axis last, cases as
+    # (Rf, K, L, M), so that every element-wise step runs over contiguous locations; the
+    # result fields are views with the documented axis order.
+    n_b = len(blocks)
+    def tr(a: np.ndarray, axes: tuple[int, ...]) -> np.ndarray:  # transposed copy
+        return np.ascontiguousarray(np.transpose(a, axes))
 
-    p_v = np.empty((len(ftypes), rf.size, 3, 3), dtype=complex)
-    p_i = np.empty_like(p_v)
-    for j, ft in enumerate(ftypes):  # loop over the (ten) fault types only
-        p_v[j], p_i[j] = fault_constraints(ft, rf, rp)
-    pv = p_v[:, None, :, None]  # (F, 1, Rf, 1, 3, 3)
-    mat = p_i[:, None, :, None] - pv @ z_th[None, :, None]  # (F, M, Rf, K, 3, 3)
-    try:
-        i_f = _solve3(mat, -(pv @ v_pre[None, :, None]))  # (F, M, Rf, K, 3, L)
-    except np.linalg.LinAlgError:
-        raise InputError(
-            "a bolted fault at a bus with zero source impedance has no finite current",
-            field=_name("source_scale", fn), value=scale.tolist(),
-        ) from None
-    res = pre[None, :, None] + sens[None, :, None] @ i_f  # (F, M, Rf, K, 7n, L)
-    res = np.swapaxes(res, -1, -2)
+    z_th = -tr(out[..., :3, n_l:], (2, 3, 1, 0))[:, :, None, :, None, :]
+    v_pre = tr(out[..., :3, :n_l], (2, 1, 3, 0))[:, None]  # (3, 1, K, L, M)
+    pre_o = tr(out[..., 3:, :n_l].reshape(n_m, n_k, n_b, 3, n_l),
+               (2, 3, 1, 4, 0))[:, :, None]  # (B, 3, 1, K, L, M)
+    sens_o = tr(out[..., 3:, n_l:].reshape(n_m, n_k, n_b, 3, 3),
+                (4, 2, 3, 1, 0))[..., None, :, None, :]  # (j, B, 3, 1, K, 1, M)
+    res = np.empty((n_b, 3, len(ftypes), rf.size, n_k, n_l, n_m), dtype=complex)
+    i_fault = np.zeros((3, len(ftypes), rf.size, n_k, n_l, n_m), dtype=complex)
+    rf_b, rp_b = rf[:, None, None, None], rp[:, None, None, None]
+    for f, ft in enumerate(ftypes):  # loop over the (ten) fault types only
+        try:
+            cur = fault_currents(ft, z_th, v_pre, rf_b, rp_b)  # (Rf, K, L, M) per phase
+        except np.linalg.LinAlgError:
+            raise InputError(
+                "a bolted fault at a bus with zero source impedance has no finite current",
+                field=_name("source_scale", fn), value=scale.tolist(),
+            ) from None
+        phases, ground = check_fault_type(ft)
+        if len(phases) == 2 and not ground:  # I_q = -I_p: one term
+            p, q = phases
+            terms = [(sens_o[p] - sens_o[q], cur[p])]
+        else:
+            terms = [(sens_o[j], cur[j]) for j in phases]
+        for j in phases:
+            i_fault[j, f] = cur[j]
+        tgt = res[:, :, f]
+        np.multiply(terms[0][0], terms[0][1], out=tgt)
+        for sens_j, c in terms[1:]:
+            tgt += sens_j * c
+        tgt += pre_o
 
-    def part(start: int, width: int = 3) -> np.ndarray:
-        return np.ascontiguousarray(res[..., start:start + width])
+    def view(a: np.ndarray) -> np.ndarray:  # (3, F, Rf, K, L, M) -> (F, M, Rf, K, L, 3)
+        return np.transpose(a, (1, 5, 2, 3, 4, 0))
 
-    zeros = np.zeros((*res.shape[:-1], 3), dtype=complex)
-    pre0 = np.swapaxes(pre[0], -1, -2)  # (K, L, 7n); prefault does not depend on m
+    # Circuit 2 of a single-circuit line carries nothing: a read-only zero view, no memory.
+    zeros = np.broadcast_to(np.zeros((), dtype=complex), (len(ftypes), n_m, rf.size, n_k,
+                                                          n_l, 3))
+    fields = {k: view(res[blocks.index(k)]) if k in blocks else zeros
+              for k in starts if k in wanted}
+    pre0 = np.swapaxes(t[0, None, :2 * n] @ x[0, :, :, :n_l], -1, -2)  # (K, L, 2n)
     return FaultSweep(
         fault_types=ftypes,
         m=m,
@@ -811,16 +650,16 @@ def solve_fault_sweep(
         emf_s_v=e_s,
         emf_r_v=e_r,
         parallel_state=parallel_state,
-        v_s=part(0),
-        i_s=part(n),
-        i_s_parallel=part(n + 3) if n == 6 else zeros,
-        v_r=part(2 * n),
-        i_r=part(3 * n),
-        i_r_parallel=part(3 * n + 3) if n == 6 else zeros.copy(),
-        v_f=part(4 * n),
-        i_fault=np.ascontiguousarray(np.swapaxes(i_f, -1, -2)),
-        i_f_from_s=part(5 * n),
-        i_f_from_r=part(6 * n),
+        v_s=fields.get("v_s"),
+        i_s=fields.get("i_s"),
+        i_s_parallel=fields.get("i_s_parallel"),
+        v_r=fields.get("v_r"),
+        i_r=fields.get("i_r"),
+        i_r_parallel=fields.get("i_r_parallel"),
+        v_f=fields.get("v_f"),
+        i_fault=view(i_fault),
+        i_f_from_s=fields.get("i_f_from_s"),
+        i_f_from_r=fields.get("i_f_from_r"),
         v_s_pre=np.ascontiguousarray(pre0[..., 0:3]),
         i_s_pre=np.ascontiguousarray(pre0[..., n:n + 3]),
         i_s_parallel_pre=(
@@ -830,285 +669,20 @@ def solve_fault_sweep(
     )
 
 
-def _solve3(a: np.ndarray, b: np.ndarray) -> np.ndarray:
-    """Batched solve of 3x3 systems ``a @ x = b`` (b (..., 3, L))."""
-    return np.linalg.solve(a, b)
+#: Names of the per-case results of :func:`solve_fault_sweep` that ``outputs`` may select.
+SWEEP_OUTPUTS: tuple[str, ...] = (
+    "v_s", "i_s", "i_s_parallel", "v_r", "i_r", "i_r_parallel", "v_f", "i_f_from_s",
+    "i_f_from_r",
+)
 
 
-# --------------------------------------------------------------------------------------
-# Load flow helper
-# --------------------------------------------------------------------------------------
+def _check_outputs(outputs: Collection[str] | None, fn: Mapping[str, str] | None) -> set[str]:
+    if outputs is None:
+        return set(SWEEP_OUTPUTS)
+    bad = [o for o in outputs if o not in SWEEP_OUTPUTS]
+    if bad:
+        raise InputError(f"unknown output; use some of {', '.join(SWEEP_OUTPUTS)}"
+                         + suggest(str(bad[0]), SWEEP_OUTPUTS),
+                         field=_name("outputs", fn), value=bad[0])
+    return set(outputs)
 
-
-def emfs_for_load(
-    line: LineCascade,
-    source_s: Source,
-    source_r: Source,
-    *,
-    v_nominal_v: float,
-    p_w: np.ndarray | float,
-    q_var: np.ndarray | float,
-    source_scale: np.ndarray | float = 1.0,
-    parallel_state: str = "in_service",
-    field_names: Mapping[str, str] | None = None,
-) -> tuple[np.ndarray, np.ndarray]:
-    """EMFs that give three-phase power P + jQ into the line at S with V_S at nominal.
-
-    Assumption: the prefault state is computed in the positive-sequence network only
-    (each circuit reduced to its positive-sequence self and mutual impedance and
-    admittance per metre, [2]_); on an untransposed line the phase-domain solution then
-    gives a slightly unbalanced V_S and a power close to, not exactly, P + jQ. With
-    circuit 2 out of service it is left out of the load flow. V_S is the angle reference.
-
-    Parameters
-    ----------
-    line : LineCascade
-    source_s, source_r : Source
-        Both sources are needed to carry load.
-    v_nominal_v : float
-        Nominal line-to-line voltage [V]; V_S = v_nominal_v/sqrt(3) at angle 0.
-    p_w, q_var : (L,) arrays
-        Three-phase active [W] and reactive [var] power into the line at S.
-    source_scale : (K,) or (K, 2) array
-        Source cases as in :func:`solve_fault_sweep` [1].
-    parallel_state : str
-        Circuit 2 state.
-
-    Returns
-    -------
-    e_s, e_r : (K, L) complex arrays
-        Phase-A EMF phasors of the two sources [V], for ``emf_v`` of
-        :func:`solve_fault_sweep`.
-    """
-    fn = field_names
-    _check_state(line, parallel_state, fn)
-    if source_s is None or source_r is None:
-        raise InputError("a load flow needs sources at both ends",
-                         field=_name("source_r", fn), value=None)
-    if not (math.isfinite(v_nominal_v) and v_nominal_v > 0):
-        raise InputError("nominal voltage must be positive", field=_name("v_nominal_v", fn),
-                         value=v_nominal_v)
-    scale = _check_scale(source_scale, fn)
-    p, q = np.broadcast_arrays(np.atleast_1d(np.asarray(p_w, float)),
-                               np.atleast_1d(np.asarray(q_var, float)))
-    if p.ndim != 1 or not (np.all(np.isfinite(p)) and np.all(np.isfinite(q))):
-        raise InputError("load powers must be finite 1-D lists", field=_name("p_w", fn),
-                         value=p.tolist())
-    n_c = 2 if (line.n_conductors == 6 and parallel_state == "in_service") else 1
-    z1 = _positive_sequence(line.z_ohm_per_m, n_c)
-    y1 = None if line.y_s_per_m is None else _positive_sequence(line.y_s_per_m, n_c)
-    phi = _chain_products(z1, y1, line.length_m[None, :], reverse=False)[0]
-    a_, b_, c_, d_ = phi[:n_c, :n_c], phi[:n_c, n_c:], phi[n_c:, :n_c], phi[n_c:, n_c:]
-    b_inv = np.linalg.inv(b_)
-    y11, y12 = d_ @ b_inv, c_ - d_ @ b_inv @ a_  # current into the line at S
-    y21, y22 = -b_inv, b_inv @ a_  # current into the line at R
-    u = np.ones(n_c)
-    v_s = v_nominal_v / math.sqrt(3)
-    i_tot = np.conj((p + 1j * q) / (3 * v_s))  # (L,)
-    v_r = (i_tot - (u @ y11 @ u) * v_s) / (u @ y12 @ u)
-    i_r = (u @ y21 @ u) * v_s + (u @ y22 @ u) * v_r
-    e_s = v_s + source_s.z1_ohm * scale[:, 0, None] * i_tot[None, :]
-    e_r = v_r[None, :] + source_r.z1_ohm * scale[:, 1, None] * i_r[None, :]
-    return e_s, e_r
-
-
-def _positive_sequence(mat: np.ndarray, n_c: int) -> np.ndarray:
-    """(S, n_c, n_c) positive-sequence self and mutual terms of the circuits' 3x3 blocks."""
-    out = np.empty((mat.shape[0], n_c, n_c), dtype=complex)
-    for i in range(n_c):
-        for j in range(n_c):
-            out[:, i, j] = to_sequence(mat[:, 3 * i:3 * i + 3, 3 * j:3 * j + 3])[:, 1, 1]
-    return out
-
-
-# --------------------------------------------------------------------------------------
-# Per-case reference solver
-# --------------------------------------------------------------------------------------
-
-
-def _matrix_function(mat: np.ndarray, func) -> np.ndarray:
-    """f(M) for a diagonalisable matrix by eigendecomposition."""
-    w, vec = np.linalg.eig(mat)
-    return vec @ np.diag(func(w)) @ np.linalg.inv(vec)
-
-
-def _cosh_sqrt(w: np.ndarray) -> np.ndarray:
-    return np.cosh(np.sqrt(w))
-
-
-def _sinhc_sqrt(w: np.ndarray) -> np.ndarray:
-    s = np.sqrt(w)
-    small = np.abs(s) < 1e-6
-    safe = np.where(small, 1.0, s)
-    return np.where(small, 1 + w / 6, np.sinh(safe) / safe)
-
-
-def _segment_nodal(z: np.ndarray, y: np.ndarray | None, length: float) -> np.ndarray:
-    """Nodal admittance (2n, 2n) of a uniform segment [S]: currents into it at its two ends."""
-    zl = z * length
-    if y is None:
-        yi = np.linalg.inv(zl)
-        return np.block([[yi, -yi], [-yi, yi]])
-    yl = y * length
-    a = _matrix_function(zl @ yl, _cosh_sqrt)
-    b = _matrix_function(zl @ yl, _sinhc_sqrt) @ zl
-    c = yl @ _matrix_function(zl @ yl, _sinhc_sqrt)
-    d = _matrix_function(yl @ zl, _cosh_sqrt)
-    b_inv = np.linalg.inv(b)
-    return np.block([[d @ b_inv, c - d @ b_inv @ a], [-b_inv, b_inv @ a]])
-
-
-def solve_fault_single(
-    line: LineCascade,
-    source_s: Source | None,
-    source_r: Source | None,
-    *,
-    v_nominal_v: float,
-    fault_type: str,
-    m: float,
-    r_fault_ohm: float,
-    r_phase_ohm: float = 0.0,
-    source_scale: float | tuple[float, float] = 1.0,
-    transfer_angle_rad: float = 0.0,
-    parallel_state: str = "in_service",
-    emf_v: tuple[complex, complex] | None = None,
-) -> FaultCase:
-    """Solve one fault case by plain modified nodal analysis [3]_ (reference for tests).
-
-    Nodes: bus S, bus R, and the n conductors at every section boundary and at the fault
-    point. Unknowns besides node voltages: source branch currents (V + Zs I = E), current
-    transformer branches between each bus and the line ends (zero-impedance, their
-    currents are the relay currents), earthing branches of an earthed circuit 2 and the
-    fault currents (exact fault constraints). Series-only with circuit 2 isolated, circuit
-    2 floats; it is tied to ground at the S end only, which closes no current path.
-
-    Parameters are those of :func:`solve_fault_sweep` for one case (scalars).
-
-    Returns
-    -------
-    FaultCase
-    """
-    _check_state(line, parallel_state, None)
-    _check_sources(source_s, source_r, None)
-    m_arr = _check_locations(m, None)
-    if m_arr.size != 1:
-        raise InputError("one fault location", field="m", value=m_arr.tolist())
-    m = float(m_arr[0])
-    scale = _check_scale(np.atleast_1d(source_scale)[None, :] if np.ndim(source_scale)
-                         else source_scale, None)[0]
-    e_s_arr, e_r_arr = _emfs(v_nominal_v, transfer_angle_rad,
-                             None if emf_v is None else (np.array([emf_v[0]]),
-                                                         np.array([emf_v[1]])), 1, None)
-    e_s, e_r = _balanced(e_s_arr[0, 0]), _balanced(e_r_arr[0, 0])
-    p_v, p_i = fault_constraints(fault_type, r_fault_ohm, r_phase_ohm)
-
-    z, y = line.z_ohm_per_m, line.y_s_per_m
-    n = line.n_conductors
-    length = line.total_length_m
-    edges = np.concatenate([[0.0], np.cumsum(line.length_m)])
-    x_f = m * length
-    near = int(np.argmin(np.abs(edges - x_f)))
-    if abs(edges[near] - x_f) <= _SNAP_REL * length:
-        positions = list(edges)
-        j_f = near
-    else:
-        positions = sorted([*edges, x_f])
-        j_f = positions.index(x_f)
-    n_pos = len(positions)
-    n_line = n_pos * n
-    bus_s, bus_r = n_line, n_line + 3
-    n_nodes = n_line + 6
-
-    def node(j: int, c: int) -> int:
-        return j * n + c
-
-    # Branches: (from node or -1 for ground, to node or -1, impedance or None, emf)
-    # "Ammeter" branch: V_to - V_from = 0. Source branch: V_bus + Zs I = E, I into bus.
-    branches: list[tuple[str, list[int], list[int]]] = []
-    ct = {"s1": [], "s2": [], "r1": [], "r2": []}
-    last = n_pos - 1
-
-    def add_ammeter(key: str, frm: list[int], to: list[int]) -> None:
-        ct[key] = list(range(len(branches), len(branches) + 3))
-        for a_, b_ in zip(frm, to, strict=True):
-            branches.append(("amm", [a_], [b_]))
-
-    add_ammeter("s1", [bus_s + c for c in range(3)], [node(0, c) for c in range(3)])
-    add_ammeter("r1", [bus_r + c for c in range(3)], [node(last, c) for c in range(3)])
-    if n == 6:
-        if parallel_state == "in_service":
-            add_ammeter("s2", [bus_s + c for c in range(3)], [node(0, 3 + c) for c in range(3)])
-            add_ammeter("r2", [bus_r + c for c in range(3)],
-                        [node(last, 3 + c) for c in range(3)])
-        elif parallel_state == "earthed" or y is None:
-            add_ammeter("s2", [-1] * 3, [node(0, 3 + c) for c in range(3)])
-            if parallel_state == "earthed":
-                add_ammeter("r2", [-1] * 3, [node(last, 3 + c) for c in range(3)])
-    n_amm = len(branches)
-    src = []
-    for bus, source, k, emf in ((bus_s, source_s, 0, e_s), (bus_r, source_r, 1, e_r)):
-        if source is not None:
-            src.append((bus, source.phase_matrix(scale[k]), emf))
-    n_unk = n_nodes + n_amm + 3 * len(src) + 3
-    mat = np.zeros((n_unk, n_unk), dtype=complex)
-    rhs = np.zeros(n_unk, dtype=complex)
-
-    seg_y = []
-    for j in range(n_pos - 1):
-        seg_len = positions[j + 1] - positions[j]
-        sec = int(np.searchsorted(edges, positions[j], side="right") - 1)
-        yy = _segment_nodal(z[sec], None if y is None else y[sec], seg_len)
-        seg_y.append(yy)
-        idx = [node(j, c) for c in range(n)] + [node(j + 1, c) for c in range(n)]
-        mat[np.ix_(idx, idx)] += yy
-    row = n_nodes
-    for _kind, frm, to in branches:  # current flows from 'frm' to 'to'
-        f_, t_ = frm[0], to[0]
-        if f_ >= 0:
-            mat[f_, row] += 1.0
-            mat[row, f_] -= 1.0
-        mat[t_, row] -= 1.0
-        mat[row, t_] += 1.0
-        row += 1
-    src_rows = []
-    for bus, zsrc, emf in src:
-        cols = list(range(row, row + 3))
-        src_rows.append(cols)
-        for c in range(3):
-            mat[bus + c, row + c] -= 1.0  # source current enters the bus
-            mat[row + c, bus + c] = 1.0
-        mat[np.ix_(cols, cols)] = zsrc
-        rhs[cols] = emf
-        row += 3
-    f_nodes = [node(j_f, c) for c in range(3)]
-    f_cols = list(range(row, row + 3))
-    for c in range(3):
-        mat[f_nodes[c], row + c] += 1.0  # fault current leaves the fault node
-    mat[np.ix_(f_cols, f_nodes)] = p_v
-    mat[np.ix_(f_cols, f_cols)] = p_i
-    sol = np.linalg.solve(mat, rhs)
-
-    volt = sol[:n_nodes]
-
-    def current(key: str) -> np.ndarray:
-        idx = ct[key]
-        return sol[[n_nodes + i for i in idx]] if idx else np.zeros(3, dtype=complex)
-
-    def seg_currents(j: int) -> np.ndarray:
-        idx = [node(j, c) for c in range(n)] + [node(j + 1, c) for c in range(n)]
-        return seg_y[j] @ volt[idx]  # into the segment at its S end (:n) and R end (n:)
-
-    i_from_s = -seg_currents(j_f - 1)[n:n + 3] if j_f > 0 else current("s1")
-    i_from_r = -seg_currents(j_f)[:3] if j_f < last else current("r1")
-    return FaultCase(
-        v_s=volt[bus_s:bus_s + 3],
-        i_s=current("s1"),
-        i_s_parallel=current("s2"),
-        v_r=volt[bus_r:bus_r + 3],
-        i_r=current("r1"),
-        i_r_parallel=current("r2"),
-        v_f=volt[f_nodes],
-        i_fault=sol[f_cols],
-        i_f_from_s=i_from_s,
-        i_f_from_r=i_from_r,
-    )

@@ -16,7 +16,7 @@ import numpy as np
 from relayset.errors import InputError
 from relayset.inputs.philosophy import Philosophy
 from relayset.inputs.study_file import Study, check_reach_inputs
-from relayset.physics import measurement, network, transposition
+from relayset.physics import loadflow, measurement, network, transposition
 from relayset.results.parameters import LineParameters
 from relayset.results.reach import (
     ArrangementReach,
@@ -65,6 +65,24 @@ def fault_label(fault_type: str, labels: tuple[str, str, str]) -> str:
     """A fault type in the study's phase labels, e.g. "ABG" -> "L1-L2-G"."""
     parts = [labels["ABC".index(ch)] for ch in fault_type if ch in "ABC"]
     return "-".join(parts + (["G"] if fault_type.endswith("G") else []))
+
+
+#: Largest number of fault cases a reach study solves (all arrangements).
+MAX_CASES = 10_000_000
+#: Fault cases solved and condensed at a time (bounds the sweep's memory, some 0.5 kB a
+#: case while a chunk is worked on), and the most at one location (the smallest chunk).
+CHUNK_CASES = 100_000
+MAX_CASES_PER_LOCATION = 200_000
+
+
+def _same_cascade(a: network.LineCascade, b: network.LineCascade) -> bool:
+    """True when two cascades are the same line, so one sweep serves both: the same section
+    matrices, and section lengths equal to rounding (e.g. 9 mi each and 27 mi / 3)."""
+    if (a.y_s_per_m is None) != (b.y_s_per_m is None) or a.length_m.shape != b.length_m.shape:
+        return False
+    return (np.allclose(a.length_m, b.length_m, rtol=1e-12, atol=0)
+            and np.array_equal(a.z_ohm_per_m, b.z_ohm_per_m)
+            and (a.y_s_per_m is None or np.array_equal(a.y_s_per_m, b.y_s_per_m)))
 
 
 def _cascade(z_pos, y_pos, orders, lengths, shunt: bool) -> network.LineCascade:
@@ -139,37 +157,76 @@ def run_reach_study(
                    "r_fault_ohm": "reach_study.fault_resistances",
                    "r_phase_ohm": "reach_study.phase_fault_resistance",
                    "source_scale": "reach_study.source_cases"}
-    sweeps = {}
-    for key, (ords, lens) in plans.items():
-        line = _cascade(params.z_position_ohm_per_m, params.y_position_s_per_m, ords, lens,
-                        rs.shunt_capacitance)
+    lines = {key: _cascade(params.z_position_ohm_per_m, params.y_position_s_per_m, ords, lens,
+                           rs.shunt_capacitance) for key, (ords, lens) in plans.items()}
+    # Identical arrangements (one-section line: actual plan = untransposed; ideal plan =
+    # ideal cycle) are solved once and reported under each name.
+    same_as: dict[str, str] = {}
+    for key, line in lines.items():
+        same_as[key] = next((k for k in same_as if same_as[k] == k
+                             and _same_cascade(lines[k], line)), key)
+    per_arrangement = len(rs.fault_types) * m.size * rf.size * scales.shape[0] * angles.size
+    n_distinct = len(set(same_as.values()))
+    per_location = per_arrangement // m.size
+    if per_location > MAX_CASES_PER_LOCATION:  # one location is the smallest chunk
+        raise InputError(
+            f"asks for {per_location:,} fault cases at each location (fault types x "
+            f"resistances x source cases x load cases); at most {MAX_CASES_PER_LOCATION:,}",
+            field="reach_study", source=source)
+    if per_arrangement * n_distinct > MAX_CASES:  # the step itself is checked on reading
+        raise InputError(
+            f"asks for {per_arrangement * n_distinct:,} fault cases; the reach study solves "
+            f"at most {MAX_CASES:,}: use a coarser step or fewer resistances or cases",
+            field="reach_study.location_step_pct", value=rs.location_step_pct, source=source)
+    labels = geo.phase_labels[0]
+    variants = [(k, False) for k in plans]
+    if n_c == 2 and parallel == "in_service" and rs.mutual_compensation:
+        variants = [(k, True) for k in plans] + [("actual_plan", False)]
+    # One condenser per (end, distinct arrangement, mutual compensation); the sweep runs in
+    # chunks of locations so that memory stays bounded, each chunk condensed and dropped.
+    condensers: dict[tuple[str, str, bool], _Condenser] = {}
+    for end_name in ends:
+        for key, mutual in variants:
+            ck = (end_name, same_as[key], mutual)
+            if ck not in condensers:
+                condensers[ck] = _Condenser(
+                    end_name == names[0], mutual, z1_set, k0_set,
+                    k0m_set if mutual else None, z1_reach, rs.fault_types, rf, m)
+    outputs = [o for e in ends for o in (("v_s", "i_s", "i_s_parallel") if e == names[0]
+                                         else ("v_r", "i_r", "i_r_parallel"))]
+    m_chunk = max(1, CHUNK_CASES // per_location)
+    emfs = {}
+    for key, line in lines.items():
+        if same_as[key] != key:
+            continue
         try:
             emf = _emfs_for_power_flows(study, line, src, names, ends[0], scales, parallel,
                                         geo.v_nominal_v)
-            sweeps[key] = network.solve_fault_sweep(
-                line, src[names[0]], src[names[1]], v_nominal_v=geo.v_nominal_v,
-                fault_types=rs.fault_types, m=m, r_fault_ohm=rf,
-                r_phase_ohm=rs.phase_fault_resistance, source_scale=scales,
-                transfer_angle_rad=angles, parallel_state=parallel, emf_v=emf,
-                field_names=field_names)
+            for start in range(0, m.size, m_chunk):
+                sw = network.solve_fault_sweep(
+                    line, src[names[0]], src[names[1]], v_nominal_v=geo.v_nominal_v,
+                    fault_types=rs.fault_types, m=m[start:start + m_chunk], r_fault_ohm=rf,
+                    r_phase_ohm=rs.phase_fault_resistance, source_scale=scales,
+                    transfer_angle_rad=angles, parallel_state=parallel, emf_v=emf,
+                    field_names=field_names, outputs=outputs)
+                for (_end, k, _mutual), cond in condensers.items():
+                    if k == key:
+                        cond.add(sw, start)
+                emfs[key] = (sw.emf_s_v, sw.emf_r_v)
+                del sw
         except InputError as exc:
             raise exc.located(source=source) from None
 
-    labels = geo.phase_labels[0]
     end_results = []
     for end_name in ends:
         at_s = end_name == names[0]
         arrs = []
-        variants = [(k, False) for k in plans]
-        if n_c == 2 and parallel == "in_service" and rs.mutual_compensation:
-            variants = [(k, True) for k in plans] + [("actual_plan", False)]
         for key, mutual in variants:
             ords, lens = plans[key]
             if not at_s:  # seen from R the plan runs backwards
                 ords, lens = ords[::-1], list(lens)[::-1]
-            arrs.append(_condense(sweeps[key], at_s, key, mutual, z1_set, k0_set,
-                                  k0m_set if mutual else None, z1_reach, rs, labels,
-                                  ords, lens, geo.position_names))
+            arrs.append(condensers[(end_name, same_as[key], mutual)].result(
+                key, emfs[same_as[key]], rs, labels, ords, lens, geo.position_names))
         actual = arrs[0]
         worst = actual.worst_bolted_overreach_at_remote_bus_pct
         rec = recommended_zone1_pct(worst, budget, zone1_max_pct, zone1_margin_pct)
@@ -197,7 +254,6 @@ def run_reach_study(
         notes.append("Line shunt capacitance included (exact distributed sections).")
     else:
         notes.append("Line shunt capacitance neglected (series impedance only).")
-    sweep = sweeps["actual_plan"]
     return ReachStudyResult(
         fault_types=tuple(rs.fault_types),
         locations_pct=tuple(float(x) for x in 100 * m),
@@ -210,7 +266,7 @@ def run_reach_study(
         source_impedances={n: {"z1_ohm": cplx(s.z1_ohm), "z0_ohm": cplx(s.z0_ohm)}
                            for n, s in src.items() if s is not None},
         ends=tuple(end_results),
-        n_cases=int(sweep.v_s.size // 3) * len(plans),
+        n_cases=per_arrangement * len(plans),
         notes=tuple(notes),
     )
 
@@ -218,7 +274,7 @@ def run_reach_study(
 def _emfs_for_power_flows(study, line, src, names, relay_end, scales, parallel, v_nom):
     """EMFs of both sources for the P, Q load cases at the relay end (None: use angles).
 
-    The positive-sequence load flow of :func:`relayset.physics.network.emfs_for_load`
+    The positive-sequence load flow of :func:`relayset.physics.loadflow.emfs_for_load`
     fixes the relay-end voltage at nominal; seen from the far end the line is reversed.
     """
     if not (study.load and study.load.power_flows):
@@ -226,90 +282,163 @@ def _emfs_for_power_flows(study, line, src, names, relay_end, scales, parallel, 
     p = np.array([f.active_power for f in study.load.power_flows])
     q = np.array([f.reactive_power for f in study.load.power_flows])
     if relay_end == names[0]:
-        return network.emfs_for_load(line, src[names[0]], src[names[1]], v_nominal_v=v_nom,
+        return loadflow.emfs_for_load(line, src[names[0]], src[names[1]], v_nominal_v=v_nom,
                                      p_w=p, q_var=q, source_scale=scales,
                                      parallel_state=parallel)
     rev = network.LineCascade(line.z_ohm_per_m[::-1], line.length_m[::-1],
                               None if line.y_s_per_m is None else line.y_s_per_m[::-1])
-    e_r, e_s = network.emfs_for_load(rev, src[names[1]], src[names[0]], v_nominal_v=v_nom,
+    e_r, e_s = loadflow.emfs_for_load(rev, src[names[1]], src[names[0]], v_nominal_v=v_nom,
                                      p_w=p, q_var=q, source_scale=scales[..., ::-1]
                                      if np.ndim(scales) == 2 else scales,
                                      parallel_state=parallel)
     return e_s, e_r
 
 
-def _condense(sw, at_s, key, mutual, z1_set, k0_set, k0m_set, z1_reach, rs, labels,
-              orders, lengths, position_names) -> ArrangementReach:
-    if at_s:
-        v, i, ip, m = sw.v_s, sw.i_s, sw.i_s_parallel, sw.m
-    else:
-        v, i, ip, m = sw.v_r, sw.i_r, sw.i_r_parallel, 1.0 - sw.m
-    loops = measurement.loop_impedances(v, i, k0_set, i_parallel=ip if mutual else None,
-                                        k0m=k0m_set or 0)
-    # axes: (F, M, Rf, K, L)
-    m_b = m[None, :, None, None, None]
-    ftypes = sw.fault_types
-    rf = sw.r_fault_ohm
-    i_reach = int(np.argmin(np.abs(m - z1_reach / 100)))
-    i_remote = int(np.argmax(m))
-    summaries = []
-    env_max, env_min = [], []
-    for loop in LOOPS:
-        meant = np.array([loop in measurement.loops_for_fault(ft) for ft in ftypes])
-        with np.errstate(all="ignore"):  # loops that see no current give inf/nan
-            along, react = measurement.reach_error_pct(loops[loop], m_b, z1_set)
-        along = np.where(meant[:, None, None, None, None], along, np.nan)
-        react = np.where(meant[:, None, None, None, None], react, np.nan)
-        bolted = np.where((rf == 0)[None, None, :, None, None], along, np.nan)
-        resist = np.where((rf > 0)[None, None, :, None, None], react, np.nan)
+_PICKS = ("over_at_reach", "under_at_reach", "over_line", "under_line", "over_at_remote_bus",
+          "reactance_over_resistive")
 
-        def pick(arr, fn, mask_m=None, loop=loop):
-            a = arr if mask_m is None else np.where(mask_m, arr, np.nan)
-            if not np.any(np.isfinite(a)):
+
+def _extreme(sub: np.ndarray, largest: bool):
+    """(any finite value, extreme value, index) of an array, NaN ignored, first occurrence in
+    C order as np.nanargmax/np.nanargmin; value and index None if all NaN."""
+    has_finite = bool(np.isfinite(sub).any())
+    try:
+        j = int(np.nanargmax(sub) if largest else np.nanargmin(sub))
+    except ValueError:  # all NaN
+        return has_finite, None, None
+    return has_finite, float(sub.flat[j]), np.unravel_index(j, sub.shape)
+
+
+class _Condenser:
+    """Worst reach errors of one relay end, arrangement and compensation, accumulated over
+    chunks of fault locations. The result is the same as condensing the whole sweep at
+    once: each extreme is the first in (fault type, location, resistance, source case,
+    load case) order, as np.nanargmax would return it."""
+
+    def __init__(self, at_s, mutual, z1_set, k0_set, k0m_set, z1_reach, ftypes, rf, m):
+        self.at_s, self.mutual = at_s, mutual
+        self.z1_set, self.k0_set, self.k0m_set = z1_set, k0_set, k0m_set
+        self.ftypes, self.rf = tuple(ftypes), rf
+        self.m = m if at_s else 1.0 - m  # location seen from the relay
+        self.i_reach = int(np.argmin(np.abs(self.m - z1_reach / 100)))
+        self.i_remote = int(np.argmax(self.m))
+        self.rb, self.rr = np.flatnonzero(rf == 0), np.flatnonzero(rf > 0)
+        self.meant = {lp: np.array([f for f, ft in enumerate(self.ftypes)
+                                    if lp in measurement.loops_for_fault(ft)], dtype=int)
+                      for lp in LOOPS}
+        # per (loop, pick): [any finite value, extreme value, global index]
+        self.best = {(lp, p): [False, None, None] for lp in LOOPS for p in _PICKS}
+        self.env_max = np.full((len(LOOPS), m.size), np.nan)
+        self.env_min = np.full((len(LOOPS), m.size), np.nan)
+
+    def _offer(self, lp, pick, sub, largest, to_global) -> None:
+        has_finite, val, idx = _extreme(sub, largest)
+        rec = self.best[(lp, pick)]
+        rec[0] = rec[0] or has_finite
+        if val is None:
+            return
+        gidx = to_global(idx)
+        if (rec[1] is None or (val > rec[1] if largest else val < rec[1])
+                or (val == rec[1] and gidx < rec[2])):
+            rec[1], rec[2] = val, gidx
+
+    def _loops(self, v, i, ip):
+        return measurement.loop_impedances(v, i, self.k0_set,
+                                           i_parallel=ip if self.mutual else None,
+                                           k0m=self.k0m_set or 0)
+
+    def add(self, sw, start: int) -> None:
+        """Condense one chunk of the sweep, whose locations start at index ``start``."""
+        if self.at_s:
+            v, i, ip = sw.v_s, sw.i_s, sw.i_s_parallel
+        else:
+            v, i, ip = sw.v_r, sw.i_r, sw.i_r_parallel
+        n_m = v.shape[1]
+        stop = start + n_m
+        mc = self.m[start:stop]
+        rb, rr = self.rb, self.rr
+        bolted = self._loops(v[:, :, rb], i[:, :, rb], ip[:, :, rb])  # (F, Mc, Rb, K, L)
+        at_reach = start <= self.i_reach < stop
+        at_remote = start <= self.i_remote < stop
+        if at_reach and rr.size:
+            j = self.i_reach - start
+            resist = self._loops(v[:, j, rr], i[:, j, rr], ip[:, j, rr])  # (F, Rr, K, L)
+        for n_lp, lp in enumerate(LOOPS):
+            fs = self.meant[lp]
+            if fs.size == 0:
+                continue
+            with np.errstate(all="ignore"):  # loops that see no current give inf/nan
+                along, _ = measurement.reach_error_pct(bolted[lp][fs], mc[None, :, None, None,
+                                                                            None], self.z1_set)
+            with warnings.catch_warnings():  # all-NaN slices (m = 0) are expected
+                warnings.simplefilter("ignore", RuntimeWarning)
+                self.env_max[n_lp, start:stop] = np.nanmax(along, axis=(0, 2, 3, 4))
+                self.env_min[n_lp, start:stop] = np.nanmin(along, axis=(0, 2, 3, 4))
+
+            def line_idx(ix, fs=fs, rs_=rb):
+                return (int(fs[ix[0]]), start + int(ix[1]), int(rs_[ix[2]]), int(ix[3]),
+                        int(ix[4]))
+
+            self._offer(lp, "over_line", along, True, line_idx)
+            self._offer(lp, "under_line", along, False, line_idx)
+            for flag, j_m, picks in ((at_reach, self.i_reach, (("over_at_reach", True),
+                                                               ("under_at_reach", False))),
+                                     (at_remote, self.i_remote, (("over_at_remote_bus", True),))):
+                if not flag:
+                    continue
+
+                def point_idx(ix, fs=fs, j_m=j_m):
+                    return (int(fs[ix[0]]), j_m, int(rb[ix[1]]), int(ix[2]), int(ix[3]))
+
+                sub = along[:, j_m - start]
+                for pick, largest in picks:
+                    self._offer(lp, pick, sub, largest, point_idx)
+            if at_reach and rr.size:
+                with np.errstate(all="ignore"):
+                    _, react = measurement.reach_error_pct(resist[lp][fs], self.m[self.i_reach],
+                                                           self.z1_set)
+
+                def res_idx(ix, fs=fs):
+                    return (int(fs[ix[0]]), self.i_reach, int(rr[ix[1]]), int(ix[2]),
+                            int(ix[3]))
+
+                self._offer(lp, "reactance_over_resistive", react, True, res_idx)
+
+    def result(self, key, emfs, rs, labels, orders, lengths, position_names) -> ArrangementReach:
+        """The condensed results, reported under arrangement name ``key``."""
+        emf_s, emf_r = emfs
+        angle = np.angle(emf_s) - np.angle(emf_r)  # (K, L) transfer angles [rad]
+        ft_labels = [fault_label(ft, labels) for ft in self.ftypes]
+
+        def case(lp, pick):
+            has_finite, val, idx = self.best[(lp, pick)]
+            if not has_finite or val is None:
                 return None
-            idx = np.unravel_index(fn(a), a.shape)
             f, k_m, k_rf, k_s, k_l = idx
-            mm = float(m[k_m])
+            mm = float(self.m[k_m])
             return WorstCase(
-                error_pct=float(a[idx]), fault_type=fault_label(ftypes[f], labels), m=mm,
-                r_fault_ohm=float(rf[k_rf]), source_case=rs.source_cases[k_s].name,
-                transfer_angle_deg=math.degrees(float(np.angle(sw.emf_s_v[k_s, k_l])
-                                                      - np.angle(sw.emf_r_v[k_s, k_l]))),
-                positions=_positions_at(mm, loop, orders, lengths, position_names))
+                error_pct=val, fault_type=ft_labels[f], m=mm,
+                r_fault_ohm=float(self.rf[k_rf]), source_case=rs.source_cases[k_s].name,
+                transfer_angle_deg=math.degrees(float(angle[k_s, k_l])),
+                positions=_positions_at(mm, lp, orders, lengths, position_names))
 
-        at_reach = np.zeros_like(m, dtype=bool)
-        at_reach[i_reach] = True
-        at_remote = np.zeros_like(m, dtype=bool)
-        at_remote[i_remote] = True
-        mr = at_reach[None, :, None, None, None]
-        mrem = at_remote[None, :, None, None, None]
-        summaries.append(LoopSummary(
-            loop=_loop_label(loop, labels),
-            over_at_reach=pick(bolted, np.nanargmax, mr),
-            under_at_reach=pick(bolted, np.nanargmin, mr),
-            over_line=pick(bolted, np.nanargmax),
-            under_line=pick(bolted, np.nanargmin),
-            over_at_remote_bus=pick(bolted, np.nanargmax, mrem),
-            reactance_over_resistive=pick(resist, np.nanargmax, mr),
-        ))
-        with warnings.catch_warnings():  # all-NaN slices (m = 0) are expected
-            warnings.simplefilter("ignore", RuntimeWarning)
-            env_max.append(np.nanmax(bolted, axis=(0, 2, 3, 4)))
-            env_min.append(np.nanmin(bolted, axis=(0, 2, 3, 4)))
+        summaries = [LoopSummary(loop=_loop_label(lp, labels),
+                                 **{p: case(lp, p) for p in _PICKS}) for lp in LOOPS]
 
-    def extreme(attr, fn):
-        vals = [getattr(s, attr).error_pct for s in summaries if getattr(s, attr) is not None]
-        return float(fn(vals)) if vals else float("nan")
+        def extreme(attr, fn):
+            vals = [getattr(s, attr).error_pct for s in summaries
+                    if getattr(s, attr) is not None]
+            return float(fn(vals)) if vals else float("nan")
 
-    order_m = np.argsort(m)
-    return ArrangementReach(
-        arrangement=key,
-        mutual_compensation=mutual,
-        loops=tuple(summaries),
-        worst_bolted_overreach_at_remote_bus_pct=extreme("over_at_remote_bus", max),
-        worst_bolted_overreach_on_line_pct=extreme("over_line", max),
-        worst_bolted_underreach_on_line_pct=extreme("under_line", min),
-        envelope_m=m[order_m],
-        envelope_max_pct=np.array(env_max)[:, order_m],
-        envelope_min_pct=np.array(env_min)[:, order_m],
-    )
+        order_m = np.argsort(self.m)
+        return ArrangementReach(
+            arrangement=key,
+            mutual_compensation=self.mutual,
+            loops=tuple(summaries),
+            worst_bolted_overreach_at_remote_bus_pct=extreme("over_at_remote_bus", max),
+            worst_bolted_overreach_on_line_pct=extreme("over_line", max),
+            worst_bolted_underreach_on_line_pct=extreme("under_line", min),
+            envelope_m=self.m[order_m],
+            envelope_max_pct=self.env_max[:, order_m],
+            envelope_min_pct=self.env_min[:, order_m],
+        )

@@ -1,0 +1,240 @@
+"""Per-case reference fault solver for the tests (not part of the package).
+
+Plain modified nodal analysis [1]_ with a node at every section boundary and at the fault
+point, and the exact nodal matrix of each uniform section from an eigendecomposition. It
+shares nothing with the batched solver in :mod:`relayset.physics.network` except input
+checks and the fault constraints, so agreement between the two is an independent check.
+
+References
+----------
+.. [1] C. W. Ho, A. E. Ruehli and P. A. Brennan, "The modified nodal approach to network
+   analysis," IEEE Trans. Circuits Syst., vol. 22, no. 6, pp. 504-509, 1975.
+"""
+
+from __future__ import annotations
+
+from dataclasses import dataclass
+
+import numpy as np
+
+from relayset.errors import InputError
+from relayset.physics.faults import fault_constraints
+from relayset.physics.network import (
+    LineCascade,
+    Source,
+    _balanced,
+    _check_locations,
+    _check_scale,
+    _check_sources,
+    _check_state,
+    _emfs,
+)
+
+# Relative distance below which a fault location is taken to sit on a section boundary.
+_SNAP_REL = 1e-9
+
+
+@dataclass(frozen=True, eq=False)
+class FaultCase:
+    """Results of :func:`solve_fault_single`: the fields of
+    :class:`~relayset.physics.network.FaultSweep` for one case, each a (3,) complex array
+    [V or A]."""
+
+    v_s: np.ndarray
+    i_s: np.ndarray
+    i_s_parallel: np.ndarray
+    v_r: np.ndarray
+    i_r: np.ndarray
+    i_r_parallel: np.ndarray
+    v_f: np.ndarray
+    i_fault: np.ndarray
+    i_f_from_s: np.ndarray
+    i_f_from_r: np.ndarray
+
+def _matrix_function(mat: np.ndarray, func) -> np.ndarray:
+    """f(M) for a diagonalisable matrix by eigendecomposition."""
+    w, vec = np.linalg.eig(mat)
+    return vec @ np.diag(func(w)) @ np.linalg.inv(vec)
+
+
+def _cosh_sqrt(w: np.ndarray) -> np.ndarray:
+    return np.cosh(np.sqrt(w))
+
+
+def _sinhc_sqrt(w: np.ndarray) -> np.ndarray:
+    s = np.sqrt(w)
+    small = np.abs(s) < 1e-6
+    safe = np.where(small, 1.0, s)
+    return np.where(small, 1 + w / 6, np.sinh(safe) / safe)
+
+
+def _segment_nodal(z: np.ndarray, y: np.ndarray | None, length: float) -> np.ndarray:
+    """Nodal admittance (2n, 2n) of a uniform segment [S]: currents into it at its two ends."""
+    zl = z * length
+    if y is None:
+        yi = np.linalg.inv(zl)
+        return np.block([[yi, -yi], [-yi, yi]])
+    yl = y * length
+    a = _matrix_function(zl @ yl, _cosh_sqrt)
+    b = _matrix_function(zl @ yl, _sinhc_sqrt) @ zl
+    c = yl @ _matrix_function(zl @ yl, _sinhc_sqrt)
+    d = _matrix_function(yl @ zl, _cosh_sqrt)
+    b_inv = np.linalg.inv(b)
+    return np.block([[d @ b_inv, c - d @ b_inv @ a], [-b_inv, b_inv @ a]])
+
+
+def solve_fault_single(
+    line: LineCascade,
+    source_s: Source | None,
+    source_r: Source | None,
+    *,
+    v_nominal_v: float,
+    fault_type: str,
+    m: float,
+    r_fault_ohm: float,
+    r_phase_ohm: float = 0.0,
+    source_scale: float | tuple[float, float] = 1.0,
+    transfer_angle_rad: float = 0.0,
+    parallel_state: str = "in_service",
+    emf_v: tuple[complex, complex] | None = None,
+) -> FaultCase:
+    """Solve one fault case by plain modified nodal analysis [3]_ (reference for tests).
+
+    Nodes: bus S, bus R, and the n conductors at every section boundary and at the fault
+    point. Unknowns besides node voltages: source branch currents (V + Zs I = E), current
+    transformer branches between each bus and the line ends (zero-impedance, their
+    currents are the relay currents), earthing branches of an earthed circuit 2 and the
+    fault currents (exact fault constraints). Series-only with circuit 2 isolated, circuit
+    2 floats; it is tied to ground at the S end only, which closes no current path.
+
+    Parameters are those of :func:`~relayset.physics.network.solve_fault_sweep` for one
+    case (scalars).
+
+    Returns
+    -------
+    FaultCase
+    """
+    _check_state(line, parallel_state, None)
+    _check_sources(source_s, source_r, None)
+    m_arr = _check_locations(m, None)
+    if m_arr.size != 1:
+        raise InputError("one fault location", field="m", value=m_arr.tolist())
+    m = float(m_arr[0])
+    scale = _check_scale(np.atleast_1d(source_scale)[None, :] if np.ndim(source_scale)
+                         else source_scale, None)[0]
+    e_s_arr, e_r_arr = _emfs(v_nominal_v, transfer_angle_rad,
+                             None if emf_v is None else (np.array([emf_v[0]]),
+                                                         np.array([emf_v[1]])), 1, None)
+    e_s, e_r = _balanced(e_s_arr[0, 0]), _balanced(e_r_arr[0, 0])
+    p_v, p_i = fault_constraints(fault_type, r_fault_ohm, r_phase_ohm)
+
+    z, y = line.z_ohm_per_m, line.y_s_per_m
+    n = line.n_conductors
+    length = line.total_length_m
+    edges = np.concatenate([[0.0], np.cumsum(line.length_m)])
+    x_f = m * length
+    near = int(np.argmin(np.abs(edges - x_f)))
+    if abs(edges[near] - x_f) <= _SNAP_REL * length:
+        positions = list(edges)
+        j_f = near
+    else:
+        positions = sorted([*edges, x_f])
+        j_f = positions.index(x_f)
+    n_pos = len(positions)
+    n_line = n_pos * n
+    bus_s, bus_r = n_line, n_line + 3
+    n_nodes = n_line + 6
+
+    def node(j: int, c: int) -> int:
+        return j * n + c
+
+    # Branches: (from node or -1 for ground, to node or -1, impedance or None, emf)
+    # "Ammeter" branch: V_to - V_from = 0. Source branch: V_bus + Zs I = E, I into bus.
+    branches: list[tuple[str, list[int], list[int]]] = []
+    ct = {"s1": [], "s2": [], "r1": [], "r2": []}
+    last = n_pos - 1
+
+    def add_ammeter(key: str, frm: list[int], to: list[int]) -> None:
+        ct[key] = list(range(len(branches), len(branches) + 3))
+        for a_, b_ in zip(frm, to, strict=True):
+            branches.append(("amm", [a_], [b_]))
+
+    add_ammeter("s1", [bus_s + c for c in range(3)], [node(0, c) for c in range(3)])
+    add_ammeter("r1", [bus_r + c for c in range(3)], [node(last, c) for c in range(3)])
+    if n == 6:
+        if parallel_state == "in_service":
+            add_ammeter("s2", [bus_s + c for c in range(3)], [node(0, 3 + c) for c in range(3)])
+            add_ammeter("r2", [bus_r + c for c in range(3)],
+                        [node(last, 3 + c) for c in range(3)])
+        elif parallel_state == "earthed" or y is None:
+            add_ammeter("s2", [-1] * 3, [node(0, 3 + c) for c in range(3)])
+            if parallel_state == "earthed":
+                add_ammeter("r2", [-1] * 3, [node(last, 3 + c) for c in range(3)])
+    n_amm = len(branches)
+    src = []
+    for bus, source, k, emf in ((bus_s, source_s, 0, e_s), (bus_r, source_r, 1, e_r)):
+        if source is not None:
+            src.append((bus, source.phase_matrix(scale[k]), emf))
+    n_unk = n_nodes + n_amm + 3 * len(src) + 3
+    mat = np.zeros((n_unk, n_unk), dtype=complex)
+    rhs = np.zeros(n_unk, dtype=complex)
+
+    seg_y = []
+    for j in range(n_pos - 1):
+        seg_len = positions[j + 1] - positions[j]
+        sec = int(np.searchsorted(edges, positions[j], side="right") - 1)
+        yy = _segment_nodal(z[sec], None if y is None else y[sec], seg_len)
+        seg_y.append(yy)
+        idx = [node(j, c) for c in range(n)] + [node(j + 1, c) for c in range(n)]
+        mat[np.ix_(idx, idx)] += yy
+    row = n_nodes
+    for _kind, frm, to in branches:  # current flows from 'frm' to 'to'
+        f_, t_ = frm[0], to[0]
+        if f_ >= 0:
+            mat[f_, row] += 1.0
+            mat[row, f_] -= 1.0
+        mat[t_, row] -= 1.0
+        mat[row, t_] += 1.0
+        row += 1
+    src_rows = []
+    for bus, zsrc, emf in src:
+        cols = list(range(row, row + 3))
+        src_rows.append(cols)
+        for c in range(3):
+            mat[bus + c, row + c] -= 1.0  # source current enters the bus
+            mat[row + c, bus + c] = 1.0
+        mat[np.ix_(cols, cols)] = zsrc
+        rhs[cols] = emf
+        row += 3
+    f_nodes = [node(j_f, c) for c in range(3)]
+    f_cols = list(range(row, row + 3))
+    for c in range(3):
+        mat[f_nodes[c], row + c] += 1.0  # fault current leaves the fault node
+    mat[np.ix_(f_cols, f_nodes)] = p_v
+    mat[np.ix_(f_cols, f_cols)] = p_i
+    sol = np.linalg.solve(mat, rhs)
+
+    volt = sol[:n_nodes]
+
+    def current(key: str) -> np.ndarray:
+        idx = ct[key]
+        return sol[[n_nodes + i for i in idx]] if idx else np.zeros(3, dtype=complex)
+
+    def seg_currents(j: int) -> np.ndarray:
+        idx = [node(j, c) for c in range(n)] + [node(j + 1, c) for c in range(n)]
+        return seg_y[j] @ volt[idx]  # into the segment at its S end (:n) and R end (n:)
+
+    i_from_s = -seg_currents(j_f - 1)[n:n + 3] if j_f > 0 else current("s1")
+    i_from_r = -seg_currents(j_f)[:3] if j_f < last else current("r1")
+    return FaultCase(
+        v_s=volt[bus_s:bus_s + 3],
+        i_s=current("s1"),
+        i_s_parallel=current("s2"),
+        v_r=volt[bus_r:bus_r + 3],
+        i_r=current("r1"),
+        i_r_parallel=current("r2"),
+        v_f=volt[f_nodes],
+        i_fault=sol[f_cols],
+        i_f_from_s=i_from_s,
+        i_f_from_r=i_from_r,
+    )
