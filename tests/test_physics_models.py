@@ -199,3 +199,21 @@ def test_aluminium_layers_72_7():
     # The table once read (12, 18, 24, 18): the GMR of a Kiwi-sized conductor came out
     # 12.9 mm instead of 13.9 mm (7 % low).
     assert ALUMINIUM_LAYERS[(72, 7)] == (9, 15, 21, 27)
+
+
+def test_bessel_ratio_series_against_scipy():
+    # The skin-effect ratio sums J0/J1 by the ascending series (Abramowitz & Stegun 9.1.10)
+    # to avoid importing scipy.special; on the skin-effect ray (arg ka = -45 deg) it must
+    # agree with scipy.special.jv (an independent implementation) to 1e-13 relative.
+    from scipy.special import jv
+
+    from relayset.physics.conductor import _bessel_j0_over_j1
+
+    r = np.linspace(1e-3, 15.0, 400)
+    for angle in (-np.pi / 4, 3 * np.pi / 4):
+        z = r * np.exp(1j * angle)
+        got = np.array([_bessel_j0_over_j1(complex(x)) for x in z])
+        assert_allclose(got, jv(0, z) / jv(1, z), rtol=1e-13, atol=0)
+    # beyond the series' range scipy is used directly
+    z = 40.0 * np.exp(-1j * np.pi / 4)
+    assert _bessel_j0_over_j1(complex(z)) == complex(jv(0, z) / jv(1, z))

@@ -12,6 +12,8 @@ References
    Cengage, 2017, sec. 4.4-4.6 (GMR of stranded conductors and bundles).
 .. [3] S. Ramo, J. R. Whinnery and T. Van Duzer, Fields and Waves in Communication
    Electronics, 3rd ed. Wiley, 1994, sec. 5.12 (skin effect in a round wire).
+.. [4] M. Abramowitz and I. A. Stegun, Handbook of Mathematical Functions. Washington, DC:
+   NBS, 1964, eq. 9.1.10 (ascending series of J_n).
 """
 
 from __future__ import annotations
@@ -97,10 +99,41 @@ def skin_effect_ratio(r_dc_ohm_per_m: float, radius_m: float, frequency_hz: floa
     ka = k * radius_m
     if abs(ka) < 1e-6:
         return 1.0
-    from scipy.special import jv  # heavy import (~0.2 s): only when skin effect is computed
+    ratio = ka / 2 * _bessel_j0_over_j1(complex(ka))
+    return float(ratio.real)
 
-    ratio = ka / 2 * jv(0, ka) / jv(1, ka)
-    return float(np.real(ratio))
+
+#: Largest |ka| summed by the series. The skin-effect argument lies on the -45 degree ray,
+#: where z^2 is imaginary and the terms do not cancel: against scipy.special.jv the ratio
+#: agrees to 1e-14 up to |z| = 15 (tests/test_physics_models.py).
+_SERIES_MAX = 15.0
+
+
+def _bessel_j0_over_j1(z: complex) -> complex:
+    r"""J0(z)/J1(z) by the ascending series [4]_, scipy beyond the series' range.
+
+    .. math:: J_n(z) = \sum_{m \ge 0} \frac{(-z^2/4)^m}{m!\,(m+n)!}\,(z/2)^n
+
+    Summed here because importing scipy.special costs about 0.2 s per process, and
+    conductors at power frequency have |ka| of a few units.
+    """
+    if abs(z) > _SERIES_MAX:
+        from scipy.special import jv  # heavy import: only for very large conductors
+
+        return complex(jv(0, z) / jv(1, z))
+    q = -z * z / 4
+    term0 = term1 = 1.0 + 0j  # m = 0 terms of J0 and of J1/(z/2)
+    j0 = j1 = term0
+    m = 0
+    while True:
+        m += 1
+        term0 *= q / (m * m)
+        term1 *= q / (m * (m + 1))
+        j0 += term0
+        j1 += term1
+        if abs(term0) < 1e-17 * abs(j0) and abs(term1) < 1e-17 * abs(j1):
+            break
+    return j0 / (j1 * z / 2)
 
 
 def gmr_from_stranding(
