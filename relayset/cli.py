@@ -7,6 +7,8 @@ import sys
 from collections.abc import Sequence
 
 EXIT_INPUT = 2
+#: A study whose settings failed a verification check (its outputs are still written).
+EXIT_FAILED_CHECKS = 3
 
 
 def _version() -> str:
@@ -220,7 +222,9 @@ def _run(args) -> int:
     if getattr(args, "csv", None):
         outputs.append(("--csv", args.csv, io.csv_bytes(_settings_csv(results[0]))))
     io.write_all(outputs)
-    return 0
+    failed = any(r.verification is not None and r.verification.verdict == "failed checks"
+                 for r in results)
+    return EXIT_FAILED_CHECKS if failed else 0
 
 
 def _settings_csv(res) -> str:

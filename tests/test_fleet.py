@@ -98,7 +98,9 @@ def test_register_csv_and_xlsx_with_overrides_and_missing_file(tmp_path):
     wb = Workbook()
     ws = wb.active
     ws.append(["Study", "philosophy", "status"])
-    ws.append(["fleet/north/" + FAST[0], str(phil), "approved"])
+    # "for review" (the demo names its preparer; "approved" would also need the checker's
+    # and approver's names, issue 8)
+    ws.append(["fleet/north/" + FAST[0], str(phil), "for review"])
     ws.append(["fleet/north/missing.toml", None, None])
     ws.append(["fleet/north/" + FAST[1], None, None])
     wb.save(reg)
@@ -112,11 +114,11 @@ def test_register_csv_and_xlsx_with_overrides_and_missing_file(tmp_path):
     text = eff.read_text("utf-8")
     assert text.startswith("#") and "set by the line register" in text
     res = pipeline.run(eff, settings=True)
-    assert res.identity["status"] == "approved"
+    assert res.identity["status"] == "for review"
     assert res.philosophy["zone1"]["reach_pct"] == 85.0  # the Northmarch philosophy's zone 1
     rows = _csv_rows(out / "register.csv")
     row = next(r for r in rows if r["line_id"] == "PR-KO-115")
-    assert row["status"] == "approved" and row["input_sha256"] == res.source_sha256
+    assert row["status"] == "for review" and row["input_sha256"] == res.source_sha256
     # the .xlsx register holds the same rows as the CSV
     got = list(load_workbook(out / "register.xlsx").active.iter_rows(values_only=True))
     assert list(got[0]) == list(NAMES)

@@ -29,7 +29,8 @@ EXACT = dict(rtol=1e-12, atol=0)
 
 def _export(command: str, path, tmp_path) -> dict:
     out = tmp_path / f"{command}.json"
-    assert main([command, str(path), "--json", str(out)]) == 0
+    # 3: written, with a failed verification check (the 230 kV demo; README, exit codes)
+    assert main([command, str(path), "--json", str(out)]) in (0, 3)
     return json.loads(out.read_text("utf-8"))
 
 

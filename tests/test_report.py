@@ -140,7 +140,9 @@ def test_header_footer_and_not_approved_mark_on_every_page(demo_reports):
             assert f"page {k} of {len(pages)}" in page
             if d["study"]["status"] != "approved":
                 assert "NOT APPROVED FOR USE" in page
-        assert "not verified" in pages[0].lower()  # no verification result yet
+        # the cover carries the verification verdict (settings studies are verified)
+        verdict = (d.get("verification") or {}).get("verdict", "not verified")
+        assert verdict in pages[0].lower()
 
 
 def test_two_runs_give_identical_bytes(demo_path, tmp_path):
@@ -154,6 +156,7 @@ def test_two_runs_give_identical_bytes(demo_path, tmp_path):
 def test_approved_study_without_failed_checks_has_no_mark(variant, tmp_path):
     def edit(d):
         d["study"]["status"] = "approved"
+        d["study"]["checked_by"] = "R. Roe"  # approved needs the checker's name too
         d["study"]["approved_by"] = "J. Doe"
 
     path = variant("kessler_oxbow_115kv.toml", edit)
@@ -161,7 +164,8 @@ def test_approved_study_without_failed_checks_has_no_mark(variant, tmp_path):
 
     res = study_settings(path)
     rep = build.make_report(res, environ={"SOURCE_DATE_EPOCH": "1790000000"})
-    failed = any(not c.passed for s in res.settings for z in s.zones for c in z.checks)
+    failed = any(not c.passed for s in res.settings for z in s.zones for c in z.checks) or (
+        res.verification.verdict == "failed checks")
     text = " ".join(_pdf_text(rep.pdf))
     assert ("NOT APPROVED FOR USE" in text) == failed
     with pikepdf.open(io.BytesIO(rep.pdf)) as pdf:

@@ -104,8 +104,11 @@ def test_zone1_follows_reach_study_when_budget_is_large(variant):
     e = res.reach.ends[0].arrangement("actual_plan").worst_bolted_overreach_at_remote_bus_pct
     budget = 1.0 + 1.0 + 30.0 + 3.0
     assert rec == pytest.approx(int(100 / (1 + (budget + max(e, 0)) / 100) * 2) / 2)
-    assert res.settings[0].zone("zone1").reach_pct == pytest.approx(rec)
+    # The fault simulation may limit zone 1 further (remote-bus faults with the tolerance on
+    # top of the simulated overreach); never beyond the reach study's recommendation.
+    assert res.settings[0].zone("zone1").reach_pct <= rec
     assert "zone1_reduced_by_reach_study" in res.settings[0].warning_ids()
+    assert res.verification.ends[0].check("zone1", "no_operation_at_remote_bus").passed
 
 
 def test_settings_error_names_the_study_field(capsys, tmp_path, variant):

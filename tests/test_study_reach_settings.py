@@ -164,10 +164,15 @@ def test_error_budget_reaches_the_zone1_recommendation_and_the_settings(variant)
     assert end.recommended_zone1_pct == r
     assert r < 80.0  # the budget rules here, so the settings must follow it
     z1 = res.settings[0].zone("zone1")
-    assert z1.reach_pct == pytest.approx(r, rel=1e-12, abs=0)
+    # The verification's fault simulation (every parallel state, source and load case,
+    # resistive faults, the resistivity range) may limit zone 1 further, never less.
+    assert z1.reach_pct <= r
+    if z1.reach_pct < r:
+        assert "zone1_limited_by_simulation" in res.settings[0].warning_ids()
     (check,) = [c for c in z1.checks if c.check_id == "reach_study_margin"]
     worst = float(re.search(r"worst-case reach ([0-9.]+) %", check.detail).group(1))
-    assert worst == pytest.approx(r * (1 + total / 100), rel=5e-4, abs=0)  # printed to 4 digits
+    # printed to 4 digits; the simulated overreach is at least the reach study's
+    assert worst >= z1.reach_pct * (1 + total / 100) * (1 - 5e-4)
 
 
 # ------------------------------------------------------------------- arc length glue

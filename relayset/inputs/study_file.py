@@ -184,6 +184,18 @@ class StudyInfo(_Model):
     philosophy: Annotated[str, AfterValidator(_path_text)] = "default"
     notes: _text(10_000) = ""  # type: ignore[valid-type]
 
+    @model_validator(mode="after")
+    def _check_signatures(self) -> StudyInfo:
+        # Who signs: a calculation for review names its preparer; an approved one also its
+        # checker and approver.
+        needed = {"for review": ("prepared_by",),
+                  "approved": ("prepared_by", "checked_by", "approved_by")}.get(self.status, ())
+        missing = [f for f in needed if not getattr(self, f).strip()]
+        if missing:
+            raise ValueError(f"status {self.status!r} needs a name in "
+                             + " and ".join(missing))
+        return self
+
 
 class Revision(_Model):
     """One entry of the revision history (``[[revisions]]``), printed in the report."""
@@ -200,6 +212,18 @@ class SystemData(_Model):
     # Sea water (about 0.2 ohm*m) to dry rock (about 1e4 ohm*m), with room on both sides.
     earth_resistivity: _quantity("resistivity", ge=0.1, le=1e5)  # type: ignore[valid-type]
     earth_model: str = "carson"
+    # Uncertainty of the resistivity [low, high], swept by the verification (k0 moves with it).
+    earth_resistivity_range: tuple[_quantity("resistivity", gt=0),  # type: ignore[valid-type]
+                                   _quantity("resistivity", gt=0)] | None = None  # type: ignore[valid-type]
+
+    @model_validator(mode="after")
+    def _check_range(self) -> SystemData:
+        r = self.earth_resistivity_range
+        if r is not None and not r[0] <= self.earth_resistivity <= r[1]:
+            raise ValueError(
+                f"earth_resistivity_range [{r[0]:g}, {r[1]:g}] ohm*m must run from low to "
+                f"high and contain earth_resistivity = {self.earth_resistivity:g} ohm*m")
+        return self
 
     @model_validator(mode="after")
     def _check(self) -> SystemData:
@@ -350,6 +374,13 @@ def _vt_ratio(v: Any) -> float:
 VT_SECONDARY_MIN_V, VT_SECONDARY_MAX_V = 56.0, 250.0
 
 
+class EndTransformers(_Model):
+    """Instrument-transformer ratios of the relay at one end, where they differ."""
+
+    ct_ratio: Annotated[float, BeforeValidator(_ct_ratio)] | None = None
+    vt_ratio: Annotated[float, BeforeValidator(_vt_ratio)] | None = None
+
+
 class RelayData(_Model):
     end: _text(100, min_len=1)  # type: ignore[valid-type]
     ct_ratio: Annotated[float, BeforeValidator(_ct_ratio)]
@@ -357,6 +388,15 @@ class RelayData(_Model):
     z1_set: ComplexOhm | None = None  # type: ignore[valid-type]
     k0_set: K0Setting | None = None
     k0m_set: K0Setting | None = None
+    #: ``[relay.at.SUBSTATION]``: CT/VT ratios of the relay at that end, if not the above.
+    at: dict[str, EndTransformers] = Field(default_factory=dict)
+
+    def ratios(self, end: str) -> tuple[float, float]:
+        """(CT ratio, VT ratio) of the relay at ``end``."""
+        own = self.at.get(end)
+        ct = own.ct_ratio if own is not None and own.ct_ratio is not None else self.ct_ratio
+        vt = own.vt_ratio if own is not None and own.vt_ratio is not None else self.vt_ratio
+        return ct, vt
 
 
 class SourceData(_Model):
@@ -414,7 +454,13 @@ class LoadData(_Model):
 
 class SourceCase(_Model):
     name: Name  # type: ignore[valid-type]
-    scale: _number(ge=0.01, le=100)  # type: ignore[valid-type]
+    scale: _number(ge=0.01, le=100) = 1.0  # type: ignore[valid-type]
+    #: Per-end factors, e.g. ``at = {Elsford = 2.0}`` (weak there); ends not named: ``scale``.
+    at: dict[str, _number(ge=0.01, le=100)] = Field(default_factory=dict)  # type: ignore[valid-type]
+
+    def scale_at(self, end: str) -> float:
+        """The factor on the source impedance at ``end`` [1]."""
+        return float(self.at.get(end, self.scale))
 
 
 #: Finest fault-location step [% of the line]: 10 000 locations, already far finer than any
@@ -740,12 +786,17 @@ def check_study(study: Study, data: dict, source: str) -> None:
         # VT secondaries are about 57.7-240 V (100-120 V line to line, or that over sqrt 3;
         # 240 V in a few grids): common practice, no source. The bounds allow a VT primary a
         # little off the nominal voltage; outside them the ratio or the voltage is wrong.
-        v_sec = study.system.nominal_voltage / study.relay.vt_ratio
-        if not VT_SECONDARY_MIN_V <= v_sec <= VT_SECONDARY_MAX_V:
-            fail(f"gives {v_sec:.4g} V on the secondary at the nominal "
-                 f"{_raw(data, 'system', 'nominal_voltage')}; VT secondaries are "
-                 f"{VT_SECONDARY_MIN_V:g}-{VT_SECONDARY_MAX_V:g} V: check the ratio against "
-                 "the line voltage", "relay.vt_ratio", _raw(data, "relay", "vt_ratio"))
+        vts = [(("relay",), study.relay.vt_ratio)]
+        vts += [(("relay", "at", end), t.vt_ratio) for end, t in study.relay.at.items()
+                if t.vt_ratio is not None]
+        for path, vt in vts:
+            v_sec = study.system.nominal_voltage / vt
+            if not VT_SECONDARY_MIN_V <= v_sec <= VT_SECONDARY_MAX_V:
+                fail(f"gives {v_sec:.4g} V on the secondary at the nominal "
+                     f"{_raw(data, 'system', 'nominal_voltage')}; VT secondaries are "
+                     f"{VT_SECONDARY_MIN_V:g}-{VT_SECONDARY_MAX_V:g} V: check the ratio "
+                     "against the line voltage", ".".join((*path, "vt_ratio")),
+                     _raw(data, *path, "vt_ratio"))
     names = [c.name for c in study.circuits]
     if len(set(names)) != len(names):
         fail("the two circuits need different names", "circuits[1].name", names[1])
@@ -775,12 +826,21 @@ def check_study(study: Study, data: dict, source: str) -> None:
         if end != "both" and end not in ends:
             fail(f"is not an end of this line; use {ends[0]!r}, {ends[1]!r} or 'both'"
                  + suggest(end, ends), "relay.end", end)
+        for key in study.relay.at:
+            if key not in ends:
+                fail(f"names no end of this line (the ends are {ends[0]!r} and {ends[1]!r})"
+                     + suggest(key, ends), f"relay.at.{_key(key)}")
     for key in study.sources:
         if key not in ends:
             fail(f"names no end of this line (the ends are {ends[0]!r} and {ends[1]!r})"
                  + suggest(key, ends), f"sources.{_key(key)}")
 
     rs = study.reach_study
+    for k, case in enumerate(rs.source_cases):
+        for key in case.at:
+            if key not in ends:
+                fail(f"names no end of this line (the ends are {ends[0]!r} and {ends[1]!r})"
+                     + suggest(key, ends), f"reach_study.source_cases[{k}].at.{_key(key)}")
     if len(study.circuits) == 1 and rs.parallel_circuit is not None:
         fail("the line has one circuit, so there is no parallel circuit to set",
              "reach_study.parallel_circuit", rs.parallel_circuit)

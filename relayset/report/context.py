@@ -501,23 +501,34 @@ def _settings_ends(d: dict[str, Any]) -> list[dict[str, Any]]:
 
 
 def _verification(r) -> dict[str, Any]:
-    """The verification section. ``StudyResults.verification`` is added by issue 8; until it
-    is present (or when it is None) the report says "not verified"."""
+    """The verification section: one row per relay end and check; "not verified" when the
+    study has none (parameters or reach only)."""
     v = getattr(r, "verification", None)
     if v is None:
         return {"verdict": NOT_VERIFIED, "present": False, "zones": []}
     vd = v.to_dict() if hasattr(v, "to_dict") else dict(v)
     zones = []
-    for z in vd.get("zones", []) or []:
-        zones.append({
-            "end": str(z.get("end", "")),
-            "zone": str(z.get("zone", "")),
-            "cases_run": str(z.get("cases_run", "–")),
-            "margin": num(z.get("margin_pct"), PRECISION["pct"]),
-            "fails": [{"case": str(f.get("case", f)) if isinstance(f, dict) else str(f),
-                       "detail": str(f.get("detail", "")) if isinstance(f, dict) else ""}
-                      for f in z.get("fails", []) or []],
-        })
+    # One row per end and check (results/verification.py: ends[].checks[]).
+    for e in vd.get("ends", []) or []:
+        for c in e.get("checks", []) or []:
+            fails = []
+            if c.get("result") == "FAIL":
+                g = c.get("governing_case")
+                case = c.get("requirement", "")
+                if g:
+                    case = (f"{g['fault_type']} on the {g['faulted']} at "
+                            f"{num(g['location_pct'], PRECISION['pct'])} %, Rf "
+                            f"{g['r_fault_ohm']:.3g} ohm, {g['source_case']}, parallel "
+                            f"{g['parallel_state']}, {g['earth_resistivity_ohm_m']:g} ohm*m, "
+                            f"loop {g['loop']}")
+                fails.append({"case": case, "detail": str(c.get("consider", ""))})
+            zones.append({
+                "end": str(e.get("end", "")),
+                "zone": f"{c.get('zone', '')} {c.get('check_id', '')}",
+                "cases_run": str(c.get("cases_run", "–")),
+                "margin": num(c.get("margin_pct"), PRECISION["pct"]),
+                "fails": fails,
+            })
     return {"verdict": str(vd.get("verdict", NOT_VERIFIED)), "present": True, "zones": zones}
 
 

@@ -10,6 +10,7 @@ from relayset.results.parameters import LineParameters
 from relayset.results.reach import ReachStudyResult
 from relayset.results.relay import RelayBasis
 from relayset.results.settings import SettingsResult
+from relayset.results.verification import VerificationResult
 
 CAUTION = (
     "This calculation must be reviewed and approved by a licensed professional engineer "
@@ -32,6 +33,7 @@ class StudyResults:
     reach: ReachStudyResult | None = None
     settings: tuple[SettingsResult, ...] | None = None  #: one per relay end
     philosophy: dict[str, Any] | None = None  #: the setting philosophy applied
+    verification: VerificationResult | None = None  #: the settings tested by simulation
     caution: str = CAUTION
 
     def to_dict(self) -> dict[str, Any]:
@@ -50,5 +52,7 @@ class StudyResults:
         if self.settings is not None:
             d["settings"] = {"ends": [s.to_dict() for s in self.settings]}
             d["philosophy"] = self.philosophy
+        if self.verification is not None:
+            d["verification"] = self.verification.to_dict()
         d["input"] = self.study_input
         return d

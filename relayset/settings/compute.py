@@ -204,6 +204,10 @@ def compute_settings(
             m = 1 + rs.margin_pct / 100
             r_ph = m * ra_ph / 2
             r_g = m * (ra_g + i.tower_footing_ohm) / abs(1 + k0)
+            if i.resistive_need_ohm and zone in i.resistive_need_ohm:
+                # Remote infeed into the fault resistance, from the fault simulation.
+                need_ph, need_g = i.resistive_need_ohm[zone]
+                r_ph, r_g = max(r_ph, m * need_ph), max(r_g, m * need_g)
             cut = max(r_ph, r_g) > r_limit
             checks.append(Check(
                 "resistive_load_limit", not cut,

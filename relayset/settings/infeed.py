@@ -10,6 +10,11 @@ def infeed(w: RuleContext, zone: str, mode: str, factor: float) -> tuple[complex
     i = w.inputs
     if mode == "given":
         return complex(factor), f"infeed factor {factor:g} (given)"
+    if i.infeed_range is not None:
+        # Simulated range: zone 2 graded at the least infeed, zone 3 sized at the most.
+        k = i.infeed_range[0] if zone == "zone2" else i.infeed_range[1]
+        which = "minimum" if zone == "zone2" else "maximum"
+        return complex(k), f"infeed factor {abs(k):.3g} ({which} of the simulated cases)"
     if i.source_z1_relay_ohm is None or i.source_z1_remote_ohm is None:
         w.warn(
             f"{zone}_infeed_not_computed",

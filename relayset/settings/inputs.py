@@ -107,6 +107,17 @@ class SettingsInputs:
         Zone 1 reach recommended by the untransposition reach study [% of the line].
     worst_overreach_pct : float, optional
         Worst-case zone 1 overreach found by the reach study [% of the zone 1 setting].
+    infeed_range : (complex, complex), optional
+        Smallest and largest infeed factor K at the remote bus found by fault simulation
+        (source cases, parallel circuit) [1]; with ``infeed = "computed"`` zone 2 is graded
+        at the smallest and zone 3 sized at the largest.
+    resistive_need_ohm : dict, optional
+        Per zone, (phase, ground) resistive reach the simulated faults with remote infeed
+        into the fault resistance need [ohm]; a quadrilateral's blinder reaches at least
+        this far (times the philosophy's resistive margin), load permitting.
+    reverse_cover_ohm : float, optional
+        How far past the relay bus, along the line angle, the remote end's zone 2 reaches,
+        with the verification tolerance [ohm]; the reverse zone reaches at least this far.
     """
 
     z1_line_ohm: complex
@@ -134,6 +145,9 @@ class SettingsInputs:
     worst_overreach_pct: float | None = None
     end: str = "relay"
     remote_end: str = "remote"
+    infeed_range: tuple[complex, complex] | None = None
+    reverse_cover_ohm: float | None = None
+    resistive_need_ohm: dict[str, tuple[float, float]] | None = None
 
     def __post_init__(self) -> None:
         def put(name: str, value: Any) -> None:

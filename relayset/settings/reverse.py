@@ -6,6 +6,19 @@ from relayset.settings.context import RuleContext, pick_line
 
 
 def reverse_target(w: RuleContext) -> tuple[complex, str]:
+    target, text = _rule_target(w)
+    cover = w.inputs.reverse_cover_ohm
+    if cover is not None and cover > abs(target):
+        # A blocking scheme needs the reverse zone to see every fault the remote zone 2 sees
+        # behind this bus.
+        zl = w.inputs.z1_line_ohm
+        return (-cover * zl / abs(zl),
+                f"covers the remote end's zone 2 past this bus ({cover:.4g} Ω with the "
+                f"tolerance; the rule gives {abs(target):.4g} Ω: {text})")
+    return target, text
+
+
+def _rule_target(w: RuleContext) -> tuple[complex, str]:
     i, rv = w.inputs, w.ph.reverse
     by_line = -(rv.reach_pct / 100) * i.z1_line_ohm
     text_line = f"{rv.reach_pct:g} % of the protected line, reverse"

@@ -70,7 +70,7 @@ def run(path: str | Path, *, reach: bool = False, settings: bool = False) -> Stu
     """Compute a study: parameters always, the reach study and settings on request."""
     from relayset.studies.reach import run_reach_study
     from relayset.studies.relay import resolve_relay
-    from relayset.studies.settings import run_settings, study_philosophy
+    from relayset.studies.settings import study_philosophy
 
     reach = reach or settings  # zone 1 follows the reach study
     loaded = load(path)
@@ -83,9 +83,13 @@ def run(path: str | Path, *, reach: bool = False, settings: bool = False) -> Stu
         relay = resolve_relay(study, params)
         philosophy = study_philosophy(study, src)
         reach_res = run_reach_study(study, geo, params, relay, philosophy, source=src)
+    verification = None
     if settings:
-        settings_res = run_settings(study, geo, params, relay, reach_res, philosophy,
-                                    source=src)
+        from relayset.studies.verification import settle_and_verify
+
+        # Settings closed by fault simulation (zone 1, infeed, reverse zone), then verified.
+        settings_res, verification = settle_and_verify(study, geo, params, relay, reach_res,
+                                                       philosophy, source=src)
     return StudyResults(
         relayset_version=relayset_version(),
         source_file=src,
@@ -97,4 +101,5 @@ def run(path: str | Path, *, reach: bool = False, settings: bool = False) -> Stu
         reach=reach_res,
         settings=settings_res,
         philosophy=philosophy.to_dict() if settings else None,
+        verification=verification,
     )

@@ -137,7 +137,8 @@ def run_reach_study(
     rf = np.array(rs.fault_resistances or (0.0,))
     if 0.0 not in rf:
         rf = np.concatenate([[0.0], rf])
-    scales = np.array([c.scale for c in rs.source_cases])
+    # (K, 2): the factor on each end's source (a case may weaken one end only).
+    scales = np.array([[c.scale_at(names[0]), c.scale_at(names[1])] for c in rs.source_cases])
     angles = np.array(study.load.transfer_angles if study.load else (0.0,))
     if study.load and study.load.power_flows:
         angles = np.zeros(len(study.load.power_flows))  # replaced by the EMFs of each flow

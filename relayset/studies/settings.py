@@ -4,6 +4,7 @@ from __future__ import annotations
 
 import math
 from pathlib import Path
+from typing import Any
 
 from relayset.errors import InputError
 from relayset.inputs.philosophy import Philosophy, default_philosophy, load_philosophy
@@ -74,20 +75,33 @@ def _phase_spacing_m(geo: LineGeometry) -> float:
 
 def run_settings(study: Study, geo: LineGeometry, params: LineParameters, relay: RelayBasis,
                  reach: ReachStudyResult | None, philosophy: Philosophy, *,
-                 source: str) -> tuple[SettingsResult, ...]:
-    """Settings of the relay at each of ``relay.ends``, in the study's end order."""
+                 source: str, ends: tuple[str, ...] | None = None,
+                 simulated: dict[str, dict[str, Any]] | None = None
+                 ) -> tuple[SettingsResult, ...]:
+    """Settings of the relay at each of ``relay.ends`` (or ``ends``), in that order.
+
+    ``simulated`` holds, per end, what the verification's fault simulation found:
+    ``zone1_limit`` (recommended reach [%], worst overreach [% of setting]; the stricter of
+    it and the reach study's applies), ``infeed_range`` (K min, K max) and
+    ``reverse_cover_ohm``.
+    """
     check_settings_inputs(study, source)
     names = study.ends
     out = []
-    for end in relay.ends:
+    for end in ends or relay.ends:
         other = names[1] if end == names[0] else names[0]
         rec = worst = None
-        if reach is not None:
-            er = next(e for e in reach.ends if e.end == end)
+        er = None if reach is None else next((e for e in reach.ends if e.end == end), None)
+        if er is not None:
             rec = er.recommended_zone1_pct
             # Worst-case zone 1 overreach in % of its setting: error budget + untransposition.
             e = er.arrangement("actual_plan").worst_bolted_overreach_at_remote_bus_pct
             worst = er.error_budget_pct + max(0.0, e)
+        sim = (simulated or {}).get(end, {})
+        if "zone1_limit" in sim:
+            lim, over = sim["zone1_limit"]
+            rec = lim if rec is None else min(rec, lim)
+            worst = over if worst is None else max(worst, over)
         src_relay = build_source(study, end, source)
         src_remote = build_source(study, other, source)
         fr = study.fault_resistance
@@ -102,8 +116,8 @@ def run_settings(study: Study, geo: LineGeometry, params: LineParameters, relay:
                 k0_line=circ.k0.k0,
                 z1_line_computed_ohm=circ.z1_ohm,
                 length_m=geo.length_m,
-                ct_ratio=relay.ct_ratio,
-                vt_ratio=relay.vt_ratio,
+                ct_ratio=study.relay.ratios(end)[0],
+                vt_ratio=study.relay.ratios(end)[1],
                 v_nominal_ll_v=geo.v_nominal_v,
                 s_max_va=study.load.max_apparent_power,
                 v_min_pu=study.load.min_voltage,
@@ -118,6 +132,9 @@ def run_settings(study: Study, geo: LineGeometry, params: LineParameters, relay:
                 tower_footing_ohm=fr.tower_footing_resistance,
                 recommended_zone1_pct=rec,
                 worst_overreach_pct=worst,
+                infeed_range=sim.get("infeed_range"),
+                reverse_cover_ohm=sim.get("reverse_cover_ohm"),
+                resistive_need_ohm=sim.get("resistive_need_ohm"),
             )
             out.append(compute_settings(inputs, philosophy))
         except InputError as exc:
