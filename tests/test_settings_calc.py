@@ -82,7 +82,9 @@ def inputs(**changes):
     return SettingsInputs(**base)
 
 
-COMPUTED = {"zone2": {"infeed": "computed"}, "zone3": {"infeed": "computed"}}
+# The worked example checks the rule itself, so the zone 3 cap is lifted out of its way.
+COMPUTED = {"zone2": {"infeed": "computed"},
+            "zone3": {"infeed": "computed", "max_reach_pct": 1000.0}}
 
 
 def test_worked_example_default_philosophy():
@@ -324,3 +326,20 @@ def test_quadrilateral_needs_arc_data():
     with pytest.raises(InputError) as e:
         compute_settings(inputs(source_z1_relay_ohm=None), ph)
     assert e.value.field == "arc_current_a"
+
+
+def test_zone3_capped_along_the_line_angle():
+    # Hand values: zone 3 = Z_L + K * 1.2 * Z_adj,longest = 4U + K * 1.2 * 3.2U = (4 + 3.84 K) U.
+    # With a given K = 1: 7.84 * |U| = 196 % of the 4U line, under the default 300 % cap.
+    # With K = 5: (4 + 19.2) U = 580 % of the line; the philosophy caps it at 300 % along the
+    # line angle (capping is common practice, no source) and warns.
+    ph = default_philosophy()
+    r = compute_settings(inputs(), ph)
+    assert r.zone("zone3").reach_pct == pytest.approx(196.0, rel=1e-12, abs=0)
+    assert "zone3_capped" not in r.warning_ids()
+    ph5 = ph.with_changes({"zone3": {"infeed_factor": 5.0}})
+    r = compute_settings(inputs(), ph5)
+    z3 = r.zone("zone3")
+    assert z3.reach_pct == pytest.approx(300.0, rel=1e-12, abs=0)
+    assert z3.reach_primary_ohm == pytest.approx(3.0 * 4 * U, rel=1e-12, abs=0)
+    assert "zone3_capped" in r.warning_ids() and "asks 580 %" in z3.rule

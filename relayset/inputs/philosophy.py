@@ -66,6 +66,7 @@ class Zone3Philosophy(_Part):
     infeed: Infeed
     infeed_factor: Factor
     delay_s: Seconds
+    max_reach_pct: Pct  #: cap of the reach along the line angle [% of the line]
 
 
 class ReversePhilosophy(_Part):
@@ -193,6 +194,7 @@ def _check_rules(ph: Philosophy, source: str) -> None:
         ("zone2.reach_pct", z2.reach_pct, z1.reach_pct, "zone1.reach_pct"),
         ("zone3.reach_pct", z3.reach_pct, z2.reach_pct, "zone2.reach_pct"),
         ("zone3.adjacent_pct", z3.adjacent_pct, z2.adjacent_pct, "zone2.adjacent_pct"),
+        ("zone3.max_reach_pct", z3.max_reach_pct, z3.reach_pct, "zone3.reach_pct"),
     ]
     for field, value, below, name in order:
         if value <= below:
