@@ -22,7 +22,7 @@ from relayset.fleet.register import failed_row, rows_from_results, write_registe
 
 #: The HTML index and .xlsx are rewritten at most this often during a run [s] (the CSV after
 #: every line); all three are written at the end.
-REGISTER_REFRESH_S = 3.0
+REGISTER_REFRESH_S = 30.0
 
 #: What write_atomic leaves behind when a process is killed mid-write: ".NAME.XXXXXXXX".
 _STALE_TMP = re.compile(r"^\..+\.(json|pdf|html|csv|xlsx|toml)\.[A-Za-z0-9_]{8}$")
@@ -54,7 +54,7 @@ def _clean_stale(out_dir: Path) -> None:
                     f.unlink(missing_ok=True)
 
 
-def up_to_date(out_dir: Path, p: PlannedJob, version: str, report: bool) -> dict | None:
+def up_to_date(out_dir: Path, p: PlannedJob, report: bool) -> dict | None:
     """The existing results of a line when its input hash and the version match, else None.
 
     With ``report``, the line's report must be there too.
@@ -64,7 +64,13 @@ def up_to_date(out_dir: Path, p: PlannedJob, version: str, report: bool) -> dict
         d = json.loads(path.read_text("utf-8"))
     except (OSError, ValueError):
         return None
-    if d.get("source_sha256") != p.sha256 or d.get("relayset_version") != version:
+    if d.get("source_sha256") != p.sha256:
+        return None
+    # imported only when there is something to compare: a fresh batch leaves the pipeline
+    # to the workers instead of importing it here before they can start
+    from relayset.studies.pipeline import relayset_version
+
+    if d.get("relayset_version") != relayset_version():
         return None
     if report and not all((out_dir / f"{p.stem}{s}").is_file() for s in (".pdf", ".html")):
         return None
@@ -97,8 +103,8 @@ def run_batch(source: str | Path, out_dir: str | Path, *, workers: int | None = 
         The source as a whole is unusable (one line); nothing is written then.
     """
     from relayset.fleet import cluster as runners
+    from relayset.fleet.worker import write_line
     from relayset.io import write_atomic
-    from relayset.studies.pipeline import relayset_version
 
     t0 = time.monotonic()
     out = Path(out_dir)
@@ -117,7 +123,6 @@ def run_batch(source: str | Path, out_dir: str | Path, *, workers: int | None = 
                          value=str(out), source="command line") from None
     _clean_stale(out)
     title = title or f"relayset register: {source}"
-    version = relayset_version()
     summary = BatchSummary(out, total=len(jobs))
     progress = Progress(len(jobs), stream=stream)
     rows_by_job: dict[int, list[dict[str, Any]]] = {}
@@ -143,7 +148,7 @@ def run_batch(source: str | Path, out_dir: str | Path, *, workers: int | None = 
             progress.finished(job.label, err)
             continue
         stems[p.stem] = job.label
-        done = None if force else up_to_date(out, p, version, report)
+        done = None if force else up_to_date(out, p, report)
         if done is not None:
             rows_by_job[i] = rows_from_results(
                 done, results_file=f"{p.stem}.json",
@@ -173,7 +178,7 @@ def run_batch(source: str | Path, out_dir: str | Path, *, workers: int | None = 
             if p.effective is not None:
                 write_atomic(p.study_path, p.effective)
                 written_inputs.add(i)
-        tasks = [(i, str(p.study_path), p.stem, report) for i, p in planned.items()]
+        tasks = [(i, str(p.study_path), p.stem, report, str(out)) for i, p in planned.items()]
         if cluster:
             results = runners.run_dask(tasks, client)
         else:
@@ -183,9 +188,8 @@ def run_batch(source: str | Path, out_dir: str | Path, *, workers: int | None = 
         for res in results:
             p = planned[res.index]
             if res.ok:
-                # the JSON last: a line is done only when every one of its files is in place
-                for name in sorted(res.files, key=lambda n: n.endswith(".json")):
-                    write_atomic(out / name, res.files[name])
+                if res.files:  # from a cluster: written here, the JSON last
+                    write_line(out, res.files)
                 rows_by_job[res.index] = list(res.rows)
                 summary.computed += 1
             else:

@@ -1,7 +1,10 @@
 """Where the per-line work runs: in this process, a local process pool, or a Dask cluster.
 
-Each runner takes the tasks ``(index, study_path, stem, report)`` and yields
-:class:`~relayset.fleet.worker.Outcome` objects as lines finish, in any order.
+Each runner takes the tasks ``(index, study_path, stem, report, out_dir)`` and yields
+:class:`~relayset.fleet.worker.Outcome` objects as lines finish, in any order. With
+``out_dir`` set the worker writes the line's files itself (this machine, or a local pool);
+Dask tasks carry ``None`` and return the bytes, since a cluster worker need not see the
+output folder.
 """
 
 from __future__ import annotations
@@ -12,7 +15,7 @@ from collections.abc import Iterator, Sequence
 from relayset.errors import InputError
 from relayset.fleet.worker import Outcome, compute_line, init_worker
 
-Task = tuple[int, str, str, bool]
+Task = tuple[int, str, str, bool, str | None]
 
 
 def run_serial(tasks: Sequence[Task]) -> Iterator[Outcome]:
@@ -30,13 +33,20 @@ def default_workers() -> int:
 
 
 def run_pool(tasks: Sequence[Task], workers: int) -> Iterator[Outcome]:
-    """Compute the lines on a local process pool of ``workers`` processes."""
+    """Compute the lines on a local process pool of ``workers`` processes.
+
+    The processes live for the whole batch (one import of the pipeline each, in
+    :func:`~relayset.fleet.worker.init_worker`); each task sends a path and gets back the
+    register rows, the worker having written the line's files.
+    """
     import multiprocessing
     from concurrent.futures import ProcessPoolExecutor, as_completed
 
+    report = any(t[3] for t in tasks)
     # spawn: fresh interpreters, so the thread limits apply before numpy loads
     ctx = multiprocessing.get_context("spawn")
-    pool = ProcessPoolExecutor(max_workers=workers, mp_context=ctx, initializer=init_worker)
+    pool = ProcessPoolExecutor(max_workers=workers, mp_context=ctx, initializer=init_worker,
+                               initargs=(report,))
     try:
         futures = {pool.submit(compute_line, *t): t for t in tasks}
         for f in as_completed(futures):
@@ -67,6 +77,7 @@ def run_dask(tasks: Sequence[Task], client) -> Iterator[Outcome]:
     """Compute the lines on the Dask cluster of ``client``."""
     from distributed import as_completed
 
+    tasks = [(*t[:4], None) for t in tasks]  # the parent writes: bytes come back
     futures = [client.submit(compute_line, *t, pure=False,
                              key=f"relayset-line-{t[0]}-{os.getpid()}") for t in tasks]
     by_key = {f.key: t for f, t in zip(futures, tasks, strict=True)}
@@ -82,6 +93,6 @@ def _result(future, task: Task) -> Outcome:
     try:
         return future.result()
     except Exception as exc:
-        index, path, stem, _ = task
+        index, path, stem = task[:3]
         return Outcome(index, stem, error=f"{path}: the worker computing this line failed "
                        f"({type(exc).__name__}: {exc})".replace("\n", " "))

@@ -1,9 +1,14 @@
 """One line of the fleet, computed where the work runs (a local process or a Dask worker).
 
-The worker computes and renders everything in memory and returns the output files as bytes;
-the batch writes them atomically. A worker never writes, so a line that fails or a worker that
-dies leaves nothing behind. This module imports nothing heavy at the top, so a process pool
-can set the thread limits before numpy loads.
+The worker computes and renders everything in memory first. On a local pool (``out_dir``
+given) it then writes the line's files itself, atomically and the results JSON last, and hands
+back only the register rows: the parent stays free to collect results, and no report bytes
+cross the process boundary. On a cluster (``out_dir`` None: the workers need not see the
+output folder) it returns the files as bytes and the batch writes them. A line that fails is
+never written; a worker killed mid-write leaves at most hidden temporary files, which the next
+batch removes. This module imports nothing heavy at the top, so a process pool can set the
+thread limits before numpy loads; :func:`init_worker` then imports the pipeline (and the
+report renderer) once per process, and the pool reuses its processes for every line.
 """
 
 from __future__ import annotations
@@ -26,7 +31,8 @@ class Outcome:
     stem: str
     error: str | None = None
     rows: tuple[dict[str, Any], ...] = ()  #: register rows (one per relay end)
-    files: dict[str, bytes] = field(default_factory=dict)  #: output name -> bytes
+    files: dict[str, bytes] = field(default_factory=dict)  #: output name -> bytes (cluster)
+    written: tuple[str, ...] = ()  #: output names the worker wrote itself (local pool)
     seconds: float = 0.0  #: compute time in the worker [s]
 
     @property
@@ -34,10 +40,40 @@ class Outcome:
         return self.error is None
 
 
-def init_worker() -> None:
-    """Process-pool initializer: one BLAS thread per worker process."""
+def init_worker(report: bool = False) -> None:
+    """Process-pool initializer: one BLAS thread per process, then the imports, once.
+
+    Parameters
+    ----------
+    report : bool
+        Import the report renderer (and WeasyPrint) too.
+    """
+    import importlib
+
     for k, v in SINGLE_THREAD_ENV.items():
         os.environ.setdefault(k, v)
+    # every line of this process reuses these modules: pay the import once, before the
+    # first line, rather than inside the first line's timing
+    modules = ["relayset.studies.pipeline", "relayset.fleet.register", "relayset.io"]
+    if report:
+        modules += ["relayset.report.build", "weasyprint"]
+    for name in modules:
+        try:
+            importlib.import_module(name)
+        except ImportError:  # the line that needs it reports the error
+            pass
+
+
+def write_line(out_dir: Path, files: dict[str, bytes]) -> tuple[str, ...]:
+    """Write a line's files atomically, the results JSON last [-].
+
+    A line counts as done only when its JSON is in place, so the JSON is renamed last.
+    """
+    from relayset.io import write_all
+
+    names = sorted(files, key=lambda n: n.endswith(".json"))
+    write_all([("output", out_dir / n, files[n]) for n in names])
+    return tuple(names)
 
 
 def render_report(results) -> dict[str, bytes]:
@@ -48,8 +84,9 @@ def render_report(results) -> dict[str, bytes]:
     return {".html": r.html.encode("utf-8"), ".pdf": r.pdf, ".json": r.json.encode("utf-8")}
 
 
-def compute_line(index: int, study_path: str, stem: str, report: bool = True) -> Outcome:
-    """Compute one study end to end and return its outputs (nothing is written here).
+def compute_line(index: int, study_path: str, stem: str, report: bool = True,
+                 out_dir: str | None = None) -> Outcome:
+    """Compute one study end to end; write its outputs into ``out_dir``, or return them.
 
     Parameters
     ----------
@@ -61,6 +98,8 @@ def compute_line(index: int, study_path: str, stem: str, report: bool = True) ->
         Output file stem ``<line_id>_rev<revision>``.
     report : bool
         Render the calculation report too.
+    out_dir : str, optional
+        Write the files here (atomically, JSON last) instead of returning their bytes.
     """
     from relayset.errors import InputError
     from relayset.fleet.register import rows_from_results
@@ -75,6 +114,10 @@ def compute_line(index: int, study_path: str, stem: str, report: bool = True) ->
         files = {f"{stem}{suffix}": data for suffix, data in rendered.items()}
         report_file = f"{stem}.pdf" if report else None
         rows = tuple(rows_from_results(d, results_file=f"{stem}.json", report_file=report_file))
+        if out_dir is not None:
+            written = write_line(Path(out_dir), files)
+            return Outcome(index, stem, rows=rows, written=written,
+                           seconds=time.perf_counter() - t0)
     except InputError as exc:
         return Outcome(index, stem, error=str(exc), seconds=time.perf_counter() - t0)
     except Exception as exc:  # one line's bug must not stop the fleet; it is still reported
