@@ -225,3 +225,36 @@ def test_missing_source_and_output_is_a_file(tmp_path):
     f.write_text("x")
     with pytest.raises(InputError, match="output folder is a file"):
         run_batch(_fleet(tmp_path, names=FAST[:1]), f, workers=1, report=False)
+
+
+def test_register_reach_errors_and_verification_per_end():
+    """Register columns against the results objects of the same study (one results model):
+    the reach errors of the actual plan as the relay is set, and the verification of each end.
+    """
+    from relayset.fleet.register import rows_from_results
+
+    res = pipeline.run(DEMO / FAST[1], settings=True)  # 230 kV double circuit, fails checks
+    rows = rows_from_results(res.to_dict(), results_file="x.json", report_file=None)
+    assert len(rows) == len(res.settings) >= 1
+    for row in rows:
+        end = next(e for e in res.reach.ends if e.end == row["end"])
+        # the relay as set: mutual compensation on (the study's relay uses k0m), the plan's
+        # own arrangement, not the comparison run without mutual compensation
+        plan = end.arrangement("actual_plan", mutual=end.k0m_set is not None)
+        assert_allclose([row["overreach_at_remote_bus_pct"], row["overreach_on_line_pct"],
+                         row["underreach_on_line_pct"]],
+                        [plan.worst_bolted_overreach_at_remote_bus_pct,
+                         plan.worst_bolted_overreach_on_line_pct,
+                         plan.worst_bolted_underreach_on_line_pct], rtol=1e-12, atol=0)
+        # identities: the remote bus is a point of the line, so the worst overreach along
+        # the line is at least the one at the remote bus; underreach never exceeds overreach
+        assert row["overreach_on_line_pct"] >= row["overreach_at_remote_bus_pct"]
+        assert row["underreach_on_line_pct"] <= row["overreach_on_line_pct"]
+        ve = res.verification.end(row["end"])
+        assert row["failed_checks"] == sum(not c.passed for c in ve.checks)
+        assert row["end_verification"] == ("pass" if ve.passed else "FAIL")
+        s = next(s for s in res.settings if s.end == row["end"])
+        assert row["warnings"] == len(s.warnings)
+    # README: the 230 kV demo fails on mutual compensation, resistive coverage and zone 3
+    assert rows[0]["verification"] == "failed checks" and rows[0]["failed_checks"] >= 3
+    assert rows[0]["end_verification"] == "FAIL"

@@ -32,9 +32,16 @@ COLUMNS: tuple[tuple[str, str], ...] = (
     ("zone2_secondary_ohm", "zone 2 reach, secondary [ohm]"),
     ("zone3_secondary_ohm", "zone 3 reach, secondary [ohm]"),
     ("reverse_secondary_ohm", "reverse zone reach, secondary [ohm]"),
-    ("worst_reach_error_pct", "worst bolted overreach at the remote bus, actual plan [%]"),
-    ("verification", "verification verdict"),
-    ("warnings", "number of setting warnings"),
+    ("overreach_at_remote_bus_pct",
+     "worst bolted overreach at the remote bus, actual plan, relay as set [%]"),
+    ("overreach_on_line_pct", "worst bolted overreach along the line, actual plan [%]"),
+    ("underreach_on_line_pct",
+     "worst bolted underreach along the line, actual plan [%] (negative: the relay sees "
+     "the fault farther away)"),
+    ("verification", "verification verdict of the study (all ends)"),
+    ("end_verification", "verification of this relay end (pass / FAIL)"),
+    ("failed_checks", "number of failed verification checks at this end"),
+    ("warnings", "number of setting warnings at this end"),
     ("input_sha256", "SHA-256 of the study file computed"),
     ("relayset_version", "relayset version"),
     ("report_file", "report (PDF)"),
@@ -53,6 +60,17 @@ def _re_im(z: Any) -> tuple[float | None, float | None]:
     return None, None
 
 
+def actual_plan(reach_end: dict[str, Any]) -> dict[str, Any]:
+    """The reach study's actual-plan arrangement of one end, as the relay is set.
+
+    The reach study lists the actual plan first with the relay's own mutual compensation (the
+    arrangement its zone 1 recommendation comes from); a double circuit may list it again
+    without mutual compensation, for comparison.
+    """
+    return next((a for a in reach_end.get("arrangements", [])
+                 if a.get("arrangement") == "actual_plan"), {})
+
+
 def rows_from_results(d: dict[str, Any], *, results_file: str,
                       report_file: str | None) -> list[dict[str, Any]]:
     """Register rows of one study (one per relay end) from its results JSON.
@@ -69,7 +87,9 @@ def rows_from_results(d: dict[str, Any], *, results_file: str,
     z1r, z1x = _re_im(c.get("z1_ohm"))
     z0r, z0x = _re_im(c.get("z0_ohm"))
     k0 = (d.get("relay") or {}).get("k0_set") or {}
-    verdict = (d.get("verification") or {}).get("verdict") or NOT_VERIFIED
+    ver = d.get("verification") or {}
+    verdict = ver.get("verdict") or NOT_VERIFIED
+    ver_ends = {e["end"]: e for e in ver.get("ends", [])}
     reach_ends = {e["end"]: e for e in (d.get("reach_study") or {}).get("ends", [])}
     base = {
         "line_id": s.get("line_id"), "revision": s.get("revision"), "status": s.get("status"),
@@ -88,8 +108,16 @@ def rows_from_results(d: dict[str, Any], *, results_file: str,
             zone = end.get("zones", {}).get(z) or {}
             row[f"{z}_primary_ohm"] = zone.get("reach_primary_magnitude_ohm")
             row[f"{z}_secondary_ohm"] = zone.get("reach_secondary_magnitude_ohm")
-        gov = (reach_ends.get(end["end"]) or {}).get("governing_case") or {}
-        row["worst_reach_error_pct"] = gov.get("error_pct")
+        plan = actual_plan(reach_ends.get(end["end"]) or {})
+        row["overreach_at_remote_bus_pct"] = plan.get("worst_bolted_overreach_at_remote_bus_pct")
+        row["overreach_on_line_pct"] = plan.get("worst_bolted_overreach_on_line_pct")
+        row["underreach_on_line_pct"] = plan.get("worst_bolted_underreach_on_line_pct")
+        ve = ver_ends.get(end["end"])
+        if ve is not None:
+            row["end_verification"] = ve.get("result")
+            row["failed_checks"] = sum(c.get("result") == "FAIL" for c in ve.get("checks", []))
+        else:
+            row["end_verification"] = NOT_VERIFIED
         rows.append({k: row.get(k) for k in NAMES})
     return rows
 
