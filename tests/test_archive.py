@@ -2,12 +2,25 @@
 
 from __future__ import annotations
 
+import cmath
+import dataclasses
+import io
+import math
+import re
 import tomllib
 
 import pytest
 from numpy.testing import assert_allclose
 
-from relayset.archive.compare import compare, format_table, write_change_sheet
+from relayset.archive.compare import (
+    DISPLAY_RTOL,
+    compare,
+    format_table,
+    numeric_change,
+    show,
+    shown,
+    write_change_sheet,
+)
 from relayset.archive.verify import verify_report
 from relayset.cli import main
 from relayset.resources import demo_lines_dir
@@ -98,15 +111,8 @@ def test_not_a_report_one_line_each_and_the_rest_verified(archived, tmp_path, ca
 
 
 def test_compare_two_revisions(tmp_path, capsys):
-    data = tomllib.loads((demo_lines_dir() / NAME).read_text("utf-8"))
-    old = tmp_path / "rev0.toml"
-    old.write_text(dump_toml(data), "utf-8")
-    data["study"]["revision"] = "1"
-    data["conductor_types"]["phase"]["code"] = "556.5 ACSR"
-    data["relay"]["ct_ratio"] = "800/5 A"
-    new = tmp_path / "rev1.toml"
-    new.write_text(dump_toml(data), "utf-8")
-    c = compare(old, new)
+    c = _two_revisions(tmp_path)
+    old, new = c.old_source, c.new_source
     by = {(ch.section, ch.name): ch for ch in c.changes}
     assert by[("inputs", "conductor_types.phase.code")].new == "556.5 ACSR"
     assert by[("inputs", "relay.ct_ratio")].old == "600/5 A"
@@ -127,3 +133,117 @@ def test_compare_two_revisions(tmp_path, capsys):
     assert paths[1].read_bytes()[:5] == b"%PDF-"
     assert main(["compare", str(old), str(new)]) == 0
     assert "conductor_types.phase.code" in capsys.readouterr().out
+
+
+def _two_revisions(tmp_path):
+    """Revision 0 of a demo line and revision 1 with a larger conductor and a new CT ratio."""
+    data = tomllib.loads((demo_lines_dir() / NAME).read_text("utf-8"))
+    old = tmp_path / "rev0.toml"
+    old.write_text(dump_toml(data), "utf-8")
+    data["study"]["revision"] = "1"
+    data["conductor_types"]["phase"]["code"] = "556.5 ACSR"
+    data["relay"]["ct_ratio"] = "800/5 A"
+    new = tmp_path / "rev1.toml"
+    new.write_text(dump_toml(data), "utf-8")
+    return compare(old, new)
+
+
+@pytest.fixture(scope="module")
+def revisions(tmp_path_factory):
+    return _two_revisions(tmp_path_factory.mktemp("revisions"))
+
+
+def test_change_rows_drop_round_off_and_show_meaningful_digits():
+    # identities: an unchanged value, round-off of a value and of a value that is zero in
+    # theory (a remote-bus overreach of 7e-14 %) are not changes
+    assert numeric_change("results", "x", 16.9238, 16.9238) is None
+    assert numeric_change("results", "x", 16.9238, 16.9238 * (1 + 1e-12)) is None
+    assert numeric_change("results", "x", 6.66e-14, 8.88e-14) is None
+    assert numeric_change("results", "x", 2.0, 2.0 * (1 + 0.5 * DISPLAY_RTOL)) is None
+    # a real change of 0.004 % keeps its digits (hand arithmetic: 1.00004 / 1 - 1 = 4e-5)
+    ch = numeric_change("settings", "x", 1.0, 1.00004)
+    assert shown(ch) == ("1", "1.00004", "+0.00400 %")
+    assert shown(numeric_change("settings", "x", 80.0, 79.5))[2] == "−0.625 %"
+    # a pure rotation: no magnitude change, the angle change in degrees (hand arithmetic)
+    a = cmath.rect(10.0, math.radians(30.0))
+    ch = numeric_change("settings", "z", a, cmath.rect(10.0, math.radians(30.01)))
+    assert ch.pct is None
+    assert_allclose(ch.angle_change_deg, 0.01, rtol=1e-9, atol=0)
+    assert shown(ch) == ("10 ∠ 30.000°", "10 ∠ 30.010°", "∠ +0.0100°")
+
+
+def test_change_sheet_values_are_magnitude_and_angle_as_the_settings_print(revisions):
+    """Reaches on the sheet against `relayset settings` rows (report.tables.settings_rows) of
+    the same revision: the same magnitude and angle, to the digits shown."""
+    from relayset.report.tables import settings_rows
+    from relayset.studies import pipeline
+
+    c = revisions
+    res = pipeline.run(c.new_source, settings=True)
+    rows = {name: value for name, value, _ in settings_rows(res.settings[0])}
+    ch = next(ch for ch in c.changes
+              if ch.name == "Kessler Junction zone1 reach primary [ohm]")
+    m = re.fullmatch(r"([\d.]+) ∠ (−?[\d.]+)°", shown(ch)[1])
+    assert m, shown(ch)
+    assert_allclose(float(m.group(1)), rows["Zone 1 reach, primary"], rtol=1e-4, atol=0)
+    assert_allclose(float(m.group(2).replace("−", "-")), rows["Zone 1 reach angle"],
+                    rtol=0, atol=0.005)
+    for ch in c.changes:  # no complex number in R + jX form, no "0.00 %" non-change
+        old, new, change = shown(ch)
+        assert "j" not in old + new, ch
+        assert not re.search(r"[+−]0\.0*( %|°)", change), (ch.name, change)
+        if isinstance(ch.old, float | complex) and isinstance(ch.new, float | complex):
+            assert abs(ch.new - ch.old) > DISPLAY_RTOL * abs(ch.old), ch  # above tolerance
+    table = format_table(c)
+    assert "1e-06 of its old value" in table  # the tolerance is stated
+
+
+def _page_texts(pdf_bytes: bytes) -> list[str]:
+    from pypdf import PdfReader
+
+    return [p.extract_text() for p in PdfReader(io.BytesIO(pdf_bytes)).pages]
+
+
+def _padded(c, n):
+    """The comparison with n more (repeated) setting rows, to move the sign-off block."""
+    base = [ch for ch in c.changes if ch.section == "settings"]
+    pad = tuple(dataclasses.replace(base[k % len(base)], name=f"padding row {k}")
+                for k in range(n))
+    return dataclasses.replace(c, changes=c.changes + pad)
+
+
+def _sheet_pdf(c) -> bytes:
+    import weasyprint
+
+    from relayset.archive.compare import change_sheet_html
+
+    return weasyprint.HTML(string=change_sheet_html(c)).write_pdf()
+
+
+def test_change_sheet_every_page_has_header_and_caution(revisions):
+    pages = _page_texts(_sheet_pdf(_padded(revisions, 40)))
+    assert len(pages) >= 3
+    for k, text in enumerate(pages, start=1):
+        flat = " ".join(text.split())
+        assert "PR-KO-115 · change sheet, revision 0 to 1" in flat, k
+        assert "Status: Draft" in flat and "NOT APPROVED FOR USE" in flat, k  # as the report
+        assert "licensed professional engineer" in flat, k  # the caution (rules)
+        assert f"page {k} of {len(pages)}" in flat
+
+
+def test_change_sheet_keeps_the_sign_off_block_on_one_page(revisions):
+    """Push the sign-off block down row by row across a page break: its heading and every
+    role stay on one page (the block moves whole)."""
+    moved = 0
+    for n in range(14, 60, 2):
+        pages = _page_texts(_sheet_pdf(_padded(revisions, n)))
+
+        def on(pattern):
+            return {i for i, t in enumerate(pages) if re.search(pattern, t, re.M)}
+
+        where = on(r"^Sign-off") | on(r"^Prepared") | on(r"^Checked") | on(r"^Approved")
+        assert len(where) == 1, (n, on(r"^Sign-off"), on(r"^Approved"))
+        moved = max(moved, *where)
+        if moved >= 2:  # crossed one page break and sat at the top of the next page
+            break
+    assert moved >= 2

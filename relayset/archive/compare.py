@@ -3,14 +3,25 @@ inputs, the results and the settings, with the percent change of each number."""
 
 from __future__ import annotations
 
+import cmath
+import math
 from dataclasses import dataclass
 from pathlib import Path
 from typing import Any
 
 from relayset.archive.quantities import close, numeric_leaves, pct_change, results_quantities
 
-#: Two values are "unchanged" within this relative tolerance (round-off, not engineering).
-RTOL = 1e-9
+#: Display tolerance: a number is listed as changed only when it moved by more than
+#: ``DISPLAY_ATOL + DISPLAY_RTOL * |old|`` (complex values: the length of the vector
+#: difference). One part in a million is below every digit a setting or result is printed
+#: with; the absolute part keeps values that are zero in theory (round-off of 1e-14) off the
+#: sheet. The sheet states both.
+DISPLAY_RTOL = 1e-6
+DISPLAY_ATOL = 1e-9  #: in the quantity's own unit
+#: Significant digits of a percent change or an angle change.
+CHANGE_DIGITS = 3
+#: Significant digits of an old or new value (more when needed to tell them apart).
+VALUE_DIGITS = 5
 
 
 @dataclass(frozen=True)
@@ -19,7 +30,8 @@ class Change:
     name: str
     old: Any
     new: Any
-    pct: float | None  #: percent change of the magnitude [%]
+    pct: float | None  #: percent change of the magnitude [%] (None: not shown)
+    angle_change_deg: float | None = None  #: change of the angle of a complex value [deg]
 
 
 @dataclass(frozen=True)
@@ -29,6 +41,40 @@ class Comparison:
     old_source: str
     new_source: str
     changes: tuple[Change, ...]
+
+
+def _tol(old: Any) -> float:
+    return DISPLAY_ATOL + DISPLAY_RTOL * abs(old)
+
+
+def numeric_change(section: str, name: str, old: Any, new: Any) -> Change | None:
+    """The change of one quantity, or None when it is within the display tolerance.
+
+    The magnitude's percent change is given when the magnitude moved by more than the
+    tolerance, and for a complex value the angle change when the rotation moved the value by
+    more than the tolerance (|Δθ| |old| > tolerance); a value appearing, disappearing or
+    starting from zero has no percent change.
+    """
+    if old is None or new is None:
+        return None if old is new else Change(section, name, old, new, None)
+    if close(new, old, DISPLAY_RTOL, DISPLAY_ATOL):
+        return None
+    pct = dangle = None
+    if abs(old) > DISPLAY_ATOL:
+        moved = abs(abs(new) - abs(old))  # along the value
+        turned = 0.0  # across it, by rotation
+        d = 0.0
+        if isinstance(old, complex) and isinstance(new, complex) and abs(new) > DISPLAY_ATOL:
+            d = cmath.phase(new / old)  # in (-pi, pi]: the shorter way round
+            turned = abs(d) * abs(old)
+        # each part when it alone exceeds the tolerance; the larger one when only together
+        # they do (the vector difference is about the root sum of their squares)
+        either = moved <= _tol(old) and turned <= _tol(old)
+        if moved > _tol(old) or (either and moved >= turned):
+            pct = pct_change(old, new)
+        if turned > _tol(old) or (either and turned > moved):
+            dangle = math.degrees(d)
+    return Change(section, name, old, new, pct, dangle)
 
 
 def load_results(path: str | Path) -> dict[str, Any]:
@@ -53,30 +99,71 @@ def compare(old: str | Path, new: str | Path) -> Comparison:
     ia, ib = numeric_leaves(a.get("input", {})), numeric_leaves(b.get("input", {}))
     for k in sorted(ia.keys() | ib.keys()):
         va, vb = ia.get(k), ib.get(k)
-        if va != vb:
-            changes.append(Change("inputs", k, va, vb, pct_change(va, vb)))
+        if va != vb:  # inputs are the user's text (quantities with units): changed or not
+            changes.append(Change("inputs", k, va, vb, None))
     qa = {(s, n): v for s, n, v in results_quantities(a)}
     qb = {(s, n): v for s, n, v in results_quantities(b)}
     for key in list(qa) + [k for k in qb if k not in qa]:
-        va, vb = qa.get(key), qb.get(key)
-        if va is None or vb is None or not close(vb, va, RTOL, 0.0):
-            changes.append(Change(key[0], key[1], va, vb, pct_change(va, vb)))
+        ch = numeric_change(key[0], key[1], qa.get(key), qb.get(key))
+        if ch is not None:
+            changes.append(ch)
     return Comparison(a, b, str(old), str(new), tuple(changes))
 
 
-def show(v: Any) -> str:
-    """A value as the change table prints it."""
+def _digits(old: Any, new: Any) -> int:
+    """Significant digits that tell ``old`` and ``new`` apart (at least VALUE_DIGITS)."""
+    try:
+        rel = abs(abs(new) - abs(old)) / max(abs(old), abs(new))
+    except (TypeError, ZeroDivisionError):
+        return VALUE_DIGITS
+    if rel <= 0:
+        return VALUE_DIGITS
+    return max(VALUE_DIGITS, min(12, math.ceil(-math.log10(rel)) + 2))
+
+
+def _signed(x: float, digits: int = CHANGE_DIGITS) -> str:
+    """``x`` with its sign and ``digits`` significant digits, never in exponent form."""
+    if x == 0:
+        return "0"
+    decimals = max(0, digits - 1 - math.floor(math.log10(abs(x))))
+    return f"{x:+.{decimals}f}".replace("-", "−")
+
+
+def show(v: Any, digits: int = VALUE_DIGITS, angle_decimals: int = 2) -> str:
+    """A value as the change sheet prints it: a complex value as magnitude ∠ angle (as
+    ``relayset settings`` prints reaches), a real one with ``digits`` significant digits."""
     if v is None:
         return "–"
     if isinstance(v, complex):
-        return f"{v.real:.4g} {'+' if v.imag >= 0 else '−'} j{abs(v.imag):.4g}"
+        ang = f"{math.degrees(cmath.phase(v)):.{angle_decimals}f}".replace("-", "−")
+        return f"{abs(v):.{digits}g} ∠ {ang}°"
     if isinstance(v, float):
-        return f"{v:.5g}"
+        return f"{v:.{digits}g}".replace("-", "−")
     return str(v)
 
 
-def _pct(p: float | None) -> str:
-    return "" if p is None else f"{p:+.2f} %"
+def shown(ch: Change) -> tuple[str, str, str]:
+    """Old value, new value and change of one row, as printed."""
+    n = _digits(ch.old, ch.new) if ch.pct is not None else VALUE_DIGITS
+    a = 2
+    if ch.angle_change_deg is not None:
+        a = max(2, min(10, math.ceil(-math.log10(abs(ch.angle_change_deg))) + 1))
+    parts = []
+    if ch.pct is not None:
+        parts.append(f"{_signed(ch.pct)} %")
+    if ch.angle_change_deg is not None:
+        parts.append(f"∠ {_signed(ch.angle_change_deg)}°")
+    return show(ch.old, n, a), show(ch.new, n, a), ", ".join(parts)
+
+
+def tolerance_text() -> str:
+    """How the sheet chooses and shows its rows (printed on the sheet and under the table)."""
+    return (f"A number is listed when it moved by more than {DISPLAY_RTOL:g} of its old "
+            f"value plus {DISPLAY_ATOL:g} in its own unit (complex values: the vector "
+            f"difference); smaller differences are round-off, below every printed digit. "
+            f"Change is the percent change of the magnitude and, for complex values "
+            f"(magnitude ∠ angle), the change of angle, to {CHANGE_DIGITS} significant "
+            f"digits; inputs are compared as written.")
 
 
 def format_table(c: Comparison) -> str:
@@ -85,31 +172,38 @@ def format_table(c: Comparison) -> str:
     head = (f"{ida.get('line_id')} rev {ida.get('revision')} -> {idb.get('line_id')} rev "
             f"{idb.get('revision')}: {len(c.changes)} change(s)\n")
     rows = [("section", "quantity", "old", "new", "change")]
-    rows += [(ch.section, ch.name, show(ch.old), show(ch.new), _pct(ch.pct)) for ch in c.changes]
+    rows += [(ch.section, ch.name, *shown(ch)) for ch in c.changes]
     w = [min(max(len(r[i]) for r in rows), 60) for i in range(5)]
     lines = ["  ".join(str(r[i])[:60].ljust(w[i]) if i < 4 else str(r[i]).rjust(w[i])
                        for i in range(5)).rstrip() for r in rows]
     lines.insert(1, "  ".join("-" * x for x in w))
-    return head + "\n".join(lines) + "\n"
+    return head + "\n".join(lines) + "\n" + tolerance_text() + "\n"
 
 
 def change_sheet_html(c: Comparison) -> str:
     """The revision change sheet as self-contained HTML (template ``fleet/changes.html.j2``)."""
     import jinja2
 
+    from relayset.report.context import NOT_VERIFIED, STATUS_TEXT
     from relayset.resources import templates_dir
     from relayset.results.study import CAUTION
 
     env = jinja2.Environment(loader=jinja2.FileSystemLoader(str(templates_dir())),
                              autoescape=True, undefined=jinja2.StrictUndefined)
-    sections = {s: [(ch.name, show(ch.old), show(ch.new), _pct(ch.pct))
-                    for ch in c.changes if ch.section == s]
+    sections = {s: [(ch.name, *shown(ch)) for ch in c.changes if ch.section == s]
                 for s in ("inputs", "results", "settings")}
+    new = c.new.get("study", {})
+    verdict = (c.new.get("verification") or {}).get("verdict") or NOT_VERIFIED
+    # as on the report: only an approved revision without failed checks is for use
+    not_for_use = new.get("status") != "approved" or verdict == "failed checks"
     return env.get_template("fleet/changes.html.j2").render(
         old=c.old.get("study", {}), new=c.new.get("study", {}), old_source=c.old_source,
         new_source=c.new_source, old_sha=c.old.get("source_sha256"),
         new_sha=c.new.get("source_sha256"), sections=sections, caution=CAUTION,
-        count=len(c.changes))
+        count=len(c.changes), tolerance=tolerance_text(), verdict=verdict,
+        old_verdict=(c.old.get("verification") or {}).get("verdict") or NOT_VERIFIED,
+        status_text=STATUS_TEXT.get(new.get("status"), str(new.get("status"))),
+        not_for_use=not_for_use)
 
 
 def write_change_sheet(c: Comparison, out_dir: str | Path) -> list[Path]:
