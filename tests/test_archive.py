@@ -70,9 +70,9 @@ def test_edited_study_attachment_is_detected(archived, tmp_path):
                      lambda b: b.replace(b'ct_ratio = "600/5 A"', b'ct_ratio = "800/5 A"'))
     v = verify_report(bad)
     assert not v.passed
-    failed = {c.what for c in v.checks if not c.passed}
-    assert "study file SHA-256 printed in the report" in failed
-    assert "study file SHA-256 recorded in the results" in failed
+    failed = {c.what for c in v.checks if c.passed is False}
+    assert 'study file SHA-256 against the page text ("SHA-256 of the study file")' in failed
+    assert "study file SHA-256 against the embedded results JSON (source_sha256)" in failed
     assert any("secondary" in f for f in failed)  # the recomputation moved secondary ohms
     assert main(["verify", str(bad)]) == 1
 
@@ -87,10 +87,48 @@ def test_changed_digit_in_results_is_detected(archived, tmp_path):
 
     _edit_attachment(archived, bad, ".results.json", one_digit)
     v = verify_report(bad)
-    failed = {c.what for c in v.checks if not c.passed}
-    assert "results JSON SHA-256 printed in the report" in failed
+    failed = {c.what for c in v.checks if c.passed is False}
+    assert ('results JSON SHA-256 against the page text ("SHA-256 of the results JSON")'
+            in failed)
     assert any(f.startswith("all ") for f in failed)  # the recomputation disagrees too
-    assert "study file SHA-256 printed in the report" not in failed
+    assert not any(f.startswith("study file") for f in failed)
+
+
+def test_hash_references_named_and_a_missing_one_fails(archived):
+    """Which hash was checked against what; a reference the report lacks is a failure."""
+    import hashlib
+
+    from relayset.archive.pdf import read_archive
+    from relayset.archive.verify import Verification, check_hashes, format_verification
+
+    a = read_archive(archived)
+    study = a.study_name()
+    s_hash = hashlib.sha256(a.attachments[study]).hexdigest()  # hashlib: the reference
+    r_hash = hashlib.sha256(a.results_bytes).hexdigest()
+    checks = {c.what: c for c in check_hashes(a)}
+    page = 'study file SHA-256 against the page text ("SHA-256 of the study file")'
+    rec = "study file SHA-256 against the embedded results JSON (source_sha256)"
+    res_page = 'results JSON SHA-256 against the page text ("SHA-256 of the results JSON")'
+    assert checks[page].passed and checks[rec].passed and checks[res_page].passed
+    assert s_hash in checks[f"study file {study}"].detail
+    assert r_hash in checks[f"results JSON {a.results_name}"].detail
+    # today's report stores no SHA-256 in its metadata: said so, neither pass nor fail
+    assert checks["PDF metadata"].passed is None
+    text = format_verification(Verification(str(archived), list(checks.values())))
+    assert "PDF metadata: carries no SHA-256" in text and "MATCHES" in text
+
+    # the printed results hash missing from the page text (the attachments untouched)
+    flat = dataclasses.replace(a, text=a.text.replace(r_hash[:20], ""))
+    got = {c.what: c for c in check_hashes(flat)}
+    assert got[res_page].passed is False and "missing" in got[res_page].detail
+    v = Verification(str(archived), list(got.values()))
+    assert not v.passed and "FAIL " + res_page in format_verification(v)
+
+    # metadata that stores SHA-256 values is checked; one that differs fails
+    meta = dataclasses.replace(a, metadata={"/Keywords": f"{s_hash} {'0' * 64}"})
+    got = {c.what: c for c in check_hashes(meta)}
+    assert got["study file SHA-256 against the PDF metadata"].passed is True
+    assert got["results JSON SHA-256 against the PDF metadata"].passed is False
 
 
 def test_not_a_report_one_line_each_and_the_rest_verified(archived, tmp_path, capsys):

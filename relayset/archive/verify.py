@@ -1,5 +1,15 @@
-"""Verify an archived report: embedded files against the printed hashes and the metadata, and
-the results against a recomputation with the installed relayset.
+"""Verify an archived report: embedded files against the hashes the report carries, and the
+results against a recomputation with the installed relayset.
+
+Hashes: the SHA-256 of the embedded study file is checked against the value printed in the
+page text after "SHA-256 of the study file" and against ``source_sha256`` in the embedded
+results JSON; the SHA-256 of the embedded results JSON against the value printed after
+"SHA-256 of the results JSON". Each of these references is required: a reference that is
+missing fails the check, like one that differs. The PDF metadata (document information and
+XMP) is checked too when it carries SHA-256 values; today's reports store none there, and the
+verdict says so rather than passing silently. An embedded file for which the report carries
+no reference (the philosophy file) is named as not checked by hash; its content still meets
+the recomputation, which compares the philosophy applied.
 
 Tolerance of the recomputation: a quantity still matches when
 ``|new - archived| <= ATOL + RTOL * |archived|``; RTOL = 1e-6 (six significant figures, far
@@ -25,13 +35,22 @@ ATOL = 1e-9
 IGNORED = ("source_file", "relayset_version")
 
 
+#: The labels the report prints before each SHA-256 (templates/report/report.html.j2).
+PRINTED_STUDY = "SHA-256 of the study file"
+PRINTED_RESULTS = "SHA-256 of the results JSON"
+
+
 @dataclass(frozen=True)
 class Check:
-    """One check of an archived report."""
+    """One check of an archived report (``passed`` None: nothing to check, said so)."""
 
     what: str
-    passed: bool
+    passed: bool | None
     detail: str = ""
+
+    @property
+    def mark(self) -> str:
+        return {True: "ok  ", False: "FAIL", None: "--  "}[self.passed]
 
 
 @dataclass
@@ -45,40 +64,54 @@ class Verification:
 
     @property
     def passed(self) -> bool:
-        return bool(self.checks) and all(c.passed for c in self.checks)
+        return bool(self.checks) and all(c.passed is not False for c in self.checks)
 
 
 def _sha(b: bytes) -> str:
     return hashlib.sha256(b).hexdigest()
 
 
+def _against(label: str, got: str, ref: str | None, where: str) -> Check:
+    """``got`` against one reference value: equal passes, different or missing fails."""
+    what = f"{label} SHA-256 against {where}"
+    if ref is None:
+        return Check(what, False, "missing: the report carries no such value")
+    if ref != got:
+        return Check(what, False, f"differs: the file is {got}, {where} gives {ref}")
+    return Check(what, True, "equal")
+
+
 def check_hashes(a: Archive) -> list[Check]:
-    """Embedded files against the hashes printed in the report, stored in its metadata and
-    recorded in the results."""
-    checks = []
+    """The SHA-256 of each embedded file against every reference value the report carries."""
     study = a.study_name()
-    results = a.results()
-    meta = a.metadata_hashes()
     if study is None:
         return [Check("embedded study file", False, "not found among the embedded files")]
+    results = a.results()
     s_hash, r_hash = _sha(a.attachments[study]), _sha(a.results_bytes)
-    for label, name, got, printed_label in (
-            ("study file", study, s_hash, "SHA-256 of the study file"),
-            ("results JSON", a.results_name, r_hash, "SHA-256 of the results JSON")):
-        printed = a.printed(printed_label)
-        if printed is None:
-            checks.append(Check(f"{label} SHA-256 printed in the report", False,
-                                "no printed SHA-256 found in the page text"))
-        else:
-            checks.append(Check(f"{label} SHA-256 printed in the report", printed == got,
-                                f"{name}: {got}" + ("" if printed == got
-                                                    else f" but the report prints {printed}")))
-        if meta:
-            checks.append(Check(f"{label} SHA-256 in the metadata", got in meta,
-                                "found" if got in meta else f"{got} not in the metadata"))
     rec = results.get("source_sha256")
-    checks.append(Check("study file SHA-256 recorded in the results", rec == s_hash,
-                        "equal" if rec == s_hash else f"results record {rec}, file is {s_hash}"))
+    checks = [
+        Check(f"study file {study}", None, f"SHA-256 {s_hash}"),
+        _against("study file", s_hash, a.printed(PRINTED_STUDY),
+                 f'the page text ("{PRINTED_STUDY}")'),
+        _against("study file", s_hash, rec if isinstance(rec, str) and rec else None,
+                 "the embedded results JSON (source_sha256)"),
+        Check(f"results JSON {a.results_name}", None, f"SHA-256 {r_hash}"),
+        _against("results JSON", r_hash, a.printed(PRINTED_RESULTS),
+                 f'the page text ("{PRINTED_RESULTS}")'),
+    ]
+    meta = a.metadata_hashes()
+    if meta:
+        for label, got in (("study file", s_hash), ("results JSON", r_hash)):
+            checks.append(Check(f"{label} SHA-256 against the PDF metadata", got in meta,
+                                "found" if got in meta else
+                                f"{got} is not among the {len(meta)} SHA-256 stored there"))
+    else:
+        checks.append(Check("PDF metadata", None, "carries no SHA-256 (document information "
+                            "and XMP): nothing to check there"))
+    for name in sorted(a.attachments):
+        if name not in (study, a.results_name):
+            checks.append(Check(f"embedded {name}", None, "the report carries no SHA-256 "
+                                "of it: not checked by hash (the recomputation uses it)"))
     return checks
 
 
@@ -169,17 +202,32 @@ def verify_report(path: str | Path) -> Verification:
     return v
 
 
+def _is_quantity(c: Check) -> bool:
+    return re.match(r"(results|settings): ", c.what) is not None
+
+
 def format_verification(v: Verification, *, all_checks: bool = False) -> str:
-    """The printed verdict of one report: hash checks, then each quantity (failures always)."""
+    """The printed verdict of one report: what each hash was checked against, then each
+    quantity of the recomputation (failures always, every one with ``all_checks``)."""
     lines = [f"{v.source}: {'MATCHES' if v.passed else 'DOES NOT MATCH'}",
-             f"  tolerance: |now - archived| <= {ATOL:g} + {RTOL:g} x |archived|; "
-             f"archived with relayset {v.recorded_version}, recomputed with "
-             f"{v.installed_version or 'the installed version'}"]
+             "  hashes of the embedded files, and what each was checked against:"]
+    hashes = [c for c in v.checks if not _is_quantity(c) and c.what != "recomputation"
+              and not c.what.startswith("all ")]
+    for c in hashes:
+        if c.passed is None and c.detail.startswith("SHA-256 "):
+            lines.append(f"    {c.what}: {c.detail}")  # the file and its hash
+        else:
+            lines.append(f"      {c.mark} {c.what}: {c.detail}")
+    lines.append(f"  recomputation: |now - archived| <= {ATOL:g} + {RTOL:g} x |archived|; "
+                 f"archived with relayset {v.recorded_version}, recomputed with "
+                 f"{v.installed_version or 'the installed version'}")
     for c in v.checks:
-        if all_checks or not c.passed or not re.match(r"(results|settings): ", c.what):
-            lines.append(f"  {'ok  ' if c.passed else 'FAIL'} {c.what}: {c.detail}")
-    n = sum(1 for c in v.checks if re.match(r"(results|settings): ", c.what))
-    bad = sum(1 for c in v.checks if re.match(r"(results|settings): ", c.what) and not c.passed)
+        if c in hashes:
+            continue
+        if all_checks or not c.passed or not _is_quantity(c):
+            lines.append(f"    {c.mark} {c.what}: {c.detail}")
+    n = sum(1 for c in v.checks if _is_quantity(c))
+    bad = sum(1 for c in v.checks if _is_quantity(c) and not c.passed)
     lines.append(f"  {n - bad} of {n} named quantities match" + ("" if all_checks else
                                                                " (--all lists each)"))
     return "\n".join(lines) + "\n"
