@@ -258,3 +258,27 @@ def test_register_reach_errors_and_verification_per_end():
     # README: the 230 kV demo fails on mutual compensation, resistive coverage and zone 3
     assert rows[0]["verification"] == "failed checks" and rows[0]["failed_checks"] >= 3
     assert rows[0]["end_verification"] == "FAIL"
+
+
+def test_pool_workers_write_their_lines_and_return_only_rows(tmp_path):
+    """The local pool sends paths and gets back register rows: the worker writes the line's
+    files (JSON last), so no output bytes cross the process boundary; a cluster task (no
+    output folder) returns the same bytes instead. Identity: same study, same bytes."""
+    import pickle
+
+    from relayset.fleet import cluster as runners
+    from relayset.fleet.worker import compute_line, write_line
+
+    out = tmp_path / "out"
+    out.mkdir()
+    stem = "PR-KO-115_rev0"
+    tasks = [(0, str(DEMO / FAST[0]), stem, False, str(out))]
+    (res,) = list(runners.run_pool(tasks, 1))
+    assert res.ok and res.files == {} and res.written == (f"{stem}.json",)
+    written = (out / f"{stem}.json").read_bytes()
+    assert len(pickle.dumps(res)) < len(written) / 10  # rows only, not the results
+    remote = compute_line(0, str(DEMO / FAST[0]), stem, False, None)
+    assert remote.written == () and remote.files[f"{stem}.json"] == written
+    # a line counts as done when its JSON is in place: the JSON is renamed last
+    order = write_line(tmp_path, {"a.json": b"{}", "a.pdf": b"%PDF", "a.html": b"<p>"})
+    assert order[-1] == "a.json" and sorted(order) == ["a.html", "a.json", "a.pdf"]
