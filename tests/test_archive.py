@@ -17,7 +17,6 @@ from relayset.archive.compare import (
     compare,
     format_table,
     numeric_change,
-    show,
     shown,
     write_change_sheet,
 )
@@ -276,11 +275,10 @@ def test_change_sheet_keeps_the_sign_off_block_on_one_page(revisions):
     for n in range(14, 60, 2):
         pages = _page_texts(_sheet_pdf(_padded(revisions, n)))
 
-        def on(pattern):
-            return {i for i, t in enumerate(pages) if re.search(pattern, t, re.M)}
-
-        where = on(r"^Sign-off") | on(r"^Prepared") | on(r"^Checked") | on(r"^Approved")
-        assert len(where) == 1, (n, on(r"^Sign-off"), on(r"^Approved"))
+        where = {i for i, t in enumerate(pages) for pattern in
+                 (r"^Sign-off", r"^Prepared", r"^Checked", r"^Approved")
+                 if re.search(pattern, t, re.M)}
+        assert len(where) == 1, (n, where)
         moved = max(moved, *where)
         if moved >= 2:  # crossed one page break and sat at the top of the next page
             break
