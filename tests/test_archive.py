@@ -201,6 +201,8 @@ def test_change_rows_drop_round_off_and_show_meaningful_digits():
     ch = numeric_change("settings", "x", 1.0, 1.00004)
     assert shown(ch) == ("1", "1.00004", "+0.00400 %")
     assert shown(numeric_change("settings", "x", 80.0, 79.5))[2] == "−0.625 %"
+    # a real number crossing zero: the signed change (hand arithmetic: (-0.5 - 0.5)/0.5)
+    assert shown(numeric_change("results", "x", 0.5, -0.5))[2] == "−200 %"
     # a pure rotation: no magnitude change, the angle change in degrees (hand arithmetic)
     a = cmath.rect(10.0, math.radians(30.0))
     ch = numeric_change("settings", "z", a, cmath.rect(10.0, math.radians(30.01)))

@@ -50,10 +50,10 @@ def _tol(old: Any) -> float:
 def numeric_change(section: str, name: str, old: Any, new: Any) -> Change | None:
     """The change of one quantity, or None when it is within the display tolerance.
 
-    The magnitude's percent change is given when the magnitude moved by more than the
-    tolerance, and for a complex value the angle change when the rotation moved the value by
-    more than the tolerance (|Δθ| |old| > tolerance); a value appearing, disappearing or
-    starting from zero has no percent change.
+    A real number gets its signed percent change. A complex one gets the percent change of
+    its magnitude when the magnitude moved by more than the tolerance, and the change of its
+    angle when the rotation moved it by more than the tolerance (|Δθ| |old| > tolerance). A
+    value appearing, disappearing or starting from zero has no percent change.
     """
     if old is None or new is None:
         return None if old is new else Change(section, name, old, new, None)
@@ -70,7 +70,10 @@ def numeric_change(section: str, name: str, old: Any, new: Any) -> Change | None
         # each part when it alone exceeds the tolerance; the larger one when only together
         # they do (the vector difference is about the root sum of their squares)
         either = moved <= _tol(old) and turned <= _tol(old)
-        if moved > _tol(old) or (either and moved >= turned):
+        if not isinstance(old, complex) and not isinstance(new, complex):
+            # a real number: the signed change, so that +0.5 -> -0.5 reads -200 %, not 0 %
+            pct = (new - old) / abs(old) * 100.0
+        elif moved > _tol(old) or (either and moved >= turned):
             pct = pct_change(old, new)
         if turned > _tol(old) or (either and turned > moved):
             dangle = math.degrees(d)
