@@ -47,12 +47,15 @@ def run_pool(tasks: Sequence[Task], workers: int) -> Iterator[Outcome]:
     ctx = multiprocessing.get_context("spawn")
     pool = ProcessPoolExecutor(max_workers=workers, mp_context=ctx, initializer=init_worker,
                                initargs=(report,))
+    finished = False
     try:
         futures = {pool.submit(compute_line, *t): t for t in tasks}
         for f in as_completed(futures):
             yield _result(f, futures[f])
+        finished = True
     finally:
-        pool.shutdown(wait=False, cancel_futures=True)
+        # all done: join the idle workers; interrupted: do not wait for running lines
+        pool.shutdown(wait=finished, cancel_futures=not finished)
 
 
 def connect(address: str):
