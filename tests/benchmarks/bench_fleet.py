@@ -11,7 +11,8 @@ other processes used during it (from /proc/stat, minus this benchmark's own proc
 speed-up means something only when that was near zero. ``--quiet S`` waits up to S seconds
 before each run for a moment when other processes use less than 0.2 of a core. The parent's
 CPU time in the pool run shows the serial work left in the process that collects the results
-and writes the register.
+and writes the register; the CPU of all its processes, against the serial run's, the work the
+pool adds (start-up of the workers, messages), whatever the machine's load.
 """
 
 from __future__ import annotations
@@ -104,10 +105,12 @@ def main() -> None:
                     s = run_batch(src, out, workers=workers, report=report, stream=null)
                 times[workers] = wall = time.perf_counter() - t0
                 cpu = time.process_time() - c0
-                others = (_busy_s() - b0) - (_own_s() - own0)
+                own = _own_s() - own0
+                others = (_busy_s() - b0) - own
                 assert s.ok and s.computed == n, s.failures[:3]
                 print(f"{workers} worker(s): {wall:.1f} s ({wall / n * 1e3:.0f} ms per line), "
-                      f"CPU of this process {cpu:.1f} s; load average {load0} before, "
+                      f"CPU of this process {cpu:.1f} s, of all its processes {own:.1f} s; "
+                      f"load average {load0} before, "
                       f"{_load()} after; other processes used {max(others, 0) / wall:.2f} "
                       f"core(s) meanwhile")
                 shutil.rmtree(out)
