@@ -8,7 +8,10 @@ from __future__ import annotations
 
 import cmath
 import math
+import os
 from dataclasses import dataclass
+from functools import lru_cache
+from pathlib import Path
 from typing import Any
 
 from relayset.resources import templates_dir
@@ -43,11 +46,63 @@ UNIT_SYSTEMS = {
 }
 
 
+def _cache_dir() -> Path | None:
+    """The user's cache folder for compiled templates, or None where there is none."""
+    base = os.environ.get("XDG_CACHE_HOME")
+    if not base and os.name == "nt":
+        base = os.environ.get("LOCALAPPDATA")
+    try:
+        root = Path(base) if base else Path.home() / ".cache"
+    except RuntimeError:  # no home folder
+        return None
+    return root / "relayset" / "templates"
+
+
+@lru_cache(maxsize=1)
+def _bytecode_cache():
+    """A cache of the compiled console templates in the user's cache folder.
+
+    Compiling a template costs 20-40 ms per process; the cached code is keyed by the template's
+    path and checked against the checksum of its source (and the Python and Jinja2 versions),
+    so an edited template is recompiled. The cache is only an accelerator: an unwritable,
+    foreign or corrupt cache silently falls back to compiling, with identical output. Compiled
+    code is executed, so a folder that others can write to is never used.
+    """
+    import jinja2
+
+    folder = _cache_dir()
+    if folder is None:
+        return None
+    try:
+        folder.mkdir(mode=0o700, parents=True, exist_ok=True)
+        st = folder.stat()
+        if os.name != "nt" and (st.st_uid != os.getuid() or st.st_mode & 0o022):
+            return None
+    except OSError:
+        return None
+
+    class QuietCache(jinja2.FileSystemBytecodeCache):
+        def load_bytecode(self, bucket) -> None:
+            try:
+                super().load_bytecode(bucket)
+            except Exception:  # unreadable or corrupt: compile instead
+                bucket.reset()
+
+        def dump_bytecode(self, bucket) -> None:
+            try:
+                super().dump_bytecode(bucket)
+            except OSError:  # full or read-only: just no cache
+                pass
+
+    return QuietCache(str(folder), "%s.cache")
+
+
 def _env():
     import jinja2
 
     env = jinja2.Environment(
         loader=jinja2.FileSystemLoader(str(templates_dir())),
+        bytecode_cache=_bytecode_cache(),
         autoescape=False,  # plain-text console output; HTML templates use autoescape
         undefined=jinja2.StrictUndefined,
         trim_blocks=True,
@@ -90,11 +145,7 @@ def render(template: str, **context: Any) -> str:
 
 
 def _context(results, unit_system: str) -> dict[str, Any]:
-    from relayset.report.tables import settings_rows
-    from relayset.settings.context import ZONE_LABELS
-
-    return {"r": results, "p": results.parameters, "u": UNIT_SYSTEMS[unit_system],
-            "zone_labels": ZONE_LABELS, "settings_rows": settings_rows, "zip": zip}
+    return {"r": results, "p": results.parameters, "u": UNIT_SYSTEMS[unit_system], "zip": zip}
 
 
 def params_summary(results, unit_system: str = "si") -> str:
@@ -109,4 +160,9 @@ def reach_summary(results, unit_system: str = "si") -> str:
 
 def settings_summary(results, unit_system: str = "si") -> str:
     """The settings table and warnings of one study, one block per relay end."""
-    return render("settings.txt.j2", **_context(results, unit_system))
+    # Imported here: the setting tables load the settings package, which params/reach skip.
+    from relayset.report.tables import settings_rows
+    from relayset.settings.context import ZONE_LABELS
+
+    return render("settings.txt.j2", **_context(results, unit_system),
+                  zone_labels=ZONE_LABELS, settings_rows=settings_rows)
