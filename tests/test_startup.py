@@ -172,3 +172,21 @@ def test_corrupt_or_foreign_cache_is_ignored(tmp_path, uncached_output):
         assert entry.read_bytes() == b"j2 garbage"  # neither read nor rewritten
     finally:
         folder.chmod(0o700)
+
+
+def test_cache_key_follows_what_the_compiled_code_depends_on(monkeypatch):
+    """Compiled code depends on the syntax options and the Jinja2 version, which Jinja2's own
+    cache key (template path, source checksum, Python version) does not cover."""
+    import jinja2
+
+    from relayset.report import text
+
+    env = text._env()
+    fp = text._fingerprint(env)
+    assert fp == text._fingerprint(text._env())
+    for change in ({"trim_blocks": False}, {"lstrip_blocks": False},
+                   {"keep_trailing_newline": False}, {"autoescape": True},
+                   {"variable_start_string": "<<"}, {"newline_sequence": "\r\n"}):
+        assert text._fingerprint(env.overlay(**change)) != fp, change
+    monkeypatch.setattr(jinja2, "__version__", "0.0")
+    assert text._fingerprint(env) != fp

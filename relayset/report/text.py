@@ -51,6 +51,8 @@ def _cache_dir() -> Path | None:
     base = os.environ.get("XDG_CACHE_HOME")
     if not base and os.name == "nt":
         base = os.environ.get("LOCALAPPDATA")
+    if base and not os.path.isabs(base):
+        base = None  # a relative path is ignored (XDG Base Directory Specification)
     try:
         root = Path(base) if base else Path.home() / ".cache"
     except RuntimeError:  # no home folder
@@ -58,15 +60,31 @@ def _cache_dir() -> Path | None:
     return root / "relayset" / "templates"
 
 
-@lru_cache(maxsize=1)
-def _bytecode_cache():
+def _fingerprint(env) -> str:
+    """What the compiled code of a template depends on besides its source: the Jinja2
+    version and the environment's syntax and compile options."""
+    import hashlib
+
+    import jinja2
+
+    opts = (jinja2.__version__, env.block_start_string, env.block_end_string,
+            env.variable_start_string, env.variable_end_string, env.comment_start_string,
+            env.comment_end_string, env.line_statement_prefix, env.line_comment_prefix,
+            env.trim_blocks, env.lstrip_blocks, env.newline_sequence, env.keep_trailing_newline,
+            env.autoescape, env.optimized, env.finalize is not None, sorted(env.extensions))
+    return hashlib.sha256(repr(opts).encode()).hexdigest()[:16]
+
+
+@lru_cache(maxsize=4)
+def _bytecode_cache(fingerprint: str):
     """A cache of the compiled console templates in the user's cache folder.
 
-    Compiling a template costs 20-40 ms per process; the cached code is keyed by the template's
-    path and checked against the checksum of its source (and the Python and Jinja2 versions),
-    so an edited template is recompiled. The cache is only an accelerator: an unwritable,
-    foreign or corrupt cache silently falls back to compiling, with identical output. Compiled
-    code is executed, so a folder that others can write to is never used.
+    Compiling a template costs 20-40 ms per process. Jinja2 keys the cached code by the
+    template's path and checks it against the checksum of its source and the Python version;
+    the file name adds ``fingerprint`` (:func:`_fingerprint`), so an edited template, another
+    Jinja2 or other environment options are compiled afresh. The cache is only an accelerator:
+    an unwritable, foreign or corrupt cache silently falls back to compiling, with identical
+    output. Compiled code is executed, so a folder that others can write to is never used.
     """
     import jinja2
 
@@ -94,7 +112,7 @@ def _bytecode_cache():
             except OSError:  # full or read-only: just no cache
                 pass
 
-    return QuietCache(str(folder), "%s.cache")
+    return QuietCache(str(folder), f"%s-{fingerprint}.cache")
 
 
 def _env():
@@ -102,7 +120,6 @@ def _env():
 
     env = jinja2.Environment(
         loader=jinja2.FileSystemLoader(str(templates_dir())),
-        bytecode_cache=_bytecode_cache(),
         autoescape=False,  # plain-text console output; HTML templates use autoescape
         undefined=jinja2.StrictUndefined,
         trim_blocks=True,
@@ -113,6 +130,7 @@ def _env():
     env.filters["p"] = fmt_polar
     env.filters["f"] = fmt_float
     env.filters["pct"] = fmt_pct_of
+    env.bytecode_cache = _bytecode_cache(_fingerprint(env))
     return env
 
 
