@@ -11,27 +11,36 @@ Run on demand::
 
     python tests/benchmarks/bench_startup.py [--repeat 15] [--baseline DIR]
 
-Figures (2 cores, other engineers' work loading the machine, load average 2-4; best of 12-15
-interleaved runs, wall / user+sys, the compiled-template cache warm):
+Figures (2 cores; other engineers' work loading the machine, load average 1.7-2.4; the
+400 kV demo; both trees with their bytecode compiled; the template cache warm). Instructions
+from ``valgrind --tool=callgrind`` do not depend on the load; wall times are hyperfine's
+(30 runs) and this script's (20 interleaved runs):
 
-================================  ================  =================
-command                           before            after
-================================  ================  =================
-relayset params (400 kV demo)     0.50-0.55 / 0.40  0.33-0.37 / 0.33
-relayset reach (400 kV demo)      0.60-0.69 / 0.48  0.43-0.52 / 0.42
-================================  ================  =================
+==========================  ==============  ===============  ======================
+relayset ...                instructions    wall mean (min)  median wall, user+sys
+==========================  ==============  ===============  ======================
+params, before (main)       1.438e9         425 ms (352)     389 ms, 392 ms
+params, after               1.173e9 (-18%)  370 ms (318)     364 ms, 364 ms
+reach, before (main)        1.677e9         469 ms (373)     447 ms, 442 ms
+reach, after                1.483e9 (-12%)  422 ms (351)     410 ms, 418 ms
+--help / earth-models       -               -                64 -> 32 ms
+==========================  ==============  ===============  ======================
+
+The libraries ``params`` cannot do without (numpy, pydantic, jinja2, and importlib.metadata,
+which pydantic's plugin discovery imports) cost 0.874e9 instructions, 343 ms mean wall in the
+same hyperfine run: ``params`` is now within about 0.30e9 instructions (model building, the
+relayset modules, the computation and the rendering) of that floor. Of the floor, jinja2 is
+0.126e9 and importlib.metadata 0.098e9. Without bytecode (``PYTHONDONTWRITEBYTECODE=1`` and an
+editable checkout with no ``__pycache__``) compiling relayset's own modules adds 0.26e9
+instructions (about 20-70 ms) to every run; a wheel install compiles them once.
 
 Before: every ``params`` imported the reach study, settings, verification and their results
 types and physics (the pipeline and ``relayset.results`` imported them at the top), read the
-version through ``importlib.metadata`` and compiled its Jinja2 template (20-40 ms).
+version through ``importlib.metadata`` and compiled its Jinja2 template (20-40 ms); every
+``reach`` also loaded numpy.ma through ``np.unique``.
 After: each command imports what it runs; the version comes from ``relayset/_version.py``;
-compiled templates are cached in the user's cache folder; the study-file models are built
-from real annotations (pydantic no longer compiles each one from text).
-
-What is left (best of runs, ``-X importtime``): numpy 55-75 ms; pydantic 50-65 ms plus
-10-15 ms for its plugin discovery (importlib.metadata and an entry-point scan, which only the
-``PYDANTIC_DISABLE_PLUGINS`` environment variable turns off); building the 25 study-file
-models 20-25 ms; jinja2 18-20 ms; the interpreter and the standard library about 40 ms.
+compiled console templates are cached in the user's cache folder; the study-file and
+philosophy models are built from real annotations (pydantic no longer compiles each from text).
 """
 
 from __future__ import annotations
