@@ -64,13 +64,9 @@ def up_to_date(out_dir: Path, p: PlannedJob, report: bool) -> dict | None:
         d = json.loads(path.read_text("utf-8"))
     except (OSError, ValueError):
         return None
-    if d.get("source_sha256") != p.sha256:
-        return None
-    # imported only when there is something to compare: a fresh batch leaves the pipeline
-    # to the workers instead of importing it here before they can start
-    from relayset.studies.pipeline import relayset_version
+    from relayset._version import relayset_version  # not the pipeline: the workers load it
 
-    if d.get("relayset_version") != relayset_version():
+    if d.get("source_sha256") != p.sha256 or d.get("relayset_version") != relayset_version():
         return None
     if report and not all((out_dir / f"{p.stem}{s}").is_file() for s in (".pdf", ".html")):
         return None
