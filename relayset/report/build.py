@@ -131,8 +131,7 @@ def render_reports(paths: Sequence[str | Path], *, units: str | None = None, pap
         import multiprocessing as mp
         from concurrent.futures import ProcessPoolExecutor
 
-        # Import the heavy renderers once; forked workers inherit them.
-        import matplotlib.figure  # noqa: F401
+        # Import the heavy renderer once; forked workers inherit it.
         import weasyprint  # noqa: F401
 
         with ProcessPoolExecutor(jobs, mp_context=mp.get_context("fork")) as pool:
