@@ -606,12 +606,17 @@ def build_context(results, *, units: str = "si", paper: str = "a4",
 
 
 def _philosophy_rows(ph: dict[str, Any] | None) -> list[tuple[str, list[tuple[str, str]]]]:
+    """The philosophy applied, table by table, values written as in a TOML file."""
     if not ph:
         return []
+
+    def text(v: Any) -> str:
+        return ("true" if v else "false") if isinstance(v, bool) else str(v)
+
     out = []
     for table, values in ph.items():
         if isinstance(values, dict):
-            out.append((str(table), [(str(k), str(v)) for k, v in values.items()]))
+            out.append((str(table), [(str(k), text(v)) for k, v in values.items()]))
         else:
-            out.append(("", [(str(table), str(values))]))
+            out.append(("", [(str(table), text(values))]))
     return out

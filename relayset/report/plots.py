@@ -197,7 +197,7 @@ def reach_error_svg(end: dict[str, Any], index: int) -> str:
     arrs = end["arrangements"]
     pw, ph = 270.0, 104.0
     x0s = (52.0, 52.0 + pw + 40.0)
-    top_pad, row_pad, bottom_pad = 68.0, 30.0, 34.0
+    top_pad, row_pad, bottom_pad = 68.0, 22.0, 34.0
     height = top_pad + len(arrs) * ph + (len(arrs) - 1) * row_pad + bottom_pad
     svg = Svg(height, f"reach error, relay at {end['end']}")
     all_y = [v for a in arrs for key in ("bolted_reach_error_max_pct",
@@ -245,13 +245,15 @@ def reach_error_svg(end: dict[str, Any], index: int) -> str:
             svg.open("g", fill="#000", data_role=f"yticks-{r}-{c}")
             for t in yticks:
                 svg.add("text", tick_text(t, yticks), x=f(x0 - 3), y=f(Yax(t)),
-                        font_size=f(FS_SMALL), text_anchor="end", dominant_baseline="middle")
+                        font_size=f(FS_SMALL), text_anchor="end", dominant_baseline="middle",
+                        data_v=f"{t:.10g}")
             svg.close()
-            svg.open("g", fill="#000", data_role=f"xticks-{r}-{c}")
-            for t in xticks:
-                svg.add("text", tick_text(t, xticks), x=f(Xax(t)), y=f(y0 + ph + 10),
-                        font_size=f(FS_SMALL), text_anchor="middle")
-            svg.close()
+            if r == len(arrs) - 1:  # shared locations: labelled once, at the bottom
+                svg.open("g", fill="#000", data_role=f"xticks-{c}")
+                for t in xticks:
+                    svg.add("text", tick_text(t, xticks), x=f(Xax(t)), y=f(y0 + ph + 10),
+                            font_size=f(FS_SMALL), text_anchor="middle", data_v=f"{t:.10g}")
+                svg.close()
             k = 0
             for i, lp in enumerate(env["loops"]):
                 if ground[i] != want:
