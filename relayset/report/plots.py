@@ -195,9 +195,9 @@ def reach_error_svg(end: dict[str, Any], index: int) -> str:
     loops at the left, phase loops at the right; per loop the largest value (line) and the
     smallest (the same line, thinner, with markers)."""
     arrs = end["arrangements"]
-    pw, ph = 270.0, 104.0
-    x0s = (52.0, 52.0 + pw + 40.0)
-    top_pad, row_pad, bottom_pad = 68.0, 22.0, 34.0
+    pw, ph = 280.0, 100.0
+    x0s = (52.0, 52.0 + pw + 22.0)
+    top_pad, row_pad, bottom_pad = 52.0, 22.0, 34.0
     height = top_pad + len(arrs) * ph + (len(arrs) - 1) * row_pad + bottom_pad
     svg = Svg(height, f"reach error, relay at {end['end']}")
     all_y = [v for a in arrs for key in ("bolted_reach_error_max_pct",
@@ -213,7 +213,7 @@ def reach_error_svg(end: dict[str, Any], index: int) -> str:
     xticks = nice_ticks(xlo, xhi, 5)
     loops = arrs[0]["envelope"]["loops"] if arrs else []
     ground = [lp.replace("-", "").upper().endswith("G") for lp in loops]
-    # Legend: one block per column.
+    # Legend: one row per column; per loop the largest (heavy) and smallest (light, markers).
     for c, want in enumerate((True, False)):
         x = x0s[c]
         svg.text(x, 12, "ground loops" if want else "phase loops", FS, fill="#000",
@@ -222,12 +222,13 @@ def reach_error_svg(end: dict[str, Any], index: int) -> str:
         for lp, g in zip(loops, ground, strict=True):
             if g != want:
                 continue
-            lx = x + k * 90
-            _sample(svg, lx, 24, _style(k, 1.3))
-            svg.text(lx + 30, 27, f"{lp} largest", FS_SMALL, fill="#000")
-            _sample(svg, lx, 40, _style(k, 0.7), MARKERS[k])
-            svg.text(lx + 30, 43, f"{lp} smallest", FS_SMALL, fill="#000")
+            lx = x + k * 92
+            _sample(svg, lx, 25, _style(k, 1.3), length=20)
+            _sample(svg, lx + 23, 25, _style(k, 0.7), MARKERS[k], length=20)
+            svg.text(lx + 47, 28, lp, FS_SMALL, fill="#000")
             k += 1
+    svg.text(x0s[1] + pw, 12, "heavy: largest · light with markers: smallest", FS_SMALL,
+             "end", fill="#000")
     for r, a in enumerate(arrs):
         env = a["envelope"]
         y0 = top_pad + r * (ph + row_pad)
@@ -242,12 +243,13 @@ def reach_error_svg(end: dict[str, Any], index: int) -> str:
             svg.lines([(x0, Yax(0.0), x0 + pw, Yax(0.0))], stroke="#000", stroke_width="0.6")
             svg.polyline([(x0, y0), (x0 + pw, y0), (x0 + pw, y0 + ph), (x0, y0 + ph)],
                          closed=True, stroke="#000", stroke_width="0.6")
-            svg.open("g", fill="#000", data_role=f"yticks-{r}-{c}")
-            for t in yticks:
-                svg.add("text", tick_text(t, yticks), x=f(x0 - 3), y=f(Yax(t)),
-                        font_size=f(FS_SMALL), text_anchor="end", dominant_baseline="middle",
-                        data_v=f"{t:.10g}")
-            svg.close()
+            if c == 0:  # one scale for every panel: labelled at the left only
+                svg.open("g", fill="#000", data_role=f"yticks-{r}")
+                for t in yticks:
+                    svg.add("text", tick_text(t, yticks), x=f(x0 - 3), y=f(Yax(t)),
+                            font_size=f(FS_SMALL), text_anchor="end",
+                            dominant_baseline="middle", data_v=f"{t:.10g}")
+                svg.close()
             if r == len(arrs) - 1:  # shared locations: labelled once, at the bottom
                 svg.open("g", fill="#000", data_role=f"xticks-{c}")
                 for t in xticks:
