@@ -178,11 +178,13 @@ def test_error_budget_reaches_the_zone1_recommendation_and_the_settings(variant)
 # ------------------------------------------------------------------- arc length glue
 
 
-def _quadrilateral(arc_length=None):
+def _quadrilateral(arc_length=None, ground_arc_length=None):
     def edit(d):  # the philosophy file is written next to the study (tmp_path)
         d["study"]["philosophy"] = "quad_philosophy.toml"
         if arc_length is not None:
             d["fault_resistance"]["arc_length"] = arc_length
+        if ground_arc_length is not None:
+            d["fault_resistance"]["ground_arc_length"] = ground_arc_length
     return edit
 
 
@@ -197,6 +199,7 @@ def _warrington_ohm(i_a: float, length_m: float) -> float:
     # default: the smallest phase spacing of the 132 kV demo (5 m, flat)
     (DEMO_1C, None, 5.0, 1.32),
     (DEMO_1C, "3.2 m", 3.2, 1.32),  # given in the study file
+    (DEMO_1C, ("3.2 m", "1.9 m"), 3.2, 1.9),  # both given
     # 230 kV double circuit: middle and bottom positions of circuit 1, (-6.2 m, 35 m) and
     # (-4.8 m, 28 m), same sag: hypot(1.4, 7) = 7.1386 m (hand); circuit 2 is further away
     (DEMO_2C, None, math.hypot(1.4, 7.0), 2.30),
@@ -209,7 +212,8 @@ def test_arc_lengths_reach_the_settings(variant, tmp_path, demo, arc_length, pha
     # Warrington's formula with those lengths (1e-9 relative).
     (tmp_path / "quad_philosophy.toml").write_text(
         '[characteristic]\nshape = "quadrilateral"\n', "utf-8")
-    (s,) = relayset.study_settings(variant(demo, _quadrilateral(arc_length))).settings
+    lengths = arc_length if isinstance(arc_length, tuple) else (arc_length,)
+    (s,) = relayset.study_settings(variant(demo, _quadrilateral(*lengths))).settings
     i_arc = s.arc_current_a
     assert i_arc is not None and i_arc > 0
     for z in s.zones:

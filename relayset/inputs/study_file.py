@@ -519,7 +519,10 @@ class AdjacentLine(_Model):
 
 class FaultResistanceData(_Model):
     tower_footing_resistance: Resistance = 10.0  # type: ignore[valid-type]
+    #: phase-to-phase arc length (default: the smallest phase spacing)
     arc_length: _quantity("length", gt=0, le=100.0) | None = None  # type: ignore[valid-type]
+    #: ground-fault arc length (default: 0.01 m per kV, the insulator flashover length)
+    ground_arc_length: _quantity("length", gt=0, le=100.0) | None = None  # type: ignore[valid-type]
 
 
 class Study(_Model):

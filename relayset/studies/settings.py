@@ -3,6 +3,7 @@
 from __future__ import annotations
 
 import math
+from dataclasses import dataclass
 from pathlib import Path
 from typing import Any
 
@@ -64,6 +65,38 @@ def _lines_at(study: Study, relay_end: str, *, remote: bool, source: str
     return out
 
 
+@dataclass(frozen=True)
+class ArcLengths:
+    """Arc lengths of the resistive reach and whether each is the default [m]."""
+
+    phase_m: float
+    phase_given: bool
+    ground_m: float
+    ground_given: bool
+
+    def describe(self) -> str:
+        """The arc lengths and where each came from, in words (for notes and reports)."""
+        phase = ("study input fault_resistance.arc_length" if self.phase_given
+                 else "default: the smallest phase spacing")
+        ground = ("study input fault_resistance.ground_arc_length" if self.ground_given
+                  else f"default: {INSULATOR_M_PER_KV:g} m per kV of nominal voltage, "
+                  "insulator flashover length")
+        return (f"Arc lengths: phase {self.phase_m:.3g} m ({phase}), ground "
+                f"{self.ground_m:.3g} m ({ground})")
+
+
+def arc_lengths(study: Study, geo: LineGeometry) -> ArcLengths:
+    """The arc lengths the resistive reach uses: the study's, else the defaults."""
+    fr = study.fault_resistance
+    return ArcLengths(
+        phase_m=fr.arc_length if fr.arc_length is not None else _phase_spacing_m(geo),
+        phase_given=fr.arc_length is not None,
+        ground_m=(fr.ground_arc_length if fr.ground_arc_length is not None
+                  else INSULATOR_M_PER_KV * geo.v_nominal_v / 1e3),
+        ground_given=fr.ground_arc_length is not None,
+    )
+
+
 def _phase_spacing_m(geo: LineGeometry) -> float:
     centres = {}
     for w in geo.wires:
@@ -105,6 +138,7 @@ def run_settings(study: Study, geo: LineGeometry, params: LineParameters, relay:
         src_relay = build_source(study, end, source)
         src_remote = build_source(study, other, source)
         fr = study.fault_resistance
+        arcs = arc_lengths(study, geo)
         circ = params.circuits[0]
         try:
             inputs = SettingsInputs(
@@ -127,8 +161,8 @@ def run_settings(study: Study, geo: LineGeometry, params: LineParameters, relay:
                 reverse_lines=_lines_at(study, end, remote=False, source=source),
                 source_z1_relay_ohm=None if src_relay is None else src_relay.z1_ohm,
                 source_z1_remote_ohm=None if src_remote is None else src_remote.z1_ohm,
-                arc_length_phase_m=fr.arc_length or _phase_spacing_m(geo),
-                arc_length_ground_m=INSULATOR_M_PER_KV * geo.v_nominal_v / 1e3,
+                arc_length_phase_m=arcs.phase_m,
+                arc_length_ground_m=arcs.ground_m,
                 tower_footing_ohm=fr.tower_footing_resistance,
                 recommended_zone1_pct=rec,
                 worst_overreach_pct=worst,
@@ -155,6 +189,7 @@ _STUDY_FIELDS = {
     "reverse_lines": "lines_behind",
     "tower_footing_ohm": "fault_resistance.tower_footing_resistance",
     "arc_length_phase_m": "fault_resistance.arc_length",
+    "arc_length_ground_m": "fault_resistance.ground_arc_length",
 }
 
 

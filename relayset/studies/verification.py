@@ -756,25 +756,19 @@ def verify_settings(study: Study, geo: LineGeometry, params_by_rho: dict[float, 
 
 def _resistive_basis(study: Study, geo: LineGeometry, settings_by_end) -> tuple[str, ...]:
     """How the resistive reach was chosen and what the simulation adds, in words."""
-    from relayset.studies.settings import INSULATOR_M_PER_KV, _phase_spacing_m
+    from relayset.studies.settings import arc_lengths
 
     if not any(z.shape == "quadrilateral" for st in settings_by_end.values()
                for z in st.zones):
         return ()
     fr = study.fault_resistance
-    ground_m = INSULATOR_M_PER_KV * geo.v_nominal_v / 1e3
-    phase_m = fr.arc_length if fr.arc_length is not None else _phase_spacing_m(geo)
     return (
         "Resistive reach basis, per loop: phase loops R_arc,phase/2 (the arc is shared by "
         "the two phases of the loop); ground loops (R_arc,ground + R_tower)/|1 + k0| "
         "(residual compensation divides the fault resistance); both times (1 + margin), "
         "single-end feed.",
-        f"Arc lengths: phase {phase_m:.3g} m "
-        + ("(study input fault_resistance.arc_length)" if fr.arc_length is not None
-           else "(default: the smallest phase spacing)")
-        + f", ground {ground_m:.3g} m (default: {INSULATOR_M_PER_KV:g} m per kV of nominal "
-        f"voltage, insulator flashover length); tower footing {fr.tower_footing_resistance:g} "
-        "ohm.",
+        arc_lengths(study, geo).describe()
+        + f"; tower footing {fr.tower_footing_resistance:g} ohm.",
         "Remote infeed into the fault resistance is not in the settings formula; the "
         "verification simulates it for every source case, and resistive faults the zones "
         "then miss are reported under the must-operate checks.",
