@@ -148,7 +148,9 @@ def _pdf_server(conn) -> None:
     """The helper's loop: import the renderer at once, then render each job sent."""
     import weasyprint  # noqa: F401  (the slow import, overlapped with the study)
 
-    from relayset.report.pdf import html_to_pdf
+    from relayset.report.pdf import html_to_pdf, warm_up
+
+    warm_up()
 
     while True:
         try:
@@ -203,8 +205,14 @@ def render_reports(paths: Sequence[str | Path], *, units: str | None = None, pap
         import multiprocessing as mp
         from concurrent.futures import ProcessPoolExecutor
 
-        # Import the heavy renderer once; forked workers inherit it.
+        # Import the renderer and the study's modules once and warm the fonts up; the
+        # forked workers inherit all of it instead of each doing it again.
         import weasyprint  # noqa: F401
+
+        import relayset.api  # noqa: F401
+        from relayset.report.pdf import warm_up
+
+        warm_up()
 
         with ProcessPoolExecutor(jobs, mp_context=mp.get_context("fork")) as pool:
             out = list(pool.map(_worker, [(p, units, paper) for p in paths]))
