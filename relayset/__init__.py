@@ -8,8 +8,6 @@ The public API is imported lazily so that ``relayset --help`` starts fast.
 
 from __future__ import annotations
 
-from typing import Any
-
 _API = {
     "load_study": "relayset.api",
     "study_parameters": "relayset.api",
@@ -24,7 +22,7 @@ _API = {
 __all__ = sorted(_API)
 
 
-def __getattr__(name: str) -> Any:
+def __getattr__(name: str) -> object:  # "object", not typing.Any: --help loads no typing
     if name in _API:
         import importlib
 

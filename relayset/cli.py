@@ -12,12 +12,9 @@ EXIT_FAILED_CHECKS = 3
 
 
 def _version() -> str:
-    from importlib.metadata import PackageNotFoundError, version
+    from relayset._version import relayset_version
 
-    try:
-        return version("relayset")
-    except PackageNotFoundError:
-        return "0+unknown"
+    return relayset_version()
 
 
 def _parser() -> argparse.ArgumentParser:
@@ -203,7 +200,6 @@ def _run(args) -> int:
         for path in build.write_reports(reports, args.output):
             print(f"report: {path.with_suffix('.html')} and {path.name}")
         return 0
-    from relayset import io
     from relayset.inputs.unit_system import study_unit_system
     from relayset.report import text
     from relayset.studies import pipeline
@@ -216,12 +212,15 @@ def _run(args) -> int:
         units = args.units or study_unit_system(res.study_input)
         sys.stdout.write(show(res, units))
     # Every output file is rendered first, then all are written or none.
-    outputs = []
-    if args.json:
-        outputs.append(("--json", args.json, io.to_json(results[0].to_dict())))
-    if getattr(args, "csv", None):
-        outputs.append(("--csv", args.csv, io.csv_bytes(_settings_csv(results[0]))))
-    io.write_all(outputs)
+    if args.json or getattr(args, "csv", None):
+        from relayset import io
+
+        outputs = []
+        if args.json:
+            outputs.append(("--json", args.json, io.to_json(results[0].to_dict())))
+        if getattr(args, "csv", None):
+            outputs.append(("--csv", args.csv, io.csv_bytes(_settings_csv(results[0]))))
+        io.write_all(outputs)
     failed = any(r.verification is not None and r.verification.verdict == "failed checks"
                  for r in results)
     return EXIT_FAILED_CHECKS if failed else 0

@@ -9,7 +9,6 @@ from functools import lru_cache
 from importlib import resources
 
 from relayset.errors import InputError, suggest
-from relayset.physics import conductor as cphys
 
 
 @dataclass(frozen=True)
@@ -69,6 +68,9 @@ def resolve(
     ``ac_resistance_temperature_c``, ``dc_resistance_20c_ohm_per_m``,
     ``temperature_coefficient_per_k``, ``ac_dc_ratio``, ``operating_temperature_c``.
     """
+    # Imported here: `relayset conductors` lists the table without loading numpy.
+    from relayset.physics import conductor as cphys
+
     notes: list[str] = []
     diameter = props.get("outside_diameter_m")
     if diameter is None:

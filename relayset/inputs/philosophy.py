@@ -6,8 +6,8 @@ its default). A file may be partial; missing keys take the default. The loaded
 :class:`relayset.errors.InputError` naming the file, the dotted key, the value and the rule.
 """
 
-from __future__ import annotations
-
+# No ``from __future__ import annotations``: pydantic would compile every field's annotation
+# from its text at each start-up.
 import copy
 import tomllib
 from collections.abc import Mapping
@@ -115,7 +115,7 @@ class Philosophy(_Part):
         """The philosophy as nested plain data (the same keys as the TOML file)."""
         return self.model_dump()
 
-    def with_changes(self, changes: Mapping[str, Any], source: str = "<changes>") -> Philosophy:
+    def with_changes(self, changes: Mapping[str, Any], source: str = "<changes>") -> "Philosophy":
         """A new philosophy with some keys replaced (validated like a file)."""
         return _build(_merge(self.model_dump(), changes, source), source)
 

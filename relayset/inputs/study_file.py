@@ -5,14 +5,15 @@ they are read. Every rule a file can break raises :class:`relayset.errors.InputE
 the file, the dotted field, the value and the rule.
 """
 
-from __future__ import annotations
-
+# No ``from __future__ import annotations`` here: pydantic would evaluate every field's
+# annotation from its text (compiling each expression), a third of the models' build time
+# at every start-up.
 import datetime as dt
 import math
 import re
 import tomllib
 from pathlib import Path
-from typing import Annotated, Any, Literal
+from typing import Annotated, Any, Literal, Self
 
 from pydantic import (
     AfterValidator,
@@ -185,7 +186,7 @@ class StudyInfo(_Model):
     notes: _text(10_000) = ""  # type: ignore[valid-type]
 
     @model_validator(mode="after")
-    def _check_signatures(self) -> StudyInfo:
+    def _check_signatures(self) -> Self:
         # Who signs: a calculation for review names its preparer; an approved one also its
         # checker and approver.
         needed = {"for review": ("prepared_by",),
@@ -217,7 +218,7 @@ class SystemData(_Model):
                                    _quantity("resistivity", gt=0)] | None = None  # type: ignore[valid-type]
 
     @model_validator(mode="after")
-    def _check_range(self) -> SystemData:
+    def _check_range(self) -> Self:
         r = self.earth_resistivity_range
         if r is not None and not r[0] <= self.earth_resistivity <= r[1]:
             raise ValueError(
@@ -226,7 +227,7 @@ class SystemData(_Model):
         return self
 
     @model_validator(mode="after")
-    def _check(self) -> SystemData:
+    def _check(self) -> Self:
         from relayset.physics.earth_models import EARTH_MODELS
 
         if self.earth_model not in EARTH_MODELS:
@@ -264,7 +265,7 @@ class Bundle(_Model):
                            BeforeValidator(_orientation)] = 0.0  # (validators run last first)
 
     @model_validator(mode="after")
-    def _check(self) -> Bundle:
+    def _check(self) -> Self:
         if not abs(self.orientation) <= 2 * math.pi:
             raise ValueError("orientation must lie between -360 deg and 360 deg")
         return self
@@ -280,7 +281,7 @@ class _Placed(_Model):
     conductor: Name  # type: ignore[valid-type]
 
     @model_validator(mode="after")
-    def _check_height(self) -> _Placed:
+    def _check_height(self) -> Self:
         if (self.height is None) == (self.average_height is None):
             raise ValueError("give either height (with sag) or average_height")
         if self.average_height is not None and self.sag:
@@ -408,7 +409,7 @@ class SourceData(_Model):
     z0_over_z1: _number(ge=0.05, le=20) | None = None  # type: ignore[valid-type]
 
     @model_validator(mode="after")
-    def _check(self) -> SourceData:
+    def _check(self) -> Self:
         if self.z1 is not None:
             if self.z0 is None:
                 raise ValueError("z1 needs z0 as well")
@@ -445,7 +446,7 @@ class LoadData(_Model):
     power_flows: tuple[PowerFlow, ...] = ()
 
     @model_validator(mode="after")
-    def _check(self) -> LoadData:
+    def _check(self) -> Self:
         if not 0 <= self.load_angle_max < math.pi / 2:
             raise ValueError(f"load_angle_max must be at least 0 deg and below 90 deg, not "
                              f"{math.degrees(self.load_angle_max):g} deg")
@@ -511,7 +512,7 @@ class AdjacentLine(_Model):
     bus: _text(100) | None = None  # type: ignore[valid-type]
 
     @model_validator(mode="after")
-    def _check(self) -> AdjacentLine:
+    def _check(self) -> Self:
         if (self.z1 is None) == (self.study is None):
             raise ValueError("give either z1 or study (a path to the adjacent line's study file)")
         return self

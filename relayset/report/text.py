@@ -8,7 +8,10 @@ from __future__ import annotations
 
 import cmath
 import math
+import os
 from dataclasses import dataclass
+from functools import lru_cache
+from pathlib import Path
 from typing import Any
 
 from relayset.resources import templates_dir
@@ -43,6 +46,75 @@ UNIT_SYSTEMS = {
 }
 
 
+def _cache_dir() -> Path | None:
+    """The user's cache folder for compiled templates, or None where there is none."""
+    base = os.environ.get("XDG_CACHE_HOME")
+    if not base and os.name == "nt":
+        base = os.environ.get("LOCALAPPDATA")
+    if base and not os.path.isabs(base):
+        base = None  # a relative path is ignored (XDG Base Directory Specification)
+    try:
+        root = Path(base) if base else Path.home() / ".cache"
+    except RuntimeError:  # no home folder
+        return None
+    return root / "relayset" / "templates"
+
+
+def _fingerprint(env) -> str:
+    """What the compiled code of a template depends on besides its source: the Jinja2
+    version and the environment's syntax and compile options."""
+    import hashlib
+
+    import jinja2
+
+    opts = (jinja2.__version__, env.block_start_string, env.block_end_string,
+            env.variable_start_string, env.variable_end_string, env.comment_start_string,
+            env.comment_end_string, env.line_statement_prefix, env.line_comment_prefix,
+            env.trim_blocks, env.lstrip_blocks, env.newline_sequence, env.keep_trailing_newline,
+            env.autoescape, env.optimized, env.finalize is not None, sorted(env.extensions))
+    return hashlib.sha256(repr(opts).encode()).hexdigest()[:16]
+
+
+@lru_cache(maxsize=4)
+def _bytecode_cache(fingerprint: str):
+    """A cache of the compiled console templates in the user's cache folder.
+
+    Compiling a template costs 20-40 ms per process. Jinja2 keys the cached code by the
+    template's path and checks it against the checksum of its source and the Python version;
+    the file name adds ``fingerprint`` (:func:`_fingerprint`), so an edited template, another
+    Jinja2 or other environment options are compiled afresh. The cache is only an accelerator:
+    an unwritable, foreign or corrupt cache silently falls back to compiling, with identical
+    output. Compiled code is executed, so a folder that others can write to is never used.
+    """
+    import jinja2
+
+    folder = _cache_dir()
+    if folder is None:
+        return None
+    try:
+        folder.mkdir(mode=0o700, parents=True, exist_ok=True)
+        st = folder.stat()
+        if os.name != "nt" and (st.st_uid != os.getuid() or st.st_mode & 0o022):
+            return None
+    except OSError:
+        return None
+
+    class QuietCache(jinja2.FileSystemBytecodeCache):
+        def load_bytecode(self, bucket) -> None:
+            try:
+                super().load_bytecode(bucket)
+            except Exception:  # unreadable or corrupt: compile instead
+                bucket.reset()
+
+        def dump_bytecode(self, bucket) -> None:
+            try:
+                super().dump_bytecode(bucket)
+            except OSError:  # full or read-only: just no cache
+                pass
+
+    return QuietCache(str(folder), f"%s-{fingerprint}.cache")
+
+
 def _env():
     import jinja2
 
@@ -58,6 +130,7 @@ def _env():
     env.filters["p"] = fmt_polar
     env.filters["f"] = fmt_float
     env.filters["pct"] = fmt_pct_of
+    env.bytecode_cache = _bytecode_cache(_fingerprint(env))
     return env
 
 
@@ -90,11 +163,7 @@ def render(template: str, **context: Any) -> str:
 
 
 def _context(results, unit_system: str) -> dict[str, Any]:
-    from relayset.report.tables import settings_rows
-    from relayset.settings.context import ZONE_LABELS
-
-    return {"r": results, "p": results.parameters, "u": UNIT_SYSTEMS[unit_system],
-            "zone_labels": ZONE_LABELS, "settings_rows": settings_rows, "zip": zip}
+    return {"r": results, "p": results.parameters, "u": UNIT_SYSTEMS[unit_system], "zip": zip}
 
 
 def params_summary(results, unit_system: str = "si") -> str:
@@ -109,4 +178,9 @@ def reach_summary(results, unit_system: str = "si") -> str:
 
 def settings_summary(results, unit_system: str = "si") -> str:
     """The settings table and warnings of one study, one block per relay end."""
-    return render("settings.txt.j2", **_context(results, unit_system))
+    # Imported here: the setting tables load the settings package, which params/reach skip.
+    from relayset.report.tables import settings_rows
+    from relayset.settings.context import ZONE_LABELS
+
+    return render("settings.txt.j2", **_context(results, unit_system),
+                  zone_labels=ZONE_LABELS, settings_rows=settings_rows)

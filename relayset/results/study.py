@@ -4,13 +4,14 @@ from __future__ import annotations
 
 from dataclasses import dataclass
 from pathlib import PurePath
-from typing import Any
+from typing import TYPE_CHECKING, Any
 
-from relayset.results.parameters import LineParameters
-from relayset.results.reach import ReachStudyResult
-from relayset.results.relay import RelayBasis
-from relayset.results.settings import SettingsResult
-from relayset.results.verification import VerificationResult
+if TYPE_CHECKING:  # annotations only: `relayset params` loads no reach/settings types
+    from relayset.results.parameters import LineParameters
+    from relayset.results.reach import ReachStudyResult
+    from relayset.results.relay import RelayBasis
+    from relayset.results.settings import SettingsResult
+    from relayset.results.verification import VerificationResult
 
 CAUTION = (
     "This calculation must be reviewed and approved by a licensed professional engineer "

@@ -5,10 +5,10 @@ from __future__ import annotations
 
 import hashlib
 from dataclasses import dataclass
-from importlib.metadata import PackageNotFoundError, version
 from pathlib import Path
-from typing import Any
+from typing import TYPE_CHECKING, Any
 
+from relayset._version import relayset_version
 from relayset.inputs.study_file import (
     Study,
     check_reach_inputs,
@@ -17,18 +17,14 @@ from relayset.inputs.study_file import (
     parse_study,
     read_bytes,
 )
-from relayset.results.parameters import LineParameters
 from relayset.results.study import StudyResults
 from relayset.studies.geometry import build_geometry
 from relayset.studies.parameters import compute_parameters
 
+if TYPE_CHECKING:
+    from relayset.results.parameters import LineParameters
 
-def relayset_version() -> str:
-    """The installed relayset version ("0+unknown" in an uninstalled source tree)."""
-    try:
-        return version("relayset")
-    except PackageNotFoundError:
-        return "0+unknown"
+__all__ = ["LoadedStudy", "identity", "line_parameters", "load", "relayset_version", "run"]
 
 
 @dataclass(frozen=True)
@@ -68,10 +64,6 @@ def line_parameters(path: str | Path) -> LineParameters:
 
 def run(path: str | Path, *, reach: bool = False, settings: bool = False) -> StudyResults:
     """Compute a study: parameters always, the reach study and settings on request."""
-    from relayset.studies.reach import run_reach_study
-    from relayset.studies.relay import resolve_relay
-    from relayset.studies.settings import study_philosophy
-
     reach = reach or settings  # zone 1 follows the reach study
     loaded = load(path)
     study, src = loaded.study, loaded.source
@@ -79,6 +71,11 @@ def run(path: str | Path, *, reach: bool = False, settings: bool = False) -> Stu
     params = compute_parameters(geo)
     relay = philosophy = reach_res = settings_res = None
     if reach:
+        # Imported here: `relayset params` needs none of the study steps below.
+        from relayset.studies.reach import run_reach_study
+        from relayset.studies.relay import resolve_relay
+        from relayset.studies.settings import study_philosophy
+
         (check_settings_inputs if settings else check_reach_inputs)(study, src)
         relay = resolve_relay(study, params)
         philosophy = study_philosophy(study, src)
