@@ -428,3 +428,31 @@ def test_section_and_figure_numbers_follow_the_sections(variant):
     for row in re.findall(r"<tr><td>Zone [23][^\n]*?</tr>", html):
         assert row.count("infeed factor") <= 1, row
     assert "smallest at Z1 reach" in html and "under at Z1 reach" not in html
+
+
+def test_helper_process_gives_the_same_bytes_and_stops(demo_path):
+    """The PDF rendered in the forked helper (single-report command) equals the in-process
+    one byte for byte, and the helper is gone afterwards."""
+    import multiprocessing as mp
+
+    path = demo_path("kessler_oxbow_115kv.toml")
+    with build.PdfHelper() as helper:
+        via_helper = build.report_for_study(path, pdf_renderer=helper)
+        proc = helper._proc
+    here = build.report_for_study(path)
+    assert via_helper.pdf == here.pdf and via_helper.html == here.html
+    assert proc is None or not proc.is_alive()
+    assert not [p for p in mp.active_children() if p is proc]
+
+
+def test_single_bad_file_writes_nothing(variant, tmp_path, capsys):
+    """One bad study through the single-report path (with the helper): one line, exit 2."""
+    def edit(d):
+        d["line"]["length"] = "-5 km"
+
+    bad = variant("kessler_oxbow_115kv.toml", edit)
+    out = tmp_path / "out"
+    rc = main(["report", str(bad), "-o", str(out)])
+    err = capsys.readouterr().err
+    assert rc == 2 and len(err.strip().splitlines()) == 1 and "line.length" in err
+    assert not out.exists() or not any(out.iterdir())
