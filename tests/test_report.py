@@ -2,7 +2,8 @@
 reproducible bytes, escaping, bad input.
 
 Independent checks: pypdf (text extraction) and pikepdf/qpdf (PDF structure, XMP PDF/A claim,
-embedded files) are general-purpose PDF libraries outside relayset.
+embedded files) are general-purpose PDF libraries outside relayset; the figures are read back
+with the standard library's XML parser and numpy least squares.
 """
 
 from __future__ import annotations
@@ -11,11 +12,15 @@ import datetime as dt
 import hashlib
 import io
 import json
+import re
 import shutil
 import subprocess
+import xml.etree.ElementTree as ET
 from pathlib import Path
 
+import numpy as np
 import pytest
+from numpy.testing import assert_allclose
 
 from relayset.cli import main
 from relayset.report import build
@@ -258,3 +263,196 @@ def test_unwritable_output_folder(tmp_path, demo_path, capsys):
     assert rc == 2
     assert "cannot write the output folder" in err and "file/sub" in err
     assert "Not a directory" in err
+
+
+# ------------------------------------------------------------------- figures (our own SVG)
+SVG_NS = "{http://www.w3.org/2000/svg}"
+
+
+def _svgs(html: str) -> dict[str, ET.Element]:
+    """Every inline figure of the report, parsed by the standard library's XML parser."""
+    out = {}
+    for text in re.findall(r"<svg .*?</svg>", html, flags=re.S):
+        root = ET.fromstring(text)  # raises on malformed XML
+        out[root.get("aria-label")] = root
+    return out
+
+
+def _role(root: ET.Element, role: str) -> ET.Element:
+    found = [e for e in root.iter() if e.get("data-role") == role]
+    assert len(found) == 1, role
+    return found[0]
+
+
+def _axis(group: ET.Element, coord: str) -> tuple[float, float]:
+    """(offset, scale) of an axis fitted through its tick labels: user = a + k * value."""
+    pts = [(float(t.text.replace("\u2212", "-")), float(t.get(coord)))
+           for t in group.iter(SVG_NS + "text")]
+    assert len(pts) >= 2
+    v, u = np.array(pts).T
+    k, a = np.polyfit(v, u, 1)
+    assert_allclose(a + k * v, u, rtol=0, atol=0.02)  # the labels sit on a linear scale
+    return a, k
+
+
+def _numbers(d: str) -> list[float]:
+    return [float(x) for x in re.findall(r"-?\d+(?:\.\d+)?", d)]
+
+
+def test_figures_are_svg_that_plot_the_results(demo_reports):
+    """Each figure is well-formed SVG (xml.etree), without style attributes, and its
+    coordinates, read back through its own tick labels, are the results' numbers."""
+    for r in demo_reports[1].values():
+        d = json.loads(r.json)
+        figs = _svgs(r.html)
+        assert "tower cross-section" in figs
+        for root in figs.values():
+            assert not any(e.get("style") for e in root.iter())  # presentation attributes
+        # R-X diagram: the line replica ends at Z1 of the line (settings, primary ohms).
+        for end in d["settings"]["ends"]:
+            root = figs[f"R-X diagram, relay at {end['end']}"]
+            ar, kr = _axis(_role(root, "ticks-r"), "x")
+            ax, kx = _axis(_role(root, "ticks-x"), "y")
+            assert_allclose(kr, -kx, rtol=1e-3, atol=0)  # equal scales on R and X
+            x0, y0, x1, y1 = _numbers(_role(root, "line-replica").get("d"))
+            z1 = end["line"]["z1_primary_ohm"]
+            tol = 0.02 / abs(kr)  # 0.02 user units, the rounding of the coordinates
+            assert_allclose([(x0 - ar) / kr, (y0 - ax) / kx], [0, 0], rtol=0, atol=tol)
+            assert_allclose([(x1 - ar) / kr, (y1 - ax) / kx], z1, rtol=0, atol=tol)
+            # Both load regions are checked, so both fronts (R = ±Zmin) are on the plot.
+            frame = [float(t.get("x")) for t in _role(root, "ticks-r").iter(SVG_NS + "text")]
+            zmin = end["load"]["z_min_primary_ohm"]
+            assert (min(frame) - ar) / kr < 0 and (56 - ar) / kr <= -zmin
+        # Reach error: the drawn largest error of each loop peaks at the results' value.
+        for e in d["reach_study"]["ends"]:
+            root = figs[f"reach error, relay at {e['end']}"]
+            a0, k0 = _axis(_role(root, "yticks-0"), "y")
+            env = e["arrangements"][0]["envelope"]
+            for i, lp in enumerate(env["loops"]):
+                path = next(p for p in root.iter(SVG_NS + "path")
+                            if p.get("data-loop") == lp and p.get("data-kind") == "max")
+                ys = _numbers(path.get("d"))[1::2]
+                drawn = max((y - a0) / k0 for y in ys)
+                # the simplification keeps the curve within 0.2 user units
+                want = max(v for v in env["bolted_reach_error_max_pct"][i] if v is not None)
+                assert_allclose(drawn, want, rtol=0, atol=0.25 / abs(k0))
+        # Tower: every conductor drawn where the geometry puts it, one scale for x and h.
+        root = figs["tower cross-section"]
+        wires = [w for w in d["parameters"]["wires"] if w["role"] == "phase"]
+        nums = _numbers(_role(root, "phase-wires").get("d"))
+        subpaths = _role(root, "phase-wires").get("d").count("M")
+        assert subpaths == len(wires)
+        # a circle sub-path starts at (cx - r, cy): "M x y a r r 0 1 0 2r 0 ..."
+        starts = [nums[k:k + 4] for k in range(0, len(nums), len(nums) // subpaths)]
+        cx = np.array([s[0] + s[2] for s in starts])
+        cy = np.array([s[1] for s in starts])
+        geo = np.array([[w["x_m"], w["average_height_m"]] for w in wires])
+        # cx = a + s x, cy = b - s h: one least-squares fit, residuals at the rounding
+        A = np.block([[np.ones((len(wires), 1)), np.zeros((len(wires), 1)), geo[:, :1]],
+                      [np.zeros((len(wires), 1)), np.ones((len(wires), 1)), -geo[:, 1:]]])
+        sol, *_ = np.linalg.lstsq(A, np.concatenate([cx, cy]), rcond=None)
+        assert_allclose(A @ sol, np.concatenate([cx, cy]), rtol=0, atol=0.03)
+        shields = [w for w in d["parameters"]["wires"] if w["role"] == "shield"]
+        assert _role(root, "shield-wires").get("d").count("M") == len(shields)
+
+
+def test_figures_are_deterministic_and_escaped():
+    """Same results, same bytes; a label with markup stays text (xml.etree reads it back)."""
+    from relayset.report import plots
+
+    end = {"end": "<b>A&B</b>", "arrangements": [{
+        "title": "t", "envelope": {"location_pct": [0.0, 50.0, 100.0], "loops": ["A-G"],
+                                   "bolted_reach_error_max_pct": [[1.0, 2.0, 3.0]],
+                                   "bolted_reach_error_min_pct": [[-1.0, 0.0, 1.0]]}}]}
+    one, two = plots.reach_error_svg(end, 0), plots.reach_error_svg(end, 0)
+    assert one == two
+    root = ET.fromstring(one)
+    assert root.get("aria-label") == "reach error, relay at <b>A&B</b>"
+    assert "<b>" not in one
+
+
+def test_caution_on_every_page_and_at_both_ends(demo_reports):
+    for r in demo_reports[1].values():
+        pages = [p.replace("\n", " ") for p in _pdf_text(r.pdf)]
+        for k, page in enumerate(pages, 1):
+            assert "licensed professional engineer" in page, (r.stem, k)
+        full = json.loads(r.json)["caution"]
+        words = " ".join(full.split()[:8])
+        assert words in pages[0] and words in pages[-1]
+
+
+def test_no_nearly_empty_pages(demo_reports):
+    """No forced break leaves a page nearly empty: every page but the last carries at least
+    40 % of the median page's text (common practice, no source)."""
+    for r in demo_reports[1].values():
+        sizes = [len(p) for p in _pdf_text(r.pdf)]
+        floor = 0.4 * float(np.median(sizes))
+        assert all(s >= floor for s in sizes[:-1]), (r.stem, sizes)
+
+
+def _section_numbers(html: str) -> dict[str, int]:
+    return {m.group(2): int(m.group(1))
+            for m in re.finditer(r"<h2>(\d+) ([^<]+)</h2>", html)}
+
+
+def test_section_and_figure_numbers_follow_the_sections(variant):
+    """Two relay ends add a settings chapter: the summary's pointers follow; the zone rule
+    names its infeed factor once; mho diagrams are not described as quadrilaterals."""
+    def edit(d):
+        d["relay"]["end"] = "both"
+        for a in d["adjacent_lines"]:
+            a["bus"] = d["study"]["to_substation"]
+        d["adjacent_lines"].append({**d["adjacent_lines"][0], "name": "Back line",
+                                    "bus": d["study"]["from_substation"]})
+
+    from relayset.api import study_settings
+
+    path = variant("kessler_oxbow_115kv.toml", edit)
+    rep = build.make_report(study_settings(path))
+    html = rep.html
+    sec = _section_numbers(html)
+    numbers = sorted(sec.values())
+    assert numbers == list(range(1, len(numbers) + 1))  # consecutive
+    assert sum(1 for t in sec if t.startswith("Settings: relay at")) == 2
+    verif = sec["Verification evidence"]
+    assert verif == max(numbers)
+    assert f"(section {verif}).</p>" in html
+    reach = sec["Results: reach study"]
+    assert f"Error budget: the defaults, as applied in section {reach}." in html
+    figs = [int(n) for n in re.findall(r"<figcaption>Figure (\d+)\.", html)]
+    d = json.loads(rep.json)
+    n_figs = 1 + len(d["reach_study"]["ends"]) + len(d["settings"]["ends"])
+    assert figs == list(range(1, n_figs + 1))
+    for cap in re.findall(r"<figcaption>Figure \d+\. R-X diagram[^<]*", html):
+        assert "mho circles" in cap and "quadrilateral" not in cap
+    for row in re.findall(r"<tr><td>Zone [23][^\n]*?</tr>", html):
+        assert row.count("infeed factor") <= 1, row
+    assert "smallest at Z1 reach" in html and "under at Z1 reach" not in html
+
+
+def test_helper_process_gives_the_same_bytes_and_stops(demo_path):
+    """The PDF rendered in the forked helper (single-report command) equals the in-process
+    one byte for byte, and the helper is gone afterwards."""
+    import multiprocessing as mp
+
+    path = demo_path("kessler_oxbow_115kv.toml")
+    with build.PdfHelper() as helper:
+        via_helper = build.report_for_study(path, pdf_renderer=helper)
+        proc = helper._proc
+    here = build.report_for_study(path)
+    assert via_helper.pdf == here.pdf and via_helper.html == here.html
+    assert proc is None or not proc.is_alive()
+    assert not [p for p in mp.active_children() if p is proc]
+
+
+def test_single_bad_file_writes_nothing(variant, tmp_path, capsys):
+    """One bad study through the single-report path (with the helper): one line, exit 2."""
+    def edit(d):
+        d["line"]["length"] = "-5 km"
+
+    bad = variant("kessler_oxbow_115kv.toml", edit)
+    out = tmp_path / "out"
+    rc = main(["report", str(bad), "-o", str(out)])
+    err = capsys.readouterr().err
+    assert rc == 2 and len(err.strip().splitlines()) == 1 and "line.length" in err
+    assert not out.exists() or not any(out.iterdir())

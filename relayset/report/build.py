@@ -40,10 +40,11 @@ def philosophy_path(results) -> Path:
 
 
 def make_report(results, *, units: str | None = None, paper: str = "a4",
-                environ: dict[str, str] | None = None) -> ReportFiles:
+                environ: dict[str, str] | None = None, pdf_renderer=None) -> ReportFiles:
     """Render one study's report (HTML, PDF/A-3b and results JSON) from its results.
 
-    ``units`` None means the units the study file is written in.
+    ``units`` None means the units the study file is written in. ``pdf_renderer`` (same
+    call as :func:`relayset.report.pdf.html_to_pdf`) defaults to rendering here.
     """
     from relayset import io
     from relayset.inputs.unit_system import study_unit_system
@@ -80,16 +81,88 @@ def make_report(results, *, units: str | None = None, paper: str = "a4",
         name = ph.name if ph.name != src.name else f"philosophy_{ph.name}"
         files.append(EmbeddedFile(name, ph_bytes, "The setting philosophy (input)", "Source"))
     when = document_date(results.identity, env).when
-    pdf = html_to_pdf(html, files, when)
+    pdf = (pdf_renderer or html_to_pdf)(html, files, when)
     return ReportFiles(ctx["doc_id"], html, pdf, results_json, str(src))
 
 
 def report_for_study(path: str | Path, units: str | None = None,
-                     paper: str = "a4") -> ReportFiles:
+                     paper: str = "a4", pdf_renderer=None) -> ReportFiles:
     """Compute a study (parameters, reach study, settings) and render its report."""
     from relayset.api import study_settings
 
-    return make_report(study_settings(path), units=units, paper=paper)
+    return make_report(study_settings(path), units=units, paper=paper,
+                       pdf_renderer=pdf_renderer)
+
+
+class PdfHelper:
+    """A forked process that imports the PDF renderer while this one computes the study.
+
+    Importing WeasyPrint takes about as long as computing a study; on two cores the two
+    overlap. The helper renders the PDF from the finished HTML and sends the bytes back.
+    Without ``fork`` (not on every platform) the PDF is rendered in this process.
+    """
+
+    def __init__(self) -> None:
+        import multiprocessing as mp
+
+        self._conn = self._proc = None
+        if "fork" not in mp.get_all_start_methods():
+            return
+        ctx = mp.get_context("fork")
+        self._conn, child = ctx.Pipe()
+        self._proc = ctx.Process(target=_pdf_server, args=(child,), daemon=True)
+        self._proc.start()
+        child.close()
+
+    def __call__(self, html, files, when) -> bytes:
+        if self._conn is None:
+            from relayset.report.pdf import html_to_pdf
+
+            return html_to_pdf(html, files, when)
+        self._conn.send((html, list(files), when))
+        kind, payload = self._conn.recv()
+        if kind != "ok":
+            raise RuntimeError(f"PDF rendering failed: {payload}")
+        return payload
+
+    def close(self) -> None:
+        if self._conn is not None:
+            try:
+                self._conn.send(None)
+            except OSError:
+                pass
+            self._conn.close()
+            self._proc.join(timeout=5)
+            if self._proc.is_alive():
+                self._proc.kill()
+            self._conn = self._proc = None
+
+    def __enter__(self) -> PdfHelper:
+        return self
+
+    def __exit__(self, *exc) -> None:
+        self.close()
+
+
+def _pdf_server(conn) -> None:
+    """The helper's loop: import the renderer at once, then render each job sent."""
+    import weasyprint  # noqa: F401  (the slow import, overlapped with the study)
+
+    from relayset.report.pdf import html_to_pdf, warm_up
+
+    warm_up()
+
+    while True:
+        try:
+            job = conn.recv()
+        except EOFError:
+            return
+        if job is None:
+            return
+        try:
+            conn.send(("ok", html_to_pdf(*job)))
+        except Exception as exc:  # reported to the parent, which raises
+            conn.send(("error", f"{type(exc).__name__}: {exc}"))
 
 
 def _worker(args: tuple[str, str | None, str]):
@@ -126,14 +199,20 @@ def render_reports(paths: Sequence[str | Path], *, units: str | None = None, pap
     paths = [str(p) for p in paths]
     jobs = max(1, min(jobs or os.cpu_count() or 1, len(paths)))
     if jobs == 1:
-        reports = [report_for_study(p, units, paper) for p in paths]
+        with PdfHelper() as helper:
+            reports = [report_for_study(p, units, paper, pdf_renderer=helper) for p in paths]
     else:
         import multiprocessing as mp
         from concurrent.futures import ProcessPoolExecutor
 
-        # Import the heavy renderers once; forked workers inherit them.
-        import matplotlib.figure  # noqa: F401
+        # Import the renderer and the study's modules once and warm the fonts up; the
+        # forked workers inherit all of it instead of each doing it again.
         import weasyprint  # noqa: F401
+
+        import relayset.api  # noqa: F401
+        from relayset.report.pdf import warm_up
+
+        warm_up()
 
         with ProcessPoolExecutor(jobs, mp_context=mp.get_context("fork")) as pool:
             out = list(pool.map(_worker, [(p, units, paper) for p in paths]))

@@ -51,13 +51,15 @@ ARRANGEMENT_TEXT = {
     "ideal_cycle": "ideal transposition cycle",
 }
 
+#: Column headers of the per-loop table. The "underreach" extremes are the smallest error
+#: found, which is positive when every case overreaches: the header says "smallest".
 WORST_KEYS = (
-    ("worst_overreach_at_zone1_reach", "over at Z1 reach"),
-    ("worst_underreach_at_zone1_reach", "under at Z1 reach"),
-    ("worst_overreach_on_line", "over on line"),
-    ("worst_underreach_on_line", "under on line"),
-    ("worst_overreach_at_remote_bus", "over at remote bus"),
-    ("worst_reactance_overreach_at_zone1_reach_resistive", "X over, Rf > 0"),
+    ("worst_overreach_at_zone1_reach", "largest at Z1 reach"),
+    ("worst_underreach_at_zone1_reach", "smallest at Z1 reach"),
+    ("worst_overreach_on_line", "largest on line"),
+    ("worst_underreach_on_line", "smallest on line"),
+    ("worst_overreach_at_remote_bus", "largest at remote bus"),
+    ("worst_reactance_overreach_at_zone1_reach_resistive", "largest X error, Rf > 0"),
 )
 
 
@@ -493,6 +495,8 @@ def _settings_ends(d: dict[str, Any]) -> list[dict[str, Any]]:
             "zones": [_zone(name, z) for name, z in s["zones"].items()],
             "warnings": [{"rule_id": w["rule_id"], "message": w["message"],
                           "consider": w["consider"]} for w in s["warnings"]],
+            "shape_kind": (lambda k: k.pop() if len(k) == 1 else "mixed")(
+                {z["shape"] for z in s["zones"].values()}),
             "failed_checks": [(name, c["check_id"]) for name, z in s["zones"].items()
                               for c in z["checks"] if not c["passed"]],
             "settings_dict": {**s, "zones": zones},
@@ -602,12 +606,17 @@ def build_context(results, *, units: str = "si", paper: str = "a4",
 
 
 def _philosophy_rows(ph: dict[str, Any] | None) -> list[tuple[str, list[tuple[str, str]]]]:
+    """The philosophy applied, table by table, values written as in a TOML file."""
     if not ph:
         return []
+
+    def text(v: Any) -> str:
+        return ("true" if v else "false") if isinstance(v, bool) else str(v)
+
     out = []
     for table, values in ph.items():
         if isinstance(values, dict):
-            out.append((str(table), [(str(k), str(v)) for k, v in values.items()]))
+            out.append((str(table), [(str(k), text(v)) for k, v in values.items()]))
         else:
-            out.append(("", [(str(table), str(values))]))
+            out.append(("", [(str(table), text(values))]))
     return out

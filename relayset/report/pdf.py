@@ -108,3 +108,11 @@ def html_to_pdf(html: str, files: Sequence[EmbeddedFile], when: dt.datetime,
                                       finisher=_dedupe_af, uncompressed_pdf=False)
         finally:
             log.setLevel(level)
+
+
+def warm_up() -> None:
+    """Render a tiny page with the report's fonts once, so that font configuration and
+    loading are done before the real report (and shared by processes forked after it)."""
+    page = ('<p style="font-family: DejaVu Sans">a <b>b</b> <i>c</i></p>'
+            '<pre>d</pre><p style="font-family: DejaVu Serif">e</p>')
+    html_to_pdf(page, [], dt.datetime(2000, 1, 1, tzinfo=dt.UTC))

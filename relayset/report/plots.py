@@ -1,204 +1,285 @@
-"""Vector figures of the report (SVG text from matplotlib), drawn from the results only.
+"""Vector figures of the report, drawn from the results only, as hand-written SVG.
 
-matplotlib is imported inside the functions (it is heavy). Output is deterministic: a fixed
-hash salt per figure, no date in the metadata, text kept as text (``svg.fonttype = none``)
-so the PDF stays searchable. Every string comes from the results and is escaped by
-matplotlib's SVG writer; math-text parsing is off so a ``$`` in user text is just a dollar.
-Figures are greyscale with distinct line styles, readable in black and white.
+Three figures: the tower cross-section to scale, the bolted reach error against fault
+location per loop and arrangement, and an R-X diagram per relay end (zones as set, line
+replica, load region, the verification's governing fault cases). Black and white: loops and
+zones differ by dash pattern, weight and marker, never by colour alone. Output is plain text
+built by :mod:`relayset.report.svg` (no plotting library): the same results give the same
+bytes, every label is escaped, and the figures stay small for the PDF renderer.
 """
 
 from __future__ import annotations
 
 import cmath
-import io
 import math
-import re
-from contextlib import contextmanager
 from typing import Any
 
-#: Line styles for loops and zones, distinguishable without colour.
-STYLES = ("-", "--", ":", "-.", (0, (5, 1, 1, 1, 1, 1)), (0, (1, 3)))
-GREYS = ("0.0", "0.35", "0.55", "0.2", "0.45", "0.65")
-MARKERS = ("o", "s", "^", "D", "v", "x")
-WIDTH_IN = 6.5  # fits A4 and Letter text widths
+from relayset.report.svg import (
+    Axis,
+    Boxes,
+    Svg,
+    f,
+    marker_path,
+    nice_ticks,
+    path_d,
+    simplify,
+    text_width,
+    tick_text,
+)
+
+#: Dash patterns, distinguishable without colour ("" is solid).
+DASHES = ("", "6 3", "1.5 2", "8 2.5 2 2.5", "3 3", "10 2")
+GREYS = ("#000", "#444", "#000", "#555", "#222", "#666")
+MARKERS = ("o", "s", "^", "d", "v", "x")
+GROUNDING = {"continuous": "earthed at every tower", "segmented":
+             "segmented, earthed at one point", "none": "insulated"}
+#: Fonts [user units] (figures are 640 units wide, about 170 mm on paper).
+FS, FS_SMALL, FS_LABEL = 9.0, 8.0, 10.0
+MINUS = "\u2212"
 
 
-@contextmanager
-def _style(salt: str):
-    import matplotlib
-
-    with matplotlib.rc_context({
-        "svg.hashsalt": f"relayset-{salt}",
-        "svg.fonttype": "none",
-        "text.parse_math": False,
-        "font.family": "DejaVu Sans",
-        "font.size": 7.5,
-        "axes.linewidth": 0.6,
-        "axes.titlesize": 8,
-        "axes.labelsize": 7.5,
-        "xtick.labelsize": 7,
-        "ytick.labelsize": 7,
-        "legend.fontsize": 6.5,
-        "legend.framealpha": 1.0,
-        "legend.edgecolor": "0.5",
-        "lines.linewidth": 1.0,
-        "grid.color": "0.85",
-        "grid.linewidth": 0.4,
-        "axes.grid": True,
-        "path.simplify": False,
-    }):
-        yield
+def _n(v: float, digits: int = 2) -> str:
+    text = f"{v:.{digits}f}"
+    if float(text) == 0:
+        text = text.lstrip("-")
+    return text.replace("-", MINUS)
 
 
-def _figure(w_in: float, h_in: float):
-    from matplotlib.backends.backend_svg import FigureCanvasSVG
-    from matplotlib.figure import Figure
-
-    fig = Figure(figsize=(w_in, h_in))
-    FigureCanvasSVG(fig)
-    return fig
+def _style(k: int, width: float = 1.1) -> dict[str, Any]:
+    return {"stroke": GREYS[k % len(GREYS)], "stroke_width": f(width),
+            "stroke_dasharray": DASHES[k % len(DASHES)] or None}
 
 
-def _svg(fig, prefix: str) -> str:
-    buf = io.StringIO()
-    fig.savefig(buf, format="svg", metadata={"Date": None, "Creator": None},
-                bbox_inches=None)
-    text = buf.getvalue()
-    text = text[text.index("<svg"):]
-    # Unique ids per figure: several SVGs share one HTML document.
-    text = re.sub(r'\bid="', f'id="{prefix}-', text)
-    text = text.replace("url(#", f"url(#{prefix}-").replace('href="#', f'href="#{prefix}-')
-    return text.replace("<svg ", f'<svg role="img" aria-label="{prefix}" ', 1)
+def _sample(svg: Svg, x: float, y: float, style: dict[str, Any], marker: str | None = None,
+            length: float = 26.0) -> None:
+    """A legend's line sample (and marker) starting at (x, y)."""
+    svg.lines([(x, y, x + length, y)], **style)
+    if marker:
+        svg.path(marker_path(marker, [(x + length / 2, y)]), stroke=style["stroke"],
+                 stroke_width="0.8", fill="#fff")
 
 
 # ------------------------------------------------------------------------- tower drawing
 def tower_svg(d: dict[str, Any], u: dict[str, Any]) -> str | None:
     """To-scale cross-section: phases per circuit (section 1 order), bundles, shield wires
-    with grounding, the ground line and dimensions (average heights, h - 2/3 sag)."""
+    with their grounding, the ground line and dimensions (average heights, h - 2/3 sag)."""
     p = d["parameters"]
     wires = p.get("wires") or []
     if not wires:
         return None
-    f = u["m"]
+    k_len = u["m"]
     unit = u["short"]
     order = p["sections"][0]["order"]
     n_c = len(p["phase_labels"])
-    pos_names = p["positions"]
     phase_at = {name: (f"{k // 3 + 1}·{order[k]}" if n_c > 1 else order[k])
-                for k, name in enumerate(pos_names)}
+                for k, name in enumerate(p["positions"])}
     groups: dict[str, list[dict]] = {}
     for w in wires:
-        groups.setdefault(w["position"] if w["role"] == "phase" else "shield:" + w["position"],
-                          []).append(w)
-    xs = [w["x_m"] * f for w in wires]
-    ys = [w["average_height_m"] * f for w in wires]
-    span = max(max(xs) - min(xs), 1.0)
-    top = max(ys)
-    with _style("tower"):
-        h_in = 3.9
-        fig = _figure(WIDTH_IN, h_in)
-        ax = fig.add_axes((0.1, 0.12, 0.88, 0.84))
-        ax.set_aspect("equal", adjustable="box")
-        ax.grid(False)
-        half = max(abs(min(xs)), abs(max(xs))) + 0.5 * span + 0.25 * top
-        # Ground line with hatching below it.
-        ax.axhline(0.0, color="0", lw=1.2)
-        ax.fill_between([-2 * half, 2 * half], [0, 0], [-0.035 * top] * 2,
-                        facecolor="white", edgecolor="0.4", hatch="////", lw=0)
-        ax.text(half * 0.98, 0.01 * top, "ground", ha="right", va="bottom", fontsize=6.5)
-        ax.axvline(0.0, color="0.5", lw=0.6, ls=(0, (8, 2, 2, 2)))
-        ax.text(0.0, -0.06 * top, "tower centre line", ha="center", va="top", fontsize=6.5,
-                color="0.3")
-        heights: dict[str, float] = {}
-        for key, ws in groups.items():
-            gx = sum(w["x_m"] for w in ws) / len(ws) * f
-            gy = sum(w["average_height_m"] for w in ws) / len(ws) * f
-            heights[f"{gy:.2f}"] = gy
-            side = -1 if gx < 0 else 1
-            where = {"xytext": (side * 9, 0), "textcoords": "offset points",
-                     "ha": "left" if side > 0 else "right", "va": "center"}
-            if key.startswith("shield:"):
-                w = ws[0]
-                ax.plot([gx], [gy], marker="^", ms=7, mfc="white", mec="0", mew=1.0, ls="none")
-                ground = {"continuous": "earthed at every tower", "segmented":
-                          "segmented, earthed at one point", "none": "insulated"}.get(
-                              w["grounding"] or "", w["grounding"] or "")
-                ax.annotate(f"{w['position']}, x = {gx:.2f} {unit}\n{ground}", (gx, gy),
-                            fontsize=6.5, **where)
-                if w["grounding"] in ("continuous", "segmented"):
-                    # Earthing symbol below the wire: a short drop with three bars.
-                    ax.plot([gx, gx], [gy, gy - 0.04 * top], color="0.3", lw=0.6)
-                    for k, bar in enumerate((0.02, 0.013, 0.006)):
-                        yy = gy - 0.04 * top - k * 0.01 * top
-                        ax.plot([gx - bar * top, gx + bar * top], [yy, yy], color="0.3",
-                                lw=0.6)
-                continue
+        key = w["position"] if w["role"] == "phase" else "shield:" + w["position"]
+        groups.setdefault(key, []).append(w)
+    xs = [w["x_m"] * k_len for w in wires]
+    ys = [w["average_height_m"] * k_len for w in wires]
+    top = max(max(ys), 1e-3)
+    reach_x = max(max(abs(x) for x in xs), 1e-3)
+    # Plot area: a column for the height dimensions at the left, room for labels around.
+    left, right = 96.0, 636.0
+    mid = (left + right) / 2
+    room = 120.0  # user units beside the outermost conductor for its label
+    s = min(250.0 / (top * 1.05), (mid - left - room) / reach_x)
+    y_top_pad = 34.0
+    height = y_top_pad + top * s + 46.0
+    X = Axis(0.0, 1.0, mid, mid + s)
+    Y = Axis(0.0, 1.0, height - 46.0, height - 46.0 - s)
+    svg = Svg(height, "tower cross-section")
+    g0 = Y(0.0)
+    # Ground line, hatching below it, the tower centre line.
+    svg.lines([(left, g0, right, g0)], stroke="#000", stroke_width="1.2")
+    svg.lines([(x, g0 + 7, x + 7, g0) for x in range(int(left), int(right) - 6, 9)],
+              stroke="#777", stroke_width="0.5")
+    svg.text(right, g0 - 3, "ground", FS_SMALL, "end", fill="#000")
+    svg.lines([(mid, g0, mid, Y(top) - 14)], stroke="#777", stroke_width="0.6",
+              stroke_dasharray="9 2.5 2 2.5")
+    svg.text(mid, g0 + 17, "tower centre line", FS_SMALL, "middle", fill="#333")
+    # Scale bar: a round length, to show the drawing is to scale.
+    target = (right - left) / s / 8
+    mag = 10 ** math.floor(math.log10(target))
+    bar = max(m * mag for m in (1, 2, 5) if m * mag <= target)
+    bx = right - bar * s
+    svg.lines([(bx, g0 + 30, right, g0 + 30), (bx, g0 + 26, bx, g0 + 34),
+               (right, g0 + 26, right, g0 + 34)], stroke="#000", stroke_width="0.8")
+    svg.text((bx + right) / 2, g0 + 27, f"{_n(bar, 0 if bar >= 1 else 1)} {unit}",
+             FS_SMALL, "middle", fill="#000")
+    # Height dimensions: arrow from the ground to the top, a tick and label per height.
+    heights = sorted({round(y, 2) for y in ys})
+    xd = left - 4
+    svg.lines([(xd, g0, xd, Y(top))], stroke="#333", stroke_width="0.6")
+    svg.path(f"M{f(xd - 2.5)} {f(Y(top) + 6)}L{f(xd)} {f(Y(top))}L{f(xd + 2.5)} "
+             f"{f(Y(top) + 6)}M{f(xd - 2.5)} {f(g0 - 6)}L{f(xd)} {f(g0)}L{f(xd + 2.5)} "
+             f"{f(g0 - 6)}", stroke="#333", stroke_width="0.6")
+    label_y = _spread([Y(h) for h in heights], FS * 1.15, Y(top) - 6, g0 - 4)
+    svg.open("g", fill="#000", data_role="heights")
+    for h, ly in zip(heights, label_y, strict=True):
+        svg.lines([(xd - 3, Y(h), xd + 3, Y(h))], stroke="#333", stroke_width="0.6")
+        svg.add("text", f"{_n(h)} {unit}", x=f(xd - 5), y=f(ly), font_size=f(FS),
+                text_anchor="end", dominant_baseline="middle", data_v=f"{h:.6g}")
+    svg.close()
+    svg.text(4, 12, f"heights [{unit}]", FS_SMALL, fill="#333")
+    # Conductors and their labels; labels avoid each other and stay in the plot area.
+    place = Boxes((left + 2, 2, right, g0 - 2))
+    marks: list[str] = []
+    shields: list[tuple[float, float]] = []
+    for ws in groups.values():  # every marker first, so no label covers one
+        for w in ws:
+            cx, cy = X(w["x_m"] * k_len), Y(w["average_height_m"] * k_len)
+            place.take((cx - 5, cy - 5, cx + 5, cy + 5))
+    svg.open("g", fill="#000", data_role="conductors")
+    for key, ws in groups.items():
+        gx = sum(w["x_m"] for w in ws) / len(ws) * k_len
+        gy = sum(w["average_height_m"] for w in ws) / len(ws) * k_len
+        cx, cy = X(gx), Y(gy)
+        out = -1 if gx < -1e-9 else 1
+        if key.startswith("shield:"):
+            w = ws[0]
+            shields.append((cx, cy))
+            lines = [w["position"], GROUNDING.get(w["grounding"] or "", w["grounding"] or "")]
+            size = FS_SMALL
+        else:
             for w in ws:
-                ax.plot([w["x_m"] * f], [w["average_height_m"] * f], marker="o",
-                        ms=5.5 if len(ws) == 1 else 3.5, mfc="0", mec="0", ls="none")
-            label = phase_at.get(key, key)
-            extra = f"\n{len(ws)}-conductor bundle" if len(ws) > 1 else ""
-            ax.annotate(label, (gx, gy), xytext=(0, 5), textcoords="offset points",
-                        ha="center", va="bottom", fontsize=8, fontweight="bold")
-            ax.annotate(f"x = {gx:.2f} {unit}{extra}", (gx, gy), xytext=(0, -5),
-                        textcoords="offset points", ha="center", va="top", fontsize=6)
-        # Dimensions: average heights at the left, from the ground line.
-        x_dim = -half * 0.97
-        ax.annotate("", (x_dim, 0), xytext=(x_dim, top),
-                    arrowprops={"arrowstyle": "<->", "lw": 0.6, "color": "0.3",
-                                "shrinkA": 0, "shrinkB": 0})
-        for _, gy in sorted(heights.items(), key=lambda kv: kv[1]):
-            ax.plot([x_dim, -half * 0.75], [gy, gy], color="0.5", lw=0.4, ls=":")
-            ax.text(x_dim + 0.01 * half, gy, f"{gy:.2f} {unit}", ha="left", va="bottom",
-                    fontsize=6.5)
-        ax.set_xlim(-half, half)
-        ax.set_ylim(-0.12 * top, top * 1.1)
-        ax.set_xlabel(f"horizontal position [{unit}]")
-        ax.set_ylabel(f"average height above ground [{unit}]")
-        for side in ("top", "right"):
-            ax.spines[side].set_visible(False)
-        return _svg(fig, "tower")
+                marks.append(marker_path("o", [(X(w["x_m"] * k_len),
+                                                Y(w["average_height_m"] * k_len))],
+                                         3.2 if len(ws) == 1 else 1.9))
+            lines = [phase_at.get(key, key)]
+            if len(ws) > 1:
+                lines.append(f"bundle of {len(ws)}")
+            size = FS_LABEL
+        lines.append(f"x = {_n(gx)} {unit}")
+        w_txt = max(text_width(t, FS_SMALL) for t in lines)
+        cands = [(cx + out * 9, cy - 2, "start" if out > 0 else "end"),
+                 (cx, cy - 10 - FS_SMALL * 1.2 * (len(lines) - 1), "middle"),
+                 (cx, cy + 16, "middle"),
+                 (cx - out * 9, cy - 2, "end" if out > 0 else "start"),
+                 (cx + out * (9 + w_txt / 2), cy - 26, "middle")]
+        x, y, anchor = place.place(cands, lines, FS_SMALL)
+        attrs = {"text_anchor": None if anchor == "start" else anchor}
+        svg.add("text", lines[0], x=f(x), y=f(y), font_size=f(size),
+                font_weight="bold" if size == FS_LABEL else None, data_x=f"{gx:.6g}",
+                data_y=f"{gy:.6g}", **attrs)
+        for i, t in enumerate(lines[1:], 1):
+            svg.add("text", t, x=f(x), y=f(y + i * FS_SMALL * 1.2), font_size=f(FS_SMALL),
+                    **attrs)
+    svg.close()
+    svg.path("".join(marks), fill="#000", data_role="phase-wires")
+    svg.path(marker_path("^", shields, 4.2), stroke="#000", stroke_width="1.1", fill="#fff",
+             data_role="shield-wires")
+    return svg.render()
+
+
+def _spread(ys: list[float], gap: float, lo: float, hi: float) -> list[float]:
+    """Label positions near ``ys`` (sorted descending in data, ascending in SVG y) at least
+    ``gap`` apart, inside [lo, hi] where possible."""
+    order = sorted(range(len(ys)), key=lambda i: ys[i])
+    out = [0.0] * len(ys)
+    prev = -math.inf
+    for i in order:
+        out[i] = max(ys[i], prev + gap)
+        prev = out[i]
+    over = max((out[i] - hi for i in order), default=0.0)
+    if over > 0:  # pushed past the bottom: shift the chain up
+        out = [y - over for y in out]
+    return [max(lo, y) for y in out]
 
 
 # ----------------------------------------------------------------------- reach-error plot
 def reach_error_svg(end: dict[str, Any], index: int) -> str:
-    """Bolted reach error against fault location per loop, one row per arrangement."""
+    """Bolted reach error against fault location per loop, one row per arrangement: ground
+    loops at the left, phase loops at the right; per loop the largest value (line) and the
+    smallest (the same line, thinner, with markers)."""
     arrs = end["arrangements"]
-    h_in = 0.75 + 1.55 * len(arrs)
-    with _style(f"reach{index}"):
-        fig = _figure(WIDTH_IN, h_in)
-        axes = fig.subplots(len(arrs), 2, sharex=True, squeeze=False)
-        fig.subplots_adjust(left=0.09, right=0.98, top=1 - 0.62 / h_in, bottom=0.42 / h_in,
-                            hspace=0.55, wspace=0.16)
-        for r, a in enumerate(arrs):
-            env = a["envelope"]
-            x = env["location_pct"]
-            loops = env["loops"]
-            for c, want_ground in enumerate((True, False)):
-                ax = axes[r][c]
-                k = 0
-                for i, lp in enumerate(loops):
-                    ground = lp.replace("-", "").upper().endswith("G")
-                    if ground != want_ground:
-                        continue
-                    kw = {"color": GREYS[k], "ls": STYLES[k], "lw": 1.0}
-                    ax.plot(x, env["bolted_reach_error_max_pct"][i], label=f"{lp} max", **kw)
-                    ax.plot(x, env["bolted_reach_error_min_pct"][i], marker=MARKERS[k],
-                            markevery=max(1, len(x) // 8), ms=3, mfc="white",
-                            label=f"{lp} min", **kw)
-                    k += 1
-                ax.axhline(0.0, color="0", lw=0.5)
-                if c == 0:
-                    ax.set_ylabel("reach error [%]")
-                    ax.set_title(a["title"], loc="left", fontweight="bold")
-                if r == len(arrs) - 1:
-                    ax.set_xlabel("fault location [% of line from the relay]")
-                if r == 0:
-                    ax.legend(ncol=3, loc="lower left", bbox_to_anchor=(0.0, 1.22),
-                              handlelength=2.6, columnspacing=0.8, borderaxespad=0,
-                              title="ground loops" if want_ground else "phase loops",
-                              title_fontsize=7)
-        return _svg(fig, f"reach-error-{index}")
+    pw, ph = 280.0, 100.0
+    x0s = (52.0, 52.0 + pw + 22.0)
+    top_pad, row_pad, bottom_pad = 52.0, 22.0, 34.0
+    height = top_pad + len(arrs) * ph + (len(arrs) - 1) * row_pad + bottom_pad
+    svg = Svg(height, f"reach error, relay at {end['end']}")
+    all_y = [v for a in arrs for key in ("bolted_reach_error_max_pct",
+                                         "bolted_reach_error_min_pct")
+             for row in a["envelope"][key] for v in row if v is not None and math.isfinite(v)]
+    lo, hi = (min(all_y), max(all_y)) if all_y else (-1.0, 1.0)
+    lo, hi = min(lo, 0.0), max(hi, 0.0)
+    pad = 0.06 * (hi - lo or 1.0)
+    yticks = nice_ticks(lo - pad, hi + pad, 5)
+    lo, hi = min(lo - pad, yticks[0]), max(hi + pad, yticks[-1])
+    loc = arrs[0]["envelope"]["location_pct"] if arrs else [0.0, 100.0]
+    xlo, xhi = min(loc), max(loc)
+    xticks = nice_ticks(xlo, xhi, 5)
+    loops = arrs[0]["envelope"]["loops"] if arrs else []
+    ground = [lp.replace("-", "").upper().endswith("G") for lp in loops]
+    # Legend: one row per column; per loop the largest (heavy) and smallest (light, markers).
+    for c, want in enumerate((True, False)):
+        x = x0s[c]
+        svg.text(x, 12, "ground loops" if want else "phase loops", FS, fill="#000",
+                 font_weight="bold")
+        k = 0
+        for lp, g in zip(loops, ground, strict=True):
+            if g != want:
+                continue
+            lx = x + k * 92
+            _sample(svg, lx, 25, _style(k, 1.3), length=20)
+            _sample(svg, lx + 23, 25, _style(k, 0.7), MARKERS[k], length=20)
+            svg.text(lx + 47, 28, lp, FS_SMALL, fill="#000")
+            k += 1
+    svg.text(x0s[1] + pw, 12, "heavy: largest · light with markers: smallest", FS_SMALL,
+             "end", fill="#000")
+    for r, a in enumerate(arrs):
+        env = a["envelope"]
+        y0 = top_pad + r * (ph + row_pad)
+        Yax = Axis(lo, hi, y0 + ph, y0)
+        svg.text(x0s[0], y0 - 6, a["title"], FS, fill="#000", font_weight="bold")
+        for c, want in enumerate((True, False)):
+            x0 = x0s[c]
+            Xax = Axis(xlo, xhi, x0, x0 + pw)
+            svg.lines([(Xax(t), y0, Xax(t), y0 + ph) for t in xticks]
+                      + [(x0, Yax(t), x0 + pw, Yax(t)) for t in yticks],
+                      stroke="#d0d0d0", stroke_width="0.4")
+            svg.lines([(x0, Yax(0.0), x0 + pw, Yax(0.0))], stroke="#000", stroke_width="0.6")
+            svg.polyline([(x0, y0), (x0 + pw, y0), (x0 + pw, y0 + ph), (x0, y0 + ph)],
+                         closed=True, stroke="#000", stroke_width="0.6")
+            if c == 0:  # one scale for every panel: labelled at the left only
+                svg.open("g", fill="#000", data_role=f"yticks-{r}")
+                for t in yticks:
+                    svg.add("text", tick_text(t, yticks), x=f(x0 - 3), y=f(Yax(t)),
+                            font_size=f(FS_SMALL), text_anchor="end",
+                            dominant_baseline="middle", data_v=f"{t:.10g}")
+                svg.close()
+            if r == len(arrs) - 1:  # shared locations: labelled once, at the bottom
+                svg.open("g", fill="#000", data_role=f"xticks-{c}")
+                for t in xticks:
+                    svg.add("text", tick_text(t, xticks), x=f(Xax(t)), y=f(y0 + ph + 10),
+                            font_size=f(FS_SMALL), text_anchor="middle", data_v=f"{t:.10g}")
+                svg.close()
+            k = 0
+            for i, lp in enumerate(env["loops"]):
+                if ground[i] != want:
+                    continue
+                for key, width in (("bolted_reach_error_max_pct", 1.3),
+                                   ("bolted_reach_error_min_pct", 0.7)):
+                    pts = [(Xax(x), Yax(v)) for x, v in zip(env["location_pct"], env[key][i],
+                                                            strict=True)
+                           if v is not None and math.isfinite(v)]
+                    svg.path(path_d(simplify(pts, 0.2)), **_style(k, width),
+                             data_loop=lp, data_kind="max" if "max" in key else "min")
+                    if "min" in key:
+                        every = max(1, len(pts) // 8)
+                        svg.path(marker_path(MARKERS[k], pts[every // 2::every], 2.3),
+                                 stroke=GREYS[k], stroke_width="0.7", fill="#fff")
+                k += 1
+    yb = height - 8
+    for x0 in x0s:
+        svg.text(x0 + pw / 2, yb, "fault location [% of the line from the relay]", FS,
+                 "middle", fill="#000")
+    svg.add("text", "reach error [%]", x="12", y=f(top_pad + (height - top_pad) / 2),
+            font_size=f(FS), text_anchor="middle", fill="#000",
+            transform=f"rotate(-90 12 {f(top_pad + (height - top_pad) / 2)})")
+    return svg.render()
 
 
 # ------------------------------------------------------------------------------- R-X diagram
@@ -235,82 +316,176 @@ def quad_outline(x_reach: float, r_reach: float, angle_rad: float,
     return poly if forward else [-z for z in poly]
 
 
-def rx_svg(end: dict[str, Any], extra_loci: list[tuple[str, list[complex]]] | None = None) -> str:
-    """R-X diagram (primary ohms) of one relay end: zones as set, line replica, load region,
-    and optionally loci of fault cases (from the verification)."""
+def _governing_cases(verification: dict[str, Any] | None, end: str) -> list[dict[str, Any]]:
+    """The verification's governing fault cases of one end that measured an impedance."""
+    out = []
+    for e in (verification or {}).get("ends", []) or []:
+        if str(e.get("end")) != end:
+            continue
+        for c in e.get("checks", []) or []:
+            g = c.get("governing_case")
+            if g and g.get("z_apparent_primary_ohm") is not None:
+                out.append({"check": f"{c['zone']} {c['check_id']}", "result": c["result"],
+                            "z": complex(*g["z_apparent_primary_ohm"]), "case": g})
+    return out
+
+
+def rx_svg(end: dict[str, Any], verification: dict[str, Any] | None = None) -> str:
+    """R-X diagram (primary ohms) of one relay end: zones as set, line replica, load region
+    (both power directions) and the verification's governing fault cases."""
     s = end["settings_dict"]
     theta = math.radians(s["line"]["angle_deg"])
     zl = complex(*s["line"]["z1_primary_ohm"])
-    with _style(f"rx{end['index']}"):
-        fig = _figure(WIDTH_IN, 5.0)
-        ax = fig.add_axes((0.1, 0.27, 0.88, 0.68))
-        ax.set_aspect("equal", adjustable="box")
-        pts: list[complex] = [0j, zl]
-        handles = []
-        for k, z in enumerate(s["zones"].values()):
-            style = {"color": GREYS[k % len(GREYS)], "ls": STYLES[k % len(STYLES)], "lw": 1.1}
-            if z["shape"] == "mho":
-                dia = z["mho_diameter_primary_ohm"]
-                ang = math.radians(z["char_angle_deg"])
-                centre = 0.5 * dia * cmath.exp(1j * ang)
-                t = [2 * math.pi * i / 180 for i in range(181)]
-                ring = [centre + 0.5 * dia * cmath.exp(1j * a) for a in t]
-                (h,) = ax.plot([q.real for q in ring], [q.imag for q in ring],
-                               label=f"{z['label']} (mho)", **style)
-                pts += ring
-            else:
-                fwd = z["direction"] == "forward"
-                for rkey, lw, lab in (("r_reach_phase_primary_ohm", 1.1, "phase"),
-                                      ("r_reach_ground_primary_ohm", 0.6, "ground")):
-                    poly = quad_outline(z["x_reach_primary_ohm"], z[rkey], theta, fwd)
-                    poly = [*poly, poly[0]]
-                    (h,) = ax.plot([q.real for q in poly], [q.imag for q in poly],
-                                   **{**style, "lw": lw},
-                                   label=f"{z['label']}, {lab} loops")
-                    pts += poly
-                    if lab == "phase":
-                        handles.append(h)
-                continue
-            handles.append(h)
-        (hl,) = ax.plot([0, zl.real], [0, zl.imag], color="0", lw=2.2, solid_capstyle="butt",
-                        label="line replica Z1")
-        ax.plot([zl.real], [zl.imag], marker="o", ms=3.5, color="0")
-        handles.append(hl)
-        for label, locus in extra_loci or []:
-            (hv,) = ax.plot([q.real for q in locus], [q.imag for q in locus], marker=".",
-                            ms=2.5, ls="none", color="0.3", label=label)
-            handles.append(hv)
-        re_ = [q.real for q in pts]
-        im_ = [q.imag for q in pts]
-        lo_r, hi_r, lo_x, hi_x = min(re_), max(re_), min(im_), max(im_)
-        size = max(hi_r - lo_r, hi_x - lo_x)
-        lo_r, hi_r = lo_r - 0.08 * size, hi_r + 0.08 * size
-        lo_x, hi_x = lo_x - 0.08 * size, hi_x + 0.08 * size
-        # Load region: |Z| >= Zmin within the largest load angle, both power directions.
-        zmin = s["load"]["z_min_primary_ohm"]
-        phi = math.radians(s["load"]["load_angle_max_deg"])
-        far = 3 * (size + zmin)
-        for base in (0.0, math.pi):
-            arc = [zmin * cmath.exp(1j * (base + a))
-                   for a in [-phi + 2 * phi * i / 40 for i in range(41)]]
-            outer = [far * cmath.exp(1j * (base + phi)), far * cmath.exp(1j * (base - phi))]
-            region = [*arc, *outer]
-            hp = ax.fill([q.real for q in region], [q.imag for q in region], facecolor="none",
-                         edgecolor="0.45", hatch="\\\\\\", lw=0.5,
-                         label=f"load region (|Z| ≥ {zmin:.1f} Ω, ±{math.degrees(phi):.0f}°)")
-        handles.append(hp[0])
-        hi_r = max(hi_r, min(zmin * 1.3, hi_r + size))
-        lo_r = min(lo_r, max(-zmin * 1.3, lo_r - 0.2 * size))
-        ax.set_xlim(lo_r, hi_r)
-        ax.set_ylim(lo_x, hi_x)
-        ax.axhline(0, color="0", lw=0.5)
-        ax.axvline(0, color="0", lw=0.5)
-        ax.set_xlabel("R, primary [Ω]")
-        ax.set_ylabel("X, primary [Ω]")
-        ax.set_title(f"Relay at {end['end']}", loc="left")
-        fig.legend(handles=handles, loc="lower center", bbox_to_anchor=(0.5, 0.0), ncol=3,
-                   handlelength=2.6)
-        return _svg(fig, f"rx-{end['index']}")
+    shapes: list[tuple[str, list[complex] | tuple[complex, float], dict[str, Any], str]] = []
+    pts: list[complex] = [0j, zl]
+    for k, (_, z) in enumerate(s["zones"].items()):
+        if z["shape"] == "mho":
+            dia = z["mho_diameter_primary_ohm"]
+            centre = 0.5 * dia * cmath.exp(1j * math.radians(z["char_angle_deg"]))
+            shapes.append(("circle", (centre, 0.5 * abs(dia)), _style(k, 1.2),
+                           f"{z['label']} (mho)"))
+            pts += [centre + 0.5 * abs(dia) * cmath.exp(1j * a * math.pi / 2) for a in range(4)]
+        else:
+            fwd = z["direction"] == "forward"
+            for rkey, width, lab in (("r_reach_phase_primary_ohm", 1.3, "phase loops"),
+                                     ("r_reach_ground_primary_ohm", 0.6, "ground loops")):
+                poly = quad_outline(z["x_reach_primary_ohm"], z[rkey], theta, fwd)
+                shapes.append(("poly", poly, _style(k, width), f"{z['label']}, {lab}"))
+                pts += poly
+    cases = _governing_cases(verification, s["end"])
+    zmin = s["load"]["z_min_primary_ohm"]
+    phi = math.radians(s["load"]["load_angle_max_deg"])
+    re_, im_ = [q.real for q in pts], [q.imag for q in pts]
+    lo_r, hi_r, lo_x, hi_x = min(re_), max(re_), min(im_), max(im_)
+    # Both load regions (export R > 0 and import R < 0) are checked: show their fronts.
+    front = zmin * 1.08
+    lo_r, hi_r = min(lo_r, -front), max(hi_r, front)
+    size = max(hi_r - lo_r, hi_x - lo_x)
+    # Governing cases: shown where they fall unless far out (then clamped at the edge).
+    box = (lo_r - 0.3 * size, hi_r + 0.3 * size, lo_x - 0.3 * size, hi_x + 0.3 * size)
+    for c in cases:
+        z = c["z"]
+        if box[0] <= z.real <= box[1] and box[2] <= z.imag <= box[3]:
+            lo_r, hi_r = min(lo_r, z.real), max(hi_r, z.real)
+            lo_x, hi_x = min(lo_x, z.imag), max(hi_x, z.imag)
+    pad = 0.05 * max(hi_r - lo_r, hi_x - lo_x)
+    lo_r, hi_r, lo_x, hi_x = lo_r - pad, hi_r + pad, lo_x - pad, hi_x + pad
+    # Equal scales on R and X; the plot is at most 360 units high.
+    left, right = 56.0, 632.0
+    sc = min((right - left) / (hi_r - lo_r), 360.0 / (hi_x - lo_x))
+    extra = ((right - left) / sc - (hi_r - lo_r)) / 2
+    lo_r, hi_r = lo_r - extra, hi_r + extra
+    top = 22.0
+    ph = (hi_x - lo_x) * sc
+    R = Axis(lo_r, hi_r, left, right)
+    X = Axis(lo_x, hi_x, top + ph, top)
+    n_legend = len(shapes) + 2 + (1 if cases else 0)
+    legend_rows = math.ceil(n_legend / 3) + len(cases)
+    height = top + ph + 34 + legend_rows * 13 + 6
+    svg = Svg(height, f"R-X diagram, relay at {s['end']}")
+    svg.text(left, 13, f"Relay at {s['end']} (primary ohms)", FS, fill="#000",
+             font_weight="bold")
+
+    def pt(z: complex) -> tuple[float, float]:
+        return R(z.real), X(z.imag)
+
+    # Load regions: grey wedges beyond |Z| = Zmin within ± the largest load angle.
+    far = 4 * (hi_r - lo_r + hi_x - lo_x)
+    regions = []
+    for base in (0.0, math.pi):
+        arc = [zmin * cmath.exp(1j * (base + a)) for a in
+               [-phi + 2 * phi * i / 24 for i in range(25)]]
+        region = [*arc, far * cmath.exp(1j * (base + phi)), far * cmath.exp(1j * (base - phi))]
+        regions.append(path_d([pt(q) for q in _clip_box(region, lo_r, hi_r, lo_x, hi_x)],
+                              True))
+    svg.path("".join(regions), fill="#e4e4e4", stroke="#777", stroke_width="0.5",
+             data_role="load-region")
+    rticks = nice_ticks(lo_r, hi_r, 8)
+    xticks = nice_ticks(lo_x, hi_x, 6)
+    svg.lines([(R(t), top, R(t), top + ph) for t in rticks]
+              + [(left, X(t), right, X(t)) for t in xticks], stroke="#d0d0d0",
+              stroke_width="0.4")
+    svg.lines([(R(0), top, R(0), top + ph), (left, X(0), right, X(0))], stroke="#000",
+              stroke_width="0.6")
+    svg.polyline([(left, top), (right, top), (right, top + ph), (left, top + ph)], closed=True,
+                 stroke="#000", stroke_width="0.6")
+    svg.open("g", fill="#000", data_role="ticks-r")
+    for t in rticks:
+        svg.add("text", tick_text(t, rticks), x=f(R(t)), y=f(top + ph + 10),
+                font_size=f(FS_SMALL), text_anchor="middle", data_v=f"{t:.10g}")
+    svg.close()
+    svg.open("g", fill="#000", data_role="ticks-x")
+    for t in xticks:
+        svg.add("text", tick_text(t, xticks), x=f(left - 3), y=f(X(t)), font_size=f(FS_SMALL),
+                text_anchor="end", dominant_baseline="middle", data_v=f"{t:.10g}")
+    svg.close()
+    svg.text((left + right) / 2, top + ph + 22, "R, primary [Ω]", FS, "middle", fill="#000")
+    svg.add("text", "X, primary [Ω]", x="10", y=f(top + ph / 2), font_size=f(FS),
+            text_anchor="middle", fill="#000", transform=f"rotate(-90 10 {f(top + ph / 2)})")
+    # Zones (clipped to the frame by construction: the frame holds every zone).
+    for kind, geo, style, _ in shapes:
+        if kind == "circle":
+            centre, radius = geo
+            svg.add("circle", cx=f(R(centre.real)), cy=f(X(centre.imag)), r=f(radius * sc),
+                    **style)
+        else:
+            svg.polyline([pt(q) for q in geo], closed=True, **style)
+    x1, y1 = pt(zl)
+    svg.add("path", d=f"M{f(R(0))} {f(X(0))}L{f(x1)} {f(y1)}", stroke="#000",
+            stroke_width="2.4", data_role="line-replica")
+    svg.path(marker_path("o", [(x1, y1)], 2.4), fill="#000")
+    # Governing cases: numbered diamonds (clamped to the frame when outside it).
+    svg.open("g", fill="#000", data_role="governing-cases")
+    for n, c in enumerate(cases, 1):
+        z = c["z"]
+        inside = lo_r <= z.real <= hi_r and lo_x <= z.imag <= hi_x
+        cx = min(max(R(z.real), left + 4), right - 4)
+        cy = min(max(X(z.imag), top + 4), top + ph - 4)
+        svg.path(marker_path("d" if inside else "x", [(cx, cy)], 3.0), stroke="#000",
+                 stroke_width="0.9", fill="#fff" if c["result"] != "FAIL" else "#000")
+        svg.text(cx + 5, cy - 4, str(n), FS_SMALL, fill="#000", font_weight="bold")
+    svg.close()
+    # Legend, three entries a row, then one row per governing case.
+    entries = [(label, style) for _, _, style, label in shapes]
+    y = top + ph + 38
+    items: list[tuple[str, Any]] = [*entries, ("line replica Z1", "replica"),
+                                    (f"load region (|Z| ≥ {_n(zmin, 1)} Ω, "
+                                     f"±{_n(math.degrees(phi), 0)}°)", "load")]
+    if cases:
+        items.append(("governing fault case (filled: FAIL; × outside the plot)", "case"))
+    for i, (label, style) in enumerate(items):
+        lx = left + (i % 3) * 192
+        ly = y + (i // 3) * 13
+        if style == "replica":
+            svg.lines([(lx, ly, lx + 26, ly)], stroke="#000", stroke_width="2.4")
+        elif style == "load":
+            svg.add("rect", x=f(lx), y=f(ly - 4), width="26", height="8", fill="#e4e4e4",
+                    stroke="#777", stroke_width="0.5")
+        elif style == "case":
+            svg.path(marker_path("d", [(lx + 13, ly)], 3.0), stroke="#000",
+                     stroke_width="0.9", fill="#fff")
+        else:
+            _sample(svg, lx, ly, style)
+        svg.text(lx + 31, ly + 3, label, FS_SMALL, fill="#000")
+    y += math.ceil(len(items) / 3) * 13
+    for n, c in enumerate(cases, 1):
+        g = c["case"]
+        z = c["z"]
+        svg.text(left, y + 3, f"{n}  {c['check']} ({c['result']}): {g['fault_type']} on the "
+                 f"{g['faulted']} at {_n(g['location_pct'], 1)} %, Rf {_n(g['r_fault_ohm'], 1)}"
+                 f" Ω, loop {g['loop']}, Z = {_n(z.real, 1)} {'+' if z.imag >= 0 else MINUS}"
+                 f" j{_n(abs(z.imag), 1)} Ω", FS_SMALL, fill="#000")
+        y += 13
+    return svg.render()
+
+
+def _clip_box(poly: list[complex], lo_r: float, hi_r: float, lo_x: float,
+              hi_x: float) -> list[complex]:
+    """The part of a polygon inside the plot frame."""
+    poly = _clip(poly, 1 + 0j, hi_r)
+    poly = _clip(poly, -1 + 0j, -lo_r)
+    poly = _clip(poly, 1j, hi_x)
+    return _clip(poly, -1j, -lo_x)
 
 
 def figures(results, d: dict[str, Any], ctx: dict[str, Any]) -> dict[str, Any]:
@@ -318,5 +493,5 @@ def figures(results, d: dict[str, Any], ctx: dict[str, Any]) -> dict[str, Any]:
     out: dict[str, Any] = {"tower": tower_svg(d, ctx["u"]), "reach": [], "rx": []}
     if ctx["reach"] is not None:
         out["reach"] = [reach_error_svg(e, i) for i, e in enumerate(ctx["reach"]["ends"])]
-    out["rx"] = [rx_svg(e) for e in ctx["settings"]]
+    out["rx"] = [rx_svg(e, d.get("verification")) for e in ctx["settings"]]
     return out
