@@ -102,3 +102,16 @@ def test_version_flag(capsys):
         main(["--version"])
     assert exc.value.code == 0
     assert capsys.readouterr().out.startswith("relayset ")
+
+
+@pytest.mark.parametrize(("demo", "distinct"), [
+    ("elsford_fallowby_230kv_double.toml", 2),  # one section: actual plan = untransposed
+    (DEMO_132, 3),  # three unequal sections: all three arrangements differ
+])
+def test_cases_solved_counts_identical_arrangements_once(demo_path, demo, distinct):
+    # Identity: cases = fault types x locations x Rf x source cases x load cases, per
+    # arrangement actually solved.
+    q = study_reach(demo_path(demo)).reach
+    per = (len(q.fault_types) * len(q.locations_pct) * len(q.fault_resistances_ohm)
+           * len(q.source_cases) * len(q.transfer_angles_deg))
+    assert q.n_cases == per * distinct

@@ -267,7 +267,7 @@ def run_reach_study(
         source_impedances={n: {"z1_ohm": cplx(s.z1_ohm), "z0_ohm": cplx(s.z0_ohm)}
                            for n, s in src.items() if s is not None},
         ends=tuple(end_results),
-        n_cases=per_arrangement * len(plans),
+        n_cases=per_arrangement * n_distinct,  # identical arrangements are solved once
         notes=tuple(notes),
     )
 
