@@ -323,3 +323,14 @@ def test_vt_ratio_checked_against_the_line_voltage(variant, capsys):
     assert main(["params", str(path)]) == 2
     err = capsys.readouterr().err.strip()
     assert "relay.vt_ratio" in err and "55 V on the secondary" in err
+
+
+def test_apparent_power_is_not_given_in_watts(variant, capsys):
+    # VA and W are different quantities (IEC 60050-131, apparent against active power;
+    # from memory) although their units have one dimension: "60 MW" is refused, "60 MVA" read.
+    path = variant(DEMO_1C, lambda d: d["load"].update(max_apparent_power="60 MW"))
+    assert main(["params", str(path)]) == 2
+    err = capsys.readouterr().err.strip()
+    assert "load.max_apparent_power" in err and "not W" in err and "\n" not in err
+    path = variant(DEMO_1C, lambda d: d["load"].update(max_apparent_power="60 MVA"))
+    assert main(["params", str(path)]) == 0

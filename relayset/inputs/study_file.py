@@ -438,8 +438,16 @@ class PowerFlow(_Model):
 TransferAngle = _quantity("angle", ge=-90 * _DEG, le=90 * _DEG, show=("deg", _DEG))
 
 
+def _apparent(v: Any) -> Any:
+    """An apparent power is written in VA; W (real power) is a different quantity."""
+    if isinstance(v, str) and re.search(r"(?i)(?<![a-z])[kmg]?w\s*$", v.strip()):
+        raise ValueError("an apparent power is in VA, kVA or MVA, not W (the load's "
+                         "current follows from VA; give P and Q under power_flows)")
+    return v
+
+
 class LoadData(_Model):
-    max_apparent_power: Power  # type: ignore[valid-type]
+    max_apparent_power: Annotated[Power, BeforeValidator(_apparent)]  # type: ignore[valid-type]
     min_voltage: _quantity("dimensionless", ge=0.5, le=1.2, show=("pu", 1.0)) = 0.9  # type: ignore[valid-type]
     load_angle_max: Angle = math.radians(30.0)  # type: ignore[valid-type]
     transfer_angles: Annotated[tuple[TransferAngle, ...], AfterValidator(_non_empty)] = (0.0,)  # type: ignore[valid-type]
