@@ -111,10 +111,17 @@ def test_hash_references_named_and_a_missing_one_fails(archived):
     assert checks[page].passed and checks[rec].passed and checks[res_page].passed
     assert s_hash in checks[f"study file {study}"].detail
     assert r_hash in checks[f"results JSON {a.results_name}"].detail
-    # today's report stores no SHA-256 in its metadata: said so, neither pass nor fail
-    assert checks["PDF metadata"].passed is None
+    # the report stores both SHA-256 in its metadata (keywords): both checked and passed
+    assert checks["study file SHA-256 against the PDF metadata"].passed is True
+    assert checks["results JSON SHA-256 against the PDF metadata"].passed is True
     text = format_verification(Verification(str(archived), list(checks.values())))
-    assert "PDF metadata: carries no SHA-256" in text and "MATCHES" in text
+    assert "MATCHES" in text
+    # metadata without any SHA-256: said so, neither pass nor fail
+    bare = dataclasses.replace(a, metadata={"/Keywords": "no hashes here"})
+    got = {c.what: c for c in check_hashes(bare)}
+    assert got["PDF metadata"].passed is None
+    text = format_verification(Verification(str(archived), list(got.values())))
+    assert "PDF metadata: carries no SHA-256" in text
 
     # the printed results hash missing from the page text (the attachments untouched)
     flat = dataclasses.replace(a, text=a.text.replace(r_hash[:20], ""))

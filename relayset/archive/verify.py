@@ -6,8 +6,8 @@ page text after "SHA-256 of the study file" and against ``source_sha256`` in the
 results JSON; the SHA-256 of the embedded results JSON against the value printed after
 "SHA-256 of the results JSON". Each of these references is required: a reference that is
 missing fails the check, like one that differs. The PDF metadata (document information and
-XMP) is checked too when it carries SHA-256 values; today's reports store none there, and the
-verdict says so rather than passing silently. An embedded file for which the report carries
+XMP) is checked too: reports store both SHA-256 in their keywords; a PDF whose metadata
+carries none is said so in the verdict rather than passed silently. An embedded file for which the report carries
 no reference (the philosophy file) is named as not checked by hash; its content still meets
 the recomputation, which compares the philosophy applied.
 

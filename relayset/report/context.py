@@ -601,6 +601,10 @@ def build_context(results, *, units: str = "si", paper: str = "a4",
         "keywords": f"{ident['line_id']}, revision {ident['revision']}, distance protection, "
                     "setting calculation",
     }
+    # The archive's hashes also go into the document metadata, so `relayset verify` can check
+    # the embedded files against the metadata as well as against the printed page.
+    ctx["keywords"] += (f", study file SHA-256 {ctx['source_sha256']}, results JSON SHA-256 "
+                        f"{ctx['results_sha256']}")
     ctx["figures"] = plots.figures(results, d, ctx)
     return ctx
 
