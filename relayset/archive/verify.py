@@ -7,9 +7,9 @@ results JSON; the SHA-256 of the embedded results JSON against the value printed
 "SHA-256 of the results JSON". Each of these references is required: a reference that is
 missing fails the check, like one that differs. The PDF metadata (document information and
 XMP) is checked too: reports store both SHA-256 in their keywords; a PDF whose metadata
-carries none is said so in the verdict rather than passed silently. An embedded file for which the report carries
-no reference (the philosophy file) is named as not checked by hash; its content still meets
-the recomputation, which compares the philosophy applied.
+carries none is said so in the verdict rather than passed silently. An embedded file for
+which the report carries no reference (the philosophy file) is named as not checked by
+hash; its content still meets the recomputation, which compares the philosophy applied.
 
 Tolerance of the recomputation: a quantity still matches when
 ``|new - archived| <= ATOL + RTOL * |archived|``; RTOL = 1e-6 (six significant figures, far
