@@ -456,3 +456,49 @@ def test_single_bad_file_writes_nothing(variant, tmp_path, capsys):
     err = capsys.readouterr().err
     assert rc == 2 and len(err.strip().splitlines()) == 1 and "line.length" in err
     assert not out.exists() or not any(out.iterdir())
+
+
+_LOADED_LIBS = r"""
+import sys
+{setup}
+from relayset.report.pdf import import_weasyprint
+import_weasyprint()
+maps = open("/proc/self/maps").read().split()
+print(sorted({{p.rsplit("/", 1)[-1] for p in maps
+              if any(k in p for k in ("libpango", "libharfbuzz", "libfontconfig",
+                                      "libgobject"))}}))
+"""
+
+
+@pytest.mark.skipif(not Path("/proc/self/maps").exists(), reason="needs Linux /proc")
+@pytest.mark.parametrize("setup", [
+    "",  # the loader-cache lookup
+    # a library that cannot be opened under the quick lookup (simulated): the import is
+    # repeated with the standard lookup, and WeasyPrint's advice of the failed try is not
+    # printed
+    "import cffi, ctypes.util\n"
+    "_open = cffi.FFI.dlopen\n"
+    "def dlopen(self, name, flags=0):\n"
+    "    if isinstance(getattr(ctypes.util.find_library, '__self__', None), dict):\n"
+    "        raise OSError('simulated: a library outside the loader cache')\n"
+    "    return _open(self, name, flags)\n"
+    "cffi.FFI.dlopen = dlopen",
+])
+def test_quick_library_lookup_loads_the_same_libraries(setup):
+    """WeasyPrint imported through the loader-cache lookup maps the same Pango, HarfBuzz,
+    fontconfig and GObject files as a plain ``import weasyprint`` (the standard
+    ``ctypes.util.find_library``), prints nothing, and falls back when the cache does not
+    know a library."""
+    import sys
+
+    def run(code):
+        out = subprocess.run([sys.executable, "-c", code], capture_output=True, text=True,
+                             check=True)
+        return out.stdout.strip().splitlines()
+
+    plain = run(_LOADED_LIBS.replace("from relayset.report.pdf import import_weasyprint\n"
+                                     "import_weasyprint()", "import weasyprint")
+                .format(setup=""))
+    quick = run(_LOADED_LIBS.format(setup=setup))
+    assert len(quick) == 1  # nothing printed besides the list
+    assert quick == plain and "libpango-1.0.so.0" in quick[0]

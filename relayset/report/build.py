@@ -146,9 +146,9 @@ class PdfHelper:
 
 def _pdf_server(conn) -> None:
     """The helper's loop: import the renderer at once, then render each job sent."""
-    import weasyprint  # noqa: F401  (the slow import, overlapped with the study)
+    from relayset.report.pdf import html_to_pdf, import_weasyprint, warm_up
 
-    from relayset.report.pdf import html_to_pdf, warm_up
+    import_weasyprint()  # the slow import, overlapped with the study
 
     warm_up()
 
@@ -207,10 +207,10 @@ def render_reports(paths: Sequence[str | Path], *, units: str | None = None, pap
 
         # Import the renderer and the study's modules once and warm the fonts up; the
         # forked workers inherit all of it instead of each doing it again.
-        import weasyprint  # noqa: F401
-
         import relayset.api  # noqa: F401
-        from relayset.report.pdf import warm_up
+        from relayset.report.pdf import import_weasyprint, warm_up
+
+        import_weasyprint()
 
         warm_up()
 

@@ -10,6 +10,7 @@ from __future__ import annotations
 import datetime as dt
 import mimetypes
 import os
+import sys
 from collections.abc import Sequence
 from contextlib import contextmanager
 from dataclasses import dataclass
@@ -23,6 +24,66 @@ class EmbeddedFile:
     data: bytes
     description: str
     relationship: str  #: "Source" for inputs, "Data" for results
+
+
+def _loader_cache() -> dict[str, str] | None:
+    """Library names known to the dynamic loader's cache (``ldconfig -p``), or None where
+    there is no such cache (not Linux, no ldconfig, no output)."""
+    import shutil
+    import subprocess
+
+    if not sys.platform.startswith("linux"):
+        return None
+    exe = shutil.which("ldconfig") or next(
+        (p for p in ("/sbin/ldconfig", "/usr/sbin/ldconfig") if os.path.exists(p)), None)
+    if exe is None:
+        return None
+    try:
+        out = subprocess.run([exe, "-p"], capture_output=True, text=True, timeout=10,
+                             env={"LC_ALL": "C", "LANG": "C"}).stdout
+    except (OSError, subprocess.SubprocessError):
+        return None
+    names: dict[str, str] = {}
+    for line in out.splitlines()[1:]:  # "\tlibfoo.so.1 (libc6,x86-64) => /usr/lib/..."
+        soname = line.strip().split(" ", 1)[0]
+        if soname.startswith("lib") and ".so" in soname:
+            names.setdefault(soname[3:soname.index(".so")], soname)
+    return names or None
+
+
+def import_weasyprint():
+    """Import WeasyPrint, looking its native libraries up in the loader's cache.
+
+    WeasyPrint tries several names per library (Pango, HarfBuzz, fontconfig...); on Linux
+    each name that is not the installed one sends ``ctypes.util.find_library`` through a
+    compiler and a linker run: some 50 subprocesses and 0.2-0.4 s, a third of the import.
+    During the import the lookup answers from one ``ldconfig -p`` instead (the names it
+    knows, None for the others). Should the import fail that way (a library outside the
+    loader's cache), it is repeated with the standard lookup, which also prints
+    WeasyPrint's own advice.
+    """
+    if "weasyprint" in sys.modules:
+        return sys.modules["weasyprint"]
+    import contextlib
+    import ctypes.util
+    import io
+
+    cache = _loader_cache()
+    if cache is not None:
+        standard = ctypes.util.find_library
+        ctypes.util.find_library = cache.get
+        try:
+            with contextlib.redirect_stdout(io.StringIO()):
+                import weasyprint
+            return weasyprint
+        except OSError:
+            for name in [m for m in sys.modules if m.partition(".")[0] == "weasyprint"]:
+                del sys.modules[name]
+        finally:
+            ctypes.util.find_library = standard
+    import weasyprint
+
+    return weasyprint
 
 
 def refusing_fetcher(requested: list[str] | None = None):
@@ -85,7 +146,7 @@ def html_to_pdf(html: str, files: Sequence[EmbeddedFile], when: dt.datetime,
     """
     import logging
 
-    import weasyprint
+    weasyprint = import_weasyprint()
 
     # WeasyPrint logs every SVG presentation property of inline SVG as an unknown CSS
     # property (the SVG renderer still applies them); thousands of lines, no information.

@@ -8,6 +8,8 @@ comparison, for the untransposed line and an ideal cycle, then condenses the res
 
 from __future__ import annotations
 
+import bisect
+import itertools
 import math
 import warnings
 
@@ -92,8 +94,9 @@ def _cascade(z_pos, y_pos, orders, lengths, shunt: bool) -> network.LineCascade:
 
 
 def _positions_at(m: float, loop: str, orders, lengths, names) -> tuple[str, ...]:
-    edges = np.cumsum(lengths) / np.sum(lengths)
-    s = int(min(np.searchsorted(edges, m - 1e-12), len(orders) - 1))
+    total = math.fsum(lengths)  # a few sections: plain Python beats numpy's call overhead
+    edges = list(itertools.accumulate(lengths))
+    s = min(bisect.bisect_left([e / total for e in edges], m - 1e-12), len(orders) - 1)
     order = list(orders[s])
     return tuple(names[order.index(p)].split("/", 1)[-1] for p in _LOOP_PHASES[loop])
 
@@ -299,22 +302,37 @@ _PICKS = ("over_at_reach", "under_at_reach", "over_line", "under_line", "over_at
           "reactance_over_resistive")
 
 
-def _extreme(sub: np.ndarray, largest: bool):
-    """(any finite value, extreme value, index) of an array, NaN ignored, first occurrence in
-    C order as np.nanargmax/np.nanargmin; value and index None if all NaN."""
-    has_finite = bool(np.isfinite(sub).any())
-    try:
-        j = int(np.nanargmax(sub) if largest else np.nanargmin(sub))
-    except ValueError:  # all NaN
-        return has_finite, None, None
-    return has_finite, float(sub.flat[j]), np.unravel_index(j, sub.shape)
+def _extremes(a: np.ndarray, first_meant: np.ndarray, largest: bool):
+    """Per loop (first axis), the extreme of the rest of ``a`` with NaN ignored, as
+    np.nanargmax/np.nanargmin on that loop's own fault types would find it.
+
+    ``a`` holds NaN for the fault types a loop is not meant for; ``first_meant`` is the flat
+    index of each loop's first meant element. Returns (any finite value, extreme value or
+    NaN when all NaN, flat index or -1) per loop. Like np.nanargmax, NaN counts as -inf
+    (+inf for the minimum) once a finite or infinite value exists, so where the extreme is
+    -inf (+inf) the first meant element is the answer, as on the loop's own types.
+    """
+    flat = a.reshape(a.shape[0], -1)
+    nan = np.isnan(flat)
+    all_nan = nan.all(axis=1)
+    has_finite = np.isfinite(flat).any(axis=1)
+    fill = -np.inf if largest else np.inf
+    filled = np.where(nan, fill, flat)
+    idx = filled.argmax(axis=1) if largest else filled.argmin(axis=1)
+    val = filled[np.arange(flat.shape[0]), idx]
+    at_fill = val == fill
+    idx = np.where(at_fill, first_meant, idx)
+    val = flat[np.arange(flat.shape[0]), idx]
+    idx = np.where(all_nan, -1, idx)
+    return has_finite, np.where(all_nan, np.nan, val), idx
 
 
 class _Condenser:
     """Worst reach errors of one relay end, arrangement and compensation, accumulated over
     chunks of fault locations. The result is the same as condensing the whole sweep at
     once: each extreme is the first in (fault type, location, resistance, source case,
-    load case) order, as np.nanargmax would return it."""
+    load case) order, as np.nanargmax would return it on each loop's own fault types.
+    All six loops are condensed together, a loop's other fault types masked with NaN."""
 
     def __init__(self, at_s, mutual, z1_set, k0_set, k0m_set, z1_reach, ftypes, rf, m):
         self.at_s, self.mutual = at_s, mutual
@@ -324,29 +342,43 @@ class _Condenser:
         self.i_reach = int(np.argmin(np.abs(self.m - z1_reach / 100)))
         self.i_remote = int(np.argmax(self.m))
         self.rb, self.rr = np.flatnonzero(rf == 0), np.flatnonzero(rf > 0)
-        self.meant = {lp: np.array([f for f, ft in enumerate(self.ftypes)
-                                    if lp in measurement.loops_for_fault(ft)], dtype=int)
-                      for lp in LOOPS}
+        # (loop, fault type): True where the loop is meant to measure the fault type
+        self.meant = np.array([[lp in measurement.loops_for_fault(ft) for ft in self.ftypes]
+                               for lp in LOOPS])
+        self.first_f = np.argmax(self.meant, axis=1)  # first meant fault type per loop
         # per (loop, pick): [any finite value, extreme value, global index]
         self.best = {(lp, p): [False, None, None] for lp in LOOPS for p in _PICKS}
         self.env_max = np.full((len(LOOPS), m.size), np.nan)
         self.env_min = np.full((len(LOOPS), m.size), np.nan)
 
-    def _offer(self, lp, pick, sub, largest, to_global) -> None:
-        has_finite, val, idx = _extreme(sub, largest)
-        rec = self.best[(lp, pick)]
-        rec[0] = rec[0] or has_finite
-        if val is None:
-            return
-        gidx = to_global(idx)
-        if (rec[1] is None or (val > rec[1] if largest else val < rec[1])
-                or (val == rec[1] and gidx < rec[2])):
-            rec[1], rec[2] = val, gidx
+    def _offer(self, pick, a, largest, to_global) -> None:
+        """Offer the extremes of ``a`` (loop, fault type, ...) for one pick of every loop;
+        ``to_global`` maps an index into a[loop] to the sweep's case index."""
+        rest = int(np.prod(a.shape[2:]))
+        has_finite, vals, idxs = _extremes(a, self.first_f * rest, largest)
+        for n_lp, lp in enumerate(LOOPS):
+            rec = self.best[(lp, pick)]
+            rec[0] = rec[0] or bool(has_finite[n_lp])
+            if idxs[n_lp] < 0:
+                continue
+            val = float(vals[n_lp])
+            gidx = to_global(np.unravel_index(int(idxs[n_lp]), a.shape[1:]))
+            if (rec[1] is None or (val > rec[1] if largest else val < rec[1])
+                    or (val == rec[1] and gidx < rec[2])):
+                rec[1], rec[2] = val, gidx
 
-    def _loops(self, v, i, ip):
-        return measurement.loop_impedances(v, i, self.k0_set,
-                                           i_parallel=ip if self.mutual else None,
-                                           k0m=self.k0m_set or 0)
+    def _errors(self, v, i, ip, m):
+        """Reach errors of the six loops (loop, fault type, ...) [%], NaN for the fault
+        types a loop is not meant for."""
+        z = measurement.loop_impedances(v, i, self.k0_set,
+                                        i_parallel=ip if self.mutual else None,
+                                        k0m=self.k0m_set or 0)
+        with np.errstate(all="ignore"):  # loops that see no current give inf/nan
+            along, react = measurement.reach_error_pct(np.stack([z[lp] for lp in LOOPS]),
+                                                       m, self.z1_set)
+        along[~self.meant] = np.nan
+        react[~self.meant] = np.nan
+        return along, react
 
     def add(self, sw, start: int) -> None:
         """Condense one chunk of the sweep, whose locations start at index ``start``."""
@@ -356,54 +388,40 @@ class _Condenser:
             v, i, ip = sw.v_r, sw.i_r, sw.i_r_parallel
         n_m = v.shape[1]
         stop = start + n_m
-        mc = self.m[start:stop]
         rb, rr = self.rb, self.rr
-        bolted = self._loops(v[:, :, rb], i[:, :, rb], ip[:, :, rb])  # (F, Mc, Rb, K, L)
-        at_reach = start <= self.i_reach < stop
-        at_remote = start <= self.i_remote < stop
-        if at_reach and rr.size:
-            j = self.i_reach - start
-            resist = self._loops(v[:, j, rr], i[:, j, rr], ip[:, j, rr])  # (F, Rr, K, L)
-        for n_lp, lp in enumerate(LOOPS):
-            fs = self.meant[lp]
-            if fs.size == 0:
+        # (loop, F, Mc, Rb, K, L)
+        along, _ = self._errors(v[:, :, rb], i[:, :, rb], ip[:, :, rb],
+                                self.m[start:stop][None, None, :, None, None, None])
+        with warnings.catch_warnings():  # all-NaN slices (m = 0, unused loops) are expected
+            warnings.simplefilter("ignore", RuntimeWarning)
+            self.env_max[:, start:stop] = np.nanmax(along, axis=(1, 3, 4, 5))
+            self.env_min[:, start:stop] = np.nanmin(along, axis=(1, 3, 4, 5))
+
+        def line_idx(ix):
+            return (int(ix[0]), start + int(ix[1]), int(rb[ix[2]]), int(ix[3]), int(ix[4]))
+
+        self._offer("over_line", along, True, line_idx)
+        self._offer("under_line", along, False, line_idx)
+        for j_m, picks in ((self.i_reach, (("over_at_reach", True), ("under_at_reach", False))),
+                           (self.i_remote, (("over_at_remote_bus", True),))):
+            if not start <= j_m < stop:
                 continue
-            with np.errstate(all="ignore"):  # loops that see no current give inf/nan
-                along, _ = measurement.reach_error_pct(bolted[lp][fs], mc[None, :, None, None,
-                                                                            None], self.z1_set)
-            with warnings.catch_warnings():  # all-NaN slices (m = 0) are expected
-                warnings.simplefilter("ignore", RuntimeWarning)
-                self.env_max[n_lp, start:stop] = np.nanmax(along, axis=(0, 2, 3, 4))
-                self.env_min[n_lp, start:stop] = np.nanmin(along, axis=(0, 2, 3, 4))
 
-            def line_idx(ix, fs=fs, rs_=rb):
-                return (int(fs[ix[0]]), start + int(ix[1]), int(rs_[ix[2]]), int(ix[3]),
-                        int(ix[4]))
+            def point_idx(ix, j_m=j_m):
+                return (int(ix[0]), j_m, int(rb[ix[1]]), int(ix[2]), int(ix[3]))
 
-            self._offer(lp, "over_line", along, True, line_idx)
-            self._offer(lp, "under_line", along, False, line_idx)
-            for flag, j_m, picks in ((at_reach, self.i_reach, (("over_at_reach", True),
-                                                               ("under_at_reach", False))),
-                                     (at_remote, self.i_remote, (("over_at_remote_bus", True),))):
-                if not flag:
-                    continue
+            sub = along[:, :, j_m - start]
+            for pick, largest in picks:
+                self._offer(pick, sub, largest, point_idx)
+        if start <= self.i_reach < stop and rr.size:
+            j = self.i_reach - start
+            _, react = self._errors(v[:, j, rr], i[:, j, rr], ip[:, j, rr],
+                                    self.m[self.i_reach])  # (loop, F, Rr, K, L)
 
-                def point_idx(ix, fs=fs, j_m=j_m):
-                    return (int(fs[ix[0]]), j_m, int(rb[ix[1]]), int(ix[2]), int(ix[3]))
+            def res_idx(ix):
+                return (int(ix[0]), self.i_reach, int(rr[ix[1]]), int(ix[2]), int(ix[3]))
 
-                sub = along[:, j_m - start]
-                for pick, largest in picks:
-                    self._offer(lp, pick, sub, largest, point_idx)
-            if at_reach and rr.size:
-                with np.errstate(all="ignore"):
-                    _, react = measurement.reach_error_pct(resist[lp][fs], self.m[self.i_reach],
-                                                           self.z1_set)
-
-                def res_idx(ix, fs=fs):
-                    return (int(fs[ix[0]]), self.i_reach, int(rr[ix[1]]), int(ix[2]),
-                            int(ix[3]))
-
-                self._offer(lp, "reactance_over_resistive", react, True, res_idx)
+            self._offer("reactance_over_resistive", react, True, res_idx)
 
     def result(self, key, emfs, rs, labels, orders, lengths, position_names) -> ArrangementReach:
         """The condensed results, reported under arrangement name ``key``."""
