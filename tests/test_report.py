@@ -502,3 +502,34 @@ def test_quick_library_lookup_loads_the_same_libraries(setup):
     quick = run(_LOADED_LIBS.format(setup=setup))
     assert len(quick) == 1  # nothing printed besides the list
     assert quick == plain and "libpango-1.0.so.0" in quick[0]
+
+
+def test_an_arrangement_that_is_the_same_line_is_said_once(demo_reports):
+    """On the untransposed double circuit (one section) the actual plan is the untransposed
+    line: its results are equal value for value (an identity of the study, checked on the
+    JSON), and the report says so once instead of printing the same table and plot row
+    twice. Comparison tables give values without their cases; the actual plan gives both.
+    On the transposed 132 kV line (sections of unequal length) nothing is folded."""
+    for name, r in demo_reports[1].items():
+        d = json.loads(r.json)
+        e = d["reach_study"]["ends"][0]
+        arrs = e["arrangements"]
+        same = [i for i, a in enumerate(arrs) if any(
+            json.dumps({**a, "arrangement": ""}) == json.dumps({**b, "arrangement": ""})
+            for b in arrs[:i])]
+        sec = re.search(r'<section class="chapter" id="reach">.*?</section>', r.html,
+                        flags=re.S).group(0)
+        assert sec.count("the same line as") == len(same), name
+        shown = len(arrs) - len(same)
+        assert sec.count('<table class="grid">') == shown, name
+        plot_rows = [g for g in _svgs(r.html)[f"reach error, relay at {e['end']}"].iter()
+                     if (g.get("data-role") or "").startswith("yticks-")]
+        assert len(plot_rows) == shown, name
+        with_cases = sum(a["arrangement"] == "actual_plan" for i, a in enumerate(arrs)
+                         if i not in same)
+        assert sec.count(" @ ") >= with_cases * 6 and sec.count("for comparison") == (
+            shown - with_cases), name
+        if name == "elsford_fallowby_230kv_double.toml":
+            assert same == [1]  # untransposed = actual plan, both with mutual compensation
+        if name == "ashcombe_brenwick_132kv.toml":
+            assert same == []

@@ -363,6 +363,18 @@ def _worst(w: dict[str, Any] | None) -> dict[str, str] | None:
     }
 
 
+def _same_results(a: dict[str, Any], b: dict[str, Any]) -> bool:
+    """Two arrangements' reach results are equal in every value (names aside; NaN, where
+    no loop measures, equals NaN)."""
+    import json
+
+    def text(x: dict[str, Any]) -> str:
+        return json.dumps({k: v for k, v in x.items() if k != "arrangement"},
+                          sort_keys=True, default=repr)
+
+    return text(a) == text(b)
+
+
 def _reach(d: dict[str, Any]) -> dict[str, Any] | None:
     q = d.get("reach_study")
     if q is None:
@@ -380,9 +392,17 @@ def _reach(d: dict[str, Any]) -> dict[str, Any] | None:
             if e["k0m_set"] is not None:
                 title += (", with mutual compensation" if a["mutual_compensation"]
                           else ", without mutual compensation")
+            # An arrangement that is the same line as an earlier one (a one-section plan is
+            # the untransposed line) has the same results: said once, not printed twice.
+            same = next((b for b, raw in zip(arrs, e["arrangements"])
+                         if b["repeat_of"] is None and _same_results(raw, a)), None)
             arrs.append({
                 "name": a["arrangement"],
                 "title": title,
+                "repeat_of": None if same is None else same["title"],
+                # the case behind each extreme for the actual plan; the comparisons give
+                # the values (their cases are in the attached results)
+                "with_cases": a["arrangement"] == "actual_plan",
                 "mutual": a["mutual_compensation"],
                 "over_remote": num(a["worst_bolted_overreach_at_remote_bus_pct"], P["pct"]),
                 "over_line": num(a["worst_bolted_overreach_on_line_pct"], P["pct"]),

@@ -193,8 +193,9 @@ def _spread(ys: list[float], gap: float, lo: float, hi: float) -> list[float]:
 def reach_error_svg(end: dict[str, Any], index: int) -> str:
     """Bolted reach error against fault location per loop, one row per arrangement: ground
     loops at the left, phase loops at the right; per loop the largest value (line) and the
-    smallest (the same line, thinner, with markers)."""
-    arrs = end["arrangements"]
+    smallest (the same line, thinner, with markers). An arrangement marked as a repeat of
+    another (the same line) is not drawn again."""
+    arrs = [a for a in end["arrangements"] if not a.get("repeat_of")]
     pw, ph = 280.0, 100.0
     x0s = (52.0, 52.0 + pw + 22.0)
     top_pad, row_pad, bottom_pad = 52.0, 22.0, 34.0
