@@ -394,7 +394,7 @@ def _reach(d: dict[str, Any]) -> dict[str, Any] | None:
                           else ", without mutual compensation")
             # An arrangement that is the same line as an earlier one (a one-section plan is
             # the untransposed line) has the same results: said once, not printed twice.
-            same = next((b for b, raw in zip(arrs, e["arrangements"])
+            same = next((b for b, raw in zip(arrs, e["arrangements"][:len(arrs)], strict=True)
                          if b["repeat_of"] is None and _same_results(raw, a)), None)
             arrs.append({
                 "name": a["arrangement"],
