@@ -6,125 +6,157 @@ its default). A file may be partial; missing keys take the default. The loaded
 :class:`relayset.errors.InputError` naming the file, the dotted key, the value and the rule.
 """
 
-# No ``from __future__ import annotations``: pydantic would compile every field's annotation
-# from its text at each start-up.
 import copy
 import tomllib
-from collections.abc import Mapping
+from collections.abc import Callable, Mapping
+from dataclasses import dataclass
 from functools import lru_cache
 from importlib import resources
 from pathlib import Path
-from typing import Annotated, Any, Literal
-
-from pydantic import BaseModel, ConfigDict, Field, ValidationError
+from typing import Any
 
 from relayset.errors import InputError, suggest
-
-Pct = Annotated[float, Field(gt=0, allow_inf_nan=False)]
-FractionPct = Annotated[float, Field(gt=0, le=100, allow_inf_nan=False)]
-NonNeg = Annotated[float, Field(ge=0, allow_inf_nan=False)]
-Seconds = Annotated[float, Field(ge=0, allow_inf_nan=False)]
-Factor = Annotated[float, Field(gt=0, allow_inf_nan=False)]
-Degrees = Annotated[float, Field(gt=0, le=90, allow_inf_nan=False)]
-Infeed = Literal["given", "computed"]
+from relayset.inputs import schema
+from relayset.inputs.schema import spec
 
 DEFAULT_FILE = "philosophy_default.toml"
 
 
-class _Part(BaseModel):
-    model_config = ConfigDict(frozen=True, extra="forbid", strict=True)
+def _number(*, gt: float | None = None, ge: float | None = None, lt: float | None = None,
+            le: float | None = None) -> Callable[[Any], float]:
+    """A TOML number (not text, not true/false), finite, within bounds, as a float."""
+
+    def conv(value: Any) -> float:
+        x = schema.strict_number(value, prefix="must")
+        schema.check_bounds(x, gt=gt, ge=ge, lt=lt, le=le, prefix="must")
+        return x
+
+    return conv
 
 
-class Zone1Philosophy(_Part):
+def _word_or_number(word: str, number: Callable[[Any], float], rule: str):
+    """``word`` as written, or a number: for keys whose default follows another key."""
+
+    def conv(value: Any) -> str | float:
+        if value == word and isinstance(value, str):
+            return value
+        try:
+            return number(value)
+        except ValueError:
+            raise ValueError(rule) from None
+
+    return conv
+
+
+def _boolean(value: Any) -> bool:
+    if not isinstance(value, bool):
+        raise ValueError("must be a valid boolean")
+    return value
+
+
+Pct = _number(gt=0)
+FractionPct = _number(gt=0, le=100)
+NonNeg = _number(ge=0)
+Seconds = _number(ge=0)
+Factor = _number(gt=0)
+Infeed = schema.one_of("given", "computed", prefix="must")
+
+
+@dataclass(frozen=True, kw_only=True)
+class Zone1Philosophy:
     """Zone 1: forward underreach."""
 
-    reach_pct: Annotated[float, Field(gt=0, lt=100, allow_inf_nan=False)]
-    reduce_to_reach_study: bool
-    min_margin_pct: Annotated[float, Field(ge=0, lt=100, allow_inf_nan=False)]
-    delay_s: Seconds
+    reach_pct: float = spec(_number(gt=0, lt=100))
+    reduce_to_reach_study: bool = spec(_boolean)
+    min_margin_pct: float = spec(_number(ge=0, lt=100))
+    delay_s: float = spec(Seconds)
 
 
-class Zone2Philosophy(_Part):
+@dataclass(frozen=True, kw_only=True)
+class Zone2Philosophy:
     """Zone 2: forward overreach covering the line end."""
 
-    rule: Literal["line_pct", "line_plus_adjacent", "max_of_both"]
-    reach_pct: Pct
-    adjacent_pct: Pct
-    check_adjacent_zone1: bool
-    adjacent_zone1_pct: FractionPct
-    infeed: Infeed
-    infeed_factor: Factor
-    delay_s: Seconds
+    rule: str = spec(schema.one_of("line_pct", "line_plus_adjacent", "max_of_both",
+                                   prefix="must"))
+    reach_pct: float = spec(Pct)
+    adjacent_pct: float = spec(Pct)
+    check_adjacent_zone1: bool = spec(_boolean)
+    adjacent_zone1_pct: float = spec(FractionPct)
+    infeed: str = spec(Infeed)
+    infeed_factor: float = spec(Factor)
+    delay_s: float = spec(Seconds)
 
 
-class Zone3Philosophy(_Part):
+@dataclass(frozen=True, kw_only=True)
+class Zone3Philosophy:
     """Zone 3: remote backup."""
 
-    rule: Literal["line_plus_adjacent", "line_pct"]
-    reach_pct: Pct
-    adjacent_pct: Pct
-    infeed: Infeed
-    infeed_factor: Factor
-    delay_s: Seconds
-    max_reach_pct: Pct  #: cap of the reach along the line angle [% of the line]
+    rule: str = spec(schema.one_of("line_plus_adjacent", "line_pct", prefix="must"))
+    reach_pct: float = spec(Pct)
+    adjacent_pct: float = spec(Pct)
+    infeed: str = spec(Infeed)
+    infeed_factor: float = spec(Factor)
+    delay_s: float = spec(Seconds)
+    max_reach_pct: float = spec(Pct)  #: cap of the reach along the line angle [% of the line]
 
 
-class ReversePhilosophy(_Part):
+@dataclass(frozen=True, kw_only=True)
+class ReversePhilosophy:
     """Reverse-looking zone."""
 
-    rule: Literal["line_pct", "behind_pct"]
-    reach_pct: Pct
-    behind_pct: Pct
-    delay_s: Seconds
+    rule: str = spec(schema.one_of("line_pct", "behind_pct", prefix="must"))
+    reach_pct: float = spec(Pct)
+    behind_pct: float = spec(Pct)
+    delay_s: float = spec(Seconds)
 
 
-class CharacteristicPhilosophy(_Part):
+@dataclass(frozen=True, kw_only=True)
+class CharacteristicPhilosophy:
     """Zone shape: mho (angle "line" or degrees) or quadrilateral."""
 
-    shape: Literal["mho", "quadrilateral"]
-    mho_angle_deg: Literal["line"] | Degrees
+    shape: str = spec(schema.one_of("mho", "quadrilateral", prefix="must"))
+    mho_angle_deg: str | float = spec(_word_or_number(
+        "line", _number(gt=0, le=90),
+        "must be 'line' or a number of degrees (0 < angle <= 90)"))
 
 
-class ResistivePhilosophy(_Part):
+@dataclass(frozen=True, kw_only=True)
+class ResistivePhilosophy:
     """Resistive reach of quadrilateral zones."""
 
-    wind_speed_m_per_s: NonNeg
-    arc_time_s: Literal["zone_delay"] | Seconds
-    margin_pct: NonNeg
-    load_limit_pct: FractionPct
+    wind_speed_m_per_s: float = spec(NonNeg)
+    arc_time_s: str | float = spec(_word_or_number(
+        "zone_delay", Seconds, "must be 'zone_delay' or a number of seconds >= 0"))
+    margin_pct: float = spec(NonNeg)
+    load_limit_pct: float = spec(FractionPct)
 
 
-class LoadPhilosophy(_Part):
+@dataclass(frozen=True, kw_only=True)
+class LoadPhilosophy:
     """Load-encroachment limit."""
 
-    encroachment_limit_pct: FractionPct
+    encroachment_limit_pct: float = spec(FractionPct)
 
 
-class Philosophy(_Part):
+@dataclass(frozen=True, kw_only=True)
+class Philosophy:
     """A complete, validated setting philosophy (frozen)."""
 
-    zone1: Zone1Philosophy
-    zone2: Zone2Philosophy
-    zone3: Zone3Philosophy
-    reverse: ReversePhilosophy
-    characteristic: CharacteristicPhilosophy
-    resistive: ResistivePhilosophy
-    load: LoadPhilosophy
+    zone1: Zone1Philosophy = spec(schema.table(Zone1Philosophy))
+    zone2: Zone2Philosophy = spec(schema.table(Zone2Philosophy))
+    zone3: Zone3Philosophy = spec(schema.table(Zone3Philosophy))
+    reverse: ReversePhilosophy = spec(schema.table(ReversePhilosophy))
+    characteristic: CharacteristicPhilosophy = spec(schema.table(CharacteristicPhilosophy))
+    resistive: ResistivePhilosophy = spec(schema.table(ResistivePhilosophy))
+    load: LoadPhilosophy = spec(schema.table(LoadPhilosophy))
 
     def to_dict(self) -> dict[str, Any]:
         """The philosophy as nested plain data (the same keys as the TOML file)."""
-        return self.model_dump()
+        return schema.to_data(self)
 
     def with_changes(self, changes: Mapping[str, Any], source: str = "<changes>") -> "Philosophy":
         """A new philosophy with some keys replaced (validated like a file)."""
-        return _build(_merge(self.model_dump(), changes, source), source)
-
-
-# Messages for fields whose pydantic message would not name every allowed form.
-_RULES: dict[str, str] = {
-    "characteristic.mho_angle_deg": "must be 'line' or a number of degrees (0 < angle <= 90)",
-    "resistive.arc_time_s": "must be 'zone_delay' or a number of seconds >= 0",
-}
+        return _build(_merge(self.to_dict(), changes, source), source)
 
 
 def _default_text() -> str:
@@ -162,27 +194,13 @@ def _merge(base: dict[str, Any], user: Mapping[str, Any], source: str, path: str
     return out
 
 
-def _field_path(loc: tuple[Any, ...]) -> str:
-    """Dotted key from a pydantic error location, dropping union branch labels."""
-    parts: list[str] = []
-    model: Any = Philosophy
-    for item in loc:
-        fields = getattr(model, "model_fields", None)
-        if not fields or item not in fields:
-            break
-        parts.append(str(item))
-        model = fields[item].annotation
-    return ".".join(parts)
-
-
 def _build(data: dict[str, Any], source: str) -> Philosophy:
     try:
-        ph = Philosophy.model_validate(data)
-    except ValidationError as exc:
-        err = exc.errors()[0]
-        field = _field_path(err["loc"])
-        rule = _RULES.get(field, err["msg"].replace("Input should", "must"))
-        raise InputError(rule, field=field, value=err.get("input"), source=source) from None
+        ph = schema.validate(Philosophy, data)
+    except schema.SchemaError as exc:
+        issue = exc.first()  # every key is known after _merge: a value breaks a rule
+        field = ".".join(str(k) for k in issue.loc)
+        raise InputError(issue.rule, field=field, value=issue.value, source=source) from None
     _check_rules(ph, source)
     return ph
 
