@@ -21,7 +21,7 @@ from hypothesis import HealthCheck, given, settings
 from hypothesis import strategies as st
 
 from relayset.cli import main
-from relayset.inputs.study_file import Study
+from relayset.inputs.study_file import TOP_KEYS
 from relayset.resources import demo_lines_dir
 
 from tomlwrite import dump_toml
@@ -29,7 +29,6 @@ from tomlwrite import dump_toml
 DEMO = demo_lines_dir()
 FAST_DEMOS = ("ashcombe_brenwick_132kv.toml", "elsford_fallowby_230kv_double.toml")
 ALL_DEMOS = (*FAST_DEMOS, "kessler_oxbow_115kv.toml", "greyholt_ivel_400kv_twin.toml")
-TOP_KEYS = {f.alias or n for n, f in Study.model_fields.items()}
 _QUANTITY = re.compile(r"^\s*([+-]?[\d.]+(?:[eE][+-]?\d+)?)\s*(.*)$")
 
 

@@ -20,8 +20,9 @@ from relayset.resources import demo_lines_dir
 
 DEMO = demo_lines_dir() / "greyholt_ivel_400kv_twin.toml"
 
-#: Heavy libraries no console command may load (the report and the unit registry use them).
-HEAVY = ("scipy", "pint", "pandas", "weasyprint", "matplotlib")
+#: Heavy libraries no console command may load (the report and the unit registry use them;
+#: pydantic none: the input layer validates with relayset.inputs.schema).
+HEAVY = ("scipy", "pint", "pandas", "weasyprint", "matplotlib", "pydantic")
 
 
 def _modules_after(args: list[str], env: dict[str, str] | None = None) -> set[str]:
@@ -65,6 +66,23 @@ def test_reach_loads_no_heavy_library():
     for pkg in (*HEAVY, "numpy.ma"):  # numpy.ma: np.unique loads it (about 10 ms)
         assert not _loaded(mods, pkg), pkg
     assert "relayset.studies.reach" in mods
+
+
+def test_no_relayset_module_loads_pydantic():
+    """Every module of the package, imported in one fresh interpreter: no pydantic (it cost
+    about 40 % of the start-up of every command)."""
+    code = textwrap.dedent("""
+        import importlib, json, pkgutil, sys
+        import relayset
+        for m in pkgutil.walk_packages(relayset.__path__, "relayset."):
+            importlib.import_module(m.name)
+        print(json.dumps(sorted(sys.modules)))
+    """)
+    out = subprocess.run([sys.executable, "-c", code], capture_output=True, text=True,
+                         check=True)
+    mods = set(json.loads(out.stdout))
+    assert "relayset.inputs.study_file" in mods and "relayset.report.html" in mods
+    assert not _loaded(mods, "pydantic")
 
 
 @pytest.mark.parametrize("command", ["earth-models", "conductors", "--version"])

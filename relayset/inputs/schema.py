@@ -272,7 +272,7 @@ def boolean(value: Any) -> bool:
         raise ValueError("Input should be a valid boolean, unable to interpret input")
     if isinstance(value, int | float) and value in (0, 1):
         return bool(value)
-    if isinstance(value, int):
+    if isinstance(value, int) or (isinstance(value, float) and value.is_integer()):
         raise ValueError("Input should be a valid boolean, unable to interpret input")
     raise ValueError("Input should be a valid boolean")
 

@@ -2,31 +2,26 @@
 
 Quantities are text with units ("28 ft", "0.1859 ohm/mi", "100 ohm*m"), converted to SI as
 they are read. Every rule a file can break raises :class:`relayset.errors.InputError` with
-the file, the dotted field, the value and the rule.
+the file, the dotted field, the value and the rule. The tables are frozen dataclasses read by
+:mod:`relayset.inputs.schema` (each field's converter given with ``spec``); rules that tie
+fields of one table together are its ``_check`` method, rules across tables
+:func:`check_study`.
 """
 
-# No ``from __future__ import annotations`` here: pydantic would evaluate every field's
-# annotation from its text (compiling each expression), a third of the models' build time
-# at every start-up.
+from __future__ import annotations
+
 import datetime as dt
 import math
 import re
 import tomllib
+from collections.abc import Callable
+from dataclasses import dataclass
 from pathlib import Path
-from typing import Annotated, Any, Literal, Self
-
-from pydantic import (
-    AfterValidator,
-    BaseModel,
-    BeforeValidator,
-    ConfigDict,
-    Field,
-    ValidationError,
-    model_validator,
-)
+from typing import Any
 
 from relayset.errors import InputError, suggest
-from relayset.inputs import units
+from relayset.inputs import schema, units
+from relayset.inputs.schema import ListOf, MapOf, TupleOf, spec, table
 
 SCHEMA = "relayset-study/1"
 
@@ -36,7 +31,7 @@ _DEG = math.pi / 180.0
 
 def _quantity(kind: str, *, gt: float | None = None, ge: float | None = None,
               le: float | None = None, lt: float | None = None,
-              show: tuple[str, float] | None = None):
+              show: tuple[str, float] | None = None) -> Callable[[Any], float]:
     """An SI float parsed from text with units, within bounds (SI) shown in ``show`` units.
 
     The upper bounds are plausibility limits (far beyond any real line, well inside what the
@@ -52,7 +47,7 @@ def _quantity(kind: str, *, gt: float | None = None, ge: float | None = None,
         _bounds(x, gt, ge, le, lt, fmt)
         return x
 
-    return Annotated[float, BeforeValidator(parse)]
+    return parse
 
 
 def _bounds(x, gt, ge, le, lt, fmt) -> None:
@@ -66,7 +61,8 @@ def _bounds(x, gt, ge, le, lt, fmt) -> None:
         raise ValueError(f"must be less than {fmt(lt)}")
 
 
-def _complex_quantity(kind: str = "impedance", *, min_abs: float = 1e-3, max_abs: float = 1e4):
+def _complex_quantity(kind: str = "impedance", *, min_abs: float = 1e-3,
+                      max_abs: float = 1e4) -> Callable[[Any], complex]:
     """A complex SI quantity whose magnitude lies in [min_abs, max_abs] [ohm]."""
 
     def parse(v: Any) -> complex:
@@ -76,11 +72,11 @@ def _complex_quantity(kind: str = "impedance", *, min_abs: float = 1e-3, max_abs
                              "(plausible range)")
         return z
 
-    return Annotated[complex, BeforeValidator(parse)]
+    return parse
 
 
 def _number(*, gt: float | None = None, ge: float | None = None, le: float | None = None,
-            lt: float | None = None, unit: str = "", rule: str = ""):
+            lt: float | None = None, unit: str = "", rule: str = "") -> Callable[[Any], float]:
     """A plain number within bounds; ``rule`` replaces the bound messages when given."""
 
     def parse(v: Any) -> float:
@@ -99,22 +95,24 @@ def _number(*, gt: float | None = None, ge: float | None = None, le: float | Non
             raise
         return x
 
-    return Annotated[float, BeforeValidator(parse)]
+    return parse
 
 
-def _text(max_len: int = 100, *, min_len: int = 0):
-    def check(v: str) -> str:
+def _text(max_len: int = 100, *, min_len: int = 0) -> Callable[[Any], str]:
+    def check(v: Any) -> str:
+        v = schema.text(v)
         if len(v) > max_len:
             raise ValueError(f"is too long ({len(v)} characters; at most {max_len})")
         if len(v) < min_len:
             raise ValueError("must not be empty")
         return v
 
-    return Annotated[str, AfterValidator(check)]
+    return check
 
 
-def _path_text(v: str) -> str:
+def _path_text(v: Any) -> str:
     """A file path as text: short enough for any file system, no NUL character."""
+    v = schema.text(v)
     if "\0" in v or len(v) > 1024 or any(len(p) > 255 for p in v.replace("\\", "/").split("/")):
         raise ValueError("is not a usable file path (at most 1024 characters, 255 per "
                          "folder or file name)")
@@ -127,14 +125,14 @@ def _non_empty(v: tuple) -> tuple:
     return v
 
 
-def _orientation(v: Any) -> Any:
+def _orientation(v: Any) -> float:
     """Bundle orientation: an angle, or "horizontal" (0 deg) / "vertical" (90 deg)."""
     if isinstance(v, str) and v.strip().lower() in ("horizontal", "vertical"):
-        return "0 deg" if v.strip().lower() == "horizontal" else "90 deg"
-    return v
+        v = "0 deg" if v.strip().lower() == "horizontal" else "90 deg"
+    return units.parse_real(v, "angle")
 
 
-def _order(v: Any) -> Any:
+def _order(v: Any) -> tuple[str, ...] | dict[str, tuple[str, ...]]:
     """A section order: a list of phase labels, or one such list per circuit name."""
     def labels(x: Any) -> tuple[str, ...]:
         if not isinstance(x, list | tuple) or not all(isinstance(p, str) for p in x):
@@ -166,27 +164,26 @@ Power = _quantity("power", gt=0, le=1e11, show=("MVA", 1e6))
 FaultLevel = _quantity("power", ge=1e6, le=1e12, show=("MVA", 1e6))
 SignedPower = _quantity("power", ge=-1e11, le=1e11, show=("MW", 1e6))
 
+# Every table: frozen, keyword-only (fields with and without defaults mix freely).
+_table = dataclass(frozen=True, kw_only=True)
 
-class _Model(BaseModel):
-    model_config = ConfigDict(frozen=True, extra="forbid")
 
+@_table
+class StudyInfo:
+    line_id: str = spec(_text(100, min_len=1))
+    title: str = spec(_text(200))
+    from_substation: str = spec(_text(100, min_len=1))
+    to_substation: str = spec(_text(100, min_len=1))
+    revision: str = spec(Name, "A")
+    revision_date: dt.date | None = spec(schema.date, None)
+    status: str = spec(schema.one_of("draft", "for review", "approved"), "draft")
+    prepared_by: str = spec(Name, "")
+    checked_by: str = spec(Name, "")
+    approved_by: str = spec(Name, "")
+    philosophy: str = spec(_path_text, "default")
+    notes: str = spec(_text(10_000), "")
 
-class StudyInfo(_Model):
-    line_id: _text(100, min_len=1)  # type: ignore[valid-type]
-    title: _text(200)  # type: ignore[valid-type]
-    from_substation: _text(100, min_len=1)  # type: ignore[valid-type]
-    to_substation: _text(100, min_len=1)  # type: ignore[valid-type]
-    revision: Name = "A"  # type: ignore[valid-type]
-    revision_date: dt.date | None = None
-    status: Literal["draft", "for review", "approved"] = "draft"
-    prepared_by: Name = ""  # type: ignore[valid-type]
-    checked_by: Name = ""  # type: ignore[valid-type]
-    approved_by: Name = ""  # type: ignore[valid-type]
-    philosophy: Annotated[str, AfterValidator(_path_text)] = "default"
-    notes: _text(10_000) = ""  # type: ignore[valid-type]
-
-    @model_validator(mode="after")
-    def _check_signatures(self) -> Self:
+    def _check(self) -> None:
         # Who signs: a calculation for review names its preparer; an approved one also its
         # checker and approver.
         needed = {"for review": ("prepared_by",),
@@ -195,39 +192,35 @@ class StudyInfo(_Model):
         if missing:
             raise ValueError(f"status {self.status!r} needs a name in "
                              + " and ".join(missing))
-        return self
 
 
-class Revision(_Model):
+@_table
+class Revision:
     """One entry of the revision history (``[[revisions]]``), printed in the report."""
 
-    revision: str
-    date: dt.date
-    description: str = ""
-    by: str = ""
+    revision: str = spec(schema.text)
+    date: dt.date = spec(schema.date)
+    description: str = spec(schema.text, "")
+    by: str = spec(schema.text, "")
 
 
-class SystemData(_Model):
-    nominal_voltage: _quantity("voltage", ge=1e3, le=1.5e6, show=("kV", 1e3))  # type: ignore[valid-type]
-    frequency: _quantity("frequency", gt=0)  # type: ignore[valid-type]
+@_table
+class SystemData:
+    nominal_voltage: float = spec(_quantity("voltage", ge=1e3, le=1.5e6, show=("kV", 1e3)))
+    frequency: float = spec(_quantity("frequency", gt=0))
     # Sea water (about 0.2 ohm*m) to dry rock (about 1e4 ohm*m), with room on both sides.
-    earth_resistivity: _quantity("resistivity", ge=0.1, le=1e5)  # type: ignore[valid-type]
-    earth_model: str = "carson"
+    earth_resistivity: float = spec(_quantity("resistivity", ge=0.1, le=1e5))
+    earth_model: str = spec(schema.text, "carson")
     # Uncertainty of the resistivity [low, high], swept by the verification (k0 moves with it).
-    earth_resistivity_range: tuple[_quantity("resistivity", gt=0),  # type: ignore[valid-type]
-                                   _quantity("resistivity", gt=0)] | None = None  # type: ignore[valid-type]
+    earth_resistivity_range: tuple[float, float] | None = spec(TupleOf(
+        _quantity("resistivity", gt=0), _quantity("resistivity", gt=0)), None)
 
-    @model_validator(mode="after")
-    def _check_range(self) -> Self:
+    def _check(self) -> None:
         r = self.earth_resistivity_range
         if r is not None and not r[0] <= self.earth_resistivity <= r[1]:
             raise ValueError(
                 f"earth_resistivity_range [{r[0]:g}, {r[1]:g}] ohm*m must run from low to "
                 f"high and contain earth_resistivity = {self.earth_resistivity:g} ohm*m")
-        return self
-
-    @model_validator(mode="after")
-    def _check(self) -> Self:
         from relayset.physics.earth_models import EARTH_MODELS
 
         if self.earth_model not in EARTH_MODELS:
@@ -237,56 +230,53 @@ class SystemData(_Model):
             )
         if self.frequency not in (50.0, 60.0):
             raise ValueError(f"frequency must be 50 Hz or 60 Hz, not {self.frequency:g} Hz")
-        return self
 
 
-class ConductorType(_Model):
-    code: Name | None = None  # type: ignore[valid-type]
-    outside_diameter: Diameter | None = None  # type: ignore[valid-type]
-    gmr: _quantity("length", ge=1e-4, le=0.1, show=("mm", 1e-3)) | None = None  # type: ignore[valid-type]
-    strands_aluminium: int | None = Field(default=None, ge=1, le=500)
-    strands_steel: int | None = Field(default=None, ge=0, le=200)
-    wire_diameter_aluminium: WireDiameter | None = None  # type: ignore[valid-type]
-    wire_diameter_steel: WireDiameter | None = None  # type: ignore[valid-type]
-    ac_resistance: ResPerLength | None = None  # type: ignore[valid-type]
-    ac_resistance_temperature: Temperature | None = None  # type: ignore[valid-type]
-    dc_resistance_20c: ResPerLength | None = None  # type: ignore[valid-type]
-    temperature_coefficient: _quantity("per_kelvin", ge=0, le=0.01) | None = None  # type: ignore[valid-type]
-    ac_dc_ratio: _number(ge=1.0, le=2.0) | None = None  # type: ignore[valid-type]
-    operating_temperature: Temperature | None = None  # type: ignore[valid-type]
+@_table
+class ConductorType:
+    code: str | None = spec(Name, None)
+    outside_diameter: float | None = spec(Diameter, None)
+    gmr: float | None = spec(_quantity("length", ge=1e-4, le=0.1, show=("mm", 1e-3)), None)
+    strands_aluminium: int | None = spec(schema.integer(ge=1, le=500), None)
+    strands_steel: int | None = spec(schema.integer(ge=0, le=200), None)
+    wire_diameter_aluminium: float | None = spec(WireDiameter, None)
+    wire_diameter_steel: float | None = spec(WireDiameter, None)
+    ac_resistance: float | None = spec(ResPerLength, None)
+    ac_resistance_temperature: float | None = spec(Temperature, None)
+    dc_resistance_20c: float | None = spec(ResPerLength, None)
+    temperature_coefficient: float | None = spec(_quantity("per_kelvin", ge=0, le=0.01), None)
+    ac_dc_ratio: float | None = spec(_number(ge=1.0, le=2.0), None)
+    operating_temperature: float | None = spec(Temperature, None)
 
 
-class Bundle(_Model):
-    count: int = Field(ge=1, le=8)
-    spacing: _quantity("length", gt=0, le=3.0)  # type: ignore[valid-type]
+@_table
+class Bundle:
+    count: int = spec(schema.integer(ge=1, le=8))
+    spacing: float = spec(_quantity("length", gt=0, le=3.0))
     #: Rotation of the subconductor polygon [rad]; 0 ("horizontal"): a twin bundle lies
     #: horizontally; 90 deg ("vertical"): one above the other. See bundle_offsets_m.
-    orientation: Annotated[float, BeforeValidator(lambda v: units.parse_real(v, "angle")),
-                           BeforeValidator(_orientation)] = 0.0  # (validators run last first)
+    orientation: float = spec(_orientation, 0.0)
 
-    @model_validator(mode="after")
-    def _check(self) -> Self:
+    def _check(self) -> None:
         if not abs(self.orientation) <= 2 * math.pi:
             raise ValueError("orientation must lie between -360 deg and 360 deg")
-        return self
 
 
-class _Placed(_Model):
+@_table
+class _Placed:
     """A conductor hung at a position on the tower."""
 
-    x: XPosition  # type: ignore[valid-type]
-    height: Height | None = None  # type: ignore[valid-type]
-    sag: Sag = 0.0  # type: ignore[valid-type]
-    average_height: Height | None = None  # type: ignore[valid-type]
-    conductor: Name  # type: ignore[valid-type]
+    x: float = spec(XPosition)
+    height: float | None = spec(Height, None)
+    sag: float = spec(Sag, 0.0)
+    average_height: float | None = spec(Height, None)
+    conductor: str = spec(Name)
 
-    @model_validator(mode="after")
-    def _check_height(self) -> Self:
+    def _check(self) -> None:
         if (self.height is None) == (self.average_height is None):
             raise ValueError("give either height (with sag) or average_height")
         if self.average_height is not None and self.sag:
             raise ValueError("sag goes with height (attachment), not with average_height")
-        return self
 
     @property
     def mean_height_m(self) -> float:
@@ -296,9 +286,10 @@ class _Placed(_Model):
         return self.height - 2.0 * self.sag / 3.0
 
 
+@_table
 class Position(_Placed):
-    name: Name  # type: ignore[valid-type]
-    bundle: Bundle | None = None
+    name: str = spec(Name)
+    bundle: Bundle | None = spec(table(Bundle), None)
 
 
 def _three_labels(v: tuple[str, ...]) -> tuple[str, ...]:
@@ -316,10 +307,11 @@ def _three_positions(v: tuple) -> tuple:
     return v
 
 
-class Circuit(_Model):
-    name: _text(50, min_len=1)  # type: ignore[valid-type]
-    phase_labels: Annotated[tuple[str, ...], AfterValidator(_three_labels)] = ("A", "B", "C")
-    positions: Annotated[tuple[Position, ...], AfterValidator(_three_positions)]
+@_table
+class Circuit:
+    name: str = spec(_text(50, min_len=1))
+    phase_labels: tuple[str, ...] = spec(ListOf(schema.text, _three_labels), ("A", "B", "C"))
+    positions: tuple[Position, ...] = spec(ListOf(table(Position), _three_positions))
 
 
 def _one_or_two(v: tuple) -> tuple:
@@ -328,24 +320,28 @@ def _one_or_two(v: tuple) -> tuple:
     return v
 
 
+@_table
 class ShieldWire(_Placed):
-    name: Name = ""  # type: ignore[valid-type]
-    grounding: Literal["continuous", "segmented", "none"] = "continuous"
+    name: str = spec(Name, "")
+    grounding: str = spec(schema.one_of("continuous", "segmented", "none"), "continuous")
 
 
-class Section(_Model):
-    length: LineLength  # type: ignore[valid-type]
-    order: Annotated[tuple[str, ...] | dict[str, tuple[str, ...]], BeforeValidator(_order)]
+@_table
+class Section:
+    length: float = spec(LineLength)
+    order: tuple[str, ...] | dict[str, tuple[str, ...]] = spec(_order)
 
 
-class LineData(_Model):
-    length: LineLength  # type: ignore[valid-type]
-    sections: Annotated[tuple[Section, ...], AfterValidator(_non_empty)] | None = None
+@_table
+class LineData:
+    length: float = spec(LineLength)
+    sections: tuple[Section, ...] | None = spec(ListOf(table(Section), _non_empty), None)
 
 
-class K0Setting(_Model):
-    magnitude: _number(ge=0, le=10)  # type: ignore[valid-type]
-    angle: Angle = 0.0  # type: ignore[valid-type]
+@_table
+class K0Setting:
+    magnitude: float = spec(_number(ge=0, le=10))
+    angle: float = spec(Angle, 0.0)
 
 
 def _ratio(v: Any, unit: str, what: str) -> float:
@@ -375,22 +371,24 @@ def _vt_ratio(v: Any) -> float:
 VT_SECONDARY_MIN_V, VT_SECONDARY_MAX_V = 56.0, 250.0
 
 
-class EndTransformers(_Model):
+@_table
+class EndTransformers:
     """Instrument-transformer ratios of the relay at one end, where they differ."""
 
-    ct_ratio: Annotated[float, BeforeValidator(_ct_ratio)] | None = None
-    vt_ratio: Annotated[float, BeforeValidator(_vt_ratio)] | None = None
+    ct_ratio: float | None = spec(_ct_ratio, None)
+    vt_ratio: float | None = spec(_vt_ratio, None)
 
 
-class RelayData(_Model):
-    end: _text(100, min_len=1)  # type: ignore[valid-type]
-    ct_ratio: Annotated[float, BeforeValidator(_ct_ratio)]
-    vt_ratio: Annotated[float, BeforeValidator(_vt_ratio)]
-    z1_set: ComplexOhm | None = None  # type: ignore[valid-type]
-    k0_set: K0Setting | None = None
-    k0m_set: K0Setting | None = None
+@_table
+class RelayData:
+    end: str = spec(_text(100, min_len=1))
+    ct_ratio: float = spec(_ct_ratio)
+    vt_ratio: float = spec(_vt_ratio)
+    z1_set: complex | None = spec(ComplexOhm, None)
+    k0_set: K0Setting | None = spec(table(K0Setting), None)
+    k0m_set: K0Setting | None = spec(table(K0Setting), None)
     #: ``[relay.at.SUBSTATION]``: CT/VT ratios of the relay at that end, if not the above.
-    at: dict[str, EndTransformers] = Field(default_factory=dict)
+    at: dict[str, EndTransformers] = spec(MapOf(table(EndTransformers)), factory=dict)
 
     def ratios(self, end: str) -> tuple[float, float]:
         """(CT ratio, VT ratio) of the relay at ``end``."""
@@ -400,16 +398,16 @@ class RelayData(_Model):
         return ct, vt
 
 
-class SourceData(_Model):
-    z1: ComplexOhm | None = None  # type: ignore[valid-type]
-    z0: ComplexOhm | None = None  # type: ignore[valid-type]
-    fault_level_3ph: FaultLevel | None = None  # type: ignore[valid-type]
-    fault_level_1ph: FaultLevel | None = None  # type: ignore[valid-type]
-    x_over_r: _number(ge=0.1, le=500) | None = None  # type: ignore[valid-type]
-    z0_over_z1: _number(ge=0.05, le=20) | None = None  # type: ignore[valid-type]
+@_table
+class SourceData:
+    z1: complex | None = spec(ComplexOhm, None)
+    z0: complex | None = spec(ComplexOhm, None)
+    fault_level_3ph: float | None = spec(FaultLevel, None)
+    fault_level_1ph: float | None = spec(FaultLevel, None)
+    x_over_r: float | None = spec(_number(ge=0.1, le=500), None)
+    z0_over_z1: float | None = spec(_number(ge=0.05, le=20), None)
 
-    @model_validator(mode="after")
-    def _check(self) -> Self:
+    def _check(self) -> None:
         if self.z1 is not None:
             if self.z0 is None:
                 raise ValueError("z1 needs z0 as well")
@@ -425,47 +423,47 @@ class SourceData(_Model):
                 raise ValueError("fault_level_3ph needs fault_level_1ph or z0_over_z1")
         else:
             raise ValueError("give z1 and z0, or fault_level_3ph with x_over_r")
-        return self
 
 
-class PowerFlow(_Model):
+@_table
+class PowerFlow:
     """A prefault load case: power into the line at the relay end (from end for "both")."""
 
-    active_power: SignedPower  # type: ignore[valid-type]
-    reactive_power: SignedPower = 0.0  # type: ignore[valid-type]
+    active_power: float = spec(SignedPower)
+    reactive_power: float = spec(SignedPower, 0.0)
 
 
 TransferAngle = _quantity("angle", ge=-90 * _DEG, le=90 * _DEG, show=("deg", _DEG))
 
 
-def _apparent(v: Any) -> Any:
+def _apparent(v: Any) -> float:
     """An apparent power is written in VA; W (real power) is a different quantity."""
     if isinstance(v, str) and re.search(r"(?i)(?<![a-z])[kmg]?w\s*$", v.strip()):
         raise ValueError("an apparent power is in VA, kVA or MVA, not W (the load's "
                          "current follows from VA; give P and Q under power_flows)")
-    return v
+    return Power(v)
 
 
-class LoadData(_Model):
-    max_apparent_power: Annotated[Power, BeforeValidator(_apparent)]  # type: ignore[valid-type]
-    min_voltage: _quantity("dimensionless", ge=0.5, le=1.2, show=("pu", 1.0)) = 0.9  # type: ignore[valid-type]
-    load_angle_max: Angle = math.radians(30.0)  # type: ignore[valid-type]
-    transfer_angles: Annotated[tuple[TransferAngle, ...], AfterValidator(_non_empty)] = (0.0,)  # type: ignore[valid-type]
-    power_flows: tuple[PowerFlow, ...] = ()
+@_table
+class LoadData:
+    max_apparent_power: float = spec(_apparent)
+    min_voltage: float = spec(_quantity("dimensionless", ge=0.5, le=1.2, show=("pu", 1.0)), 0.9)
+    load_angle_max: float = spec(Angle, math.radians(30.0))
+    transfer_angles: tuple[float, ...] = spec(ListOf(TransferAngle, _non_empty), (0.0,))
+    power_flows: tuple[PowerFlow, ...] = spec(ListOf(table(PowerFlow)), ())
 
-    @model_validator(mode="after")
-    def _check(self) -> Self:
+    def _check(self) -> None:
         if not 0 <= self.load_angle_max < math.pi / 2:
             raise ValueError(f"load_angle_max must be at least 0 deg and below 90 deg, not "
                              f"{math.degrees(self.load_angle_max):g} deg")
-        return self
 
 
-class SourceCase(_Model):
-    name: Name  # type: ignore[valid-type]
-    scale: _number(ge=0.01, le=100) = 1.0  # type: ignore[valid-type]
+@_table
+class SourceCase:
+    name: str = spec(Name)
+    scale: float = spec(_number(ge=0.01, le=100), 1.0)
     #: Per-end factors, e.g. ``at = {Elsford = 2.0}`` (weak there); ends not named: ``scale``.
-    at: dict[str, _number(ge=0.01, le=100)] = Field(default_factory=dict)  # type: ignore[valid-type]
+    at: dict[str, float] = spec(MapOf(_number(ge=0.01, le=100)), factory=dict)
 
     def scale_at(self, end: str) -> float:
         """The factor on the source impedance at ``end`` [1]."""
@@ -480,81 +478,84 @@ MIN_LOCATION_STEP_PCT = 0.01
 Zone1Pct = _number(gt=0, lt=100, rule="must be between 0 and 100 % of the line")
 
 
-class ReachStudyData(_Model):
-    fault_types: Annotated[tuple[_text(10), ...], AfterValidator(_non_empty)] = (  # type: ignore[valid-type]
-        "AG", "BG", "CG", "AB", "BC", "CA", "ABG", "BCG", "CAG", "ABC")
-    location_step_pct: _number(ge=MIN_LOCATION_STEP_PCT, le=50, unit=" %") = 1.0  # type: ignore[valid-type]
-    locations_pct: Annotated[tuple[LocationPct, ...], AfterValidator(_non_empty)] | None = None  # type: ignore[valid-type]
-    fault_resistances: tuple[Resistance, ...] = (0.0, 5.0, 10.0, 20.0)  # type: ignore[valid-type]
-    phase_fault_resistance: Resistance = 0.0  # type: ignore[valid-type]
-    source_cases: Annotated[tuple[SourceCase, ...], AfterValidator(_non_empty)] = (
+@_table
+class ReachStudyData:
+    fault_types: tuple[str, ...] = spec(ListOf(_text(10), _non_empty), (
+        "AG", "BG", "CG", "AB", "BC", "CA", "ABG", "BCG", "CAG", "ABC"))
+    location_step_pct: float = spec(_number(ge=MIN_LOCATION_STEP_PCT, le=50, unit=" %"), 1.0)
+    locations_pct: tuple[float, ...] | None = spec(ListOf(LocationPct, _non_empty), None)
+    fault_resistances: tuple[float, ...] = spec(ListOf(Resistance), (0.0, 5.0, 10.0, 20.0))
+    phase_fault_resistance: float = spec(Resistance, 0.0)
+    source_cases: tuple[SourceCase, ...] = spec(ListOf(table(SourceCase), _non_empty), (
         SourceCase(name="strong", scale=0.5),
         SourceCase(name="nominal", scale=1.0),
         SourceCase(name="weak", scale=2.0),
-    )
-    parallel_circuit: Literal["in_service", "earthed", "isolated"] | None = None
-    mutual_compensation: bool = True
-    shunt_capacitance: bool = False
-    zone1_reach_pct: Zone1Pct | None = None  # type: ignore[valid-type]
+    ))
+    parallel_circuit: str | None = spec(schema.one_of("in_service", "earthed", "isolated"),
+                                        None)
+    mutual_compensation: bool = spec(schema.boolean, True)
+    shunt_capacitance: bool = spec(schema.boolean, False)
+    zone1_reach_pct: float | None = spec(Zone1Pct, None)
 
 
-class ErrorBudget(_Model):
+@_table
+class ErrorBudget:
     """Measurement and data errors in percent of reach (defaults: common practice, no source)."""
 
-    ct_pct: _number(ge=0, le=50) = 1.0  # type: ignore[valid-type]
-    vt_pct: _number(ge=0, le=50) = 1.0  # type: ignore[valid-type]
-    relay_pct: _number(ge=0, le=50) = 5.0  # type: ignore[valid-type]
-    line_data_pct: _number(ge=0, le=50) = 3.0  # type: ignore[valid-type]
+    ct_pct: float = spec(_number(ge=0, le=50), 1.0)
+    vt_pct: float = spec(_number(ge=0, le=50), 1.0)
+    relay_pct: float = spec(_number(ge=0, le=50), 5.0)
+    line_data_pct: float = spec(_number(ge=0, le=50), 3.0)
 
     @property
     def total_pct(self) -> float:
         return self.ct_pct + self.vt_pct + self.relay_pct + self.line_data_pct
 
 
-class AdjacentLine(_Model):
-    name: _text(200)  # type: ignore[valid-type]
-    z1: ComplexOhm | None = None  # type: ignore[valid-type]
-    study: Annotated[str, AfterValidator(_path_text)] | None = None
+@_table
+class AdjacentLine:
+    name: str = spec(_text(200))
+    z1: complex | None = spec(ComplexOhm, None)
+    study: str | None = spec(_path_text, None)
     #: the substation of this line the adjacent line leaves (default: for adjacent_lines the
     #: relay's remote end, for lines_behind the relay's own end; needed when relay.end is both)
-    bus: _text(100) | None = None  # type: ignore[valid-type]
+    bus: str | None = spec(_text(100), None)
 
-    @model_validator(mode="after")
-    def _check(self) -> Self:
+    def _check(self) -> None:
         if (self.z1 is None) == (self.study is None):
             raise ValueError("give either z1 or study (a path to the adjacent line's study file)")
-        return self
 
 
-class FaultResistanceData(_Model):
-    tower_footing_resistance: Resistance = 10.0  # type: ignore[valid-type]
+@_table
+class FaultResistanceData:
+    tower_footing_resistance: float = spec(Resistance, 10.0)
     #: phase-to-phase arc length (default: the smallest phase spacing)
-    arc_length: _quantity("length", gt=0, le=100.0) | None = None  # type: ignore[valid-type]
+    arc_length: float | None = spec(_quantity("length", gt=0, le=100.0), None)
     #: ground-fault arc length (default: 0.01 m per kV, the insulator flashover length)
-    ground_arc_length: _quantity("length", gt=0, le=100.0) | None = None  # type: ignore[valid-type]
+    ground_arc_length: float | None = spec(_quantity("length", gt=0, le=100.0), None)
 
 
-class Study(_Model):
+@_table
+class Study:
     """A whole study file, validated, SI inside."""
 
-    schema_: str = Field(default=SCHEMA, alias="schema")
-    study: StudyInfo
-    revisions: tuple[Revision, ...] = ()
-    system: SystemData
-    conductor_types: dict[_text(100), ConductorType]  # type: ignore[valid-type]
-    circuits: Annotated[tuple[Circuit, ...], AfterValidator(_one_or_two)]
-    shield_wires: tuple[ShieldWire, ...] = ()
-    line: LineData
-    relay: RelayData | None = None
-    sources: dict[_text(100), SourceData] = Field(default_factory=dict)  # type: ignore[valid-type]
-    load: LoadData | None = None
-    reach_study: ReachStudyData = ReachStudyData()
-    error_budget: ErrorBudget = ErrorBudget()
-    adjacent_lines: tuple[AdjacentLine, ...] = ()
-    lines_behind: tuple[AdjacentLine, ...] = ()
-    fault_resistance: FaultResistanceData = FaultResistanceData()
-
-    model_config = ConfigDict(frozen=True, extra="forbid", populate_by_name=True)
+    schema_: str = spec(schema.text, SCHEMA, key="schema")
+    study: StudyInfo = spec(table(StudyInfo))
+    revisions: tuple[Revision, ...] = spec(ListOf(table(Revision)), ())
+    system: SystemData = spec(table(SystemData))
+    conductor_types: dict[str, ConductorType] = spec(MapOf(table(ConductorType), _text(100)))
+    circuits: tuple[Circuit, ...] = spec(ListOf(table(Circuit), _one_or_two))
+    shield_wires: tuple[ShieldWire, ...] = spec(ListOf(table(ShieldWire)), ())
+    line: LineData = spec(table(LineData))
+    relay: RelayData | None = spec(table(RelayData), None)
+    sources: dict[str, SourceData] = spec(MapOf(table(SourceData), _text(100)), factory=dict)
+    load: LoadData | None = spec(table(LoadData), None)
+    reach_study: ReachStudyData = spec(table(ReachStudyData), factory=ReachStudyData)
+    error_budget: ErrorBudget = spec(table(ErrorBudget), factory=ErrorBudget)
+    adjacent_lines: tuple[AdjacentLine, ...] = spec(ListOf(table(AdjacentLine)), ())
+    lines_behind: tuple[AdjacentLine, ...] = spec(ListOf(table(AdjacentLine)), ())
+    fault_resistance: FaultResistanceData = spec(table(FaultResistanceData),
+                                                 factory=FaultResistanceData)
 
     @property
     def ends(self) -> tuple[str, str]:
@@ -569,34 +570,8 @@ class Study(_Model):
         return self.ends if self.relay.end == "both" else (self.relay.end,)
 
 
-def _resolve_model(loc: tuple, root: type[BaseModel]) -> type[BaseModel] | None:
-    """The model class that owns the last key of ``loc`` (for unknown-key suggestions)."""
-    import typing
-
-    model: Any = root
-    for part in loc[:-1]:
-        if isinstance(part, int):
-            continue
-        if not (isinstance(model, type) and issubclass(model, BaseModel)):
-            return None
-        field = model.model_fields.get(part) or next(
-            (f for f in model.model_fields.values() if f.alias == part), None
-        )
-        if field is None:
-            return None
-        ann = field.annotation
-        # Unwrap Optional / tuple / dict down to a model class.
-        for _ in range(4):
-            args = [a for a in typing.get_args(ann) if a is not type(None) and a is not Ellipsis]
-            if isinstance(ann, type) and issubclass(ann, BaseModel):
-                break
-            if not args:
-                break
-            ann = args[-1]
-        model = ann
-    if isinstance(model, type) and issubclass(model, BaseModel):
-        return model
-    return None
+#: The top-level keys of a study file, as written.
+TOP_KEYS: tuple[str, ...] = table(Study).keys
 
 
 _BARE_KEY = re.compile(r"^[A-Za-z0-9_-]+$")
@@ -607,63 +582,26 @@ def _key(k: str) -> str:
     return k if _BARE_KEY.match(k) else '"' + k.replace('"', '\\"') + '"'
 
 
-def field_path(loc: tuple, data: Any, *, missing: bool = False) -> str:
-    """The dotted field path of a validation error, as the user wrote it in the file.
-
-    The validation library puts its own type tags into the location (``tuple[Circuit]``,
-    ``function-after[...]``); only the parts that index into the file's data are kept.
-    """
+def field_path(loc: tuple[str | int, ...]) -> str:
+    """The dotted field path of a validation issue, as the user wrote it in the file."""
     out = ""
-    cur = data
-    for i, part in enumerate(loc):
-        last = i == len(loc) - 1
-        if isinstance(part, int) and isinstance(cur, list | tuple) and 0 <= part < len(cur):
-            out += f"[{part}]"
-            cur = cur[part]
-        elif isinstance(part, str) and isinstance(cur, dict) and part in cur:
-            out += ("." if out else "") + _key(part)
-            cur = cur[part]
-        elif missing and last and isinstance(part, str) and isinstance(cur, dict):
-            out += ("." if out else "") + _key(part)
+    for part in loc:
+        out += f"[{part}]" if isinstance(part, int) else ("." if out else "") + _key(part)
     return out
 
 
-def _plain_words(msg: str) -> str:
-    """The validation library's wording in the study file's terms (TOML lists and tables)."""
-    for old, new in (("Value error, ", ""), ("Assertion failed, ", ""),
-                     (" after validation", ""), ("a valid tuple", "a list"),
-                     ("Tuple", "List"), ("a valid dictionary", "a table"),
-                     ("Dictionary", "Table")):
-        msg = msg.replace(old, new)
-    return msg
-
-
-def format_validation_error(exc: ValidationError, source: str, root: type[BaseModel],
-                            data: Any = None) -> InputError:
-    """The most telling validation error as one :class:`InputError` (file, field, value, rule).
-
-    An unknown key comes first: a misspelt key also makes the right key "missing", and the
-    misspelling is what the user has to fix.
-    """
-    errors = exc.errors()
-    err = next((e for e in errors if e.get("type") == "extra_forbidden"), errors[0])
-    loc = tuple(err.get("loc", ()))
-    kind = err.get("type", "")
-    field = field_path(loc, data, missing=kind == "missing") if data is not None else ".".join(
-        str(p) if not isinstance(p, int) else f"[{p}]" for p in loc).replace(".[", "[")
-    value = err.get("input")
-    if kind == "extra_forbidden":
-        owner = _resolve_model(loc, root)
-        known = [f.alias or n for n, f in owner.model_fields.items()] if owner else []
-        rule = "unknown key" + (suggest(str(loc[-1]), known) or (
+def _input_error(issue: schema.Issue, source: str) -> InputError:
+    """One validation issue as an :class:`InputError` (file, field as written, value, rule)."""
+    field = field_path(issue.loc)
+    if issue.kind == "unknown":
+        known = issue.known
+        rule = "unknown key" + (suggest(str(issue.loc[-1]), known) or (
             f"; valid keys: {', '.join(known)}" if known else ""))
         return InputError(rule, field=field, source=source)
-    if kind == "missing":
+    if issue.kind == "missing":
         return InputError("is required but missing", field=field, source=source)
-    msg = _plain_words(err.get("msg", "is not valid"))
-    if isinstance(value, dict | list):
-        value = None
-    return InputError(msg, field=field, value=value, source=source)
+    value = None if isinstance(issue.value, dict | list | tuple) else issue.value
+    return InputError(issue.rule, field=field, value=value, source=source)
 
 
 def _duplicate_key(text: str, exc: tomllib.TOMLDecodeError, source: str) -> InputError | None:
@@ -738,9 +676,11 @@ def parse_study(data: dict, source: str = "<study>") -> Study:
     (:func:`check_study`).
     """
     try:
-        study = Study.model_validate(data)
-    except ValidationError as exc:
-        raise format_validation_error(exc, source, Study, data) from None
+        study = schema.validate(Study, data)
+    except schema.SchemaError as exc:
+        # An unknown key first: a misspelt key also makes the right key "missing", and the
+        # misspelling is what the user has to fix.
+        raise _input_error(exc.first(), source) from None
     if study.schema_ != SCHEMA:
         raise InputError(f"unsupported schema; this version reads {SCHEMA!r}",
                          field="schema", value=study.schema_, source=source)
@@ -856,7 +796,7 @@ def check_study(study: Study, data: dict, source: str) -> None:
     if len(study.circuits) == 1 and rs.parallel_circuit is not None:
         fail("the line has one circuit, so there is no parallel circuit to set",
              "reach_study.parallel_circuit", rs.parallel_circuit)
-    if "fault_types" in rs.model_fields_set:
+    if "fault_types" in (data.get("reach_study") or {}):
         # Imported only when the file lists fault types (the solver pulls in scipy).
         from relayset.physics.network import FAULT_TYPES
 

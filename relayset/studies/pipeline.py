@@ -9,6 +9,7 @@ from pathlib import Path
 from typing import TYPE_CHECKING, Any
 
 from relayset._version import relayset_version
+from relayset.inputs.schema import to_data
 from relayset.inputs.study_file import (
     Study,
     check_reach_inputs,
@@ -49,7 +50,7 @@ def load(path: str | Path) -> LoadedStudy:
 
 def identity(study: Study) -> dict[str, Any]:
     """The study's identity block (line id, title, ends, revision, names, voltage)."""
-    info = study.study.model_dump()
+    info = to_data(study.study)
     if info.get("revision_date") is not None:
         info["revision_date"] = info["revision_date"].isoformat()
     info["nominal_voltage_kv"] = study.system.nominal_voltage / 1e3

@@ -793,8 +793,8 @@ def params_by_resistivity(study: Study, geo: LineGeometry, params: LineParameter
     rng = study.system.earth_resistivity_range
     for r in () if rng is None else rng:
         if float(r) not in out:
-            system = study.system.model_copy(update={"earth_resistivity": r})
-            other = study.model_copy(update={"system": system})
+            system = replace(study.system, earth_resistivity=r)
+            other = replace(study, system=system)
             out[float(r)] = compute_parameters(build_geometry(other, source))
     return out
 
@@ -937,8 +937,8 @@ def _lines_on_their_buses(study: Study) -> Study:
         lines = getattr(study, which)
         if any(line.bus is None for line in lines):
             update[which] = tuple(line if line.bus is not None
-                                  else line.model_copy(update={"bus": bus}) for line in lines)
-    return study.model_copy(update=update) if update else study
+                                  else replace(line, bus=bus) for line in lines)
+    return replace(study, **update) if update else study
 
 
 def _resistive_needs(sim: Simulation, end: str, st: SettingsResult, tolerance_pct: float,
