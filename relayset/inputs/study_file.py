@@ -170,6 +170,8 @@ _table = dataclass(frozen=True, kw_only=True)
 
 @_table
 class StudyInfo:
+    """``[study]``: what the calculation is, who signs it, which philosophy applies."""
+
     line_id: str = spec(_text(100, min_len=1))
     title: str = spec(_text(200))
     from_substation: str = spec(_text(100, min_len=1))
@@ -206,6 +208,8 @@ class Revision:
 
 @_table
 class SystemData:
+    """``[system]``: voltage, frequency and the earth the line runs over."""
+
     nominal_voltage: float = spec(_quantity("voltage", ge=1e3, le=1.5e6, show=("kV", 1e3)))
     frequency: float = spec(_quantity("frequency", gt=0))
     # Sea water (about 0.2 ohm*m) to dry rock (about 1e4 ohm*m), with room on both sides.
@@ -234,6 +238,8 @@ class SystemData:
 
 @_table
 class ConductorType:
+    """``[conductor_types.NAME]``: a table code, or the conductor's own data."""
+
     code: str | None = spec(Name, None)
     outside_diameter: float | None = spec(Diameter, None)
     gmr: float | None = spec(_quantity("length", ge=1e-4, le=0.1, show=("mm", 1e-3)), None)
@@ -251,6 +257,8 @@ class ConductorType:
 
 @_table
 class Bundle:
+    """Subconductors of one phase position: count, spacing [m], orientation [rad]."""
+
     count: int = spec(schema.integer(ge=1, le=8))
     spacing: float = spec(_quantity("length", gt=0, le=3.0))
     #: Rotation of the subconductor polygon [rad]; 0 ("horizontal"): a twin bundle lies
@@ -288,6 +296,8 @@ class _Placed:
 
 @_table
 class Position(_Placed):
+    """A phase position of a circuit."""
+
     name: str = spec(Name)
     bundle: Bundle | None = spec(table(Bundle), None)
 
@@ -309,6 +319,8 @@ def _three_positions(v: tuple) -> tuple:
 
 @_table
 class Circuit:
+    """``[[circuits]]``: three phase positions and their labels."""
+
     name: str = spec(_text(50, min_len=1))
     phase_labels: tuple[str, ...] = spec(ListOf(schema.text, _three_labels), ("A", "B", "C"))
     positions: tuple[Position, ...] = spec(ListOf(table(Position), _three_positions))
@@ -322,24 +334,32 @@ def _one_or_two(v: tuple) -> tuple:
 
 @_table
 class ShieldWire(_Placed):
+    """``[[shield_wires]]``: an earth wire and how it is earthed."""
+
     name: str = spec(Name, "")
     grounding: str = spec(schema.one_of("continuous", "segmented", "none"), "continuous")
 
 
 @_table
 class Section:
+    """One transposition section: its length and the phase order along it."""
+
     length: float = spec(LineLength)
     order: tuple[str, ...] | dict[str, tuple[str, ...]] = spec(_order)
 
 
 @_table
 class LineData:
+    """``[line]``: length and the transposition plan."""
+
     length: float = spec(LineLength)
     sections: tuple[Section, ...] | None = spec(ListOf(table(Section), _non_empty), None)
 
 
 @_table
 class K0Setting:
+    """A residual (or mutual) compensation factor as set on the relay."""
+
     magnitude: float = spec(_number(ge=0, le=10))
     angle: float = spec(Angle, 0.0)
 
@@ -381,6 +401,8 @@ class EndTransformers:
 
 @_table
 class RelayData:
+    """``[relay]``: where the relay sits, its CT/VT ratios and given settings."""
+
     end: str = spec(_text(100, min_len=1))
     ct_ratio: float = spec(_ct_ratio)
     vt_ratio: float = spec(_vt_ratio)
@@ -400,6 +422,8 @@ class RelayData:
 
 @_table
 class SourceData:
+    """``[sources.END]``: the source behind one end (impedances or fault levels)."""
+
     z1: complex | None = spec(ComplexOhm, None)
     z0: complex | None = spec(ComplexOhm, None)
     fault_level_3ph: float | None = spec(FaultLevel, None)
@@ -446,6 +470,8 @@ def _apparent(v: Any) -> float:
 
 @_table
 class LoadData:
+    """``[load]``: the heaviest load the zones must not see."""
+
     max_apparent_power: float = spec(_apparent)
     min_voltage: float = spec(_quantity("dimensionless", ge=0.5, le=1.2, show=("pu", 1.0)), 0.9)
     load_angle_max: float = spec(Angle, math.radians(30.0))
@@ -460,6 +486,8 @@ class LoadData:
 
 @_table
 class SourceCase:
+    """A source strength case of the reach study (factors on the source impedances)."""
+
     name: str = spec(Name)
     scale: float = spec(_number(ge=0.01, le=100), 1.0)
     #: Per-end factors, e.g. ``at = {Elsford = 2.0}`` (weak there); ends not named: ``scale``.
@@ -480,6 +508,8 @@ Zone1Pct = _number(gt=0, lt=100, rule="must be between 0 and 100 % of the line")
 
 @_table
 class ReachStudyData:
+    """``[reach_study]``: which faults, where, through which resistances."""
+
     fault_types: tuple[str, ...] = spec(ListOf(_text(10), _non_empty), (
         "AG", "BG", "CG", "AB", "BC", "CA", "ABG", "BCG", "CAG", "ABC"))
     location_step_pct: float = spec(_number(ge=MIN_LOCATION_STEP_PCT, le=50, unit=" %"), 1.0)
@@ -514,6 +544,8 @@ class ErrorBudget:
 
 @_table
 class AdjacentLine:
+    """A line leaving a bus of this one: its z1, or its own study file."""
+
     name: str = spec(_text(200))
     z1: complex | None = spec(ComplexOhm, None)
     study: str | None = spec(_path_text, None)
@@ -528,6 +560,8 @@ class AdjacentLine:
 
 @_table
 class FaultResistanceData:
+    """``[fault_resistance]``: tower footing and arc lengths."""
+
     tower_footing_resistance: float = spec(Resistance, 10.0)
     #: phase-to-phase arc length (default: the smallest phase spacing)
     arc_length: float | None = spec(_quantity("length", gt=0, le=100.0), None)
