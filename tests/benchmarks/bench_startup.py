@@ -29,16 +29,7 @@ reach, after                1.483e9 (-12%)  422 ms (351)     410 ms, 418 ms
 At that point the libraries ``params`` could not do without (numpy, pydantic, jinja2, and
 importlib.metadata, which pydantic's plugin discovery imports) cost 0.874e9 instructions, 343 ms
 mean wall in the same hyperfine run. Of that floor, jinja2 was 0.126e9 and importlib.metadata
-0.098e9.
-
-Then the input layer dropped pydantic for its own validation (``relayset/inputs/schema.py``,
-frozen dataclasses): ``python -c "import relayset.inputs.study_file"`` 0.684e9 -> 0.275e9
-instructions (of which about 0.11e9 is dataclasses building the ~25 table classes), and
-importlib.metadata is no longer loaded. Whole processes, both trees run from source with their
-bytecode compiled (cachegrind instructions; hyperfine, 40 runs interleaved, load about 1):
-``params`` (132 kV demo) 1.195e9 -> 0.825e9 instructions, 324 -> 243 ms mean (215 -> 172 ms
-min), through the installed script 210 ms mean; ``params`` (400 kV demo) 1.188e9 -> 0.818e9;
-``reach`` (400 kV demo) 1.893e9 -> 1.305e9. Without bytecode (``PYTHONDONTWRITEBYTECODE=1`` and an
+0.098e9. Without bytecode (``PYTHONDONTWRITEBYTECODE=1`` and an
 editable checkout with no ``__pycache__``) compiling relayset's own modules adds 0.26e9
 instructions (about 20-70 ms) to every run; a wheel install compiles them once. In that
 condition (as in these worktrees, hyperfine, 25 runs): ``params`` 1.793e9 -> 1.434e9
@@ -50,8 +41,16 @@ version through ``importlib.metadata`` and compiled its Jinja2 template (20-40 m
 ``reach`` also loaded numpy.ma through ``np.unique``.
 After: each command imports what it runs; the version comes from ``relayset/_version.py``;
 compiled console templates are cached in the user's cache folder; the study-file and
-philosophy models are built from real annotations (pydantic no longer compiles each from text;
-since then pydantic is gone, see above).
+philosophy models are built from real annotations (pydantic no longer compiles each from text).
+
+Later the input layer dropped pydantic for its own validation (``relayset/inputs/schema.py``,
+frozen dataclasses): ``python -c "import relayset.inputs.study_file"`` 0.684e9 -> 0.275e9
+instructions (of which about 0.11e9 is dataclasses building the ~25 table classes), and
+importlib.metadata is no longer loaded. Whole processes, both trees run from source with their
+bytecode compiled (cachegrind instructions; hyperfine, 40 runs interleaved, load about 1):
+``params`` (132 kV demo) 1.195e9 -> 0.825e9 instructions, 324 -> 243 ms mean (215 -> 172 ms
+min), through the installed script 210 ms mean; ``params`` (400 kV demo) 1.188e9 -> 0.818e9;
+``reach`` (400 kV demo) 1.893e9 -> 1.305e9.
 """
 
 from __future__ import annotations
