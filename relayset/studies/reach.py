@@ -19,6 +19,7 @@ from relayset.errors import InputError
 from relayset.inputs.philosophy import Philosophy
 from relayset.inputs.study_file import Study, check_reach_inputs
 from relayset.physics import loadflow, measurement, network, transposition
+from relayset.physics.arrays import unique_sorted
 from relayset.results.parameters import LineParameters
 from relayset.results.reach import (
     ArrangementReach,
@@ -136,8 +137,7 @@ def run_reach_study(
         m = np.array(rs.locations_pct, dtype=float) / 100
     else:
         m = np.linspace(0.0, 1.0, max(2, round(100 / rs.location_step_pct)) + 1)
-    m = np.sort(np.concatenate([m, [z1_reach / 100, 1.0]]))
-    m = m[np.concatenate([[True], m[1:] != m[:-1]])]  # np.unique, without loading numpy.ma
+    m = unique_sorted(np.concatenate([m, [z1_reach / 100, 1.0]]))
     rf = np.array(rs.fault_resistances or (0.0,))
     if 0.0 not in rf:
         rf = np.concatenate([[0.0], rf])
