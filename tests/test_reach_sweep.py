@@ -118,3 +118,128 @@ def test_too_many_cases_at_one_location_are_refused(variant, capsys):
     assert main(["reach", str(variant(DEMO_1C, edit))]) == 2
     err = capsys.readouterr().err.strip()
     assert "reach_study" in err and "202,000 fault cases at each location" in err
+
+
+def _reference_extremes(v, i, ip, cond, start):
+    """Each loop's extremes found one loop at a time with numpy's own np.nanargmax /
+    np.nanargmin on that loop's fault types (the plain way, the reference)."""
+    from relayset.physics import measurement
+    from relayset.studies.reach import LOOPS
+
+    rb, rr = cond.rb, cond.rr
+    mc = cond.m[start:start + v.shape[1]]
+    zb = measurement.loop_impedances(v[:, :, rb], i[:, :, rb], cond.k0_set,
+                                     i_parallel=ip[:, :, rb] if cond.mutual else None,
+                                     k0m=cond.k0m_set or 0)
+    j = cond.i_reach - start
+    zr = measurement.loop_impedances(v[:, j, rr], i[:, j, rr], cond.k0_set,
+                                     i_parallel=ip[:, j, rr] if cond.mutual else None,
+                                     k0m=cond.k0m_set or 0)
+    out = {}
+    for lp in LOOPS:
+        fs = np.array([f for f, ft in enumerate(cond.ftypes)
+                       if lp in measurement.loops_for_fault(ft)], dtype=int)
+        with np.errstate(all="ignore"):
+            along, _ = measurement.reach_error_pct(zb[lp][fs], mc[None, :, None, None, None],
+                                                   cond.z1_set)
+            _, react = measurement.reach_error_pct(zr[lp][fs], cond.m[cond.i_reach],
+                                                   cond.z1_set)
+        def on_line(ix, fs=fs):
+            return (fs[ix[0]], start + ix[1], rb[ix[2]], ix[3], ix[4])
+
+        def at_reach(ix, fs=fs):
+            return (fs[ix[0]], cond.i_reach, rb[ix[1]], ix[2], ix[3])
+
+        def resistive(ix, fs=fs):
+            return (fs[ix[0]], cond.i_reach, rr[ix[1]], ix[2], ix[3])
+
+        picks = {"over_line": (along, True, on_line), "under_line": (along, False, on_line),
+                 "over_at_reach": (along[:, j], True, at_reach),
+                 "reactance_over_resistive": (react, True, resistive)}
+        for pick, (a, largest, to_global) in picks.items():
+            try:
+                k = int(np.nanargmax(a) if largest else np.nanargmin(a))
+            except ValueError:  # all NaN
+                out[(lp, pick)] = (bool(np.isfinite(a).any()), None, None)
+                continue
+            ix = np.unravel_index(k, a.shape)
+            out[(lp, pick)] = (bool(np.isfinite(a).any()), float(a.flat[k]),
+                               tuple(int(x) for x in to_global(ix)))
+    return out
+
+
+@pytest.mark.parametrize("seed", range(6))
+def test_condensing_all_loops_at_once_equals_numpy_per_loop(seed):
+    """The condenser takes the six loops' extremes in one pass, the fault types a loop is not
+    meant for masked with NaN. Reference: numpy's np.nanargmax/np.nanargmin on each loop's
+    own fault types, one loop at a time. Random measurements with repeated values (ties: the
+    first in C order must win), zero loop currents (inf/NaN errors), all-NaN loops (a fault
+    type list that no phase loop measures) and negative infinities."""
+    from types import SimpleNamespace
+
+    from relayset.studies.reach import _Condenser
+
+    rng = np.random.default_rng(seed)
+    ftypes = [("AG", "BG", "CG", "AB", "BC", "CA", "ABG", "BCG", "CAG", "ABC"),
+              ("AG", "CG", "ABG"), ("ABC", "AG")][seed % 3]
+    n_f, n_m, n_rf, n_k, n_l = len(ftypes), 7, 3, 2, 2
+    rf = np.array([0.0, 5.0, 10.0])
+    m = np.linspace(0.0, 1.0, n_m)
+    shape = (n_f, n_m, n_rf, n_k, n_l, 3)
+    # coarse values so that many cases measure the same impedance
+    v = (rng.integers(1, 4, shape) + 1j * rng.integers(0, 3, shape)) * 1e4
+    i = (rng.integers(0, 3, shape) + 1j * rng.integers(-2, 2, shape)) * 1e2
+    i[rng.random(shape) < 0.05] = 0.0  # loops that see no current
+    ip = rng.normal(size=shape) * 10 + 0j
+    cond = _Condenser(True, seed % 2 == 1, 3 + 30j, 0.6 - 0.05j, 0.3 if seed % 2 else None,
+                      80.0, ftypes, rf, m)
+    sw = SimpleNamespace(v_s=v, i_s=i, i_s_parallel=ip)
+    with np.errstate(all="ignore"):
+        cond.add(sw, 0)
+    ref = _reference_extremes(v, i, ip, cond, 0)
+    for (lp, pick), (has_finite, val, idx) in ref.items():
+        got = cond.best[(lp, pick)]
+        assert got[0] == has_finite, (lp, pick)
+        if val is None:
+            assert got[1] is None, (lp, pick)
+            continue
+        assert got[2] == idx, (lp, pick, got, idx)
+        assert got[1] == val or (np.isnan(got[1]) and np.isnan(val)), (lp, pick)
+
+
+def test_extremes_of_all_loops_equal_numpy_on_each_loops_own_types():
+    """Crafted edge cases of the masked extreme: a loop whose values are only -inf and NaN
+    (np.nanargmax counts NaN as -inf and answers the first element of the loop's own types,
+    not a masked type before it), only +inf for the minimum, all NaN, ties. Reference:
+    np.nanargmax / np.nanargmin on each loop's own fault types."""
+    from relayset.studies.reach import _extremes
+
+    nan, inf = np.nan, np.inf
+    # (loop, fault type, case): loop 0 meant for types 1, 2; loop 1 for 0, 2; loop 2 for 2
+    meant = np.array([[False, True, True], [True, False, True], [False, False, True]])
+    rows = [
+        [[nan, nan], [-inf, nan], [nan, -inf]],   # only -inf and NaN
+        [[inf, nan], [nan, nan], [nan, inf]],     # only +inf and NaN
+        [[nan, nan], [nan, nan], [nan, nan]],     # all NaN
+        [[nan, nan], [2.0, 1.0], [2.0, nan]],     # a tie for the largest
+        [[1.0, -inf], [nan, nan], [nan, -3.0]],
+    ]
+    for a0 in rows:
+        for a1 in rows:
+            a = np.array([a0, a1, rows[3]], dtype=float)
+            a[~meant] = nan
+            first = np.argmax(meant, axis=1) * a.shape[2]
+            for largest in (True, False):
+                has, val, idx = _extremes(a, first, largest)
+                for lp in range(3):
+                    own = np.flatnonzero(meant[lp])
+                    sub = a[lp][own]
+                    assert has[lp] == bool(np.isfinite(sub).any())
+                    try:
+                        k = int(np.nanargmax(sub) if largest else np.nanargmin(sub))
+                    except ValueError:
+                        assert idx[lp] == -1 and np.isnan(val[lp])
+                        continue
+                    f, c = np.unravel_index(k, sub.shape)
+                    assert idx[lp] == own[f] * a.shape[2] + c, (a, lp, largest)
+                    assert np.array_equal(val[lp], sub[f, c], equal_nan=True)
