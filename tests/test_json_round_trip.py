@@ -219,8 +219,8 @@ def test_reach_json_round_trip(tmp_path, demo_path, demo):
                                           e.recommended_zone1_pct, e.governing_loop)
         _worst(je["governing_case"], e.governing_case)
         for ja, a in zip(je["arrangements"], e.arrangements, strict=True):
-            assert (ja["arrangement"], ja["mutual_compensation"]) == (a.arrangement,
-                                                                      a.mutual_compensation)
+            assert (ja["arrangement"], ja["solved_as"], ja["mutual_compensation"]) == (
+                a.arrangement, a.solved_as, a.mutual_compensation)
             for key in ("worst_bolted_overreach_at_remote_bus_pct",
                         "worst_bolted_overreach_on_line_pct",
                         "worst_bolted_underreach_on_line_pct"):

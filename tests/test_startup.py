@@ -61,8 +61,10 @@ def test_params_loads_no_heavy_library_and_no_later_study_step():
     assert "relayset.studies.pipeline" in mods  # the check above ran the real command
 
 
-def test_reach_loads_no_heavy_library():
-    mods = _modules_after(["reach", str(DEMO)])
+@pytest.mark.parametrize("command, demo", [
+    ("reach", DEMO), ("settings", DEMO.with_name("kessler_oxbow_115kv.toml"))])  # verifies
+def test_reach_and_settings_load_no_heavy_library(command, demo):
+    mods = _modules_after([command, str(demo)])
     for pkg in (*HEAVY, "numpy.ma"):  # numpy.ma: np.unique loads it (about 10 ms)
         assert not _loaded(mods, pkg), pkg
     assert "relayset.studies.reach" in mods
@@ -83,6 +85,22 @@ def test_no_relayset_module_loads_pydantic():
     mods = set(json.loads(out.stdout))
     assert "relayset.inputs.study_file" in mods and "relayset.report.html" in mods
     assert not _loaded(mods, "pydantic")
+
+
+def test_unique_sorted_is_numpy_unique():
+    """The helper that spares numpy.ma gives np.unique's answer (numpy as the reference):
+    real and complex values, repeats, 2-D input, empty input."""
+    import numpy as np
+
+    from relayset.physics.arrays import unique_sorted
+
+    rng = np.random.default_rng(7)
+    cases = [rng.integers(0, 5, 40) / 4, np.round(rng.normal(size=(6, 5)), 1),
+             np.array([1 + 2j, 1 + 2j, 1 - 2j, -3j, 0j]), np.array([]), np.array([0.25])]
+    for x in cases:
+        want = np.unique(x)
+        got = unique_sorted(x)
+        assert got.dtype == want.dtype and np.array_equal(got, want)
 
 
 @pytest.mark.parametrize("command", ["earth-models", "conductors", "--version"])

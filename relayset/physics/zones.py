@@ -16,6 +16,8 @@ from __future__ import annotations
 
 import numpy as np
 
+from relayset.physics.arrays import unique_sorted
+
 # Warrington's formula [1] in its published units: R = 8750 (s + 3 v t) / I^1.4 ohm with
 # s [ft], v [mph], t [s], I [A]. In SI, s [m] = 0.3048 s [ft] and v [m/s] = 0.44704 v [mph]:
 #   R = (8750 / 0.3048) (s + 3 (0.3048 / 0.44704) v t) / I^1.4
@@ -300,7 +302,7 @@ def quad_vertices_ohm(
             # Keep only crossings that are corners of the shape (inside every half-plane).
             if bool(quad_contains(z, x_reach, r_reach, line_angle_rad, rl)):
                 corners.append(z)
-    pts = np.unique(np.round(np.array(corners), 12))
+    pts = unique_sorted(np.round(np.array(corners), 12))
     centre = pts.mean()
     pts = pts[np.argsort(np.angle(pts - centre))]
     return pts if forward else -pts

@@ -363,18 +363,6 @@ def _worst(w: dict[str, Any] | None) -> dict[str, str] | None:
     }
 
 
-def _same_results(a: dict[str, Any], b: dict[str, Any]) -> bool:
-    """Two arrangements' reach results are equal in every value (names aside; NaN, where
-    no loop measures, equals NaN)."""
-    import json
-
-    def text(x: dict[str, Any]) -> str:
-        return json.dumps({k: v for k, v in x.items() if k != "arrangement"},
-                          sort_keys=True, default=repr)
-
-    return text(a) == text(b)
-
-
 def _reach(d: dict[str, Any]) -> dict[str, Any] | None:
     q = d.get("reach_study")
     if q is None:
@@ -387,15 +375,18 @@ def _reach(d: dict[str, Any]) -> dict[str, Any] | None:
             loops = []
             for lp in a["loops"]:
                 loops.append({"loop": lp["loop"],
-                              "worst": [_worst(lp[key]) for key, _ in WORST_KEYS]})
+                              "worst": [_worst(lp[key]) for key, _ in WORST_KEYS],
+                              # the resistive column's cases name their Rf (the others: 0)
+                              "resistive": [key.endswith("_resistive")
+                                            for key, _ in WORST_KEYS]})
             title = ARRANGEMENT_TEXT.get(a["arrangement"], a["arrangement"])
             if e["k0m_set"] is not None:
                 title += (", with mutual compensation" if a["mutual_compensation"]
                           else ", without mutual compensation")
-            # An arrangement that is the same line as an earlier one (a one-section plan is
-            # the untransposed line) has the same results: said once, not printed twice.
-            same = next((b for b, raw in zip(arrs, e["arrangements"][:len(arrs)], strict=True)
-                         if b["repeat_of"] is None and _same_results(raw, a)), None)
+            # An arrangement the study solved as another (the same line) has that one's
+            # results: said once, not printed twice.
+            same = next((b for b in arrs if b["name"] == a["solved_as"]
+                         and b["mutual"] == a["mutual_compensation"]), None)
             arrs.append({
                 "name": a["arrangement"],
                 "title": title,
@@ -436,6 +427,8 @@ def _reach(d: dict[str, Any]) -> dict[str, Any] | None:
         "notes": list(q["notes"]),
         "ends": ends,
         "worst_headers": [h for _, h in WORST_KEYS],
+        # the cases name their transfer angle when there is more than one load case
+        "several_loads": len(q["transfer_angles_deg"]) > 1,
     }
 
 

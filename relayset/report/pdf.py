@@ -11,6 +11,7 @@ import datetime as dt
 import mimetypes
 import os
 import sys
+import threading
 from collections.abc import Sequence
 from contextlib import contextmanager
 from dataclasses import dataclass
@@ -43,12 +44,23 @@ def _loader_cache() -> dict[str, str] | None:
                              env={"LC_ALL": "C", "LANG": "C"}).stdout
     except (OSError, subprocess.SubprocessError):
         return None
+    # The loader lists every ABI it knows (32-bit libraries too); keep this interpreter's,
+    # named as ctypes.util names them.
+    import struct
+
+    machine = f"{os.uname().machine}-{struct.calcsize('l') * 8}"
+    abi = {"x86_64-64": "libc6,x86-64", "ppc64-64": "libc6,64bit", "sparc64-64": "libc6,64bit",
+           "s390x-64": "libc6,64bit", "ia64-64": "libc6,IA-64"}.get(machine, "libc6")
     names: dict[str, str] = {}
     for line in out.splitlines()[1:]:  # "\tlibfoo.so.1 (libc6,x86-64) => /usr/lib/..."
-        soname = line.strip().split(" ", 1)[0]
-        if soname.startswith("lib") and ".so" in soname:
+        soname, _, rest = line.strip().partition(" ")
+        if (soname.startswith("lib") and ".so" in soname
+                and rest.startswith("(" + abi)):
             names.setdefault(soname[3:soname.index(".so")], soname)
     return names or None
+
+
+_IMPORT_LOCK = threading.Lock()
 
 
 def import_weasyprint():
@@ -62,28 +74,29 @@ def import_weasyprint():
     loader's cache), it is repeated with the standard lookup, which also prints
     WeasyPrint's own advice.
     """
-    if "weasyprint" in sys.modules:
-        return sys.modules["weasyprint"]
-    import contextlib
-    import ctypes.util
-    import io
+    with _IMPORT_LOCK:  # the lookup and stdout are process-wide: one import at a time
+        if "weasyprint" in sys.modules:
+            return sys.modules["weasyprint"]
+        import contextlib
+        import ctypes.util
+        import io
 
-    cache = _loader_cache()
-    if cache is not None:
-        standard = ctypes.util.find_library
-        ctypes.util.find_library = cache.get
-        try:
-            with contextlib.redirect_stdout(io.StringIO()):
-                import weasyprint
-            return weasyprint
-        except OSError:
-            for name in [m for m in sys.modules if m.partition(".")[0] == "weasyprint"]:
-                del sys.modules[name]
-        finally:
-            ctypes.util.find_library = standard
-    import weasyprint
+        cache = _loader_cache()
+        if cache is not None:
+            standard = ctypes.util.find_library
+            ctypes.util.find_library = cache.get
+            try:
+                with contextlib.redirect_stdout(io.StringIO()):
+                    import weasyprint
+                return weasyprint
+            except OSError:
+                for name in [m for m in sys.modules if m.partition(".")[0] == "weasyprint"]:
+                    del sys.modules[name]
+            finally:
+                ctypes.util.find_library = standard
+        import weasyprint
 
-    return weasyprint
+        return weasyprint
 
 
 def refusing_fetcher(requested: list[str] | None = None):

@@ -67,6 +67,10 @@ class ArrangementReach:
     """Reach-error results of one transposition arrangement for one relay end."""
 
     arrangement: str
+    #: The arrangement solved for this one when both are the same line (a one-section plan
+    #: is the untransposed line; a plan of three equal cyclic sections is the ideal cycle);
+    #: its results are those of that arrangement. None when solved on its own.
+    solved_as: str | None
     mutual_compensation: bool
     loops: tuple[LoopSummary, ...]
     worst_bolted_overreach_at_remote_bus_pct: float
@@ -79,6 +83,7 @@ class ArrangementReach:
     def to_dict(self) -> dict[str, Any]:
         return {
             "arrangement": self.arrangement,
+            "solved_as": self.solved_as,
             "mutual_compensation": self.mutual_compensation,
             "worst_bolted_overreach_at_remote_bus_pct":
                 self.worst_bolted_overreach_at_remote_bus_pct,

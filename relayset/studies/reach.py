@@ -19,6 +19,7 @@ from relayset.errors import InputError
 from relayset.inputs.philosophy import Philosophy
 from relayset.inputs.study_file import Study, check_reach_inputs
 from relayset.physics import loadflow, measurement, network, transposition
+from relayset.physics.arrays import unique_sorted
 from relayset.results.parameters import LineParameters
 from relayset.results.reach import (
     ArrangementReach,
@@ -136,8 +137,7 @@ def run_reach_study(
         m = np.array(rs.locations_pct, dtype=float) / 100
     else:
         m = np.linspace(0.0, 1.0, max(2, round(100 / rs.location_step_pct)) + 1)
-    m = np.sort(np.concatenate([m, [z1_reach / 100, 1.0]]))
-    m = m[np.concatenate([[True], m[1:] != m[:-1]])]  # np.unique, without loading numpy.ma
+    m = unique_sorted(np.concatenate([m, [z1_reach / 100, 1.0]]))
     rf = np.array(rs.fault_resistances or (0.0,))
     if 0.0 not in rf:
         rf = np.concatenate([[0.0], rf])
@@ -230,7 +230,8 @@ def run_reach_study(
             if not at_s:  # seen from R the plan runs backwards
                 ords, lens = ords[::-1], list(lens)[::-1]
             arrs.append(condensers[(end_name, same_as[key], mutual)].result(
-                key, emfs[same_as[key]], rs, labels, ords, lens, geo.position_names))
+                key, same_as[key], emfs[same_as[key]], rs, labels, ords, lens,
+                geo.position_names))
         actual = arrs[0]
         worst = actual.worst_bolted_overreach_at_remote_bus_pct
         rec = recommended_zone1_pct(worst, budget, zone1_max_pct, zone1_margin_pct)
@@ -363,8 +364,11 @@ class _Condenser:
                 continue
             val = float(vals[n_lp])
             gidx = to_global(np.unravel_index(int(idxs[n_lp]), a.shape[1:]))
+            # A NaN record (a chunk with only NaN and infinities) gives way to any number,
+            # so that chunks condense as the whole sweep would.
             if (rec[1] is None or (val > rec[1] if largest else val < rec[1])
-                    or (val == rec[1] and gidx < rec[2])):
+                    or (val == rec[1] and gidx < rec[2])
+                    or (math.isnan(rec[1]) and not math.isnan(val))):
                 rec[1], rec[2] = val, gidx
 
     def _errors(self, v, i, ip, m):
@@ -423,8 +427,10 @@ class _Condenser:
 
             self._offer("reactance_over_resistive", react, True, res_idx)
 
-    def result(self, key, emfs, rs, labels, orders, lengths, position_names) -> ArrangementReach:
-        """The condensed results, reported under arrangement name ``key``."""
+    def result(self, key, solved_as, emfs, rs, labels, orders, lengths,
+               position_names) -> ArrangementReach:
+        """The condensed results, reported under arrangement name ``key``; ``solved_as`` is
+        the arrangement whose sweep they are (another name when it is the same line)."""
         emf_s, emf_r = emfs
         angle = np.angle(emf_s) - np.angle(emf_r)  # (K, L) transfer angles [rad]
         ft_labels = [fault_label(ft, labels) for ft in self.ftypes]
@@ -452,6 +458,7 @@ class _Condenser:
         order_m = np.argsort(self.m)
         return ArrangementReach(
             arrangement=key,
+            solved_as=None if solved_as == key else solved_as,
             mutual_compensation=self.mutual,
             loops=tuple(summaries),
             worst_bolted_overreach_at_remote_bus_pct=extreme("over_at_remote_bus", max),

@@ -41,6 +41,7 @@ import numpy as np
 from relayset.errors import InputError
 from relayset.inputs.study_file import Study
 from relayset.physics import measurement, network
+from relayset.physics.arrays import unique_sorted
 from relayset.results.parameters import LineParameters
 from relayset.results.settings import SettingsResult, ZoneSetting
 from relayset.results.verification import (
@@ -683,7 +684,7 @@ def verification_grid(st_by_end: dict[str, SettingsResult], names, tolerance_pct
         r1 = st.zone("zone1").reach_pct / 100
         for x in (r1, r1 * (1 - tolerance_pct / 100)):
             m.append(x if end == names[0] else 1.0 - x)
-    return np.unique(np.clip(np.array(m), 0.0, 1.0))
+    return unique_sorted(np.clip(np.array(m), 0.0, 1.0))
 
 
 def check_tolerance(tolerance_pct: float, source: str) -> float:
@@ -840,7 +841,7 @@ def settle_and_verify(study: Study, geo: LineGeometry, params: LineParameters, r
     for end, st in prelim.items():  # where zone 1 must still operate, seen from each end
         x = st.zone("zone1").reach_pct / 100 * (1 - t / 100)
         m0.append(x if end == names[0] else 1 - x)
-    sim0 = simulate(study, geo, by_rho, m=np.unique(m0),
+    sim0 = simulate(study, geo, by_rho, m=unique_sorted(m0),
                     rf_pairs=rf_pairs_for(study, list(prelim.values())), source=source,
                     parallel=False)
     st_tower = study.fault_resistance.tower_footing_resistance
