@@ -79,7 +79,10 @@ def _run(conv: Any, value: Any, loc: tuple, issues: list[Issue]) -> Any:
 
 
 class _Node:
+    """A converter of containers: it records issues with their location itself."""
+
     def run(self, value: Any, loc: tuple, issues: list[Issue]) -> Any:  # pragma: no cover
+        """The converted value, or ``_FAIL`` with the issues appended."""
         raise NotImplementedError
 
 
