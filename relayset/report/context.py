@@ -391,9 +391,10 @@ def _reach(d: dict[str, Any]) -> dict[str, Any] | None:
                 "name": a["arrangement"],
                 "title": title,
                 "repeat_of": None if same is None else same["title"],
-                # the case behind each extreme for the actual plan; the comparisons give
-                # the values (their cases are in the attached results)
-                "with_cases": a["arrangement"] == "actual_plan",
+                # the case behind each extreme for the arrangement the relay is judged on
+                # (the first: the actual plan, with mutual compensation where it is used);
+                # the comparisons give the values (their cases are in the results JSON)
+                "with_cases": not arrs,
                 "mutual": a["mutual_compensation"],
                 "over_remote": num(a["worst_bolted_overreach_at_remote_bus_pct"], P["pct"]),
                 "over_line": num(a["worst_bolted_overreach_on_line_pct"], P["pct"]),
