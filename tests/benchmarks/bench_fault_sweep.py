@@ -19,6 +19,11 @@ Run on demand, single-threaded BLAS::
 
 ``--quick`` times the reference on every tenth case and scales the figure; ``--no-memory``
 skips item 4 (about a minute).
+
+Figures (2 cores, idle): item 2 10.3 ms -> 6.9 ms and item 3 72.9 ms -> 64.7 ms when the
+condensing took the six loops in one pass (one masked nanargmax per pick instead of one per
+loop and pick); items 2 and 3 were 42-64 ms and 291-1046 ms before the modal chain matrices.
+Item 4: 82 MB and 168 MB peak.
 """
 
 from __future__ import annotations
