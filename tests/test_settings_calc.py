@@ -343,3 +343,39 @@ def test_zone3_capped_along_the_line_angle():
     assert z3.reach_pct == pytest.approx(300.0, rel=1e-12, abs=0)
     assert z3.reach_primary_ohm == pytest.approx(3.0 * 4 * U, rel=1e-12, abs=0)
     assert "zone3_capped" in r.warning_ids() and "asks 580 %" in z3.rule
+
+
+@pytest.mark.parametrize("sim, reach_pct, basis, warned", [
+    (None, 75.0, "reach study", True),  # the reach study alone: 75 % (worked example)
+    ((70.0, 20.0), 70.0, "fault simulation", True),  # simulation stricter than 75 %
+    ((78.0, 12.0), 75.0, "reach study", True),  # simulation milder: the study's 75 %
+])
+def test_zone1_rule_names_the_recommendation_that_governs(sim, reach_pct, basis, warned):
+    """Zone 1 takes the stricter of the reach study's and the fault simulation's
+    recommendation (identity: min of the two), and its rule names which one; the check
+    takes the larger overreach (max of the two) and names where it comes from."""
+    kw = {} if sim is None else {"simulated_zone1_pct": sim[0],
+                                 "simulated_overreach_pct": sim[1]}
+    r = compute_settings(inputs(**kw), default_philosophy())
+    z1 = r.zone("zone1")
+    assert z1.reach_pct == pytest.approx(reach_pct, rel=1e-12)
+    assert z1.rule == f"{reach_pct:g} % of the line ({basis} recommendation; philosophy 80 %)"
+    assert ("zone1_reduced_by_reach_study" in r.warning_ids()) is warned
+    over, over_from = 15.0, "reach study"  # worst_overreach_pct of inputs()
+    if sim is not None and sim[1] > over:
+        over, over_from = sim[1], "fault simulation"
+    check = next(c for c in z1.checks if c.check_id == "reach_study_margin")
+    assert f"plus {over:.3g} % of it" in check.detail and over_from in check.detail
+    assert check.passed is (reach_pct * (1 + over / 100) <= 100)
+
+
+def test_zone1_reduced_by_the_simulation_alone_is_not_called_the_reach_study():
+    """When the reach study allows the philosophy's 80 % and only the fault simulation asks
+    for less, zone 1 follows the simulation without the reach-study warning (the
+    verification warns it as zone1_limited_by_simulation)."""
+    r = compute_settings(inputs(recommended_zone1_pct=85.0, worst_overreach_pct=5.0,
+                                simulated_zone1_pct=72.5, simulated_overreach_pct=25.0),
+                         default_philosophy())
+    assert r.zone("zone1").reach_pct == 72.5
+    assert "fault simulation recommendation" in r.zone("zone1").rule
+    assert "zone1_reduced_by_reach_study" not in r.warning_ids()

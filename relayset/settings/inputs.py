@@ -106,7 +106,12 @@ class SettingsInputs:
     recommended_zone1_pct : float, optional
         Zone 1 reach recommended by the untransposition reach study [% of the line].
     worst_overreach_pct : float, optional
-        Worst-case zone 1 overreach found by the reach study [% of the zone 1 setting].
+        Worst-case zone 1 overreach behind it, error budget included [% of the zone 1
+        setting].
+    simulated_zone1_pct, simulated_overreach_pct : float, optional
+        The same from the fault simulation at the remote bus (every source, load and
+        parallel-circuit case and fault resistance) [% of the line], [% of the setting];
+        the stricter recommendation applies.
     infeed_range : (complex, complex), optional
         Smallest and largest infeed factor K at the remote bus found by fault simulation
         (source cases, parallel circuit) [1]; with ``infeed = "computed"`` zone 2 is graded
@@ -143,6 +148,8 @@ class SettingsInputs:
     tower_footing_ohm: float = 0.0
     recommended_zone1_pct: float | None = None
     worst_overreach_pct: float | None = None
+    simulated_zone1_pct: float | None = None
+    simulated_overreach_pct: float | None = None
     end: str = "relay"
     remote_end: str = "remote"
     infeed_range: tuple[complex, complex] | None = None
@@ -191,3 +198,9 @@ class SettingsInputs:
         if self.worst_overreach_pct is not None:
             put("worst_overreach_pct",
                 _real("worst_overreach_pct", self.worst_overreach_pct, gt=-100))
+        if self.simulated_zone1_pct is not None:
+            put("simulated_zone1_pct",
+                _real("simulated_zone1_pct", self.simulated_zone1_pct, gt=0, lt=100))
+        if self.simulated_overreach_pct is not None:
+            put("simulated_overreach_pct",
+                _real("simulated_overreach_pct", self.simulated_overreach_pct, gt=-100))

@@ -80,19 +80,36 @@ def zone1_target(w: RuleContext) -> tuple[complex, str, list[Check]]:
     pct = z1.reach_pct
     rule = f"{pct:g} % of the line"
     limit = 100.0 - z1.min_margin_pct
-    rec, over = i.recommended_zone1_pct, i.worst_overreach_pct
+    # Two recommendations may limit zone 1: the reach study's and the fault simulation's
+    # at the remote bus; the stricter applies, and the rule says which one it was.
+    study_rec = rec = i.recommended_zone1_pct
+    over = i.worst_overreach_pct
+    basis = "reach study"
+    if i.simulated_zone1_pct is not None:
+        if rec is None or i.simulated_zone1_pct < rec:
+            rec, basis = i.simulated_zone1_pct, "fault simulation"
+    over_basis = "reach study"
+    if i.simulated_overreach_pct is not None and (
+            over is None or i.simulated_overreach_pct > over):
+        over, over_basis = i.simulated_overreach_pct, "fault simulation"
     # The recommendation already carries the error budget: below the setting, it rules.
     exceeds = rec is not None and rec < pct
     if over is not None:
         exceeds = exceeds or pct * (1 + over / 100) > limit
     if exceeds and z1.reduce_to_reach_study and rec is not None and rec < pct:
-        w.warn(
-            "zone1_reduced_by_reach_study",
-            f"Zone 1 reduced from {pct:g} % to the reach study's recommended {rec:g} % of the "
-            "line (worst-case overreach plus the error budget exceed the margin)",
-            "check the reach study's assumptions (transposition, earth resistivity)",
-        )
-        rule = f"{rec:g} % of the line (reach study recommendation; philosophy {pct:g} %)"
+        if study_rec is not None and study_rec < pct:
+            further = (f"; the fault simulation limits it further to {rec:g} % "
+                       "(zone1_limited_by_simulation)" if basis == "fault simulation" else "")
+            w.warn(
+                "zone1_reduced_by_reach_study",
+                f"Zone 1 reduced from {pct:g} % to the reach study's recommended "
+                f"{study_rec:g} % of the line (worst-case overreach plus the error budget "
+                f"exceed the margin){further}",
+                "check the reach study's assumptions (transposition, earth resistivity)",
+            )
+        # (a reduction by the fault simulation alone is warned by the verification:
+        # zone1_limited_by_simulation, with the governing overreach)
+        rule = f"{rec:g} % of the line ({basis} recommendation; philosophy {pct:g} %)"
         pct = rec
     elif exceeds:
         w.warn(
@@ -107,6 +124,8 @@ def zone1_target(w: RuleContext) -> tuple[complex, str, list[Check]]:
         eff = pct * (1 + over / 100)
         checks.append(Check(
             "reach_study_margin", eff <= limit,
-            f"worst-case reach {eff:.4g} % of the line against the limit {limit:g} %",
+            f"worst-case reach {eff:.4g} % of the line (the setting plus {over:.3g} % of it: "
+            f"error budget and worst overreach, from the {over_basis}) against the limit "
+            f"{limit:g} %",
         ))
     return pct / 100 * i.z1_line_ohm, rule, checks

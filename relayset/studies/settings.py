@@ -114,8 +114,8 @@ def run_settings(study: Study, geo: LineGeometry, params: LineParameters, relay:
     """Settings of the relay at each of ``relay.ends`` (or ``ends``), in that order.
 
     ``simulated`` holds, per end, what the verification's fault simulation found:
-    ``zone1_limit`` (recommended reach [%], worst overreach [% of setting]; the stricter of
-    it and the reach study's applies), ``infeed_range`` (K min, K max) and
+    ``zone1_limit`` (recommended reach [%], worst overreach [% of setting]; the zone 1 rule
+    applies the stricter of it and the reach study's), ``infeed_range`` (K min, K max) and
     ``reverse_cover_ohm``.
     """
     check_settings_inputs(study, source)
@@ -131,10 +131,7 @@ def run_settings(study: Study, geo: LineGeometry, params: LineParameters, relay:
             e = er.arrangement("actual_plan").worst_bolted_overreach_at_remote_bus_pct
             worst = er.error_budget_pct + max(0.0, e)
         sim = (simulated or {}).get(end, {})
-        if "zone1_limit" in sim:
-            lim, over = sim["zone1_limit"]
-            rec = lim if rec is None else min(rec, lim)
-            worst = over if worst is None else max(worst, over)
+        sim_rec, sim_over = sim.get("zone1_limit", (None, None))
         src_relay = build_source(study, end, source)
         src_remote = build_source(study, other, source)
         fr = study.fault_resistance
@@ -166,6 +163,8 @@ def run_settings(study: Study, geo: LineGeometry, params: LineParameters, relay:
                 tower_footing_ohm=fr.tower_footing_resistance,
                 recommended_zone1_pct=rec,
                 worst_overreach_pct=worst,
+                simulated_zone1_pct=sim_rec,
+                simulated_overreach_pct=sim_over,
                 infeed_range=sim.get("infeed_range"),
                 reverse_cover_ohm=sim.get("reverse_cover_ohm"),
                 resistive_need_ohm=sim.get("resistive_need_ohm"),
