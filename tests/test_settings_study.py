@@ -133,3 +133,16 @@ def test_min_voltage_accepts_pu_text(variant):
     res = study_settings(variant(DEMO, lambda d: d["load"].update(min_voltage="0.9 pu")))
     # Z_load,min = (0.9 x 132 kV)^2 / 160 MVA = 88.209 ohm (identity)
     assert res.settings[0].load.z_min_primary_ohm == pytest.approx((0.9 * 132e3) ** 2 / 160e6)
+
+
+def test_an_end_without_a_source_is_warned(variant):
+    """A study that gives no source at the remote bus is legitimate (a line fed from one
+    end), but every infeed-dependent result changes: the settings warn it, naming the bus.
+    With both sources given (the demo as shipped) there is no such warning."""
+    assert not [w for w in study_settings(variant(DEMO, lambda d: None)).settings[0].warnings
+                if w.rule_id.startswith("no_source_at")]
+    res = study_settings(variant(DEMO, lambda d: d["sources"].pop("Brenwick")))
+    ids = res.settings[0].warning_ids()
+    assert "no_source_at_remote_end" in ids and "no_source_at_relay_end" not in ids
+    w = next(w for w in res.settings[0].warnings if w.rule_id == "no_source_at_remote_end")
+    assert "Brenwick" in w.message and "[sources.\"Brenwick\"]" in w.consider
