@@ -205,7 +205,8 @@ def test_reach_json_round_trip(tmp_path, demo_path, demo):
         assert set(s) == {"z1_ohm", "z0_ohm"} and len(s["z1_ohm"]) == 2, name
     for je, e in zip(j["ends"], r.ends, strict=True):
         assert set(je) == {"end", "z1_set_ohm", "k0_set", "k0m_set", "zone1_reach_pct",
-                           "error_budget_pct", "recommended_zone1_pct", "governing_loop",
+                           "error_budget_pct", "recommended_zone1_pct",
+                           "zone1_allowed_by_errors_pct", "governing_loop",
                            "governing_case", "arrangements"}
         assert je["end"] == e.end
         _close(_c(je["z1_set_ohm"]), e.z1_set_ohm)
@@ -215,8 +216,9 @@ def test_reach_json_round_trip(tmp_path, demo_path, demo):
         else:
             _close(_c(je["k0m_set"]), e.k0m_set)
         assert (je["zone1_reach_pct"], je["error_budget_pct"], je["recommended_zone1_pct"],
-                je["governing_loop"]) == (e.zone1_reach_pct, e.error_budget_pct,
-                                          e.recommended_zone1_pct, e.governing_loop)
+                je["zone1_allowed_by_errors_pct"], je["governing_loop"]) == (
+            e.zone1_reach_pct, e.error_budget_pct, e.recommended_zone1_pct,
+            e.zone1_allowed_by_errors_pct, e.governing_loop)
         _worst(je["governing_case"], e.governing_case)
         for ja, a in zip(je["arrangements"], e.arrangements, strict=True):
             assert (ja["arrangement"], ja["solved_as"], ja["mutual_compensation"]) == (

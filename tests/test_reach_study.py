@@ -217,3 +217,24 @@ def test_power_flow_is_delivered_at_the_relay_end(demo_path, end):
     s = complex(np.sum(v[0, 0, 0, 0, 0] * np.conj(i[0, 0, 0, 0, 0])))
     assert s.real == pytest.approx(90e6, rel=0.01)
     assert s.imag == pytest.approx(20e6, abs=0.01 * 90e6)
+
+
+@pytest.mark.parametrize("demo, capped", [("kessler_oxbow_115kv.toml", True),
+                                          ("elsford_fallowby_230kv_double.toml", False)])
+def test_recommendation_says_whether_the_philosophy_cap_governs(demo_path, demo, capped):
+    """Identity of the zone 1 rule: the recommendation is the smaller of what the errors
+    allow (budget plus worst overreach: the rule with no cap) and the philosophy's maximum,
+    both rounded down to 0.5 %; the results carry both, so the report can say which
+    governs (the 115 kV line is capped at 80 %, the 230 kV one limited by its overreach)."""
+    from relayset.settings.zone1 import recommended_zone1_pct
+    from relayset.studies.pipeline import load
+    from relayset.studies.settings import study_philosophy
+
+    path = demo_path(demo)
+    z1 = study_philosophy(load(path).study, str(path)).zone1
+    for e in study_reach(path).reach.ends:
+        worst = e.arrangement("actual_plan").worst_bolted_overreach_at_remote_bus_pct
+        allowed = recommended_zone1_pct(worst, e.error_budget_pct, 100.0, z1.min_margin_pct)
+        assert e.zone1_allowed_by_errors_pct == allowed
+        assert e.recommended_zone1_pct == min(allowed, math.floor(2 * z1.reach_pct) / 2)
+        assert (e.zone1_allowed_by_errors_pct > e.recommended_zone1_pct) is capped

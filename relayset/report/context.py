@@ -410,6 +410,9 @@ def _reach(d: dict[str, Any]) -> dict[str, Any] | None:
             "zone1_reach": num(e["zone1_reach_pct"], 1),
             "error_budget": num(e["error_budget_pct"], 1),
             "recommended_zone1": num(e["recommended_zone1_pct"], 1),
+            # the philosophy's maximum, not the overreach, sets the recommendation
+            "capped": e["zone1_allowed_by_errors_pct"] > e["recommended_zone1_pct"],
+            "allowed_by_errors": num(e["zone1_allowed_by_errors_pct"], 1),
             "governing_loop": e["governing_loop"],
             "governing_case": _worst(e["governing_case"]),
             "arrangements": arrs,

@@ -110,6 +110,9 @@ class EndReach:
     zone1_reach_pct: float
     error_budget_pct: float
     recommended_zone1_pct: float
+    #: Zone 1 the error budget and the worst overreach alone allow, before the philosophy's
+    #: cap [% of the line]; above ``recommended_zone1_pct`` when the cap governs.
+    zone1_allowed_by_errors_pct: float
     governing_loop: str
     governing_case: WorstCase | None
     arrangements: tuple[ArrangementReach, ...]
@@ -135,6 +138,7 @@ class EndReach:
             "zone1_reach_pct": self.zone1_reach_pct,
             "error_budget_pct": self.error_budget_pct,
             "recommended_zone1_pct": self.recommended_zone1_pct,
+            "zone1_allowed_by_errors_pct": self.zone1_allowed_by_errors_pct,
             "governing_loop": self.governing_loop,
             "governing_case": None if self.governing_case is None
             else self.governing_case.to_dict(),

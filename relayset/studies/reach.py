@@ -235,12 +235,14 @@ def run_reach_study(
         actual = arrs[0]
         worst = actual.worst_bolted_overreach_at_remote_bus_pct
         rec = recommended_zone1_pct(worst, budget, zone1_max_pct, zone1_margin_pct)
+        allowed = recommended_zone1_pct(worst, budget, 100.0, zone1_margin_pct)  # no cap
         gov = max((lp for lp in actual.loops if lp.over_at_remote_bus is not None),
                   key=lambda lp: lp.over_at_remote_bus.error_pct, default=None)
         end_results.append(EndReach(
             end=end_name, z1_set_ohm=complex(z1_set), k0_set=complex(k0_set),
             k0m_set=None if k0m_set is None else complex(k0m_set),
             zone1_reach_pct=z1_reach, error_budget_pct=budget, recommended_zone1_pct=rec,
+            zone1_allowed_by_errors_pct=allowed,
             governing_loop="" if gov is None else gov.loop,
             governing_case=None if gov is None else gov.over_at_remote_bus,
             arrangements=tuple(arrs)))
