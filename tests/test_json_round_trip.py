@@ -194,11 +194,17 @@ def test_reach_json_round_trip(tmp_path, demo_path, demo):
     j = d["reach_study"]
     assert set(j) >= {"fault_types", "location_step_pct", "fault_resistances_ohm",
                       "phase_fault_resistance_ohm", "source_cases", "transfer_angles_deg",
-                      "parallel_circuit", "shunt_capacitance", "source_impedances_ohm",
-                      "cases_solved", "ends", "notes"}
+                      "power_flows", "parallel_circuit", "shunt_capacitance",
+                      "source_impedances_ohm", "cases_solved", "ends", "notes"}
     assert j["fault_types"] == list(r.fault_types)
     _close(j["fault_resistances_ohm"], r.fault_resistances_ohm)
-    _close(j["transfer_angles_deg"], r.transfer_angles_deg)
+    if r.power_flows is None:
+        _close(j["transfer_angles_deg"], r.transfer_angles_deg)
+        assert j["power_flows"] is None
+    else:  # load cases given as P, Q: no common transfer angle
+        assert j["transfer_angles_deg"] is None
+        assert [(f["active_power_w"], f["reactive_power_var"]) for f in j["power_flows"]] == [
+            (p, q) for p, q in r.power_flows]
     assert j["source_cases"] == [{"name": n, "scale": s} for n, s in r.source_cases]
     assert j["cases_solved"] == r.n_cases
     for name, s in j["source_impedances_ohm"].items():

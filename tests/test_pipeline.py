@@ -113,5 +113,5 @@ def test_cases_solved_counts_identical_arrangements_once(demo_path, demo, distin
     # arrangement actually solved.
     q = study_reach(demo_path(demo)).reach
     per = (len(q.fault_types) * len(q.locations_pct) * len(q.fault_resistances_ohm)
-           * len(q.source_cases) * len(q.transfer_angles_deg))
+           * len(q.source_cases) * q.n_load_cases)
     assert q.n_cases == per * distinct

@@ -424,7 +424,11 @@ def _reach(d: dict[str, Any]) -> dict[str, Any] | None:
         "phase_fault_resistance": num(q["phase_fault_resistance_ohm"], 1),
         "source_cases": ", ".join(f"{c['name']} (× {num(c['scale'], 2)})"
                                   for c in q["source_cases"]),
-        "transfer_angles": ", ".join(num(x, 1) for x in q["transfer_angles_deg"]),
+        "transfer_angles": (None if q["transfer_angles_deg"] is None
+                            else ", ".join(num(x, 1) for x in q["transfer_angles_deg"])),
+        "power_flows": (None if q["power_flows"] is None else ", ".join(
+            f"{num(f['active_power_w'] / 1e6, 1)} MW {'+' if f['reactive_power_var'] >= 0 else '−'}"
+            f" {num(abs(f['reactive_power_var']) / 1e6, 1)} Mvar" for f in q["power_flows"])),
         "parallel_circuit": q["parallel_circuit"] or "–",
         "shunt_capacitance": "included" if q["shunt_capacitance"] else "neglected",
         "cases": f"{q['cases_solved']:,}".replace(",", "\u2009"),
@@ -432,7 +436,7 @@ def _reach(d: dict[str, Any]) -> dict[str, Any] | None:
         "ends": ends,
         "worst_headers": [h for _, h in WORST_KEYS],
         # the cases name their transfer angle when there is more than one load case
-        "several_loads": len(q["transfer_angles_deg"]) > 1,
+        "several_loads": len(q["power_flows"] or q["transfer_angles_deg"]) > 1,
     }
 
 

@@ -155,13 +155,23 @@ class ReachStudyResult:
     fault_resistances_ohm: tuple[float, ...]
     phase_fault_resistance_ohm: float
     source_cases: tuple[tuple[str, float], ...]
-    transfer_angles_deg: tuple[float, ...]
+    #: Load cases as transfer angles (S EMF leading R) [deg]; None when they are given as
+    #: power flows (then each source case has its own angle, found by a load flow).
+    transfer_angles_deg: tuple[float, ...] | None
+    #: Load cases as power flows at the relay end, (P [W], Q [var]) each; or None.
+    power_flows: tuple[tuple[float, float], ...] | None
     parallel_circuit: str | None
     shunt_capacitance: bool
     source_impedances: dict[str, dict[str, list[float]]]
     ends: tuple[EndReach, ...]
     n_cases: int
     notes: tuple[str, ...]
+
+    @property
+    def n_load_cases(self) -> int:
+        """Number of load cases (transfer angles or power flows)."""
+        return len(self.power_flows if self.power_flows is not None
+                   else self.transfer_angles_deg)
 
     def to_dict(self) -> dict[str, Any]:
         return {
@@ -170,7 +180,10 @@ class ReachStudyResult:
             "fault_resistances_ohm": list(self.fault_resistances_ohm),
             "phase_fault_resistance_ohm": self.phase_fault_resistance_ohm,
             "source_cases": [{"name": n, "scale": s} for n, s in self.source_cases],
-            "transfer_angles_deg": list(self.transfer_angles_deg),
+            "transfer_angles_deg": (None if self.transfer_angles_deg is None
+                                    else list(self.transfer_angles_deg)),
+            "power_flows": None if self.power_flows is None else [
+                {"active_power_w": p, "reactive_power_var": q} for p, q in self.power_flows],
             "parallel_circuit": self.parallel_circuit,
             "shunt_capacitance": self.shunt_capacitance,
             "source_impedances_ohm": self.source_impedances,

@@ -144,8 +144,9 @@ def run_reach_study(
     # (K, 2): the factor on each end's source (a case may weaken one end only).
     scales = np.array([[c.scale_at(names[0]), c.scale_at(names[1])] for c in rs.source_cases])
     angles = np.array(study.load.transfer_angles if study.load else (0.0,))
-    if study.load and study.load.power_flows:
-        angles = np.zeros(len(study.load.power_flows))  # replaced by the EMFs of each flow
+    flows = study.load.power_flows if study.load else None
+    if flows:
+        angles = np.zeros(len(flows))  # replaced by the EMFs of each flow
 
     z1_set, k0_set, k0m_set = relay.z1_set_ohm, relay.k0_set, relay.k0m_set
     budget = study.error_budget.total_pct
@@ -267,7 +268,9 @@ def run_reach_study(
         fault_resistances_ohm=tuple(float(x) for x in rf),
         phase_fault_resistance_ohm=rs.phase_fault_resistance,
         source_cases=tuple((c.name, c.scale) for c in rs.source_cases),
-        transfer_angles_deg=tuple(math.degrees(a) for a in angles),
+        transfer_angles_deg=(None if flows else tuple(math.degrees(a) for a in angles)),
+        power_flows=(tuple((f.active_power, f.reactive_power) for f in flows) if flows
+                     else None),
         parallel_circuit=parallel if n_c == 2 else None,
         shunt_capacitance=rs.shunt_capacitance,
         source_impedances={n: {"z1_ohm": cplx(s.z1_ohm), "z0_ohm": cplx(s.z0_ohm)}
