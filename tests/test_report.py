@@ -560,3 +560,22 @@ def test_an_arrangement_that_is_the_same_line_is_said_once(demo_reports):
         if want is not None:
             assert same == want[0], name
             assert want[1] is None or want[1] in sec, name
+
+
+def test_reported_findings_are_printed_in_full(demo_reports):
+    """A verification finding without a pass/fail limit (zone 3's coverage of the longest
+    adjacent line at the largest simulated infeed) is printed with its sentence, not as a
+    bare margin: the JSON's requirement text appears in the verification section."""
+    import html as html_lib
+
+    seen = 0
+    for name, r in demo_reports[1].items():
+        d = json.loads(r.json)
+        sec = html_lib.unescape(re.search(r'<section class="chapter" id="verification">.*?'
+                                          r'</section>', r.html, flags=re.S).group(0))
+        for e in (d.get("verification") or {}).get("ends", []):
+            for c in e["checks"]:
+                if c["result"] == "reported":
+                    seen += 1
+                    assert "reported: " + c["requirement"] in sec, (name, c["check_id"])
+    assert seen >= 1

@@ -553,6 +553,12 @@ def _verification(r) -> dict[str, Any]:
                 "cases_run": str(c.get("cases_run", "–")),
                 "margin": num(c.get("margin_pct"), PRECISION["pct"]),
                 "fails": fails,
+                # a finding reported without a pass/fail limit (e.g. zone 3's coverage of
+                # the adjacent line at the largest infeed) is printed in full
+                "reported": (f"{c.get('requirement', '')}; {c['consider']}"
+                             if c.get("result") == "reported" and c.get("consider")
+                             else c.get("requirement") if c.get("result") == "reported"
+                             else None),
             })
     return {"verdict": str(vd.get("verdict", NOT_VERIFIED)), "present": True, "zones": zones}
 
