@@ -364,6 +364,8 @@ def _worst(w: dict[str, Any] | None) -> dict[str, str] | None:
 
 
 def _reach(d: dict[str, Any]) -> dict[str, Any] | None:
+    from relayset.results.reach import fault_label
+
     q = d.get("reach_study")
     if q is None:
         return None
@@ -418,7 +420,8 @@ def _reach(d: dict[str, Any]) -> dict[str, Any] | None:
             "arrangements": arrs,
         })
     return {
-        "fault_types": ", ".join(q["fault_types"]),
+        "fault_types": ", ".join(fault_label(ft, d["parameters"]["phase_labels"][0])
+                                 for ft in q["fault_types"]),
         "location_step": num(q["location_step_pct"], 1),
         "fault_resistances": ", ".join(num(x, 1) for x in q["fault_resistances_ohm"]),
         "phase_fault_resistance": num(q["phase_fault_resistance_ohm"], 1),

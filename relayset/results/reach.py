@@ -10,6 +10,13 @@ import numpy as np
 from relayset.results.serialize import cplx, polar
 
 
+def fault_label(fault_type: str, labels: tuple[str, str, str] | list[str]) -> str:
+    """A fault type in the study's phase labels, e.g. "ABG" -> "L1-L2-G" (how the results
+    name fault types)."""
+    parts = [labels["ABC".index(ch)] for ch in fault_type if ch in "ABC"]
+    return "-".join(parts + (["G"] if fault_type.endswith("G") else []))
+
+
 @dataclass(frozen=True)
 class WorstCase:
     """One extreme of the reach error and the case that produced it."""

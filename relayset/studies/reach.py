@@ -27,6 +27,7 @@ from relayset.results.reach import (
     LoopSummary,
     ReachStudyResult,
     WorstCase,
+    fault_label,
 )
 from relayset.results.relay import RelayBasis
 from relayset.results.serialize import cplx
@@ -62,12 +63,6 @@ def _loop_label(loop: str, labels: tuple[str, str, str]) -> str:
     if len(ph) == 1:
         return f"{labels[ph[0]]}-G"
     return f"{labels[ph[0]]}-{labels[ph[1]]}"
-
-
-def fault_label(fault_type: str, labels: tuple[str, str, str]) -> str:
-    """A fault type in the study's phase labels, e.g. "ABG" -> "L1-L2-G"."""
-    parts = [labels["ABC".index(ch)] for ch in fault_type if ch in "ABC"]
-    return "-".join(parts + (["G"] if fault_type.endswith("G") else []))
 
 
 #: Largest number of fault cases a reach study solves (all arrangements).

@@ -43,6 +43,7 @@ from relayset.inputs.study_file import Study
 from relayset.physics import measurement, network
 from relayset.physics.arrays import unique_sorted
 from relayset.results.parameters import LineParameters
+from relayset.results.reach import fault_label
 from relayset.results.settings import SettingsResult, ZoneSetting
 from relayset.results.verification import (
     EndVerification,
@@ -52,7 +53,7 @@ from relayset.results.verification import (
     ZoneVerification,
 )
 from relayset.studies.geometry import LineGeometry
-from relayset.studies.reach import _cascade, _emfs_for_power_flows, build_source, fault_label
+from relayset.studies.reach import _cascade, _emfs_for_power_flows, build_source
 
 #: Fault location step of the verification sweep [% of the line] (common practice, no source).
 STEP_PCT = 10.0
