@@ -292,3 +292,35 @@ def test_change_sheet_keeps_the_sign_off_block_on_one_page(revisions):
         if moved >= 2:  # crossed one page break and sat at the top of the next page
             break
     assert moved >= 2
+
+
+def _all_values_check(v):
+    return next(c for c in v.checks if c.what.startswith("all ") and "values" in c.what)
+
+
+@pytest.mark.parametrize("version, passes", [(None, False), ("0.0.1", True)])
+def test_results_keys_of_another_version(archived, tmp_path, version, passes):
+    """An archive lacks a key this version's results carry (an older relayset): the key is
+    reported as new and not compared, and the values both give must still agree. A key
+    the archive has and the recomputation lacks fails when the versions are equal (the
+    same version must give the same results) and is only reported across versions."""
+    import re as re_mod
+
+    bad = tmp_path / "keys.pdf"
+
+    def edit(b: bytes) -> bytes:
+        text = b.decode("utf-8")
+        text, n = re_mod.subn(r'"zone1_allowed_by_errors_pct": [0-9.]+,\s*', "", text)
+        assert n >= 1
+        text = text.replace('"cases_solved":', '"retired_quantity_pct": 1.5, "cases_solved":', 1)
+        if version is not None:
+            text = re_mod.sub(r'"relayset_version": "[^"]*"',
+                              f'"relayset_version": "{version}"', text, count=1)
+        return text.encode("utf-8")
+
+    _edit_attachment(archived, bad, ".results.json", edit)
+    c = _all_values_check(verify_report(bad))
+    assert c.passed is passes, c.detail
+    assert "new in this version's results" in c.detail and "zone1_allowed" in c.detail
+    assert "no longer in the results" in c.detail and "retired_quantity_pct" in c.detail
+    assert "differ" not in c.detail.split(";")[0]

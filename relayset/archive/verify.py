@@ -175,11 +175,24 @@ def recompute(a: Archive) -> tuple[list[Check], str]:
     # every other number in the results: counted, the first few named
     old_l = {k: v for k, v in numeric_leaves(archived).items() if k not in IGNORED}
     new_l = {k: v for k, v in numeric_leaves(new).items() if k not in IGNORED}
-    bad = [k for k in sorted(old_l.keys() | new_l.keys())
-           if k not in old_l or k not in new_l or not close(new_l[k], old_l[k], RTOL, ATOL)]
-    checks.append(Check(f"all {len(old_l)} values of the results JSON", not bad,
-                        "all within tolerance" if not bad else
-                        f"{len(bad)} differ, e.g. " + ", ".join(bad[:3])))
+    both = sorted(old_l.keys() & new_l.keys())
+    differ = [k for k in both if not close(new_l[k], old_l[k], RTOL, ATOL)]
+    added = sorted(new_l.keys() - old_l.keys())
+    dropped = sorted(old_l.keys() - new_l.keys())
+    # A later relayset may add results (compared from then on) or change a key's form; the
+    # values both versions give must agree. The same version must give the same keys.
+    same_version = archived.get("relayset_version") == new.get("relayset_version")
+    bad = differ + (dropped if same_version else [])
+    detail = ("all within tolerance" if not differ else
+              f"{len(differ)} differ, e.g. " + ", ".join(differ[:3]))
+    if dropped:
+        detail += (f"; {len(dropped)} archived values are no longer in the results"
+                   + ("" if same_version else " of this version (not compared)")
+                   + ", e.g. " + ", ".join(dropped[:3]))
+    if added:
+        detail += (f"; {len(added)} values are new in this version's results (not in the "
+                   "archive, not compared), e.g. " + ", ".join(added[:3]))
+    checks.append(Check(f"all {len(both)} values both results give", not bad, detail))
     return checks, str(new.get("relayset_version"))
 
 
