@@ -369,11 +369,13 @@ def test_zone1_rule_names_the_recommendation_that_governs(sim, reach_pct, basis,
     assert check.passed is (reach_pct * (1 + over / 100) <= 100)
 
 
-def test_zone1_reduced_by_the_simulation_alone_is_not_called_the_reach_study():
-    """When the reach study allows the philosophy's 80 % and only the fault simulation asks
-    for less, zone 1 follows the simulation without the reach-study warning (the
-    verification warns it as zone1_limited_by_simulation)."""
-    r = compute_settings(inputs(recommended_zone1_pct=85.0, worst_overreach_pct=5.0,
+@pytest.mark.parametrize("study_rec, study_over", [(85.0, 5.0), (None, None)])
+def test_zone1_reduced_by_the_simulation_alone_is_not_called_the_reach_study(study_rec,
+                                                                             study_over):
+    """When the reach study allows the philosophy's 80 % (or there is no reach study) and
+    only the fault simulation asks for less, zone 1 follows the simulation without the
+    reach-study warning (the verification warns it as zone1_limited_by_simulation)."""
+    r = compute_settings(inputs(recommended_zone1_pct=study_rec, worst_overreach_pct=study_over,
                                 simulated_zone1_pct=72.5, simulated_overreach_pct=25.0),
                          default_philosophy())
     assert r.zone("zone1").reach_pct == 72.5

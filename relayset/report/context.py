@@ -363,6 +363,17 @@ def _worst(w: dict[str, Any] | None) -> dict[str, str] | None:
     }
 
 
+def _zone1_as_set(d: dict[str, Any], e: dict[str, Any]) -> str | None:
+    """Zone 1's rule as set at this end when its reach differs from the reach study's
+    recommendation, else None."""
+    st = next((s for s in ((d.get("settings") or {}).get("ends") or [])
+               if s["end"] == e["end"]), None)
+    if st is None:
+        return None
+    z1 = st["zones"]["zone1"]
+    return None if z1["reach_pct"] == e["recommended_zone1_pct"] else z1["rule"]
+
+
 def _reach(d: dict[str, Any]) -> dict[str, Any] | None:
     from relayset.results.reach import fault_label
 
@@ -412,6 +423,9 @@ def _reach(d: dict[str, Any]) -> dict[str, Any] | None:
             "zone1_reach": num(e["zone1_reach_pct"], 1),
             "error_budget": num(e["error_budget_pct"], 1),
             "recommended_zone1": num(e["recommended_zone1_pct"], 1),
+            # zone 1 as the settings set it, where that differs (e.g. the fault simulation
+            # limited it further), so that this section is not read as the setting
+            "zone1_as_set": _zone1_as_set(d, e),
             # the philosophy's maximum, not the overreach, sets the recommendation
             "capped": e["zone1_allowed_by_errors_pct"] > e["recommended_zone1_pct"],
             "allowed_by_errors": num(e["zone1_allowed_by_errors_pct"], 1),
@@ -429,6 +443,7 @@ def _reach(d: dict[str, Any]) -> dict[str, Any] | None:
                                   for c in q["source_cases"]),
         "transfer_angles": (None if q["transfer_angles_deg"] is None
                             else ", ".join(num(x, 1) for x in q["transfer_angles_deg"])),
+        "flows_at": q["ends"][0]["end"] if q["ends"] else "",
         "power_flows": (None if q["power_flows"] is None else ", ".join(
             f"{num(f['active_power_w'] / 1e6, 1)} MW {'+' if f['reactive_power_var'] >= 0 else '−'}"
             f" {num(abs(f['reactive_power_var']) / 1e6, 1)} Mvar" for f in q["power_flows"])),
@@ -528,6 +543,14 @@ def _settings_ends(d: dict[str, Any]) -> list[dict[str, Any]]:
     return out
 
 
+def _reported(c: dict[str, Any]) -> str | None:
+    """The sentence of a finding reported without a pass/fail limit, or None."""
+    if c.get("result") != "reported":
+        return None
+    text = str(c.get("requirement", "")).removesuffix(" (reported)")
+    return f"{text}; {c['consider']}" if c.get("consider") else text
+
+
 def _verification(r) -> dict[str, Any]:
     """The verification section: one row per relay end and check; "not verified" when the
     study has none (parameters or reach only)."""
@@ -558,10 +581,7 @@ def _verification(r) -> dict[str, Any]:
                 "fails": fails,
                 # a finding reported without a pass/fail limit (e.g. zone 3's coverage of
                 # the adjacent line at the largest infeed) is printed in full
-                "reported": (f"{c.get('requirement', '')}; {c['consider']}"
-                             if c.get("result") == "reported" and c.get("consider")
-                             else c.get("requirement") if c.get("result") == "reported"
-                             else None),
+                "reported": _reported(c),
             })
     return {"verdict": str(vd.get("verdict", NOT_VERIFIED)), "present": True, "zones": zones}
 

@@ -116,8 +116,9 @@ def zone1_target(w: RuleContext) -> tuple[complex, str, list[Check]]:
             "zone1_overreach_exceeds_margin",
             f"Zone 1 at {pct:g} % of the line may overreach past the margin of "
             f"{z1.min_margin_pct:g} % short of the remote bus",
-            "reduce zone 1 (to the reach study's recommended value if given), or allow the "
-            "automatic reduction in the philosophy",
+            (f"reduce zone 1 (to the {basis}'s recommended {rec:g} % of the line), or allow "
+             "the automatic reduction in the philosophy" if rec is not None else
+             "reduce zone 1, or allow the automatic reduction in the philosophy"),
         )
     checks = []
     if over is not None:

@@ -253,6 +253,10 @@ def run_reach_study(
         "budget + worst bolted overreach at the remote bus)/100), capped at "
         f"{zone1_max_pct:g} %, rounded down to 0.5 %.",
     ]
+    for n in names:
+        if src[n] is None:
+            notes.append(f"No source at {n}: the line is fed from the other end only; the "
+                         "load cases (transfer angles) have no effect there and repeat.")
     if rs.shunt_capacitance:
         notes.append("Line shunt capacitance included (exact distributed sections).")
     else:

@@ -172,31 +172,29 @@ def run_settings(study: Study, geo: LineGeometry, params: LineParameters, relay:
             res = compute_settings(inputs, philosophy)
         except InputError as exc:
             raise _in_study_terms(exc, source) from None
-        out.append(_warn_unfed_ends(res, end, other, src_relay is None, src_remote is None))
+        out.append(_warn_unfed_remote_end(res, other) if src_remote is None else res)
     return tuple(out)
 
 
-def _warn_unfed_ends(res: SettingsResult, end: str, other: str, relay_unfed: bool,
-                     remote_unfed: bool) -> SettingsResult:
-    """A study without a source at one end describes a line fed from the other end only
-    (an open or load-only bus). That is legitimate, but it changes every infeed, zone 2/3
-    reach and resistive-coverage result, so the settings say so."""
+def _warn_unfed_remote_end(res: SettingsResult, other: str) -> SettingsResult:
+    """A study without a source at the remote end describes a line fed from the relay end
+    only (an open or load-only bus). That is legitimate, but no remote infeed flows into the
+    fault resistance, which makes zone 1's overreach at the remote bus and every infeed-
+    dependent reach look better than with even a weak source there, so the settings say so.
+    (The relay end itself needs a source: the study file is refused without one.)"""
     from dataclasses import replace
 
     from relayset.results.settings import SettingWarning
 
-    extra = []
-    for unfed, bus, role in ((remote_unfed, other, "remote"), (relay_unfed, end, "relay")):
-        if unfed:
-            extra.append(SettingWarning(
-                f"no_source_at_{role}_end",
-                f"The study gives no source at {bus} (the {role} end): the line is treated as "
-                f"fed from one end only, {bus} open or carrying load alone; no infeed from "
-                f"{bus}, and transfer angles between the ends do not apply",
-                f"add [sources.\"{bus}\"] if the bus has any source (even a weak one changes "
-                "the infeed, zone 2 and 3 reaches and the resistive coverage)",
-            ))
-    return replace(res, warnings=(*res.warnings, *extra)) if extra else res
+    return replace(res, warnings=(*res.warnings, SettingWarning(
+        "no_source_at_remote_end",
+        f"The study gives no source at {other} (the remote end): the line is treated as fed "
+        f"from this end only, {other} open or carrying load alone; no infeed from {other}, "
+        "and transfer angles between the ends have no effect",
+        f"add [sources.\"{other}\"] if the bus has any source: even a weak one feeds the "
+        "fault resistance and so changes zone 1's overreach at the remote bus, the zone 2 "
+        "and 3 reaches and the resistive coverage",
+    )))
 
 
 #: Names of the settings inputs in the study file, for error messages.
