@@ -226,3 +226,26 @@ def test_cache_key_follows_what_the_compiled_code_depends_on(monkeypatch):
         assert text._fingerprint(env.overlay(**change)) != fp, change
     monkeypatch.setattr(jinja2, "__version__", "0.0")
     assert text._fingerprint(env) != fp
+
+
+@pytest.mark.parametrize("given, numpy_first, want", [
+    (None, False, "1"),  # unset: one BLAS thread for the command
+    ("3", False, "3"),  # the user's choice stays
+    (None, True, None),  # numpy already imported (library use): too late, left alone
+])
+def test_command_runs_with_one_blas_thread_unless_told(given, numpy_first, want):
+    """The command line sets one BLAS thread before numpy starts its pool (batched small
+    matrices gain nothing from BLAS threads; the idle pool costs a busy machine), unless the
+    user set the variable, and never once numpy is loaded."""
+    code = ("import os, sys\n"
+            + ("import numpy\n" if numpy_first else "")
+            + "from relayset.cli import main\n"
+            "try:\n    main(['--version'])\nexcept SystemExit:\n    pass\n"
+            "print(os.environ.get('OPENBLAS_NUM_THREADS'))\n")
+    env = {k: v for k, v in os.environ.items()
+           if k not in ("OPENBLAS_NUM_THREADS", "OMP_NUM_THREADS", "MKL_NUM_THREADS")}
+    if given is not None:
+        env["OPENBLAS_NUM_THREADS"] = given
+    out = subprocess.run([sys.executable, "-c", code], capture_output=True, text=True,
+                         env=env, check=False).stdout.split()
+    assert out[-1] == str(want)

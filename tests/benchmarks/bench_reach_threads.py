@@ -5,6 +5,12 @@ Two CPU-bound background processes (pure Python busy loops) load the machine; th
 environment and with ``OMP_NUM_THREADS=1 OPENBLAS_NUM_THREADS=1``. Target (issue 9): the
 two take the same time within noise (no per-matrix library call that wakes a thread pool).
 
+Figures (two busy processes, load 1.3-1.8): the warm study 16.7-17.5 ms with default threads
+and 16.6-17.8 ms with limits (equal: no per-matrix call wakes a pool); the whole process
+0.24-0.35 s against 0.17-0.21 s while numpy started its idle thread pool at import, and
+0.21-0.25 s against 0.22-0.24 s since the command line asks for one BLAS thread unless the
+user sets the variables (relayset/cli.py).
+
 Run on demand (about a minute)::
 
     python tests/benchmarks/bench_reach_threads.py
