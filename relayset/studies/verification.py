@@ -418,10 +418,13 @@ def infeed_range(sim: Simulation, end: str) -> InfeedRange | None:
         i_rel = (sw.i_s if at_s else sw.i_r)[f, k_m, k_rf]
         with np.errstate(all="ignore"):
             k = (i_f[..., 0] - i_f[..., 1]) / (i_rel[..., 0] - i_rel[..., 1])
+        # the load case by its transfer angle (S EMF leading R), also for power flows
+        delta = np.degrees(np.angle(sw.emf_s_v) - np.angle(sw.emf_r_v))  # (K, L)
         for (a, b), kv in np.ndenumerate(k):
             if np.isfinite(kv):
                 ks.append(complex(kv))
-                descr.append(f"{run.case_names[a]}, parallel {run.state}, load case {b + 1}")
+                descr.append(f"{run.case_names[a]}, parallel {run.state}, transfer angle "
+                             f"{delta[a, b]:.1f}°")
     if not ks:
         return None
     mags = np.abs(ks)
