@@ -28,6 +28,12 @@ from relayset.errors import InputError
 _GROUND_LOOPS = ("AG", "BG", "CG")
 _PHASE_LOOPS = (("AB", 0, 1), ("BC", 1, 2), ("CA", 2, 0))
 
+#: The six measuring loops, and the phases (0, 1, 2 = A, B, C) each measures.
+LOOPS = ("AG", "BG", "CG", "AB", "BC", "CA")
+LOOP_PHASES: dict[str, tuple[int, ...]] = {"AG": (0,), "BG": (1,), "CG": (2,),
+                                           "AB": (0, 1), "BC": (1, 2), "CA": (2, 0)}
+GROUND_LOOPS = frozenset(_GROUND_LOOPS)
+
 _LOOPS_FOR_FAULT: dict[str, tuple[str, ...]] = {
     "AG": ("AG",),
     "BG": ("BG",),

@@ -298,6 +298,12 @@ class FaultSweep:
     i_s_pre: np.ndarray  #: (K, L, 3) prefault circuit-1 currents at S
     i_s_parallel_pre: np.ndarray  #: (K, L, 3)
 
+    @property
+    def transfer_angle_rad(self) -> np.ndarray:
+        """(K, L) angle by which the S EMF leads the R EMF [rad], per source and load case
+        (the load case's transfer angle, also where it came from a power flow)."""
+        return np.angle(self.emf_s_v) - np.angle(self.emf_r_v)
+
 
 
 # --------------------------------------------------------------------------------------

@@ -10,6 +10,14 @@ import numpy as np
 from relayset.results.serialize import cplx, polar
 
 
+def loop_label(loop: str, labels: tuple[str, str, str] | list[str]) -> str:
+    """A measuring loop in the study's phase labels, e.g. "AG" -> "L1-G", "AB" -> "L1-L2"."""
+    from relayset.physics.measurement import LOOP_PHASES
+
+    ph = LOOP_PHASES[loop]
+    return "-".join([labels[p] for p in ph] + (["G"] if len(ph) == 1 else []))
+
+
 def fault_label(fault_type: str, labels: tuple[str, str, str] | list[str]) -> str:
     """A fault type in the study's phase labels, e.g. "ABG" -> "L1-L2-G" (how the results
     name fault types)."""

@@ -28,14 +28,14 @@ from relayset.results.reach import (
     ReachStudyResult,
     WorstCase,
     fault_label,
+    loop_label,
 )
 from relayset.results.relay import RelayBasis
 from relayset.results.serialize import cplx
 from relayset.settings.zone1 import recommended_zone1_pct
 from relayset.studies.geometry import LineGeometry
 
-LOOPS = ("AG", "BG", "CG", "AB", "BC", "CA")
-_LOOP_PHASES = {"AG": (0,), "BG": (1,), "CG": (2,), "AB": (0, 1), "BC": (1, 2), "CA": (2, 0)}
+LOOPS = measurement.LOOPS
 
 
 def build_source(study: Study, name: str, source: str) -> network.Source | None:
@@ -56,13 +56,6 @@ def build_source(study: Study, name: str, source: str) -> network.Source | None:
             z0_over_z1=None if data.fault_level_1ph is not None else data.z0_over_z1)
     except InputError as exc:
         raise exc.located(source=source, prefix=field) from None
-
-
-def _loop_label(loop: str, labels: tuple[str, str, str]) -> str:
-    ph = _LOOP_PHASES[loop]
-    if len(ph) == 1:
-        return f"{labels[ph[0]]}-G"
-    return f"{labels[ph[0]]}-{labels[ph[1]]}"
 
 
 #: Largest number of fault cases a reach study solves (all arrangements).
@@ -94,7 +87,7 @@ def _positions_at(m: float, loop: str, orders, lengths, names) -> tuple[str, ...
     edges = list(itertools.accumulate(lengths))
     s = min(bisect.bisect_left([e / total for e in edges], m - 1e-12), len(orders) - 1)
     order = list(orders[s])
-    return tuple(names[order.index(p)].split("/", 1)[-1] for p in _LOOP_PHASES[loop])
+    return tuple(names[order.index(p)].split("/", 1)[-1] for p in measurement.LOOP_PHASES[loop])
 
 
 def run_reach_study(
@@ -195,7 +188,7 @@ def run_reach_study(
     outputs = [o for e in ends for o in (("v_s", "i_s", "i_s_parallel") if e == names[0]
                                          else ("v_r", "i_r", "i_r_parallel"))]
     m_chunk = max(1, CHUNK_CASES // per_location)
-    emfs = {}
+    angles_rad = {}  # per arrangement solved: (K, L) transfer angles of its load cases
     for key, line in lines.items():
         if same_as[key] != key:
             continue
@@ -212,7 +205,7 @@ def run_reach_study(
                 for (_end, k, _mutual), cond in condensers.items():
                     if k == key:
                         cond.add(sw, start)
-                emfs[key] = (sw.emf_s_v, sw.emf_r_v)
+                angles_rad[key] = sw.transfer_angle_rad
                 del sw
         except InputError as exc:
             raise exc.located(source=source) from None
@@ -226,7 +219,7 @@ def run_reach_study(
             if not at_s:  # seen from R the plan runs backwards
                 ords, lens = ords[::-1], list(lens)[::-1]
             arrs.append(condensers[(end_name, same_as[key], mutual)].result(
-                key, same_as[key], emfs[same_as[key]], rs, labels, ords, lens,
+                key, same_as[key], angles_rad[same_as[key]], rs, labels, ords, lens,
                 geo.position_names))
         actual = arrs[0]
         worst = actual.worst_bolted_overreach_at_remote_bus_pct
@@ -431,12 +424,11 @@ class _Condenser:
 
             self._offer("reactance_over_resistive", react, True, res_idx)
 
-    def result(self, key, solved_as, emfs, rs, labels, orders, lengths,
+    def result(self, key, solved_as, angle, rs, labels, orders, lengths,
                position_names) -> ArrangementReach:
         """The condensed results, reported under arrangement name ``key``; ``solved_as`` is
-        the arrangement whose sweep they are (another name when it is the same line)."""
-        emf_s, emf_r = emfs
-        angle = np.angle(emf_s) - np.angle(emf_r)  # (K, L) transfer angles [rad]
+        the arrangement whose sweep they are (another name when it is the same line);
+        ``angle`` the (K, L) transfer angles of its cases [rad]."""
         ft_labels = [fault_label(ft, labels) for ft in self.ftypes]
 
         def case(lp, pick):
@@ -451,7 +443,7 @@ class _Condenser:
                 transfer_angle_deg=math.degrees(float(angle[k_s, k_l])),
                 positions=_positions_at(mm, lp, orders, lengths, position_names))
 
-        summaries = [LoopSummary(loop=_loop_label(lp, labels),
+        summaries = [LoopSummary(loop=loop_label(lp, labels),
                                  **{p: case(lp, p) for p in _PICKS}) for lp in LOOPS]
 
         def extreme(attr, fn):

@@ -43,7 +43,7 @@ from relayset.inputs.study_file import Study
 from relayset.physics import measurement, network
 from relayset.physics.arrays import unique_sorted
 from relayset.results.parameters import LineParameters
-from relayset.results.reach import fault_label
+from relayset.results.reach import fault_label, loop_label
 from relayset.results.settings import SettingsResult, ZoneSetting
 from relayset.results.verification import (
     EndVerification,
@@ -59,9 +59,8 @@ from relayset.studies.reach import _cascade, _emfs_for_power_flows, build_source
 STEP_PCT = 10.0
 #: Below this fraction of |Z_line| a loop impedance is left to memory polarization [1].
 _Z_SMALL = 1e-3
-LOOPS = ("AG", "BG", "CG", "AB", "BC", "CA")
-_GROUND = {"AG", "BG", "CG"}
-_LOOP_PHASES = {"AG": (0,), "BG": (1,), "CG": (2,), "AB": (0, 1), "BC": (1, 2), "CA": (2, 0)}
+LOOPS = measurement.LOOPS
+_GROUND = measurement.GROUND_LOOPS
 
 MUTUAL_REMEDY = (
     "supervise mutual compensation so that it acts only while the protected circuit's own "
@@ -342,16 +341,13 @@ def _describe(view: _View, which: np.ndarray, labels, faulted: str, rf_pairs):
         f, k_m, k_rf, k_s, k_l = idx
         j = int(which[idx])
         loop = LOOPS[j]
-        ph = _LOOP_PHASES[loop]
-        loop_label = (f"{labels[ph[0]]}-G" if len(ph) == 1
-                      else f"{labels[ph[0]]}-{labels[ph[1]]}")
-        ang = math.degrees(float(np.angle(sw.emf_s_v[k_s, k_l]) - np.angle(sw.emf_r_v[k_s, k_l])))
+        ang = math.degrees(float(sw.transfer_angle_rad[k_s, k_l]))
         return VerificationCase(
             fault_type=fault_label(sw.fault_types[f], labels), faulted=faulted,
             location_pct=float(100 * view.m_end[k_m]), r_fault_ohm=float(rf_pairs[k_rf, 0]),
             r_phase_ohm=float(rf_pairs[k_rf, 1]), source_case=run.case_names[k_s],
             transfer_angle_deg=round(ang, 6), parallel_state=run.state,
-            earth_resistivity_ohm_m=run.rho_ohm_m, loop=loop_label,
+            earth_resistivity_ohm_m=run.rho_ohm_m, loop=loop_label(loop, labels),
             z_apparent_primary_ohm=complex(view.loops[loop][idx]),
             mutual_compensation=view.mutual)
     return fn
@@ -418,8 +414,8 @@ def infeed_range(sim: Simulation, end: str) -> InfeedRange | None:
         i_rel = (sw.i_s if at_s else sw.i_r)[f, k_m, k_rf]
         with np.errstate(all="ignore"):
             k = (i_f[..., 0] - i_f[..., 1]) / (i_rel[..., 0] - i_rel[..., 1])
-        # the load case by its transfer angle (S EMF leading R), also for power flows
-        delta = np.degrees(np.angle(sw.emf_s_v) - np.angle(sw.emf_r_v))  # (K, L)
+        # the load case by its transfer angle, also for power flows
+        delta = np.degrees(sw.transfer_angle_rad)  # (K, L)
         for (a, b), kv in np.ndenumerate(k):
             if np.isfinite(kv):
                 ks.append(complex(kv))
