@@ -388,10 +388,7 @@ def _reach(d: dict[str, Any]) -> dict[str, Any] | None:
             loops = []
             for lp in a["loops"]:
                 loops.append({"loop": lp["loop"],
-                              "worst": [_worst(lp[key]) for key, _ in WORST_KEYS],
-                              # the resistive column's cases name their Rf (the others: 0)
-                              "resistive": [key.endswith("_resistive")
-                                            for key, _ in WORST_KEYS]})
+                              "worst": [_worst(lp[key]) for key, _ in WORST_KEYS]})
             title = ARRANGEMENT_TEXT.get(a["arrangement"], a["arrangement"])
             if e["k0m_set"] is not None:
                 title += (", with mutual compensation" if a["mutual_compensation"]
@@ -453,6 +450,8 @@ def _reach(d: dict[str, Any]) -> dict[str, Any] | None:
         "notes": list(q["notes"]),
         "ends": ends,
         "worst_headers": [h for _, h in WORST_KEYS],
+        # the resistive column's cases name their Rf (the others are bolted)
+        "worst_resistive": [key.endswith("_resistive") for key, _ in WORST_KEYS],
         # the cases name their transfer angle when there is more than one load case
         "several_loads": len(q["power_flows"] or q["transfer_angles_deg"]) > 1,
     }
