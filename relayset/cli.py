@@ -253,8 +253,20 @@ def _one_blas_thread() -> None:
             os.environ.setdefault(name, "1")
 
 
+def _tolerant_console() -> None:
+    """A console that cannot show a character (a cp1252 or ASCII redirect) gets a
+    replacement mark instead of stopping the command before it writes its files. Files are
+    written as UTF-8 bytes and are not affected."""
+    for stream in (sys.stdout, sys.stderr):
+        try:
+            stream.reconfigure(errors="replace")  # type: ignore[union-attr]
+        except (AttributeError, ValueError, OSError):  # not a text wrapper: leave it
+            pass
+
+
 def main(argv: Sequence[str] | None = None) -> int:
     _one_blas_thread()
+    _tolerant_console()
     args = _parser().parse_args(argv)
     from relayset.errors import InputError
 

@@ -53,3 +53,27 @@ def test_help_runs_as_a_program():
 def test_no_file_is_an_input_error(capsys):
     assert main(["params"]) == 2
     assert "give at least one study FILE" in capsys.readouterr().err
+
+
+def test_console_that_is_not_utf8_never_stops_a_command(tmp_path, demo_path):
+    """A cp1252 or ASCII console (a Windows-style redirect) once crashed `settings` and
+    `compare` with UnicodeEncodeError before they wrote their files. What the console
+    cannot show is replaced; the files are UTF-8 whatever the console."""
+    import os
+
+    study = str(demo_path("ashcombe_brenwick_132kv.toml"))
+    other = str(demo_path("kessler_oxbow_115kv.toml"))
+    for enc in ("cp1252", "ascii"):
+        env = {**os.environ, "PYTHONIOENCODING": enc}
+        out = tmp_path / enc
+        r = subprocess.run([sys.executable, "-m", "relayset.cli", "settings", study,
+                            "--json", str(out / "s.json"), "--csv", str(out / "s.csv")],
+                           capture_output=True, env=env, check=False)
+        assert r.returncode in (0, 3), r.stderr.decode(enc, "replace")
+        assert b"Traceback" not in r.stderr
+        assert b"?" in r.stdout  # the ohm sign, replaced on this console
+        assert json.loads((out / "s.json").read_bytes().decode("utf-8"))["settings"]
+        assert (out / "s.csv").read_bytes().startswith(b"\xef\xbb\xbf")  # UTF-8 with BOM
+        r = subprocess.run([sys.executable, "-m", "relayset.cli", "compare", other, study],
+                           capture_output=True, env=env, check=False)
+        assert r.returncode == 0 and b"Traceback" not in r.stderr
