@@ -399,6 +399,9 @@ class EndTransformers:
     vt_ratio: float | None = spec(_vt_ratio, None)
 
 
+SecondaryCurrent = _quantity("current", ge=0, le=50)
+
+
 @_table
 class RelayData:
     """``[relay]``: where the relay sits, its CT/VT ratios and given settings."""
@@ -411,6 +414,16 @@ class RelayData:
     k0m_set: K0Setting | None = spec(table(K0Setting), None)
     #: ``[relay.at.SUBSTATION]``: CT/VT ratios of the relay at that end, if not the above.
     at: dict[str, EndTransformers] = spec(MapOf(table(EndTransformers)), factory=dict)
+    # The relay model of the verification (relayset.studies.verification.relay_model).
+    #: loops that measure a fault: those meant for its type, or all six
+    phase_selection: str = spec(schema.one_of("faulted_loops", "all_loops"), "faulted_loops")
+    #: minimum operating current in each phase of a loop [A secondary] (common practice,
+    #: no source: 5 % of a 1 A input; lower is the stricter test in both directions)
+    min_operating_current: float = spec(SecondaryCurrent, 0.05)
+    #: residual current that releases the ground loops [A secondary] (as above)
+    ground_release_current: float = spec(SecondaryCurrent, 0.05)
+    #: mutual compensation only while the own residual current is the larger
+    mutual_compensation_supervision: bool = spec(schema.boolean, True)
 
     def ratios(self, end: str) -> tuple[float, float]:
         """(CT ratio, VT ratio) of the relay at ``end``."""

@@ -297,6 +297,10 @@ class FaultSweep:
     v_s_pre: np.ndarray  #: (K, L, 3) prefault bus S voltages
     i_s_pre: np.ndarray  #: (K, L, 3) prefault circuit-1 currents at S
     i_s_parallel_pre: np.ndarray  #: (K, L, 3)
+    #: (K, L, 3) prefault bus R voltages (the memory voltage of a relay at R)
+    v_r_pre: np.ndarray | None = None
+    #: (K, L, 3) prefault circuit-1 currents at R (into the line)
+    i_r_pre: np.ndarray | None = None
 
     @property
     def transfer_angle_rad(self) -> np.ndarray:
@@ -647,6 +651,7 @@ def solve_fault_sweep(
     fields = {k: view(res[blocks.index(k)]) if k in blocks else zeros
               for k in starts if k in wanted}
     pre0 = np.swapaxes(t[0, None, :2 * n] @ x[0, :, :, :n_l], -1, -2)  # (K, L, 2n)
+    pre_r = np.swapaxes(t[0, None, 2 * n:3 * n + 3] @ x[0, :, :, :n_l], -1, -2)  # V_R, I_R
     return FaultSweep(
         fault_types=ftypes,
         m=m,
@@ -672,6 +677,8 @@ def solve_fault_sweep(
             np.ascontiguousarray(pre0[..., n + 3:2 * n])
             if n == 6 else np.zeros((*pre0.shape[:-1], 3), dtype=complex)
         ),
+        v_r_pre=np.ascontiguousarray(pre_r[..., 0:3]),
+        i_r_pre=np.ascontiguousarray(pre_r[..., n:n + 3]),
     )
 
 

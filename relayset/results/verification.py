@@ -63,6 +63,8 @@ class ZoneVerification:
     passed: bool
     governing_case: VerificationCase | None
     consider: str = ""  #: what to do when it fails
+    #: cases left out because no loop reached the relay's release currents (sensitivity)
+    cases_below_min_current: int = 0
 
     def to_dict(self) -> dict[str, Any]:
         return {
@@ -78,6 +80,7 @@ class ZoneVerification:
             "governing_case": None if self.governing_case is None
             else self.governing_case.to_dict(),
             "consider": self.consider,
+            "cases_below_min_current": self.cases_below_min_current,
         }
 
 
@@ -138,6 +141,8 @@ class VerificationResult:
     earth_resistivities_ohm_m: tuple[float, ...]
     cases_solved: int
     notes: tuple[str, ...] = ()
+    envelope: dict[str, Any] | None = None  #: what was swept (load, resistances, rho)
+    relay_model: dict[str, Any] | None = None  #: per end, the relay the proof assumes
 
     @property
     def failures(self) -> list[tuple[str, ZoneVerification]]:
@@ -160,4 +165,6 @@ class VerificationResult:
             "cases_solved": self.cases_solved,
             "ends": [e.to_dict() for e in self.ends],
             "notes": list(self.notes),
+            "envelope": self.envelope,
+            "relay_model": self.relay_model,
         }
