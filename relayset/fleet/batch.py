@@ -78,7 +78,7 @@ def _one_line(error: str) -> str:
     from relayset.errors import MESSAGE_LIMIT, shorten
     from relayset.io import visible_text
 
-    return shorten(" ".join(visible_text(error).split()), MESSAGE_LIMIT + 40)
+    return shorten(visible_text(" ".join(error.split())), MESSAGE_LIMIT + 40)
 
 
 def _internal(label: str, exc: BaseException, what: str = "internal error") -> str:
