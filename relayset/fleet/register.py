@@ -6,9 +6,12 @@ computed now and a line skipped because its report is up to date give the same r
 
 from __future__ import annotations
 
+import functools
 import math
 from pathlib import Path
 from typing import Any
+
+from relayset.io import spreadsheet_text, visible_text
 
 #: Register columns, in order, with what each holds (the HTML index and README use these).
 COLUMNS: tuple[tuple[str, str], ...] = (
@@ -136,24 +139,34 @@ XLSX_CELL_CHARS = 32767
 def safe_value(v: Any) -> str | int | float | bool | None:
     """A register value as the register holds it: a finite number, or one line of visible
     text (:func:`relayset.io.visible_text`); anything else (NaN, inf) is empty."""
-    from relayset.io import visible_text
-
     if v is None or isinstance(v, bool | int):
         return v
     if isinstance(v, float):
         return v if math.isfinite(v) else None
-    return visible_text(str(v))
+    return visible_text(v if isinstance(v, str) else str(v))
 
 
 def safe_rows(rows: list[dict[str, Any]]) -> list[dict[str, Any]]:
     """Every row with only the register's columns, each value passed through :func:`safe_value`."""
-    return [{k: safe_value(r.get(k)) for k in NAMES} for r in rows]
+    out = []
+    for r in rows:
+        values = tuple(r.get(k) for k in NAMES)
+        try:
+            safe = _safe_values(values)
+        except TypeError:  # a value that cannot be hashed: convert without the cache
+            safe = tuple(safe_value(v) for v in values)
+        out.append(dict(zip(NAMES, safe, strict=True)))
+    return out
+
+
+@functools.lru_cache(maxsize=1 << 16)
+def _safe_values(values: tuple) -> tuple:
+    # the batch rewrites the register after every line: each row is converted once
+    return tuple(safe_value(v) for v in values)
 
 
 def _cell(v: Any) -> str:
     """A CSV cell: numbers at full precision, text visible and never a formula."""
-    from relayset.io import spreadsheet_text
-
     v = safe_value(v)
     if v is None:
         return ""
@@ -164,8 +177,6 @@ def _cell(v: Any) -> str:
 
 def _xlsx_cell(v: Any) -> str | int | float | bool | None:
     """An .xlsx cell value: numbers stay numbers, text is neutralised like the CSV's."""
-    from relayset.io import spreadsheet_text
-
     v = safe_value(v)
     if isinstance(v, str):
         v = spreadsheet_text(v)
@@ -179,11 +190,12 @@ def _xlsx_cell(v: Any) -> str | int | float | bool | None:
 def check_rows(rows: list[dict[str, Any]]) -> None:
     """Raise if a row could not be written in every register format (one line's problem,
     found before the row joins the register)."""
-    for r in rows:
+    safe = safe_rows(rows)
+    register_csv(safe).encode("utf-8")
+    for r in safe:
         for k in NAMES:
-            _cell(r.get(k)).encode("utf-8")
-            _xlsx_cell(r.get(k))
-            _fmt(safe_value(r.get(k))).encode("utf-8")
+            _xlsx_cell(r[k])
+            _fmt(r[k]).encode("utf-8")
 
 
 def register_csv(rows: list[dict[str, Any]]) -> str:
@@ -195,8 +207,17 @@ def register_csv(rows: list[dict[str, Any]]) -> str:
     w = csv.writer(buf, lineterminator="\n")
     w.writerow(NAMES)
     for r in rows:
-        w.writerow([_cell(r.get(k)) for k in NAMES])
+        values = tuple(r.get(k) for k in NAMES)
+        try:
+            w.writerow(_csv_cells(values))
+        except TypeError:  # a value that cannot be hashed: convert without the cache
+            w.writerow([_cell(v) for v in values])
     return buf.getvalue()
+
+
+@functools.lru_cache(maxsize=1 << 16)
+def _csv_cells(values: tuple) -> list[str]:
+    return [_cell(v) for v in values]
 
 
 def register_xlsx(rows: list[dict[str, Any]]) -> bytes:
@@ -274,8 +295,6 @@ def write_register(out_dir: Path, rows: list[dict[str, Any]], *, title: str,
         write_atomic(out_dir / "register.xlsx", register_xlsx(rows))
         written.append(out_dir / "register.xlsx")
     if "html" in formats:
-        from relayset.io import visible_text
-
         write_atomic(out_dir / "index.html", register_html(rows, title=visible_text(title)))
         written.append(out_dir / "index.html")
     return written
