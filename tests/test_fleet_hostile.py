@@ -92,9 +92,9 @@ def test_xlsx_text_cells_are_strings_even_unquoted(monkeypatch):
     """Second guard: were the quote lost, the .xlsx cell is still a string, not a formula."""
     from openpyxl import load_workbook
 
-    import relayset.io
+    from relayset.fleet import register
 
-    monkeypatch.setattr(relayset.io, "spreadsheet_text", lambda text: text)
+    monkeypatch.setattr(register, "spreadsheet_text", lambda text: text)
     row = failed_row("x", "=1+1")
     ws = load_workbook(io.BytesIO(register_xlsx([row]))).active
     cell = ws.cell(row=2, column=NAMES.index("error") + 1)

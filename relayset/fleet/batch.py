@@ -4,6 +4,13 @@ each line's outputs atomically as it finishes, and keep the register in step.
 Nothing is lost on interruption: every file goes to a temporary name and is renamed into place,
 a line's results JSON is written last (so a line counts as done only when all of its files are
 there), and the register on disk lists only lines whose outputs are complete.
+
+One line never stops the fleet: whatever goes wrong with it (reading, planning, computing,
+rendering, writing its files or its register row) is that line's one-line error, in the
+register and the progress, and the batch goes on. One batch at a time writes into an output
+folder (:mod:`relayset.fleet.lock`); the register lists every finished line in the folder,
+including those an earlier batch computed from another source. Pool workers end with the batch
+process, however it ends (:func:`relayset.fleet.worker.init_worker`).
 """
 
 from __future__ import annotations
