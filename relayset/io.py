@@ -5,6 +5,7 @@ from __future__ import annotations
 import json
 import math
 import os
+import re
 import tempfile
 from pathlib import Path
 from typing import Any
@@ -124,10 +125,52 @@ def rows_to_csv(rows, header=("setting", "value", "unit"), *,
     buf = _io.StringIO()
     w = csv.writer(buf, lineterminator="\r\n")
     w.writerow([*columns, *header])
+    lead_cells = [spreadsheet_text(str(c)) for c in columns.values()]
     for *lead, value, unit in rows:
-        shown = value if isinstance(value, str) else format(float(value), f".{CSV_DIGITS}g")
-        w.writerow([*columns.values(), *lead, shown, unit])
+        shown = (spreadsheet_text(value) if isinstance(value, str)
+                 else format(float(value), f".{CSV_DIGITS}g"))
+        w.writerow([*lead_cells, *(spreadsheet_text(str(c)) for c in lead), shown,
+                    spreadsheet_text(unit)])
     return buf.getvalue()
+
+
+#: Characters nobody sees or that change how the rest is shown: C0 and C1 controls and DEL,
+#: line and paragraph separators, bidirectional embeddings/overrides/isolates, and lone
+#: surrogates (how Python holds the bytes of a file name that is not UTF-8).
+_INVISIBLE = re.compile("[\x00-\x1f\x7f-\x9f\u2028\u2029\u202a-\u202e\u2066-\u2069"
+                        "\ud800-\udfff]")
+
+#: A cell starting with one of these is read as a formula by spreadsheet programs (OWASP,
+#: "CSV Injection"); tab and carriage return because some programs strip them first.
+FORMULA_START = ("=", "+", "-", "@", "\t", "\r")
+
+
+def _escape(m: re.Match) -> str:
+    c = ord(m.group(0))
+    if 0xDC80 <= c <= 0xDCFF:  # a byte of a non-UTF-8 file name: show that byte
+        return f"\\x{c - 0xDC00:02x}"
+    return f"\\x{c:02x}" if c < 0x100 else f"\\u{c:04x}"
+
+
+def visible_text(text: str) -> str:
+    """``text`` with every invisible or display-changing character written out.
+
+    Controls (tab, line feed and carriage return included) become ``\\xNN``, separators and
+    bidirectional controls ``\\uNNNN``, and a byte of a non-UTF-8 file name ``\\xNN`` (that
+    byte). The result is one line of printable text that encodes as UTF-8.
+    """
+    return _INVISIBLE.sub(_escape, text)
+
+
+def spreadsheet_text(text: str) -> str:
+    """User text for a spreadsheet cell (CSV or .xlsx): visible, and never a formula.
+
+    A leading ``= + - @`` (or tab / carriage return) gets a single quote in front, so that a
+    spreadsheet program shows the text rather than evaluating it (OWASP CSV-injection
+    guidance). Only text goes through here: numbers stay numbers.
+    """
+    text = visible_text(text)
+    return "'" + text if text.startswith(FORMULA_START) else text
 
 
 #: UTF-8 with a byte-order mark: spreadsheet programs then read it as UTF-8 (Ω, °).

@@ -46,7 +46,7 @@ def run_pool(tasks: Sequence[Task], workers: int) -> Iterator[Outcome]:
     # spawn: fresh interpreters, so the thread limits apply before numpy loads
     ctx = multiprocessing.get_context("spawn")
     pool = ProcessPoolExecutor(max_workers=workers, mp_context=ctx, initializer=init_worker,
-                               initargs=(report,))
+                               initargs=(report, os.getpid()))  # workers end with this process
     finished = False
     try:
         futures = {pool.submit(compute_line, *t): t for t in tasks}

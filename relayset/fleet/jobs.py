@@ -146,22 +146,36 @@ def _xlsx_table(path: Path) -> list[list[object]]:
         wb.close()
 
 
+def _path_problem(text: str, base: Path) -> tuple[Path | None, str | None]:
+    """The path a register cell names (relative to the register's folder), or why it names
+    none: a cell is hostile text, so every way a path can fail is that row's error."""
+    if "\x00" in text:
+        return None, "is not a usable file name (it contains a NUL character)"
+    try:
+        q = Path(text).expanduser()
+    except RuntimeError:  # "~someone" with no such user, or no home folder
+        return None, "names the home folder of a user that does not exist here"
+    q = q if q.is_absolute() else base / q
+    try:
+        return (q, None) if q.is_file() else (q, "file does not exist")
+    except (OSError, ValueError) as exc:  # a name too long for the file system, ...
+        return None, f"is not a usable file name ({getattr(exc, 'strerror', None) or exc})"
+
+
 def _row_job(register: Path, n: int, row: dict[str, str]) -> Job:
     label = f"{register}: row {n}"
     base = register.parent
-
-    def resolve(text: str) -> Path:
-        q = Path(text).expanduser()
-        return q if q.is_absolute() else base / q
 
     study = row.get("study", "")
     if not study:
         return Job(label, register, error=InputError("is empty", field="study",
                                                      source=label))
-    path = resolve(study)
-    if not path.is_file():
-        return Job(label, path, error=InputError("study file does not exist", field="study",
-                                                 value=study, source=label))
+    path, problem = _path_problem(study, base)
+    if problem is not None:
+        rule = "study file does not exist" if problem == "file does not exist" else problem
+        return Job(label, path or register, error=InputError(rule, field="study", value=study,
+                                                             source=label))
+    assert path is not None
     status = row.get("status") or None
     if status is not None and status not in STATUSES:
         return Job(label, path, error=InputError(
@@ -170,11 +184,13 @@ def _row_job(register: Path, n: int, row: dict[str, str]) -> Job:
     phil_text = row.get("philosophy") or None
     philosophy = None
     if phil_text is not None:
-        philosophy = resolve(phil_text).resolve()
-        if not philosophy.is_file():
-            return Job(label, path, error=InputError(
-                "philosophy file does not exist", field="philosophy", value=phil_text,
-                source=label))
+        phil, problem = _path_problem(phil_text, base)
+        if problem is not None or phil is None:
+            rule = ("philosophy file does not exist" if problem == "file does not exist"
+                    else str(problem))
+            return Job(label, path, error=InputError(rule, field="philosophy", value=phil_text,
+                                                     source=label))
+        philosophy = phil.resolve()
     return Job(label, path, status=status, philosophy=philosophy)
 
 
@@ -199,14 +215,26 @@ def plan_job(job: Job, out_dir: Path) -> PlannedJob:
     if job.status is None and job.philosophy is None:
         return PlannedJob(job, job.path, None, hashlib.sha256(data).hexdigest(), stem)
     target = out_dir / "studies" / f"{stem}.toml"
-    text = effective_study_text(data.decode("utf-8"), job.path.parent.resolve(), target.parent,
-                                status=job.status, philosophy=job.philosophy)
-    eff = text.encode("utf-8")
+    # the same decoding as the study reader: UTF-8 with an optional byte-order mark
+    try:
+        text = effective_study_text(data.decode("utf-8-sig"), job.path.parent.resolve(),
+                                    target.parent, status=job.status,
+                                    philosophy=job.philosophy)
+    except InputError as exc:
+        raise exc.located(source=src) from None
+    try:
+        eff = text.encode("utf-8")
+    except UnicodeEncodeError:  # a folder or file name that is not UTF-8
+        raise InputError("a path the register's override writes into the study copy is not "
+                         "UTF-8 text (rename the file or folder)", field="philosophy",
+                         source=job.label) from None
     return PlannedJob(job, target, eff, hashlib.sha256(eff).hexdigest(), stem)
 
 
 def _toml_str(value: str) -> str:
-    return '"' + value.replace("\\", "\\\\").replace('"', '\\"') + '"'
+    """A TOML basic string (controls written as \\uXXXX escapes, which TOML requires)."""
+    body = value.replace("\\", "\\\\").replace('"', '\\"')
+    return '"' + re.sub(r"[\x00-\x1f\x7f]", lambda m: f"\\u{ord(m.group(0)):04x}", body) + '"'
 
 
 def effective_study_text(text: str, study_dir: Path, new_dir: Path, *,
@@ -236,15 +264,15 @@ def effective_study_text(text: str, study_dir: Path, new_dir: Path, *,
         keys["philosophy"] = moved(old_phil)
 
     lines = text.splitlines(keepends=True)
-    head = next((i for i, ln in enumerate(lines) if re.match(r"\s*\[study\]\s*(#.*)?$", ln)),
-                None)
+    table = re.compile(r"""\s*\[\s*(study|"study"|'study')\s*\]\s*(#.*)?$""")  # key quoted or not
+    head = next((i for i, ln in enumerate(lines) if table.match(ln)), None)
     if head is None:
         lines.append("\n[study]\n")
         head = len(lines) - 1
     end = next((i for i in range(head + 1, len(lines)) if re.match(r"\s*\[", lines[i])),
                len(lines))
     for key, value in keys.items():
-        pat = re.compile(rf"\s*{key}\s*=")
+        pat = re.compile(rf"""\s*({key}|"{key}"|'{key}')\s*=""")  # bare or quoted key
         hit = next((i for i in range(head + 1, end) if pat.match(lines[i])), None)
         new = f"{key} = {_toml_str(value)}  # set by the line register\n"
         if hit is None:
@@ -254,16 +282,30 @@ def effective_study_text(text: str, study_dir: Path, new_dir: Path, *,
             lines[hit] = new
     out = "".join(lines)
     # adjacent / behind line studies named by a relative path
-    out = re.sub(r'(\bstudy\s*=\s*)"([^"\n]+)"',
+    out = re.sub(r"""((?:\bstudy|"study"|'study')\s*=\s*)"([^"\n]+)(")""",
                  lambda m: m.group(1) + _toml_str(moved(m.group(2))), out)
-    after = tomllib.loads(out)
+    try:
+        after = tomllib.loads(out)
+    except tomllib.TOMLDecodeError:  # the textual edit met a layout it does not handle
+        after = None
     expect = dict(before.get("study") or {})
     expect.update(keys)
-    if after.get("study") != expect or {k: v for k, v in after.items()
-                                        if k not in ("study", "adjacent_lines",
-                                                     "lines_behind")} != {
-            k: v for k, v in before.items() if k not in ("study", "adjacent_lines",
-                                                         "lines_behind")}:
+    # the proof: the study table as intended, everything else equal, and every line study
+    # still naming the same file from its new folder
+    if (after is None or after.get("study") != expect
+            or _line_studies_at(after, new_dir) != _line_studies_at(before, study_dir)):
         raise InputError("the register's overrides could not be applied to this study's text",
                          field="study", source=str(study_dir))
+    return out
+
+
+def _line_studies_at(tables: dict, folder: Path) -> dict:
+    """``tables`` without [study], with each line study's path made absolute from ``folder``."""
+    out = {k: v for k, v in tables.items() if k != "study"}
+    for key in ("adjacent_lines", "lines_behind"):
+        entries = out.get(key)
+        if isinstance(entries, list):
+            out[key] = [dict(e, study=os.path.normpath(folder / e["study"]))
+                        if isinstance(e, dict) and isinstance(e.get("study"), str) else e
+                        for e in entries]
     return out

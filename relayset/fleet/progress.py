@@ -74,6 +74,9 @@ class Progress:
 
     def finished(self, name: str, error: str | None = None) -> None:
         """One line finished (``error`` set when it failed)."""
+        from relayset.io import visible_text  # a file name may hold controls or odd bytes
+
+        name, error = visible_text(name), None if error is None else visible_text(error)
         self.done += 1
         self._clear()
         if error is not None:
@@ -89,6 +92,9 @@ class Progress:
 
     def message(self, text: str) -> None:
         """A line of text that does not disturb the status line."""
+        from relayset.io import visible_text
+
+        text = visible_text(text)
         self._clear()
         self.stream.write(text + "\n")
         self.stream.flush()

@@ -6,9 +6,12 @@ computed now and a line skipped because its report is up to date give the same r
 
 from __future__ import annotations
 
+import functools
 import math
 from pathlib import Path
 from typing import Any
+
+from relayset.io import spreadsheet_text, visible_text
 
 #: Register columns, in order, with what each holds (the HTML index and README use these).
 COLUMNS: tuple[tuple[str, str], ...] = (
@@ -129,12 +132,70 @@ def failed_row(label: str, error: str, study_file: str | None = None) -> dict[st
     return row
 
 
+#: Longest text in an .xlsx cell [characters] (the file format's limit).
+XLSX_CELL_CHARS = 32767
+
+
+def safe_value(v: Any) -> str | int | float | bool | None:
+    """A register value as the register holds it: a finite number, or one line of visible
+    text (:func:`relayset.io.visible_text`); anything else (NaN, inf) is empty."""
+    if v is None or isinstance(v, bool | int):
+        return v
+    if isinstance(v, float):
+        return v if math.isfinite(v) else None
+    return visible_text(v if isinstance(v, str) else str(v))
+
+
+def safe_rows(rows: list[dict[str, Any]]) -> list[dict[str, Any]]:
+    """Every row with only the register's columns, each value passed through :func:`safe_value`."""
+    out = []
+    for r in rows:
+        values = tuple(r.get(k) for k in NAMES)
+        try:
+            safe = _safe_values(values)
+        except TypeError:  # a value that cannot be hashed: convert without the cache
+            safe = tuple(safe_value(v) for v in values)
+        out.append(dict(zip(NAMES, safe, strict=True)))
+    return out
+
+
+@functools.lru_cache(maxsize=1 << 16)
+def _safe_values(values: tuple) -> tuple:
+    # the batch rewrites the register after every line: each row is converted once
+    return tuple(safe_value(v) for v in values)
+
+
 def _cell(v: Any) -> str:
+    """A CSV cell: numbers at full precision, text visible and never a formula."""
+    v = safe_value(v)
     if v is None:
         return ""
-    if isinstance(v, float):
-        return repr(v) if math.isfinite(v) else ""
-    return str(v)
+    if isinstance(v, bool | int | float):
+        return repr(v)
+    return spreadsheet_text(v)
+
+
+def _xlsx_cell(v: Any) -> str | int | float | bool | None:
+    """An .xlsx cell value: numbers stay numbers, text is neutralised like the CSV's."""
+    v = safe_value(v)
+    if isinstance(v, str):
+        v = spreadsheet_text(v)
+        if len(v) > XLSX_CELL_CHARS:
+            from relayset.errors import shorten
+
+            v = shorten(v, XLSX_CELL_CHARS)
+    return v
+
+
+def check_rows(rows: list[dict[str, Any]]) -> None:
+    """Raise if a row could not be written in every register format (one line's problem,
+    found before the row joins the register)."""
+    safe = safe_rows(rows)
+    register_csv(safe).encode("utf-8")
+    for r in safe:
+        for k in NAMES:
+            _xlsx_cell(r[k])
+            _fmt(r[k]).encode("utf-8")
 
 
 def register_csv(rows: list[dict[str, Any]]) -> str:
@@ -146,12 +207,25 @@ def register_csv(rows: list[dict[str, Any]]) -> str:
     w = csv.writer(buf, lineterminator="\n")
     w.writerow(NAMES)
     for r in rows:
-        w.writerow([_cell(r.get(k)) for k in NAMES])
+        values = tuple(r.get(k) for k in NAMES)
+        try:
+            w.writerow(_csv_cells(values))
+        except TypeError:  # a value that cannot be hashed: convert without the cache
+            w.writerow([_cell(v) for v in values])
     return buf.getvalue()
 
 
+@functools.lru_cache(maxsize=1 << 16)
+def _csv_cells(values: tuple) -> list[str]:
+    return [_cell(v) for v in values]
+
+
 def register_xlsx(rows: list[dict[str, Any]]) -> bytes:
-    """The register as an .xlsx workbook (sheet "register", header row frozen)."""
+    """The register as an .xlsx workbook (sheet "register", header row frozen).
+
+    Text cells are written with the string data type, so no user text is ever a formula
+    (and a leading ``= + - @`` is quoted as in the CSV).
+    """
     import io
 
     from openpyxl import Workbook
@@ -160,8 +234,14 @@ def register_xlsx(rows: list[dict[str, Any]]) -> bytes:
     ws = wb.active
     ws.title = "register"
     ws.append(list(NAMES))
-    for r in rows:
-        ws.append([r.get(k) for k in NAMES])
+    for i, r in enumerate(rows, start=2):
+        for j, k in enumerate(NAMES, start=1):
+            v = _xlsx_cell(r.get(k))
+            if v is None:
+                continue
+            cell = ws.cell(row=i, column=j, value=v)
+            if isinstance(v, str):
+                cell.data_type = "s"  # openpyxl would take "=..." for a formula
     ws.freeze_panes = "A2"
     buf = io.BytesIO()
     wb.save(buf)
@@ -196,12 +276,17 @@ def register_html(rows: list[dict[str, Any]], *, title: str, skipped: int = 0) -
 
 def write_register(out_dir: Path, rows: list[dict[str, Any]], *, title: str,
                    formats: tuple[str, ...] = ("csv", "xlsx", "html")) -> list[Path]:
-    """Write the register beside the reports (atomically) and return the paths written."""
+    """Write the register beside the reports (atomically) and return the paths written.
+
+    User text is made visible in every format (:func:`safe_value`) and neutralised in the
+    spreadsheets (:func:`relayset.io.spreadsheet_text`); the HTML escapes markup.
+    """
     from relayset.io import write_atomic
 
-    rows = sorted(rows, key=lambda r: (r.get("error") is not None, str(r.get("line_id")),
-                                       str(r.get("revision")), str(r.get("end")),
-                                       str(r.get("study_file"))))
+    rows = sorted(safe_rows(rows),
+                  key=lambda r: (r.get("error") is not None, str(r.get("line_id")),
+                                 str(r.get("revision")), str(r.get("end")),
+                                 str(r.get("study_file"))))
     written = []
     if "csv" in formats:
         write_atomic(out_dir / "register.csv", register_csv(rows))
@@ -210,6 +295,6 @@ def write_register(out_dir: Path, rows: list[dict[str, Any]], *, title: str,
         write_atomic(out_dir / "register.xlsx", register_xlsx(rows))
         written.append(out_dir / "register.xlsx")
     if "html" in formats:
-        write_atomic(out_dir / "index.html", register_html(rows, title=title))
+        write_atomic(out_dir / "index.html", register_html(rows, title=visible_text(title)))
         written.append(out_dir / "index.html")
     return written

@@ -14,6 +14,7 @@ report renderer) once per process, and the pool reuses its processes for every l
 from __future__ import annotations
 
 import os
+import sys
 import time
 from dataclasses import dataclass, field
 from pathlib import Path
@@ -40,15 +41,66 @@ class Outcome:
         return self.error is None
 
 
-def init_worker(report: bool = False) -> None:
-    """Process-pool initializer: one BLAS thread per process, then the imports, once.
+#: How often a pool worker checks that the batch process is still there [s].
+PARENT_POLL_S = 0.5
+#: Linux prctl option: the signal a process gets when its parent ends.
+_PR_SET_PDEATHSIG = 1
+
+_parent_pid: int | None = None  # the batch process of this pool worker
+
+
+def parent_gone() -> bool:
+    """Whether this pool worker's batch process has ended (never for the batch itself)."""
+    return _parent_pid is not None and os.getppid() != _parent_pid
+
+
+def _end_with_parent(parent_pid: int) -> None:
+    """End this worker when the batch process ends, however it ends (even SIGKILL).
+
+    On Linux the kernel sends SIGKILL when the parent dies (prctl PR_SET_PDEATHSIG); on every
+    system a daemon thread also polls the parent process id, which changes when the parent is
+    gone (the worker is re-parented). Nothing is then left half-written: a line's files are
+    renamed into place whole, and a killed worker leaves at most hidden temporary files.
+    """
+    global _parent_pid
+    import signal
+    import threading
+
+    _parent_pid = parent_pid
+    if sys.platform.startswith("linux"):
+        try:
+            import ctypes
+
+            libc = ctypes.CDLL(None, use_errno=True)
+            libc.prctl(_PR_SET_PDEATHSIG, int(signal.SIGKILL), 0, 0, 0)
+        except (OSError, AttributeError):  # no prctl here: the thread below still watches
+            pass
+    if parent_gone():  # the parent ended before the kernel was told to watch it
+        os._exit(1)
+
+    def watch() -> None:
+        while not parent_gone():
+            time.sleep(PARENT_POLL_S)
+        os._exit(1)
+
+    threading.Thread(target=watch, name="relayset-parent-watch", daemon=True).start()
+
+
+def init_worker(report: bool = False, parent_pid: int | None = None) -> None:
+    """Process-pool initializer: end with the batch, one BLAS thread per process, then the
+    imports, once.
 
     Parameters
     ----------
     report : bool
         Import the report renderer (and WeasyPrint) too.
+    parent_pid : int, optional
+        Process id of the batch: the worker ends when that process ends.
     """
     import importlib
+
+    if parent_pid is not None:
+        _end_with_parent(parent_pid)
 
     for k, v in SINGLE_THREAD_ENV.items():
         os.environ.setdefault(k, v)
@@ -106,6 +158,8 @@ def compute_line(index: int, study_path: str, stem: str, report: bool = True,
     from relayset.io import to_json
     from relayset.studies import pipeline
 
+    if parent_gone():  # nobody to hand the line to: start nothing new
+        os._exit(1)
     t0 = time.perf_counter()
     try:
         results = pipeline.run(Path(study_path), reach=True, settings=True)
