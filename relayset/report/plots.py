@@ -302,19 +302,15 @@ def _clip(poly: list[complex], n: complex, c: float) -> list[complex]:
     return out
 
 
-def quad_outline(x_reach: float, r_reach: float, angle_rad: float,
-                 forward: bool = True) -> list[complex]:
-    """Corners of the quadrilateral as drawn: reactance line, two blinders parallel to the
-    line angle, directional line through the origin (the shape documented in
-    :func:`relayset.physics.zones.quad_contains`)."""
-    big = 10 * (abs(x_reach) + abs(r_reach) + 1)
-    poly = [complex(-big, -big), complex(big, -big), complex(big, big), complex(-big, big)]
-    s, c = math.sin(angle_rad), math.cos(angle_rad)
-    poly = _clip(poly, 1j, x_reach)  # X <= Xr
-    poly = _clip(poly, complex(s, -c), r_reach * s)  # right blinder
-    poly = _clip(poly, complex(-s, c), r_reach * s)  # left blinder
-    poly = _clip(poly, complex(-c, -s), 0.0)  # directional: Re(Z e^-jθ) >= 0
-    return poly if forward else [-z for z in poly]
+def _region_shape(region: dict[str, Any]) -> tuple[str, Any, list[complex]]:
+    """A zone's neutral geometry (``region_primary_ohm`` of the settings JSON, written by
+    :meth:`relayset.physics.characteristic.Mho.region` / ``Quadrilateral.region``) as
+    (kind, geometry to draw, points the frame must hold)."""
+    if region["kind"] == "circle":
+        centre, radius = complex(*region["center"]), float(region["radius"])
+        return "circle", (centre, radius), [centre + radius * 1j ** a for a in range(4)]
+    poly = [complex(r, x) for r, x in region["vertices"]]
+    return "poly", poly, poly
 
 
 def _governing_cases(verification: dict[str, Any] | None, end: str) -> list[dict[str, Any]]:
@@ -335,24 +331,21 @@ def rx_svg(end: dict[str, Any], verification: dict[str, Any] | None = None) -> s
     """R-X diagram (primary ohms) of one relay end: zones as set, line replica, load region
     (both power directions) and the verification's governing fault cases."""
     s = end["settings_dict"]
-    theta = math.radians(s["line"]["angle_deg"])
     zl = complex(*s["line"]["z1_primary_ohm"])
     shapes: list[tuple[str, list[complex] | tuple[complex, float], dict[str, Any], str]] = []
     pts: list[complex] = [0j, zl]
     for k, (_, z) in enumerate(s["zones"].items()):
-        if z["shape"] == "mho":
-            dia = z["mho_diameter_primary_ohm"]
-            centre = 0.5 * dia * cmath.exp(1j * math.radians(z["char_angle_deg"]))
-            shapes.append(("circle", (centre, 0.5 * abs(dia)), _style(k, 1.2),
-                           f"{z['label']} (mho)"))
-            pts += [centre + 0.5 * abs(dia) * cmath.exp(1j * a * math.pi / 2) for a in range(4)]
+        regions = z["region_primary_ohm"]
+        if z["shape"] == "mho":  # one circle for phase and ground loops
+            kind, geo, frame = _region_shape(regions["phase_loops"])
+            shapes.append((kind, geo, _style(k, 1.2), f"{z['label']} (mho)"))
+            pts += frame
         else:
-            fwd = z["direction"] == "forward"
-            for rkey, width, lab in (("r_reach_phase_primary_ohm", 1.3, "phase loops"),
-                                     ("r_reach_ground_primary_ohm", 0.6, "ground loops")):
-                poly = quad_outline(z["x_reach_primary_ohm"], z[rkey], theta, fwd)
-                shapes.append(("poly", poly, _style(k, width), f"{z['label']}, {lab}"))
-                pts += poly
+            for key, width, lab in (("phase_loops", 1.3, "phase loops"),
+                                    ("ground_loops", 0.6, "ground loops")):
+                kind, geo, frame = _region_shape(regions[key])
+                shapes.append((kind, geo, _style(k, width), f"{z['label']}, {lab}"))
+                pts += frame
     cases = _governing_cases(verification, s["end"])
     zmin = s["load"]["z_min_primary_ohm"]
     phi = math.radians(s["load"]["load_angle_max_deg"])
