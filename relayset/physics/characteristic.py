@@ -12,10 +12,10 @@ Two shapes (IEEE Std C37.113-2015 [1]_, distance-element characteristics):
 - :class:`Quadrilateral`: a reactance line, two resistive blinders parallel to the line angle
   and a directional line through the origin.
 
-Both answer the same questions: :meth:`~Mho.contains` (operates or not),
-:meth:`~Mho.reach_scale` (how far the forward reach would have to be scaled for a point to
-sit on the boundary), :meth:`~Mho.reach_along` (reach along a ray), :meth:`~Mho.outline`
-(points to draw) and :meth:`~Mho.region` (neutral JSON geometry).
+Both answer the same questions (:class:`Characteristic`): ``contains`` (operates or not),
+``reach_scale`` (by how much the forward reach alone would have to be scaled for a point to
+sit on the boundary), ``reach_along`` (reach along a ray), ``outline`` (points to draw) and
+``region`` (neutral JSON geometry).
 
 Direction: a zone looks "forward" (into the protected line) or "reverse" (behind the relay).
 Points on the boundary count as inside, with a rounding allowance of
@@ -56,14 +56,104 @@ def _direction(direction: str) -> None:
         raise ValueError(f"direction must be 'forward' or 'reverse', not {direction}")
 
 
+class Characteristic:
+    """What both shapes answer: the interface the settings, verification and report use.
+
+    Subclasses give ``direction`` and the private ``_contains``, ``_reach_scale`` and
+    ``_reach_along`` on numpy arrays, and ``outline`` and ``region``.
+    """
+
+    direction: str
+
+    def contains(self, z: complex | np.ndarray) -> np.ndarray:
+        """Whether impedances lie inside (or on) the characteristic.
+
+        Parameters
+        ----------
+        z : complex or array
+            Impedances to test [ohm].
+
+        Returns
+        -------
+        ndarray of bool
+        """
+        return self._contains(np.asarray(z, dtype=complex))
+
+    def reach_scale(self, z: complex | np.ndarray) -> np.ndarray:
+        """Scale s of the forward reach alone (mho diameter, quadrilateral reactive reach) at
+        which each impedance sits on the boundary; blinders and directional line kept.
+
+        s <= 1 exactly where :meth:`contains` (away from the rounding allowance); ``inf``
+        where no scale reaches the point (behind the zone, outside its blinders) and for a
+        non-finite Z. The formulas are on each shape.
+
+        Parameters
+        ----------
+        z : complex or array
+            Impedances to bring onto the boundary [ohm].
+
+        Returns
+        -------
+        ndarray
+            Reach scale [1].
+        """
+        z = np.asarray(z, dtype=complex)
+        with np.errstate(all="ignore"):
+            s = self._reach_scale(z)
+        return np.where(np.isfinite(z), s, np.inf)
+
+    def reach_along(self, angle_rad: float | np.ndarray) -> np.ndarray:
+        """Distance from the origin to the boundary along rays.
+
+        Parameters
+        ----------
+        angle_rad : float or array
+            Ray angle ψ in the impedance plane [rad] (a reverse zone's rays point behind the
+            relay).
+
+        Returns
+        -------
+        ndarray
+            Reach along each ray [ohm]; 0 for rays that never enter the zone.
+        """
+        return self._reach_along(np.asarray(angle_rad, dtype=float))
+
+    def outline(self, n: int = 72) -> np.ndarray:
+        """Points of the boundary, counter-clockwise, for drawing [ohm]: the corners of a
+        polygon, ``n`` points of a circle."""
+        raise NotImplementedError
+
+    def region(self) -> dict[str, Any]:
+        """Neutral JSON geometry [ohm]: ``{"kind": "polygon", "vertices": [[R, X], ...]}``
+        (corners counter-clockwise) or ``{"kind": "circle", "center": [R, X], "radius": r}``.
+        """
+        raise NotImplementedError
+
+    def _contains(self, z: np.ndarray) -> np.ndarray:
+        raise NotImplementedError
+
+    def _reach_scale(self, z: np.ndarray) -> np.ndarray:
+        raise NotImplementedError
+
+    def _reach_along(self, psi: np.ndarray) -> np.ndarray:
+        raise NotImplementedError
+
+
 @dataclass(frozen=True)
-class Mho:
+class Mho(Characteristic):
     r"""Self-polarised mho circle through the origin [1]_.
 
     The diameter from the origin has length D at the characteristic angle φ:
 
     .. math:: \left|Z - \tfrac{D}{2}e^{j\varphi}\right| \le \tfrac{D}{2}
               \iff |Z|^2 \le D\,\mathrm{Re}\left(Z e^{-j\varphi}\right)
+
+    Reach scale (diameter scaled), 0 at the origin (on every circle), ``inf`` on or behind
+    the tangent at the origin:
+
+    .. math:: s = \frac{|Z|^2}{D\,\mathrm{Re}(Z e^{-j\varphi})}
+
+    Reach along a ray at ψ (the chord from the origin): :math:`\max(D\cos(\psi-\varphi), 0)`.
 
     A self-polarised mho is directional by itself: it looks where its diameter points. The
     angle is therefore the diameter's own angle as the zone looks (the settings'
@@ -96,7 +186,7 @@ class Mho:
 
     @property
     def center_ohm(self) -> complex:
-        """Centre of the circle, :math:`\\tfrac{D}{2}e^{j\\varphi}` [ohm]."""
+        """Centre of the circle, :math:`\tfrac{D}{2}e^{j\varphi}` [ohm]."""
         return 0.5 * self.diameter_ohm * cmath.exp(1j * self.angle_rad)
 
     @property
@@ -104,89 +194,32 @@ class Mho:
         """Radius D/2 [ohm]."""
         return 0.5 * self.diameter_ohm
 
-    def contains(self, z: complex | np.ndarray) -> np.ndarray:
-        """Whether impedances lie inside (or on) the circle.
-
-        Parameters
-        ----------
-        z : complex or array
-            Impedances [ohm].
-
-        Returns
-        -------
-        ndarray of bool
-        """
+    def _contains(self, z: np.ndarray) -> np.ndarray:
         d = np.asarray(self.diameter_ohm, dtype=float)
         centre = 0.5 * d * np.exp(1j * np.asarray(self.angle_rad, dtype=float))
-        return np.abs(np.asarray(z, dtype=complex) - centre) <= 0.5 * d + _tol(d)
+        return np.abs(z - centre) <= 0.5 * d + _tol(d)
 
-    def reach_scale(self, z: complex | np.ndarray) -> np.ndarray:
-        r"""Scale s of the diameter at which the circle passes through each impedance.
+    def _reach_scale(self, z: np.ndarray) -> np.ndarray:
+        proj = (z * cmath.exp(-1j * self.angle_rad)).real
+        return np.where(proj > 0, np.abs(z) ** 2 / (self.diameter_ohm * proj),
+                        np.where(z == 0, 0.0, np.inf))
 
-        .. math:: s = \frac{|Z|^2}{D\,\mathrm{Re}(Z e^{-j\varphi})}
-
-        s <= 1 exactly where :meth:`contains` (away from the rounding allowance); 0 at the
-        origin (on every circle); ``inf`` where no diameter reaches the point (on or behind
-        the circle's tangent at the origin, or a non-finite Z).
-
-        Parameters
-        ----------
-        z : complex or array
-            Impedances [ohm].
-
-        Returns
-        -------
-        ndarray
-            Reach scale [1].
-        """
-        z = np.asarray(z, dtype=complex)
-        with np.errstate(all="ignore"):
-            proj = (z * cmath.exp(-1j * self.angle_rad)).real
-            s = np.where(proj > 0, np.abs(z) ** 2 / (self.diameter_ohm * proj),
-                         np.where(z == 0, 0.0, np.inf))  # the origin is on every circle
-        return np.where(np.isfinite(z), s, np.inf)
-
-    def reach_along(self, angle_rad: float | np.ndarray) -> np.ndarray:
-        r"""Distance from the origin to the circle along rays, :math:`\max(D\cos(\psi-\varphi), 0)`.
-
-        Parameters
-        ----------
-        angle_rad : float or array
-            Ray angle ψ in the impedance plane [rad].
-
-        Returns
-        -------
-        ndarray
-            Reach along each ray [ohm].
-        """
+    def _reach_along(self, psi: np.ndarray) -> np.ndarray:
         d = np.asarray(self.diameter_ohm, dtype=float)
-        return np.maximum(d * np.cos(np.asarray(angle_rad) - np.asarray(self.angle_rad)), 0.0)
+        return np.maximum(d * np.cos(psi - np.asarray(self.angle_rad)), 0.0)
 
     def outline(self, n: int = 72) -> np.ndarray:
-        """``n`` points evenly round the circle, counter-clockwise, for drawing.
-
-        Parameters
-        ----------
-        n : int
-            Number of points [1], >= 3.
-
-        Returns
-        -------
-        (n,) complex ndarray
-            Points on the circle [ohm].
-        """
         t = 2 * np.pi * np.arange(n) / n
         return self.center_ohm + self.radius_ohm * np.exp(1j * t)
 
     def region(self) -> dict[str, Any]:
-        """Neutral JSON geometry: ``{"kind": "circle", "center": [R, X], "radius": r}`` [ohm]."""
         c = self.center_ohm
         return {"kind": "circle", "center": [float(c.real), float(c.imag)],
                 "radius": float(self.radius_ohm)}
 
 
 @dataclass(frozen=True)
-class Quadrilateral:
+class Quadrilateral(Characteristic):
     r"""Quadrilateral characteristic [1]_: four half-planes :math:`n\cdot Z \le c`.
 
     Forward-looking, with θ the line (blinder) angle and τ the reactance-line tilt:
@@ -206,6 +239,16 @@ class Quadrilateral:
       angle: :math:`R\sin\delta - X\cos\delta \le 0`. By default δ = θ − π/2
       (perpendicular to the line angle), i.e. :math:`\mathrm{Re}(Z e^{-j\theta}) \ge 0`.
 
+    Reach scale (reactance line moved parallel to itself through :math:`(0, sX_{reach})`),
+    between the blinders and on the operating side of the directional line, ``inf`` elsewhere:
+
+    .. math:: s = \frac{\max(R\sin\tau + X\cos\tau,\ 0)}{X_{reach}\cos\tau}
+              = \frac{\max(X + R\tan\tau,\ 0)}{X_{reach}}
+
+    (τ = 0: :math:`\max(X, 0)/X_{reach}`). Reach along a ray of unit vector u: for each
+    half-plane with :math:`n\cdot u > 0` the ray leaves at :math:`c/(n\cdot u)`; the
+    smallest of these.
+
     A reverse-looking zone is the point reflection of the forward one through the origin,
     :math:`Z \to -Z`.
 
@@ -222,7 +265,7 @@ class Quadrilateral:
     direction : {"forward", "reverse"}
         The side the zone looks to.
     tilt_rad : float, optional
-        Reactance-line tilt τ [rad], |τ| < π/2 and θ + τ < π; 0 = horizontal.
+        Reactance-line tilt τ [rad], |τ| < π/2 and 0 < θ + τ < π; 0 = horizontal.
     directional_angle_rad : float, optional
         Angle δ of the directional line [rad], 0 < θ − δ < π; default θ − π/2.
     """
@@ -280,8 +323,7 @@ class Quadrilateral:
             (dx, dy, 0.0),  # directional line through the origin
         )
 
-    def _forward(self, z: complex | np.ndarray) -> np.ndarray:
-        z = np.asarray(z, dtype=complex)
+    def _forward(self, z: np.ndarray) -> np.ndarray:
         return -z if self.direction == REVERSE else z
 
     @staticmethod
@@ -291,69 +333,17 @@ class Quadrilateral:
             inside &= nx * z.real + ny * z.imag <= c + _tol(c)
         return inside
 
-    def contains(self, z: complex | np.ndarray) -> np.ndarray:
-        """Whether impedances lie inside (or on) the quadrilateral.
-
-        Parameters
-        ----------
-        z : complex or array
-            Impedances [ohm].
-
-        Returns
-        -------
-        ndarray of bool
-        """
+    def _contains(self, z: np.ndarray) -> np.ndarray:
         return self._within(self._forward(z), self.halfplanes())
 
-    def reach_scale(self, z: complex | np.ndarray) -> np.ndarray:
-        r"""Scale s of the reactive reach at which the reactance line passes through each Z.
-
-        Blinders and directional line kept; the reactance line moved parallel to itself to
-        pass through :math:`(0, s X_{reach})`:
-
-        .. math:: s = \frac{\max(R\sin\tau + X\cos\tau,\ 0)}{X_{reach}\cos\tau}
-                  = \frac{\max(X + R\tan\tau,\ 0)}{X_{reach}}
-
-        (τ = 0: :math:`\max(X, 0)/X_{reach}`) between the blinders and on the operating side
-        of the directional line, ``inf`` elsewhere and for non-finite Z. s <= 1 exactly where
-        :meth:`contains` (away from the rounding allowance).
-
-        Parameters
-        ----------
-        z : complex or array
-            Impedances [ohm] (of the reverse zone as measured: reflected here).
-
-        Returns
-        -------
-        ndarray
-            Reach scale [1].
-        """
+    def _reach_scale(self, z: np.ndarray) -> np.ndarray:
         z = self._forward(z)
         (nx, ny, c), *sides = self.halfplanes()
-        with np.errstate(all="ignore"):
-            s = np.where(self._within(z, sides),
-                         np.maximum(nx * z.real + ny * z.imag, 0.0) / c, np.inf)
-        return np.where(np.isfinite(z), s, np.inf)
+        return np.where(self._within(z, sides),
+                        np.maximum(nx * z.real + ny * z.imag, 0.0) / c, np.inf)
 
-    def reach_along(self, angle_rad: float | np.ndarray) -> np.ndarray:
-        r"""Distance from the origin to the boundary along rays.
-
-        For each half-plane :math:`n\cdot Z \le c` with :math:`n\cdot u > 0` (u the ray's unit
-        vector) the ray leaves at :math:`c / (n\cdot u)`; the reach is the smallest of these.
-
-        Parameters
-        ----------
-        angle_rad : float or array
-            Ray angle ψ in the impedance plane [rad] (a reverse zone's rays point behind the
-            relay).
-
-        Returns
-        -------
-        ndarray
-            Reach along each ray [ohm] (0 for rays behind the directional line).
-        """
-        psi = np.asarray(angle_rad, dtype=float) + (0.0 if self.direction == FORWARD
-                                                    else np.pi)
+    def _reach_along(self, psi: np.ndarray) -> np.ndarray:
+        psi = psi + (0.0 if self.direction == FORWARD else np.pi)
         ux, uy = np.cos(psi), np.sin(psi)
         reach = np.full(psi.shape, np.inf)
         for nx, ny, c in self.halfplanes():
@@ -363,20 +353,10 @@ class Quadrilateral:
             reach = np.minimum(reach, t)
         return reach
 
-    def outline(self, n: int = 0) -> np.ndarray:
-        """The corners, counter-clockwise (straight edges need no more points).
-
-        Parameters
-        ----------
-        n : int
-            Ignored (the points of a curved outline; kept for one interface with :class:`Mho`).
-
-        Returns
-        -------
-        (k,) complex ndarray
-            Corner impedances [ohm] (four for the usual shape, three where the tilted
-            reactance line meets the directional line inside the blinders).
-        """
+    def outline(self, n: int = 72) -> np.ndarray:
+        """The corners [ohm], counter-clockwise from the right end of the directional line:
+        four, or three where a tilted reactance line meets the directional line inside the
+        blinders (``n`` is for curved outlines; straight edges need no more points)."""
         planes = self.halfplanes()
         corners = []
         for a in range(len(planes)):
@@ -398,11 +378,6 @@ class Quadrilateral:
         return -pts if self.direction == REVERSE else pts
 
     def region(self) -> dict[str, Any]:
-        """Neutral JSON geometry: ``{"kind": "polygon", "vertices": [[R, X], ...]}`` [ohm],
-        the corners counter-clockwise as in :meth:`outline`."""
         return {"kind": "polygon",
                 "vertices": [[float(v.real), float(v.imag)] for v in self.outline()]}
 
-
-#: Either shape: they share one interface.
-Characteristic = Mho | Quadrilateral
