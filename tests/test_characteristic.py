@@ -99,6 +99,14 @@ def test_reach_scale_behind_or_outside_the_blinders_is_inf():
     assert np.all(np.isinf(m.reach_scale([-5 - 5j, complex(math.inf, 0)])))
 
 
+@pytest.mark.parametrize("char", _quads() + _mhos(), ids=repr)
+def test_origin_is_inside_at_every_scale(char):
+    # Definition: every boundary passes through (or encloses) the origin, so it is inside
+    # and any positive scale reaches it: s = 0, in both shapes alike.
+    assert char.contains(0j)
+    assert float(char.reach_scale(0j)) == 0.0
+
+
 def test_reach_scale_for_zero_tilt_is_the_verification_definition():
     # The formulas of relayset.studies.verification's module notes, written out:
     # s_mho = |Z|^2 / (D Re(Z e^{-j phi})), s_quad = Im Z / X_reach (inside the blinders,

@@ -332,19 +332,22 @@ def rx_svg(end: dict[str, Any], verification: dict[str, Any] | None = None) -> s
     (both power directions) and the verification's governing fault cases."""
     s = end["settings_dict"]
     zl = complex(*s["line"]["z1_primary_ohm"])
-    shapes: list[tuple[str, list[complex] | tuple[complex, float], dict[str, Any], str]] = []
+    # (kind, geometry, style, legend label, data attributes naming the zone and its loops)
+    shapes: list[tuple[str, Any, dict[str, Any], str, dict[str, str]]] = []
     pts: list[complex] = [0j, zl]
-    for k, (_, z) in enumerate(s["zones"].items()):
+    for k, (name, z) in enumerate(s["zones"].items()):
         regions = z["region_primary_ohm"]
         if z["shape"] == "mho":  # one circle for phase and ground loops
             kind, geo, frame = _region_shape(regions["phase_loops"])
-            shapes.append((kind, geo, _style(k, 1.2), f"{z['label']} (mho)"))
+            shapes.append((kind, geo, _style(k, 1.2), f"{z['label']} (mho)",
+                           {"data_zone": name, "data_loops": "phase_loops ground_loops"}))
             pts += frame
         else:
             for key, width, lab in (("phase_loops", 1.3, "phase loops"),
                                     ("ground_loops", 0.6, "ground loops")):
                 kind, geo, frame = _region_shape(regions[key])
-                shapes.append((kind, geo, _style(k, width), f"{z['label']}, {lab}"))
+                shapes.append((kind, geo, _style(k, width), f"{z['label']}, {lab}",
+                               {"data_zone": name, "data_loops": key}))
                 pts += frame
     cases = _governing_cases(verification, s["end"])
     zmin = s["load"]["z_min_primary_ohm"]
@@ -417,13 +420,13 @@ def rx_svg(end: dict[str, Any], verification: dict[str, Any] | None = None) -> s
     svg.add("text", "X, primary [Ω]", x="10", y=f(top + ph / 2), font_size=f(FS),
             text_anchor="middle", fill="#000", transform=f"rotate(-90 10 {f(top + ph / 2)})")
     # Zones (clipped to the frame by construction: the frame holds every zone).
-    for kind, geo, style, _ in shapes:
+    for kind, geo, style, _, data in shapes:
         if kind == "circle":
             centre, radius = geo
             svg.add("circle", cx=f(R(centre.real)), cy=f(X(centre.imag)), r=f(radius * sc),
-                    **style)
+                    **style, **data)
         else:
-            svg.polyline([pt(q) for q in geo], closed=True, **style)
+            svg.polyline([pt(q) for q in geo], closed=True, **style, **data)
     x1, y1 = pt(zl)
     svg.add("path", d=f"M{f(R(0))} {f(X(0))}L{f(x1)} {f(y1)}", stroke="#000",
             stroke_width="2.4", data_role="line-replica")
@@ -440,7 +443,7 @@ def rx_svg(end: dict[str, Any], verification: dict[str, Any] | None = None) -> s
         svg.text(cx + 5, cy - 4, str(n), FS_SMALL, fill="#000", font_weight="bold")
     svg.close()
     # Legend, three entries a row, then one row per governing case.
-    entries = [(label, style) for _, _, style, label in shapes]
+    entries = [(label, style) for _, _, style, label, _ in shapes]
     y = top + ph + 38
     items: list[tuple[str, Any]] = [*entries, ("line replica Z1", "replica"),
                                     (f"load region (|Z| ≥ {_n(zmin, 1)} Ω, "
