@@ -95,7 +95,7 @@ class ZoneSetting:
     def reach_scale(self, z_primary_ohm: complex | np.ndarray, line_angle_rad: float
                     ) -> np.ndarray:
         """Reach scale [1] of primary impedances [ohm] for whichever kind of loop (phase or
-        ground) reaches them first (:meth:`Mho.reach_scale`, :meth:`Quadrilateral.reach_scale`).
+        ground) reaches them first (``Characteristic.reach_scale``).
         """
         return np.minimum(self.characteristic(False, line_angle_rad).reach_scale(z_primary_ohm),
                           self.characteristic(True, line_angle_rad).reach_scale(z_primary_ohm))
