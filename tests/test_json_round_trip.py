@@ -66,6 +66,9 @@ _UNITS = ("_km", "_m", "_mm", "_ohm", "_ohm_per_km", "_pct", "_deg", "_hz", "_kv
 def _unitless_numbers(d, path="") -> list[str]:
     """Keys holding numbers whose name carries no unit and that are not dimensionless."""
     bad = []
+    if isinstance(d, dict) and d.get("kind") in ("polygon", "circle") and any(
+            part.endswith(_UNITS) for part in path.split(".")):
+        return bad  # neutral geometry (README "Settings"): a key holding it carries the unit
     if isinstance(d, dict):
         for k, v in d.items():
             num = isinstance(v, int | float) and not isinstance(v, bool)
@@ -255,12 +258,35 @@ def test_reach_json_round_trip(tmp_path, demo_path, demo):
 def _zone_keys(shape: str) -> set[str]:
     base = {"direction", "rule", "reach_primary_ohm", "reach_primary_magnitude_ohm",
             "reach_secondary_ohm", "reach_secondary_magnitude_ohm", "reach_angle_deg",
-            "reach_pct", "delay_s", "shape", "infeed_factor", "checks"}
+            "reach_pct", "delay_s", "shape", "infeed_factor", "checks", "region_primary_ohm"}
     if shape == "mho":
         return base | {"char_angle_deg", "mho_diameter_primary_ohm",
                        "mho_diameter_secondary_ohm"}
     return base | {"x_reach_primary_ohm", "x_reach_secondary_ohm",
                    "r_reach_phase_primary_ohm", "r_reach_ground_primary_ohm"}
+
+
+def _region_round_trip(j, z, theta):
+    """README "Settings": the zone as set, for phase and ground loops, as plain geometry any
+    program can test points against: a circle (centre, radius) or a polygon of corners."""
+    assert set(j) == {"phase_loops", "ground_loops"}
+    for key, ground in (("phase_loops", False), ("ground_loops", True)):
+        g, char = j[key], z.characteristic(ground, theta)
+        if z.shape == "mho":
+            assert set(g) == {"kind", "center", "radius"} and g["kind"] == "circle"
+            # centre D/2 at the characteristic angle, radius D/2 (hand geometry)
+            _close(_c(g["center"]), cmath.rect(z.mho_diameter_primary_ohm / 2, z.char_angle_rad))
+            _close(g["radius"], z.mho_diameter_primary_ohm / 2)
+            continue
+        assert set(g) == {"kind", "vertices"} and g["kind"] == "polygon"
+        v = np.array([_c(p) for p in g["vertices"]])
+        _close(v, char.outline())
+        # corners are inside the zone as set and on its boundary: a step outward leaves it
+        assert np.all(z.contains(v, theta)) and np.all(char.contains(v))
+        assert not np.any(char.contains(v + 1e-7 * (v - v.mean())))
+        # the reactance line of an untilted quadrilateral: two corners at X = x_reach
+        top = v.imag.max() if z.direction == "forward" else -v.imag.min()
+        _close(top, z.x_reach_primary_ohm)
 
 
 @pytest.mark.parametrize("demo", [DEMO_1C, DEMO_2C])
@@ -305,6 +331,7 @@ def test_settings_json_round_trip(tmp_path, demo_path, demo):
             if z.shape == "mho":
                 _close(jz["char_angle_deg"], math.degrees(z.char_angle_rad))
                 _close(jz["mho_diameter_primary_ohm"], z.mho_diameter_primary_ohm)
+            _region_round_trip(jz["region_primary_ohm"], z, s.line_angle_rad)
             assert [c["check_id"] for c in jz["checks"]] == [c.check_id for c in z.checks]
         # k0 in the same form as parameters.circuits[].k0 (README "Settings")
         assert set(j["k0"]) == {"k0", "k0_complex", "kr", "kx", "z0_over_z1"}

@@ -356,6 +356,36 @@ def test_figures_are_svg_that_plot_the_results(demo_reports):
         assert _role(root, "shield-wires").get("d").count("M") == len(shields)
 
 
+def test_rx_diagram_draws_the_zones_as_set(demo_reports):
+    """Each zone of the R-X diagram, read back through the tick labels, is the zone's
+    region_primary_ohm of the results JSON (the characteristic as set): the corners of a
+    quadrilateral per loop kind, the centre and radius of a mho circle."""
+    for r in demo_reports[1].values():
+        d = json.loads(r.json)
+        figs = _svgs(r.html)
+        for end in d["settings"]["ends"]:
+            root = figs[f"R-X diagram, relay at {end['end']}"]
+            ar, kr = _axis(_role(root, "ticks-r"), "x")
+            ax, kx = _axis(_role(root, "ticks-x"), "y")
+            tol = 0.015 / abs(kr)  # the 0.01-unit rounding of the coordinates, in ohm
+            drawn = [e for e in root.iter() if e.get("data-zone")]
+            assert {e.get("data-zone") for e in drawn} == set(end["zones"])
+            for e in drawn:
+                zone = end["zones"][e.get("data-zone")]
+                for loops in e.get("data-loops").split():
+                    g = zone["region_primary_ohm"][loops]
+                    if g["kind"] == "circle":
+                        assert e.tag == SVG_NS + "circle"
+                        assert_allclose([(float(e.get("cx")) - ar) / kr,
+                                         (float(e.get("cy")) - ax) / kx], g["center"],
+                                        rtol=0, atol=tol)
+                        assert_allclose(float(e.get("r")) / kr, g["radius"], rtol=0, atol=tol)
+                    else:
+                        xy = np.array(_numbers(e.get("d"))).reshape(-1, 2)
+                        ohm = np.column_stack([(xy[:, 0] - ar) / kr, (xy[:, 1] - ax) / kx])
+                        assert_allclose(ohm, g["vertices"], rtol=0, atol=tol)
+
+
 def test_figures_are_deterministic_and_escaped():
     """Same results, same bytes; a label with markup stays text (xml.etree reads it back)."""
     from relayset.report import plots

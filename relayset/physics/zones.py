@@ -1,8 +1,9 @@
-r"""Distance-zone physics: arc resistance, impedance conversion, relay characteristics, SIR.
+r"""Distance-zone physics: arc resistance, impedance conversion, mho sizing, SIR, infeed.
 
 Everything is SI and per phase in the positive-sequence impedance plane (the plane in which a
 distance relay compares its measured impedance with its characteristic). Functions broadcast
-over numpy arrays.
+over numpy arrays. The characteristics themselves (mho, quadrilateral) are the objects of
+:mod:`relayset.physics.characteristic`.
 
 References
 ----------
@@ -15,8 +16,6 @@ References
 from __future__ import annotations
 
 import numpy as np
-
-from relayset.physics.arrays import unique_sorted
 
 # Warrington's formula [1] in its published units: R = 8750 (s + 3 v t) / I^1.4 ohm with
 # s [ft], v [mph], t [s], I [A]. In SI, s [m] = 0.3048 s [ft] and v [m/s] = 0.44704 v [mph]:
@@ -120,64 +119,6 @@ def min_load_impedance_ohm(
     return np.asarray(v_min_ll_v, dtype=float) ** 2 / np.asarray(s_max_va, dtype=float)
 
 
-def _tol(scale: np.ndarray) -> np.ndarray:
-    # Points on the boundary count as inside, with a rounding allowance.
-    return 1e-12 * np.maximum(np.abs(scale), 1.0)
-
-
-def mho_contains(
-    z_point: complex | np.ndarray, z_reach: float | np.ndarray, char_angle_rad: float | np.ndarray
-) -> np.ndarray:
-    r"""Whether impedances lie inside (or on) a self-polarised mho circle.
-
-    The circle passes through the origin; its diameter has length ``z_reach`` at angle
-    ``char_angle_rad``:
-
-    .. math:: \left|Z - \tfrac{D}{2}e^{j\theta}\right| \le \tfrac{D}{2}
-
-    A reverse-looking mho uses :math:`\theta + \pi`.
-
-    Parameters
-    ----------
-    z_point : complex or array
-        Impedances to test [ohm].
-    z_reach : float or array
-        Diameter magnitude D [ohm], >= 0.
-    char_angle_rad : float or array
-        Characteristic (diameter) angle θ [rad].
-
-    Returns
-    -------
-    ndarray of bool
-    """
-    d = np.asarray(z_reach, dtype=float)
-    centre = 0.5 * d * np.exp(1j * np.asarray(char_angle_rad, dtype=float))
-    return np.abs(np.asarray(z_point, dtype=complex) - centre) <= 0.5 * d + _tol(d)
-
-
-def mho_reach_along_ohm(
-    z_reach: float | np.ndarray,
-    char_angle_rad: float | np.ndarray,
-    ray_angle_rad: float | np.ndarray,
-) -> np.ndarray:
-    r"""Distance from the origin to a mho circle along a ray, :math:`\max(D\cos(\psi-\theta), 0)`.
-
-    Parameters
-    ----------
-    z_reach : float or array
-        Diameter D [ohm].
-    char_angle_rad, ray_angle_rad : float or array
-        Characteristic angle θ and ray angle ψ [rad].
-
-    Returns
-    -------
-    ndarray
-        Reach along the ray [ohm].
-    """
-    d = np.asarray(z_reach, dtype=float)
-    return np.maximum(d * np.cos(np.asarray(ray_angle_rad) - np.asarray(char_angle_rad)), 0.0)
-
-
 def mho_diameter_for_point_ohm(
     z_target: complex | np.ndarray, char_angle_rad: float | np.ndarray
 ) -> np.ndarray:
@@ -202,149 +143,6 @@ def mho_diameter_for_point_ohm(
     if np.any(c <= 1e-9):
         raise ValueError("the target impedance is 90 degrees or more away from the mho angle")
     return np.abs(z) / c
-
-
-def _quad_halfplanes(
-    x_reach: np.ndarray, r_reach: np.ndarray, line_angle_rad: np.ndarray, r_left: np.ndarray
-) -> list[tuple[np.ndarray, np.ndarray, np.ndarray]]:
-    """Half-planes ``nx·R + ny·X <= c`` of the forward quadrilateral (c >= 0)."""
-    s, co = np.sin(line_angle_rad), np.cos(line_angle_rad)
-    zero, one = np.zeros_like(s), np.ones_like(s)
-    return [
-        (zero, one, x_reach),  # reactance line X <= X_reach
-        (s, -co, r_reach * s),  # right blinder through (R_reach, 0), parallel to the line
-        (-s, co, r_left * s),  # left blinder through (-R_left, 0), parallel to the line
-        (-co, -s, zero),  # directional line through 0, perpendicular to the line angle
-    ]
-
-
-def quad_contains(
-    z_point: complex | np.ndarray,
-    x_reach: float | np.ndarray,
-    r_reach: float | np.ndarray,
-    line_angle_rad: float | np.ndarray,
-    r_left_ohm: float | np.ndarray | None = None,
-    forward: bool = True,
-) -> np.ndarray:
-    r"""Whether impedances lie inside (or on) a simple quadrilateral characteristic.
-
-    The shape (forward-looking; a reverse one is its point reflection through the origin,
-    :math:`Z \to -Z`) is the intersection of four half-planes, with θ the line angle:
-
-    - reactance line: :math:`X \le X_{reach}` (horizontal);
-    - right resistive blinder through :math:`(R_{reach}, 0)`, parallel to the line angle:
-      :math:`R\sin\theta - X\cos\theta \le R_{reach}\sin\theta`;
-    - left blinder through :math:`(-R_{left}, 0)`, parallel to the line angle;
-    - directional boundary through the origin, perpendicular to the line angle:
-      :math:`\mathrm{Re}(Z e^{-j\theta}) \ge 0`.
-
-    Parameters
-    ----------
-    z_point : complex or array
-        Impedances to test [ohm].
-    x_reach : float or array
-        Reactive reach [ohm], > 0.
-    r_reach : float or array
-        Right resistive reach (blinder offset on the R axis) [ohm], > 0.
-    line_angle_rad : float or array
-        Line (blinder) angle θ [rad], 0 < θ <= π/2.
-    r_left_ohm : float or array, optional
-        Left blinder offset [ohm]; defaults to ``r_reach``.
-    forward : bool, optional
-        False for a reverse-looking zone.
-
-    Returns
-    -------
-    ndarray of bool
-    """
-    z = np.asarray(z_point, dtype=complex)
-    if not forward:
-        z = -z
-    xr = np.asarray(x_reach, dtype=float)
-    rr = np.asarray(r_reach, dtype=float)
-    rl = rr if r_left_ohm is None else np.asarray(r_left_ohm, dtype=float)
-    inside = np.ones(np.broadcast_shapes(z.shape, xr.shape, rr.shape, rl.shape), dtype=bool)
-    for nx, ny, c in _quad_halfplanes(xr, rr, np.asarray(line_angle_rad, dtype=float), rl):
-        inside &= nx * z.real + ny * z.imag <= c + _tol(c)
-    return inside
-
-
-def quad_vertices_ohm(
-    x_reach: float,
-    r_reach: float,
-    line_angle_rad: float,
-    r_left_ohm: float | None = None,
-    forward: bool = True,
-) -> np.ndarray:
-    """Corners of the quadrilateral of :func:`quad_contains`, counter-clockwise.
-
-    Parameters
-    ----------
-    x_reach, r_reach, line_angle_rad, r_left_ohm, forward
-        As in :func:`quad_contains` (scalars) [ohm, ohm, rad, ohm, -].
-
-    Returns
-    -------
-    (n,) complex ndarray
-        Corner impedances [ohm] (four for the usual shape).
-    """
-    rl = r_reach if r_left_ohm is None else r_left_ohm
-    planes = _quad_halfplanes(*(np.asarray(v, dtype=float) for v in
-                                (x_reach, r_reach, line_angle_rad, rl)))
-    corners = []
-    for a in range(len(planes)):
-        for b in range(a + 1, len(planes)):
-            m = np.array([[planes[a][0], planes[a][1]], [planes[b][0], planes[b][1]]], float)
-            if abs(np.linalg.det(m)) < 1e-12:
-                continue
-            rx = np.linalg.solve(m, np.array([planes[a][2], planes[b][2]], float))
-            z = complex(rx[0], rx[1])
-            # Keep only crossings that are corners of the shape (inside every half-plane).
-            if bool(quad_contains(z, x_reach, r_reach, line_angle_rad, rl)):
-                corners.append(z)
-    pts = unique_sorted(np.round(np.array(corners), 12))
-    centre = pts.mean()
-    pts = pts[np.argsort(np.angle(pts - centre))]
-    return pts if forward else -pts
-
-
-def quad_reach_along_ohm(
-    x_reach: float | np.ndarray,
-    r_reach: float | np.ndarray,
-    line_angle_rad: float | np.ndarray,
-    ray_angle_rad: float | np.ndarray,
-    r_left_ohm: float | np.ndarray | None = None,
-    forward: bool = True,
-) -> np.ndarray:
-    r"""Distance from the origin to the quadrilateral of :func:`quad_contains` along a ray.
-
-    For each half-plane :math:`n\cdot Z \le c` with :math:`n\cdot u > 0` (u the ray's unit
-    vector) the ray leaves at :math:`c / (n\cdot u)`; the reach is the smallest of these.
-
-    Parameters
-    ----------
-    x_reach, r_reach, line_angle_rad, r_left_ohm, forward
-        As in :func:`quad_contains` [ohm, ohm, rad, ohm, -].
-    ray_angle_rad : float or array
-        Ray angle ψ [rad].
-
-    Returns
-    -------
-    ndarray
-        Reach along the ray [ohm] (``inf`` if the ray never leaves the shape).
-    """
-    psi = np.asarray(ray_angle_rad, dtype=float) + (0.0 if forward else np.pi)
-    ux, uy = np.cos(psi), np.sin(psi)
-    xr = np.asarray(x_reach, dtype=float)
-    rr = np.asarray(r_reach, dtype=float)
-    rl = rr if r_left_ohm is None else np.asarray(r_left_ohm, dtype=float)
-    reach = np.full(np.broadcast_shapes(psi.shape, xr.shape, rr.shape, rl.shape), np.inf)
-    for nx, ny, c in _quad_halfplanes(xr, rr, np.asarray(line_angle_rad, dtype=float), rl):
-        nu = nx * ux + ny * uy
-        with np.errstate(divide="ignore", invalid="ignore"):
-            t = np.where(nu > 1e-12, c / np.where(nu > 1e-12, nu, 1.0), np.inf)
-        reach = np.minimum(reach, t)
-    return reach
 
 
 def sir(z_source_ohm: complex | np.ndarray, z_line_ohm: complex | np.ndarray) -> np.ndarray:

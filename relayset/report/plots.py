@@ -302,19 +302,15 @@ def _clip(poly: list[complex], n: complex, c: float) -> list[complex]:
     return out
 
 
-def quad_outline(x_reach: float, r_reach: float, angle_rad: float,
-                 forward: bool = True) -> list[complex]:
-    """Corners of the quadrilateral as drawn: reactance line, two blinders parallel to the
-    line angle, directional line through the origin (the shape documented in
-    :func:`relayset.physics.zones.quad_contains`)."""
-    big = 10 * (abs(x_reach) + abs(r_reach) + 1)
-    poly = [complex(-big, -big), complex(big, -big), complex(big, big), complex(-big, big)]
-    s, c = math.sin(angle_rad), math.cos(angle_rad)
-    poly = _clip(poly, 1j, x_reach)  # X <= Xr
-    poly = _clip(poly, complex(s, -c), r_reach * s)  # right blinder
-    poly = _clip(poly, complex(-s, c), r_reach * s)  # left blinder
-    poly = _clip(poly, complex(-c, -s), 0.0)  # directional: Re(Z e^-jθ) >= 0
-    return poly if forward else [-z for z in poly]
+def _region_shape(region: dict[str, Any]) -> tuple[str, Any, list[complex]]:
+    """A zone's neutral geometry (``region_primary_ohm`` of the settings JSON, written by
+    :meth:`relayset.physics.characteristic.Mho.region` / ``Quadrilateral.region``) as
+    (kind, geometry to draw, points the frame must hold)."""
+    if region["kind"] == "circle":
+        centre, radius = complex(*region["center"]), float(region["radius"])
+        return "circle", (centre, radius), [centre + radius * 1j ** a for a in range(4)]
+    poly = [complex(r, x) for r, x in region["vertices"]]
+    return "poly", poly, poly
 
 
 def _governing_cases(verification: dict[str, Any] | None, end: str) -> list[dict[str, Any]]:
@@ -335,24 +331,24 @@ def rx_svg(end: dict[str, Any], verification: dict[str, Any] | None = None) -> s
     """R-X diagram (primary ohms) of one relay end: zones as set, line replica, load region
     (both power directions) and the verification's governing fault cases."""
     s = end["settings_dict"]
-    theta = math.radians(s["line"]["angle_deg"])
     zl = complex(*s["line"]["z1_primary_ohm"])
-    shapes: list[tuple[str, list[complex] | tuple[complex, float], dict[str, Any], str]] = []
+    # (kind, geometry, style, legend label, data attributes naming the zone and its loops)
+    shapes: list[tuple[str, Any, dict[str, Any], str, dict[str, str]]] = []
     pts: list[complex] = [0j, zl]
-    for k, (_, z) in enumerate(s["zones"].items()):
-        if z["shape"] == "mho":
-            dia = z["mho_diameter_primary_ohm"]
-            centre = 0.5 * dia * cmath.exp(1j * math.radians(z["char_angle_deg"]))
-            shapes.append(("circle", (centre, 0.5 * abs(dia)), _style(k, 1.2),
-                           f"{z['label']} (mho)"))
-            pts += [centre + 0.5 * abs(dia) * cmath.exp(1j * a * math.pi / 2) for a in range(4)]
+    for k, (name, z) in enumerate(s["zones"].items()):
+        regions = z["region_primary_ohm"]
+        if z["shape"] == "mho":  # one circle for phase and ground loops
+            kind, geo, frame = _region_shape(regions["phase_loops"])
+            shapes.append((kind, geo, _style(k, 1.2), f"{z['label']} (mho)",
+                           {"data_zone": name, "data_loops": "phase_loops ground_loops"}))
+            pts += frame
         else:
-            fwd = z["direction"] == "forward"
-            for rkey, width, lab in (("r_reach_phase_primary_ohm", 1.3, "phase loops"),
-                                     ("r_reach_ground_primary_ohm", 0.6, "ground loops")):
-                poly = quad_outline(z["x_reach_primary_ohm"], z[rkey], theta, fwd)
-                shapes.append(("poly", poly, _style(k, width), f"{z['label']}, {lab}"))
-                pts += poly
+            for key, width, lab in (("phase_loops", 1.3, "phase loops"),
+                                    ("ground_loops", 0.6, "ground loops")):
+                kind, geo, frame = _region_shape(regions[key])
+                shapes.append((kind, geo, _style(k, width), f"{z['label']}, {lab}",
+                               {"data_zone": name, "data_loops": key}))
+                pts += frame
     cases = _governing_cases(verification, s["end"])
     zmin = s["load"]["z_min_primary_ohm"]
     phi = math.radians(s["load"]["load_angle_max_deg"])
@@ -424,13 +420,13 @@ def rx_svg(end: dict[str, Any], verification: dict[str, Any] | None = None) -> s
     svg.add("text", "X, primary [Ω]", x="10", y=f(top + ph / 2), font_size=f(FS),
             text_anchor="middle", fill="#000", transform=f"rotate(-90 10 {f(top + ph / 2)})")
     # Zones (clipped to the frame by construction: the frame holds every zone).
-    for kind, geo, style, _ in shapes:
+    for kind, geo, style, _, data in shapes:
         if kind == "circle":
             centre, radius = geo
             svg.add("circle", cx=f(R(centre.real)), cy=f(X(centre.imag)), r=f(radius * sc),
-                    **style)
+                    **style, **data)
         else:
-            svg.polyline([pt(q) for q in geo], closed=True, **style)
+            svg.polyline([pt(q) for q in geo], closed=True, **style, **data)
     x1, y1 = pt(zl)
     svg.add("path", d=f"M{f(R(0))} {f(X(0))}L{f(x1)} {f(y1)}", stroke="#000",
             stroke_width="2.4", data_role="line-replica")
@@ -447,7 +443,7 @@ def rx_svg(end: dict[str, Any], verification: dict[str, Any] | None = None) -> s
         svg.text(cx + 5, cy - 4, str(n), FS_SMALL, fill="#000", font_weight="bold")
     svg.close()
     # Legend, three entries a row, then one row per governing case.
-    entries = [(label, style) for _, _, style, label in shapes]
+    entries = [(label, style) for _, _, style, label, _ in shapes]
     y = top + ph + 38
     items: list[tuple[str, Any]] = [*entries, ("line replica Z1", "replica"),
                                     (f"load region (|Z| ≥ {_n(zmin, 1)} Ω, "

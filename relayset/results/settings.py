@@ -9,7 +9,7 @@ from typing import Any
 
 import numpy as np
 
-from relayset.physics import zones as zp
+from relayset.physics.characteristic import Characteristic, Mho, Quadrilateral
 from relayset.results.parameters import K0
 from relayset.results.serialize import PER_KM, cplx, polar
 
@@ -62,17 +62,48 @@ class ZoneSetting:
     load_reach_pct_of_min: float
     checks: tuple[Check, ...] = ()
 
-    def contains(self, z_primary_ohm: complex | np.ndarray, line_angle_rad: float) -> np.ndarray:
-        """Whether primary impedances lie inside this zone's characteristic."""
+    #: Reactance-line tilt τ of a quadrilateral [rad] (0 horizontal; positive tilts it down
+    #: toward +R), see :class:`relayset.physics.characteristic.Quadrilateral`.
+    reactance_tilt_rad: float = 0.0
+
+    def characteristic(self, ground: bool, line_angle_rad: float) -> Characteristic:
+        """This zone's characteristic as set, in primary ohms, for one kind of loop.
+
+        Parameters
+        ----------
+        ground : bool
+            True for the ground loops, False for the phase loops (a quadrilateral has a
+            resistive reach for each; a mho circle is the same for both).
+        line_angle_rad : float
+            Line angle θ [rad]: the angle of a quadrilateral's blinders.
+
+        Returns
+        -------
+        Mho or Quadrilateral
+        """
         if self.shape == "mho":
-            return zp.mho_contains(z_primary_ohm, self.mho_diameter_primary_ohm,
-                                   self.char_angle_rad)
-        forward = self.direction == "forward"
-        return zp.quad_contains(z_primary_ohm, self.x_reach_primary_ohm,
-                                self.r_reach_phase_primary_ohm, line_angle_rad,
-                                forward=forward) | zp.quad_contains(
-            z_primary_ohm, self.x_reach_primary_ohm, self.r_reach_ground_primary_ohm,
-            line_angle_rad, forward=forward)
+            return Mho(self.mho_diameter_primary_ohm, self.char_angle_rad, self.direction)
+        r = self.r_reach_ground_primary_ohm if ground else self.r_reach_phase_primary_ohm
+        return Quadrilateral(self.x_reach_primary_ohm, r, line_angle_rad,
+                             direction=self.direction, tilt_rad=self.reactance_tilt_rad)
+
+    def contains(self, z_primary_ohm: complex | np.ndarray, line_angle_rad: float) -> np.ndarray:
+        """Whether primary impedances lie inside this zone for either kind of loop [ohm]."""
+        return (self.characteristic(False, line_angle_rad).contains(z_primary_ohm)
+                | self.characteristic(True, line_angle_rad).contains(z_primary_ohm))
+
+    def reach_scale(self, z_primary_ohm: complex | np.ndarray, line_angle_rad: float
+                    ) -> np.ndarray:
+        """Reach scale [1] of primary impedances [ohm] for whichever kind of loop (phase or
+        ground) reaches them first (``Characteristic.reach_scale``).
+        """
+        return np.minimum(self.characteristic(False, line_angle_rad).reach_scale(z_primary_ohm),
+                          self.characteristic(True, line_angle_rad).reach_scale(z_primary_ohm))
+
+    def region(self, line_angle_rad: float) -> dict[str, Any]:
+        """Neutral JSON geometry of the phase- and ground-loop characteristics [ohm]."""
+        return {"phase_loops": self.characteristic(False, line_angle_rad).region(),
+                "ground_loops": self.characteristic(True, line_angle_rad).region()}
 
 
 @dataclass(frozen=True)
@@ -154,6 +185,7 @@ class SettingsResult:
                 "r_reach_ground_secondary_ohm": z.r_reach_ground_secondary_ohm,
                 "arc_resistance_phase_ohm": z.arc_resistance_phase_ohm,
                 "arc_resistance_ground_ohm": z.arc_resistance_ground_ohm,
+                "region_primary_ohm": z.region(self.line_angle_rad),
                 "load_reach_pct_of_min": z.load_reach_pct_of_min,
                 "checks": [
                     {"check_id": c.check_id, "passed": c.passed, "detail": c.detail}

@@ -42,6 +42,7 @@ import numpy as np
 from relayset.errors import InputError
 from relayset.inputs.philosophy import Philosophy, default_philosophy
 from relayset.physics import zones as zp
+from relayset.physics.characteristic import Characteristic, Mho
 from relayset.physics.sequence import residual_compensation, residual_compensation_split
 from relayset.results.parameters import K0
 from relayset.results.settings import Check, LoadCheck, SettingsResult, SourceEnd, ZoneSetting
@@ -53,6 +54,13 @@ from relayset.settings.reverse import reverse_target
 from relayset.settings.zone1 import zone1_target
 from relayset.settings.zone2 import zone2_target
 from relayset.settings.zone3 import zone3_target
+
+
+def _reach_over_load(char: Characteristic, phi_max: float) -> np.ndarray:
+    """Reach [ohm] along the load ranges' rays, plus the rays through the shape's farthest
+    points (mho diameter, quadrilateral corners) that fall inside them."""
+    extra = [char.angle_rad] if isinstance(char, Mho) else np.angle(char.outline())
+    return char.reach_along(load_rays(phi_max, extra))
 
 
 def compute_settings(
@@ -180,6 +188,7 @@ def compute_settings(
     for zone, target, rule, delay, k, checks in specs:
         label = ZONE_LABELS[zone]
         forward = zone != "reverse"
+        direction = "forward" if forward else "reverse"
         mho: dict[str, Any] = dict(char_angle_rad=None, mho_diameter_primary_ohm=None,
                                    mho_diameter_secondary_ohm=None)
         qd: dict[str, Any] = dict(
@@ -193,7 +202,6 @@ def compute_settings(
             d = float(zp.mho_diameter_for_point_ohm(target, ang))
             mho.update(char_angle_rad=ang, mho_diameter_primary_ohm=d,
                        mho_diameter_secondary_ohm=sec(d))
-            reach_load = zp.mho_reach_along_ohm(d, ang, load_rays(phi, [ang]))
         else:
             rs = ph.resistive
             t_arc = delay if rs.arc_time_s == "zone_delay" else float(rs.arc_time_s)
@@ -232,13 +240,16 @@ def compute_settings(
                 r_reach_ground_primary_ohm=r_g, r_reach_ground_secondary_ohm=sec(r_g),
                 arc_resistance_phase_ohm=ra_ph, arc_resistance_ground_ohm=ra_g,
             )
-            reach_load = np.concatenate([
-                zp.quad_reach_along_ohm(
-                    x, r, theta,
-                    load_rays(phi, np.angle(zp.quad_vertices_ohm(x, r, theta, forward=forward))),
-                    forward=forward)
-                for r in (r_ph, r_g)
-            ])
+        zset = ZoneSetting(
+            zone=zone, direction=direction, rule=rule,
+            reach_primary_ohm=complex(target), reach_secondary_ohm=sec(complex(target)),
+            reach_pct=abs(target) / abs(zl) * 100, delay_s=delay,
+            shape=ph.characteristic.shape, infeed_factor=k, **mho, **qd,
+            load_reach_pct_of_min=math.nan,
+        )
+        # Largest reach over the load ranges, phase and ground characteristics as set.
+        reach_load = np.concatenate([_reach_over_load(zset.characteristic(g, theta), phi)
+                                     for g in (False, True)])
         load_pct = float(np.max(reach_load)) / z_load * 100
         # A blinder cut to the load limit lands exactly on it; allow for rounding.
         enc_ok = load_pct <= enc_pct * (1 + 1e-9)
@@ -254,13 +265,7 @@ def compute_settings(
                 f"{z_load:.4g} Ω along the load angles (limit {enc_pct:g} %)",
                 "reduce the reach, use a quadrilateral or a load-encroachment blinder",
             )
-        built.append(ZoneSetting(
-            zone=zone, direction="forward" if forward else "reverse", rule=rule,
-            reach_primary_ohm=complex(target), reach_secondary_ohm=sec(complex(target)),
-            reach_pct=abs(target) / abs(zl) * 100, delay_s=delay,
-            shape=ph.characteristic.shape, infeed_factor=k, **mho, **qd,
-            load_reach_pct_of_min=load_pct, checks=tuple(checks),
-        ))
+        built.append(replace(zset, load_reach_pct_of_min=load_pct, checks=tuple(checks)))
 
     zs = {z.zone: z for z in built}
     # Zone 2 against the adjacent line's zone 1, without infeed (the furthest zone 2 reaches).

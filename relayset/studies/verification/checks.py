@@ -76,24 +76,7 @@ MUTUAL_REMEDY = (
 def reach_scale(z: np.ndarray, zone: ZoneSetting, ground: bool, line_angle_rad: float
                 ) -> np.ndarray:
     """Reach scale s of impedances against a zone (see the module notes); inf: never."""
-    z = np.asarray(z, dtype=complex)
-    with np.errstate(all="ignore"):
-        if zone.shape == "mho":
-            d = zone.mho_diameter_primary_ohm
-            proj = (z * cmath.exp(-1j * zone.char_angle_rad)).real
-            s = np.where(proj > 0, np.abs(z) ** 2 / (d * proj), np.inf)
-        else:
-            if zone.direction != "forward":
-                z = -z
-            x = zone.x_reach_primary_ohm
-            r = zone.r_reach_ground_primary_ohm if ground else zone.r_reach_phase_primary_ohm
-            sn, co = math.sin(line_angle_rad), math.cos(line_angle_rad)
-            tol = 1e-12 * max(r, 1.0)
-            inside = ((sn * z.real - co * z.imag <= r * sn + tol)
-                      & (-sn * z.real + co * z.imag <= r * sn + tol)
-                      & (co * z.real + sn * z.imag >= -tol))
-            s = np.where(inside, np.maximum(z.imag, 0.0) / x, np.inf)
-    return np.where(np.isfinite(z), s, np.inf)
+    return zone.characteristic(ground, line_angle_rad).reach_scale(z)
 
 
 # --------------------------------------------------------------------------- checks
@@ -427,7 +410,7 @@ def _resistive_need(chk: ZoneVerification, zone: ZoneSetting, theta: float,
 
 def _both(z: np.ndarray, zone: ZoneSetting, theta: float) -> np.ndarray:
     """Reach scale for whichever loop kind (ground or phase) reaches the point first."""
-    return np.minimum(reach_scale(z, zone, False, theta), reach_scale(z, zone, True, theta))
+    return zone.reach_scale(z, theta)
 
 
 def _load_check(st: SettingsResult, z3: ZoneSetting, t: float) -> list[ZoneVerification]:
