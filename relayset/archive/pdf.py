@@ -10,13 +10,15 @@ from __future__ import annotations
 import json
 import math
 import re
+from collections.abc import Callable
 from dataclasses import dataclass, field
 from pathlib import Path
-from typing import Any
+from typing import Any, TypeVar
 
 from relayset.archive.quantities import ShapeError, check_results_shape, nesting_depth
 from relayset.errors import InputError
 
+T = TypeVar("T")
 RESULTS_SUFFIX = ".results.json"
 HEX64 = re.compile(r"[0-9a-f]{64}")
 
@@ -40,9 +42,10 @@ MAX_PAGES = 1_000
 MAX_TEXT_CHARS = 10_000_000
 #: Objects in the PDF's cross-reference tables.
 MAX_OBJECTS = 200_000
-#: Arrays and objects inside each other in the embedded results JSON and TOML files. PDF
-#: objects nested deeper than the library's parser can follow are refused by it (its error,
-#: or Python's recursion limit, becomes the one-line message).
+#: Arrays and dictionaries inside each other: in every PDF object read, in the embedded
+#: results JSON and in the embedded TOML files (a real report: 11 in the JSON, fewer in the
+#: PDF). Deeper PDF objects than the library's parser can follow are refused by it (its
+#: error, or Python's recursion limit, becomes the one-line message).
 MAX_NESTING = 64
 #: Digits of an integer in the results JSON (relayset writes counts and years).
 MAX_INT_DIGITS = 18
@@ -160,10 +163,10 @@ def _printable(text: str) -> str:
     return "".join(c if c.isprintable() else "?" for c in text)
 
 
-def _plain_name(name: str) -> bool:
+def _plain_name(name: Any) -> bool:
     """A plain file name, as relayset embeds them: no folder part, no control character."""
-    return (0 < len(name) <= 255 and name not in (".", "..") and name.isprintable()
-            and not any(c in name for c in "/\\:"))
+    return (isinstance(name, str) and 0 < len(name) <= 255 and name not in (".", "..")
+            and name.isprintable() and not any(c in name for c in "/\\:"))
 
 
 def _pdf_limits():
@@ -181,33 +184,45 @@ def _pdf_limits():
     return apply(**{k: v for k, v in _PYPDF_LIMITS.items() if k in known})
 
 
-def _read_pdf(data: bytes, src: str) -> tuple[dict[str, bytes], str, dict[str, str]]:
-    """Embedded files, page text and metadata, within the limits. Only PDF-library calls and
-    our limit checks live here: whatever the library raises is a malformed PDF."""
+def _lib(call: Callable[[], T], src: str) -> T:
+    """``call()``, a call into the PDF library: whatever it raises on a malformed or hostile
+    file (its own errors, its limits, Python's recursion limit, a bad token) is one line."""
+    try:
+        return call()
+    except Exception as exc:  # the library's, not ours: only library calls come here
+        why = _printable(str(exc)) or type(exc).__name__
+        raise InputError(f"is not a readable PDF ({why})", source=src) from None
+
+
+def _read_pdf(data: bytes, src: str, *, text: bool
+              ) -> tuple[dict[str, bytes], str, dict[str, str], dict[str, Any]]:
+    """Embedded files, results, page text and metadata (the last two with ``text``) within
+    the limits. Each call into the PDF library goes through :func:`_lib`; the checks
+    between them are ours and raise nothing but InputError."""
     import io
 
     from pypdf import PdfReader
 
-    reader = PdfReader(io.BytesIO(data))
-    objects = sum(len(v) for v in getattr(reader, "xref", {}).values()) + len(
-        getattr(reader, "xref_objStm", {}))
+    reader = _lib(lambda: PdfReader(io.BytesIO(data)), src)
+    objects = _lib(lambda: sum(len(v) for v in reader.xref.values())
+                   + len(reader.xref_objStm), src)
     if objects > MAX_OBJECTS:
         raise InputError(f"has {objects} objects, more than the {MAX_OBJECTS} an archived "
                          "report may have", source=src)
-    names = list(reader.attachments)
+    names = _lib(lambda: list(reader.attachments), src)
     if len(names) > MAX_EMBEDDED_FILES:
         raise InputError(f"has {len(names)} embedded files, more than the "
                          f"{MAX_EMBEDDED_FILES} an archived report may have", source=src)
     for name in names:
         if not _plain_name(name):
-            raise InputError("an embedded file is named " + _printable(name)[:80] + ", not a "
-                             "plain file name: not a relayset report (nothing was written)",
-                             source=src)
+            raise InputError("an embedded file is named " + _printable(str(name))[:80]
+                             + ", not a plain file name: not a relayset report (nothing "
+                             "was written)", source=src)
     attachments: dict[str, bytes] = {}
     total = 0
     for name in names:
-        contents = reader.attachments[name]
-        if len(contents) != 1:
+        contents = _lib(lambda n=name: list(reader.attachments[n]), src)
+        if len(contents) != 1 or not isinstance(contents[0], bytes):
             raise InputError(f"{len(contents)} embedded files are named {name}: not a "
                              "relayset report", source=src)
         total += len(contents[0])
@@ -215,26 +230,63 @@ def _read_pdf(data: bytes, src: str) -> tuple[dict[str, bytes], str, dict[str, s
             raise InputError(f"its embedded files hold more than {MAX_EMBEDDED_BYTES} bytes "
                              "decompressed, more than an archived report may", source=src)
         attachments[name] = contents[0]
-    if len(reader.pages) > MAX_PAGES:
-        raise InputError(f"has {len(reader.pages)} pages, more than the {MAX_PAGES} an "
-                         "archived report may have", source=src)
-    texts: list[str] = []
-    chars = 0
-    for page in reader.pages:
-        texts.append(page.extract_text() or "")
-        chars += len(texts[-1])
-        if chars > MAX_TEXT_CHARS:
-            raise InputError(f"its pages hold more than {MAX_TEXT_CHARS} characters of text, "
-                             "more than an archived report may", source=src)
+    results = _results(attachments, src)
+    page_text, meta = "", {}
+    if text:
+        pages = _lib(lambda: list(reader.pages), src)
+        if len(pages) > MAX_PAGES:
+            raise InputError(f"has {len(pages)} pages, more than the {MAX_PAGES} an "
+                             "archived report may have", source=src)
+        texts: list[str] = []
+        for page in pages:
+            texts.append(_lib(lambda p=page: str(p.extract_text() or ""), src))
+            if sum(map(len, texts)) > MAX_TEXT_CHARS:
+                raise InputError(f"its pages hold more than {MAX_TEXT_CHARS} characters of "
+                                 "text, more than an archived report may", source=src)
+        page_text = "\n".join(texts)
+        meta = _lib(lambda: _metadata(reader), src)
+    _check_nesting(_lib(lambda: [*reader.resolved_objects.values(), reader.trailer],
+                        src), src)
+    return attachments, page_text, meta, results
+
+
+def _metadata(reader: Any) -> dict[str, str]:
+    """Document information and XMP as text (library calls only)."""
     meta = {str(k): str(v) for k, v in (reader.metadata or {}).items()}
     xmp = reader.xmp_metadata
     if xmp is not None:
         meta["xmp"] = xmp.stream.get_data().decode("utf-8", "replace")
-    return attachments, "\n".join(texts), meta
+    return meta
 
 
-def read_archive(path: str | Path) -> Archive:
+def _check_nesting(objects: list[Any], src: str) -> None:
+    """Every PDF object read nested at most MAX_NESTING deep (a parsed dictionary or array
+    is a dict or list; a reference to another object ends the walk)."""
+    for obj in objects:
+        if nesting_depth(obj) > MAX_NESTING:
+            raise InputError(f"holds objects nested more than {MAX_NESTING} deep, more than "
+                             "an archived report may", source=src)
+
+
+def _results(attachments: dict[str, bytes], src: str) -> dict[str, Any]:
+    """The one embedded results JSON, parsed and checked."""
+    if not attachments:
+        raise InputError("the PDF has no embedded files: not an archived relayset report",
+                         source=src)
+    names = [n for n in attachments if n.endswith(RESULTS_SUFFIX)]
+    if not names:
+        raise InputError("no embedded results JSON (*.results.json): not a relayset report",
+                         source=src)
+    if len(names) > 1:
+        raise InputError(f"{len(names)} embedded results JSON (*.results.json): not a "
+                         "relayset report", source=src)
+    return parse_results(attachments[names[0]], names[0], src)
+
+
+def read_archive(path: str | Path, *, text: bool = True) -> Archive:
     """Open an archived relayset report (in memory; nothing is written).
+
+    ``text`` False skips the page text and the metadata (compare needs the results only).
 
     Raises
     ------
@@ -259,23 +311,6 @@ def read_archive(path: str | Path) -> Archive:
     if data[:5] != b"%PDF-":
         raise InputError("is not a readable PDF (no %PDF- header)", source=src)
     logging.getLogger("pypdf").setLevel(logging.ERROR)
-    try:
-        with _pdf_limits():
-            attachments, text, meta = _read_pdf(data, src)
-    except InputError:
-        raise
-    except Exception as exc:  # any PDF-library error: a malformed file
-        why = _printable(str(exc)) or type(exc).__name__
-        raise InputError(f"is not a readable PDF ({why})", source=src) from None
-    if not attachments:
-        raise InputError("the PDF has no embedded files: not an archived relayset report",
-                         source=src)
-    results = [n for n in attachments if n.endswith(RESULTS_SUFFIX)]
-    if not results:
-        raise InputError("no embedded results JSON (*.results.json): not a relayset report",
-                         source=src)
-    if len(results) > 1:
-        raise InputError(f"{len(results)} embedded results JSON (*.results.json): not a "
-                         "relayset report", source=src)
-    parsed = parse_results(attachments[results[0]], results[0], src)
-    return Archive(src, attachments, text, meta, parsed)
+    with _pdf_limits():
+        attachments, page_text, meta, results = _read_pdf(data, src, text=text)
+    return Archive(src, attachments, page_text, meta, results)
