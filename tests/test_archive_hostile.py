@@ -208,7 +208,7 @@ RESULTS = {
     "string": _set_results(b'"a report"'),
     "number": _set_results(b"5"),
     "not json": _set_results(b"{not json"),
-    "nested 500": _set_results(b'{"a": ' + _deep(500).encode() + b"}"),
+    "nested 500": _edit_results(lambda d: d.update(deep=json.loads(_deep(500)))),
     "nested 1000": _set_results(_deep(1000).encode()),
     "nan": _set_results(b'{"study": {}, "x": NaN}'),
     "huge float": _set_results(b'{"study": {}, "x": 1e400}'),
@@ -250,13 +250,14 @@ def test_a_changed_digit_stays_a_mismatch_not_an_error(report, sandbox, capsys):
     assert code == 1 and cap.err == "" and "DOES NOT MATCH" in cap.out
 
 
-def test_embedded_study_nested_too_deep(report, sandbox, capsys):
+@pytest.mark.parametrize("depth", [100, 500])  # 500: beyond what tomllib can parse
+def test_embedded_study_nested_too_deep(report, sandbox, capsys, depth):
     _, _, outside = sandbox
 
     def change(pdf):
         name = _study_name(pdf)
         data = pdf.attachments[name].get_file().read_bytes()
-        _attach(pdf, name, b"deep = " + _deep(500).encode() + b"\n" + data)
+        _attach(pdf, name, b"deep = " + _deep(depth).encode() + b"\n" + data)
 
     bad = _edit(report, outside / "deeptoml.pdf", change)
     code, cap = _verify(bad, capsys)
@@ -362,3 +363,53 @@ def test_command_line_process(report, tmp_path):
                           cwd=cwd, env=env, capture_output=True, text=True, timeout=120)
     _one_line_error(done.returncode, done.stderr, bad)
     assert not sentinel.exists() and _tree(cwd) == [] and _tree(tmp) == []
+
+
+def test_study_naming_its_philosophy_file_is_recomputed_from_the_embedded_one(tmp_path,
+                                                                              capsys):
+    """A report whose study names its philosophy by a relative path (a demo line): verify
+    points the study at the embedded philosophy in its private folder and still matches,
+    while a changed embedded philosophy moves the settings (exit 1)."""
+    from relayset.report.build import make_report
+    from relayset.studies import pipeline
+
+    name = "elsford_fallowby_230kv_double.toml"
+    study = tmp_path / "lines" / name
+    (tmp_path / "lines" / "philosophies").mkdir(parents=True)
+    study.write_bytes((demo_lines_dir() / name).read_bytes())
+    for f in (demo_lines_dir() / "philosophies").glob("*.toml"):
+        (tmp_path / "lines" / "philosophies" / f.name).write_bytes(f.read_bytes())
+    good = tmp_path / "good.pdf"
+    good.write_bytes(make_report(pipeline.run(study, settings=True)).pdf)
+    code, cap = _verify(good, capsys)
+    assert code == 0 and "MATCHES" in cap.out, cap.out
+
+    def change(pdf):
+        n = next(n for n in pdf.attachments if n != name and n.endswith(".toml"))
+        data = pdf.attachments[n].get_file().read_bytes()
+        new = data.replace(b"reach_pct = 120.0", b"reach_pct = 130.0", 1)
+        assert new != data
+        _attach(pdf, n, new)
+
+    bad = _edit(good, tmp_path / "phil.pdf", change)
+    code, cap = _verify(bad, capsys)
+    assert code == 1 and "FAIL settings: " in cap.out and cap.err == ""
+
+
+def test_compare_sheet_from_hostile_identity(report, sandbox, capsys):
+    """An identity the sheet cannot print as it is (a 5000-character line id with a terminal
+    escape, no title or status): the table shows no control character, the sheet's file
+    names stay short, nothing raises."""
+    _, _, outside = sandbox
+
+    def edit(d):
+        d["study"] = {"line_id": "\x1b[2J" + "L" * 5000, "revision": "B"}
+
+    bad = _edit(report, outside / "ident.pdf", _edit_results(edit))
+    out = outside / "sheet"
+    out.mkdir()
+    assert main(["compare", str(bad), str(report), "-o", str(out)]) == 0
+    cap = capsys.readouterr()
+    assert "Traceback" not in cap.err and "\x1b" not in cap.out
+    names = sorted(p.name for p in out.iterdir())
+    assert len(names) == 2 and all(len(n) < 200 for n in names), names

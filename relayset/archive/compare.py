@@ -128,15 +128,15 @@ def _digits(old: Any, new: Any) -> int:
         rel = abs(abs(new) - abs(old)) / max(abs(old), abs(new))
     except (TypeError, ZeroDivisionError):
         return VALUE_DIGITS
-    if not rel > 0 or not math.isfinite(rel):
+    if rel <= 0:
         return VALUE_DIGITS
     return max(VALUE_DIGITS, min(12, math.ceil(-math.log10(rel)) + 2))
 
 
 def _signed(x: float, digits: int = CHANGE_DIGITS) -> str:
     """``x`` with its sign and ``digits`` significant digits, never in exponent form."""
-    if x == 0 or not math.isfinite(x):
-        return "0" if x == 0 else str(x)
+    if x == 0:
+        return "0"
     decimals = max(0, digits - 1 - math.floor(math.log10(abs(x))))
     return f"{x:+.{decimals}f}".replace("-", "−")
 
@@ -181,8 +181,9 @@ def tolerance_text() -> str:
 def format_table(c: Comparison) -> str:
     """The change table as text."""
     ida, idb = c.old.get("study", {}), c.new.get("study", {})
-    head = (f"{ida.get('line_id')} rev {ida.get('revision')} -> {idb.get('line_id')} rev "
-            f"{idb.get('revision')}: {len(c.changes)} change(s)\n")
+    head = _printable(f"{ida.get('line_id')} rev {ida.get('revision')} -> "
+                      f"{idb.get('line_id')} rev {idb.get('revision')}: "
+                      f"{len(c.changes)} change(s)") + "\n"
     rows = [("section", "quantity", "old", "new", "change")]
     rows += [(ch.section, ch.name, *shown(ch)) for ch in c.changes]
     w = [min(max(len(r[i]) for r in rows), 60) for i in range(5)]
