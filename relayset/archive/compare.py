@@ -9,7 +9,13 @@ from dataclasses import dataclass
 from pathlib import Path
 from typing import Any
 
-from relayset.archive.quantities import close, numeric_leaves, pct_change, results_quantities
+from relayset.archive.quantities import (
+    STUDY_KEYS,
+    close,
+    numeric_leaves,
+    pct_change,
+    results_quantities,
+)
 
 #: Display tolerance: a number is listed as changed only when it moved by more than
 #: ``DISPLAY_ATOL + DISPLAY_RTOL * |old|`` (complex values: the length of the vector
@@ -22,6 +28,9 @@ DISPLAY_ATOL = 1e-9  #: in the quantity's own unit
 CHANGE_DIGITS = 3
 #: Significant digits of an old or new value (more when needed to tell them apart).
 VALUE_DIGITS = 5
+#: Longest file stem of a change sheet [characters] (line id and revisions come from the
+#: compared files, an archived report's among them).
+MAX_STEM = 120
 
 
 @dataclass(frozen=True)
@@ -88,7 +97,7 @@ def load_results(path: str | Path) -> dict[str, Any]:
     if p.suffix.lower() == ".pdf":
         from relayset.archive.pdf import read_archive
 
-        return read_archive(p).results()
+        return read_archive(p, text=False).results()
     from relayset.io import to_json
     from relayset.studies import pipeline
 
@@ -172,15 +181,27 @@ def tolerance_text() -> str:
 def format_table(c: Comparison) -> str:
     """The change table as text."""
     ida, idb = c.old.get("study", {}), c.new.get("study", {})
-    head = (f"{ida.get('line_id')} rev {ida.get('revision')} -> {idb.get('line_id')} rev "
-            f"{idb.get('revision')}: {len(c.changes)} change(s)\n")
+    head = _printable(f"{ida.get('line_id')} rev {ida.get('revision')} -> "
+                      f"{idb.get('line_id')} rev {idb.get('revision')}: "
+                      f"{len(c.changes)} change(s)") + "\n"
     rows = [("section", "quantity", "old", "new", "change")]
     rows += [(ch.section, ch.name, *shown(ch)) for ch in c.changes]
     w = [min(max(len(r[i]) for r in rows), 60) for i in range(5)]
+    rows = [tuple(_printable(str(x)) for x in r) for r in rows]  # text of the files: no
+    # control character reaches the terminal
     lines = ["  ".join(str(r[i])[:60].ljust(w[i]) if i < 4 else str(r[i]).rjust(w[i])
                        for i in range(5)).rstrip() for r in rows]
     lines.insert(1, "  ".join("-" * x for x in w))
     return head + "\n".join(lines) + "\n" + tolerance_text() + "\n"
+
+
+def _printable(text: str) -> str:
+    return "".join(ch if ch.isprintable() else "?" for ch in text)
+
+
+def _identity(d: dict[str, Any]) -> dict[str, Any]:
+    """The study identity of a results JSON, every key the sheet prints present."""
+    return dict.fromkeys(STUDY_KEYS, "") | dict(d.get("study") or {})
 
 
 def change_sheet_html(c: Comparison) -> str:
@@ -195,12 +216,12 @@ def change_sheet_html(c: Comparison) -> str:
                              autoescape=True, undefined=jinja2.StrictUndefined)
     sections = {s: [(ch.name, *shown(ch)) for ch in c.changes if ch.section == s]
                 for s in ("inputs", "results", "settings")}
-    new = c.new.get("study", {})
+    old, new = _identity(c.old), _identity(c.new)
     verdict = (c.new.get("verification") or {}).get("verdict") or NOT_VERIFIED
     # as on the report: only an approved revision without failed checks is for use
     not_for_use = new.get("status") != "approved" or verdict == "failed checks"
     return env.get_template("fleet/changes.html.j2").render(
-        old=c.old.get("study", {}), new=c.new.get("study", {}), old_source=c.old_source,
+        old=old, new=new, old_source=c.old_source,
         new_source=c.new_source, old_sha=c.old.get("source_sha256"),
         new_sha=c.new.get("source_sha256"), sections=sections, caution=CAUTION,
         count=len(c.changes), tolerance=tolerance_text(), verdict=verdict,
@@ -219,11 +240,12 @@ def write_change_sheet(c: Comparison, out_dir: str | Path) -> list[Path]:
     from relayset.report.pdf import html_to_pdf
 
     html = change_sheet_html(c)
-    when = document_date(c.new.get("study", {}), dict(os.environ)).when
+    when = document_date(_identity(c.new), dict(os.environ)).when
     pdf = html_to_pdf(html, [], when if isinstance(when, dt.datetime) else dt.datetime.now(dt.UTC))
-    stem = (safe_stem(str(c.old["study"].get("line_id")), str(c.old["study"].get("revision")))
-            + "_to_rev" + safe_stem("x", str(c.new["study"].get("revision"))).split("_rev", 1)[1]
-            + "_changes")
+    old, new = _identity(c.old), _identity(c.new)
+    stem = (safe_stem(str(old.get("line_id")), str(old.get("revision")))
+            + "_to_rev" + safe_stem("x", str(new.get("revision"))).split("_rev", 1)[1]
+            )[:MAX_STEM] + "_changes"
     out = Path(out_dir)
     write_atomic(out / f"{stem}.html", html)
     write_atomic(out / f"{stem}.pdf", pdf)

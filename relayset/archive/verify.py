@@ -23,10 +23,10 @@ import hashlib
 import re
 import tempfile
 from dataclasses import dataclass, field
-from pathlib import Path
+from pathlib import Path, PurePosixPath
 
-from relayset.archive.pdf import Archive, read_archive
-from relayset.archive.quantities import close, numeric_leaves, results_quantities
+from relayset.archive.pdf import MAX_NESTING, Archive, read_archive
+from relayset.archive.quantities import close, nesting_depth, numeric_leaves, results_quantities
 from relayset.errors import InputError
 
 RTOL = 1e-6
@@ -34,6 +34,11 @@ ATOL = 1e-9
 #: Keys that legitimately differ between the archive and the recomputation.
 IGNORED = ("source_file", "relayset_version")
 
+
+#: The names the embedded study and philosophy get in verify's private temporary folder:
+#: chosen here, never taken from the PDF.
+STUDY_FILE = "study.toml"
+PHILOSOPHY_FILE = "philosophy.toml"
 
 #: The labels the report prints before each SHA-256 (templates/report/report.html.j2).
 PRINTED_STUDY = "SHA-256 of the study file"
@@ -115,55 +120,102 @@ def check_hashes(a: Archive) -> list[Check]:
     return checks
 
 
-def _place_inputs(a: Archive, folder: Path) -> Path:
-    """Write the embedded study (and its philosophy where the study names it) into ``folder``."""
+def _toml_tables(data: bytes, name: str, source: str) -> dict:
+    """An embedded TOML file, parsed, within the nesting limit (InputError otherwise)."""
     import tomllib
 
-    name = a.study_name()
-    assert name is not None
-    data = a.attachments[name]
+    rule = "the embedded file is not valid TOML"
     try:
-        tables = tomllib.loads(data.decode("utf-8"))
+        tables = tomllib.loads(data.decode("utf-8-sig"))
+    except RecursionError:
+        tables = None
+        rule = f"the embedded file is nested more than {MAX_NESTING} deep"
     except (tomllib.TOMLDecodeError, UnicodeDecodeError):
-        raise InputError("the embedded study file is not valid TOML", field=name,
-                         source=a.source) from None
-    phil = str((tables.get("study") or {}).get("philosophy", "default"))
-    ups = Path(phil).parts.count("..")
-    study_dir = folder.joinpath(*["s"] * (ups + 1))
-    study_dir.mkdir(parents=True)
-    study_path = study_dir / name
-    study_path.write_bytes(data)
-    if phil != "default" and not Path(phil).is_absolute():
-        others = [n for n in a.attachments
-                  if n.endswith(".toml") and n != name]
-        wanted = Path(phil).name
-        pick = next((n for n in others if n in (wanted, f"philosophy_{wanted}")), None)
-        if pick is None and len(others) == 1:
-            pick = others[0]
-        if pick is not None:
-            target = (study_dir / phil).resolve()
-            target.parent.mkdir(parents=True, exist_ok=True)
-            target.write_bytes(a.attachments[pick])
-    return study_path
+        tables = None
+    if tables is not None and nesting_depth(tables) > MAX_NESTING:
+        tables, rule = None, f"the embedded file is nested more than {MAX_NESTING} deep"
+    if tables is None:
+        raise InputError(rule, field=name, source=source)
+    return tables
+
+
+def _embedded_philosophy(a: Archive, study: str, named: str) -> str | None:
+    """The embedded file that is the philosophy the study names (by its name, else the one
+    other TOML file); the name only chooses among the embedded files, never a path."""
+    others = [n for n in a.attachments if n.endswith(".toml") and n != study]
+    wanted = PurePosixPath(named.replace("\\", "/")).name
+    pick = next((n for n in others if n in (wanted, f"philosophy_{wanted}")), None)
+    return pick if pick is not None or len(others) != 1 else others[0]
+
+
+def _not_recomputed(why: str) -> tuple[list[Check], str]:
+    return [Check("recomputation", False, why)], ""
 
 
 def recompute(a: Archive) -> tuple[list[Check], str]:
-    """Recompute the embedded study with the installed relayset and compare the results."""
+    """Recompute the embedded study with the installed relayset and compare the results.
+
+    The embedded files are written only into a private temporary folder (mode 0700), under
+    names chosen here (:data:`STUDY_FILE`, :data:`PHILOSOPHY_FILE`); a name in the PDF or a
+    path in the embedded study never decides where anything is written or read. A study
+    that names its philosophy file is pointed at the embedded philosophy (the one edit of
+    its text); the recomputed results then carry the study's own philosophy name and
+    SHA-256 again, so that only computed values are compared.
+    """
+    import os
+
+    from relayset.fleet.jobs import effective_study_text
     from relayset.io import to_json
     from relayset.studies import pipeline
 
     archived = a.results()
+    study = a.study_name()
+    if study is None:
+        raise InputError("no embedded study file: not a complete relayset report",
+                         source=a.source)
+    data = a.attachments[study]
+    tables = _toml_tables(data, study, a.source)
+    info = tables.get("study") if isinstance(tables.get("study"), dict) else {}
+    for key in ("adjacent_lines", "lines_behind"):
+        rows = tables.get(key) if isinstance(tables.get(key), list) else []
+        for i, row in enumerate(rows):
+            if isinstance(row, dict) and "study" in row:
+                return _not_recomputed(f"the embedded study names another line's study file "
+                                       f"({key}[{i}].study), which the report does not embed")
+    phil = info.get("philosophy", "default")
     with tempfile.TemporaryDirectory(prefix="relayset-verify-") as tmp:
-        path = _place_inputs(a, Path(tmp))
+        folder = Path(tmp).resolve()  # mkdtemp: readable by this user only
+        text = data
+        if isinstance(phil, str) and phil != "default":
+            pick = _embedded_philosophy(a, study, phil)
+            if pick is None:
+                return _not_recomputed("the embedded study names a philosophy file, and the "
+                                       "report embeds none that is it")
+            _toml_tables(a.attachments[pick], pick, a.source)
+            (folder / PHILOSOPHY_FILE).write_bytes(a.attachments[pick])
+            try:
+                text = effective_study_text(data.decode("utf-8-sig"), folder, folder,
+                                            status=None,
+                                            philosophy=folder / PHILOSOPHY_FILE).encode()
+            except InputError:
+                return _not_recomputed("the embedded study's philosophy could not be pointed "
+                                       "at the embedded philosophy file")
+        path = folder / STUDY_FILE
+        path.write_bytes(text)
         try:
             new = pipeline.run(path, reach="reach_study" in archived,
                                settings="settings" in archived).to_dict()
         except InputError as exc:
-            msg = str(exc).replace(str(path.parent) + "/", "")
-            return [Check("recomputation", False, f"the embedded study fails: {msg}")], ""
+            msg = str(exc).replace(str(path), study).replace(str(folder) + os.sep, "")
+            return _not_recomputed(f"the embedded study fails: {msg}")
     import json
 
     new = json.loads(to_json(new))  # the same JSON round trip as the archive
+    # what the edit of the study's text changed: its SHA-256 and its philosophy's name
+    new["source_sha256"] = _sha(data)
+    for where in (new.get("study"), (new.get("input") or {}).get("study")):
+        if isinstance(where, dict) and "philosophy" in where:
+            where["philosophy"] = phil
     checks = []
     for (sec, label, old), (_, _, now) in zip(results_quantities(archived),
                                               results_quantities(new), strict=False):
