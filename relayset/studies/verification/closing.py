@@ -133,6 +133,7 @@ def settle_and_verify(study: Study, geo: LineGeometry, params: LineParameters, r
             inf = infeed_range(sim0, end)
             if inf is not None:
                 sim_end["infeed_range"] = (inf.k_min, inf.k_max)
+    del sim0  # its solves are large; the verification below makes its own
     final = settings_at(simulated)
     # The reverse zone of each end covers the other end's zone 2 past this bus.
     again = False

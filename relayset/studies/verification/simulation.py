@@ -21,6 +21,12 @@ from relayset.studies.reach import _cascade, _emfs_for_power_flows, build_source
 from relayset.studies.verification.envelope import Envelope
 
 
+#: Per-case results the relay model reads (both ends, both circuits, the currents into the
+#: fault from each side for faults behind a relay); the fault-point voltage is not needed.
+OUTPUTS = ("v_s", "i_s", "i_s_parallel", "v_r", "i_r", "i_r_parallel", "i_f_from_s",
+           "i_f_from_r")
+
+
 @dataclass(frozen=True, eq=False)
 class Run:
     """One batched solve and how to read it."""
@@ -181,7 +187,7 @@ def simulate(study: Study, geo: LineGeometry, params_by_rho: dict[float, LinePar
                                 fault_types=g.fault_types, m=m,
                                 r_fault_ohm=g.rf_pairs[:, 0], r_phase_ohm=g.rf_pairs[:, 1],
                                 source_scale=scales, transfer_angle_rad=np.zeros(1),
-                                parallel_state=state, emf_v=emf_t)
+                                parallel_state=state, emf_v=emf_t, outputs=OUTPUTS)
                         except InputError as exc:
                             raise exc.located(source=source) from None
                         runs.append(Run(sw, faulted, state if n_c == 2 else "none", labels,
