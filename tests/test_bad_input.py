@@ -37,7 +37,7 @@ CASES = [
          average_height="5 mm")), ["circuits[0].positions[0]", "below ground"]),
     ("sag reaches the ground", DEMO_1C,
      lambda d: _pos(d).update(height="18 m", sag="18 m"),
-     ["circuits[0].positions[0].sag = '18 m'", "less than the attachment height (18 m)"]),
+     ["circuits[0].positions[0].sag = \"18 m\"", "less than the attachment height (18 m)"]),
     ("overlap", DEMO_1C, lambda d: _pos(d, 1).update(x="-5.005 m"), ["overlaps"]),
     ("zero length", DEMO_1C, lambda d: d["line"].update(length="0 km"),
      ["line.length", "greater than 0"]),

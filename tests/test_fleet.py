@@ -147,7 +147,7 @@ def test_bad_register_rows_csv(tmp_path):
     reg = tmp_path / "lines.csv"
     reg.write_text("study,status\n" + f"{DEMO / FAST[0]},maybe\n" + "nowhere.toml,\n", "utf-8")
     jobs = find_jobs(reg)
-    assert "status = 'maybe'" in str(jobs[0].error)
+    assert 'status = "maybe"' in str(jobs[0].error)
     assert "does not exist" in str(jobs[1].error) and "row 3" in str(jobs[1].error)
 
 

@@ -153,6 +153,43 @@ def _check(capsys, command: str, case) -> None:
         assert field in TOP_KEYS or field in data, (field, err)
         assert not out.exists(), "no output on bad input"
         assert [p.name for p in Path(tmp).iterdir()] == ["mutant.toml"]
+        _check_message(lines[0][len(prefix):], data)
+
+
+# The validator's own words, never Python's: no stock wording of a validation library and no
+# repr of a complex number (the project's rule, RULES.md).
+_STOCK = ("Input should", "should be a valid", "List should have")
+_COMPLEX_REPR = re.compile(r"\(-?[\d.e+-]+[+-][\d.e]+j\)")
+_PATH_PART = re.compile(r'"((?:[^"\\]|\\.)*)"|([A-Za-z0-9_-]+)|\[(\d+)\]')
+
+
+def _field_of(message: str) -> list:
+    """The field path at the start of a message, as keys and indices."""
+    m = re.match(r'^((?:"(?:[^"\\]|\\.)*"|[^ :=])+)', message)
+    parts = []
+    for p in _PATH_PART.finditer(m.group(1) if m else ""):
+        parts.append(int(p.group(3)) if p.group(3) is not None
+                     else p.group(1) if p.group(1) is not None else p.group(2))
+    return parts
+
+
+def _check_message(message: str, data: dict) -> None:
+    """No stock wording, no complex repr; the value as written whenever the field exists."""
+    assert not any(s in message for s in _STOCK), message
+    assert not _COMPLEX_REPR.search(message), message
+    value = data
+    for part in _field_of(message):
+        try:
+            value = value[part]
+        except (KeyError, IndexError, TypeError):
+            return  # a missing key has no value
+    if isinstance(value, dict) or (isinstance(value, list) and any(
+            isinstance(v, dict | list) for v in value)):
+        return  # a table or a list of tables: the rule says what is wrong with it
+    written = dump_toml({"v": value}).split(" = ", 1)[1].strip()  # as in the mutated file
+    if len(written) <= 60 or not isinstance(value, list):
+        # (a long text is shortened in the middle: its start must be there)
+        assert f" = {written[:25]}" in message, (written[:40], message)
 
 
 @settings(max_examples=150, deadline=None, derandomize=True,

@@ -260,16 +260,16 @@ def load_philosophy(path: str | Path) -> Philosophy:
     InputError
         The file is missing or not valid TOML, or a key or value breaks a rule.
     """
+    from relayset.inputs.study_file import loads_toml, read_at_most
+
     source = str(path)
     try:
-        raw = Path(path).read_bytes()
+        raw = read_at_most(Path(path), source)  # refused beyond the input size limit
     except FileNotFoundError:
         raise InputError("philosophy file not found", source=source) from None
     except OSError as exc:
         rule = f"cannot read the philosophy file ({exc.strerror})"
         raise InputError(rule, source=source) from None
-    from relayset.inputs.study_file import loads_toml
-
     data = loads_toml(raw, source)  # byte-order mark accepted, duplicate keys named
     return philosophy_from_dict(data, source)
 

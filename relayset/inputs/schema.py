@@ -25,6 +25,9 @@ import math
 from collections.abc import Callable, Mapping
 from typing import Any, NamedTuple
 
+from relayset.errors import quote
+from relayset.inputs.limits import MAX_ITEMS
+
 #: Marks a field without a default (the key must be given).
 REQUIRED: Any = dataclasses.MISSING
 
@@ -39,6 +42,15 @@ class Issue(NamedTuple):
     rule: str
     value: Any = None
     known: tuple[str, ...] = ()  #: for "unknown": the keys the table has
+
+
+class KeyRuleError(ValueError):
+    """Raised by a table's ``_check`` for a rule about one of its keys: the message then
+    names that key and the user's value of it, not the whole table."""
+
+    def __init__(self, key: str, rule: str):
+        self.key = key
+        super().__init__(rule)
 
 
 class SchemaError(ValueError):
@@ -108,7 +120,7 @@ class Table(_Node):
 
     def run(self, value: Any, loc: tuple, issues: list[Issue]) -> Any:
         if not isinstance(value, Mapping):
-            issues.append(Issue(loc, "value", "Input should be a table", value))
+            issues.append(Issue(loc, "value", "must be a table (keys and values)", value))
             return _FAIL
         before = len(issues)
         kwargs = {}
@@ -130,28 +142,48 @@ class Table(_Node):
         if check is not None:
             try:
                 check()
+            except KeyRuleError as exc:
+                issues.append(Issue((*loc, exc.key), "value", str(exc), value.get(exc.key)))
+                return _FAIL
             except ValueError as exc:
                 issues.append(Issue(loc, "value", str(exc), value))
                 return _FAIL
         return obj
 
 
-class ListOf(_Node):
-    """A TOML list (read as a tuple) of items of one converter; ``after`` checks the whole."""
+def _too_many(n: int, most: int, what: str) -> str:
+    return f"has {n:,} {what}; at most {most:,} (a size limit far above any real line)"
 
-    def __init__(self, item: Any, after: Callable[[tuple], tuple] | None = None):
+
+class ListOf(_Node):
+    """A TOML list (read as a tuple) of items of one converter; ``after`` checks the whole.
+
+    More than ``max_items`` items are refused before any is read (``what`` names them).
+    """
+
+    def __init__(self, item: Any, after: Callable[[tuple], tuple] | None = None, *,
+                 max_items: int = MAX_ITEMS, what: str = "entries"):
         self.item, self.after = item, after
+        self.max_items, self.what = max_items, what
 
     def run(self, value: Any, loc: tuple, issues: list[Issue]) -> Any:
         if not isinstance(value, list | tuple):
-            issues.append(Issue(loc, "value", "Input should be a list", value))
+            issues.append(Issue(loc, "value", "must be a list, like [1, 2]", value))
+            return _FAIL
+        if len(value) > self.max_items:
+            issues.append(Issue(loc, "value", _too_many(len(value), self.max_items, self.what),
+                                value))
             return _FAIL
         before = len(issues)
         out = tuple([_run(self.item, v, (*loc, k), issues) for k, v in enumerate(value)])
         if len(issues) > before:
             return _FAIL
         if self.after is not None:
-            return _run(self.after, out, loc, issues)
+            try:
+                return self.after(out)
+            except ValueError as exc:  # shown with the list as written, not as converted
+                issues.append(Issue(loc, "value", str(exc), value))
+                return _FAIL
         return out
 
 
@@ -164,11 +196,11 @@ class TupleOf(_Node):
     def run(self, value: Any, loc: tuple, issues: list[Issue]) -> Any:
         n = len(self.items)
         if not isinstance(value, list | tuple):
-            issues.append(Issue(loc, "value", "Input should be a list", value))
+            issues.append(Issue(loc, "value", f"must be a list of {n} values", value))
             return _FAIL
         if len(value) != n:
-            issues.append(Issue(loc, "value", f"List should have {n} items, not {len(value)}",
-                                value))
+            issues.append(Issue(loc, "value", f"must be a list of {n} values, not "
+                                f"{len(value)}", value))
             return _FAIL
         before = len(issues)
         out = tuple([_run(c, v, (*loc, k), issues) for k, (c, v) in enumerate(
@@ -177,14 +209,21 @@ class TupleOf(_Node):
 
 
 class MapOf(_Node):
-    """A TOML table with keys of the user's choosing (names), each value of one converter."""
+    """A TOML table with keys of the user's choosing (names), each value of one converter;
+    more than ``max_items`` names are refused before any is read."""
 
-    def __init__(self, item: Any, key: Callable[[str], str] | None = None):
+    def __init__(self, item: Any, key: Callable[[str], str] | None = None, *,
+                 max_items: int = MAX_ITEMS, what: str = "entries"):
         self.item, self.key = item, key
+        self.max_items, self.what = max_items, what
 
     def run(self, value: Any, loc: tuple, issues: list[Issue]) -> Any:
         if not isinstance(value, Mapping):
-            issues.append(Issue(loc, "value", "Input should be a table", value))
+            issues.append(Issue(loc, "value", "must be a table of names and values", value))
+            return _FAIL
+        if len(value) > self.max_items:
+            issues.append(Issue(loc, "value", _too_many(len(value), self.max_items, self.what),
+                                value))
             return _FAIL
         before = len(issues)
         out = {}
@@ -202,7 +241,7 @@ def _bound_text(b: float) -> str:
 
 
 def check_bounds(x: float, *, gt: float | None = None, ge: float | None = None,
-                 lt: float | None = None, le: float | None = None, prefix: str = "Input should",
+                 lt: float | None = None, le: float | None = None, prefix: str = "must",
                  ) -> None:
     """Raise ``ValueError`` when ``x`` lies outside the bounds (``prefix`` starts the rule)."""
     for bound, ok, words in ((gt, lambda b: x > b, "greater than"),
@@ -216,14 +255,14 @@ def check_bounds(x: float, *, gt: float | None = None, ge: float | None = None,
 def text(value: Any) -> str:
     """Text (a TOML string)."""
     if not isinstance(value, str):
-        raise ValueError("Input should be a valid string")
+        raise ValueError("must be text in quotes")
     return value
 
 
-def one_of(*choices: str, prefix: str = "Input should") -> Callable[[Any], str]:
+def one_of(*choices: str, prefix: str = "must") -> Callable[[Any], str]:
     """One of the given words, exactly as written."""
-    listed = (", ".join(repr(c) for c in choices[:-1]) + f" or {choices[-1]!r}"
-              if len(choices) > 1 else repr(choices[0]))
+    quoted = [quote(c) for c in choices]
+    listed = ", ".join(quoted[:-1]) + f" or {quoted[-1]}" if len(quoted) > 1 else quoted[0]
 
     def conv(value: Any) -> str:
         if not isinstance(value, str) or value not in choices:
@@ -238,22 +277,20 @@ def integer(*, ge: int | None = None, le: int | None = None) -> Callable[[Any], 
 
     def conv(value: Any) -> int:
         if isinstance(value, bool):
-            raise ValueError("Input should be a valid integer")
+            raise ValueError("must be a whole number, not true/false")
         if isinstance(value, float):
             if not math.isfinite(value):
-                raise ValueError("Input should be a finite number")
+                raise ValueError("must be a finite whole number")
             if not value.is_integer():
-                raise ValueError("Input should be a valid integer, got a number with a "
-                                 "fractional part")
+                raise ValueError("must be a whole number (no fractional part)")
             value = int(value)
         elif isinstance(value, str):
             try:
                 value = int(value.strip())
             except ValueError:
-                raise ValueError("Input should be a valid integer, unable to parse string as "
-                                 "an integer") from None
+                raise ValueError("must be a whole number, like 4") from None
         elif not isinstance(value, int):
-            raise ValueError("Input should be a valid integer")
+            raise ValueError("must be a whole number, like 4")
         check_bounds(value, ge=ge, le=le)
         return value
 
@@ -272,19 +309,17 @@ def boolean(value: Any) -> bool:
         word = value.strip().lower()
         if word in _TRUE or word in _FALSE:
             return word in _TRUE
-        raise ValueError("Input should be a valid boolean, unable to interpret input")
+        raise ValueError("must be true or false")
     if isinstance(value, int | float) and value in (0, 1):
         return bool(value)
-    if isinstance(value, int) or (isinstance(value, float) and value.is_integer()):
-        raise ValueError("Input should be a valid boolean, unable to interpret input")
-    raise ValueError("Input should be a valid boolean")
+    raise ValueError("must be true or false")
 
 
 def date(value: Any) -> dt.date:
     """A date: a TOML date (or a date-time at midnight), or text YYYY-MM-DD."""
     if isinstance(value, dt.datetime):
         if value.time() != dt.time(0) or value.tzinfo is not None:
-            raise ValueError("Input should be a date, not a date and time")
+            raise ValueError("must be a date, not a date and time")
         return value.date()
     if isinstance(value, dt.date):
         return value
@@ -293,10 +328,10 @@ def date(value: Any) -> dt.date:
             return dt.date.fromisoformat(value.strip())
         except ValueError:
             pass
-    raise ValueError("Input should be a valid date (YYYY-MM-DD)")
+    raise ValueError("must be a date (YYYY-MM-DD)")
 
 
-def strict_number(value: Any, *, prefix: str = "Input should") -> float:
+def strict_number(value: Any, *, prefix: str = "must") -> float:
     """A TOML integer or float (not true/false, not text), finite, as a float."""
     if isinstance(value, bool) or not isinstance(value, int | float):
         raise ValueError(f"{prefix} be a valid number")

@@ -19,9 +19,10 @@ from dataclasses import dataclass
 from pathlib import Path
 from typing import Any
 
-from relayset.errors import InputError, suggest
-from relayset.inputs import schema, units
-from relayset.inputs.schema import ListOf, MapOf, TupleOf, spec, table
+from relayset.errors import InputError, Written, WrittenFloat, quote, suggest, toml_key
+from relayset.inputs import limits, schema, units
+from relayset.inputs.schema import KeyRuleError, ListOf, MapOf, TupleOf, spec, table
+from relayset.inputs.toml_depth import nesting_depth
 
 SCHEMA = "relayset-study/1"
 
@@ -192,8 +193,8 @@ class StudyInfo:
                   "approved": ("prepared_by", "checked_by", "approved_by")}.get(self.status, ())
         missing = [f for f in needed if not getattr(self, f).strip()]
         if missing:
-            raise ValueError(f"status {self.status!r} needs a name in "
-                             + " and ".join(missing))
+            raise KeyRuleError(missing[0], f"must name who signs: status {quote(self.status)} "
+                          "needs a name in " + " and ".join(missing))
 
 
 @_table
@@ -222,18 +223,15 @@ class SystemData:
     def _check(self) -> None:
         r = self.earth_resistivity_range
         if r is not None and not r[0] <= self.earth_resistivity <= r[1]:
-            raise ValueError(
-                f"earth_resistivity_range [{r[0]:g}, {r[1]:g}] ohm*m must run from low to "
-                f"high and contain earth_resistivity = {self.earth_resistivity:g} ohm*m")
+            raise KeyRuleError("earth_resistivity_range", "must run from low to high and contain "
+                          f"earth_resistivity ({self.earth_resistivity:g} ohm*m)")
         from relayset.physics.earth_models import EARTH_MODELS
 
         if self.earth_model not in EARTH_MODELS:
-            raise ValueError(
-                f"earth_model {self.earth_model!r} is not one of {', '.join(EARTH_MODELS)}"
-                + suggest(self.earth_model, EARTH_MODELS)
-            )
+            raise KeyRuleError("earth_model", f"is not one of {', '.join(EARTH_MODELS)}"
+                          + suggest(self.earth_model, EARTH_MODELS))
         if self.frequency not in (50.0, 60.0):
-            raise ValueError(f"frequency must be 50 Hz or 60 Hz, not {self.frequency:g} Hz")
+            raise KeyRuleError("frequency", "must be 50 Hz or 60 Hz")
 
 
 @_table
@@ -267,7 +265,7 @@ class Bundle:
 
     def _check(self) -> None:
         if not abs(self.orientation) <= 2 * math.pi:
-            raise ValueError("orientation must lie between -360 deg and 360 deg")
+            raise KeyRuleError("orientation", "must lie between -360 deg and 360 deg")
 
 
 @_table
@@ -281,10 +279,13 @@ class _Placed:
     conductor: str = spec(Name)
 
     def _check(self) -> None:
-        if (self.height is None) == (self.average_height is None):
+        if self.height is not None and self.average_height is not None:
+            raise KeyRuleError("average_height", "give either height (with sag) or average_height, "
+                          "not both")
+        if self.height is None and self.average_height is None:
             raise ValueError("give either height (with sag) or average_height")
         if self.average_height is not None and self.sag:
-            raise ValueError("sag goes with height (attachment), not with average_height")
+            raise KeyRuleError("sag", "goes with height (attachment), not with average_height")
 
     @property
     def mean_height_m(self) -> float:
@@ -353,7 +354,8 @@ class LineData:
     """``[line]``: length and the transposition plan."""
 
     length: float = spec(LineLength)
-    sections: tuple[Section, ...] | None = spec(ListOf(table(Section), _non_empty), None)
+    sections: tuple[Section, ...] | None = spec(ListOf(
+        table(Section), _non_empty, max_items=limits.MAX_SECTIONS, what="sections"), None)
 
 
 @_table
@@ -447,17 +449,17 @@ class SourceData:
     def _check(self) -> None:
         if self.z1 is not None:
             if self.z0 is None:
-                raise ValueError("z1 needs z0 as well")
+                raise KeyRuleError("z1", "needs z0 as well")
             for name, z in (("z1", self.z1), ("z0", self.z0)):
                 if z.real < 0:
-                    raise ValueError(f"{name} has a negative resistance ({z.real:g} ohm)")
+                    raise KeyRuleError(name, f"has a negative resistance ({z.real:g} ohm)")
                 if z.imag <= 0:
-                    raise ValueError(f"{name} must have a positive (inductive) reactance")
+                    raise KeyRuleError(name, "must have a positive (inductive) reactance")
         elif self.fault_level_3ph is not None:
             if self.x_over_r is None:
-                raise ValueError("fault_level_3ph needs x_over_r")
+                raise KeyRuleError("fault_level_3ph", "needs x_over_r")
             if self.fault_level_1ph is None and self.z0_over_z1 is None:
-                raise ValueError("fault_level_3ph needs fault_level_1ph or z0_over_z1")
+                raise KeyRuleError("fault_level_3ph", "needs fault_level_1ph or z0_over_z1")
         else:
             raise ValueError("give z1 and z0, or fault_level_3ph with x_over_r")
 
@@ -488,13 +490,16 @@ class LoadData:
     max_apparent_power: float = spec(_apparent)
     min_voltage: float = spec(_quantity("dimensionless", ge=0.5, le=1.2, show=("pu", 1.0)), 0.9)
     load_angle_max: float = spec(Angle, math.radians(30.0))
-    transfer_angles: tuple[float, ...] = spec(ListOf(TransferAngle, _non_empty), (0.0,))
-    power_flows: tuple[PowerFlow, ...] = spec(ListOf(table(PowerFlow)), ())
+    transfer_angles: tuple[float, ...] = spec(ListOf(
+        TransferAngle, _non_empty, max_items=limits.MAX_SWEEP_VALUES, what="load cases"),
+        (0.0,))
+    power_flows: tuple[PowerFlow, ...] = spec(ListOf(
+        table(PowerFlow), max_items=limits.MAX_SWEEP_VALUES, what="load cases"), ())
 
     def _check(self) -> None:
         if not 0 <= self.load_angle_max < math.pi / 2:
-            raise ValueError(f"load_angle_max must be at least 0 deg and below 90 deg, not "
-                             f"{math.degrees(self.load_angle_max):g} deg")
+            raise KeyRuleError("load_angle_max", "must be at least 0 deg and below 90 deg, not "
+                               f"{math.degrees(self.load_angle_max):g} deg")
 
 
 @_table
@@ -523,13 +528,20 @@ Zone1Pct = _number(gt=0, lt=100, rule="must be between 0 and 100 % of the line")
 class ReachStudyData:
     """``[reach_study]``: which faults, where, through which resistances."""
 
-    fault_types: tuple[str, ...] = spec(ListOf(_text(10), _non_empty), (
+    fault_types: tuple[str, ...] = spec(ListOf(
+        _text(10), _non_empty, max_items=limits.MAX_FAULT_TYPES, what="fault types"), (
         "AG", "BG", "CG", "AB", "BC", "CA", "ABG", "BCG", "CAG", "ABC"))
     location_step_pct: float = spec(_number(ge=MIN_LOCATION_STEP_PCT, le=50, unit=" %"), 1.0)
-    locations_pct: tuple[float, ...] | None = spec(ListOf(LocationPct, _non_empty), None)
-    fault_resistances: tuple[float, ...] = spec(ListOf(Resistance), (0.0, 5.0, 10.0, 20.0))
+    locations_pct: tuple[float, ...] | None = spec(ListOf(
+        LocationPct, _non_empty, max_items=limits.MAX_LOCATIONS, what="fault locations"),
+        None)
+    fault_resistances: tuple[float, ...] = spec(ListOf(
+        Resistance, max_items=limits.MAX_SWEEP_VALUES, what="fault resistances"),
+        (0.0, 5.0, 10.0, 20.0))
     phase_fault_resistance: float = spec(Resistance, 0.0)
-    source_cases: tuple[SourceCase, ...] = spec(ListOf(table(SourceCase), _non_empty), (
+    source_cases: tuple[SourceCase, ...] = spec(ListOf(
+        table(SourceCase), _non_empty, max_items=limits.MAX_SWEEP_VALUES,
+        what="source cases"), (
         SourceCase(name="strong", scale=0.5),
         SourceCase(name="nominal", scale=1.0),
         SourceCase(name="weak", scale=2.0),
@@ -567,7 +579,10 @@ class AdjacentLine:
     bus: str | None = spec(_text(100), None)
 
     def _check(self) -> None:
-        if (self.z1 is None) == (self.study is None):
+        if self.z1 is not None and self.study is not None:
+            raise KeyRuleError("study", "give either z1 or study (a path to the adjacent line's "
+                          "study file), not both")
+        if self.z1 is None and self.study is None:
             raise ValueError("give either z1 or study (a path to the adjacent line's study file)")
 
 
@@ -590,17 +605,22 @@ class Study:
     study: StudyInfo = spec(table(StudyInfo))
     revisions: tuple[Revision, ...] = spec(ListOf(table(Revision)), ())
     system: SystemData = spec(table(SystemData))
-    conductor_types: dict[str, ConductorType] = spec(MapOf(table(ConductorType), _text(100)))
+    conductor_types: dict[str, ConductorType] = spec(MapOf(
+        table(ConductorType), _text(100), max_items=limits.MAX_CONDUCTOR_TYPES,
+        what="conductor types"))
     circuits: tuple[Circuit, ...] = spec(ListOf(table(Circuit), _one_or_two))
-    shield_wires: tuple[ShieldWire, ...] = spec(ListOf(table(ShieldWire)), ())
+    shield_wires: tuple[ShieldWire, ...] = spec(ListOf(
+        table(ShieldWire), max_items=limits.MAX_SHIELD_WIRES, what="shield wires"), ())
     line: LineData = spec(table(LineData))
     relay: RelayData | None = spec(table(RelayData), None)
     sources: dict[str, SourceData] = spec(MapOf(table(SourceData), _text(100)), factory=dict)
     load: LoadData | None = spec(table(LoadData), None)
     reach_study: ReachStudyData = spec(table(ReachStudyData), factory=ReachStudyData)
     error_budget: ErrorBudget = spec(table(ErrorBudget), factory=ErrorBudget)
-    adjacent_lines: tuple[AdjacentLine, ...] = spec(ListOf(table(AdjacentLine)), ())
-    lines_behind: tuple[AdjacentLine, ...] = spec(ListOf(table(AdjacentLine)), ())
+    adjacent_lines: tuple[AdjacentLine, ...] = spec(ListOf(
+        table(AdjacentLine), max_items=limits.MAX_ADJACENT_LINES, what="lines"), ())
+    lines_behind: tuple[AdjacentLine, ...] = spec(ListOf(
+        table(AdjacentLine), max_items=limits.MAX_ADJACENT_LINES, what="lines"), ())
     fault_resistance: FaultResistanceData = spec(table(FaultResistanceData),
                                                  factory=FaultResistanceData)
 
@@ -621,12 +641,7 @@ class Study:
 TOP_KEYS: tuple[str, ...] = table(Study).keys
 
 
-_BARE_KEY = re.compile(r"^[A-Za-z0-9_-]+$")
-
-
-def _key(k: str) -> str:
-    """A table key as the user would write it in TOML (quoted unless bare)."""
-    return k if _BARE_KEY.match(k) else '"' + k.replace('"', '\\"') + '"'
+_key = toml_key
 
 
 def field_path(loc: tuple[str | int, ...]) -> str:
@@ -644,11 +659,10 @@ def _input_error(issue: schema.Issue, source: str) -> InputError:
         known = issue.known
         rule = "unknown key" + (suggest(str(issue.loc[-1]), known) or (
             f"; valid keys: {', '.join(known)}" if known else ""))
-        return InputError(rule, field=field, source=source)
+        return InputError(rule, field=field, value=issue.value, source=source)
     if issue.kind == "missing":
         return InputError("is required but missing", field=field, source=source)
-    value = None if isinstance(issue.value, dict | list | tuple) else issue.value
-    return InputError(issue.rule, field=field, value=value, source=source)
+    return InputError(issue.rule, field=field, value=issue.value, source=source)
 
 
 def _duplicate_key(text: str, exc: tomllib.TOMLDecodeError, source: str) -> InputError | None:
@@ -669,10 +683,12 @@ def _duplicate_key(text: str, exc: tomllib.TOMLDecodeError, source: str) -> Inpu
             table = h.group(1)
     here = lines[line_no - 1] if line_no <= len(lines) else ""
     h = re.match(r"^\s*\[\[?\s*([^\]]+?)\s*\]\]?", here)
-    key = h.group(1) if h else here.split("=", 1)[0].strip()
+    key, _, written = here.partition("=")
+    key = h.group(1) if h else key.strip()
     field = key if h or not table else f"{table}.{key}"
+    value = None if h else Written(written.strip())
     return InputError(f"is given twice (line {line_no}); keep one", field=field or "?",
-                      source=source)
+                      value=value, source=source)
 
 
 def read_toml(path: str | Path) -> dict:
@@ -685,35 +701,66 @@ def read_toml(path: str | Path) -> dict:
 
 def read_bytes(path: str | Path) -> bytes:
     """The bytes of an input file, read once (the archive hashes exactly what was parsed);
-    an InputError says why they cannot be read."""
+    an InputError says why they cannot be read, or that the file is larger than any study
+    (:data:`~relayset.inputs.limits.MAX_FILE_BYTES`)."""
     p = Path(path)
     try:
         if p.is_dir():
             raise InputError("is a folder, not a study file", source=str(path))
-        return p.read_bytes()
+        return read_at_most(p, str(path))
     except FileNotFoundError:
         raise InputError("file does not exist", source=str(path)) from None
     except OSError as exc:
         raise InputError(f"cannot be read ({exc.strerror or exc})", source=str(path)) from None
 
 
+def read_at_most(path: Path, source: str) -> bytes:
+    """The bytes of ``path``, refused (InputError) beyond the input file size limit.
+
+    Reads one byte past the limit rather than trusting the size the file system gives, so
+    that a device or a growing file is refused as well.
+    """
+    with open(path, "rb") as f:
+        raw = f.read(limits.MAX_FILE_BYTES + 1)
+    _check_size(raw, source)
+    return raw
+
+
+def _check_size(raw: bytes | str, source: str) -> None:
+    if len(raw) > limits.MAX_FILE_BYTES:
+        raise InputError(f"is larger than {limits.MAX_FILE_BYTES // 1024} KiB, the most an "
+                         "input file may be (a line study is a few KB); is it the right file?",
+                         source=source)
+
+
 def loads_toml(raw: bytes, source: str) -> dict:
     """Decode (UTF-8, optional byte-order mark) and parse TOML bytes.
 
     Bad TOML or text that is not UTF-8 is an InputError naming the file; a key given twice
-    is named by its dotted path.
+    is named by its dotted path. A file over the size limit, or nesting deeper than
+    :data:`~relayset.inputs.limits.MAX_DEPTH`, is refused before it is parsed. Floats keep
+    their text (:class:`~relayset.errors.WrittenFloat`) for messages.
     """
+    _check_size(raw, source)
     try:
         text = raw.decode("utf-8-sig")
     except UnicodeDecodeError:
         raise InputError("is not UTF-8 text", source=source) from None
+    deep = nesting_depth(text, limits.MAX_DEPTH)
+    if deep is not None:
+        _, line, key = deep
+        raise InputError(
+            f"nests tables, lists and dotted keys more than {limits.MAX_DEPTH} levels deep "
+            f"(line {line}); a line study needs 6", field=key or f"line {line}", source=source)
     try:
-        return tomllib.loads(text)
+        return tomllib.loads(text, parse_float=WrittenFloat)
     except tomllib.TOMLDecodeError as exc:
         dup = _duplicate_key(text, exc, source)
         if dup is not None:
             raise dup from None
         raise InputError(f"is not valid TOML ({exc})", source=source) from None
+    except (RecursionError, MemoryError):  # the depth scan should have caught it first
+        raise InputError("is too large or nests too deep to read", source=source) from None
 
 
 def parse_study(data: dict, source: str = "<study>") -> Study:
@@ -729,7 +776,7 @@ def parse_study(data: dict, source: str = "<study>") -> Study:
         # misspelling is what the user has to fix.
         raise _input_error(exc.first(), source) from None
     if study.schema_ != SCHEMA:
-        raise InputError(f"unsupported schema; this version reads {SCHEMA!r}",
+        raise InputError(f"unsupported schema; this version reads {quote(SCHEMA)}",
                          field="schema", value=study.schema_, source=source)
     check_study(study, data, source)
     return study
@@ -779,6 +826,7 @@ def check_study(study: Study, data: dict, source: str) -> None:
     def fail(rule: str, field: str, value: Any = None) -> None:
         raise InputError(rule, field=field, value=value, source=source)
 
+    no_end = f"names no end of this line (the ends are {quote(ends[0])} and {quote(ends[1])})"
     if ends[0] == ends[1]:
         fail("must differ from study.from_substation", "study.to_substation", ends[1])
     if study.relay is not None:
@@ -823,23 +871,22 @@ def check_study(study: Study, data: dict, source: str) -> None:
     if study.relay is not None:
         end = study.relay.end
         if end != "both" and end not in ends:
-            fail(f"is not an end of this line; use {ends[0]!r}, {ends[1]!r} or 'both'"
+            fail(f"is not an end of this line; use {quote(ends[0])}, {quote(ends[1])} or 'both'"
                  + suggest(end, ends), "relay.end", end)
         for key in study.relay.at:
             if key not in ends:
-                fail(f"names no end of this line (the ends are {ends[0]!r} and {ends[1]!r})"
-                     + suggest(key, ends), f"relay.at.{_key(key)}")
+                fail(no_end + suggest(key, ends), f"relay.at.{_key(key)}",
+                     _raw(data, "relay", "at", key))
     for key in study.sources:
         if key not in ends:
-            fail(f"names no end of this line (the ends are {ends[0]!r} and {ends[1]!r})"
-                 + suggest(key, ends), f"sources.{_key(key)}")
+            fail(no_end + suggest(key, ends), f"sources.{_key(key)}", _raw(data, "sources", key))
 
     rs = study.reach_study
     for k, case in enumerate(rs.source_cases):
         for key in case.at:
             if key not in ends:
-                fail(f"names no end of this line (the ends are {ends[0]!r} and {ends[1]!r})"
-                     + suggest(key, ends), f"reach_study.source_cases[{k}].at.{_key(key)}")
+                fail(no_end + suggest(key, ends), f"reach_study.source_cases[{k}].at.{_key(key)}",
+                     _raw(data, "reach_study", "source_cases", k, "at", key))
     if len(study.circuits) == 1 and rs.parallel_circuit is not None:
         fail("the line has one circuit, so there is no parallel circuit to set",
              "reach_study.parallel_circuit", rs.parallel_circuit)
@@ -860,7 +907,7 @@ def check_study(study: Study, data: dict, source: str) -> None:
         missing = [e for e in ends if e not in study.sources]
         if missing:
             fail(f"load cases given as power flows need sources at both ends (none at "
-                 f"{missing[0]!r})", "load.power_flows")
+                 f"{quote(missing[0])})", "load.power_flows")
 
 
 def check_reach_inputs(study: Study, source: str) -> None:
@@ -870,12 +917,12 @@ def check_reach_inputs(study: Study, source: str) -> None:
                          field="relay", source=source)
     ends = study.ends
     if not any(e in study.sources for e in ends):
-        raise InputError(f"give a source for {ends[0]!r} or {ends[1]!r} (or both)",
+        raise InputError(f"give a source for {quote(ends[0])} or {quote(ends[1])} (or both)",
                          field="sources", source=source)
     for end in study.relay_ends:
         if end not in study.sources:
             raise InputError(
-                f"the relay at {end!r} has no source behind it, so it would measure no fault "
+                f"the relay at {quote(end)} has no source behind it, so it would measure no fault "
                 f"current; add a [sources.{_key(end)}] table", field="relay.end",
                 value=study.relay.end, source=source)
 
@@ -893,7 +940,7 @@ def check_settings_inputs(study: Study, source: str) -> None:
             for k, line in enumerate(getattr(study, which)):
                 if line.bus is None:
                     raise InputError(
-                        f"say which end the line leaves ({ends[0]!r} or {ends[1]!r}): "
+                        f"say which end the line leaves ({quote(ends[0])} or {quote(ends[1])}): "
                         "relay.end is 'both'", field=f"{which}[{k}].bus", source=source)
 
 

@@ -13,6 +13,8 @@ import re
 from functools import lru_cache
 from typing import Any
 
+from relayset.errors import quote
+
 # Each kind names the SI unit it is stored in; the parser checks dimensionality against it.
 KINDS: dict[str, str] = {
     "length": "m",
@@ -104,13 +106,14 @@ def _to_si(magnitude: float, unit: str, kind: str) -> float:
     try:
         q = ureg.Quantity(magnitude, unit)
     except Exception as exc:  # pint raises several error types for unknown units
-        raise UnitRuleError(f"unit {unit!r} is not a known unit"
+        raise UnitRuleError(f"unit {quote(unit)} is not a known unit"
                             + _unit_hint(unit, kind)) from exc
     try:
         return float(q.to(target).magnitude) if target else float(q.to("").magnitude)
     except Exception as exc:
         raise UnitRuleError(
-            f"unit {unit!r} is not a unit of {kind.replace('_', ' ')} (expected like '{target}')"
+            f"unit {quote(unit)} is not a unit of {kind.replace('_', ' ')} "
+            f"(expected like '{target}')"
         ) from exc
 
 
@@ -130,7 +133,7 @@ def target_example(kind: str) -> str:
 def _decimal_comma(text: str) -> None:
     if _DECIMAL_COMMA.match(text):
         raise UnitRuleError("uses a decimal comma; write the number with a decimal point "
-                            f"(like {text.strip().replace(',', '.', 1)!r})")
+                            f"(like {quote(text.strip().replace(',', '.', 1))})")
 
 
 def _finite(x: float) -> float:

@@ -16,6 +16,7 @@ import warnings
 import numpy as np
 
 from relayset.errors import InputError
+from relayset.inputs.limits import MAX_CASES, MAX_CASES_PER_LOCATION
 from relayset.inputs.philosophy import Philosophy
 from relayset.inputs.study_file import Study, check_reach_inputs
 from relayset.physics import loadflow, measurement, network, transposition
@@ -58,12 +59,9 @@ def build_source(study: Study, name: str, source: str) -> network.Source | None:
         raise exc.located(source=source, prefix=field) from None
 
 
-#: Largest number of fault cases a reach study solves (all arrangements).
-MAX_CASES = 10_000_000
 #: Fault cases solved and condensed at a time (bounds the sweep's memory, some 0.5 kB a
-#: case while a chunk is worked on), and the most at one location (the smallest chunk).
+#: case while a chunk is worked on). The case limits live with the other input limits.
 CHUNK_CASES = 100_000
-MAX_CASES_PER_LOCATION = 200_000
 
 
 def _same_cascade(a: network.LineCascade, b: network.LineCascade) -> bool:
