@@ -13,7 +13,6 @@ import math
 import numpy as np
 import pytest
 from numpy.testing import assert_allclose
-from reference_solver import solve_fault_single
 
 from relayset import api
 from relayset.cli import main
@@ -24,6 +23,8 @@ from relayset.studies.parameters import compute_parameters
 from relayset.studies.reach import _cascade, build_source
 from relayset.studies.verification import RelayModel, Run, view
 from relayset.studies.verification.relay_model import forward
+
+from reference_solver import solve_fault_single
 
 D132 = "ashcombe_brenwick_132kv.toml"
 D230 = "elsford_fallowby_230kv_double.toml"
@@ -109,7 +110,7 @@ def test_remote_bus_dlg_through_ground_resistance_at_max_export_132kv(tmp_path, 
 def test_prefault_quantities_at_r_by_superposition(demo_path):
     # Identity: a fault through 1e12 ohm leaves the network in its prefault state, so the
     # bus R quantities equal the prefault ones the sweep reports (relative 1e-9).
-    study, geo, line, s_s, s_r = _line(demo_path(D132))
+    _, geo, line, s_s, s_r = _line(demo_path(D132))
     sw = network.solve_fault_sweep(line, s_s, s_r, v_nominal_v=geo.v_nominal_v,
                                    fault_types=("AG",), m=np.array([0.3]),
                                    r_fault_ohm=np.array([1e12]), transfer_angle_rad=[0.2])
@@ -127,7 +128,7 @@ def test_balanced_bolted_internal_fault_on_untransposed_double_circuit_is_forwar
     judged reverse. The positive-sequence element polarised by the prefault voltage sees
     every internal three-phase fault forward, and every one at the relay's own bus
     (behind it, fed from the line) reverse, at every listed load case."""
-    study, geo, line, s_s, s_r = _line(demo_path(D230))
+    _, geo, line, s_s, s_r = _line(demo_path(D230))
     sw = network.solve_fault_sweep(line, s_s, s_r, v_nominal_v=geo.v_nominal_v,
                                    fault_types=("ABC",), m=np.linspace(0.0, 1.0, 11),
                                    r_fault_ohm=np.array([0.0, 0.0]),
@@ -147,7 +148,7 @@ def test_supervision_drops_k0m_only_where_the_parallel_residual_is_larger(demo_p
     # Circuit law: for a ground fault on the parallel circuit its residual current exceeds
     # the protected circuit's, so the supervised relay measures without k0m there, and the
     # loop equals the uncompensated one exactly.
-    study, geo, line, s_s, s_r = _line(demo_path(D230))
+    _, geo, line, s_s, s_r = _line(demo_path(D230))
     from relayset.studies.verification import swap_circuits
 
     sw = network.solve_fault_sweep(swap_circuits(line), s_s, s_r,

@@ -20,7 +20,6 @@ from relayset.studies.geometry import LineGeometry
 from relayset.studies.reach import _cascade, _emfs_for_power_flows, build_source
 from relayset.studies.verification.envelope import Envelope
 
-
 #: Per-case results the relay model reads (both ends, both circuits, the currents into the
 #: fault from each side for faults behind a relay); the fault-point voltage is not needed.
 OUTPUTS = ("v_s", "i_s", "i_s_parallel", "v_r", "i_r", "i_r_parallel", "i_f_from_s",
