@@ -200,7 +200,8 @@ def test_as_many_sections_as_fit_in_the_size_limit_are_refused(capsys, tmp_path)
     assert len(text.encode()) < limits.MAX_FILE_BYTES
     path = tmp_path / "many.toml"
     path.write_text(text, "utf-8")
-    refused(capsys, path, "line.sections", f"has {n:,} sections", f"at most {limits.MAX_SECTIONS}")
+    refused(capsys, path, "line.sections", f"has {n:,} sections",
+            f"at most {limits.MAX_SECTIONS:,}")
 
 
 # -- under a memory cap, in a fresh process --------------------------------------------------

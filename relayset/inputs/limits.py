@@ -20,8 +20,9 @@ MAX_FILE_BYTES = 1024 * 1024
 MAX_DEPTH = 32
 
 #: Transposition sections of one line ([line] sections). Real lines have 1 to about 10
-#: (three per transposition cycle); each section is a matrix product in every fault case.
-MAX_SECTIONS = 100
+#: (three per transposition cycle), a route with changing towers some tens; each section is
+#: a matrix product in every fault case.
+MAX_SECTIONS = 1000
 
 #: Shield (earth) wires of one tower. Real towers carry 0 to 2 (rarely 4); with 2 circuits
 #: of 3 positions and bundles of up to 8, a tower stays at most 6 + 8 conductors across.
