@@ -334,3 +334,49 @@ def test_apparent_power_is_not_given_in_watts(variant, capsys):
     assert "load.max_apparent_power" in err and "not W" in err and "\n" not in err
     path = variant(DEMO_1C, lambda d: d["load"].update(max_apparent_power="60 MVA"))
     assert main(["params", str(path)]) == 0
+
+
+# -- the value as the user wrote it (the project's rule: never a Python repr) ---------------
+
+def test_complex_value_shown_as_written(capsys, tmp_path, variant):
+    err = bad(capsys, tmp_path, variant(DEMO_1C, lambda d: d["relay"].update(
+        z1_set="-4.2+14.5j ohm")))
+    has(err, 'relay.z1_set = "-4.2+14.5j ohm": must have R >= 0 and X > 0')
+    assert "(-4.2" not in err
+
+
+def test_number_shown_as_written(capsys, tmp_path, demo_path):
+    text = demo_path(DEMO_1C).read_text("utf-8").replace("x_over_r = 10", "x_over_r = 1e3")
+    path = tmp_path / "study.toml"
+    path.write_text(text, "utf-8")
+    has(bad(capsys, tmp_path, path), "sources.Brenwick.x_over_r = 1e3: must be at most 500")
+
+
+def test_table_rule_names_its_key_and_value(capsys, tmp_path, variant):
+    err = bad(capsys, tmp_path, variant(DEMO_1C, lambda d: d["sources"]["Ashcombe"].pop("z0")))
+    has(err, 'sources.Ashcombe.z1 = "1.5 + 12j ohm": needs z0 as well')
+
+
+def test_unknown_key_shows_its_value(capsys, tmp_path, variant):
+    err = bad(capsys, tmp_path, variant(DEMO_1C, lambda d: d["system"].update(
+        frequncy=d["system"].pop("frequency"))))
+    has(err, 'system.frequncy = "50 Hz": unknown key')
+
+
+def test_duplicated_key_shows_the_value_as_written(capsys, tmp_path, demo_path):
+    text = demo_path(DEMO_1C).read_text("utf-8").replace(
+        'frequency = "50 Hz"', "frequency = \"50 Hz\"\nfrequency = '60 Hz'")
+    path = tmp_path / "study.toml"
+    path.write_text(text, "utf-8")
+    has(bad(capsys, tmp_path, path), "system.frequency = '60 Hz': is given twice")
+
+
+def test_choice_in_own_words(capsys, tmp_path, variant):
+    err = bad(capsys, tmp_path, variant(DEMO_1C, lambda d: d["study"].update(status="final")))
+    has(err, "study.status = \"final\": must be 'draft', 'for review' or 'approved'")
+    assert "Input should" not in err
+
+
+def test_text_with_quotes_shown_in_toml_quoting(capsys, tmp_path, variant):
+    err = bad(capsys, tmp_path, variant(DEMO_1C, lambda d: _pos(d, 1).update(height='2"x')))
+    has(err, 'circuits[0].positions[1].height = "2\\"x":')

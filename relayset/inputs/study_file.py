@@ -63,14 +63,18 @@ def _bounds(x, gt, ge, le, lt, fmt) -> None:
 
 
 def _complex_quantity(kind: str = "impedance", *, min_abs: float = 1e-3,
-                      max_abs: float = 1e4) -> Callable[[Any], complex]:
-    """A complex SI quantity whose magnitude lies in [min_abs, max_abs] [ohm]."""
+                      max_abs: float = 1e4, inductive: bool = False
+                      ) -> Callable[[Any], complex]:
+    """A complex SI quantity whose magnitude lies in [min_abs, max_abs] [ohm]; with
+    ``inductive`` also R >= 0 and X > 0 (a line's impedance)."""
 
     def parse(v: Any) -> complex:
         z = units.parse_complex(v, kind)
         if not min_abs <= abs(z) <= max_abs:
             raise ValueError(f"must have a magnitude between {min_abs:g} and {max_abs:g} ohm "
                              "(plausible range)")
+        if inductive and not (z.real >= 0 and z.imag > 0):
+            raise ValueError("must have R >= 0 and X > 0 (an inductive line impedance)")
         return z
 
     return parse
@@ -152,6 +156,7 @@ Temperature = _quantity("temperature", ge=-70.0, le=300.0)
 Angle = _quantity("angle", ge=-360 * _DEG, le=360 * _DEG, show=("deg", _DEG))
 Resistance = _quantity("resistance", ge=0, le=1e3)
 ComplexOhm = _complex_quantity()
+LineOhm = _complex_quantity(inductive=True)
 LocationPct = _number(ge=0, le=100, rule="fault locations must lie between 0 and 100 % of the "
                       "line")
 # Conductor and tower dimensions.
@@ -411,7 +416,7 @@ class RelayData:
     end: str = spec(_text(100, min_len=1))
     ct_ratio: float = spec(_ct_ratio)
     vt_ratio: float = spec(_vt_ratio)
-    z1_set: complex | None = spec(ComplexOhm, None)
+    z1_set: complex | None = spec(LineOhm, None)
     k0_set: K0Setting | None = spec(table(K0Setting), None)
     k0m_set: K0Setting | None = spec(table(K0Setting), None)
     #: ``[relay.at.SUBSTATION]``: CT/VT ratios of the relay at that end, if not the above.
@@ -572,7 +577,7 @@ class AdjacentLine:
     """A line leaving a bus of this one: its z1, or its own study file."""
 
     name: str = spec(_text(200))
-    z1: complex | None = spec(ComplexOhm, None)
+    z1: complex | None = spec(LineOhm, None)
     study: str | None = spec(_path_text, None)
     #: the substation of this line the adjacent line leaves (default: for adjacent_lines the
     #: relay's remote end, for lines_behind the relay's own end; needed when relay.end is both)
@@ -847,6 +852,12 @@ def check_study(study: Study, data: dict, source: str) -> None:
     names = [c.name for c in study.circuits]
     if len(set(names)) != len(names):
         fail("the two circuits need different names", "circuits[1].name", names[1])
+    for s, sec in enumerate(study.line.sections or ()):
+        for key in sec.order if isinstance(sec.order, dict) else ():
+            if key not in names:
+                fail("names no circuit" + suggest(key, names),
+                     f"line.sections[{s}].order.{_key(key)}",
+                     _raw(data, "line", "sections", s, "order", key))
     placed = [(f"circuits[{c}].positions[{k}]", ("circuits", c, "positions", k), pos)
               for c, circ in enumerate(study.circuits) for k, pos in enumerate(circ.positions)]
     placed += [(f"shield_wires[{k}]", ("shield_wires", k), sw)

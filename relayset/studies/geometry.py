@@ -194,10 +194,12 @@ def build_geometry(study: Study, source: str = "<study>") -> LineGeometry:
                 labels = circuit.phase_labels
                 missing = [p for p in labels if p not in o]
                 if len(o) != 3 or missing or len(set(o)) != 3:
-                    rule = (f"phase {missing[0]!r} is missing" if missing
+                    from relayset.errors import as_written, quote
+
+                    rule = (f"phase {quote(missing[0])} is missing" if missing
                             else "must list each phase once")
                     raise InputError(f"{rule}; an order names the phase at each of the three "
-                                     f"positions, using {list(labels)}",
+                                     f"positions, using {as_written(list(labels))}",
                                      field=f, value=list(o), source=source)
                 order.extend(3 * c + labels.index(p) for p in o)
             lengths_l.append(sec.length)
