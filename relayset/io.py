@@ -141,8 +141,9 @@ _INVISIBLE = re.compile("[\x00-\x1f\x7f-\x9f\u2028\u2029\u202a-\u202e\u2066-\u20
                         "\ud800-\udfff]")
 
 #: A cell starting with one of these is read as a formula by spreadsheet programs (OWASP,
-#: "CSV Injection"); tab and carriage return because some programs strip them first.
-FORMULA_START = ("=", "+", "-", "@", "\t", "\r")
+#: "CSV Injection"). A leading tab or carriage return, which some programs strip first, is
+#: already written out as ``\x09`` / ``\x0d`` by :func:`visible_text`.
+FORMULA_START = ("=", "+", "-", "@")
 
 
 def _escape(m: re.Match) -> str:
@@ -165,7 +166,7 @@ def visible_text(text: str) -> str:
 def spreadsheet_text(text: str) -> str:
     """User text for a spreadsheet cell (CSV or .xlsx): visible, and never a formula.
 
-    A leading ``= + - @`` (or tab / carriage return) gets a single quote in front, so that a
+    A leading ``= + - @`` gets a single quote in front, so that a
     spreadsheet program shows the text rather than evaluating it (OWASP CSV-injection
     guidance). Only text goes through here: numbers stay numbers.
     """

@@ -31,6 +31,7 @@ from __future__ import annotations
 
 import cmath
 import math
+from abc import ABC, abstractmethod
 from dataclasses import dataclass
 from typing import Any
 
@@ -56,7 +57,7 @@ def _direction(direction: str) -> None:
         raise ValueError(f"direction must be 'forward' or 'reverse', not {direction}")
 
 
-class Characteristic:
+class Characteristic(ABC):
     """What both shapes answer: the interface the settings, verification and report use.
 
     Subclasses give ``direction`` and the private ``_contains``, ``_reach_scale`` and
@@ -118,25 +119,25 @@ class Characteristic:
         """
         return self._reach_along(np.asarray(angle_rad, dtype=float))
 
+    @abstractmethod
     def outline(self, n: int = 72) -> np.ndarray:
         """Points of the boundary, counter-clockwise, for drawing [ohm]: the corners of a
         polygon, ``n`` points of a circle."""
-        raise NotImplementedError
 
+    @abstractmethod
     def region(self) -> dict[str, Any]:
         """Neutral JSON geometry [ohm]: ``{"kind": "polygon", "vertices": [[R, X], ...]}``
         (corners counter-clockwise) or ``{"kind": "circle", "center": [R, X], "radius": r}``.
         """
-        raise NotImplementedError
 
-    def _contains(self, z: np.ndarray) -> np.ndarray:
-        raise NotImplementedError
+    @abstractmethod
+    def _contains(self, z: np.ndarray) -> np.ndarray: ...
 
-    def _reach_scale(self, z: np.ndarray) -> np.ndarray:
-        raise NotImplementedError
+    @abstractmethod
+    def _reach_scale(self, z: np.ndarray) -> np.ndarray: ...
 
-    def _reach_along(self, psi: np.ndarray) -> np.ndarray:
-        raise NotImplementedError
+    @abstractmethod
+    def _reach_along(self, psi: np.ndarray) -> np.ndarray: ...
 
 
 @dataclass(frozen=True)

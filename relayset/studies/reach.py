@@ -272,23 +272,28 @@ def run_reach_study(
 
 
 def _emfs_for_power_flows(study, line, src, names, relay_end, scales, parallel, v_nom):
-    """EMFs of both sources for the P, Q load cases at the relay end (None: use angles).
-
-    The positive-sequence load flow of :func:`relayset.physics.loadflow.emfs_for_load`
-    fixes the relay-end voltage at nominal; seen from the far end the line is reversed.
-    """
+    """EMFs of both sources for the P, Q load cases at the relay end (None: use angles)."""
     if not (study.load and study.load.power_flows):
         return None
     p = np.array([f.active_power for f in study.load.power_flows])
     q = np.array([f.reactive_power for f in study.load.power_flows])
-    if relay_end == names[0]:
+    return emfs_for_flows_at(line, src, names, relay_end, p, q, scales, parallel, v_nom)
+
+
+def emfs_for_flows_at(line, src, names, end, p_w, q_var, scales, parallel, v_nom):
+    """EMFs (e_s, e_r) of both sources for powers P + jQ [W, var] into the line at ``end``.
+
+    The positive-sequence load flow of :func:`relayset.physics.loadflow.emfs_for_load`
+    fixes that end's voltage at nominal; seen from the far end the line is reversed.
+    """
+    if end == names[0]:
         return loadflow.emfs_for_load(line, src[names[0]], src[names[1]], v_nominal_v=v_nom,
-                                     p_w=p, q_var=q, source_scale=scales,
+                                     p_w=p_w, q_var=q_var, source_scale=scales,
                                      parallel_state=parallel)
     rev = network.LineCascade(line.z_ohm_per_m[::-1], line.length_m[::-1],
                               None if line.y_s_per_m is None else line.y_s_per_m[::-1])
     e_r, e_s = loadflow.emfs_for_load(rev, src[names[1]], src[names[0]], v_nominal_v=v_nom,
-                                     p_w=p, q_var=q, source_scale=scales[..., ::-1]
+                                     p_w=p_w, q_var=q_var, source_scale=scales[..., ::-1]
                                      if np.ndim(scales) == 2 else scales,
                                      parallel_state=parallel)
     return e_s, e_r

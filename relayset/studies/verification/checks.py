@@ -140,23 +140,26 @@ def _finish(zone: str, check_id: str, requirement: str, acc: _Acc, required: flo
                             "" if passed else consider, acc.n_insensitive)
 
 
-def _rf_mask(rf_pairs: np.ndarray, zone: ZoneSetting, tower_ohm: float) -> np.ndarray:
-    """Fault resistances a zone must cover: its arc (+ tower footing) targets, else bolted."""
+def resistive_target(zone: ZoneSetting, tower_ohm: float) -> tuple[float, float]:
+    """(R_g, R_ph) a zone must cover [ohm]: a quadrilateral's arc plus tower footing to
+    ground and its arc between phases; bolted (0, 0) for a zone without resistive target."""
     if zone.shape == "quadrilateral" and zone.arc_resistance_ground_ohm is not None:
-        rg = zone.arc_resistance_ground_ohm + tower_ohm
-        rp = zone.arc_resistance_phase_ohm
-    else:
-        rg = rp = 0.0
+        return zone.arc_resistance_ground_ohm + tower_ohm, zone.arc_resistance_phase_ohm
+    return 0.0, 0.0
+
+
+def rf_mask(rf_pairs: np.ndarray, zone: ZoneSetting, tower_ohm: float) -> np.ndarray:
+    """Fault resistances a zone must cover (see :func:`resistive_target`)."""
+    rg, rp = resistive_target(zone, tower_ohm)
     return (rf_pairs[:, 0] <= rg * (1 + 1e-9)) & (rf_pairs[:, 1] <= rp * (1 + 1e-9))
 
 
 def resistive_targets(study: Study, settings: Sequence[SettingsResult]
                       ) -> list[tuple[float, float]]:
-    """(R_g, R_ph) each quadrilateral zone 1 and zone 2 must cover: arc plus tower footing
-    to ground, arc between phases [ohm]."""
+    """The resistive targets of every quadrilateral zone 1 and zone 2 [ohm], for the
+    envelope's resistance grids."""
     tower = study.fault_resistance.tower_footing_resistance
-    return [(z.arc_resistance_ground_ohm + tower, z.arc_resistance_phase_ohm)
-            for st in settings for z in st.zones
+    return [resistive_target(z, tower) for st in settings for z in st.zones
             if z.zone in ("zone1", "zone2") and z.arc_resistance_ground_ohm is not None]
 
 
@@ -243,14 +246,12 @@ def verify_end(sim: Simulation, end: str, st: SettingsResult, *, study: Study,
         if run.faulted == "protected":
             v = view(run, at_s, st.k0.k0, k0m, model, line_angle=theta)
             m_ax = v.m_end[None, :, None, None, None]
-            s1, w1, ins = loop_scale(v, z1, theta, zl, model, reach_scale=reach_scale)
-            o1, u1, _ = loop_scale(v, z1, theta, zl, model, close_in=0.0,
-                                   reach_scale=reach_scale)
-            o2, u2, _ = loop_scale(v, z2, theta, zl, model, close_in=0.0,
-                                   reach_scale=reach_scale)
+            s1, w1, ins = loop_scale(v, z1, theta, zl, model)
+            o1, u1, _ = loop_scale(v, z1, theta, zl, model, close_in=0.0)
+            o2, u2, _ = loop_scale(v, z2, theta, zl, model, close_in=0.0)
             d1 = _describe(v, w1, labels, "protected line", rfp)
-            mask_rf1 = _rf_mask(rfp, z1, tower)[rf_ax]
-            mask_rf2 = _rf_mask(rfp, z2, tower)[rf_ax]
+            mask_rf1 = rf_mask(rfp, z1, tower)[rf_ax]
+            mask_rf2 = rf_mask(rfp, z2, tower)[rf_ax]
             every = np.ones(s1.shape, dtype=bool)
             # With no source behind the relay it sees no fault current: that is a weak-infeed
             # (pilot scheme) matter, not one of the zone's reach.
@@ -266,14 +267,14 @@ def verify_end(sim: Simulation, end: str, st: SettingsResult, *, study: Study,
             vb = view(run, at_s, st.k0.k0, k0m, model, behind=True, line_angle=theta)
             at_own = np.isclose(vb.m_end, 0.0)[None, :, None, None, None]
             for zone in (z1, z2, z3):
-                sb, wb, insb = loop_scale(vb, zone, theta, zl, model, reach_scale=reach_scale)
+                sb, wb, insb = loop_scale(vb, zone, theta, zl, model)
                 acc["fwd_behind"].add((sb - 1) * 100, at_own & every, t,
                                       _describe(vb, wb, labels, "behind the relay", rfp),
                                       insb)
         else:
             for key, km in (("z1_par", k0m), ("z1_par_nomut", None)):
                 v = view(run, at_s, st.k0.k0, km, model, line_angle=theta)
-                s1, w1, ins = loop_scale(v, z1, theta, zl, model, reach_scale=reach_scale)
+                s1, w1, ins = loop_scale(v, z1, theta, zl, model)
                 acc[key].add((s1 - 1) * 100, np.ones(s1.shape, dtype=bool), t,
                              _describe(v, w1, labels, "parallel circuit", rfp), ins)
     checks = [
@@ -310,7 +311,7 @@ def verify_end(sim: Simulation, end: str, st: SettingsResult, *, study: Study,
     checks[-1] = _resistive_need(checks[-1], z2, theta, st)
     checks.append(_finish(
         "forward", "no_operation_behind",
-        "zones 1 to 3 do not operate for resistive faults at the relay's own bus (behind it)",
+        "zones 1 to 3 do not operate for faults at the relay's own bus (behind it)",
         acc["fwd_behind"], t, "check the directional element and the left blinder"))
     checks += _beyond_bus_checks(sim, end, st, study=study, tolerance_pct=t, source=source,
                                  adjacent_zone1_pct=zone2_adjacent_zone1_pct)
@@ -338,7 +339,7 @@ def _beyond_bus_checks(sim, end, st, *, study, tolerance_pct, source, adjacent_z
     out = []
     name, zs = min(lines, key=lambda nl: abs(nl[1]))
     p2 = z_l + inf.k_min * adjacent_zone1_pct / 100 * zs
-    s2 = float(_both(np.array([p2]), st.zone("zone2"), theta)[0])
+    s2 = float(st.zone("zone2").reach_scale(np.array([p2]), theta)[0])
     margin = (s2 - 1) * 100 if math.isfinite(s2) else None
     ok = margin is None or margin >= t - 1e-9
     out.append(ZoneVerification(
@@ -353,7 +354,7 @@ def _beyond_bus_checks(sim, end, st, *, study, tolerance_pct, source, adjacent_z
     # Largest fraction x of the longest adjacent line inside zone 3 at maximum infeed.
     xs = np.linspace(0.0, 3.0, 3001)
     pts = z_l + inf.k_max * xs * z3l
-    inside = _both(pts, zone3, theta) <= 1.0
+    inside = zone3.reach_scale(pts, theta) <= 1.0
     cov = float(xs[np.argmin(inside)] if not inside.all() else xs[-1]) * 100
     if inside[0] is np.False_ or not inside[0]:
         cov = 0.0
@@ -374,7 +375,7 @@ def _targets_inside(st: SettingsResult) -> ZoneVerification:
     bad = []
     worst = math.inf
     for z in st.zones:
-        s = float(_both(np.array([z.reach_primary_ohm]), z, st.line_angle_rad)[0])
+        s = float(z.reach_scale(np.array([z.reach_primary_ohm]), st.line_angle_rad)[0])
         worst = min(worst, (1 - s) * 100 if math.isfinite(s) else -math.inf)
         if not s <= 1 + 1e-9:
             bad.append(z.zone)
@@ -408,17 +409,12 @@ def _resistive_need(chk: ZoneVerification, zone: ZoneSetting, theta: float,
     return replace(chk, consider=text + chk.consider)
 
 
-def _both(z: np.ndarray, zone: ZoneSetting, theta: float) -> np.ndarray:
-    """Reach scale for whichever loop kind (ground or phase) reaches the point first."""
-    return zone.reach_scale(z, theta)
-
-
 def _load_check(st: SettingsResult, z3: ZoneSetting, t: float) -> list[ZoneVerification]:
     """Zone 3 stays clear of the minimum load impedance over the load angles, both ways."""
     phi = st.load.load_angle_max_rad
     ang = np.concatenate([np.linspace(-phi, phi, 181), math.pi + np.linspace(-phi, phi, 181)])
     pts = st.load.z_min_primary_ohm * np.exp(1j * ang)
-    s = _both(pts, z3, st.line_angle_rad)
+    s = z3.reach_scale(pts, st.line_angle_rad)
     k = int(np.argmin(s))
     margin = (float(s[k]) - 1) * 100 if math.isfinite(s[k]) else None
     ok = margin is None or margin >= t - 1e-9
@@ -486,7 +482,7 @@ def worst_remote_bus_scale(sim: Simulation, end: str, st: SettingsResult, model:
         if run.faulted != "protected":
             continue
         v = view(run, at_s, st.k0.k0, k0m, model, line_angle=theta)
-        s, _, _ = loop_scale(v, z1, theta, zl, model, reach_scale=reach_scale)
+        s, _, _ = loop_scale(v, z1, theta, zl, model)
         at_bus = np.isclose(v.m_end, 1.0)[None, :, None, None, None]
         worst = min(worst, float(np.min(np.where(at_bus, s, np.inf))))
     return worst if math.isfinite(worst) else None

@@ -20,11 +20,11 @@ from relayset.results.settings import SettingsResult
 from relayset.results.verification import VerificationResult
 from relayset.studies.geometry import LineGeometry
 from relayset.studies.verification.checks import (
-    _rf_mask,
     check_tolerance,
     infeed_range,
     relay_model_at,
     resistive_targets,
+    rf_mask,
     verify_settings,
     worst_remote_bus_scale,
     zone1_limit_pct,
@@ -222,7 +222,7 @@ def _resistive_needs(sim: Simulation, end: str, st: SettingsResult, tolerance_pc
             sw = run.sweep
             v = view(run, at_s, st.k0.k0, k0m, model, line_angle=theta)
             rfp = np.stack([sw.r_fault_ohm, sw.r_phase_ohm], axis=1)
-            rf_ok = _rf_mask(rfp, zone, tower_ohm)[None, None, :, None, None]
+            rf_ok = rf_mask(rfp, zone, tower_ohm)[None, None, :, None, None]
             m_ok = (v.m_end <= lim + 1e-9)[None, :, None, None, None]
             for loop in LOOPS:
                 idx = [f for f, ft in enumerate(sw.fault_types) if loop in model.loops_for(ft)]

@@ -39,7 +39,7 @@ DEFAULT_RHO_FACTORS = (0.5, 2.0)
 RF_FRACTIONS = (0.5, 1.0)
 #: Decades of the 1-2-5 series added to the ground-resistance grid up to its largest value
 #: [ohm]: the overreach of a two-phase-to-ground fault through ground resistance peaks at a
-#: few ohms, between the values a study usually lists.
+#: few ohms, between the values a study usually lists (common practice, no source).
 SERIES_125 = (1.0, 2.0, 5.0)
 #: Fault types by the resistance they go through.
 GROUND_FAULTS = ("AG", "BG", "CG")

@@ -41,6 +41,7 @@ import numpy as np
 
 from relayset.physics import measurement
 from relayset.physics.faults import check_fault_type
+from relayset.physics.sequence import fortescue_inverse
 from relayset.results.settings import ZoneSetting
 from relayset.studies.verification.simulation import Run
 
@@ -48,7 +49,7 @@ from relayset.studies.verification.simulation import Run
 Z_SMALL = 1e-3
 LOOPS = measurement.LOOPS
 GROUND = measurement.GROUND_LOOPS
-_A = cmath.exp(2j * math.pi / 3)
+_A_INV = fortescue_inverse()
 
 PHASE_SELECTIONS = ("faulted_loops", "all_loops")
 
@@ -96,14 +97,9 @@ class RelayModel:
                                "polarised (balanced)"}
 
 
-def sequence(x: np.ndarray, k: int) -> np.ndarray:
-    """Sequence component k (0, 1, 2) of phase phasors on the last axis."""
-    a = (1, _A, _A * _A)
-    if k == 0:
-        return x.sum(axis=-1) / 3
-    if k == 1:
-        return (x[..., 0] + a[1] * x[..., 1] + a[2] * x[..., 2]) / 3
-    return (x[..., 0] + a[2] * x[..., 1] + a[1] * x[..., 2]) / 3
+def _sequence(x: np.ndarray, k: int) -> np.ndarray:
+    """Sequence component k (0, 1, 2) of phase phasors on the last axis (Fortescue)."""
+    return x @ _A_INV[k]
 
 
 def forward(v: np.ndarray, i: np.ndarray, v_pre: np.ndarray, fault_types, theta: float
@@ -113,18 +109,20 @@ def forward(v: np.ndarray, i: np.ndarray, v_pre: np.ndarray, fault_types, theta:
     ``v_pre`` (K, L, 3) is the relay bus's prefault voltage (the memory voltage).
     """
     rot = cmath.exp(-1j * theta)
-    v2, i2 = sequence(v, 2), sequence(i, 2)
-    neg = (v2 * np.conj(i2) * rot).real < 0
-    out = neg
-    balanced = [f for f, ft in enumerate(fault_types) if len(check_fault_type(ft)[0]) == 3
-                and not check_fault_type(ft)[1]]
+    v2, i2 = _sequence(v, 2), _sequence(i, 2)
+    out = (v2 * np.conj(i2) * rot).real < 0
+    balanced = [f for f, ft in enumerate(fault_types) if _balanced(ft)]
     if balanced:
-        v1m = sequence(v_pre, 1)  # (K, L)
-        i1 = sequence(i[balanced], 1)
-        pos = (v1m * np.conj(i1) * rot).real > 0
-        out = neg.copy()
-        out[balanced] = pos
+        v1m = _sequence(v_pre, 1)  # (K, L)
+        i1 = _sequence(i[balanced], 1)
+        out[balanced] = (v1m * np.conj(i1) * rot).real > 0
     return out
+
+
+def _balanced(fault_type: str) -> bool:
+    """A fault of all three phases without ground: no negative sequence to polarise with."""
+    phases, ground = check_fault_type(fault_type)
+    return len(phases) == 3 and not ground
 
 
 @dataclass(frozen=True, eq=False)
@@ -168,8 +166,7 @@ def view(run: Run, at_s: bool, k0: complex, k0m: complex | None, model: RelayMod
         else:
             mutual = True
             loops = with_m
-    mag = np.abs(i)
-    ok = mag >= model.min_current_primary_a
+    ok = np.abs(i) >= model.min_current_primary_a
     ground_ok = np.abs(i.sum(axis=-1)) >= model.ground_release_primary_a
     released = {}
     for name in LOOPS:
@@ -181,8 +178,7 @@ def view(run: Run, at_s: bool, k0: complex, k0m: complex | None, model: RelayMod
 
 
 def loop_scale(vw: View, zone: ZoneSetting, theta: float, z_line: float, model: RelayModel,
-               close_in: float = math.inf, reach_scale=None
-               ) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
+               close_in: float = math.inf) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
     """Smallest reach scale over the released loops per case, which loop gives it, and
     where no loop was released for lack of current (sensitivity).
 
@@ -200,7 +196,7 @@ def loop_scale(vw: View, zone: ZoneSetting, theta: float, z_line: float, model: 
         if not idx:
             continue
         z = vw.loops[loop][idx]
-        s = reach_scale(z, zone, loop in GROUND, theta)
+        s = zone.characteristic(loop in GROUND, theta).reach_scale(z)
         s = np.where(np.abs(z) >= Z_SMALL * z_line, s, close_in)
         fwd = vw.forward[idx]
         s = np.where(fwd if zone.direction == "forward" else ~fwd, s, np.inf)

@@ -7,17 +7,16 @@ faulted circuit, source configuration and fault group); :func:`simulate` makes a
 from __future__ import annotations
 
 import itertools
-import math
 from dataclasses import dataclass
 
 import numpy as np
 
 from relayset.errors import InputError
 from relayset.inputs.study_file import Study
-from relayset.physics import loadflow, network
+from relayset.physics import network
 from relayset.results.parameters import LineParameters
 from relayset.studies.geometry import LineGeometry
-from relayset.studies.reach import _cascade, _emfs_for_power_flows, build_source
+from relayset.studies.reach import _cascade, build_source, emfs_for_flows_at
 from relayset.studies.verification.envelope import Envelope
 
 #: Per-case results the relay model reads (both ends, both circuits, the currents into the
@@ -92,38 +91,24 @@ def swap_circuits(line: network.LineCascade) -> network.LineCascade:
     return network.LineCascade(z, line.length_m, y)
 
 
-def load_emfs(study: Study, env: Envelope, line, src, names, relay_end, scales, state,
+def load_emfs(env: Envelope, line, src, names, relay_end, scales, state,
               v_nom: float) -> np.ndarray:
     """(2, K, L) phase-A EMFs of both sources for every load case of the envelope: the
-    listed cases (transfer angles or power flows at the relay end), then the maximum load
-    at the from-end through the load flow."""
-    n_k = scales.shape[0]
-    e = v_nom / math.sqrt(3)
+    listed cases (transfer angles, or power flows at the relay end), then the maximum load
+    exported at each end in turn (the other end then imports it), through the load flow."""
     parts = []
-    listed = _emfs_for_power_flows(study, line, src, names, relay_end, scales, state, v_nom)
-    if listed is None:
-        ang = np.array(env.transfer_angles_rad)
-        parts.append(np.stack([np.broadcast_to(e * np.exp(1j * ang), (n_k, ang.size)),
-                               np.full((n_k, ang.size), e, dtype=complex)]))
+    if env.listed_flows_va:
+        f = np.array(env.listed_flows_va)
+        parts.append(np.stack(emfs_for_flows_at(line, src, names, relay_end, f.real, f.imag,
+                                                scales, state, v_nom)))
     else:
-        parts.append(np.stack(listed))
+        parts.append(np.stack(network._emfs(v_nom, np.array(env.transfer_angles_rad), None,
+                                            scales.shape[0], None)))
     if env.envelope_flows_va:
         f = np.array(env.envelope_flows_va)
-        for k in range(2):  # each end exports in turn; the other then imports
-            if k == 0:
-                e_s, e_r = loadflow.emfs_for_load(line, src[names[0]], src[names[1]],
-                                                  v_nominal_v=v_nom, p_w=f.real,
-                                                  q_var=f.imag, source_scale=scales,
-                                                  parallel_state=state)
-            else:
-                rev = network.LineCascade(line.z_ohm_per_m[::-1], line.length_m[::-1],
-                                          None if line.y_s_per_m is None
-                                          else line.y_s_per_m[::-1])
-                e_r, e_s = loadflow.emfs_for_load(rev, src[names[1]], src[names[0]],
-                                                  v_nominal_v=v_nom, p_w=f.real,
-                                                  q_var=f.imag, source_scale=scales[:, ::-1],
-                                                  parallel_state=state)
-            parts.append(np.stack([e_s, e_r]))
+        for end in names:
+            parts.append(np.stack(emfs_for_flows_at(line, src, names, end, f.real, f.imag,
+                                                    scales, state, v_nom)))
     return np.concatenate(parts, axis=2)
 
 
@@ -172,7 +157,7 @@ def simulate(study: Study, geo: LineGeometry, params_by_rho: dict[float, LinePar
             for faulted, ln in jobs:
                 for s_s, s_r, scales, labels, loaded in configs:
                     if loaded and load:
-                        emf = load_emfs(study, env, ln, src, names, relay_end, scales, state,
+                        emf = load_emfs(env, ln, src, names, relay_end, scales, state,
                                         geo.v_nominal_v)
                         d = np.degrees(np.abs(np.angle(emf[0] / emf[1])))
                         max_angle = max(max_angle, float(np.max(d)))
