@@ -9,6 +9,8 @@ The public API is imported lazily so that ``relayset --help`` starts fast.
 from __future__ import annotations
 
 _API = {
+    "Study": "relayset.api",
+    "StudyError": "relayset.api",
     "load_study": "relayset.api",
     "study_parameters": "relayset.api",
     "study_reach": "relayset.api",

@@ -2,6 +2,7 @@
 
 from __future__ import annotations
 
+import os
 import tomllib
 from pathlib import Path
 
@@ -37,3 +38,10 @@ def variant(tmp_path):
         return out
 
     return make
+
+
+# The working tree is what is tested (pyproject's pytest `pythonpath`), in the commands the
+# tests start in subprocesses as well, even where another copy of relayset is installed.
+_ROOT = str(Path(__file__).resolve().parents[1])
+os.environ["PYTHONPATH"] = os.pathsep.join(
+    [_ROOT, *[p for p in os.environ.get("PYTHONPATH", "").split(os.pathsep) if p]])

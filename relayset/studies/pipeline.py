@@ -25,7 +25,8 @@ from relayset.studies.parameters import compute_parameters
 if TYPE_CHECKING:
     from relayset.results.parameters import LineParameters
 
-__all__ = ["LoadedStudy", "identity", "line_parameters", "load", "relayset_version", "run"]
+__all__ = ["LoadedStudy", "identity", "line_parameters", "load", "load_bytes",
+           "relayset_version", "run", "run_loaded"]
 
 
 @dataclass(frozen=True)
@@ -41,11 +42,15 @@ class LoadedStudy:
 
 def load(path: str | Path) -> LoadedStudy:
     """Read a study file once and validate it; the hash is of exactly the bytes parsed."""
-    src = str(path)
-    data = read_bytes(path)
-    tables = loads_toml(data, src)
-    return LoadedStudy(src, data, hashlib.sha256(data).hexdigest(), tables,
-                       parse_study(tables, source=src))
+    return load_bytes(read_bytes(path), str(path))
+
+
+def load_bytes(data: bytes, source: str) -> LoadedStudy:
+    """Validate a study's TOML bytes exactly as a file's (``source`` names it in messages
+    and is the base of its relative paths)."""
+    tables = loads_toml(data, source)
+    return LoadedStudy(source, data, hashlib.sha256(data).hexdigest(), tables,
+                       parse_study(tables, source=source))
 
 
 def identity(study: Study) -> dict[str, Any]:
@@ -65,8 +70,13 @@ def line_parameters(path: str | Path) -> LineParameters:
 
 def run(path: str | Path, *, reach: bool = False, settings: bool = False) -> StudyResults:
     """Compute a study: parameters always, the reach study and settings on request."""
+    return run_loaded(load(path), reach=reach, settings=settings)
+
+
+def run_loaded(loaded: LoadedStudy, *, reach: bool = False, settings: bool = False
+               ) -> StudyResults:
+    """Compute a study already read and validated (a file's, or one held in memory)."""
     reach = reach or settings  # zone 1 follows the reach study
-    loaded = load(path)
     study, src = loaded.study, loaded.source
     geo = build_geometry(study, src)
     params = compute_parameters(geo)
