@@ -17,6 +17,7 @@ _API = {
     "study_settings": "relayset.api",
     "matrix_frame": "relayset.api",
     "sequence_frame": "relayset.api",
+    "frames": "relayset.frames",
     "InputError": "relayset.errors",
     "list_earth_models": "relayset.physics.earth",
 }

@@ -161,6 +161,12 @@ class LineParameters:
     assumptions: tuple[str, ...]
     wires: tuple[WirePosition, ...] = ()  #: every wire of the cross-section
 
+    def to_frame(self):
+        """The parameters per circuit as a pandas DataFrame (per km, as the JSON)."""
+        from relayset.frames import parameters_frame
+
+        return parameters_frame(self)
+
     def to_dict(self) -> dict[str, Any]:
         return {
             "length_km": self.length_m / 1e3,

@@ -95,6 +95,12 @@ class ArrangementReach:
     envelope_max_pct: np.ndarray  #: (6, M) bolted, max over types/sources/loads, per loop
     envelope_min_pct: np.ndarray
 
+    def to_frame(self):
+        """The bolted reach error along the line per loop, a pandas DataFrame."""
+        from relayset.frames import envelope_frame
+
+        return envelope_frame(self)
+
     def to_dict(self) -> dict[str, Any]:
         return {
             "arrangement": self.arrangement,
@@ -144,6 +150,12 @@ class EndReach:
         return (self.arrangement("actual_plan").worst_bolted_overreach_at_remote_bus_pct
                 - self.arrangement("ideal_cycle").worst_bolted_overreach_at_remote_bus_pct)
 
+    def to_frame(self):
+        """The worst reach errors and their cases, a pandas DataFrame."""
+        from relayset.frames import worst_cases_frame
+
+        return worst_cases_frame(self)
+
     def to_dict(self) -> dict[str, Any]:
         return {
             "end": self.end,
@@ -187,6 +199,12 @@ class ReachStudyResult:
         """Number of load cases (transfer angles or power flows)."""
         return len(self.power_flows if self.power_flows is not None
                    else self.transfer_angles_deg)
+
+    def to_frame(self):
+        """The worst reach errors of every end and their cases, a pandas DataFrame."""
+        from relayset.frames import worst_cases_frame
+
+        return worst_cases_frame(self)
 
     def to_dict(self) -> dict[str, Any]:
         return {

@@ -158,6 +158,12 @@ class SettingsResult:
         """The rule ids of the warnings, in order."""
         return [w.rule_id for w in self.warnings]
 
+    def to_frame(self):
+        """The zone settings, primary and secondary, a pandas DataFrame."""
+        from relayset.frames import settings_frame
+
+        return settings_frame(self)
+
     def to_dict(self) -> dict[str, Any]:
         """JSON-ready nested data (the conventions of :mod:`relayset.results.serialize`)."""
         zones = {}

@@ -37,6 +37,12 @@ class StudyResults:
     verification: VerificationResult | None = None  #: the settings tested by simulation
     caution: str = CAUTION
 
+    def frames(self):
+        """Every result as a pandas DataFrame, by name (:func:`relayset.frames.frames`)."""
+        from relayset.frames import frames
+
+        return frames(self)
+
     def to_dict(self) -> dict[str, Any]:
         d: dict[str, Any] = {
             "relayset_version": self.relayset_version,

@@ -154,6 +154,12 @@ class VerificationResult:
                 return e
         raise KeyError(name)
 
+    def to_frame(self):
+        """The checks with their governing cases, a pandas DataFrame."""
+        from relayset.frames import verification_checks_frame
+
+        return verification_checks_frame(self)
+
     def to_dict(self) -> dict[str, Any]:
         return {
             "verdict": self.verdict,
