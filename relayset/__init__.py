@@ -17,7 +17,6 @@ _API = {
     "study_settings": "relayset.api",
     "matrix_frame": "relayset.api",
     "sequence_frame": "relayset.api",
-    "frames": "relayset.frames",
     "InputError": "relayset.errors",
     "list_earth_models": "relayset.physics.earth",
 }
