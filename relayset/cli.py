@@ -209,7 +209,7 @@ def _run(args) -> int:
     # Compute everything first so that bad input leaves no partial output behind.
     results = [pipeline.run(f, **flags[args.command]) for f in _files(args)]
     for res in results:
-        units = args.units or study_unit_system(res.study_input)
+        units = args.units or study_unit_system(res.input)
         sys.stdout.write(show(res, units))
     # Every output file is rendered first, then all are written or none.
     if args.json or getattr(args, "csv", None):
@@ -231,7 +231,7 @@ def _settings_csv(res) -> str:
     from relayset.report.tables import settings_rows
 
     rows = [(t.end, *row) for t in res.settings for row in settings_rows(t)]
-    ident = res.identity
+    ident = res.study
     return io.rows_to_csv(rows, header=("end", "setting", "value", "unit"),
                           columns={"line_id": ident["line_id"], "revision": ident["revision"]})
 

@@ -188,9 +188,9 @@ def frames(results: StudyResults) -> dict[str, pd.DataFrame]:
     with a verification.
     """
     out = {"parameters": parameters_frame(results.parameters)}
-    if results.reach is not None:
-        out["reach_errors"] = reach_errors_frame(results.reach)
-        out["worst_cases"] = worst_cases_frame(results.reach)
+    if results.reach_study is not None:
+        out["reach_errors"] = reach_errors_frame(results.reach_study)
+        out["worst_cases"] = worst_cases_frame(results.reach_study)
     if results.settings is not None:
         out["settings"] = settings_frame(results.settings)
         out["setting_checks"] = setting_checks_frame(results.settings)

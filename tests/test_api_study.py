@@ -50,7 +50,7 @@ def test_replace_equals_a_variant_file(demo_path, variant):
 
     on_disk = relayset.study_parameters(variant(DEMO, edit))
     in_memory = relayset.study_parameters(new)
-    assert in_memory.parameters.resistivity_ohm_m == 300.0
+    assert in_memory.parameters.earth_resistivity_ohm_m == 300.0
     assert _params(in_memory) == _params(on_disk)
     assert study.tables["system"]["earth_resistivity"] != "300 ohm*m"  # the original is kept
     # Nested fields and list entries, as a message writes them.

@@ -114,7 +114,7 @@ def test_register_csv_and_xlsx_with_overrides_and_missing_file(tmp_path):
     text = eff.read_text("utf-8")
     assert text.startswith("#") and "set by the line register" in text
     res = pipeline.run(eff, settings=True)
-    assert res.identity["status"] == "for review"
+    assert res.study["status"] == "for review"
     assert res.philosophy["zone1"]["reach_pct"] == 85.0  # the Northmarch philosophy's zone 1
     rows = _csv_rows(out / "register.csv")
     row = next(r for r in rows if r["line_id"] == "PR-KO-115")
@@ -237,7 +237,7 @@ def test_register_reach_errors_and_verification_per_end():
     rows = rows_from_results(res.to_dict(), results_file="x.json", report_file=None)
     assert len(rows) == len(res.settings) >= 1
     for row in rows:
-        end = next(e for e in res.reach.ends if e.end == row["end"])
+        end = next(e for e in res.reach_study.ends if e.end == row["end"])
         # the relay as set: mutual compensation on (the study's relay uses k0m), the plan's
         # own arrangement, not the comparison run without mutual compensation
         plan = end.arrangement("actual_plan", mutual=end.k0m_set is not None)

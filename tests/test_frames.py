@@ -62,7 +62,7 @@ def test_parameters_frame_is_the_json(results):
 def test_reach_frames_agree_with_the_summaries(results):
     """The long-form reach errors give back each arrangement's summary figures."""
     env = results.frames()["reach_errors"]
-    for end in results.reach.ends:
+    for end in results.reach_study.ends:
         for a in end.arrangements:
             sel = env[(env["end"] == end.end) & (env["arrangement"] == a.arrangement)
                       & (env["mutual_compensation"] == a.mutual_compensation)]
@@ -71,9 +71,9 @@ def test_reach_frames_agree_with_the_summaries(results):
                             np.nanmax(a.envelope_max_pct), rtol=0, atol=0)
             own = a.to_frame()
             assert len(own) == len(sel)
-    worst = results.reach.to_frame()
+    worst = results.reach_study.to_frame()
     remote = worst[worst["extreme"] == "worst_overreach_at_remote_bus"]
-    for end in results.reach.ends:
+    for end in results.reach_study.ends:
         for a in end.arrangements:
             sel = remote[(remote["end"] == end.end) & (remote["arrangement"] == a.arrangement)
                          & (remote["mutual_compensation"] == a.mutual_compensation)]

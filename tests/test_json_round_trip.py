@@ -94,9 +94,9 @@ def test_params_json_round_trip(tmp_path, demo_path, demo):
     assert "licensed professional engineer" in d["caution"]
     assert d["source_file"] == path.name  # the name only: the same bytes wherever it runs
     assert d["source_sha256"] == hashlib.sha256(path.read_bytes()).hexdigest()
-    assert d["study"]["line_id"] == res.identity["line_id"]
+    assert d["study"]["line_id"] == res.study["line_id"]
     assert d["study"]["nominal_voltage_kv"] == p.v_nominal_v / 1e3
-    assert d["input"] == json.loads(json.dumps(res.study_input, default=str))
+    assert d["input"] == json.loads(json.dumps(res.input, default=str))
     q = d["parameters"]
     assert set(q) >= {"length_km", "frequency_hz", "earth_resistivity_ohm_m", "earth_model",
                       "nominal_voltage_kv", "positions", "phase_labels", "sections",
@@ -104,9 +104,9 @@ def test_params_json_round_trip(tmp_path, demo_path, demo):
                       "arrangements", "assumptions"}
     assert q["length_km"] == pytest.approx(p.length_m / 1e3, rel=1e-12, abs=0)
     assert q["frequency_hz"] == p.frequency_hz
-    assert q["earth_resistivity_ohm_m"] == p.resistivity_ohm_m
+    assert q["earth_resistivity_ohm_m"] == p.earth_resistivity_ohm_m
     assert q["earth_model"] == p.earth_model
-    assert q["positions"] == list(p.position_names)
+    assert q["positions"] == list(p.positions)
     assert q["phase_labels"] == [list(x) for x in p.phase_labels]
     for s, ln, order in zip(q["sections"], p.section_lengths_m, p.section_orders, strict=True):
         assert s["length_km"] == pytest.approx(ln / 1e3, rel=1e-12, abs=0)
@@ -118,7 +118,7 @@ def test_params_json_round_trip(tmp_path, demo_path, demo):
         _close(c["gmr_mm"], cd.gmr_m * 1e3)
         _close(c["outside_diameter_mm"], cd.radius_m * 2e3)
         assert c["operating_temperature_c"] == cd.operating_temperature_c
-    _close(_m(q["z_by_position_ohm_per_km"]), p.z_position_ohm_per_m * 1e3)
+    _close(_m(q["z_by_position_ohm_per_km"]), p.z_by_position_ohm_per_m * 1e3)
     keys = {"z1_ohm_per_km", "z0_ohm_per_km", "z0_over_z1_magnitude", "line_angle_deg", "k0",
             "c1_nf_per_km", "c0_nf_per_km", "b1_us_per_km", "charging_current_a_per_km",
             "z1_ohm", "z0_ohm", "charging_current_a", "surge_impedance_ohm",
@@ -193,7 +193,7 @@ def _worst(j, w):
 def test_reach_json_round_trip(tmp_path, demo_path, demo):
     path = demo_path(demo)
     d = _export("reach", path, tmp_path)
-    r = relayset.study_reach(path).reach
+    r = relayset.study_reach(path).reach_study
     j = d["reach_study"]
     assert set(j) >= {"fault_types", "location_step_pct", "fault_resistances_ohm",
                       "phase_fault_resistance_ohm", "source_cases", "transfer_angles_deg",
@@ -209,7 +209,7 @@ def test_reach_json_round_trip(tmp_path, demo_path, demo):
         assert [(f["active_power_w"], f["reactive_power_var"]) for f in j["power_flows"]] == [
             (p, q) for p, q in r.power_flows]
     assert j["source_cases"] == [{"name": n, "scale": s} for n, s in r.source_cases]
-    assert j["cases_solved"] == r.n_cases
+    assert j["cases_solved"] == r.cases_solved
     for name, s in j["source_impedances_ohm"].items():
         assert set(s) == {"z1_ohm", "z0_ohm"} and len(s["z1_ohm"]) == 2, name
     for je, e in zip(j["ends"], r.ends, strict=True):
@@ -243,15 +243,12 @@ def test_reach_json_round_trip(tmp_path, demo_path, demo):
             assert_allclose(mx, a.envelope_max_pct, rtol=1e-12, atol=0, equal_nan=True)
             for jl, lp in zip(ja["loops"], a.loops, strict=True):
                 assert jl["loop"] == lp.loop
-                for key, attr in (
-                        ("worst_overreach_at_zone1_reach", "over_at_reach"),
-                        ("worst_underreach_at_zone1_reach", "under_at_reach"),
-                        ("worst_overreach_on_line", "over_line"),
-                        ("worst_underreach_on_line", "under_line"),
-                        ("worst_overreach_at_remote_bus", "over_at_remote_bus"),
-                        ("worst_reactance_overreach_at_zone1_reach_resistive",
-                         "reactance_over_resistive")):
-                    _worst(jl[key], getattr(lp, attr))
+                # The results use the JSON's names (issue 19).
+                for key in ("worst_overreach_at_zone1_reach", "worst_underreach_at_zone1_reach",
+                            "worst_overreach_on_line", "worst_underreach_on_line",
+                            "worst_overreach_at_remote_bus",
+                            "worst_reactance_overreach_at_zone1_reach_resistive"):
+                    _worst(jl[key], getattr(lp, key))
     assert _unitless_numbers(j) == []
 
 

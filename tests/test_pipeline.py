@@ -36,9 +36,9 @@ def test_given_z1_keeps_the_line_k0_everywhere_and_warns(variant):
     res = study_settings(path)
     k0_line = res.parameters.circuits[0].k0.k0
     assert res.relay.k0_set == k0_line and not res.relay.k0_given and res.relay.z1_given
-    assert res.reach.ends[0].k0_set == res.relay.k0_set
+    assert res.reach_study.ends[0].k0_set == res.relay.k0_set
     assert res.settings[0].k0.k0 == res.relay.k0_set
-    assert res.reach.ends[0].z1_set_ohm == res.settings[0].line_z1_primary_ohm == 3 + 30j
+    assert res.reach_study.ends[0].z1_set_ohm == res.settings[0].line_z1_primary_ohm == 3 + 30j
     assert "z1_differs_from_line" in res.settings[0].warning_ids()
     d = res.to_dict()
     assert d["relay"]["z1_from"] == "study file" and d["relay"]["k0_from"] == "line parameters"
@@ -50,7 +50,7 @@ def test_given_k0_reaches_reach_and_settings(variant):
     res = study_settings(path)
     k0 = res.relay.k0_set
     assert abs(k0) == pytest.approx(0.7, rel=1e-12)
-    assert res.reach.ends[0].k0_set == k0 == res.settings[0].k0.k0
+    assert res.reach_study.ends[0].k0_set == k0 == res.settings[0].k0.k0
     assert "k0_differs_from_line" in res.settings[0].warning_ids()
 
 
@@ -66,8 +66,8 @@ def test_both_ends_give_settings_for_each_end_with_their_own_neighbours(variant)
     path = variant(DEMO_132, _both_ends)
     res = study_settings(path)
     ends = tuple(s.end for s in res.settings)
-    assert ends == res.relay.ends == (res.identity["from_substation"],
-                                      res.identity["to_substation"])
+    assert ends == res.relay.ends == (res.study["from_substation"],
+                                      res.study["to_substation"])
     s_from, s_to = res.settings
     assert s_from.remote_end == s_to.end and s_to.remote_end == s_from.end
     # From the from end, the adjacent lines (at the to bus) grade zone 2; from the to end they
@@ -111,7 +111,7 @@ def test_version_flag(capsys):
 def test_cases_solved_counts_identical_arrangements_once(demo_path, demo, distinct):
     # Identity: cases = fault types x locations x Rf x source cases x load cases, per
     # arrangement actually solved.
-    q = study_reach(demo_path(demo)).reach
+    q = study_reach(demo_path(demo)).reach_study
     per = (len(q.fault_types) * len(q.locations_pct) * len(q.fault_resistances_ohm)
            * len(q.source_cases) * q.n_load_cases)
-    assert q.n_cases == per * distinct
+    assert q.cases_solved == per * distinct

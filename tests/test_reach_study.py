@@ -20,15 +20,15 @@ DEMO_2C = "elsford_fallowby_230kv_double.toml"
 def test_ideal_cycle_has_no_reach_error_at_the_remote_bus(demo_path):
     # Fortescue: a full cycle of three equal sections makes the line's Zabc circulant, so
     # every loop measures m*Z1 for a fault at the end of the cycle. Issue target: < 0.1 %.
-    res = study_reach(demo_path(DEMO_1C)).reach
+    res = study_reach(demo_path(DEMO_1C)).reach_study
     ideal = res.ends[0].arrangement("ideal_cycle")
     for lp in ideal.loops:
-        assert abs(lp.over_at_remote_bus.error_pct) < 0.1
+        assert abs(lp.worst_overreach_at_remote_bus.error_pct) < 0.1
         assert abs(ideal.envelope_min_pct[:, -1]).max() < 0.1
 
 
 def test_demo_with_ideal_plan_has_no_error_at_remote_bus(demo_path):
-    res = study_reach(demo_path("kessler_oxbow_115kv.toml")).reach
+    res = study_reach(demo_path("kessler_oxbow_115kv.toml")).reach_study
     act = res.ends[0].arrangement("actual_plan")
     assert abs(act.worst_bolted_overreach_at_remote_bus_pct) < 0.1
 
@@ -72,7 +72,7 @@ def test_hand_derived_flat_line_phase_loop_errors(tmp_path, monkeypatch):
     data = _flat_line_study()
     path = tmp_path / "flat.toml"
     path.write_text(dump_toml(data), "utf-8")
-    res = study_reach(path).reach
+    res = study_reach(path).reach_study
     omega = 2 * math.pi * 50
     x_unit = omega * MU0_H_PER_M / (2 * math.pi)
     gmd = 4.0 * 2 ** (1 / 3)
@@ -84,8 +84,8 @@ def test_hand_derived_flat_line_phase_loop_errors(tmp_path, monkeypatch):
     by = {lp.loop: lp for lp in a.loops}
     for loop, expected in (("A-B", e_adj), ("B-C", e_adj), ("C-A", -2 * e_adj)):
         lp = by[loop]
-        assert lp.over_line.error_pct == pytest.approx(expected, abs=1e-6)
-        assert lp.under_line.error_pct == pytest.approx(expected, abs=1e-6)
+        assert lp.worst_overreach_on_line.error_pct == pytest.approx(expected, abs=1e-6)
+        assert lp.worst_underreach_on_line.error_pct == pytest.approx(expected, abs=1e-6)
     assert e_adj == pytest.approx(3.5, abs=1.0)  # a few percent: common practice, no source
 
 
@@ -118,7 +118,7 @@ def test_double_circuit_mutual_compensation_reported(demo_path):
     # Ground loops on a double circuit with the parallel line in service underreach without
     # mutual compensation (IEEE Std C37.113-2015, parallel-line clause; from memory): the
     # worst underreach without compensation is much larger than with it.
-    res = study_reach(demo_path(DEMO_2C)).reach
+    res = study_reach(demo_path(DEMO_2C)).reach_study
     e = res.ends[0]
     with_m = e.arrangement("actual_plan", mutual=True)
     without = e.arrangement("actual_plan", mutual=False)
@@ -156,12 +156,12 @@ def test_export_load_makes_resistive_ground_faults_overreach(variant):
     # With fault resistance, remote infeed leads the relay current when the relay end exports
     # power, so the measured reactance drops and the relay overreaches; importing reverses
     # the effect (G. Ziegler, Numerical Distance Protection, 4th ed., sec. 3.3; from memory).
-    exp = study_reach(variant(DEMO_1C, _flows((120, 0)), "exp.toml")).reach.ends[0]
-    imp = study_reach(variant(DEMO_1C, _flows((-120, 0)), "imp.toml")).reach.ends[0]
+    exp = study_reach(variant(DEMO_1C, _flows((120, 0)), "exp.toml")).reach_study.ends[0]
+    imp = study_reach(variant(DEMO_1C, _flows((-120, 0)), "imp.toml")).reach_study.ends[0]
 
     def x_err(e):
         lp = next(lp for lp in e.arrangement("actual_plan").loops if lp.loop == "A-G")
-        return lp.reactance_over_resistive.error_pct
+        return lp.worst_reactance_overreach_at_zone1_reach_resistive.error_pct
 
     assert x_err(exp) > x_err(imp) + 5
     # bolted errors hardly depend on load (untransposition, not infeed): within 1 point
@@ -198,7 +198,7 @@ def test_power_flow_is_delivered_at_the_relay_end(demo_path, end):
     par = compute_parameters(geo)
     names = (study.study.from_substation, study.study.to_substation)
     src = {n: build_source(study, n, "t") for n in names}
-    line = _cascade(par.z_position_ohm_per_m, par.y_position_s_per_m,
+    line = _cascade(par.z_by_position_ohm_per_m, par.y_by_position_s_per_m,
                     [list(o) for o in geo.section_orders], geo.section_lengths_m, False)
 
     class _Load:  # the two fields the helper reads
@@ -232,7 +232,7 @@ def test_recommendation_says_whether_the_philosophy_cap_governs(demo_path, demo,
 
     path = demo_path(demo)
     z1 = study_philosophy(load(path).study, str(path)).zone1
-    for e in study_reach(path).reach.ends:
+    for e in study_reach(path).reach_study.ends:
         worst = e.arrangement("actual_plan").worst_bolted_overreach_at_remote_bus_pct
         allowed = recommended_zone1_pct(worst, e.error_budget_pct, 100.0, z1.min_margin_pct)
         assert e.zone1_allowed_by_errors_pct == allowed

@@ -35,7 +35,7 @@ def test_one_section_line_reports_the_same_sweep_for_actual_and_untransposed(
     # Identity: a line of one section has no transposition, so its actual plan is the
     # untransposed line: solved once (2 sweeps, not 3) and reported with identical numbers.
     calls = _count_sweeps(monkeypatch)
-    res = study_reach(variant(DEMO_1C, _one_section)).reach
+    res = study_reach(variant(DEMO_1C, _one_section)).reach_study
     assert calls[0] == 2
     for end in res.ends:
         act, unt = end.arrangement("actual_plan"), end.arrangement("untransposed")
@@ -50,7 +50,7 @@ def test_ideal_plan_is_reported_as_the_ideal_cycle(demo_path, monkeypatch):
     # The demo's plan is a full cycle of three equal sections (9 mi each of 27 mi), i.e.
     # the ideal cycle itself; one sweep serves both names.
     calls = _count_sweeps(monkeypatch)
-    res = study_reach(demo_path("kessler_oxbow_115kv.toml")).reach
+    res = study_reach(demo_path("kessler_oxbow_115kv.toml")).reach_study
     assert calls[0] == 2
     end = res.ends[0]
     act, ideal = end.arrangement("actual_plan"), end.arrangement("ideal_cycle")
@@ -93,10 +93,10 @@ def test_chunked_sweep_condenses_to_the_same_results(demo_path, monkeypatch):
     import relayset.studies.reach as reach
 
     path = demo_path("elsford_fallowby_230kv_double.toml")
-    whole = study_reach(path).reach
+    whole = study_reach(path).reach_study
     monkeypatch.setattr(reach, "CHUNK_CASES", 1000)  # a few locations per chunk
     calls = _count_sweeps(monkeypatch)
-    chunked = study_reach(path).reach
+    chunked = study_reach(path).reach_study
     assert calls[0] > 20  # many chunks per arrangement
     for e1, e2 in zip(whole.ends, chunked.ends, strict=True):
         for a1, a2 in zip(e1.arrangements, e2.arrangements, strict=True):

@@ -103,8 +103,8 @@ def test_zone1_follows_reach_study_when_budget_is_large(variant):
     # floor2(100 / (1 + (35 + e)/100)) < 80 %, so zone 1 must be reduced to it (flag on).
     res = study_settings(variant(DEMO, lambda d: d.setdefault("error_budget", {}).update(
         relay_pct=30.0)))
-    rec = res.reach.ends[0].recommended_zone1_pct
-    e = res.reach.ends[0].arrangement("actual_plan").worst_bolted_overreach_at_remote_bus_pct
+    rec = res.reach_study.ends[0].recommended_zone1_pct
+    e = res.reach_study.ends[0].arrangement("actual_plan").worst_bolted_overreach_at_remote_bus_pct
     budget = 1.0 + 1.0 + 30.0 + 3.0
     assert rec == pytest.approx(int(100 / (1 + (budget + max(e, 0)) / 100) * 2) / 2)
     # The fault simulation may limit zone 1 further (remote-bus faults with the tolerance on

@@ -144,7 +144,7 @@ def test_segmented_and_insulated_shield_wires(variant):
     #   Y(segmented) = Y(continuous) != Y(no earth wire) = Y(insulated)
     def run(kind, name):
         p = relayset.study_parameters(variant(DEMO_1C, _grounding(kind), name)).parameters
-        return p.z_position_ohm_per_m, p.y_position_s_per_m
+        return p.z_by_position_ohm_per_m, p.y_by_position_s_per_m
 
     z_cont, y_cont = run("continuous", "c.toml")
     z_seg, y_seg = run("segmented", "s.toml")

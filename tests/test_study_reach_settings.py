@@ -53,8 +53,8 @@ def test_far_end_equals_near_end_of_the_reversed_study(variant, demo):
     # the location within one section, so worst cases tie and either may be reported. The
     # untransposed and ideal-cycle comparisons are built from
     # the first section seen from the "from" end, so they are other lines in study B.
-    a = relayset.study_reach(variant(demo, _both_ends, "a.toml")).reach
-    b = relayset.study_reach(variant(demo, _seen_from_the_other_end, "b.toml")).reach
+    a = relayset.study_reach(variant(demo, _both_ends, "a.toml")).reach_study
+    b = relayset.study_reach(variant(demo, _seen_from_the_other_end, "b.toml")).reach_study
     assert {e.end for e in a.ends} == {e.end for e in b.ends}
     for ea in a.ends:
         eb = next(e for e in b.ends if e.end == ea.end)
@@ -69,8 +69,10 @@ def test_far_end_equals_near_end_of_the_reversed_study(variant, demo):
             assert_allclose(xa.envelope_min_pct, xb.envelope_min_pct, rtol=0, atol=1e-9)
             for la, lb in zip(xa.loops, xb.loops, strict=True):
                 assert la.loop == lb.loop
-                for attr in ("over_at_reach", "under_at_reach", "over_line", "under_line",
-                             "over_at_remote_bus", "reactance_over_resistive"):
+                for attr in ("worst_overreach_at_zone1_reach", "worst_underreach_at_zone1_reach",
+                             "worst_overreach_on_line", "worst_underreach_on_line",
+                             "worst_overreach_at_remote_bus",
+                             "worst_reactance_overreach_at_zone1_reach_resistive"):
                     ca, cb = getattr(la, attr), getattr(lb, attr)
                     assert _case(ca) == _case(cb), (ea.end, xa.arrangement, la.loop, attr)
 
@@ -90,7 +92,7 @@ def test_far_end_of_a_palindromic_line_mirrors_the_near_end(variant):
         ]
         d["sources"]["Brenwick"] = dict(d["sources"]["Ashcombe"])
 
-    r = relayset.study_reach(variant(DEMO_1C, sym)).reach
+    r = relayset.study_reach(variant(DEMO_1C, sym)).reach_study
     near, far = r.ends
     for key in ("actual_plan", "untransposed"):  # the ideal cycle rotates one way only
         xa, xb = near.arrangement(key), far.arrangement(key)
@@ -130,8 +132,8 @@ def test_reach_and_settings_see_the_same_relay(variant, demo, given):
             for line in d.get("adjacent_lines", []):  # both ends: each line names its bus
                 line["bus"] = d["study"]["to_substation"]
     res = relayset.study_settings(variant(demo, edit))
-    assert len(res.settings) == len(res.reach.ends) == (2 if end_name else 1)
-    for end in res.reach.ends:
+    assert len(res.settings) == len(res.reach_study.ends) == (2 if end_name else 1)
+    for end in res.reach_study.ends:
         (s,) = [x for x in res.settings if x.end == end.end]
         assert_allclose(s.line_z1_primary_ohm, end.z1_set_ohm, rtol=1e-12, atol=0)
         assert_allclose(s.k0.k0, end.k0_set, rtol=1e-12, atol=0)
@@ -156,7 +158,7 @@ def test_error_budget_reaches_the_zone1_recommendation_and_the_settings(variant)
                              "line_data_pct": 11.0}  # 26 % in all, each term distinct
 
     res = relayset.study_settings(variant(DEMO_1C, budget))
-    end = res.reach.ends[0]
+    end = res.reach_study.ends[0]
     assert end.error_budget_pct == 26.0
     e = end.arrangement("actual_plan").worst_bolted_overreach_at_remote_bus_pct
     total = 26.0 + max(0.0, e)

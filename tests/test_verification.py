@@ -33,7 +33,7 @@ def _line(path):
     study = pipeline.load(path).study
     geo = build_geometry(study, str(path))
     params = compute_parameters(geo)
-    line = _cascade(params.z_position_ohm_per_m, params.y_position_s_per_m,
+    line = _cascade(params.z_by_position_ohm_per_m, params.y_by_position_s_per_m,
                     [list(o) for o in geo.section_orders], geo.section_lengths_m,
                     study.reach_study.shunt_capacitance)
     names = (study.study.from_substation, study.study.to_substation)

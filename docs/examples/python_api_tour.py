@@ -73,7 +73,7 @@ for name, sections in plans.items():
     worst = res.frames()["worst_cases"]
     plan = worst[(worst["arrangement"] == "actual_plan")
                  & (worst["extreme"] == "worst_overreach_at_remote_bus")]
-    end = res.reach.ends[0]
+    end = res.reach_study.ends[0]
     rows.append({"plan": name,
                  "worst_overreach_at_remote_bus_pct": plan["error_pct"].max(),
                  "governing_loop": plan.loc[plan["error_pct"].idxmax(), "loop"],

@@ -28,7 +28,7 @@ class ReportFiles:
 
 def philosophy_path(results) -> Path:
     """The philosophy file the study named ("default" is the shipped file)."""
-    name = results.identity.get("philosophy", "default")
+    name = results.study.get("philosophy", "default")
     if name == "default":
         from relayset.inputs.philosophy import DEFAULT_FILE
 
@@ -61,7 +61,7 @@ def make_report(results, *, units: str | None = None, paper: str = "a4",
         raise InputError("changed after it was read; run the report again", source=str(src))
     env = dict(os.environ if environ is None else environ)
     results_json = io.to_json(results.to_dict())
-    ctx = build_context(results, units=units or study_unit_system(results.study_input),
+    ctx = build_context(results, units=units or study_unit_system(results.input),
                         paper=paper, environ=env,
                         results_json=results_json)
     html = render_html(ctx, study_bytes.decode("utf-8"))
@@ -80,7 +80,7 @@ def make_report(results, *, units: str | None = None, paper: str = "a4",
                              source=str(src)) from None
         name = ph.name if ph.name != src.name else f"philosophy_{ph.name}"
         files.append(EmbeddedFile(name, ph_bytes, "The setting philosophy (input)", "Source"))
-    when = document_date(results.identity, env).when
+    when = document_date(results.study, env).when
     pdf = (pdf_renderer or html_to_pdf)(html, files, when)
     return ReportFiles(ctx["doc_id"], html, pdf, results_json, str(src))
 

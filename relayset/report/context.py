@@ -146,7 +146,7 @@ def document_date(identity: dict[str, Any], environ: dict[str, str]) -> Dates:
 def _identity(r, d: dict[str, Any], u: dict[str, Any]) -> dict[str, Any]:
     s = d["study"]
     p = d["parameters"]
-    relay = r.study_input.get("relay", {}) or {}
+    relay = r.input.get("relay", {}) or {}
     return {
         "line_id": s["line_id"],
         "title": s["title"],
@@ -171,7 +171,7 @@ def _identity(r, d: dict[str, Any], u: dict[str, Any]) -> dict[str, Any]:
 
 def _revisions(r) -> list[dict[str, str]]:
     rows = []
-    for rev in r.study_input.get("revisions", []) or []:
+    for rev in r.input.get("revisions", []) or []:
         date = rev.get("date")
         rows.append({
             "revision": str(rev.get("revision", "")),
@@ -184,7 +184,7 @@ def _revisions(r) -> list[dict[str, str]]:
 
 def _input_tables(r, d: dict[str, Any], u: dict[str, Any]) -> dict[str, Any]:
     """The study's inputs as read (the user's own text with units) plus resolved conductors."""
-    raw = r.study_input
+    raw = r.input
     p = d["parameters"]
 
     def text(v: Any) -> str:

@@ -17,6 +17,7 @@ from typing import Any
 import numpy as np
 
 from relayset.physics.longline import LongLineEquivalent
+from relayset.results.deprecated import alias
 from relayset.results.serialize import PER_KM, cplx, matrix, polar
 
 
@@ -62,10 +63,13 @@ class CircuitSequence:
         return math.degrees(cmath.phase(self.z1_ohm_per_m))
 
     @property
-    def long_line_flag(self) -> bool:
+    def long_line_correction_needed(self) -> bool:
         """True where the exact equivalent differs from the nominal by more than 1 %."""
         return (self.positive_long_line.series_correction_pct > 1.0
                 or self.zero_long_line.series_correction_pct > 1.0)
+
+    # Old name (relayset 0.2), one release.
+    long_line_flag = alias("long_line_correction_needed", "long_line_flag")
 
     def to_dict(self) -> dict[str, Any]:
         p, z = self.positive_long_line, self.zero_long_line
@@ -89,7 +93,7 @@ class CircuitSequence:
             "z0_exact_ohm": cplx(z.z_exact_ohm),
             "z1_exact_correction_pct": p.series_correction_pct,
             "z0_exact_correction_pct": z.series_correction_pct,
-            "long_line_correction_needed": self.long_line_flag,
+            "long_line_correction_needed": self.long_line_correction_needed,
         }
 
 
@@ -129,13 +133,16 @@ class WirePosition:
     label: str  #: e.g. "circuit 1, position left, subconductor 2" or "shield wire EW1"
     position: str  #: phase position "circuit/position", or the shield wire's name
     x_m: float  #: horizontal offset from the tower centre line
-    y_m: float  #: average height above ground, h - 2/3 sag
+    average_height_m: float  #: average height above ground, h - 2/3 sag
     diameter_m: float
     grounding: str | None  #: shield wires: continuous / segmented / none
 
+    # Old name (relayset 0.2), one release.
+    y_m = alias("average_height_m", "y_m")
+
     def to_dict(self) -> dict[str, Any]:
         return {"role": self.role, "label": self.label, "position": self.position,
-                "x_m": self.x_m, "average_height_m": self.y_m,
+                "x_m": self.x_m, "average_height_m": self.average_height_m,
                 "diameter_mm": self.diameter_m * 1e3, "grounding": self.grounding}
 
 
@@ -145,21 +152,27 @@ class LineParameters:
 
     length_m: float
     frequency_hz: float
-    resistivity_ohm_m: float
+    earth_resistivity_ohm_m: float
     earth_model: str
     v_nominal_v: float
-    position_names: tuple[str, ...]
+    positions: tuple[str, ...]  #: tower position names, "circuit/position"
     phase_labels: tuple[tuple[str, str, str], ...]
     section_lengths_m: tuple[float, ...]
     section_orders: tuple[tuple[str, ...], ...]  #: phase label at each position, per section
     conductors: tuple[Any, ...]  #: ConductorData of each type used
-    z_position_ohm_per_m: np.ndarray  #: (n, n) by position, shields and bundles reduced
-    y_position_s_per_m: np.ndarray
+    z_by_position_ohm_per_m: np.ndarray  #: (n, n) by position, shields and bundles reduced
+    y_by_position_s_per_m: np.ndarray
     arrangements: dict[str, Arrangement]
     circuits: tuple[CircuitSequence, ...]
     k0m: complex | None  #: Z0M / (3 Z1) of the actual plan (double circuit)
     assumptions: tuple[str, ...]
     wires: tuple[WirePosition, ...] = ()  #: every wire of the cross-section
+
+    # Old names (relayset 0.2), one release.
+    resistivity_ohm_m = alias("earth_resistivity_ohm_m", "resistivity_ohm_m")
+    position_names = alias("positions", "position_names")
+    z_position_ohm_per_m = alias("z_by_position_ohm_per_m", "z_position_ohm_per_m")
+    y_position_s_per_m = alias("y_by_position_s_per_m", "y_position_s_per_m")
 
     def to_frame(self):
         """The parameters per circuit as a pandas DataFrame (per km, as the JSON)."""
@@ -171,10 +184,10 @@ class LineParameters:
         return {
             "length_km": self.length_m / 1e3,
             "frequency_hz": self.frequency_hz,
-            "earth_resistivity_ohm_m": self.resistivity_ohm_m,
+            "earth_resistivity_ohm_m": self.earth_resistivity_ohm_m,
             "earth_model": self.earth_model,
             "nominal_voltage_kv": self.v_nominal_v / 1e3,
-            "positions": list(self.position_names),
+            "positions": list(self.positions),
             "phase_labels": [list(p) for p in self.phase_labels],
             "sections": [
                 {"length_km": ln / 1e3, "order": list(o)}
@@ -192,7 +205,7 @@ class LineParameters:
                 }
                 for c in self.conductors
             ],
-            "z_by_position_ohm_per_km": matrix(self.z_position_ohm_per_m, PER_KM),
+            "z_by_position_ohm_per_km": matrix(self.z_by_position_ohm_per_m, PER_KM),
             "circuits": [c.to_dict() for c in self.circuits],
             "k0m": None if self.k0m is None else polar(self.k0m),
             "arrangements": {k: a.to_dict() for k, a in self.arrangements.items()},

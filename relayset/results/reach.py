@@ -7,6 +7,7 @@ from typing import Any
 
 import numpy as np
 
+from relayset.results.deprecated import alias
 from relayset.results.serialize import cplx, polar
 
 
@@ -54,13 +55,24 @@ class LoopSummary:
     """Worst reach errors of one measuring loop (only faults that loop is meant to see)."""
 
     loop: str  #: in the study's phase labels, e.g. "AG", "R-Y"
-    over_at_reach: WorstCase | None  #: worst overreach at the zone 1 reach point, bolted
-    under_at_reach: WorstCase | None
-    over_line: WorstCase | None  #: worst overreach anywhere on the line, bolted
-    under_line: WorstCase | None
-    over_at_remote_bus: WorstCase | None  #: bolted, m = 1: what zone 1 must stay short of
+    #: worst overreach at the zone 1 reach point, bolted
+    worst_overreach_at_zone1_reach: WorstCase | None
+    worst_underreach_at_zone1_reach: WorstCase | None
+    worst_overreach_on_line: WorstCase | None  #: worst overreach anywhere on the line, bolted
+    worst_underreach_on_line: WorstCase | None
+    #: bolted, m = 1: what zone 1 must stay short of
+    worst_overreach_at_remote_bus: WorstCase | None
     #: worst reactance overreach at the zone 1 reach point for faults with Rf > 0
-    reactance_over_resistive: WorstCase | None
+    worst_reactance_overreach_at_zone1_reach_resistive: WorstCase | None
+
+    # Old names (relayset 0.2), one release.
+    over_at_reach = alias("worst_overreach_at_zone1_reach", "over_at_reach")
+    under_at_reach = alias("worst_underreach_at_zone1_reach", "under_at_reach")
+    over_line = alias("worst_overreach_on_line", "over_line")
+    under_line = alias("worst_underreach_on_line", "under_line")
+    over_at_remote_bus = alias("worst_overreach_at_remote_bus", "over_at_remote_bus")
+    reactance_over_resistive = alias("worst_reactance_overreach_at_zone1_reach_resistive",
+                                     "reactance_over_resistive")
 
     def to_dict(self) -> dict[str, Any]:
         def d(w):
@@ -68,12 +80,13 @@ class LoopSummary:
 
         return {
             "loop": self.loop,
-            "worst_overreach_at_zone1_reach": d(self.over_at_reach),
-            "worst_underreach_at_zone1_reach": d(self.under_at_reach),
-            "worst_overreach_on_line": d(self.over_line),
-            "worst_underreach_on_line": d(self.under_line),
-            "worst_overreach_at_remote_bus": d(self.over_at_remote_bus),
-            "worst_reactance_overreach_at_zone1_reach_resistive": d(self.reactance_over_resistive),
+            "worst_overreach_at_zone1_reach": d(self.worst_overreach_at_zone1_reach),
+            "worst_underreach_at_zone1_reach": d(self.worst_underreach_at_zone1_reach),
+            "worst_overreach_on_line": d(self.worst_overreach_on_line),
+            "worst_underreach_on_line": d(self.worst_underreach_on_line),
+            "worst_overreach_at_remote_bus": d(self.worst_overreach_at_remote_bus),
+            "worst_reactance_overreach_at_zone1_reach_resistive":
+                d(self.worst_reactance_overreach_at_zone1_reach_resistive),
         }
 
 
@@ -189,10 +202,14 @@ class ReachStudyResult:
     power_flows: tuple[tuple[float, float], ...] | None
     parallel_circuit: str | None
     shunt_capacitance: bool
-    source_impedances: dict[str, dict[str, list[float]]]
+    source_impedances_ohm: dict[str, dict[str, list[float]]]
     ends: tuple[EndReach, ...]
-    n_cases: int
+    cases_solved: int
     notes: tuple[str, ...]
+
+    # Old names (relayset 0.2), one release.
+    source_impedances = alias("source_impedances_ohm", "source_impedances")
+    n_cases = alias("cases_solved", "n_cases")
 
     @property
     def n_load_cases(self) -> int:
@@ -219,8 +236,8 @@ class ReachStudyResult:
                 {"active_power_w": p, "reactive_power_var": q} for p, q in self.power_flows],
             "parallel_circuit": self.parallel_circuit,
             "shunt_capacitance": self.shunt_capacitance,
-            "source_impedances_ohm": self.source_impedances,
-            "cases_solved": self.n_cases,
+            "source_impedances_ohm": self.source_impedances_ohm,
+            "cases_solved": self.cases_solved,
             "ends": [e.to_dict() for e in self.ends],
             "notes": list(self.notes),
         }

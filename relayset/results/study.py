@@ -6,6 +6,8 @@ from dataclasses import dataclass
 from pathlib import PurePath
 from typing import TYPE_CHECKING, Any
 
+from relayset.results.deprecated import alias
+
 if TYPE_CHECKING:  # annotations only: `relayset params` loads no reach/settings types
     from relayset.results.parameters import LineParameters
     from relayset.results.reach import ReachStudyResult
@@ -27,15 +29,20 @@ class StudyResults:
     relayset_version: str
     source_file: str
     source_sha256: str
-    study_input: dict[str, Any]  #: the study file as read (TOML tables), for the archive
-    identity: dict[str, Any]
+    input: dict[str, Any]  #: the study file as read (TOML tables), for the archive
+    study: dict[str, Any]  #: the study's identity (line id, ends, revision, names)
     parameters: LineParameters
     relay: RelayBasis | None = None  #: the relay basis, resolved once (reach and settings)
-    reach: ReachStudyResult | None = None
+    reach_study: ReachStudyResult | None = None
     settings: tuple[SettingsResult, ...] | None = None  #: one per relay end
     philosophy: dict[str, Any] | None = None  #: the setting philosophy applied
     verification: VerificationResult | None = None  #: the settings tested by simulation
     caution: str = CAUTION
+
+    # Old names (relayset 0.2), one release.
+    identity = alias("study", "identity")
+    study_input = alias("input", "study_input")
+    reach = alias("reach_study", "reach")
 
     def frames(self):
         """Every result as a pandas DataFrame, by name (:func:`relayset.frames.frames`)."""
@@ -49,17 +56,17 @@ class StudyResults:
             "caution": self.caution,
             "source_file": PurePath(self.source_file).name,  # no folder: same bytes anywhere
             "source_sha256": self.source_sha256,
-            "study": self.identity,
+            "study": self.study,
             "parameters": self.parameters.to_dict(),
         }
         if self.relay is not None:
             d["relay"] = self.relay.to_dict()
-        if self.reach is not None:
-            d["reach_study"] = self.reach.to_dict()
+        if self.reach_study is not None:
+            d["reach_study"] = self.reach_study.to_dict()
         if self.settings is not None:
             d["settings"] = {"ends": [s.to_dict() for s in self.settings]}
             d["philosophy"] = self.philosophy
         if self.verification is not None:
             d["verification"] = self.verification.to_dict()
-        d["input"] = self.study_input
+        d["input"] = self.input
         return d

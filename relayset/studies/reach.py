@@ -148,7 +148,7 @@ def run_reach_study(
                    "r_fault_ohm": "reach_study.fault_resistances",
                    "r_phase_ohm": "reach_study.phase_fault_resistance",
                    "source_scale": "reach_study.source_cases"}
-    lines = {key: _cascade(params.z_position_ohm_per_m, params.y_position_s_per_m, ords, lens,
+    lines = {key: _cascade(params.z_by_position_ohm_per_m, params.y_by_position_s_per_m, ords, lens,
                            rs.shunt_capacitance) for key, (ords, lens) in plans.items()}
     # Identical arrangements (one-section line: actual plan = untransposed; ideal plan =
     # ideal cycle) are solved once and reported under each name.
@@ -223,15 +223,15 @@ def run_reach_study(
         worst = actual.worst_bolted_overreach_at_remote_bus_pct
         rec = recommended_zone1_pct(worst, budget, zone1_max_pct, zone1_margin_pct)
         allowed = recommended_zone1_pct(worst, budget, 100.0, zone1_margin_pct)  # no cap
-        gov = max((lp for lp in actual.loops if lp.over_at_remote_bus is not None),
-                  key=lambda lp: lp.over_at_remote_bus.error_pct, default=None)
+        gov = max((lp for lp in actual.loops if lp.worst_overreach_at_remote_bus is not None),
+                  key=lambda lp: lp.worst_overreach_at_remote_bus.error_pct, default=None)
         end_results.append(EndReach(
             end=end_name, z1_set_ohm=complex(z1_set), k0_set=complex(k0_set),
             k0m_set=None if k0m_set is None else complex(k0m_set),
             zone1_reach_pct=z1_reach, error_budget_pct=budget, recommended_zone1_pct=rec,
             zone1_allowed_by_errors_pct=allowed,
             governing_loop="" if gov is None else gov.loop,
-            governing_case=None if gov is None else gov.over_at_remote_bus,
+            governing_case=None if gov is None else gov.worst_overreach_at_remote_bus,
             arrangements=tuple(arrs)))
 
     notes = [
@@ -263,10 +263,10 @@ def run_reach_study(
                      else None),
         parallel_circuit=parallel if n_c == 2 else None,
         shunt_capacitance=rs.shunt_capacitance,
-        source_impedances={n: {"z1_ohm": cplx(s.z1_ohm), "z0_ohm": cplx(s.z0_ohm)}
+        source_impedances_ohm={n: {"z1_ohm": cplx(s.z1_ohm), "z0_ohm": cplx(s.z0_ohm)}
                            for n, s in src.items() if s is not None},
         ends=tuple(end_results),
-        n_cases=per_arrangement * n_distinct,  # identical arrangements are solved once
+        cases_solved=per_arrangement * n_distinct,  # identical arrangements are solved once
         notes=tuple(notes),
     )
 
@@ -301,6 +301,11 @@ def emfs_for_flows_at(line, src, names, end, p_w, q_var, scales, parallel, v_nom
 
 _PICKS = ("over_at_reach", "under_at_reach", "over_line", "under_line", "over_at_remote_bus",
           "reactance_over_resistive")
+#: The LoopSummary field (the JSON key) each pick fills.
+_FIELD = dict(zip(_PICKS, (
+    "worst_overreach_at_zone1_reach", "worst_underreach_at_zone1_reach",
+    "worst_overreach_on_line", "worst_underreach_on_line", "worst_overreach_at_remote_bus",
+    "worst_reactance_overreach_at_zone1_reach_resistive"), strict=True))
 
 
 def _extremes(a: np.ndarray, first_meant: np.ndarray, largest: bool):
@@ -447,7 +452,7 @@ class _Condenser:
                 positions=_positions_at(mm, lp, orders, lengths, position_names))
 
         summaries = [LoopSummary(loop=loop_label(lp, labels),
-                                 **{p: case(lp, p) for p in _PICKS}) for lp in LOOPS]
+                                 **{_FIELD[p]: case(lp, p) for p in _PICKS}) for lp in LOOPS]
 
         def extreme(attr, fn):
             vals = [getattr(s, attr).error_pct for s in summaries
@@ -460,9 +465,9 @@ class _Condenser:
             solved_as=None if solved_as == key else solved_as,
             mutual_compensation=self.mutual,
             loops=tuple(summaries),
-            worst_bolted_overreach_at_remote_bus_pct=extreme("over_at_remote_bus", max),
-            worst_bolted_overreach_on_line_pct=extreme("over_line", max),
-            worst_bolted_underreach_on_line_pct=extreme("under_line", min),
+            worst_bolted_overreach_at_remote_bus_pct=extreme("worst_overreach_at_remote_bus", max),
+            worst_bolted_overreach_on_line_pct=extreme("worst_overreach_on_line", max),
+            worst_bolted_underreach_on_line_pct=extreme("worst_underreach_on_line", min),
             envelope_m=self.m[order_m],
             envelope_max_pct=self.env_max[:, order_m],
             envelope_min_pct=self.env_min[:, order_m],

@@ -162,7 +162,7 @@ def test_bench_per_case_reference(benchmark):
 
 def test_bench_reach_study_default(benchmark, tmp_path):
     res = benchmark(reach_study_runner(demo_variant(tmp_path, 1.0)))
-    assert res.n_cases == 3 * 12120
+    assert res.cases_solved == 3 * 12120
 
 
 def main(argv: list[str]) -> None:
@@ -183,7 +183,7 @@ def main(argv: list[str]) -> None:
             run = reach_study_runner(demo_variant(Path(tmp), pct))
             res = run()
             t = min(timeit.repeat(run, number=1, repeat=20 if pct >= 1 else 5))
-            per = res.n_cases // 3
+            per = res.cases_solved // 3
             print(f"reach study, {per} cases per arrangement x 3 arrangements, condensed: "
                   f"{1e3 * t:7.1f} ms (best of {20 if pct >= 1 else 5})")
         if "--no-memory" not in argv:

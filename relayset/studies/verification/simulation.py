@@ -147,7 +147,7 @@ def simulate(study: Study, geo: LineGeometry, params_by_rho: dict[float, LinePar
     max_angle = 0.0
     for rho, params in params_by_rho.items():
         for state in states:
-            line = _cascade(params.z_position_ohm_per_m, params.y_position_s_per_m, orders,
+            line = _cascade(params.z_by_position_ohm_per_m, params.y_by_position_s_per_m, orders,
                             lengths, rs.shunt_capacitance)
             jobs = []
             if protected:
