@@ -1,7 +1,7 @@
 """Benchmark: the same fleet on the local process pool and on a local Dask cluster, interleaved.
 
 Run: python tests/benchmarks/bench_fleet_cluster.py [N_LINES] [--workers W] [--rounds R]
-         [--report | --both] [--trim KEEP|UNSET|65536]
+         [--report | --both] [--trim KEEP|UNSET|65536] [--variant NAME:VAR=VALUE,...]...
 
 Each run is one fresh child process (a cold start, as a user's batch is, and no state carried
 from one run into the next: a Dask nanny writes its pre-spawn environment into the process
@@ -19,6 +19,10 @@ included, or each Dask worker's CPU during the batch), and peak memory: the larg
 worker's own VmHWM) and the batch process itself.
 ``--trim`` sets MALLOC_TRIM_THRESHOLD_ in the environment the cluster's nannies start from:
 KEEP (default) leaves it as the user's shell has it, UNSET removes it, a number sets it.
+``--variant`` adds a cluster run with more environment variables, e.g.
+``--variant dask-keep:RELAYSET_WORKER_ALLOCATOR=keep`` (Dask's allocator default left as it
+is: the cluster as it was before relayset retuned it) or
+``--variant dask-noprof:DASK_DISTRIBUTED__WORKER__PROFILE__ENABLED=False``.
 """
 
 from __future__ import annotations
@@ -91,8 +95,10 @@ def child(kind: str, src: str, out: str, workers: int, report: bool) -> None:
                       / 1024}))
 
 
-def run_one(kind: str, src: Path, out: Path, workers: int, report: bool, trim: str) -> dict:
+def run_one(kind: str, src: Path, out: Path, workers: int, report: bool, trim: str,
+            extra: dict[str, str]) -> dict:
     env = dict(os.environ)
+    env.update(extra)
     for k in ("OMP_NUM_THREADS", "OPENBLAS_NUM_THREADS", "MKL_NUM_THREADS"):
         env.setdefault(k, "1")
     if kind == "dask" and trim == "UNSET":
@@ -100,7 +106,7 @@ def run_one(kind: str, src: Path, out: Path, workers: int, report: bool, trim: s
         env["DASK_DISTRIBUTED__NANNY__PRE_SPAWN_ENVIRON__MALLOC_TRIM_THRESHOLD_"] = "None"
     elif kind == "dask" and trim != "KEEP":
         env["MALLOC_TRIM_THRESHOLD_"] = trim
-    r = subprocess.run([sys.executable, str(HERE), "--child", kind, str(src), str(out),
+    r = subprocess.run([sys.executable, str(HERE), "--child", kind[:4], str(src), str(out),
                         str(workers), "1" if report else "0"],
                        capture_output=True, text=True, env=env, check=False)
     shutil.rmtree(out, ignore_errors=True)
@@ -126,6 +132,13 @@ def main() -> None:
     workers, rounds = int(_arg("--workers", "2")), int(_arg("--rounds", "3"))
     trim = _arg("--trim", "KEEP")
     modes = [False, True] if "--both" in args else ["--report" in args]
+    variants: dict[str, dict[str, str]] = {"pool": {}, "dask": {}}
+    for k, a in enumerate(args):
+        if a == "--variant":
+            name, _, assigns = args[k + 1].partition(":")
+            if not name.startswith("dask"):
+                raise SystemExit("a variant's name starts with dask (it runs on the cluster)")
+            variants[name] = dict(x.split("=", 1) for x in assigns.split(",") if x)
     print(f"{n} lines, {workers} workers, {rounds} rounds, {os.cpu_count()} cores, "
           f"cluster MALLOC_TRIM_THRESHOLD_: {trim}; load average {os.getloadavg()[0]:.2f}")
     with tempfile.TemporaryDirectory() as tmp:
@@ -133,11 +146,15 @@ def main() -> None:
         src.mkdir()
         make_fleet(src, n)
         for report in modes:
-            res: dict[str, list[dict]] = {"pool": [], "dask": []}
+            res: dict[str, list[dict]] = {kind: [] for kind in variants}
+            kinds = list(variants)
             for k in range(rounds):
-                order = ("pool", "dask") if k % 2 == 0 else ("dask", "pool")
+                order = kinds[k % len(kinds):] + kinds[:k % len(kinds)]  # rotate the start
+                if k % 2:
+                    order.reverse()
                 for kind in order:
-                    d = run_one(kind, src, Path(tmp) / f"out_{kind}", workers, report, trim)
+                    d = run_one(kind, src, Path(tmp) / "out", workers, report, trim,
+                                variants[kind])
                     res[kind].append(d)
                     worker_mb = max(d["per_worker"] or [d["children_mb"]])
                     print(f"  {'reports' if report else 'no reports'} round {k + 1} {kind}: "
@@ -145,15 +162,19 @@ def main() -> None:
                           f"{d['cpu']:.1f} s, peak worker {worker_mb:.0f} MB, batch "
                           f"process {d['self_mb']:.0f} MB; load {os.getloadavg()[0]:.2f}")
             tput = {k: [d["lines"] / d["wall"] for d in v] for k, v in res.items()}
-            ratio = [d / p for p, d in zip(tput["pool"], tput["dask"], strict=True)]
             print(f"{'with' if report else 'without'} reports, median (min-max) of {rounds}:")
-            for kind in ("pool", "dask"):
+            for kind in kinds:
                 ds = res[kind]
                 print(f"  {kind}: {_stat(tput[kind])} lines/s, CPU "
                       f"{_stat([d['cpu'] for d in ds], '.1f')} s, peak worker "
                       f"{_stat([max(d['per_worker'] or [d['children_mb']]) for d in ds], '.0f')}"
                       f" MB, batch process {_stat([d['self_mb'] for d in ds], '.0f')} MB")
-            print(f"  dask/pool throughput, per round pair: {_stat(ratio)}")
+            for kind in kinds[1:]:
+                ratio = [d / p for p, d in zip(tput["pool"], tput[kind], strict=True)]
+                cpu = [p["cpu"] / d["cpu"] for p, d in zip(res["pool"], res[kind],
+                                                           strict=True)]
+                print(f"  {kind}/pool, per round: throughput {_stat(ratio)}, "
+                      f"pool CPU / {kind} CPU {_stat(cpu)}")
 
 
 if __name__ == "__main__":
