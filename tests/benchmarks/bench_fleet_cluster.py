@@ -18,7 +18,8 @@ included, or each Dask worker's CPU during the batch), and peak memory: the larg
 (RUSAGE_CHILDREN maxrss inside the child, i.e. the largest process it started, or each Dask
 worker's own VmHWM) and the batch process itself.
 ``--trim`` sets MALLOC_TRIM_THRESHOLD_ in the environment the cluster's nannies start from:
-KEEP (default) leaves it as the user's shell has it, UNSET removes it, a number sets it.
+KEEP (default) leaves it as the user's shell has it, UNSET removes it (a Dask configuration
+file giving it null, via DASK_CONFIG), a number sets it.
 ``--variant`` adds a cluster run with more environment variables, e.g.
 ``--variant dask-keep:RELAYSET_WORKER_ALLOCATOR=keep`` (Dask's allocator default left as it
 is: the cluster as it was before relayset retuned it) or
@@ -101,10 +102,16 @@ def run_one(kind: str, src: Path, out: Path, workers: int, report: bool, trim: s
     env.update(extra)
     for k in ("OMP_NUM_THREADS", "OPENBLAS_NUM_THREADS", "MKL_NUM_THREADS"):
         env.setdefault(k, "1")
-    if kind == "dask" and trim == "UNSET":
+    if kind.startswith("dask") and trim == "UNSET":
+        # a configuration file: a DASK_... variable cannot remove this upper-case key
         env.pop("MALLOC_TRIM_THRESHOLD_", None)
-        env["DASK_DISTRIBUTED__NANNY__PRE_SPAWN_ENVIRON__MALLOC_TRIM_THRESHOLD_"] = "None"
-    elif kind == "dask" and trim != "KEEP":
+        conf = out.parent / "dask-config"
+        conf.mkdir(exist_ok=True)
+        (conf / "unset-trim.yaml").write_text(
+            "distributed:\n  nanny:\n    pre-spawn-environ:\n"
+            "      MALLOC_TRIM_THRESHOLD_: null\n", "utf-8")
+        env["DASK_CONFIG"] = str(conf)
+    elif kind.startswith("dask") and trim != "KEEP":
         env["MALLOC_TRIM_THRESHOLD_"] = trim
     r = subprocess.run([sys.executable, str(HERE), "--child", kind[:4], str(src), str(out),
                         str(workers), "1" if report else "0"],
