@@ -13,7 +13,7 @@ import os
 from collections.abc import Iterator, Sequence
 
 from relayset.errors import InputError
-from relayset.fleet.worker import Outcome, compute_line, init_worker
+from relayset.fleet.worker import Outcome, compute_line, compute_line_on_cluster, init_worker
 
 Task = tuple[int, str, str, bool, str | None]
 
@@ -77,18 +77,28 @@ def connect(address: str):
 
 
 def run_dask(tasks: Sequence[Task], client) -> Iterator[Outcome]:
-    """Compute the lines on the Dask cluster of ``client``."""
+    """Compute the lines on the Dask cluster of ``client``.
+
+    Each worker prepares itself once (:func:`~relayset.fleet.worker.compute_line_on_cluster`:
+    allocator, imports); a line's result is released on the cluster as soon as it is here,
+    so a worker holds only the lines not yet collected, whatever the size of the fleet.
+    """
     from distributed import as_completed
 
     tasks = [(*t[:4], None) for t in tasks]  # the parent writes: bytes come back
-    futures = [client.submit(compute_line, *t, pure=False,
-                             key=f"relayset-line-{t[0]}-{os.getpid()}") for t in tasks]
-    by_key = {f.key: t for f, t in zip(futures, tasks, strict=True)}
+    pending = {}
+    for t in tasks:
+        f = client.submit(compute_line_on_cluster, *t[:4], pure=False,
+                          key=f"relayset-line-{t[0]}-{os.getpid()}")
+        pending[f.key] = (f, t)
     try:
-        for f in as_completed(futures):
-            yield _result(f, by_key[f.key])
+        for f in as_completed([f for f, _ in pending.values()]):
+            _, t = pending.pop(f.key)
+            outcome = _result(f, t)
+            f.release()
+            yield outcome
     finally:
-        client.cancel(futures)
+        client.cancel([f for f, _ in pending.values()])
 
 
 def _result(future, task: Task) -> Outcome:

@@ -95,6 +95,35 @@ def _modal(z: np.ndarray, y: np.ndarray) -> tuple[np.ndarray, np.ndarray, np.nda
     return w, t, t_inv, ok
 
 
+def _section_parts(z: np.ndarray, y: np.ndarray, ln: np.ndarray,
+                   modal: tuple[np.ndarray, np.ndarray, np.ndarray, bool]) -> np.ndarray:
+    """Chain matrices (M, 2n, 2n) of parts of lengths ``ln`` (M,) of one section with shunt
+    admittance, its modal decomposition ``modal`` given (see :func:`_modal`)."""
+    w, t, t_inv, ok = modal
+    if not ok:
+        return _pade_section(z, y, ln)
+    n = z.shape[-1]
+    eye = np.eye(n)
+    phi = np.zeros((ln.size, 2 * n, 2 * n), dtype=complex)
+    phi[:, :n, :n] = eye
+    phi[:, n:, n:] = eye
+    x2 = w[None, :] * (ln * ln)[:, None]  # (gamma_k l)^2, (M, n)
+    x = np.sqrt(x2)  # either root: only even functions of x are used
+    with np.errstate(invalid="ignore", divide="ignore"):
+        sinhc = np.where(x == 0, 1.0, np.sinh(x) / x)
+        ch1 = 2.0 * np.sinh(x / 2) ** 2  # cosh(x) - 1, accurate for small x
+        ch1_x2 = np.where(x2 == 0, 0.5, ch1 / x2)
+    f_s = (t[None] * sinhc[:, None, :]) @ t_inv  # sinh(G l)/(G l), (M, n, n)
+    f_c = (t[None] * ch1[:, None, :]) @ t_inv  # cosh(G l) - 1
+    f_h = (t[None] * ch1_x2[:, None, :]) @ t_inv  # (cosh(G l) - 1)/(G l)^2
+    l3 = ln[:, None, None]
+    phi[:, :n, :n] += f_c
+    phi[:, :n, n:] = (f_s @ z) * l3
+    phi[:, n:, :n] = (y @ f_s) * l3
+    phi[:, n:, n:] += (y @ f_h @ z) * (l3 * l3)
+    return phi
+
+
 def section_chain_matrices(
     z: np.ndarray, y: np.ndarray | None, lengths: np.ndarray
 ) -> np.ndarray:
@@ -123,26 +152,8 @@ def section_chain_matrices(
     if y is None:
         phi[..., :n, n:] = lengths[..., None, None] * z
         return phi
-    for s in range(n_sec):  # loop over sections (a handful), not over parts
-        ln = lengths[:, s]
-        w, t, t_inv, ok = _modal(z[s], y[s])
-        if not ok:
-            phi[:, s] = _pade_section(z[s], y[s], ln)
-            continue
-        x2 = w[None, :] * (ln * ln)[:, None]  # (gamma_k l)^2, (M, n)
-        x = np.sqrt(x2)  # either root: only even functions of x are used
-        with np.errstate(invalid="ignore", divide="ignore"):
-            sinhc = np.where(x == 0, 1.0, np.sinh(x) / x)
-            ch1 = 2.0 * np.sinh(x / 2) ** 2  # cosh(x) - 1, accurate for small x
-            ch1_x2 = np.where(x2 == 0, 0.5, ch1 / x2)
-        f_s = (t[None] * sinhc[:, None, :]) @ t_inv  # sinh(G l)/(G l), (M, n, n)
-        f_c = (t[None] * ch1[:, None, :]) @ t_inv  # cosh(G l) - 1
-        f_h = (t[None] * ch1_x2[:, None, :]) @ t_inv  # (cosh(G l) - 1)/(G l)^2
-        l3 = ln[:, None, None]
-        phi[:, s, :n, :n] += f_c
-        phi[:, s, :n, n:] = (f_s @ z[s]) * l3
-        phi[:, s, n:, :n] = (y[s] @ f_s) * l3
-        phi[:, s, n:, n:] += (y[s] @ f_h @ z[s]) * (l3 * l3)
+    for s in range(n_sec):  # loop over sections, not over parts
+        phi[:, s] = _section_parts(z[s], y[s], lengths[:, s], _modal(z[s], y[s]))
     return phi
 
 
@@ -198,3 +209,139 @@ def chain_products(
     for s in order:  # loop over sections (a handful), not over cases
         phi = e[:, s] if phi is None else phi @ e[:, s]
     return phi
+
+
+#: Fault locations whose section split is formed at a time in :func:`fault_chain_products`
+#: is this many part lengths divided by the number of sections (bounds its memory at some
+#: 8 MB an array whatever the number of sections).
+SPLIT_BLOCK_PARTS = 1 << 20
+
+
+def split_lengths(length_m: np.ndarray, m: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
+    """Length of every section on the S side and on the R side of each fault.
+
+    Parameters
+    ----------
+    length_m : (S,) float array
+        Section lengths [m], from bus S.
+    m : (M,) float array
+        Fault locations as fractions of the line from bus S [1], in [0, 1].
+
+    Returns
+    -------
+    left, right : (M, S) float arrays
+        Part of each section between bus S and the fault, and between the fault and
+        bus R [m].
+    """
+    edges = np.concatenate([[0.0], np.cumsum(length_m)])
+    x = m * edges[-1]
+    left = np.clip(x[:, None] - edges[None, :-1], 0.0, length_m[None, :])
+    left[m == 1.0] = length_m  # exact zero R-side length at the remote bus
+    return left, length_m[None, :] - left
+
+
+def fault_chain_products(
+    z: np.ndarray, y: np.ndarray | None, length_m: np.ndarray, m: np.ndarray
+) -> tuple[np.ndarray, np.ndarray]:
+    """Chain matrices of the line from each bus to each fault location, (M, 2n, 2n) each.
+
+    The same matrices as :func:`chain_products` of the parts :func:`split_lengths` gives
+    (the same products in the same order, bit for bit on the modal path), with memory
+    bounded in the number of sections: a fault cuts one section, every section before it
+    is whole and every section after it is absent (an exact identity). The whole sections
+    are cascaded once, from either bus (S + 1 prefix products each way); per fault only
+    the cut section is formed and multiplied on. The modal decomposition is computed once
+    per distinct section (a transposed line repeats a few phase orders). Rows whose parts
+    do not follow that pattern to rounding are still multiplied out in full.
+
+    Parameters
+    ----------
+    z, y : (S, n, n) complex arrays
+        Series [ohm/m] and shunt [S/m] matrices per section (``y`` None: series only).
+    length_m : (S,) float array
+        Section lengths [m], from bus S.
+    m : (M,) float array
+        Fault locations as fractions of the line from bus S [1], in [0, 1].
+
+    Returns
+    -------
+    phi_s, phi_r : (M, 2n, 2n) complex arrays
+        Chain matrix from bus S to the fault (sections in order) and from bus R to the
+        fault (sections in reverse order) [1, ohm; S, 1 blocks].
+    """
+    length_m = np.asarray(length_m, dtype=float)
+    m = np.asarray(m, dtype=float)
+    n_sec, n = length_m.size, z.shape[-1]
+    block = max(1, SPLIT_BLOCK_PARTS // n_sec)
+    phi_s = np.empty((m.size, 2 * n, 2 * n), dtype=complex)
+    phi_r = np.empty_like(phi_s)
+    if y is None:  # series only: the blocks add, no products needed
+        for a in range(0, m.size, block):
+            left, right = split_lengths(length_m, m[a:a + block])
+            phi_s[a:a + block] = chain_products(z, None, left, reverse=False)
+            phi_r[a:a + block] = chain_products(z, None, right, reverse=True)
+        return phi_s, phi_r
+    # one modal decomposition per distinct section (same matrices, bit for bit)
+    kind: dict[bytes, int] = {}
+    sec_kind = np.array([kind.setdefault(z[s].tobytes() + y[s].tobytes(), len(kind))
+                         for s in range(n_sec)])
+    rep = {k: int(np.flatnonzero(sec_kind == k)[0]) for k in range(len(kind))}
+    modal = {k: _modal(z[s], y[s]) for k, s in rep.items()}
+
+    def parts(sec: np.ndarray, ln: np.ndarray) -> np.ndarray:
+        """Chain matrices of parts ``ln`` of sections ``sec`` (P,), grouped by kind."""
+        out = np.empty((sec.size, 2 * n, 2 * n), dtype=complex)
+        for k, s in rep.items():
+            sel = np.flatnonzero(sec_kind[sec] == k)
+            if sel.size:
+                out[sel] = _section_parts(z[s], y[s], ln[sel], modal[k])
+        return out
+
+    whole = parts(np.arange(n_sec), length_m)
+    fwd, bwd = np.arange(n_sec), np.arange(n_sec - 1, -1, -1)
+    cascades = []
+    for order in (fwd, bwd):  # prefix products of the whole sections in product order
+        pre = np.empty((n_sec + 1, 2 * n, 2 * n), dtype=complex)
+        pre[0] = np.eye(2 * n)
+        pre[1] = whole[order[0]]
+        for j in range(1, n_sec):
+            pre[j + 1] = pre[j] @ whole[order[j]]
+        cascades.append(pre)
+    for a in range(0, m.size, block):
+        left, right = split_lengths(length_m, m[a:a + block])
+        for out, lens, order, pre in ((phi_s, left, fwd, cascades[0]),
+                                      (phi_r, right, bwd, cascades[1])):
+            out[a:a + block] = _cut_products(lens[:, order], length_m[order], order, pre,
+                                             parts)
+    return phi_s, phi_r
+
+
+def _cut_products(lens: np.ndarray, full: np.ndarray, order: np.ndarray, pre: np.ndarray,
+                  parts) -> np.ndarray:
+    """Products over the sections (columns already in product order) of the parts ``lens``
+    (B, S): the prefix product of the leading whole sections, then every other part that is
+    not absent, in order (one, the cut section, unless rounding says otherwise)."""
+    n_sec = lens.shape[1]
+    whole = lens == full[None, :]
+    n_lead = np.where(whole.all(axis=1), n_sec, np.argmin(whole, axis=1))
+    rows, cols = np.nonzero((np.arange(n_sec)[None, :] >= n_lead[:, None]) & (lens > 0))
+    phi = pre[n_lead]  # identity where no section is whole
+    rank = _run_index(rows)  # which term of its row each part is (rows come sorted)
+    e = parts(order[cols], lens[rows, cols])
+    for r in range(int(rank.max(initial=-1)) + 1):
+        sel = np.flatnonzero(rank == r)
+        rw = rows[sel]
+        first = (r == 0) & (n_lead[rw] == 0)  # the product starts with this part itself
+        phi[rw[first]] = e[sel[first]]
+        rest = ~first
+        phi[rw[rest]] = phi[rw[rest]] @ e[sel[rest]]
+    return phi
+
+
+def _run_index(rows: np.ndarray) -> np.ndarray:
+    """Position of each element within its run of equal values of sorted ``rows``."""
+    if rows.size == 0:
+        return rows
+    start = np.flatnonzero(np.r_[True, rows[1:] != rows[:-1]])
+    counts = np.diff(np.r_[start, rows.size])
+    return np.arange(rows.size) - np.repeat(start, counts)

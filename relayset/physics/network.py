@@ -56,7 +56,7 @@ from dataclasses import dataclass
 import numpy as np
 
 from relayset.errors import InputError, suggest
-from relayset.physics.chain import chain_products
+from relayset.physics.chain import fault_chain_products
 from relayset.physics.faults import (
     FAULT_TYPES,
     check_fault_type,
@@ -424,16 +424,6 @@ def _line_matrices(line: LineCascade, parallel_state: str) -> tuple[np.ndarray, 
 # --------------------------------------------------------------------------------------
 
 
-def _split_lengths(length_m: np.ndarray, m: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
-    """Length of every section on the S side and on the R side of each fault, (M, S) [m]."""
-    edges = np.concatenate([[0.0], np.cumsum(length_m)])
-    x = m * edges[-1]
-    left = np.clip(x[:, None] - edges[None, :-1], 0.0, length_m[None, :])
-    left[m == 1.0] = length_m  # exact zero R-side length at the remote bus
-    return left, length_m[None, :] - left
-
-
-
 def _terminal(
     n: int,
     state: str,
@@ -560,9 +550,8 @@ def solve_fault_sweep(
     n_m, n_k, n_l = m.size, scale.shape[0], e_s.shape[1]
     z_ref = float(np.max(np.abs(line.z_total_ohm)))
 
-    left, right = _split_lengths(line.length_m, m)
-    phi_l = chain_products(z, y, left, reverse=False)  # (M, 2n, 2n)
-    phi_r = chain_products(z, y, right, reverse=True)
+    # (M, 2n, 2n) each; memory bounded in the number of sections
+    phi_l, phi_r = fault_chain_products(z, y, line.length_m, m)
     zs = None if source_s is None else source_s.phase_matrix(scale[:, 0])
     zr = None if source_r is None else source_r.phase_matrix(scale[:, 1])
     g_l, b_l = _terminal(n, parallel_state, zs, _balanced(e_s), z_ref)

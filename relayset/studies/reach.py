@@ -60,7 +60,9 @@ def build_source(study: Study, name: str, source: str) -> network.Source | None:
 
 
 #: Fault cases solved and condensed at a time (bounds the sweep's memory, some 0.5 kB a
-#: case while a chunk is worked on). The case limits live with the other input limits.
+#: case while a chunk is worked on; the sections of the line add some 5 kB each, not per
+#: case: see :func:`relayset.physics.chain.fault_chain_products`). The case limits live with
+#: the other input limits.
 CHUNK_CASES = 100_000
 
 
