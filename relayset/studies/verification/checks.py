@@ -54,8 +54,8 @@ from relayset.studies.verification.relay_model import (
     LOOPS,
     RelayModel,
     View,
-    loop_scale,
     view,
+    zone_scale,
 )
 from relayset.studies.verification.simulation import Simulation, simulate
 
@@ -126,7 +126,7 @@ def _describe(vw: View, which: np.ndarray, labels, faulted: str, rf_pairs):
             r_phase_ohm=float(rf_pairs[k_rf, 1]), source_case=run.case_names[k_s],
             transfer_angle_deg=round(ang, 6), parallel_state=run.state,
             earth_resistivity_ohm_m=run.rho_ohm_m, loop=loop_label(loop, labels),
-            z_apparent_primary_ohm=complex(vw.loops[loop][idx]),
+            z_apparent_primary_ohm=vw.loop_at(loop, idx),
             mutual_compensation=bool(np.broadcast_to(vw.mutual, which.shape)[idx]))
     return fn
 
@@ -208,14 +208,17 @@ def infeed_range(sim: Simulation, end: str) -> InfeedRange | None:
 
 
 def zone1_limit_pct(sim: Simulation, end: str, st: SettingsResult, tolerance_pct: float,
-                    margin_pct: float, model: RelayModel) -> float | None:
+                    margin_pct: float, model: RelayModel, worst: float | None = None
+                    ) -> float | None:
     """Longest zone 1 [% of line] whose faults at the remote bus keep the tolerance.
 
     The reach scale of every remote-bus fault (every state, source, load case and fault
     resistance) is inversely proportional to the zone 1 reach, so the limit is the present
     reach times the smallest scale, less the tolerance and the margin; rounded down to 0.5 %.
+    ``worst`` is that smallest scale where the caller has it already.
     """
-    worst = worst_remote_bus_scale(sim, end, st, model)
+    if worst is None:
+        worst = worst_remote_bus_scale(sim, end, st, model)
     if worst is None:
         return None
     lim = st.zone("zone1").reach_pct * worst * (1 - margin_pct / 100) / (1 + tolerance_pct / 100)
@@ -239,17 +242,19 @@ def verify_end(sim: Simulation, end: str, st: SettingsResult, *, study: Study,
                                      ("z1_par", False), ("z1_par_nomut", False),
                                      ("fwd_behind", False))}
     labels = sim.labels
+    worst_bus = math.inf  # smallest zone 1 reach scale at the remote bus (its limit)
     for run in sim.runs:
         sw = run.sweep
         rfp = np.stack([sw.r_fault_ohm, sw.r_phase_ohm], axis=1)
         rf_ax = (None, None, slice(None), None, None)
         if run.faulted == "protected":
+            # One view of the run serves every zone; each zone's scales are formed once.
             v = view(run, at_s, st.k0.k0, k0m, model, line_angle=theta)
             m_ax = v.m_end[None, :, None, None, None]
-            s1, w1, ins = loop_scale(v, z1, theta, zl, model)
-            o1, u1, _ = loop_scale(v, z1, theta, zl, model, close_in=0.0)
-            o2, u2, _ = loop_scale(v, z2, theta, zl, model, close_in=0.0)
-            d1 = _describe(v, w1, labels, "protected line", rfp)
+            sc1 = zone_scale(v, z1, theta, zl, model)
+            sc2 = zone_scale(v, z2, theta, zl, model)
+            s1, ins = sc1.scale, sc1.insensitive
+            d1 = _describe(v, sc1.which, labels, "protected line", rfp)
             mask_rf1 = rf_mask(rfp, z1, tower)[rf_ax]
             mask_rf2 = rf_mask(rfp, z2, tower)[rf_ax]
             every = np.ones(s1.shape, dtype=bool)
@@ -257,26 +262,39 @@ def verify_end(sim: Simulation, end: str, st: SettingsResult, *, study: Study,
             # (pilot scheme) matter, not one of the zone's reach.
             fed = every & run.sources[0 if at_s else 1]
             in1 = (m_ax <= r1 * (1 - t / 100) + 1e-9) & mask_rf1 & fed
-            acc["z1_int"].add((1 - o1) * 100, in1, 0.0,
-                              _describe(v, u1, labels, "protected line", rfp), ins)
-            acc["z2_int"].add((1 - o2) * 100, mask_rf2 & fed, t,
-                              _describe(v, u2, labels, "protected line", rfp), ins)
-            acc["z1_ext"].add((s1 - 1) * 100, np.isclose(m_ax, 1.0) & every, t, d1, ins)
+            acc["z1_int"].add((1 - sc1.scale_in) * 100, in1, 0.0,
+                              _describe(v, sc1.which_in, labels, "protected line", rfp), ins)
+            acc["z2_int"].add((1 - sc2.scale_in) * 100, mask_rf2 & fed, t,
+                              _describe(v, sc2.which_in, labels, "protected line", rfp),
+                              sc2.insensitive)
+            at_bus = np.isclose(m_ax, 1.0) & every
+            acc["z1_ext"].add((s1 - 1) * 100, at_bus, t, d1, ins)
+            if np.any(at_bus):
+                worst_bus = min(worst_bus, float(np.min(np.where(at_bus, s1, np.inf))))
             # Faults at the relay's own bus, behind it, every type and resistance; bolted
-            # ones with a vanishing loop voltage are the memory polarisation's.
-            vb = view(run, at_s, st.k0.k0, k0m, model, behind=True, line_angle=theta)
-            at_own = np.isclose(vb.m_end, 0.0)[None, :, None, None, None]
-            for zone in (z1, z2, z3):
-                sb, wb, insb = loop_scale(vb, zone, theta, zl, model)
-                acc["fwd_behind"].add((sb - 1) * 100, at_own & every, t,
-                                      _describe(vb, wb, labels, "behind the relay", rfp),
-                                      insb)
+            # ones with a vanishing loop voltage are the memory polarisation's. Only the
+            # own-bus locations are measured.
+            own = np.flatnonzero(np.isclose(sw.m, 0.0 if at_s else 1.0))
+            if own.size:
+                vb = view(run, at_s, st.k0.k0, k0m, model, behind=True, line_angle=theta,
+                          m_index=own)
+                for zone in (z1, z2, z3):
+                    sb = zone_scale(vb, zone, theta, zl, model)
+                    acc["fwd_behind"].add(
+                        (sb.scale - 1) * 100, np.ones(sb.scale.shape, dtype=bool), t,
+                        _describe(vb, sb.which, labels, "behind the relay", rfp),
+                        sb.insensitive)
         else:
+            vm = None
             for key, km in (("z1_par", k0m), ("z1_par_nomut", None)):
-                v = view(run, at_s, st.k0.k0, km, model, line_angle=theta)
-                s1, w1, ins = loop_scale(v, z1, theta, zl, model)
-                acc[key].add((s1 - 1) * 100, np.ones(s1.shape, dtype=bool), t,
-                             _describe(v, w1, labels, "parallel circuit", rfp), ins)
+                # Without mutual compensation both readings are one view.
+                v = vm if (km is None and k0m is None and vm is not None) else view(
+                    run, at_s, st.k0.k0, km, model, line_angle=theta)
+                vm = v
+                sc = zone_scale(v, z1, theta, zl, model)
+                acc[key].add((sc.scale - 1) * 100, np.ones(sc.scale.shape, dtype=bool), t,
+                             _describe(v, sc.which, labels, "parallel circuit", rfp),
+                             sc.insensitive)
     checks = [
         _finish("zone1", "operates_for_internal_faults",
                 f"zone 1 operates for every fault up to (1 − {t:g} %) of its reach "
@@ -319,7 +337,8 @@ def verify_end(sim: Simulation, end: str, st: SettingsResult, *, study: Study,
     checks.append(_targets_inside(st))
     if remote is not None:
         checks.append(_reverse_check(st, zr, remote, t, other))
-    lim = zone1_limit_pct(sim, end, st, t, 0.0, model)
+    lim = zone1_limit_pct(sim, end, st, t, 0.0, model,
+                          worst=worst_bus if math.isfinite(worst_bus) else None)
     return EndVerification(end, tuple(checks), infeed_range(sim, end), lim)
 
 
@@ -481,10 +500,11 @@ def worst_remote_bus_scale(sim: Simulation, end: str, st: SettingsResult, model:
     for run in sim.runs:
         if run.faulted != "protected":
             continue
-        v = view(run, at_s, st.k0.k0, k0m, model, line_angle=theta)
-        s, _, _ = loop_scale(v, z1, theta, zl, model)
-        at_bus = np.isclose(v.m_end, 1.0)[None, :, None, None, None]
-        worst = min(worst, float(np.min(np.where(at_bus, s, np.inf))))
+        bus = np.flatnonzero(np.isclose(run.sweep.m, 1.0 if at_s else 0.0))
+        if not bus.size:
+            continue
+        v = view(run, at_s, st.k0.k0, k0m, model, line_angle=theta, m_index=bus)
+        worst = min(worst, float(np.min(zone_scale(v, z1, theta, zl, model).scale)))
     return worst if math.isfinite(worst) else None
 
 

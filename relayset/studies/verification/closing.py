@@ -225,10 +225,10 @@ def _resistive_needs(sim: Simulation, end: str, st: SettingsResult, tolerance_pc
             rf_ok = rf_mask(rfp, zone, tower_ohm)[None, None, :, None, None]
             m_ok = (v.m_end <= lim + 1e-9)[None, :, None, None, None]
             for loop in LOOPS:
-                idx = [f for f, ft in enumerate(sw.fault_types) if loop in model.loops_for(ft)]
+                idx = v.meant[loop]
                 if not idx:
                     continue
-                z = v.loops[loop][idx]
+                z = v.loops[loop]
                 ok = (rf_ok & m_ok & v.forward[idx] & v.released[loop][idx]
                       & (np.abs(z) >= Z_SMALL * zl)
                       & (z.imag <= zone.x_reach_primary_ohm)
