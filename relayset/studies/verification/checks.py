@@ -52,12 +52,13 @@ from relayset.studies.geometry import LineGeometry
 from relayset.studies.verification.envelope import Envelope, build_envelope
 from relayset.studies.verification.relay_model import (
     LOOPS,
+    Measure,
     RelayModel,
     View,
-    view,
+    relay_view,
     zone_scale,
 )
-from relayset.studies.verification.simulation import Simulation, simulate
+from relayset.studies.verification.simulation import Simulation, infeed_samples, simulate
 
 #: Fault location step of the verification sweep [% of the line] (common practice, no source).
 STEP_PCT = 10.0
@@ -176,30 +177,9 @@ def infeed_range(sim: Simulation, end: str) -> InfeedRange | None:
     at_s = end == sim.names[0]
     ks, descr = [], []
     for run in sim.runs:
-        if run.faulted != "protected" or not run.sources[0 if at_s else 1]:
-            continue  # without a source behind the relay there is no relay current
-        sw = run.sweep
-        if "ABC" not in sw.fault_types:
-            continue
-        f = sw.fault_types.index("ABC")
-        k_m = int(np.argmax(sw.m)) if at_s else int(np.argmin(sw.m))
-        if abs(sw.m[k_m] - (1.0 if at_s else 0.0)) > 1e-12:
-            continue
-        k_rf = int(np.argmin(sw.r_fault_ohm + sw.r_phase_ohm))
-        i_f = sw.i_fault[f, k_m, k_rf]  # (K, L, 3)
-        # The fault's own (incremental) relay current: the infeed factor of the grading
-        # formula belongs to the superposed fault network, whatever load flowed before.
-        i_rel = ((sw.i_s if at_s else sw.i_r)[f, k_m, k_rf]
-                 - (sw.i_s_pre if at_s else sw.i_r_pre))
-        with np.errstate(all="ignore"):
-            k = (i_f[..., 0] - i_f[..., 1]) / (i_rel[..., 0] - i_rel[..., 1])
-        # the load case by its transfer angle, also for power flows
-        delta = np.degrees(sw.transfer_angle_rad)  # (K, L)
-        for (a, b), kv in np.ndenumerate(k):
-            if np.isfinite(kv):
-                ks.append(complex(kv))
-                descr.append(f"{run.case_names[a]}, parallel {run.state}, transfer angle "
-                             f"{delta[a, b]:.1f}°")
+        for k, d in infeed_samples(run, at_s):
+            ks.append(k)
+            descr.append(d)
     if not ks:
         return None
     mags = np.abs(ks)
@@ -249,7 +229,7 @@ def verify_end(sim: Simulation, end: str, st: SettingsResult, *, study: Study,
         rf_ax = (None, None, slice(None), None, None)
         if run.faulted == "protected":
             # One view of the run serves every zone; each zone's scales are formed once.
-            v = view(run, at_s, st.k0.k0, k0m, model, line_angle=theta)
+            v = relay_view(run, at_s, st.k0.k0, k0m, model, line_angle=theta)
             m_ax = v.m_end[None, :, None, None, None]
             sc1 = zone_scale(v, z1, theta, zl, model)
             sc2 = zone_scale(v, z2, theta, zl, model)
@@ -274,10 +254,8 @@ def verify_end(sim: Simulation, end: str, st: SettingsResult, *, study: Study,
             # Faults at the relay's own bus, behind it, every type and resistance; bolted
             # ones with a vanishing loop voltage are the memory polarisation's. Only the
             # own-bus locations are measured.
-            own = np.flatnonzero(np.isclose(sw.m, 0.0 if at_s else 1.0))
-            if own.size:
-                vb = view(run, at_s, st.k0.k0, k0m, model, behind=True, line_angle=theta,
-                          m_index=own)
+            vb = relay_view(run, at_s, st.k0.k0, k0m, model, line_angle=theta, behind=True)
+            if vb is not None:
                 for zone in (z1, z2, z3):
                     sb = zone_scale(vb, zone, theta, zl, model)
                     acc["fwd_behind"].add(
@@ -285,12 +263,8 @@ def verify_end(sim: Simulation, end: str, st: SettingsResult, *, study: Study,
                         _describe(vb, sb.which, labels, "behind the relay", rfp),
                         sb.insensitive)
         else:
-            vm = None
             for key, km in (("z1_par", k0m), ("z1_par_nomut", None)):
-                # Without mutual compensation both readings are one view.
-                v = vm if (km is None and k0m is None and vm is not None) else view(
-                    run, at_s, st.k0.k0, km, model, line_angle=theta)
-                vm = v
+                v = relay_view(run, at_s, st.k0.k0, km, model, line_angle=theta)
                 sc = zone_scale(v, z1, theta, zl, model)
                 acc[key].add((sc.scale - 1) * 100, np.ones(sc.scale.shape, dtype=bool), t,
                              _describe(v, sc.which, labels, "parallel circuit", rfp),
@@ -503,9 +477,20 @@ def worst_remote_bus_scale(sim: Simulation, end: str, st: SettingsResult, model:
         bus = np.flatnonzero(np.isclose(run.sweep.m, 1.0 if at_s else 0.0))
         if not bus.size:
             continue
-        v = view(run, at_s, st.k0.k0, k0m, model, line_angle=theta, m_index=bus)
+        v = relay_view(run, at_s, st.k0.k0, k0m, model, line_angle=theta).at_locations(bus)
         worst = min(worst, float(np.min(zone_scale(v, z1, theta, zl, model).scale)))
     return worst if math.isfinite(worst) else None
+
+
+def measure_for(study: Study, geo: LineGeometry, settings_by_end: dict[str, SettingsResult]
+                ) -> Measure:
+    """What to keep of each solved run: the views of the relays of these settings (their
+    k0, k0m, relay model and line angle; the zone reaches play no part)."""
+    mutual = geo.n_circuits == 2 and study.reach_study.mutual_compensation
+    return Measure(tuple(
+        (end == study.ends[0], st.k0.k0, st.k0m if mutual else None,
+         relay_model_at(study, end), st.line_angle_rad)
+        for end, st in settings_by_end.items()))
 
 
 def relay_model_at(study: Study, end: str) -> RelayModel:
@@ -527,7 +512,8 @@ def verify_settings(study: Study, geo: LineGeometry, params_by_rho: dict[float, 
                     settings_by_end: dict[str, SettingsResult], *, source: str,
                     zone2_adjacent_zone1_pct: float = 80.0,
                     ends: Sequence[str] | None = None,
-                    envelope: Envelope | None = None) -> VerificationResult:
+                    envelope: Envelope | None = None,
+                    simulation: Simulation | None = None) -> VerificationResult:
     """Run the verification of the settings of every end over the envelope.
 
     Parameters
@@ -541,6 +527,9 @@ def verify_settings(study: Study, geo: LineGeometry, params_by_rho: dict[float, 
         The settings of the relay at each end to verify.
     envelope : Envelope, optional
         The operating envelope (default: the study's, with the settings' resistive targets).
+    simulation : Simulation, optional
+        The simulation of that envelope, already solved (and measured for these relays,
+        :func:`measure_for`) by the settings' closing; default: solved here.
     """
     names = study.ends
     t = check_tolerance(study.error_budget.total_pct, source)
@@ -549,8 +538,13 @@ def verify_settings(study: Study, geo: LineGeometry, params_by_rho: dict[float, 
                                   0)
     env = envelope or build_envelope(study, resistive_targets(study, list(
         settings_by_end.values())))
-    m = verification_grid(settings_by_end, names, t)
-    sim = simulate(study, geo, params_by_rho, env, m=m, source=source)
+    if simulation is None:
+        m = verification_grid(settings_by_end, names, t)
+        wanted = {e: st for e, st in settings_by_end.items() if ends is None or e in ends}
+        sim = simulate(study, geo, params_by_rho, env, m=m, source=source,
+                       measure=measure_for(study, geo, wanted))
+    else:
+        sim = simulation
     results = []
     models = {}
     for end, st in settings_by_end.items():

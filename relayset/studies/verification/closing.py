@@ -14,7 +14,6 @@ import numpy as np
 
 from relayset.errors import InputError
 from relayset.inputs.study_file import Study
-from relayset.physics.arrays import unique_sorted
 from relayset.results.parameters import LineParameters
 from relayset.results.settings import SettingsResult
 from relayset.results.verification import VerificationResult
@@ -22,15 +21,23 @@ from relayset.studies.geometry import LineGeometry
 from relayset.studies.verification.checks import (
     check_tolerance,
     infeed_range,
+    measure_for,
     relay_model_at,
     resistive_targets,
     rf_mask,
+    verification_grid,
     verify_settings,
     worst_remote_bus_scale,
     zone1_limit_pct,
 )
 from relayset.studies.verification.envelope import build_envelope, resistivities
-from relayset.studies.verification.relay_model import GROUND, LOOPS, Z_SMALL, RelayModel, view
+from relayset.studies.verification.relay_model import (
+    GROUND,
+    LOOPS,
+    Z_SMALL,
+    RelayModel,
+    relay_view,
+)
 from relayset.studies.verification.simulation import Simulation, simulate
 
 
@@ -91,13 +98,14 @@ def settle_and_verify(study: Study, geo: LineGeometry, params: LineParameters, r
 
     prelim = settings_at({})
     by_rho = params_by_resistivity(study, geo, params, source)
-    m0 = [0.0, 1.0]
-    for end, st in prelim.items():  # where zone 1 must still operate, seen from each end
-        x = st.zone("zone1").reach_pct / 100 * (1 - t / 100)
-        m0.append(x if end == names[0] else 1 - x)
+    # One simulation serves the closing and the verification: the fault currents do not
+    # depend on the settings, only the zones' judgement does. It covers the verification's
+    # grid with the preliminary zone 1 points, and is measured for both ends' relays
+    # (k0, k0m and relay model, which the closing does not change).
+    m_sim = verification_grid(prelim, names, t)
     env0 = build_envelope(study, resistive_targets(study, list(prelim.values())))
-    sim0 = simulate(study, geo, by_rho, env0, m=unique_sorted(m0), source=source,
-                    parallel=False)
+    measure = measure_for(study, geo, prelim)
+    sim0 = simulate(study, geo, by_rho, env0, m=m_sim, source=source, measure=measure)
     models = {end: relay_model_at(study, end) for end in names}
     st_tower = study.fault_resistance.tower_footing_resistance
     needs = {end: _resistive_needs(sim0, end, st, t, st_tower, models[end])
@@ -133,7 +141,6 @@ def settle_and_verify(study: Study, geo: LineGeometry, params: LineParameters, r
             inf = infeed_range(sim0, end)
             if inf is not None:
                 sim_end["infeed_range"] = (inf.k_min, inf.k_max)
-    del sim0  # its solves are large; the verification below makes its own
     final = settings_at(simulated)
     # The reverse zone of each end covers the other end's zone 2 past this bus.
     again = False
@@ -162,9 +169,21 @@ def settle_and_verify(study: Study, geo: LineGeometry, params: LineParameters, r
                 "setting",
                 "review the governing case in the verification; a pilot scheme restores "
                 "instantaneous coverage of the line end")))
+    # The verification reuses the simulation, with the final zone 1 points solved on top
+    # (solved afresh only if the final settings changed what the envelope sweeps).
+    env = build_envelope(study, resistive_targets(study, list(final.values())))
+    same_relays = measure_for(study, geo, final) == measure
+    sim = None
+    if env == env0 and same_relays:
+        m_new = verification_grid(final, names, t)
+        extra = m_new[~np.isclose(m_new[:, None], m_sim[None, :], rtol=0, atol=1e-12
+                                  ).any(axis=1)]
+        sim = sim0 if not extra.size else sim0.joined(simulate(
+            study, geo, by_rho, env0, m=extra, source=source, measure=measure))
+    del sim0
     ver = verify_settings(study, geo, by_rho, final, source=source,
                           zone2_adjacent_zone1_pct=philosophy.zone2.adjacent_zone1_pct,
-                          ends=wanted)
+                          ends=wanted, envelope=env, simulation=sim)
     ends = []
     for e in ver.ends:
         checks = list(e.checks)
@@ -220,7 +239,7 @@ def _resistive_needs(sim: Simulation, end: str, st: SettingsResult, tolerance_pc
             if run.faulted != "protected" or not run.sources[0 if at_s else 1]:
                 continue
             sw = run.sweep
-            v = view(run, at_s, st.k0.k0, k0m, model, line_angle=theta)
+            v = relay_view(run, at_s, st.k0.k0, k0m, model, line_angle=theta)
             rfp = np.stack([sw.r_fault_ohm, sw.r_phase_ohm], axis=1)
             rf_ok = rf_mask(rfp, zone, tower_ohm)[None, None, :, None, None]
             m_ok = (v.m_end <= lim + 1e-9)[None, :, None, None, None]

@@ -35,7 +35,7 @@ from __future__ import annotations
 
 import cmath
 import math
-from dataclasses import dataclass, field
+from dataclasses import dataclass, field, replace
 
 import numpy as np
 
@@ -43,7 +43,7 @@ from relayset.physics import measurement
 from relayset.physics.faults import check_fault_type
 from relayset.physics.sequence import fortescue_inverse
 from relayset.results.settings import ZoneSetting
-from relayset.studies.verification.simulation import Run
+from relayset.studies.verification.simulation import Run, infeed_samples, lighten
 
 #: Below this fraction of |Z_line| a loop impedance is left to memory polarization [1].
 Z_SMALL = 1e-3
@@ -144,6 +144,13 @@ class View:
     forward: np.ndarray  #: (F, M, Rf, K, L)
     meant: dict[str, list[int]] = field(default_factory=dict)  #: fault types per loop
 
+    def at_locations(self, index: np.ndarray) -> View:
+        """The view restricted to the fault locations ``index`` (axis 1)."""
+        mut = self.mutual[:, index] if isinstance(self.mutual, np.ndarray) else self.mutual
+        return replace(self, loops={k: v[:, index] for k, v in self.loops.items()},
+                       released={k: v[:, index] for k, v in self.released.items()},
+                       m_end=self.m_end[index], mutual=mut, forward=self.forward[:, index])
+
     def loop_at(self, loop: str, idx: tuple[int, ...]) -> complex:
         """The impedance of ``loop`` at the full case index ``(f, m, rf, k, l)`` [ohm]."""
         f, *rest = idx
@@ -214,6 +221,55 @@ def view(run: Run, at_s: bool, k0: complex, k0m: complex | None, model: RelayMod
         released[name] = r & ground_ok if name in GROUND else r
     return View(run, loops, released, m if at_s else 1.0 - m, mutual,
                 forward(v, i, v_pre, sw.fault_types, line_angle), meant)
+
+
+def _own_bus(run: Run, at_s: bool) -> np.ndarray:
+    """Indices of the sweep's locations at the relay's own bus."""
+    return np.flatnonzero(np.isclose(run.sweep.m, 0.0 if at_s else 1.0))
+
+
+def relay_view(run: Run, at_s: bool, k0: complex, k0m: complex | None, model: RelayModel,
+               *, line_angle: float, behind: bool = False) -> View | None:
+    """The view of ``run`` by the relay at S (``at_s``) or R: the one kept when the run was
+    measured (:class:`Measure`), else formed from its phase quantities. Faults behind the
+    relay are viewed at its own bus only (None: the sweep has no location there)."""
+    key = (at_s, complex(k0), None if k0m is None else complex(k0m), model, behind,
+           float(line_angle))
+    if key in run.views:
+        return run.views[key]
+    if run.measured:
+        raise RuntimeError("this run was measured for another relay (k0, k0m, model)")
+    if behind:
+        own = _own_bus(run, at_s)
+        if not own.size:
+            return None
+        return view(run, at_s, k0, k0m, model, behind=True, line_angle=line_angle,
+                    m_index=own)
+    return view(run, at_s, k0, k0m, model, line_angle=line_angle)
+
+
+@dataclass(frozen=True)
+class Measure:
+    """Measure each run as it is solved for the relays given, then drop its phase
+    quantities (see :mod:`.simulation`): per relay ``(at_s, k0, k0m, model, line angle)``
+    the view of the protected-line faults, of the faults at the own bus (behind) and of the
+    parallel-circuit faults with and without mutual compensation, and the infeed samples.
+    """
+
+    relays: tuple[tuple[bool, complex, complex | None, RelayModel, float], ...]
+
+    def __call__(self, run: Run) -> Run:
+        light = lighten(run)
+        for at_s, k0, k0m, model, theta in self.relays:
+            wanted = ([(k0m, False), (k0m, True)] if run.faulted == "protected"
+                      else [(k0m, False), (None, False)])
+            for km, behind in wanted:
+                v = relay_view(run, at_s, k0, km, model, line_angle=theta, behind=behind)
+                key = (at_s, complex(k0), None if km is None else complex(km), model, behind,
+                       float(theta))
+                light.views[key] = None if v is None else replace(v, run=light)
+            light.infeed[at_s] = infeed_samples(run, at_s)
+        return light
 
 
 @dataclass(frozen=True, eq=False)
