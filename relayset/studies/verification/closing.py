@@ -68,15 +68,22 @@ def settle_and_verify(study: Study, geo: LineGeometry, params: LineParameters, r
 
     1. Preliminary settings at both ends (the rules of :mod:`relayset.settings`); the end
        the study does not ask for is needed for its zone 2 (the reverse zone must cover it).
-    2. A first simulation of the faults at both buses (every parallel-circuit state, source
-       and load case, the resistive targets) gives per end the worst zone 1 overreach and
-       the infeed range at the remote bus.
-    3. Final settings: zone 1 limited by that overreach (the zone 1 rule of
-       :func:`relayset.settings.zone1.recommended_zone1_pct`, with the tolerance), infeed
-       from the simulation, reverse zone covering the other end's zone 2.
-    4. The verification of the final settings of the ends the study asks for.
+    2. The simulation over the envelope (solved once, measured for both ends' relays)
+       gives per end a typed :class:`relayset.settings.simulated.SimulationSummary`: the
+       worst zone 1 overreach at the remote bus, the infeed range, the resistive reach the
+       simulated faults need.
+    3. Final settings: the setting rules of :mod:`relayset.settings.simulated` turn the
+       summary into the zone 1 limit, the infeed, the resistive widening and the reverse
+       zone covering the other end's zone 2.
+    4. The verification of the final settings of the ends the study asks for, on the same
+       simulation (the final zone 1 points solved on top).
     """
-    from relayset.settings.zone1 import recommended_zone1_pct
+    from relayset.settings.simulated import (
+        WIDENED_ZONES,
+        ResistiveNeed,
+        SimulationSummary,
+        zone1_limit,
+    )
     from relayset.studies.settings import run_settings
 
     names = (study.study.from_substation, study.study.to_substation)
@@ -84,13 +91,13 @@ def settle_and_verify(study: Study, geo: LineGeometry, params: LineParameters, r
     wanted = tuple(relay.ends)
     study = _lines_on_their_buses(study)
 
-    def settings_at(simulated):
+    def settings_at(simulated, widened=WIDENED_ZONES):
         out = {}
         for end in names:
             try:
                 out[end] = run_settings(study, geo, params, relay, reach, philosophy,
-                                        source=source, ends=(end,),
-                                        simulated=simulated)[0]
+                                        source=source, ends=(end,), simulated=simulated,
+                                        widened_zones=widened)[0]
             except InputError:
                 if end in wanted:
                     raise
@@ -108,40 +115,28 @@ def settle_and_verify(study: Study, geo: LineGeometry, params: LineParameters, r
     sim0 = simulate(study, geo, by_rho, env0, m=m_sim, source=source, measure=measure)
     models = {end: relay_model_at(study, end) for end in names}
     st_tower = study.fault_resistance.tower_footing_resistance
-    needs = {end: _resistive_needs(sim0, end, st, t, st_tower, models[end])
-             for end, st in prelim.items()}
-    # Zone 2's blinder is widened for remote infeed into the fault resistance (time-graded,
-    # load permitting). Zone 1's is not: a wider zone 1 blinder admits resistive faults at
-    # the remote bus and must then be shorter; what it would take is reported instead.
-    simulated: dict[str, dict] = {
-        end: {"resistive_need_ohm": {k: v for k, v in need.items() if k != "zone1"}}
-        for end, need in needs.items()}
-    wide = settings_at({end: {"resistive_need_ohm": need} for end, need in needs.items()})
-    z1p = philosophy.zone1
-    overreach: dict[str, float] = {}
-    advice: dict[str, tuple[float, float | None]] = {}
+    # What the simulation found per end, typed; the setting rules in relayset.settings
+    # (relayset.settings.simulated) decide what follows from it.
+    summary: dict[str, SimulationSummary] = {}
     for end, st in prelim.items():
-        sim_end = simulated[end]
-        if end in wide and "zone1" in needs[end]:
+        inf = infeed_range(sim0, end)
+        need = _resistive_needs(sim0, end, st, t, st_tower, models[end])
+        summary[end] = SimulationSummary(
+            tolerance_pct=t,
+            remote_bus_scale=worst_remote_bus_scale(sim0, end, st, models[end]),
+            zone1_reach_pct=st.zone("zone1").reach_pct,
+            infeed_range=None if inf is None else (inf.k_min, inf.k_max),
+            resistive_needs=tuple(ResistiveNeed(z, ph, g) for z, (ph, g) in need.items()))
+    # What zone 1 could reach with its blinder widened too (reported, not set).
+    wide = settings_at(summary, widened=("zone1", *WIDENED_ZONES))
+    advice: dict[str, tuple[float, float | None]] = {}
+    for end in prelim:
+        if end in wide and any(n.zone == "zone1" for n in summary[end].resistive_needs):
             z1w = wide[end].zone("zone1")
             advice[end] = (z1w.r_reach_ground_primary_ohm,
-                           zone1_limit_pct(sim0, end, wide[end], t, z1p.min_margin_pct,
-                                           models[end]))
-        s_min = worst_remote_bus_scale(sim0, end, st, models[end])
-        if s_min is not None:
-            # The worst case appears at s_min x reach (fraction of the line) though it sits
-            # at the remote bus: the zone overreaches by e % of its setting.
-            e = (100 / (s_min * st.zone("zone1").reach_pct) - 1) * 100
-            b = t + t * max(0.0, e) / 100  # tolerance applied on top of the overreach
-            rec = recommended_zone1_pct(e, b, z1p.reach_pct, z1p.min_margin_pct)
-            if rec > 0:
-                sim_end["zone1_limit"] = (rec, b + max(0.0, e))
-                overreach[end] = e
-        if philosophy.zone2.infeed == "computed" or philosophy.zone3.infeed == "computed":
-            inf = infeed_range(sim0, end)
-            if inf is not None:
-                sim_end["infeed_range"] = (inf.k_min, inf.k_max)
-    final = settings_at(simulated)
+                           zone1_limit_pct(sim0, end, wide[end], t,
+                                           philosophy.zone1.min_margin_pct, models[end]))
+    final = settings_at(summary)
     # The reverse zone of each end covers the other end's zone 2 past this bus.
     again = False
     for end in final:
@@ -150,23 +145,23 @@ def settle_and_verify(study: Study, geo: LineGeometry, params: LineParameters, r
             continue
         rem = final[other]
         over = abs(rem.zone("zone2").reach_primary_ohm) - abs(rem.line_z1_primary_ohm)
-        cover = over / (1 - t / 100) * (1 + 1e-6)
-        if over > 0 and cover > abs(final[end].zone("reverse").reach_primary_ohm):
-            simulated[end]["reverse_cover_ohm"] = cover
+        if over > 0:
+            summary[end] = replace(summary[end], remote_zone2_overreach_ohm=over)
             again = True
     if again:
-        final = settings_at(simulated)
+        final = settings_at(summary)
     for end, st in final.items():
-        if st.zone("zone1").reach_pct < prelim[end].zone("zone1").reach_pct - 1e-9 and (
-                end in overreach):
+        lim = zone1_limit(summary[end], philosophy)
+        if lim is not None and (
+                st.zone("zone1").reach_pct < prelim[end].zone("zone1").reach_pct - 1e-9):
             from relayset.results.settings import SettingWarning
 
             final[end] = replace(st, warnings=(*st.warnings, SettingWarning(
                 "zone1_limited_by_simulation",
-                f"Zone 1 at most {simulated[end]['zone1_limit'][0]:.4g} % of the line: the "
+                f"Zone 1 at most {lim[0]:.4g} % of the line: the "
                 "worst fault at the remote bus over every parallel-circuit state, source and "
-                f"load case and fault resistance overreaches by {overreach[end]:.3g} % of the "
-                "setting",
+                f"load case and fault resistance overreaches by "
+                f"{summary[end].zone1_overreach_pct():.3g} % of the setting",
                 "review the governing case in the verification; a pilot scheme restores "
                 "instantaneous coverage of the line end")))
     # The verification reuses the simulation, with the final zone 1 points solved on top
