@@ -65,6 +65,9 @@ class ZoneSetting:
     #: Reactance-line tilt τ of a quadrilateral [rad] (0 horizontal; positive tilts it down
     #: toward +R), see :class:`relayset.physics.characteristic.Quadrilateral`.
     reactance_tilt_rad: float = 0.0
+    #: Angle δ of a quadrilateral's directional line [rad] (None: perpendicular to the line
+    #: angle), see :class:`relayset.physics.characteristic.Quadrilateral`.
+    directional_angle_rad: float | None = None
 
     def characteristic(self, ground: bool, line_angle_rad: float) -> Characteristic:
         """This zone's characteristic as set, in primary ohms, for one kind of loop.
@@ -85,7 +88,8 @@ class ZoneSetting:
             return Mho(self.mho_diameter_primary_ohm, self.char_angle_rad, self.direction)
         r = self.r_reach_ground_primary_ohm if ground else self.r_reach_phase_primary_ohm
         return Quadrilateral(self.x_reach_primary_ohm, r, line_angle_rad,
-                             direction=self.direction, tilt_rad=self.reactance_tilt_rad)
+                             direction=self.direction, tilt_rad=self.reactance_tilt_rad,
+                             directional_angle_rad=self.directional_angle_rad)
 
     def contains(self, z_primary_ohm: complex | np.ndarray, line_angle_rad: float) -> np.ndarray:
         """Whether primary impedances lie inside this zone for either kind of loop [ohm]."""
@@ -179,6 +183,9 @@ class SettingsResult:
                 "mho_diameter_secondary_ohm": z.mho_diameter_secondary_ohm,
                 "x_reach_primary_ohm": z.x_reach_primary_ohm,
                 "x_reach_secondary_ohm": z.x_reach_secondary_ohm,
+                "reactance_tilt_deg": (math.degrees(z.reactance_tilt_rad)
+                                       if z.shape == "quadrilateral" else None),
+                "directional_angle_deg": _deg(z.directional_angle_rad),
                 "r_reach_phase_primary_ohm": z.r_reach_phase_primary_ohm,
                 "r_reach_phase_secondary_ohm": z.r_reach_phase_secondary_ohm,
                 "r_reach_ground_primary_ohm": z.r_reach_ground_primary_ohm,

@@ -23,6 +23,7 @@ from relayset.settings.simulated import (
     resistive_widening,
     reverse_cover_ohm,
     zone1_limit,
+    zone1_shape,
 )
 from relayset.studies.geometry import LineGeometry
 from relayset.studies.reach import build_source
@@ -180,6 +181,7 @@ def run_settings(study: Study, geo: LineGeometry, params: LineParameters, relay:
                 reverse_cover_ohm=None if sim is None else reverse_cover_ohm(sim),
                 resistive_need_ohm=(None if sim is None
                                     else resistive_widening(sim, widened_zones)),
+                zone1_shape=(0.0, 1.0) if sim is None else zone1_shape(sim),
             )
             res = compute_settings(inputs, philosophy)
         except InputError as exc:

@@ -123,10 +123,17 @@ def settle_and_verify(study: Study, geo: LineGeometry, params: LineParameters, r
         need = _resistive_needs(sim0, end, st, t, st_tower, models[end])
         summary[end] = SimulationSummary(
             tolerance_pct=t,
-            remote_bus_scale=worst_remote_bus_scale(sim0, end, st, models[end]),
-            zone1_reach_pct=st.zone("zone1").reach_pct,
             infeed_range=None if inf is None else (inf.k_min, inf.k_max),
-            resistive_needs=tuple(ResistiveNeed(z, ph, g) for z, (ph, g) in need.items()))
+            resistive_needs=tuple(ResistiveNeed(z, ph, g) for z, (ph, g) in need.items()),
+            zone1_shape_scales=zone1_shape_scales(sim0, end, st, models[end]))
+    # Zone 1 with its reactance line tilted and its blinder widened (the shape the
+    # remote-bus faults allow), then its limit from the worst remote-bus fault against it.
+    tilted = settings_at(summary)
+    for end, st in tilted.items():
+        summary[end] = replace(summary[end],
+                               remote_bus_scale=worst_remote_bus_scale(sim0, end, st,
+                                                                       models[end]),
+                               zone1_reach_pct=st.zone("zone1").reach_pct)
     # What zone 1 could reach with its blinder widened too (reported, not set).
     wide = settings_at(summary, widened=("zone1", *WIDENED_ZONES))
     advice: dict[str, tuple[float, float | None]] = {}
@@ -214,6 +221,75 @@ def _lines_on_their_buses(study: Study) -> Study:
     return replace(study, **update) if update else study
 
 
+def _remote_bus_points(sim: Simulation, end: str, st: SettingsResult, model: RelayModel
+                       ) -> dict[bool, np.ndarray]:
+    """Per kind of loop (True: ground), the apparent impedances [ohm] of every simulated
+    fault at the remote bus that a loop released for it measures, seen forward."""
+    at_s = end == sim.names[0]
+    theta = st.line_angle_rad
+    k0m = st.k0m if sim.mutual else None
+    out: dict[bool, list[np.ndarray]] = {True: [], False: []}
+    for run in sim.runs:
+        if run.faulted != "protected":
+            continue
+        bus = np.flatnonzero(np.isclose(run.sweep.m, 1.0 if at_s else 0.0))
+        if not bus.size:
+            continue
+        v = relay_view(run, at_s, st.k0.k0, k0m, model, line_angle=theta).at_locations(bus)
+        for loop in LOOPS:
+            idx = v.meant[loop]
+            if idx:
+                z = v.loops[loop]
+                ok = v.forward[idx] & v.released[loop][idx] & np.isfinite(z)
+                out[loop in GROUND].append(z[ok])
+    return {g: np.concatenate(z) if z else np.zeros(0, complex) for g, z in out.items()}
+
+
+def zone1_shape_scales(sim: Simulation, end: str, st: SettingsResult, model: RelayModel
+                       ) -> tuple[tuple[float, float, float], ...]:
+    """The worst remote-bus fault's reach scale of a quadrilateral zone 1 against its
+    reactance-line tilt and the widening of its resistive reach: ``((τ [rad], f, s), ...)``
+    over :data:`relayset.settings.simulated.TILT_GRID_DEG` and
+    :data:`~relayset.settings.simulated.BLINDER_FACTORS`, with s the scale relative to the
+    line (zone 1 at 100 % of the line, its reactance line through Z_L) and the widened
+    reach capped at the load limit. Empty for a mho zone 1."""
+    from relayset.settings.simulated import BLINDER_FACTORS, TILT_GRID_DEG
+    from relayset.settings.zone1 import tilted_x_reach
+
+    z1 = st.zone("zone1")
+    if z1.shape != "quadrilateral":
+        return ()
+    theta = st.line_angle_rad
+    pts = _remote_bus_points(sim, end, st, model)
+    zl = st.line_z1_primary_ohm
+    cap = st.load.r_limit_primary_ohm or math.inf
+    out = []
+    for f in BLINDER_FACTORS:
+        r_ph = max(z1.r_reach_phase_primary_ohm, min(f * z1.r_reach_phase_primary_ohm, cap))
+        r_g = max(z1.r_reach_ground_primary_ohm, min(f * z1.r_reach_ground_primary_ohm, cap))
+
+        def scales(deg, z, g, r_ph=r_ph, r_g=r_g):
+            tau = math.radians(deg)
+            zone = replace(z1, reactance_tilt_rad=tau,
+                           x_reach_primary_ohm=tilted_x_reach(zl, tau),
+                           r_reach_phase_primary_ohm=r_ph, r_reach_ground_primary_ohm=r_g)
+            return zone.characteristic(g, theta).reach_scale(z)
+
+        # A point's scale (X + R tan τ)/(X_L + R_L tan τ) is monotonic in tan τ (the
+        # blinders do not move with τ), so it is least at an end of the tilt range: a point
+        # whose smaller end value exceeds some point's larger one never governs.
+        lo, hi = TILT_GRID_DEG[0], TILT_GRID_DEG[-1]
+        ends = {g: (scales(lo, z, g), scales(hi, z, g)) for g, z in pts.items() if z.size}
+        bound = min((float(np.min(np.maximum(a, b))) for a, b in ends.values()),
+                    default=math.inf)
+        kept = {g: pts[g][np.minimum(a, b) <= bound] for g, (a, b) in ends.items()}
+        for deg in TILT_GRID_DEG:
+            worst = min((float(np.min(scales(deg, z, g))) for g, z in kept.items()
+                         if z.size), default=math.inf)
+            out.append((math.radians(deg), f, worst))
+    return tuple(out)
+
+
 def _resistive_needs(sim: Simulation, end: str, st: SettingsResult, tolerance_pct: float,
                      tower_ohm: float, model: RelayModel) -> dict[str, tuple[float, float]]:
     """Blinder offset (phase, ground loops) each quadrilateral zone needs to operate for the
@@ -230,6 +306,12 @@ def _resistive_needs(sim: Simulation, end: str, st: SettingsResult, tolerance_pc
         lim = (zone.reach_pct / 100 * (1 - tolerance_pct / 100) if name == "zone1"
                else 1.0)
         need = {True: 0.0, False: 0.0}
+        # The zone as set but for its right blinder: the faults the blinder alone misses.
+        unbounded_right = {}
+        for g in (False, True):
+            ch = zone.characteristic(g, theta)
+            unbounded_right[g] = replace(ch, r_reach_ohm=1e6 * (zl + ch.r_left),
+                                         r_left_ohm=ch.r_left)
         for run in sim.runs:
             if run.faulted != "protected" or not run.sources[0 if at_s else 1]:
                 continue
@@ -243,14 +325,13 @@ def _resistive_needs(sim: Simulation, end: str, st: SettingsResult, tolerance_pc
                 if not idx:
                     continue
                 z = v.loops[loop]
-                ok = (rf_ok & m_ok & v.forward[idx] & v.released[loop][idx]
-                      & (np.abs(z) >= Z_SMALL * zl)
-                      & (z.imag <= zone.x_reach_primary_ohm)
-                      & (math.cos(theta) * z.real + math.sin(theta) * z.imag >= 0))
-                if np.any(ok):
+                z = z[rf_ok & m_ok & v.forward[idx] & v.released[loop][idx]
+                      & (np.abs(z) >= Z_SMALL * zl)]
+                z = z[unbounded_right[loop in GROUND].contains(z)]
+                if z.size:
                     off = z.real - z.imag / math.tan(theta)
                     ground = loop in GROUND
-                    need[ground] = max(need[ground], float(np.max(off[ok])))
+                    need[ground] = max(need[ground], float(np.max(off)))
         out[name] = (need[False], need[True])
     return out
 
