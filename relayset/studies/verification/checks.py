@@ -482,15 +482,18 @@ def worst_remote_bus_scale(sim: Simulation, end: str, st: SettingsResult, model:
     return worst if math.isfinite(worst) else None
 
 
-def measure_for(study: Study, geo: LineGeometry, settings_by_end: dict[str, SettingsResult]
-                ) -> Measure:
+def measure_for(study: Study, geo: LineGeometry, settings_by_end: dict[str, SettingsResult],
+                judged: Sequence[str] | None = None) -> Measure:
     """What to keep of each solved run: the views of the relays of these settings (their
-    k0, k0m, relay model and line angle; the zone reaches play no part)."""
+    k0, k0m, relay model and line angle; the zone reaches play no part) at the ``judged``
+    ends (default all), the infeed samples alone at the others."""
     mutual = geo.n_circuits == 2 and study.reach_study.mutual_compensation
+    judged = tuple(settings_by_end) if judged is None else tuple(judged)
     return Measure(tuple(
         (end == study.ends[0], st.k0.k0, st.k0m if mutual else None,
          relay_model_at(study, end), st.line_angle_rad)
-        for end, st in settings_by_end.items()))
+        for end, st in settings_by_end.items() if end in judged),
+        tuple(end == study.ends[0] for end in settings_by_end if end not in judged))
 
 
 def relay_model_at(study: Study, end: str) -> RelayModel:

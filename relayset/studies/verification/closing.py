@@ -111,7 +111,8 @@ def settle_and_verify(study: Study, geo: LineGeometry, params: LineParameters, r
     # (k0, k0m and relay model, which the closing does not change).
     m_sim = verification_grid(prelim, names, t)
     env0 = build_envelope(study, resistive_targets(study, list(prelim.values())))
-    measure = measure_for(study, geo, prelim)
+    # (the end the study does not ask for is not judged: its infeed alone is needed)
+    measure = measure_for(study, geo, prelim, wanted)
     sim0 = simulate(study, geo, by_rho, env0, m=m_sim, source=source, measure=measure)
     models = {end: relay_model_at(study, end) for end in names}
     st_tower = study.fault_resistance.tower_footing_resistance
@@ -120,6 +121,10 @@ def settle_and_verify(study: Study, geo: LineGeometry, params: LineParameters, r
     summary: dict[str, SimulationSummary] = {}
     for end, st in prelim.items():
         inf = infeed_range(sim0, end)
+        if end not in wanted:  # its zone 2 (for this end's reverse zone) needs the infeed
+            summary[end] = SimulationSummary(
+                tolerance_pct=t, infeed_range=None if inf is None else (inf.k_min, inf.k_max))
+            continue
         need = _resistive_needs(sim0, end, st, t, st_tower, models[end])
         summary[end] = SimulationSummary(
             tolerance_pct=t,
@@ -130,6 +135,8 @@ def settle_and_verify(study: Study, geo: LineGeometry, params: LineParameters, r
     # remote-bus faults allow), then its limit from the worst remote-bus fault against it.
     tilted = settings_at(summary)
     for end, st in tilted.items():
+        if end not in wanted:
+            continue
         summary[end] = replace(summary[end],
                                remote_bus_scale=worst_remote_bus_scale(sim0, end, st,
                                                                        models[end]),
@@ -174,7 +181,7 @@ def settle_and_verify(study: Study, geo: LineGeometry, params: LineParameters, r
     # The verification reuses the simulation, with the final zone 1 points solved on top
     # (solved afresh only if the final settings changed what the envelope sweeps).
     env = build_envelope(study, resistive_targets(study, list(final.values())))
-    same_relays = measure_for(study, geo, final) == measure
+    same_relays = measure_for(study, geo, final, wanted) == measure
     sim = None
     if env == env0 and same_relays:
         m_new = verification_grid(final, names, t)

@@ -253,13 +253,19 @@ class Measure:
     """Measure each run as it is solved for the relays given, then drop its phase
     quantities (see :mod:`.simulation`): per relay ``(at_s, k0, k0m, model, line angle)``
     the view of the protected-line faults, of the faults at the own bus (behind) and of the
-    parallel-circuit faults with and without mutual compensation, and the infeed samples.
+    parallel-circuit faults with and without mutual compensation, and the infeed samples;
+    at the ends of ``infeed_only`` the infeed samples alone.
     """
 
     relays: tuple[tuple[bool, complex, complex | None, RelayModel, float], ...]
+    #: Ends (True: S) whose infeed samples alone are kept (no relay judged there).
+    infeed_only: tuple[bool, ...] = ()
 
     def __call__(self, run: Run) -> Run:
-        light = lighten(run)
+        # The views point to a bare light run, the returned run holds the views: no
+        # reference cycle, so a finished simulation is freed at once.
+        bare = lighten(run)
+        light = replace(bare, views={}, infeed={})
         for at_s, k0, k0m, model, theta in self.relays:
             wanted = ([(k0m, False), (k0m, True)] if run.faulted == "protected"
                       else [(k0m, False), (None, False)])
@@ -267,7 +273,9 @@ class Measure:
                 v = relay_view(run, at_s, k0, km, model, line_angle=theta, behind=behind)
                 key = (at_s, complex(k0), None if km is None else complex(km), model, behind,
                        float(theta))
-                light.views[key] = None if v is None else replace(v, run=light)
+                light.views[key] = None if v is None else replace(v, run=bare)
+            light.infeed[at_s] = infeed_samples(run, at_s)
+        for at_s in self.infeed_only:
             light.infeed[at_s] = infeed_samples(run, at_s)
         return light
 
