@@ -85,3 +85,23 @@ def test_close_in_resistive_fault_below_the_r_axis_is_inside_zone1(demo_path):
     assert math.degrees(math.atan2(z.imag, z.real)) < math.degrees(th) - 90  # below it
     assert bool(z1.contains(z, th))
     assert not bool(replace(z1, directional_angle_rad=None).contains(z, th))
+
+
+def test_widened_zone2_keeps_its_left_blinder_at_the_arc_basis(demo_path):
+    """Issue finding (400 kV demo): zone 2's blinders, widened for remote infeed to ~44 ohm
+    on both sides, admitted a three-phase fault behind the relay through 7 ohm under heavy
+    transfer, seen at -27.2 + j49.7 ohm. Remote infeed moves the apparent resistance to the
+    right, so only the right blinder is widened: the point lies 33 ohm left of the line
+    through the origin at the line angle (plane geometry: R - X/tan(theta)), beyond the left
+    blinder kept at the arc basis, and inside the old symmetric zone."""
+    from dataclasses import replace
+
+    st = api.study_settings(demo_path(D400)).settings[0]
+    th = st.line_angle_rad
+    z2 = st.zone("zone2")
+    z = complex(-27.248, 49.658)
+    assert z2.r_left_phase_primary_ohm < z2.r_reach_phase_primary_ohm
+    assert z.real - z.imag / math.tan(th) < -z2.r_left_phase_primary_ohm
+    assert not bool(z2.contains(z, th))
+    both = replace(z2, r_left_phase_primary_ohm=None, r_left_ground_primary_ohm=None)
+    assert bool(both.contains(z, th))

@@ -218,6 +218,10 @@ def compute_settings(
             m = 1 + rs.margin_pct / 100
             r_ph = m * ra_ph / 2
             r_g = m * (ra_g + i.tower_footing_ohm) / abs(1 + k0)
+            # The left blinder keeps the arc basis: remote infeed, which the widening below
+            # answers, moves the apparent fault resistance to the right only, and a wide
+            # left blinder would admit load-like impedances of faults behind the relay.
+            left = (min(r_ph, r_limit), min(r_g, r_limit))
             if i.resistive_need_ohm and zone in i.resistive_need_ohm:
                 # Remote infeed into the fault resistance, from the fault simulation.
                 need_ph, need_g = i.resistive_need_ohm[zone]
@@ -258,6 +262,8 @@ def compute_settings(
                     "within 0.5 % of the line of its best reach scale"))
             x = tilted_x_reach(target if forward else -target, tilt)
             qd.update(
+                r_left_phase_primary_ohm=left[0] if left[0] < r_ph else None,
+                r_left_ground_primary_ohm=left[1] if left[1] < r_g else None,
                 reactance_tilt_rad=tilt,
                 directional_angle_rad=-math.radians(DIRECTIONAL_LINE_BELOW_R_DEG),
                 x_reach_primary_ohm=x, x_reach_secondary_ohm=sec(x),

@@ -271,6 +271,9 @@ def zone1_shape_scales(sim: Simulation, end: str, st: SettingsResult, model: Rel
     zl = st.line_z1_primary_ohm
     cap = st.load.r_limit_primary_ohm or math.inf
     out = []
+    # Widening moves the right blinder only (the settings keep the left one).
+    left_ph = z1.characteristic(False, theta).r_left
+    left_g = z1.characteristic(True, theta).r_left
     for f in BLINDER_FACTORS:
         r_ph = max(z1.r_reach_phase_primary_ohm, min(f * z1.r_reach_phase_primary_ohm, cap))
         r_g = max(z1.r_reach_ground_primary_ohm, min(f * z1.r_reach_ground_primary_ohm, cap))
@@ -279,7 +282,8 @@ def zone1_shape_scales(sim: Simulation, end: str, st: SettingsResult, model: Rel
             tau = math.radians(deg)
             zone = replace(z1, reactance_tilt_rad=tau,
                            x_reach_primary_ohm=tilted_x_reach(zl, tau),
-                           r_reach_phase_primary_ohm=r_ph, r_reach_ground_primary_ohm=r_g)
+                           r_reach_phase_primary_ohm=r_ph, r_reach_ground_primary_ohm=r_g,
+                           r_left_phase_primary_ohm=left_ph, r_left_ground_primary_ohm=left_g)
             return zone.characteristic(g, theta).reach_scale(z)
 
         # A point's scale (X + R tan τ)/(X_L + R_L tan τ) is monotonic in tan τ (the
