@@ -385,7 +385,9 @@ def test_zone_setting_characteristic(demo_path, demo):
             assert (ph.r_reach_ohm, gr.r_reach_ohm) == (z.r_reach_phase_primary_ohm,
                                                         z.r_reach_ground_primary_ohm)
             assert ph.x_reach_ohm == gr.x_reach_ohm == z.x_reach_primary_ohm
-            assert ph.tilt_rad == 0.0 and ph.line_angle_rad == th
+            assert ph.tilt_rad == gr.tilt_rad == z.reactance_tilt_rad
+            assert ph.directional_angle_rad == z.directional_angle_rad
+            assert ph.line_angle_rad == th
             tilted = replace(z, reactance_tilt_rad=math.radians(7))
             assert tilted.characteristic(True, th).tilt_rad == math.radians(7)
         pts = _points(3000, seed=4) * abs(z.reach_primary_ohm) / 30

@@ -281,8 +281,10 @@ def _region_round_trip(j, z, theta):
         # corners are inside the zone as set and on its boundary: a step outward leaves it
         assert np.all(z.contains(v, theta)) and np.all(char.contains(v))
         assert not np.any(char.contains(v + 1e-7 * (v - v.mean())))
-        # the reactance line of an untilted quadrilateral: two corners at X = x_reach
-        top = v.imag.max() if z.direction == "forward" else -v.imag.min()
+        # the reactance line, tilted by tau: two corners on X + R tan(tau) = x_reach (hand
+        # geometry; tau = 0: X = x_reach)
+        w = v if z.direction == "forward" else -v
+        top = (w.imag + w.real * math.tan(z.reactance_tilt_rad)).max()
         _close(top, z.x_reach_primary_ohm)
 
 

@@ -60,7 +60,15 @@ def settings_rows(t: SettingsResult) -> list[tuple[str, float | str, str]]:
                  z.r_reach_ground_primary_ohm, ohm),
                 (f"{n} resistive reach, ground loops, secondary",
                  z.r_reach_ground_secondary_ohm, ohm),
+                (f"{n} left resistive reach, phase loops, primary",
+                 z.characteristic(False, t.line_angle_rad).r_left, ohm),
+                (f"{n} left resistive reach, ground loops, primary",
+                 z.characteristic(True, t.line_angle_rad).r_left, ohm),
                 (f"{n} resistive blinder angle", math.degrees(t.line_angle_rad), deg),
+                (f"{n} reactance line tilt", math.degrees(z.reactance_tilt_rad), deg),
+                (f"{n} directional line angle",
+                 math.degrees(t.line_angle_rad - math.pi / 2 if z.directional_angle_rad is None
+                              else z.directional_angle_rad), deg),
             ]
     rows += [
         ("Minimum load impedance, primary", t.load.z_min_primary_ohm, ohm),

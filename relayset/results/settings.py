@@ -65,6 +65,13 @@ class ZoneSetting:
     #: Reactance-line tilt τ of a quadrilateral [rad] (0 horizontal; positive tilts it down
     #: toward +R), see :class:`relayset.physics.characteristic.Quadrilateral`.
     reactance_tilt_rad: float = 0.0
+    #: Angle δ of a quadrilateral's directional line [rad] (None: perpendicular to the line
+    #: angle), see :class:`relayset.physics.characteristic.Quadrilateral`.
+    directional_angle_rad: float | None = None
+    #: Left blinder offsets of a quadrilateral, phase and ground loops [ohm primary] (None:
+    #: the right blinder's), see :class:`relayset.physics.characteristic.Quadrilateral`.
+    r_left_phase_primary_ohm: float | None = None
+    r_left_ground_primary_ohm: float | None = None
 
     def characteristic(self, ground: bool, line_angle_rad: float) -> Characteristic:
         """This zone's characteristic as set, in primary ohms, for one kind of loop.
@@ -84,8 +91,10 @@ class ZoneSetting:
         if self.shape == "mho":
             return Mho(self.mho_diameter_primary_ohm, self.char_angle_rad, self.direction)
         r = self.r_reach_ground_primary_ohm if ground else self.r_reach_phase_primary_ohm
-        return Quadrilateral(self.x_reach_primary_ohm, r, line_angle_rad,
-                             direction=self.direction, tilt_rad=self.reactance_tilt_rad)
+        left = self.r_left_ground_primary_ohm if ground else self.r_left_phase_primary_ohm
+        return Quadrilateral(self.x_reach_primary_ohm, r, line_angle_rad, r_left_ohm=left,
+                             direction=self.direction, tilt_rad=self.reactance_tilt_rad,
+                             directional_angle_rad=self.directional_angle_rad)
 
     def contains(self, z_primary_ohm: complex | np.ndarray, line_angle_rad: float) -> np.ndarray:
         """Whether primary impedances lie inside this zone for either kind of loop [ohm]."""
@@ -104,6 +113,11 @@ class ZoneSetting:
         """Neutral JSON geometry of the phase- and ground-loop characteristics [ohm]."""
         return {"phase_loops": self.characteristic(False, line_angle_rad).region(),
                 "ground_loops": self.characteristic(True, line_angle_rad).region()}
+
+
+def _left(left: float | None, right: float | None) -> float | None:
+    """A quadrilateral's left blinder offset as set (the right one unless given) [ohm]."""
+    return right if left is None else left
 
 
 @dataclass(frozen=True)
@@ -185,6 +199,13 @@ class SettingsResult:
                 "mho_diameter_secondary_ohm": z.mho_diameter_secondary_ohm,
                 "x_reach_primary_ohm": z.x_reach_primary_ohm,
                 "x_reach_secondary_ohm": z.x_reach_secondary_ohm,
+                "r_left_phase_primary_ohm": _left(z.r_left_phase_primary_ohm,
+                                                  z.r_reach_phase_primary_ohm),
+                "r_left_ground_primary_ohm": _left(z.r_left_ground_primary_ohm,
+                                                   z.r_reach_ground_primary_ohm),
+                "reactance_tilt_deg": (math.degrees(z.reactance_tilt_rad)
+                                       if z.shape == "quadrilateral" else None),
+                "directional_angle_deg": _deg(z.directional_angle_rad),
                 "r_reach_phase_primary_ohm": z.r_reach_phase_primary_ohm,
                 "r_reach_phase_secondary_ohm": z.r_reach_phase_secondary_ohm,
                 "r_reach_ground_primary_ohm": z.r_reach_ground_primary_ohm,

@@ -51,9 +51,15 @@ from relayset.settings.context import ZONE_LABELS, RuleContext, pick_line
 from relayset.settings.inputs import _SOURCE, SettingsInputs
 from relayset.settings.resistive import arc_current, load_rays
 from relayset.settings.reverse import reverse_target
-from relayset.settings.zone1 import zone1_target
+from relayset.settings.zone1 import tilted_x_reach, zone1_target
 from relayset.settings.zone2 import zone2_target
 from relayset.settings.zone3 import zone3_target
+
+#: A quadrilateral's directional line lies this far below the R axis, into the fourth
+#: quadrant [deg] (common practice, no source): close-in resistive faults fed from the
+#: remote end under load appear a few degrees below the R axis, and the directional
+#: element of the relay model, not this line, tells forward from reverse.
+DIRECTIONAL_LINE_BELOW_R_DEG = 30.0
 
 
 def _reach_over_load(char: Characteristic, phi_max: float) -> np.ndarray:
@@ -212,10 +218,23 @@ def compute_settings(
             m = 1 + rs.margin_pct / 100
             r_ph = m * ra_ph / 2
             r_g = m * (ra_g + i.tower_footing_ohm) / abs(1 + k0)
+            # The left blinder keeps the arc basis: remote infeed, which the widening below
+            # answers, moves the apparent fault resistance to the right only, and a wide
+            # left blinder would admit load-like impedances of faults behind the relay.
+            left = (min(r_ph, r_limit), min(r_g, r_limit))
             if i.resistive_need_ohm and zone in i.resistive_need_ohm:
                 # Remote infeed into the fault resistance, from the fault simulation.
                 need_ph, need_g = i.resistive_need_ohm[zone]
                 r_ph, r_g = max(r_ph, m * need_ph), max(r_g, m * need_g)
+            tilt, widen = i.zone1_shape if zone == "zone1" else (0.0, 1.0)
+            if widen > 1:
+                # Widened as far as the simulated remote-bus faults allow, never past load.
+                r_ph, r_g = (max(r, min(widen * r, r_limit)) for r in (r_ph, r_g))
+                checks.append(Check(
+                    "resistive_reach_widened_by_simulation", True,
+                    f"resistive reach {widen:g} × the arc basis (load limit "
+                    f"{r_limit:.4g} Ω): the widest blinder that leaves the worst simulated "
+                    "fault at the remote bus where the arc basis had it"))
             cut = max(r_ph, r_g) > r_limit
             checks.append(Check(
                 "resistive_load_limit", not cut,
@@ -233,8 +252,20 @@ def compute_settings(
                     "pilot scheme for high-resistance faults",
                 )
                 r_ph, r_g = min(r_ph, r_limit), min(r_g, r_limit)
-            x = float(target.imag if forward else -target.imag)
+            # Zone 1's reactance line is tilted (chosen from the simulated remote-bus
+            # faults) and passes through the target; the other zones' are horizontal.
+            if tilt:
+                checks.append(Check(
+                    "reactance_line_tilt_from_simulation", True,
+                    f"reactance line tilted {math.degrees(tilt):g}° down toward +R: the "
+                    "smallest tilt that keeps the worst simulated fault at the remote bus "
+                    "within 0.5 % of the line of its best reach scale"))
+            x = tilted_x_reach(target if forward else -target, tilt)
             qd.update(
+                r_left_phase_primary_ohm=left[0] if left[0] < r_ph else None,
+                r_left_ground_primary_ohm=left[1] if left[1] < r_g else None,
+                reactance_tilt_rad=tilt,
+                directional_angle_rad=-math.radians(DIRECTIONAL_LINE_BELOW_R_DEG),
                 x_reach_primary_ohm=x, x_reach_secondary_ohm=sec(x),
                 r_reach_phase_primary_ohm=r_ph, r_reach_phase_secondary_ohm=sec(r_ph),
                 r_reach_ground_primary_ohm=r_g, r_reach_ground_secondary_ohm=sec(r_g),

@@ -123,6 +123,11 @@ class SettingsInputs:
     reverse_cover_ohm : float, optional
         How far past the relay bus, along the line angle, the remote end's zone 2 reaches,
         with the verification tolerance [ohm]; the reverse zone reaches at least this far.
+    zone1_shape : (float, float)
+        Reactance-line tilt [rad], in [0, π/4] (positive: down toward +R), and widening of
+        the resistive reach [1], >= 1, of a quadrilateral zone 1, chosen from the simulated
+        remote-bus faults (:func:`relayset.settings.simulated.zone1_shape`); (0, 1) without
+        a simulation.
     """
 
     z1_line_ohm: complex
@@ -155,6 +160,7 @@ class SettingsInputs:
     infeed_range: tuple[complex, complex] | None = None
     reverse_cover_ohm: float | None = None
     resistive_need_ohm: dict[str, tuple[float, float]] | None = None
+    zone1_shape: tuple[float, float] = (0.0, 1.0)
 
     def __post_init__(self) -> None:
         def put(name: str, value: Any) -> None:
@@ -192,6 +198,9 @@ class SettingsInputs:
             if getattr(self, name) is not None:
                 put(name, _real(name, getattr(self, name), gt=0))
         put("tower_footing_ohm", _real("tower_footing_ohm", self.tower_footing_ohm, ge=0))
+        tilt, widen = self.zone1_shape
+        put("zone1_shape", (_real("zone1_shape", tilt, ge=0, lt=math.pi / 4 + 1e-12),
+                            _real("zone1_shape", widen, ge=1)))
         if self.recommended_zone1_pct is not None:
             put("recommended_zone1_pct",
                 _real("recommended_zone1_pct", self.recommended_zone1_pct, gt=0, lt=100))

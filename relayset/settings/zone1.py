@@ -75,6 +75,22 @@ def recommended_zone1_pct(
     return max(0.0, math.floor(reach * 2 + 1e-9) / 2)
 
 
+def tilted_x_reach(target: complex, tilt_rad: float) -> float:
+    r"""Reactive reach (where the reactance line crosses the X axis) of a quadrilateral
+    whose reactance line, tilted by τ, passes through the target :math:`Z_t` [ohm]:
+
+    .. math:: X_{reach} = \mathrm{Im}\,Z_t + \mathrm{Re}\,Z_t \tan\tau
+
+    Parameters
+    ----------
+    target : complex
+        The impedance the zone just reaches [ohm].
+    tilt_rad : float
+        Reactance-line tilt τ [rad] (positive: down toward +R).
+    """
+    return float(target.imag + target.real * math.tan(tilt_rad))
+
+
 def zone1_target(w: RuleContext) -> tuple[complex, str, list[Check]]:
     i, z1 = w.inputs, w.ph.zone1
     pct = z1.reach_pct

@@ -3,9 +3,9 @@
 from __future__ import annotations
 
 import math
+from collections.abc import Mapping
 from dataclasses import dataclass
 from pathlib import Path
-from typing import Any
 
 from relayset.errors import InputError
 from relayset.inputs.philosophy import Philosophy, default_philosophy, load_philosophy
@@ -16,6 +16,15 @@ from relayset.results.relay import RelayBasis
 from relayset.results.settings import SettingsResult
 from relayset.settings.compute import compute_settings
 from relayset.settings.inputs import SettingsInputs
+from relayset.settings.simulated import (
+    WIDENED_ZONES,
+    SimulationSummary,
+    infeed_range,
+    resistive_widening,
+    reverse_cover_ohm,
+    zone1_limit,
+    zone1_shape,
+)
 from relayset.studies.geometry import LineGeometry
 from relayset.studies.reach import build_source
 
@@ -109,14 +118,16 @@ def _phase_spacing_m(geo: LineGeometry) -> float:
 def run_settings(study: Study, geo: LineGeometry, params: LineParameters, relay: RelayBasis,
                  reach: ReachStudyResult | None, philosophy: Philosophy, *,
                  source: str, ends: tuple[str, ...] | None = None,
-                 simulated: dict[str, dict[str, Any]] | None = None
+                 simulated: Mapping[str, SimulationSummary] | None = None,
+                 widened_zones: tuple[str, ...] = WIDENED_ZONES
                  ) -> tuple[SettingsResult, ...]:
     """Settings of the relay at each of ``relay.ends`` (or ``ends``), in that order.
 
-    ``simulated`` holds, per end, what the verification's fault simulation found:
-    ``zone1_limit`` (recommended reach [%], worst overreach [% of setting]; the zone 1 rule
-    applies the stricter of it and the reach study's), ``infeed_range`` (K min, K max) and
-    ``reverse_cover_ohm``.
+    ``simulated`` holds, per end, what the verification's fault simulation found (a
+    :class:`relayset.settings.simulated.SimulationSummary`); the rules of
+    :mod:`relayset.settings.simulated` turn it into the zone 1 limit (the zone 1 rule
+    applies the stricter of it and the reach study's), the infeed range, the resistive
+    widening of ``widened_zones`` and the reverse zone's cover.
     """
     check_settings_inputs(study, source)
     names = study.ends
@@ -130,8 +141,9 @@ def run_settings(study: Study, geo: LineGeometry, params: LineParameters, relay:
             # Worst-case zone 1 overreach in % of its setting: error budget + untransposition.
             e = er.arrangement("actual_plan").worst_bolted_overreach_at_remote_bus_pct
             worst = er.error_budget_pct + max(0.0, e)
-        sim = (simulated or {}).get(end, {})
-        sim_rec, sim_over = sim.get("zone1_limit", (None, None))
+        sim = (simulated or {}).get(end)
+        sim_rec, sim_over = ((None, None) if sim is None
+                             else zone1_limit(sim, philosophy) or (None, None))
         src_relay = build_source(study, end, source)
         src_remote = build_source(study, other, source)
         fr = study.fault_resistance
@@ -165,9 +177,11 @@ def run_settings(study: Study, geo: LineGeometry, params: LineParameters, relay:
                 worst_overreach_pct=worst,
                 simulated_zone1_pct=sim_rec,
                 simulated_overreach_pct=sim_over,
-                infeed_range=sim.get("infeed_range"),
-                reverse_cover_ohm=sim.get("reverse_cover_ohm"),
-                resistive_need_ohm=sim.get("resistive_need_ohm"),
+                infeed_range=None if sim is None else infeed_range(sim, philosophy),
+                reverse_cover_ohm=None if sim is None else reverse_cover_ohm(sim),
+                resistive_need_ohm=(None if sim is None
+                                    else resistive_widening(sim, widened_zones)),
+                zone1_shape=(0.0, 1.0) if sim is None else zone1_shape(sim),
             )
             res = compute_settings(inputs, philosophy)
         except InputError as exc:

@@ -52,12 +52,13 @@ from relayset.studies.geometry import LineGeometry
 from relayset.studies.verification.envelope import Envelope, build_envelope
 from relayset.studies.verification.relay_model import (
     LOOPS,
+    Measure,
     RelayModel,
     View,
-    loop_scale,
-    view,
+    relay_view,
+    zone_scale,
 )
-from relayset.studies.verification.simulation import Simulation, simulate
+from relayset.studies.verification.simulation import Simulation, infeed_samples, simulate
 
 #: Fault location step of the verification sweep [% of the line] (common practice, no source).
 STEP_PCT = 10.0
@@ -126,7 +127,7 @@ def _describe(vw: View, which: np.ndarray, labels, faulted: str, rf_pairs):
             r_phase_ohm=float(rf_pairs[k_rf, 1]), source_case=run.case_names[k_s],
             transfer_angle_deg=round(ang, 6), parallel_state=run.state,
             earth_resistivity_ohm_m=run.rho_ohm_m, loop=loop_label(loop, labels),
-            z_apparent_primary_ohm=complex(vw.loops[loop][idx]),
+            z_apparent_primary_ohm=vw.loop_at(loop, idx),
             mutual_compensation=bool(np.broadcast_to(vw.mutual, which.shape)[idx]))
     return fn
 
@@ -176,30 +177,9 @@ def infeed_range(sim: Simulation, end: str) -> InfeedRange | None:
     at_s = end == sim.names[0]
     ks, descr = [], []
     for run in sim.runs:
-        if run.faulted != "protected" or not run.sources[0 if at_s else 1]:
-            continue  # without a source behind the relay there is no relay current
-        sw = run.sweep
-        if "ABC" not in sw.fault_types:
-            continue
-        f = sw.fault_types.index("ABC")
-        k_m = int(np.argmax(sw.m)) if at_s else int(np.argmin(sw.m))
-        if abs(sw.m[k_m] - (1.0 if at_s else 0.0)) > 1e-12:
-            continue
-        k_rf = int(np.argmin(sw.r_fault_ohm + sw.r_phase_ohm))
-        i_f = sw.i_fault[f, k_m, k_rf]  # (K, L, 3)
-        # The fault's own (incremental) relay current: the infeed factor of the grading
-        # formula belongs to the superposed fault network, whatever load flowed before.
-        i_rel = ((sw.i_s if at_s else sw.i_r)[f, k_m, k_rf]
-                 - (sw.i_s_pre if at_s else sw.i_r_pre))
-        with np.errstate(all="ignore"):
-            k = (i_f[..., 0] - i_f[..., 1]) / (i_rel[..., 0] - i_rel[..., 1])
-        # the load case by its transfer angle, also for power flows
-        delta = np.degrees(sw.transfer_angle_rad)  # (K, L)
-        for (a, b), kv in np.ndenumerate(k):
-            if np.isfinite(kv):
-                ks.append(complex(kv))
-                descr.append(f"{run.case_names[a]}, parallel {run.state}, transfer angle "
-                             f"{delta[a, b]:.1f}°")
+        for k, d in infeed_samples(run, at_s):
+            ks.append(k)
+            descr.append(d)
     if not ks:
         return None
     mags = np.abs(ks)
@@ -208,14 +188,17 @@ def infeed_range(sim: Simulation, end: str) -> InfeedRange | None:
 
 
 def zone1_limit_pct(sim: Simulation, end: str, st: SettingsResult, tolerance_pct: float,
-                    margin_pct: float, model: RelayModel) -> float | None:
+                    margin_pct: float, model: RelayModel, worst: float | None = None
+                    ) -> float | None:
     """Longest zone 1 [% of line] whose faults at the remote bus keep the tolerance.
 
     The reach scale of every remote-bus fault (every state, source, load case and fault
     resistance) is inversely proportional to the zone 1 reach, so the limit is the present
     reach times the smallest scale, less the tolerance and the margin; rounded down to 0.5 %.
+    ``worst`` is that smallest scale where the caller has it already.
     """
-    worst = worst_remote_bus_scale(sim, end, st, model)
+    if worst is None:
+        worst = worst_remote_bus_scale(sim, end, st, model)
     if worst is None:
         return None
     lim = st.zone("zone1").reach_pct * worst * (1 - margin_pct / 100) / (1 + tolerance_pct / 100)
@@ -239,17 +222,19 @@ def verify_end(sim: Simulation, end: str, st: SettingsResult, *, study: Study,
                                      ("z1_par", False), ("z1_par_nomut", False),
                                      ("fwd_behind", False))}
     labels = sim.labels
+    worst_bus = math.inf  # smallest zone 1 reach scale at the remote bus (its limit)
     for run in sim.runs:
         sw = run.sweep
         rfp = np.stack([sw.r_fault_ohm, sw.r_phase_ohm], axis=1)
         rf_ax = (None, None, slice(None), None, None)
         if run.faulted == "protected":
-            v = view(run, at_s, st.k0.k0, k0m, model, line_angle=theta)
+            # One view of the run serves every zone; each zone's scales are formed once.
+            v = relay_view(run, at_s, st.k0.k0, k0m, model, line_angle=theta)
             m_ax = v.m_end[None, :, None, None, None]
-            s1, w1, ins = loop_scale(v, z1, theta, zl, model)
-            o1, u1, _ = loop_scale(v, z1, theta, zl, model, close_in=0.0)
-            o2, u2, _ = loop_scale(v, z2, theta, zl, model, close_in=0.0)
-            d1 = _describe(v, w1, labels, "protected line", rfp)
+            sc1 = zone_scale(v, z1, theta, zl, model)
+            sc2 = zone_scale(v, z2, theta, zl, model)
+            s1, ins = sc1.scale, sc1.insensitive
+            d1 = _describe(v, sc1.which, labels, "protected line", rfp)
             mask_rf1 = rf_mask(rfp, z1, tower)[rf_ax]
             mask_rf2 = rf_mask(rfp, z2, tower)[rf_ax]
             every = np.ones(s1.shape, dtype=bool)
@@ -257,26 +242,33 @@ def verify_end(sim: Simulation, end: str, st: SettingsResult, *, study: Study,
             # (pilot scheme) matter, not one of the zone's reach.
             fed = every & run.sources[0 if at_s else 1]
             in1 = (m_ax <= r1 * (1 - t / 100) + 1e-9) & mask_rf1 & fed
-            acc["z1_int"].add((1 - o1) * 100, in1, 0.0,
-                              _describe(v, u1, labels, "protected line", rfp), ins)
-            acc["z2_int"].add((1 - o2) * 100, mask_rf2 & fed, t,
-                              _describe(v, u2, labels, "protected line", rfp), ins)
-            acc["z1_ext"].add((s1 - 1) * 100, np.isclose(m_ax, 1.0) & every, t, d1, ins)
+            acc["z1_int"].add((1 - sc1.scale_in) * 100, in1, 0.0,
+                              _describe(v, sc1.which_in, labels, "protected line", rfp), ins)
+            acc["z2_int"].add((1 - sc2.scale_in) * 100, mask_rf2 & fed, t,
+                              _describe(v, sc2.which_in, labels, "protected line", rfp),
+                              sc2.insensitive)
+            at_bus = np.isclose(m_ax, 1.0) & every
+            acc["z1_ext"].add((s1 - 1) * 100, at_bus, t, d1, ins)
+            if np.any(at_bus):
+                worst_bus = min(worst_bus, float(np.min(np.where(at_bus, s1, np.inf))))
             # Faults at the relay's own bus, behind it, every type and resistance; bolted
-            # ones with a vanishing loop voltage are the memory polarisation's.
-            vb = view(run, at_s, st.k0.k0, k0m, model, behind=True, line_angle=theta)
-            at_own = np.isclose(vb.m_end, 0.0)[None, :, None, None, None]
-            for zone in (z1, z2, z3):
-                sb, wb, insb = loop_scale(vb, zone, theta, zl, model)
-                acc["fwd_behind"].add((sb - 1) * 100, at_own & every, t,
-                                      _describe(vb, wb, labels, "behind the relay", rfp),
-                                      insb)
+            # ones with a vanishing loop voltage are the memory polarisation's. Only the
+            # own-bus locations are measured.
+            vb = relay_view(run, at_s, st.k0.k0, k0m, model, line_angle=theta, behind=True)
+            if vb is not None:
+                for zone in (z1, z2, z3):
+                    sb = zone_scale(vb, zone, theta, zl, model)
+                    acc["fwd_behind"].add(
+                        (sb.scale - 1) * 100, np.ones(sb.scale.shape, dtype=bool), t,
+                        _describe(vb, sb.which, labels, "behind the relay", rfp),
+                        sb.insensitive)
         else:
             for key, km in (("z1_par", k0m), ("z1_par_nomut", None)):
-                v = view(run, at_s, st.k0.k0, km, model, line_angle=theta)
-                s1, w1, ins = loop_scale(v, z1, theta, zl, model)
-                acc[key].add((s1 - 1) * 100, np.ones(s1.shape, dtype=bool), t,
-                             _describe(v, w1, labels, "parallel circuit", rfp), ins)
+                v = relay_view(run, at_s, st.k0.k0, km, model, line_angle=theta)
+                sc = zone_scale(v, z1, theta, zl, model)
+                acc[key].add((sc.scale - 1) * 100, np.ones(sc.scale.shape, dtype=bool), t,
+                             _describe(v, sc.which, labels, "parallel circuit", rfp),
+                             sc.insensitive)
     checks = [
         _finish("zone1", "operates_for_internal_faults",
                 f"zone 1 operates for every fault up to (1 − {t:g} %) of its reach "
@@ -319,7 +311,8 @@ def verify_end(sim: Simulation, end: str, st: SettingsResult, *, study: Study,
     checks.append(_targets_inside(st))
     if remote is not None:
         checks.append(_reverse_check(st, zr, remote, t, other))
-    lim = zone1_limit_pct(sim, end, st, t, 0.0, model)
+    lim = zone1_limit_pct(sim, end, st, t, 0.0, model,
+                          worst=worst_bus if math.isfinite(worst_bus) else None)
     return EndVerification(end, tuple(checks), infeed_range(sim, end), lim)
 
 
@@ -481,11 +474,26 @@ def worst_remote_bus_scale(sim: Simulation, end: str, st: SettingsResult, model:
     for run in sim.runs:
         if run.faulted != "protected":
             continue
-        v = view(run, at_s, st.k0.k0, k0m, model, line_angle=theta)
-        s, _, _ = loop_scale(v, z1, theta, zl, model)
-        at_bus = np.isclose(v.m_end, 1.0)[None, :, None, None, None]
-        worst = min(worst, float(np.min(np.where(at_bus, s, np.inf))))
+        bus = np.flatnonzero(np.isclose(run.sweep.m, 1.0 if at_s else 0.0))
+        if not bus.size:
+            continue
+        v = relay_view(run, at_s, st.k0.k0, k0m, model, line_angle=theta).at_locations(bus)
+        worst = min(worst, float(np.min(zone_scale(v, z1, theta, zl, model).scale)))
     return worst if math.isfinite(worst) else None
+
+
+def measure_for(study: Study, geo: LineGeometry, settings_by_end: dict[str, SettingsResult],
+                judged: Sequence[str] | None = None) -> Measure:
+    """What to keep of each solved run: the views of the relays of these settings (their
+    k0, k0m, relay model and line angle; the zone reaches play no part) at the ``judged``
+    ends (default all), the infeed samples alone at the others."""
+    mutual = geo.n_circuits == 2 and study.reach_study.mutual_compensation
+    judged = tuple(settings_by_end) if judged is None else tuple(judged)
+    return Measure(tuple(
+        (end == study.ends[0], st.k0.k0, st.k0m if mutual else None,
+         relay_model_at(study, end), st.line_angle_rad)
+        for end, st in settings_by_end.items() if end in judged),
+        tuple(end == study.ends[0] for end in settings_by_end if end not in judged))
 
 
 def relay_model_at(study: Study, end: str) -> RelayModel:
@@ -507,7 +515,8 @@ def verify_settings(study: Study, geo: LineGeometry, params_by_rho: dict[float, 
                     settings_by_end: dict[str, SettingsResult], *, source: str,
                     zone2_adjacent_zone1_pct: float = 80.0,
                     ends: Sequence[str] | None = None,
-                    envelope: Envelope | None = None) -> VerificationResult:
+                    envelope: Envelope | None = None,
+                    simulation: Simulation | None = None) -> VerificationResult:
     """Run the verification of the settings of every end over the envelope.
 
     Parameters
@@ -521,6 +530,9 @@ def verify_settings(study: Study, geo: LineGeometry, params_by_rho: dict[float, 
         The settings of the relay at each end to verify.
     envelope : Envelope, optional
         The operating envelope (default: the study's, with the settings' resistive targets).
+    simulation : Simulation, optional
+        The simulation of that envelope, already solved (and measured for these relays,
+        :func:`measure_for`) by the settings' closing; default: solved here.
     """
     names = study.ends
     t = check_tolerance(study.error_budget.total_pct, source)
@@ -529,8 +541,13 @@ def verify_settings(study: Study, geo: LineGeometry, params_by_rho: dict[float, 
                                   0)
     env = envelope or build_envelope(study, resistive_targets(study, list(
         settings_by_end.values())))
-    m = verification_grid(settings_by_end, names, t)
-    sim = simulate(study, geo, params_by_rho, env, m=m, source=source)
+    if simulation is None:
+        m = verification_grid(settings_by_end, names, t)
+        wanted = {e: st for e, st in settings_by_end.items() if ends is None or e in ends}
+        sim = simulate(study, geo, params_by_rho, env, m=m, source=source,
+                       measure=measure_for(study, geo, wanted))
+    else:
+        sim = simulation
     results = []
     models = {}
     for end, st in settings_by_end.items():
@@ -579,6 +596,7 @@ def verify_settings(study: Study, geo: LineGeometry, params_by_rho: dict[float, 
 
 def _resistive_basis(study: Study, geo: LineGeometry, settings_by_end) -> tuple[str, ...]:
     """How the resistive reach was chosen and what the simulation adds, in words."""
+    from relayset.settings.compute import DIRECTIONAL_LINE_BELOW_R_DEG
     from relayset.studies.settings import arc_lengths
 
     if not any(z.shape == "quadrilateral" for st in settings_by_end.values()
@@ -595,6 +613,13 @@ def _resistive_basis(study: Study, geo: LineGeometry, settings_by_end) -> tuple[
         "Remote infeed into the fault resistance is not in the settings formula; the "
         "verification simulates it for every source case, and resistive faults the zones "
         "then miss are reported under the must-operate checks.",
+        "Shape from the simulation: zone 2's right blinder is widened to what the simulated "
+        "internal faults need (load permitting); zone 1's reactance line is tilted and its "
+        "right blinder widened as far as the worst simulated remote-bus fault allows "
+        "(smallest tilt within 0.5 % of the line of the best, widest blinder costing "
+        "nothing); left blinders keep the arc basis; every quadrilateral's directional line "
+        f"lies {DIRECTIONAL_LINE_BELOW_R_DEG:g}° below the R axis (common practice, no "
+        "source).",
     )
 
 

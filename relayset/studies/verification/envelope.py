@@ -107,6 +107,11 @@ class Envelope:
             + ("the study's range" if self.rho_range_given else
                f"no range given: {DEFAULT_RHO_FACTORS[0]:g} to {DEFAULT_RHO_FACTORS[1]:g} "
                "times the study's value, common practice, no source") + ").",
+            "Not simulated (stated limits of the envelope): faults along the lines behind "
+            "the relay (behind it only at its own bus), faults on the adjacent lines beyond "
+            "the remote bus (zones 2 and 3 judged at Z_line + K Z_adjacent with the simulated "
+            "infeed K), and sequential clearing of a parallel-circuit fault (one breaker of "
+            "the faulted circuit open).",
         )
 
     def to_dict(self) -> dict:

@@ -2,12 +2,20 @@
 
 One :class:`Run` is one batched solve (one earth resistivity, parallel-circuit state,
 faulted circuit, source configuration and fault group); :func:`simulate` makes all of them.
+
+The fault currents do not depend on the zone settings, only the zones' judgement does. So
+each run can be *measured* as it is solved (``measure``: what the relay at each end sees,
+its loops, release and direction, see :mod:`.relay_model`), its bulky phase quantities
+dropped, and the measurement kept for every later judgement: the settings closed by the
+simulation and their verification then share one simulation, and its memory is the
+measured loops, not every phase voltage and current of every case.
 """
 
 from __future__ import annotations
 
 import itertools
-from dataclasses import dataclass
+from collections.abc import Callable
+from dataclasses import dataclass, field, replace
 
 import numpy as np
 
@@ -36,6 +44,20 @@ class Run:
     rho_ohm_m: float
     sources: tuple[bool, bool]  #: source in service at S, at R
     group: str = ""  #: fault group (by the resistance the faults go through)
+    #: Measurements kept when the phase quantities were dropped: key -> (relay, view).
+    views: dict = field(default_factory=dict)
+    #: Per end (True: S), the infeed samples of :func:`infeed_samples`, once measured.
+    infeed: dict = field(default_factory=dict)
+
+    @property
+    def n_cases(self) -> int:
+        sw = self.sweep
+        return len(sw.fault_types) * sw.m.size * sw.r_fault_ohm.size * sw.emf_s_v.size
+
+    @property
+    def measured(self) -> bool:
+        """Whether the phase quantities were dropped (only the kept views remain)."""
+        return self.sweep.v_s is None
 
 
 @dataclass(frozen=True, eq=False)
@@ -54,7 +76,57 @@ class Simulation:
 
     @property
     def n_cases(self) -> int:
-        return sum(int(r.sweep.i_fault.size // 3) for r in self.runs)
+        return sum(r.n_cases for r in self.runs)
+
+    def joined(self, other: Simulation) -> Simulation:
+        """This simulation and ``other`` (more fault locations of the same envelope)."""
+        return replace(self, runs=self.runs + other.runs,
+                       max_transfer_angle_deg=max(self.max_transfer_angle_deg,
+                                                  other.max_transfer_angle_deg))
+
+
+#: Phase quantities a measured run no longer holds.
+BULK = ("v_s", "i_s", "i_s_parallel", "v_r", "i_r", "i_r_parallel", "v_f", "i_fault",
+        "i_f_from_s", "i_f_from_r")
+
+
+def lighten(run: Run) -> Run:
+    """The run without its phase quantities (after measuring: see the module notes)."""
+    return replace(run, sweep=replace(run.sweep, **dict.fromkeys(BULK)), views={},
+                   infeed={})
+
+
+def infeed_samples(run: Run, at_s: bool) -> list[tuple[complex, str]]:
+    """Infeed factors K = I_fault / I_relay of the run's bolted three-phase faults at the
+    remote bus, seen from S (``at_s``) or R, with their case descriptions (see
+    :func:`relayset.studies.verification.checks.infeed_range`)."""
+    if at_s in run.infeed:
+        return run.infeed[at_s]
+    if run.faulted != "protected" or not run.sources[0 if at_s else 1]:
+        return []  # without a source behind the relay there is no relay current
+    sw = run.sweep
+    if "ABC" not in sw.fault_types:
+        return []
+    f = sw.fault_types.index("ABC")
+    k_m = int(np.argmax(sw.m)) if at_s else int(np.argmin(sw.m))
+    if abs(sw.m[k_m] - (1.0 if at_s else 0.0)) > 1e-12:
+        return []
+    k_rf = int(np.argmin(sw.r_fault_ohm + sw.r_phase_ohm))
+    i_f = sw.i_fault[f, k_m, k_rf]  # (K, L, 3)
+    # The fault's own (incremental) relay current: the infeed factor of the grading
+    # formula belongs to the superposed fault network, whatever load flowed before.
+    i_rel = ((sw.i_s if at_s else sw.i_r)[f, k_m, k_rf]
+             - (sw.i_s_pre if at_s else sw.i_r_pre))
+    with np.errstate(all="ignore"):
+        k = (i_f[..., 0] - i_f[..., 1]) / (i_rel[..., 0] - i_rel[..., 1])
+    # the load case by its transfer angle, also for power flows
+    delta = np.degrees(sw.transfer_angle_rad)  # (K, L)
+    out = []
+    for (a, b), kv in np.ndenumerate(k):
+        if np.isfinite(kv):
+            out.append((complex(kv), f"{run.case_names[a]}, parallel {run.state}, transfer "
+                        f"angle {delta[a, b]:.1f}°"))
+    return out
 
 
 def source_configs(study: Study, names, src):
@@ -114,7 +186,8 @@ def load_emfs(env: Envelope, line, src, names, relay_end, scales, state,
 
 def simulate(study: Study, geo: LineGeometry, params_by_rho: dict[float, LineParameters],
              env: Envelope, *, m: np.ndarray, source: str, protected: bool = True,
-             parallel: bool = True, load: bool = True) -> Simulation:
+             parallel: bool = True, load: bool = True,
+             measure: Callable[[Run], Run] | None = None) -> Simulation:
     """Solve the fault cases of a verification over the envelope (no settings needed).
 
     Parameters
@@ -127,6 +200,9 @@ def simulate(study: Study, geo: LineGeometry, params_by_rho: dict[float, LinePar
         Load cases and fault-resistance grids.
     m : (M,) array
         Fault locations from the from-substation [1].
+    measure : callable, optional
+        Applied to each run as it is solved (e.g. keep what the relays see and drop the
+        phase quantities, :class:`relayset.studies.verification.relay_model.Measure`).
     """
     names = study.ends
     src = {n: build_source(study, n, source) for n in names}
@@ -174,8 +250,9 @@ def simulate(study: Study, geo: LineGeometry, params_by_rho: dict[float, LinePar
                                 parallel_state=state, emf_v=emf_t, outputs=OUTPUTS)
                         except InputError as exc:
                             raise exc.located(source=source) from None
-                        runs.append(Run(sw, faulted, state if n_c == 2 else "none", labels,
-                                        rho, (s_s is not None, s_r is not None), g.name))
+                        run = Run(sw, faulted, state if n_c == 2 else "none", labels,
+                                  rho, (s_s is not None, s_r is not None), g.name)
+                        runs.append(run if measure is None else measure(run))
                     all_names += [n for n in labels if n not in all_names]
     return Simulation(names, geo.phase_labels[0], tuple(runs), n_c, mutual,
                       tuple(all_names), tuple(states) if n_c == 2 else ("none",),
