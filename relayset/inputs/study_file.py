@@ -602,6 +602,39 @@ class FaultResistanceData:
     ground_arc_length: float | None = spec(_quantity("length", gt=0, le=100.0), None)
 
 
+def _said(max_len: int) -> Callable[[Any], str]:
+    """Text that says something: not empty, not only spaces."""
+    base = _text(max_len, min_len=1)
+
+    def check(v: Any) -> str:
+        v = base(v)
+        if not v.strip():
+            raise ValueError("must not be blank")
+        return v
+
+    return check
+
+
+def _check_name(v: Any) -> str:
+    """A check as the verification JSON names it: zone and check id, "zone2.covers_whole_line"."""
+    v = _text(200, min_len=1)(v)
+    if not re.fullmatch(r"[a-z0-9_]+\.[a-z0-9_]+", v):
+        raise ValueError("must name a check as the verification does, zone and check id "
+                         "joined by a dot (e.g. \"zone2.covers_whole_line\")")
+    return v
+
+
+@_table
+class Deviation:
+    """``[[deviations]]``: a failed check of the verification accepted, with who and why."""
+
+    check: str = spec(_check_name)
+    end: str = spec(_text(100, min_len=1))  #: the relay end whose check failed
+    reason: str = spec(_said(2000))
+    accepted_by: str = spec(_said(100))
+    date: dt.date = spec(schema.date)
+
+
 @_table
 class Study:
     """A whole study file, validated, SI inside."""
@@ -628,6 +661,7 @@ class Study:
         table(AdjacentLine), max_items=limits.MAX_ADJACENT_LINES, what="lines"), ())
     fault_resistance: FaultResistanceData = spec(table(FaultResistanceData),
                                                  factory=FaultResistanceData)
+    deviations: tuple[Deviation, ...] = spec(ListOf(table(Deviation), what="deviations"), ())
 
     @property
     def ends(self) -> tuple[str, str]:
@@ -888,6 +922,11 @@ def check_study(study: Study, data: dict, source: str) -> None:
             if key not in ends:
                 fail(no_end + suggest(key, ends), f"relay.at.{_key(key)}",
                      _raw(data, "relay", "at", key))
+    for k, dev in enumerate(study.deviations):
+        if dev.end not in study.relay_ends:
+            where = ", ".join(quote(e) for e in study.relay_ends) or "none: no [relay] table"
+            fail(f"names no relay end of this study (relay ends: {where})"
+                 + suggest(dev.end, study.relay_ends), f"deviations[{k}].end", dev.end)
     for key in study.sources:
         if key not in ends:
             fail(no_end + suggest(key, ends), f"sources.{_key(key)}", _raw(data, "sources", key))

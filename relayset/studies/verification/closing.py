@@ -164,7 +164,7 @@ def settle_and_verify(study: Study, geo: LineGeometry, params: LineParameters, r
                 "instantaneous coverage of the line end")))
     ver = verify_settings(study, geo, by_rho, final, source=source,
                           zone2_adjacent_zone1_pct=philosophy.zone2.adjacent_zone1_pct,
-                          ends=wanted)
+                          philosophy=philosophy, ends=wanted)
     ends = []
     for e in ver.ends:
         checks = list(e.checks)
