@@ -386,8 +386,31 @@ def _ratio(v: Any, unit: str, what: str) -> float:
     return r
 
 
-def _ct_ratio(v: Any) -> float:
-    return _ratio(v, "A", "CT")
+class CtRatio(float):
+    """A CT ratio (primary over secondary) that remembers its primary rating [A].
+
+    Written as ``"1200/1 A"`` or ``"1200/5"`` the primary is the rated primary current
+    (1200 A); a bare number is the ratio alone, with no rating to check the load against.
+    """
+
+    primary_a: float | None
+
+    def __new__(cls, ratio: float, primary_a: float | None) -> CtRatio:
+        obj = super().__new__(cls, ratio)
+        obj.primary_a = primary_a
+        return obj
+
+    def __reduce__(self):  # pickled (fleet workers) with its rating
+        return (CtRatio, (float(self), self.primary_a))
+
+
+def _ct_ratio(v: Any) -> CtRatio:
+    r = _ratio(v, "A", "CT")
+    primary = None
+    if isinstance(v, str):
+        m = re.match(rf"^\s*({units.NUMBER})\s*[/:]", v)
+        primary = float(m.group(1)) if m else None
+    return CtRatio(r, primary)
 
 
 def _vt_ratio(v: Any) -> float:
@@ -431,6 +454,15 @@ class RelayData:
     ground_release_current: float = spec(SecondaryCurrent, 0.05)
     #: mutual compensation only while the own residual current is the larger
     mutual_compensation_supervision: bool = spec(schema.boolean, True)
+    #: continuous thermal current rating factor of the CTs (IEEE Std C57.13 rating factors
+    #: 1.0 to 4.0; 1.0 the common practice default, no source)
+    ct_rating_factor: float = spec(_number(ge=1, le=4), 1.0)
+
+    def ct_primary_a(self, end: str) -> float | None:
+        """Rated primary current of the CT at ``end`` [A]; None where only a ratio is given."""
+        own = self.at.get(end)
+        ct = own.ct_ratio if own is not None and own.ct_ratio is not None else self.ct_ratio
+        return getattr(ct, "primary_a", None)
 
     def ratios(self, end: str) -> tuple[float, float]:
         """(CT ratio, VT ratio) of the relay at ``end``."""

@@ -489,6 +489,13 @@ def _zone(name: str, z: dict[str, Any]) -> dict[str, Any]:
     }
 
 
+def _mutual_supervision(m: dict[str, Any] | None) -> str | None:
+    """The issued mutual-compensation supervision in words (None: no mutual compensation)."""
+    if not m:
+        return None
+    return f"{'on' if m.get('on') else 'off'}: {m.get('criterion', '')}"
+
+
 def _settings_ends(d: dict[str, Any]) -> list[dict[str, Any]]:
     """One block per relay end, in the order of the results (``settings.ends``)."""
     if d.get("settings") is None:
@@ -520,6 +527,7 @@ def _settings_ends(d: dict[str, Any]) -> list[dict[str, Any]]:
             "z0z1_mag": num(k0["z0_over_z1"]["magnitude"], P["pu"]),
             "z0z1_ang": num(k0["z0_over_z1"]["angle_deg"], P["deg"]),
             "k0m": None if s["k0m"] is None else pnum(s["k0m"], P["pu"]),
+            "mutual_supervision": _mutual_supervision(s.get("mutual_compensation_supervision")),
             "load_zmin_pri": num(load["z_min_primary_ohm"], P["ohm"]),
             "load_zmin_sec": num(load["z_min_secondary_ohm"], P["ohm"]),
             "load_angle": num(load["load_angle_max_deg"], P["deg"]),
@@ -582,7 +590,10 @@ def _verification(r) -> dict[str, Any]:
                 # the adjacent line at the largest infeed) is printed in full
                 "reported": _reported(c),
             })
-    return {"verdict": str(vd.get("verdict", NOT_VERIFIED)), "present": True, "zones": zones}
+    return {"verdict": str(vd.get("verdict", NOT_VERIFIED)), "present": True, "zones": zones,
+            "deviations": [{k: str(x.get(k, "")) for k in
+                            ("end", "check", "reason", "accepted_by", "date")}
+                           for x in vd.get("accepted_deviations") or []]}
 
 
 def build_context(results, *, units: str = "si", paper: str = "a4",

@@ -49,7 +49,7 @@ from relayset.results.verification import (
     ZoneVerification,
 )
 from relayset.studies.geometry import LineGeometry
-from relayset.studies.verification import deviations, scheme
+from relayset.studies.verification import deviations, equipment, scheme
 from relayset.studies.verification.envelope import Envelope, build_envelope
 from relayset.studies.verification.relay_model import (
     LOOPS,
@@ -321,6 +321,7 @@ def verify_end(sim: Simulation, end: str, st: SettingsResult, *, study: Study,
                                  philosophy=ph)
     checks += _load_check(st, z3, t)
     checks.append(_targets_inside(st))
+    checks += equipment.equipment_checks(sim, end, st, study=study, model=model)
     checks += scheme.scheme_checks(sim, end, st, remote, philosophy=ph, t=t, tower_ohm=tower,
                                    model=model, remote_model=relay_model_at(study, other),
                                    other=other)
