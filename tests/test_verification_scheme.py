@@ -457,3 +457,55 @@ def test_mutual_supervision_issued_as_verified(variant, tmp_path, capsys, on):
 def test_no_supervision_row_without_mutual_compensation(tmp_path):
     _, d = _json(DEMO / D132, tmp_path)
     assert d["settings"]["ends"][0]["mutual_compensation_supervision"] is None
+
+
+def test_current_reversal_case_resolved_by_the_solver(blocking):
+    # Independent of the verification's views: a ground fault (A-G, 2 ohm) on the parallel
+    # circuit at Elsford's bus, both sources at their study strength, no load. Solved with
+    # the phase-domain solver (circuits swapped so that the parallel circuit is faulted);
+    # each relay measures its bus voltage and the protected circuit's currents (no k0m: the
+    # supervision withholds it, the parallel circuit's residual current being the larger).
+    import numpy as np
+
+    from relayset.physics import network
+    from relayset.studies.geometry import build_geometry
+    from relayset.studies.parameters import compute_parameters
+    from relayset.studies.reach import _cascade, build_source
+
+    d = blocking["blocking"]
+    study = pipeline.load(DEMO / D230).study
+    geo = build_geometry(study, "")
+    params = compute_parameters(geo)
+    line = _cascade(params.z_position_ohm_per_m, params.y_position_s_per_m,
+                    [list(o) for o in geo.section_orders], geo.section_lengths_m,
+                    study.reach_study.shunt_capacitance)
+    p = [3, 4, 5, 0, 1, 2]
+    swapped = network.LineCascade(line.z_ohm_per_m[:, p][:, :, p], line.length_m,
+                                  None if line.y_s_per_m is None
+                                  else line.y_s_per_m[:, p][:, :, p])
+    sw = network.solve_fault_sweep(
+        swapped, build_source(study, "Elsford", ""), build_source(study, "Fallowby", ""),
+        v_nominal_v=geo.v_nominal_v, fault_types=("AG",), m=np.array([0.0]),
+        r_fault_ohm=np.array([2.0]), source_scale=np.array([1.0]),
+        transfer_angle_rad=np.array([0.0]))
+    ends = {s["end"]: s for s in d["settings"]["ends"]}
+
+    def ag(v, i, end):
+        k = ends[end]["k0"]["k0"]  # as the JSON gives it (polar)
+        k0 = k["magnitude"] * complex(math.cos(math.radians(k["angle_deg"])),
+                                      math.sin(math.radians(k["angle_deg"])))
+        return complex(measurement.loop_impedances(v, i, k0)["AG"].ravel()[0])
+
+    z_els = ag(sw.v_s, sw.i_s_parallel, "Elsford")
+    z_fal = ag(sw.v_r, sw.i_r_parallel, "Fallowby")
+    # Fallowby's zone 2 sees it forward; Elsford's reverse zone does not see it behind.
+    assert _inside(ends["Fallowby"]["zones"]["zone2"]["region_primary_ohm"]["ground_loops"],
+                   z_fal)
+    assert not _inside(ends["Elsford"]["zones"]["reverse"]["region_primary_ohm"][
+        "ground_loops"], z_els)
+    # The case lies in the envelope (2 ohm to ground, no load, the study's resistivity), so
+    # the blocking scheme's current-reversal check at Elsford must fail.
+    env = d["verification"]["envelope"]
+    assert 2.0 in env["r_ground_ohm"] and 0.0 in env["transfer_angles_deg"]
+    c = _checks(d, "Elsford")["reverse.covers_current_reversal_on_parallel_circuit"]
+    assert c["result"] == "FAIL" and c["cases_failed"] >= 1
