@@ -235,6 +235,16 @@ def test_current_reversal_failure_names_a_case_outside_the_reverse_zone(blocking
     # The demo's reverse zones (20 % of the line) miss resistive parallel-circuit faults the
     # remote zone 2 sees: a real finding of the blocking scheme on this demo.
     assert failed >= 1
+    # Judged are only the faults the remote zone 2 sees forward: fed to the fault through
+    # the healthy circuit from the remote end, so in the part of the parallel circuit nearer
+    # this end, and within the remote zone 2's reach: well under half of all the
+    # parallel-circuit cases (physics of the double circuit, no source).
+    for e in ("Elsford", "Fallowby"):
+        ck = _checks(d, e)
+        par = ck["zone1.no_operation_for_parallel_circuit_faults"]
+        rev = ck["reverse.covers_current_reversal_on_parallel_circuit"]
+        total = par["cases_run"] + par["cases_below_min_current"]
+        assert 0 < rev["cases_run"] < total / 2
 
 
 def test_permissive_underreach_overlap(blocking):
@@ -245,10 +255,18 @@ def test_permissive_underreach_overlap(blocking):
         z1 = {e["end"]: e["zones"]["zone1"]["reach_pct"] for e in d["settings"]["ends"]}
         if sum(z1.values()) < 100:  # no overlap along the line: must fail (geometry)
             assert c["result"] == "FAIL"
+        # Faults near either end are inside that end's zone 1 and so covered: only the gap
+        # between the two zone 1 reaches (less the tolerance; 46-63 % of this line) and the
+        # resistive faults beyond the blinders fail, well under half the cases (a check
+        # that needed both ends to see a fault would fail nearly all of them).
+        assert 0 < c["cases_failed"] < c["cases_run"] / 2
         g = c["governing_case"]
         assert g["faulted"] == "protected line"
         assert g["loop"].replace("-", "") in measurement.loops_for_fault(
             g["fault_type"].replace("-", ""))
+    # Identity: the same faults judged by the two ends together, whichever end reports.
+    a, b = (_checks(d, e)["zone1.overlaps_remote_zone1"] for e in ("Elsford", "Fallowby"))
+    assert (a["cases_run"], a["cases_failed"]) == (b["cases_run"], b["cases_failed"])
     assert "zone1.overlaps_remote_zone1" not in _checks(blocking["none"], "Elsford")
 
 
@@ -306,7 +324,10 @@ def test_report_lists_accepted_deviations(variant, tmp_path):
     from relayset.report.html import render_html
 
     html = render_html(build_context(res), path.read_text("utf-8"))
-    assert "&lt;b&gt;tap&lt;/b&gt; &amp; memo" in html and "<b>tap</b>" not in html
+    # listed under the verdict, user text escaped (the study appendix holds it too)
+    assert re.search(r'<ul class="deviations"><li>[^<]*&lt;b&gt;tap&lt;/b&gt; &amp; memo '
+                     r'\(accepted by A\. Reviewer, 2026-11-30\)</li>', html)
+    assert "<b>tap</b>" not in html
 
 
 @pytest.mark.parametrize("edit, field, words", [
