@@ -54,21 +54,6 @@ def _inside(region: dict, z: complex) -> bool:
     return inside
 
 
-def _both_ends_with(variant, tmp_path, kind: str, name: str = "v.toml"):
-    """The 230 kV double-circuit demo, relay at both ends, under scheme ``kind``."""
-    ph = tmp_path / f"ph_{kind}.toml"
-    base = (DEMO / "philosophies" / "northmarch_transmission.toml").read_text("utf-8")
-    ph.write_text(base + f'\n[scheme]\nkind = "{kind}"\n', "utf-8")
-
-    def edit(d):
-        d["study"]["philosophy"] = str(ph)
-        d["relay"]["end"] = "both"
-        for line in d["adjacent_lines"]:
-            line["bus"] = "Fallowby"
-
-    return variant(D230, edit, name)
-
-
 def _json(path, tmp_path, *extra):
     out = tmp_path / "out.json"
     code = main(["settings", str(path), "--json", str(out), *extra])
@@ -185,10 +170,12 @@ def blocking(tmp_path_factory):
 
     tmp = tmp_path_factory.mktemp("blocking")
     out = {}
-    for kind in ("none", "blocking", "permissive_underreach"):
+    for kind in ("none", "blocking", "permissive_underreach", "permissive_overreach"):
         ph = tmp / f"ph_{kind}.toml"
         base = (DEMO / "philosophies" / "northmarch_transmission.toml").read_text("utf-8")
-        ph.write_text(base + f'\n[scheme]\nkind = "{kind}"\n', "utf-8")
+        guard = "false" if kind == "permissive_overreach" else "true"
+        ph.write_text(base + f'\n[scheme]\nkind = "{kind}"\ncurrent_reversal_guard = '
+                      f'{guard}\n', "utf-8")
         d = tomllib.loads((DEMO / D230).read_text("utf-8"))
         d["study"]["philosophy"] = str(ph)
         d["relay"]["end"] = "both"
@@ -211,6 +198,12 @@ def test_reverse_cover_judged_only_where_the_scheme_needs_it(blocking):
         assert "reverse.covers_current_reversal_on_parallel_circuit" not in none
         assert "reverse.covers_current_reversal_on_parallel_circuit" in blk
         assert "zone1.overlaps_remote_zone1" not in blk
+        # Permissive overreach without the guard: reverse cover and current reversal not
+        # judged, the missing guard reported.
+        por = _checks(blocking["permissive_overreach"], end)
+        assert por["reverse.covers_remote_zone2"]["result"] == "reported"
+        assert "reverse.covers_current_reversal_on_parallel_circuit" not in por
+        assert por["reverse.current_reversal_unguarded"]["result"] == "reported"
 
 
 def test_current_reversal_failure_names_a_case_outside_the_reverse_zone(blocking):

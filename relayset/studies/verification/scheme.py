@@ -249,9 +249,19 @@ def scheme_checks(sim: Simulation, end: str, st: SettingsResult, remote: Setting
     if remote is None:
         return []
     out = [reverse_cover(st, st.zone("reverse"), remote, t, other, scheme)]
-    if scheme.needs_reverse_cover and any(r.faulted == "parallel" for r in sim.runs):
+    double = any(r.faulted == "parallel" for r in sim.runs)
+    if scheme.needs_reverse_cover and double:
         out.append(current_reversal(sim, end, st, remote, t=t, model=model,
                                     remote_model=remote_model))
+    elif scheme.kind == "permissive_overreach" and double:
+        out.append(ZoneVerification(
+            "reverse", "current_reversal_unguarded",
+            "permissive overreach on a double circuit without a current-reversal guard "
+            "(philosophy scheme.current_reversal_guard = false): not checked (reported)",
+            0, 0, None, None, True, None,
+            "when the parallel circuit's breakers open in sequence the healthy circuit's "
+            "current reverses and its two ends may see the fault forward at once; use the "
+            "guard (the reverse zone then must see what the remote zone 2 sees)"))
     if scheme.needs_zone1_overlap:
         out.append(zone1_overlap(sim, end, st, remote, t=t, tower_ohm=tower_ohm, model=model,
                                  remote_model=remote_model))
