@@ -547,6 +547,7 @@ def verify_settings(study: Study, geo: LineGeometry, params_by_rho: dict[float, 
         "moves faults further out); zone 2 and 3 are judged at Z_line + K Z_adjacent with K "
         "from the simulated remote-bus faults.",
         f"Verification tolerance {t:g} % (the study's error budget).",
+        scheme.describe(_philosophy(philosophy, zone2_adjacent_zone1_pct)),
         *_resistive_basis(study, geo, settings_by_end),
     )
     return VerificationResult(

@@ -241,6 +241,23 @@ def zone1_overlap(sim: Simulation, end: str, st: SettingsResult, remote: Setting
         "permissive overreach scheme")
 
 
+def describe(philosophy: Philosophy) -> str:
+    """The grading and scheme the checks follow, in words (for the notes)."""
+    z2, sc = philosophy.zone2, philosophy.scheme
+    grading = ("short of the adjacent zone 1" if z2.grading == "short_of_adjacent_zone1"
+               else "in time with the adjacent zone 2")
+    asks = {"none": "no pilot scheme; the reverse zone's cover is reported only",
+            "permissive_underreach": "the two zones 1 must overlap",
+            "blocking": "the reverse zone must see what the remote zone 2 sees, parallel-"
+                        "circuit faults included"}.get(sc.kind)
+    if asks is None:
+        asks = ("the reverse zone must see what the remote zone 2 sees (current-reversal "
+                "guard)" if sc.current_reversal_guard
+                else "no current-reversal guard; the reverse zone's cover is reported only")
+    return (f"Philosophy: zone 2 graded {grading} (grading margin {z2.grading_margin_s:g} s); "
+            f"communication scheme {sc.kind.replace('_', ' ')}: {asks}.")
+
+
 def scheme_checks(sim: Simulation, end: str, st: SettingsResult, remote: SettingsResult | None,
                   *, philosophy: Philosophy, t: float, tower_ohm: float, model: RelayModel,
                   remote_model: RelayModel, other: str) -> list[ZoneVerification]:
