@@ -321,7 +321,8 @@ def verify_end(sim: Simulation, end: str, st: SettingsResult, *, study: Study,
                                  philosophy=ph)
     checks += _load_check(st, z3, t)
     checks.append(_targets_inside(st))
-    checks += equipment.equipment_checks(sim, end, st, study=study, model=model)
+    checks += equipment.equipment_checks(sim, end, st, study=study, model=model,
+                                         below=acc["z2_int"].n_insensitive)
     checks += scheme.scheme_checks(sim, end, st, remote, philosophy=ph, t=t, tower_ohm=tower,
                                    model=model, remote_model=relay_model_at(study, other),
                                    other=other)

@@ -16,7 +16,8 @@ r"""The relay's instruments against the line: CT rating and the smallest fault c
   and a fault resistance up to zone 2's resistive target (bolted faults for a mho zone 2).
   The largest phase current of each case must reach the relay model's minimum operating
   current (``relay.min_operating_current`` through the CT ratio); the cases in which no loop
-  meant for the fault type is released are counted as below the minimum current.
+  meant for the fault type is released are counted as below the minimum current (the same
+  count as zone 2's coverage check, over the same cases).
 
 References
 ----------
@@ -75,31 +76,42 @@ def ct_rating(study: Study, end: str) -> ZoneVerification:
 
 
 def min_fault_current(sim: Simulation, end: str, st: SettingsResult, *, model: RelayModel,
-                      tower_ohm: float) -> ZoneVerification:
+                      tower_ohm: float, below: int) -> ZoneVerification:
     """The smallest relay current of the internal faults against the minimum operating
-    current (see the module notes)."""
+    current (see the module notes). ``below`` is the count of those faults no loop meant for
+    the fault type measures (zone 2's coverage check counts them over the same cases)."""
     from relayset.studies.verification import checks as ck
 
     at_s = end == sim.names[0]
     z2 = st.zone("zone2")
-    zl = abs(st.line_z1_primary_ohm)
-    k0m = st.k0m if sim.mutual else None
     i_set = model.min_current_primary_a
     acc = ck._Acc(True)
-    below = 0
+    worst = None  # (run, index, rf pairs) of the smallest current
     for run in sim.runs:
         if run.faulted != "protected" or not run.sources[0 if at_s else 1]:
             continue
         sw = run.sweep
         rfp = np.stack([sw.r_fault_ohm, sw.r_phase_ohm], axis=1)
+        i_rel = np.max(np.abs(sw.i_s if at_s else sw.i_r), axis=-1)  # (F, M, Rf, K, L)
         mask = np.broadcast_to(ck.rf_mask(rfp, z2, tower_ohm)[None, None, :, None, None],
-                               sw.i_s.shape[:-1])
+                               i_rel.shape)
+        margin = (np.where(mask, i_rel, np.inf) / i_set - 1) * 100 if i_set > 0 \
+            else np.full(i_rel.shape, np.inf)
+        acc.n_run += int(np.count_nonzero(mask))
+        acc.n_fail += int(np.count_nonzero(mask & (margin < -1e-9)))
+        if not np.any(mask):
+            continue
+        idx = np.unravel_index(int(np.argmin(margin)), margin.shape)
+        if worst is None or margin[idx] < acc.worst:
+            acc.worst = float(margin[idx])
+            worst = (run, idx, rfp)
+    if worst is not None:  # the governing case measured as the relay does: one view only
+        run, idx, rfp = worst
+        k0m = st.k0m if sim.mutual else None
         v = view(run, at_s, st.k0.k0, k0m, model, line_angle=st.line_angle_rad)
-        _, which, ins = loop_scale(v, z2, st.line_angle_rad, zl, model, close_in=0.0)
-        i_rel = np.max(np.abs(sw.i_s if at_s else sw.i_r), axis=-1)
-        below += int(np.count_nonzero(ins & mask))
-        margin = (i_rel / i_set - 1) * 100 if i_set > 0 else np.full(i_rel.shape, np.inf)
-        acc.add(margin, mask, 0.0, ck._describe(v, which, sim.labels, "protected line", rfp))
+        _, which, _ = loop_scale(v, z2, st.line_angle_rad, abs(st.line_z1_primary_ohm), model,
+                                 close_in=0.0)
+        acc.case = ck._describe(v, which, sim.labels, "protected line", rfp)(idx)
     chk = ck._finish(
         "relay", "fault_current_above_min_operating",
         f"every fault on the protected line that zone 2 must see (fault resistance up to its "
@@ -117,11 +129,12 @@ def min_fault_current(sim: Simulation, end: str, st: SettingsResult, *, model: R
 
 
 def equipment_checks(sim: Simulation, end: str, st: SettingsResult, *, study: Study,
-                     model: RelayModel) -> list[ZoneVerification]:
-    """The CT rating and the minimum fault current of the relay at ``end``."""
+                     model: RelayModel, below: int) -> list[ZoneVerification]:
+    """The CT rating and the minimum fault current of the relay at ``end`` (``below``: see
+    :func:`min_fault_current`)."""
     out = []
     if study.relay is not None and study.load is not None:
         out.append(ct_rating(study, end))
-    out.append(min_fault_current(sim, end, st, model=model,
+    out.append(min_fault_current(sim, end, st, model=model, below=below,
                                  tower_ohm=study.fault_resistance.tower_footing_resistance))
     return out
