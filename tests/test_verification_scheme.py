@@ -313,6 +313,11 @@ def test_report_lists_accepted_deviations(variant, tmp_path):
     ctx = _verification(res)
     assert ctx["verdict"] == "verified with accepted deviations"
     assert [x["check"] for x in ctx["deviations"]] == [c for _, c in fails]
+    # each accepted failure's row says so
+    details = [f["detail"] for z in ctx["zones"] for f in z["fails"]]
+    assert len(details) == len(fails)
+    assert all("accepted deviation (A. Reviewer, 2026-11-30): <b>tap</b> & memo" in x
+               for x in details)
     from relayset.report.context import build_context
     from relayset.report.html import render_html
 
@@ -523,3 +528,23 @@ def test_current_reversal_case_resolved_by_the_solver(blocking):
     assert 2.0 in env["r_ground_ohm"] and 0.0 in env["transfer_angles_deg"]
     c = _checks(d, "Elsford")["reverse.covers_current_reversal_on_parallel_circuit"]
     assert c["result"] == "FAIL" and c["cases_failed"] >= 1
+
+
+@pytest.mark.parametrize("text, field, value", [
+    ('[scheme]\nkind = "permissive"\n', "scheme.kind", '"permissive"'),
+    ('[zone2]\ngrading = "time_graded"\ncheck_adjacent_zone1 = true\n', "zone2.grading",
+     '"time_graded"'),
+    ('[zone2]\nadjacent_zone1_clearing_s = "0.1 s"\n', "zone2.adjacent_zone1_clearing_s",
+     '"0.1 s"'),
+])
+def test_bad_philosophy_file_one_line_exit_2_nothing_written(capsys, tmp_path, variant, text,
+                                                              field, value):
+    ph = tmp_path / "utility.toml"
+    ph.write_text(text, "utf-8")
+    path = variant(D132, lambda d: d["study"].update(philosophy=str(ph)))
+    out = tmp_path / "x.json"
+    capsys.readouterr()
+    assert main(["settings", str(path), "--json", str(out)]) == 2
+    err = capsys.readouterr().err.strip()
+    assert not out.exists() and len(err.splitlines()) == 1 and "Traceback" not in err
+    assert f"{ph}: {field} = {value}: " in err, err

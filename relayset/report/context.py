@@ -579,7 +579,12 @@ def _verification(r) -> dict[str, Any]:
                             f"{g['r_fault_ohm']:.3g} ohm, {g['source_case']}, parallel "
                             f"{g['parallel_state']}, {g['earth_resistivity_ohm_m']:g} ohm*m, "
                             f"loop {g['loop']}")
-                fails.append({"case": case, "detail": str(c.get("consider", ""))})
+                detail = str(c.get("consider", ""))
+                dev = c.get("accepted_deviation")
+                if dev:  # the study accepts this failure (results/verification.py)
+                    detail += (f"; accepted deviation ({dev.get('accepted_by', '')}, "
+                               f"{dev.get('date', '')}): {dev.get('reason', '')}")
+                fails.append({"case": case, "detail": detail})
             zones.append({
                 "end": str(e.get("end", "")),
                 "zone": f"{c.get('zone', '')} {c.get('check_id', '')}",
