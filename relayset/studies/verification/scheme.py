@@ -124,14 +124,17 @@ def reverse_cover(st: SettingsResult, zr: ZoneSetting, remote: SettingsResult, t
                                 f"zone 2 at {other} does not reach past this bus", 0, 0,
                                 None, t if judged else None, True, None)
     p = -over * cmath.exp(1j * st.line_angle_rad)
-    s = float(zr.reach_scale(np.array([p]), st.line_angle_rad)[0])
+    # phase and ground loops alike must see it: the larger of the two scales
+    s = max(float(zr.characteristic(g, st.line_angle_rad).reach_scale(np.array([p]))[0])
+            for g in (False, True))
     margin = (1 - s) * 100 if math.isfinite(s) else None
     ok = margin is not None and margin >= t - 1e-9
     why = _scheme_reason(scheme)
     return ZoneVerification(
         "reverse", "covers_remote_zone2",
         f"the reverse zone covers zone 2 of the relay at {other} where it reaches past this "
-        f"bus ({over:.4g} Ω along the line angle) with {t:g} % margin ({why})",
+        f"bus ({over:.4g} Ω along the line angle), phase and ground loops, with {t:g} % "
+        f"margin ({why})",
         1, 0 if ok or not judged else 1, margin, t if judged else None, ok or not judged,
         None,
         "" if ok else "lengthen the reverse zone to cover the remote zone 2 overreach with "
