@@ -75,7 +75,7 @@ def test_reach_study_of_many_sections_equals_the_unchunked_computation(name, var
     # Identity: a route of 300 sections with shunt capacitance (double and single circuit)
     # gives the same reach study, number for number, as the plain product over every part.
     path = variant(name, lambda d: route_sections(d, 300))
-    got = study_reach(path).reach.to_dict()
+    got = study_reach(path).reach_study.to_dict()
     _unchunked(monkeypatch)
-    want = study_reach(path).reach.to_dict()
+    want = study_reach(path).reach_study.to_dict()
     np.testing.assert_equal(got, want)  # exact; NaN (loops that see nothing) equals NaN

@@ -62,7 +62,7 @@ def test_params_loads_no_heavy_library_and_no_later_study_step():
 
 
 @pytest.mark.parametrize("command, demo", [
-    ("reach", DEMO), ("settings", DEMO.with_name("kessler_oxbow_115kv.toml"))])  # verifies
+    ("reach", DEMO), ("settings", DEMO.with_name("ashcombe_brenwick_132kv.toml"))])  # verifies
 def test_reach_and_settings_load_no_heavy_library(command, demo):
     mods = _modules_after([command, str(demo)])
     for pkg in (*HEAVY, "numpy.ma"):  # numpy.ma: np.unique loads it (about 10 ms)

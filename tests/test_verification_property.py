@@ -99,7 +99,7 @@ def test_no_unreported_zone1_operation_at_the_remote_bus(tmp_path_factory, lengt
         s2 = replace(study, system=replace(study.system, earth_resistivity=rho))
         geo = build_geometry(s2, str(path))
         p = compute_parameters(geo)
-        lines[rho] = _cascade(p.z_position_ohm_per_m, p.y_position_s_per_m,
+        lines[rho] = _cascade(p.z_by_position_ohm_per_m, p.y_by_position_s_per_m,
                               [list(o) for o in geo.section_orders], geo.section_lengths_m,
                               study.reach_study.shunt_capacitance)
     flows = [complex(*f) * 1e6 for f in env["max_load_exported_at_each_end_mva"]]

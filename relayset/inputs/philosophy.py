@@ -60,6 +60,10 @@ NonNeg = _number(ge=0)
 Seconds = _number(ge=0)
 Factor = _number(gt=0)
 Infeed = schema.one_of("given", "computed", prefix="must")
+#: How zone 2 is graded with the protection of the adjacent lines.
+ZONE2_GRADINGS = ("short_of_adjacent_zone1", "time_graded")
+#: Communication schemes (plain words; see the default philosophy file).
+SCHEMES = ("none", "permissive_underreach", "permissive_overreach", "blocking")
 
 
 @dataclass(frozen=True, kw_only=True)
@@ -85,6 +89,12 @@ class Zone2Philosophy:
     infeed: str = spec(Infeed)
     infeed_factor: float = spec(Factor)
     delay_s: float = spec(Seconds)
+    #: "short_of_adjacent_zone1" or "time_graded" (against the adjacent line's zone 2)
+    grading: str = spec(schema.one_of(*ZONE2_GRADINGS, prefix="must"))
+    grading_margin_s: float = spec(Seconds)  #: coordination time interval [s]
+    adjacent_zone1_clearing_s: float = spec(Seconds)  #: adjacent zone 1 + breaker [s]
+    adjacent_zone2_pct: float = spec(Pct)  #: adjacent zone 2 reach [% of that line]
+    adjacent_zone2_delay_s: float = spec(Seconds)  #: adjacent zone 2 delay [s]
 
 
 @dataclass(frozen=True, kw_only=True)
@@ -139,6 +149,27 @@ class LoadPhilosophy:
 
 
 @dataclass(frozen=True, kw_only=True)
+class SchemePhilosophy:
+    """The communication scheme the zones work in (what the verification asks of them)."""
+
+    kind: str = spec(schema.one_of(*SCHEMES, prefix="must"))
+    #: permissive overreach: the reverse zone holds off the permissive trip after a current
+    #: reversal on a double circuit
+    current_reversal_guard: bool = spec(_boolean)
+
+    @property
+    def needs_reverse_cover(self) -> bool:
+        """The reverse zone must see every fault the remote zone 2 sees past this bus."""
+        return self.kind == "blocking" or (
+            self.kind == "permissive_overreach" and self.current_reversal_guard)
+
+    @property
+    def needs_zone1_overlap(self) -> bool:
+        """Zone 1 of the two ends together must cover the whole line."""
+        return self.kind == "permissive_underreach"
+
+
+@dataclass(frozen=True, kw_only=True)
 class Philosophy:
     """A complete, validated setting philosophy (frozen)."""
 
@@ -149,6 +180,7 @@ class Philosophy:
     characteristic: CharacteristicPhilosophy = spec(schema.table(CharacteristicPhilosophy))
     resistive: ResistivePhilosophy = spec(schema.table(ResistivePhilosophy))
     load: LoadPhilosophy = spec(schema.table(LoadPhilosophy))
+    scheme: SchemePhilosophy = spec(schema.table(SchemePhilosophy))
 
     def to_dict(self) -> dict[str, Any]:
         """The philosophy as nested plain data (the same keys as the TOML file)."""
@@ -156,7 +188,7 @@ class Philosophy:
 
     def with_changes(self, changes: Mapping[str, Any], source: str = "<changes>") -> "Philosophy":
         """A new philosophy with some keys replaced (validated like a file)."""
-        return _build(_merge(self.to_dict(), changes, source), source)
+        return _build(_merge(self.to_dict(), _reconcile(changes), source), source)
 
 
 def _default_text() -> str:
@@ -194,6 +226,23 @@ def _merge(base: dict[str, Any], user: Mapping[str, Any], source: str, path: str
     return out
 
 
+def _reconcile(user: Mapping[str, Any]) -> Mapping[str, Any]:
+    """``zone2.grading`` and the older ``zone2.check_adjacent_zone1`` say one thing: where a
+    file writes only one of them, the other follows it (files written before ``grading``
+    existed keep their meaning: ``check_adjacent_zone1 = false`` is a time-graded zone 2)."""
+    z2 = user.get("zone2") if isinstance(user, Mapping) else None
+    if not isinstance(z2, Mapping) or ("grading" in z2) == ("check_adjacent_zone1" in z2):
+        return user
+    z2 = dict(z2)
+    if "grading" in z2:
+        if z2["grading"] in ZONE2_GRADINGS:
+            z2["check_adjacent_zone1"] = z2["grading"] == "short_of_adjacent_zone1"
+    elif isinstance(z2["check_adjacent_zone1"], bool):
+        z2["grading"] = ("short_of_adjacent_zone1" if z2["check_adjacent_zone1"]
+                         else "time_graded")
+    return {**user, "zone2": z2}
+
+
 def _build(data: dict[str, Any], source: str) -> Philosophy:
     try:
         ph = schema.validate(Philosophy, data)
@@ -222,6 +271,12 @@ def _check_rules(ph: Philosophy, source: str) -> None:
                 value=value,
                 source=source,
             )
+    if z2.check_adjacent_zone1 != (z2.grading == "short_of_adjacent_zone1"):
+        raise InputError(
+            f"contradicts zone2.check_adjacent_zone1 = {str(z2.check_adjacent_zone1).lower()} "
+            "(a zone 2 short of the adjacent zone 1 is checked against it; a time-graded one "
+            "is not): write one of the two", field="zone2.grading", value=z2.grading,
+            source=source)
     # Each zone must wait for the faster one in front of it to clear the fault first.
     delays = [("zone2.delay_s", z2.delay_s, z1.delay_s, "zone1.delay_s"),
               ("zone3.delay_s", z3.delay_s, z2.delay_s, "zone2.delay_s")]
@@ -249,7 +304,7 @@ def philosophy_from_dict(data: Mapping[str, Any], source: str = "<philosophy>") 
     -------
     Philosophy
     """
-    return _build(_merge(_default_data(), data, source), source)
+    return _build(_merge(_default_data(), _reconcile(data), source), source)
 
 
 def load_philosophy(path: str | Path) -> Philosophy:

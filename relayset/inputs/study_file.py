@@ -386,8 +386,31 @@ def _ratio(v: Any, unit: str, what: str) -> float:
     return r
 
 
-def _ct_ratio(v: Any) -> float:
-    return _ratio(v, "A", "CT")
+class CtRatio(float):
+    """A CT ratio (primary over secondary) that remembers its primary rating [A].
+
+    Written as ``"1200/1 A"`` or ``"1200/5"`` the primary is the rated primary current
+    (1200 A); a bare number is the ratio alone, with no rating to check the load against.
+    """
+
+    primary_a: float | None
+
+    def __new__(cls, ratio: float, primary_a: float | None) -> CtRatio:
+        obj = super().__new__(cls, ratio)
+        obj.primary_a = primary_a
+        return obj
+
+    def __reduce__(self):  # pickled (fleet workers) with its rating
+        return (CtRatio, (float(self), self.primary_a))
+
+
+def _ct_ratio(v: Any) -> CtRatio:
+    r = _ratio(v, "A", "CT")
+    primary = None
+    if isinstance(v, str):
+        m = re.match(rf"^\s*({units.NUMBER})\s*[/:]", v)
+        primary = float(m.group(1)) if m else None
+    return CtRatio(r, primary)
 
 
 def _vt_ratio(v: Any) -> float:
@@ -431,6 +454,15 @@ class RelayData:
     ground_release_current: float = spec(SecondaryCurrent, 0.05)
     #: mutual compensation only while the own residual current is the larger
     mutual_compensation_supervision: bool = spec(schema.boolean, True)
+    #: continuous thermal current rating factor of the CTs (IEEE Std C57.13 rating factors
+    #: 1.0 to 4.0; 1.0 the common practice default, no source)
+    ct_rating_factor: float = spec(_number(ge=1, le=4), 1.0)
+
+    def ct_primary_a(self, end: str) -> float | None:
+        """Rated primary current of the CT at ``end`` [A]; None where only a ratio is given."""
+        own = self.at.get(end)
+        ct = own.ct_ratio if own is not None and own.ct_ratio is not None else self.ct_ratio
+        return getattr(ct, "primary_a", None)
 
     def ratios(self, end: str) -> tuple[float, float]:
         """(CT ratio, VT ratio) of the relay at ``end``."""
@@ -602,6 +634,39 @@ class FaultResistanceData:
     ground_arc_length: float | None = spec(_quantity("length", gt=0, le=100.0), None)
 
 
+def _said(max_len: int) -> Callable[[Any], str]:
+    """Text that says something: not empty, not only spaces."""
+    base = _text(max_len, min_len=1)
+
+    def check(v: Any) -> str:
+        v = base(v)
+        if not v.strip():
+            raise ValueError("must not be blank")
+        return v
+
+    return check
+
+
+def _check_name(v: Any) -> str:
+    """A check as the verification JSON names it: zone and check id, "zone2.covers_whole_line"."""
+    v = _text(200, min_len=1)(v)
+    if not re.fullmatch(r"[a-z0-9_]+\.[a-z0-9_]+", v):
+        raise ValueError("must name a check as the verification does, zone and check id "
+                         "joined by a dot (e.g. \"zone2.covers_whole_line\")")
+    return v
+
+
+@_table
+class Deviation:
+    """``[[deviations]]``: a failed check of the verification accepted, with who and why."""
+
+    check: str = spec(_check_name)
+    end: str = spec(_text(100, min_len=1))  #: the relay end whose check failed
+    reason: str = spec(_said(2000))
+    accepted_by: str = spec(_said(100))
+    date: dt.date = spec(schema.date)
+
+
 @_table
 class Study:
     """A whole study file, validated, SI inside."""
@@ -628,6 +693,7 @@ class Study:
         table(AdjacentLine), max_items=limits.MAX_ADJACENT_LINES, what="lines"), ())
     fault_resistance: FaultResistanceData = spec(table(FaultResistanceData),
                                                  factory=FaultResistanceData)
+    deviations: tuple[Deviation, ...] = spec(ListOf(table(Deviation), what="deviations"), ())
 
     @property
     def ends(self) -> tuple[str, str]:
@@ -888,6 +954,11 @@ def check_study(study: Study, data: dict, source: str) -> None:
             if key not in ends:
                 fail(no_end + suggest(key, ends), f"relay.at.{_key(key)}",
                      _raw(data, "relay", "at", key))
+    for k, dev in enumerate(study.deviations):
+        if dev.end not in study.relay_ends:
+            where = ", ".join(quote(e) for e in study.relay_ends) or "none: no [relay] table"
+            fail(f"names no relay end of this study (relay ends: {where})"
+                 + suggest(dev.end, study.relay_ends), f"deviations[{k}].end", dev.end)
     for key in study.sources:
         if key not in ends:
             fail(no_end + suggest(key, ends), f"sources.{_key(key)}", _raw(data, "sources", key))

@@ -489,6 +489,13 @@ def _zone(name: str, z: dict[str, Any]) -> dict[str, Any]:
     }
 
 
+def _mutual_supervision(m: dict[str, Any] | None) -> str | None:
+    """The issued mutual-compensation supervision in words (None: no mutual compensation)."""
+    if not m:
+        return None
+    return f"{'on' if m.get('on') else 'off'}: {m.get('criterion', '')}"
+
+
 def _settings_ends(d: dict[str, Any]) -> list[dict[str, Any]]:
     """One block per relay end, in the order of the results (``settings.ends``)."""
     if d.get("settings") is None:
@@ -520,6 +527,7 @@ def _settings_ends(d: dict[str, Any]) -> list[dict[str, Any]]:
             "z0z1_mag": num(k0["z0_over_z1"]["magnitude"], P["pu"]),
             "z0z1_ang": num(k0["z0_over_z1"]["angle_deg"], P["deg"]),
             "k0m": None if s["k0m"] is None else pnum(s["k0m"], P["pu"]),
+            "mutual_supervision": _mutual_supervision(s.get("mutual_compensation_supervision")),
             "load_zmin_pri": num(load["z_min_primary_ohm"], P["ohm"]),
             "load_zmin_sec": num(load["z_min_secondary_ohm"], P["ohm"]),
             "load_angle": num(load["load_angle_max_deg"], P["deg"]),
@@ -571,7 +579,12 @@ def _verification(r) -> dict[str, Any]:
                             f"{g['r_fault_ohm']:.3g} ohm, {g['source_case']}, parallel "
                             f"{g['parallel_state']}, {g['earth_resistivity_ohm_m']:g} ohm*m, "
                             f"loop {g['loop']}")
-                fails.append({"case": case, "detail": str(c.get("consider", ""))})
+                detail = str(c.get("consider", ""))
+                dev = c.get("accepted_deviation")
+                if dev:  # the study accepts this failure (results/verification.py)
+                    detail += (f"; accepted deviation ({dev.get('accepted_by', '')}, "
+                               f"{dev.get('date', '')}): {dev.get('reason', '')}")
+                fails.append({"case": case, "detail": detail})
             zones.append({
                 "end": str(e.get("end", "")),
                 "zone": f"{c.get('zone', '')} {c.get('check_id', '')}",
@@ -582,7 +595,10 @@ def _verification(r) -> dict[str, Any]:
                 # the adjacent line at the largest infeed) is printed in full
                 "reported": _reported(c),
             })
-    return {"verdict": str(vd.get("verdict", NOT_VERIFIED)), "present": True, "zones": zones}
+    return {"verdict": str(vd.get("verdict", NOT_VERIFIED)), "present": True, "zones": zones,
+            "deviations": [{k: str(x.get(k, "")) for k in
+                            ("end", "check", "reason", "accepted_by", "date")}
+                           for x in vd.get("accepted_deviations") or []]}
 
 
 def build_context(results, *, units: str = "si", paper: str = "a4",

@@ -32,6 +32,11 @@ def settings_rows(t: SettingsResult) -> list[tuple[str, float | str, str]]:
             ("Mutual compensation factor k0m, angle", math.degrees(cmath.phase(t.k0m)),
              deg),
         ]
+    if t.mutual_supervision is not None:
+        rows += [
+            ("Mutual compensation supervision", "on" if t.mutual_supervision.on else "off", ""),
+            ("Mutual compensation supervision criterion", t.mutual_supervision.criterion, ""),
+        ]
     for z in t.zones:
         n = ZONE_LABELS[z.zone]
         rows += [

@@ -142,6 +142,26 @@ class SourceEnd:
     role: str = "relay"  #: "relay" (behind the relay) or "remote"
 
 
+#: The supervision criterion the relay model applies (relay_model.view) and the settings issue.
+MUTUAL_SUPERVISION_CRITERION = (
+    "k0m added to the ground loops only while the protected circuit's residual current is "
+    "at least the parallel circuit's")
+
+
+@dataclass(frozen=True)
+class MutualSupervision:
+    """Mutual-compensation supervision as issued (``relay.mutual_compensation_supervision``)."""
+
+    on: bool
+
+    @property
+    def criterion(self) -> str:
+        return MUTUAL_SUPERVISION_CRITERION if self.on else "k0m added in every case"
+
+    def to_dict(self) -> dict[str, Any]:
+        return {"on": self.on, "criterion": self.criterion}
+
+
 @dataclass(frozen=True)
 class SettingsResult:
     """Computed distance-zone settings of the relay at one line end."""
@@ -160,6 +180,8 @@ class SettingsResult:
     sources: tuple[SourceEnd, ...]
     arc_current_a: float | None
     warnings: tuple[SettingWarning, ...] = field(default=())
+    #: supervision of mutual compensation, issued with k0m (None: no mutual compensation)
+    mutual_supervision: MutualSupervision | None = None
 
     def zone(self, name: str) -> ZoneSetting:
         """The zone called ``"zone1"``, ``"zone2"``, ``"zone3"`` or ``"reverse"``."""
@@ -231,6 +253,8 @@ class SettingsResult:
             },
             "k0": self.k0.to_dict(),
             "k0m": None if self.k0m is None else polar(self.k0m),
+            "mutual_compensation_supervision": None if self.mutual_supervision is None
+            else self.mutual_supervision.to_dict(),
             "load": {
                 "z_min_primary_ohm": self.load.z_min_primary_ohm,
                 "z_min_secondary_ohm": self.load.z_min_secondary_ohm,

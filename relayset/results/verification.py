@@ -12,7 +12,22 @@ from typing import Any
 
 from relayset.results.serialize import cplx
 
-VERDICTS = ("verified", "failed checks", "not verified")
+VERDICTS = ("verified", "verified with accepted deviations", "failed checks", "not verified")
+
+
+@dataclass(frozen=True)
+class AcceptedDeviation:
+    """A failed check the study accepts (``[[deviations]]``): who, when and why."""
+
+    check: str  #: "zone.check_id", e.g. "zone2.covers_whole_line"
+    end: str  #: the relay end
+    reason: str
+    accepted_by: str
+    date: str  #: ISO date
+
+    def to_dict(self) -> dict[str, Any]:
+        return {"check": self.check, "end": self.end, "reason": self.reason,
+                "accepted_by": self.accepted_by, "date": self.date}
 
 
 @dataclass(frozen=True)
@@ -65,6 +80,13 @@ class ZoneVerification:
     consider: str = ""  #: what to do when it fails
     #: cases left out because no loop reached the relay's release currents (sensitivity)
     cases_below_min_current: int = 0
+    #: the study's acceptance of this check's failure, if any
+    deviation: AcceptedDeviation | None = None
+
+    @property
+    def check(self) -> str:
+        """The check's name as deviations and the JSON name it: "zone.check_id"."""
+        return f"{self.zone}.{self.check_id}"
 
     def to_dict(self) -> dict[str, Any]:
         return {
@@ -81,6 +103,7 @@ class ZoneVerification:
             else self.governing_case.to_dict(),
             "consider": self.consider,
             "cases_below_min_current": self.cases_below_min_current,
+            "accepted_deviation": None if self.deviation is None else self.deviation.to_dict(),
         }
 
 
@@ -143,10 +166,17 @@ class VerificationResult:
     notes: tuple[str, ...] = ()
     envelope: dict[str, Any] | None = None  #: what was swept (load, resistances, rho)
     relay_model: dict[str, Any] | None = None  #: per end, the relay the proof assumes
+    deviations: tuple[AcceptedDeviation, ...] = ()  #: failed checks the study accepts
 
     @property
     def failures(self) -> list[tuple[str, ZoneVerification]]:
+        """Failed checks, accepted deviations included."""
         return [(e.end, c) for e in self.ends for c in e.checks if not c.passed]
+
+    @property
+    def unaccepted_failures(self) -> list[tuple[str, ZoneVerification]]:
+        """Failed checks the study does not accept as deviations."""
+        return [(e, c) for e, c in self.failures if c.deviation is None]
 
     def end(self, name: str) -> EndVerification:
         for e in self.ends:
@@ -173,4 +203,5 @@ class VerificationResult:
             "notes": list(self.notes),
             "envelope": self.envelope,
             "relay_model": self.relay_model,
+            "accepted_deviations": [d.to_dict() for d in self.deviations],
         }

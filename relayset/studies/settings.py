@@ -4,7 +4,7 @@ from __future__ import annotations
 
 import math
 from collections.abc import Mapping
-from dataclasses import dataclass
+from dataclasses import dataclass, replace
 from pathlib import Path
 
 from relayset.errors import InputError
@@ -13,7 +13,7 @@ from relayset.inputs.study_file import Study, check_settings_inputs
 from relayset.results.parameters import LineParameters
 from relayset.results.reach import ReachStudyResult
 from relayset.results.relay import RelayBasis
-from relayset.results.settings import SettingsResult
+from relayset.results.settings import MutualSupervision, SettingsResult
 from relayset.settings.compute import compute_settings
 from relayset.settings.inputs import SettingsInputs
 from relayset.settings.simulated import (
@@ -186,6 +186,9 @@ def run_settings(study: Study, geo: LineGeometry, params: LineParameters, relay:
             res = compute_settings(inputs, philosophy)
         except InputError as exc:
             raise _in_study_terms(exc, source) from None
+        if res.k0m is not None:  # issued with k0m, as the verification's relay applies it
+            res = replace(res, mutual_supervision=MutualSupervision(
+                study.relay.mutual_compensation_supervision))
         out.append(_warn_unfed_remote_end(res, other) if src_remote is None else res)
     return tuple(out)
 

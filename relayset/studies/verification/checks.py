@@ -28,7 +28,6 @@ model's (:mod:`relayset.studies.verification.relay_model`).
 
 from __future__ import annotations
 
-import cmath
 import math
 from collections.abc import Sequence
 from dataclasses import dataclass, replace
@@ -36,6 +35,7 @@ from dataclasses import dataclass, replace
 import numpy as np
 
 from relayset.errors import InputError
+from relayset.inputs.philosophy import Philosophy, default_philosophy
 from relayset.inputs.study_file import Study
 from relayset.physics.arrays import unique_sorted
 from relayset.results.parameters import LineParameters
@@ -49,6 +49,7 @@ from relayset.results.verification import (
     ZoneVerification,
 )
 from relayset.studies.geometry import LineGeometry
+from relayset.studies.verification import deviations, equipment, scheme
 from relayset.studies.verification.envelope import Envelope, build_envelope
 from relayset.studies.verification.relay_model import (
     LOOPS,
@@ -207,8 +208,11 @@ def zone1_limit_pct(sim: Simulation, end: str, st: SettingsResult, tolerance_pct
 
 def verify_end(sim: Simulation, end: str, st: SettingsResult, *, study: Study,
                tolerance_pct: float, remote: SettingsResult | None, source: str,
-               model: RelayModel, zone2_adjacent_zone1_pct: float = 80.0) -> EndVerification:
-    """Every check of the zones of the relay at ``end``."""
+               model: RelayModel, zone2_adjacent_zone1_pct: float = 80.0,
+               philosophy: Philosophy | None = None) -> EndVerification:
+    """Every check of the zones of the relay at ``end`` (the zone 2 grading and the scheme
+    checks as ``philosophy`` states them; default: the default philosophy)."""
+    ph = _philosophy(philosophy, zone2_adjacent_zone1_pct)
     at_s = end == sim.names[0]
     other = sim.names[1] if at_s else sim.names[0]
     theta = st.line_angle_rad
@@ -216,7 +220,7 @@ def verify_end(sim: Simulation, end: str, st: SettingsResult, *, study: Study,
     t = tolerance_pct
     k0m = st.k0m if sim.mutual else None
     tower = study.fault_resistance.tower_footing_resistance
-    z1, z2, z3, zr = (st.zone(n) for n in ("zone1", "zone2", "zone3", "reverse"))
+    z1, z2, z3 = (st.zone(n) for n in ("zone1", "zone2", "zone3"))
     r1 = z1.reach_pct / 100
     acc = {k: _Acc(mo) for k, mo in (("z1_int", True), ("z2_int", True), ("z1_ext", False),
                                      ("z1_par", False), ("z1_par_nomut", False),
@@ -306,18 +310,22 @@ def verify_end(sim: Simulation, end: str, st: SettingsResult, *, study: Study,
         "zones 1 to 3 do not operate for faults at the relay's own bus (behind it)",
         acc["fwd_behind"], t, "check the directional element and the left blinder"))
     checks += _beyond_bus_checks(sim, end, st, study=study, tolerance_pct=t, source=source,
-                                 adjacent_zone1_pct=zone2_adjacent_zone1_pct)
+                                 philosophy=ph)
     checks += _load_check(st, z3, t)
     checks.append(_targets_inside(st))
-    if remote is not None:
-        checks.append(_reverse_check(st, zr, remote, t, other))
+    checks += equipment.equipment_checks(sim, end, st, study=study, model=model,
+                                         below=acc["z2_int"].n_insensitive)
+    checks += scheme.scheme_checks(sim, end, st, remote, philosophy=ph, t=t, tower_ohm=tower,
+                                   model=model, remote_model=relay_model_at(study, other),
+                                   other=other)
     lim = zone1_limit_pct(sim, end, st, t, 0.0, model,
                           worst=worst_bus if math.isfinite(worst_bus) else None)
     return EndVerification(end, tuple(checks), infeed_range(sim, end), lim)
 
 
-def _beyond_bus_checks(sim, end, st, *, study, tolerance_pct, source, adjacent_zone1_pct):
-    """Zone 2 against the adjacent zone 1 at minimum infeed; zone 3 coverage at maximum."""
+def _beyond_bus_checks(sim, end, st, *, study, tolerance_pct, source, philosophy):
+    """Zone 2 graded as the philosophy says (:mod:`.scheme`); zone 3 coverage at maximum
+    infeed."""
     from relayset.studies.settings import _lines_at
 
     names = sim.names
@@ -327,21 +335,8 @@ def _beyond_bus_checks(sim, end, st, *, study, tolerance_pct, source, adjacent_z
     if not lines or inf is None:
         return []
     theta = st.line_angle_rad
-    t = tolerance_pct
     z_l = st.line_z1_primary_ohm
-    out = []
-    name, zs = min(lines, key=lambda nl: abs(nl[1]))
-    p2 = z_l + inf.k_min * adjacent_zone1_pct / 100 * zs
-    s2 = float(st.zone("zone2").reach_scale(np.array([p2]), theta)[0])
-    margin = (s2 - 1) * 100 if math.isfinite(s2) else None
-    ok = margin is None or margin >= t - 1e-9
-    out.append(ZoneVerification(
-        "zone2", "short_of_adjacent_zone1_at_min_infeed",
-        f"zone 2 stays short of the end of zone 1 of '{name}' ({adjacent_zone1_pct:g} % of it, "
-        f"from {remote_bus}) at the minimum infeed K = {abs(inf.k_min):.3g} ({inf.case_min}) "
-        f"with {t:g} % margin", 1, 0 if ok else 1, margin, t, ok, None,
-        "" if ok else "shorten zone 2 (graded at minimum infeed), or grade it in time with "
-        "the adjacent line's zone 2"))
+    out = scheme.zone2_grading(st, philosophy.zone2, lines, inf, tolerance_pct, remote_bus)
     name3, z3l = max(lines, key=lambda nl: abs(nl[1]))
     zone3 = st.zone("zone3")
     # Largest fraction x of the longest adjacent line inside zone 3 at maximum infeed.
@@ -361,6 +356,16 @@ def _beyond_bus_checks(sim, end, st, *, study, tolerance_pct, source, adjacent_z
         "own protection and on breaker-failure protection"))
     out[-1] = replace(out[-1], required_margin_pct=None)  # reported, not judged
     return out
+
+
+def _philosophy(ph: Philosophy | None, adjacent_zone1_pct: float) -> Philosophy:
+    """The philosophy the checks follow (older callers give only the adjacent zone 1 %)."""
+    if ph is not None:
+        return ph
+    base = default_philosophy()
+    if adjacent_zone1_pct == base.zone2.adjacent_zone1_pct:
+        return base
+    return base.with_changes({"zone2": {"adjacent_zone1_pct": adjacent_zone1_pct}})
 
 
 def _targets_inside(st: SettingsResult) -> ZoneVerification:
@@ -417,27 +422,6 @@ def _load_check(st: SettingsResult, z3: ZoneSetting, t: float) -> list[ZoneVerif
         f"at load angles within ±{math.degrees(phi):g}° (both directions) with {t:g} % margin",
         ang.size, int(np.count_nonzero(s < 1 + t / 100)), margin, t, ok, None,
         "" if ok else "shorten zone 3 or add load-encroachment blocking")]
-
-
-def _reverse_check(st: SettingsResult, zr: ZoneSetting, remote: SettingsResult, t: float,
-                   other: str) -> ZoneVerification:
-    """The reverse zone covers the remote end's zone 2 where it reaches past this bus."""
-    over = abs(remote.zone("zone2").reach_primary_ohm) - abs(remote.line_z1_primary_ohm)
-    if over <= 0:
-        return ZoneVerification("reverse", "covers_remote_zone2",
-                                f"zone 2 at {other} does not reach past this bus", 0, 0,
-                                None, t, True, None)
-    p = -over * cmath.exp(1j * st.line_angle_rad)
-    s = float(reach_scale(np.array([p]), zr, False, st.line_angle_rad)[0])
-    margin = (1 - s) * 100 if math.isfinite(s) else None
-    ok = margin is not None and margin >= t - 1e-9
-    return ZoneVerification(
-        "reverse", "covers_remote_zone2",
-        f"the reverse zone covers zone 2 of the relay at {other} where it reaches past this "
-        f"bus ({over:.4g} Ω along the line angle) with {t:g} % margin",
-        1, 0 if ok else 1, margin, t, ok, None,
-        "" if ok else "lengthen the reverse zone to cover the remote zone 2 overreach with "
-        "margin (needed for blocking schemes and as local backup)")
 
 
 # --------------------------------------------------------------------------- entry point
@@ -514,6 +498,7 @@ def relay_model_at(study: Study, end: str) -> RelayModel:
 def verify_settings(study: Study, geo: LineGeometry, params_by_rho: dict[float, LineParameters],
                     settings_by_end: dict[str, SettingsResult], *, source: str,
                     zone2_adjacent_zone1_pct: float = 80.0,
+                    philosophy: Philosophy | None = None,
                     ends: Sequence[str] | None = None,
                     envelope: Envelope | None = None,
                     simulation: Simulation | None = None) -> VerificationResult:
@@ -558,14 +543,10 @@ def verify_settings(study: Study, geo: LineGeometry, params_by_rho: dict[float, 
         results.append(verify_end(sim, end, st, study=study, tolerance_pct=t,
                                   remote=settings_by_end.get(other), source=source,
                                   model=models[end],
-                                  zone2_adjacent_zone1_pct=zone2_adjacent_zone1_pct))
-    failed = [(e.end, c) for e in results for c in e.checks if not c.passed]
-    if failed:
-        verdict = "failed checks"
-        reason = f"{len(failed)} check(s) failed: " + "; ".join(
-            f"{e} {c.zone} {c.check_id}" for e, c in failed[:4])
-    else:
-        verdict, reason = "verified", "every check passed in every simulated case"
+                                  zone2_adjacent_zone1_pct=zone2_adjacent_zone1_pct,
+                                  philosophy=philosophy))
+    results, accepted = deviations.apply_deviations(study, results, source)
+    verdict, reason = deviations.verdict(results, accepted)
     n_cases = sim.n_cases
     notes = (
         "Zones tested as set (primary ohms) against the phase-domain solution of the real "
@@ -584,6 +565,7 @@ def verify_settings(study: Study, geo: LineGeometry, params_by_rho: dict[float, 
         "moves faults further out); zone 2 and 3 are judged at Z_line + K Z_adjacent with K "
         "from the simulated remote-bus faults.",
         f"Verification tolerance {t:g} % (the study's error budget).",
+        scheme.describe(_philosophy(philosophy, zone2_adjacent_zone1_pct)),
         *_resistive_basis(study, geo, settings_by_end),
     )
     return VerificationResult(
@@ -591,7 +573,8 @@ def verify_settings(study: Study, geo: LineGeometry, params_by_rho: dict[float, 
         parallel_states=sim.states, source_cases=sim.case_names,
         earth_resistivities_ohm_m=sim.resistivities, cases_solved=n_cases, notes=notes,
         envelope=env.to_dict(),
-        relay_model={end: mdl.to_dict() for end, mdl in models.items()})
+        relay_model={end: mdl.to_dict() for end, mdl in models.items()},
+        deviations=accepted)
 
 
 def _resistive_basis(study: Study, geo: LineGeometry, settings_by_end) -> tuple[str, ...]:

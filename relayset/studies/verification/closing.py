@@ -192,7 +192,8 @@ def settle_and_verify(study: Study, geo: LineGeometry, params: LineParameters, r
     del sim0
     ver = verify_settings(study, geo, by_rho, final, source=source,
                           zone2_adjacent_zone1_pct=philosophy.zone2.adjacent_zone1_pct,
-                          ends=wanted, envelope=env, simulation=sim)
+                          philosophy=philosophy, ends=wanted, envelope=env,
+                          simulation=sim)
     ends = []
     for e in ver.ends:
         checks = list(e.checks)

@@ -43,7 +43,12 @@ from relayset.physics import measurement
 from relayset.physics.faults import check_fault_type
 from relayset.physics.sequence import fortescue_inverse
 from relayset.results.settings import ZoneSetting
-from relayset.studies.verification.simulation import Run, infeed_samples, lighten
+from relayset.studies.verification.simulation import (
+    Run,
+    infeed_samples,
+    largest_phase_current,
+    lighten,
+)
 
 #: Below this fraction of |Z_line| a loop impedance is left to memory polarization [1].
 Z_SMALL = 1e-3
@@ -275,6 +280,8 @@ class Measure:
                        float(theta))
                 light.views[key] = None if v is None else replace(v, run=bare)
             light.infeed[at_s] = infeed_samples(run, at_s)
+            if run.faulted == "protected":
+                light.i_max[at_s] = largest_phase_current(run, at_s)
         for at_s in self.infeed_only:
             light.infeed[at_s] = infeed_samples(run, at_s)
         return light

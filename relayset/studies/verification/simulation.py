@@ -48,6 +48,8 @@ class Run:
     views: dict = field(default_factory=dict)
     #: Per end (True: S), the infeed samples of :func:`infeed_samples`, once measured.
     infeed: dict = field(default_factory=dict)
+    #: Per end (True: S), the largest phase current of each case [A], once measured.
+    i_max: dict = field(default_factory=dict)
 
     @property
     def n_cases(self) -> int:
@@ -93,7 +95,17 @@ BULK = ("v_s", "i_s", "i_s_parallel", "v_r", "i_r", "i_r_parallel", "v_f", "i_fa
 def lighten(run: Run) -> Run:
     """The run without its phase quantities (after measuring: see the module notes)."""
     return replace(run, sweep=replace(run.sweep, **dict.fromkeys(BULK)), views={},
-                   infeed={})
+                   infeed={}, i_max={})
+
+
+def largest_phase_current(run: Run, at_s: bool) -> np.ndarray:
+    """The largest phase current of each case at the relay at S (``at_s``) or R [A],
+    (F, M, Rf, K, L): what the minimum operating current is compared with."""
+    if at_s in run.i_max:
+        return run.i_max[at_s]
+    if run.measured:
+        raise RuntimeError("this run was measured without the relay currents of that end")
+    return np.max(np.abs(run.sweep.i_s if at_s else run.sweep.i_r), axis=-1)
 
 
 def infeed_samples(run: Run, at_s: bool) -> list[tuple[complex, str]]:
