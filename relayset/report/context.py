@@ -654,6 +654,8 @@ def build_context(results, *, units: str = "si", paper: str = "a4",
     # the embedded files against the metadata as well as against the printed page.
     ctx["keywords"] += (f", study file SHA-256 {ctx['source_sha256']}, results JSON SHA-256 "
                         f"{ctx['results_sha256']}")
+    # and how the pages were made, so that verify can make them again from the embedded files
+    ctx["keywords"] += f", units {units}, paper {paper}"
     ctx["figures"] = plots.figures(results, d, ctx)
     return ctx
 
