@@ -155,15 +155,32 @@ def check_annotations(a: Archive, r: Archive) -> Check:
                  f"{named}")
 
 
+def _first_revision_metadata(a: Archive) -> dict[str, str]:
+    """Document information and XMP of the report as written (its first revision)."""
+    import io
+
+    from pypdf import PdfReader
+
+    from relayset.archive.pdf import _lib, _metadata, _pdf_limits
+
+    ends = revision_ends(a.data)
+    with _pdf_limits():
+        return _lib(lambda: _metadata(PdfReader(io.BytesIO(a.data[:ends[0]]))), a.source)
+
+
 def check_metadata(a: Archive, r: Archive, *, signed: bool) -> Check:
-    """Document information and XMP against the re-rendering's (a signature's update may
-    set the modification date and producer)."""
+    """Document information and XMP against the re-rendering's. A signature's update sets
+    the modification date and producer and rewrites the XMP with them: for a signed report
+    the document information is checked but for those two keys, and the XMP as the report
+    was written (its first revision; later revisions are signatures, checked apart)."""
     keys = sorted(set(a.metadata) | set(r.metadata))
+    first = _first_revision_metadata(a) if signed else a.metadata
     differ = []
     for key in keys:
         if signed and key in SIGNING_MAY_CHANGE:
             continue
-        got, want = a.metadata.get(key), r.metadata.get(key)
+        got = (first if key == "xmp" else a.metadata).get(key)
+        want = r.metadata.get(key)
         if got != want:
             name = "XMP metadata" if key == "xmp" else key.lstrip("/")
             if key == "xmp":

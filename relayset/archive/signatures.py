@@ -26,7 +26,7 @@ from relayset.errors import InputError
 
 #: The roles in the order they sign, and the name of each one's field in the PDF.
 ROLES = ("prepared", "checked", "approved")
-FIELDS = {role: f"relayset.{role}" for role in ROLES}
+FIELDS = {role: f"relayset_{role}" for role in ROLES}
 
 
 @dataclass(frozen=True)
@@ -61,7 +61,7 @@ def _quiet() -> None:
     """pyHanko logs validation warnings with tracebacks: verify prints its own verdict."""
     import logging
 
-    for name in ("pyhanko", "pyhanko_certvalidator"):
+    for name in ("pyhanko", "pyhanko_certvalidator", "fontTools"):
         logging.getLogger(name).setLevel(logging.CRITICAL)
 
 
@@ -81,7 +81,15 @@ def read_signatures(data: bytes, trust: list[Path] | None = None) -> list[Signat
     out = []
     for sig in reader.embedded_signatures:
         ctx = ValidationContext(trust_roots=roots, allow_fetching=False) if roots else None
-        status = validate_pdf_signature(sig, ctx) if ctx else validate_pdf_signature(sig)
+        try:
+            status = validate_pdf_signature(sig, ctx) if ctx else validate_pdf_signature(sig)
+        except Exception as exc:  # the library's, on a damaged or hostile signature
+            out.append(Signature(
+                field=str(sig.field_name), role=role_of.get(sig.field_name),
+                signer=f"(unreadable: {str(exc)[:100]})", time="(unknown)", intact=False,
+                valid=False, trusted=False if roots else None, whole=False,
+                later_changes="(unknown)", revision_end=_revision_end(sig)))
+            continue
         level = status.modification_level
         if status.coverage == SignatureCoverageLevel.ENTIRE_FILE:
             later = "none"
@@ -92,25 +100,70 @@ def read_signatures(data: bytes, trust: list[Path] | None = None) -> list[Signat
         cert = status.signing_cert
         name = cert.subject.native.get("common_name", cert.subject.human_friendly)
         when = status.signer_reported_dt
-        br = sig.sig_object["/ByteRange"]
         out.append(Signature(
             field=sig.field_name, role=role_of.get(sig.field_name), signer=str(name),
             time=when.strftime("%Y-%m-%dT%H:%M:%SZ") if when else "(none given)",
             intact=bool(status.intact), valid=bool(status.valid),
             trusted=bool(status.trusted) if roots else None,
             whole=status.coverage == SignatureCoverageLevel.ENTIRE_FILE,
-            later_changes=later, revision_end=int(br[2]) + int(br[3])))
+            later_changes=later, revision_end=_revision_end(sig)))
     return out
 
 
+def _revision_end(sig) -> int:
+    """Where the revision a signature signs ends: the end of its byte range [offset]."""
+    try:
+        br = sig.sig_object["/ByteRange"]
+        return int(br[2]) + int(br[3])
+    except Exception:  # a malformed byte range: it ends nowhere a revision ends
+        return -1
+
+
 def signed_status(sigs: list[Signature]) -> str:
-    """The status the signatures give: the last role, in order, whose signature holds."""
-    held = {s.role for s in sigs if s.role is not None and s.ok and s.trusted}
+    """The status the signatures give: the last role, in order, whose signature holds
+    (intact, valid, nothing but signatures after it) and chains to the trust anchor; without
+    a trust anchor the status says that it was not checked."""
+    held = {s.role for s in sigs if s.role is not None and s.ok}
     status = "not signed"
     for role in ROLES:
         if role in held:
             status = role
+    if status != "not signed" and any(s.trusted is None for s in sigs):
+        status += " (no trust anchor given: who signed is not established)"
     return status
+
+
+def _font_file() -> str | None:
+    """An OpenType font file to draw the signature's appearance with (fontconfig's DejaVu
+    Sans, the report's own font), None when there is none."""
+    import shutil
+    import subprocess
+
+    if shutil.which("fc-match") is None:
+        return None
+    try:
+        out = subprocess.run(["fc-match", "-f", "%{file}", "DejaVu Sans"], check=True,
+                             capture_output=True, text=True, timeout=10).stdout.strip()
+    except (OSError, subprocess.SubprocessError):
+        return None
+    return out if out.lower().endswith((".ttf", ".otf")) and Path(out).is_file() else None
+
+
+def _stamp(role: str):
+    """The visible appearance of a signature: signer and time, in an embedded font (PDF/A
+    allows no other)."""
+    from pyhanko import stamp
+    from pyhanko.pdf_utils.font.opentype import GlyphAccumulatorFactory
+    from pyhanko.pdf_utils.text import TextBoxStyle
+
+    font = _font_file()
+    if font is None:
+        raise InputError("no DejaVu Sans font file found (fontconfig): the signature's "
+                         "appearance must embed its font to keep PDF/A", field="sign",
+                         source="command line")
+    return stamp.TextStampStyle(
+        stamp_text=f"{role.capitalize()}: %(signer)s\n%(ts)s", border_width=0,
+        text_box_style=TextBoxStyle(font=GlyphAccumulatorFactory(font), font_size=7))
 
 
 def sign_report(src: Path, out: Path, *, role: str, key: Path, cert: Path,
@@ -157,7 +210,8 @@ def sign_report(src: Path, out: Path, *, role: str, key: Path, cert: Path,
         field_name=name, reason=f"{role} (relayset report)", md_algorithm="sha256",
         subfilter=fields.SigSeedSubFilter.PADES)
     try:
-        buf = signers.sign_pdf(w, meta, signer=signer)
+        pdf_signer = signers.PdfSigner(meta, signer=signer, stamp_style=_stamp(role))
+        buf = pdf_signer.sign_pdf(w)
     except Exception as exc:  # e.g. the field is signed already
         raise InputError(f"cannot be signed as {role} ({exc})", source=str(src)) from None
     rio.write_atomic(out, buf.getvalue())

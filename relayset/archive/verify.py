@@ -386,7 +386,8 @@ def format_verification(v: Verification, *, all_checks: bool = False) -> str:
     lines = [f"{v.source}: {'MATCHES' if v.passed else 'DOES NOT MATCH'}"]
     if v.signed_status is not None:
         lines.append(f"  signed status: {v.signed_status} (the last of prepared, checked, "
-                     "approved whose signature holds and chains to the trust anchor)")
+                     "approved whose signature holds; approved only with a valid approved "
+                     "signature)")
     lines.append("  the file, its pages and its signatures:")
     for c in v.checks:
         if _is_file_check(c):
