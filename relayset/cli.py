@@ -191,7 +191,8 @@ def _run_fleet(args) -> int:
               file=sys.stderr)
         return 130
     print(f"{s.total} line(s): {s.computed} computed, {s.skipped} up to date, "
-          f"{len(s.failures)} failed, in {s.seconds:.1f} s")
+          f"{len(s.failures)} not computed (bad input), in {s.seconds:.1f} s; "
+          f"{s.failed_checks} failed check(s) in {s.lines_with_failed_checks} line(s)")
     for p in s.register:
         print(f"  {p}")
     if s.failures:
@@ -199,7 +200,8 @@ def _run_fleet(args) -> int:
         for _, err in s.failures:
             print(f"  {err}", file=sys.stderr)
         return EXIT_INPUT
-    return 0
+    # like `settings` and `report`: everything written, the exit code says checks failed
+    return EXIT_FAILED_CHECKS if s.failed_checks else 0
 
 
 def _files(args) -> list[str]:
@@ -243,9 +245,11 @@ def _run(args) -> int:
         files = _files(args)
         build.check_output_dir(args.output)
         reports = build.render_reports(files, units=args.units, paper=args.paper)
-        for path in build.write_reports(reports, args.output):
-            print(f"report: {path.with_suffix('.html')} and {path.name}")
-        return 0
+        for r, path in zip(reports, build.write_reports(reports, args.output), strict=True):
+            print(f"report: {path.with_suffix('.html')} and {path.name}"
+                  + (f" ({r.n_failed} failed check(s))" if r.n_failed else ""))
+        # like `settings`: the reports are written, and the exit code says checks failed
+        return EXIT_FAILED_CHECKS if any(r.n_failed for r in reports) else 0
     from relayset.inputs.unit_system import study_unit_system
     from relayset.report import text
     from relayset.studies import pipeline
@@ -267,8 +271,12 @@ def _run(args) -> int:
         if getattr(args, "csv", None):
             outputs.append(("--csv", args.csv, io.csv_bytes(_settings_csv(results[0]))))
         io.write_all(outputs)
+    from relayset.report.failures import failed_checks
+
+    # the one count of failed checks (setting rules and verification), as the report's
     failed = any(r.verification is not None and r.verification.verdict == "failed checks"
-                 for r in results)
+                 for r in results) or (args.command == "settings" and any(
+                     failed_checks(r.to_dict()) for r in results))
     return EXIT_FAILED_CHECKS if failed else 0
 
 

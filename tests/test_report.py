@@ -150,7 +150,10 @@ def test_header_footer_and_not_approved_mark_on_every_page(demo_reports):
         assert verdict in pages[0].lower()
 
 
-def test_two_runs_give_identical_bytes(demo_path, tmp_path):
+def test_two_runs_give_identical_bytes(demo_path, tmp_path, monkeypatch):
+    # the generation time is printed: the same bytes need SOURCE_DATE_EPOCH (reproducible
+    # builds), else two runs differ by their time
+    monkeypatch.setenv("SOURCE_DATE_EPOCH", "1790000000")
     path = demo_path("ashcombe_brenwick_132kv.toml")
     a = build.report_for_study(path)
     b = build.report_for_study(path)
@@ -460,10 +463,12 @@ def test_section_and_figure_numbers_follow_the_sections(variant):
     assert "smallest at Z1 reach" in html and "under at Z1 reach" not in html
 
 
-def test_helper_process_gives_the_same_bytes_and_stops(demo_path):
+def test_helper_process_gives_the_same_bytes_and_stops(demo_path, monkeypatch):
     """The PDF rendered in the forked helper (single-report command) equals the in-process
     one byte for byte, and the helper is gone afterwards."""
     import multiprocessing as mp
+
+    monkeypatch.setenv("SOURCE_DATE_EPOCH", "1790000000")  # the generation time is printed
 
     path = demo_path("kessler_oxbow_115kv.toml")
     with build.PdfHelper() as helper:

@@ -24,6 +24,7 @@ class ReportFiles:
     pdf: bytes
     json: str  #: the results JSON (also embedded in the PDF)
     source: str  #: the study file
+    n_failed: int = 0  #: failed checks (relayset.report.failures), as the report prints them
 
 
 def philosophy_path(results) -> Path:
@@ -105,7 +106,8 @@ def render_report(results, study_name: str, study_bytes: bytes,
                                   "Source"))
     when = document_date(results.identity, environ).when
     pdf = (pdf_renderer or html_to_pdf)(html, files, when)
-    return ReportFiles(ctx["doc_id"], html, pdf, results_json, str(results.source_file))
+    return ReportFiles(ctx["doc_id"], html, pdf, results_json, str(results.source_file),
+                       n_failed=ctx["n_failed"])
 
 
 def report_for_study(path: str | Path, units: str | None = None,
