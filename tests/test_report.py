@@ -12,6 +12,7 @@ import datetime as dt
 import hashlib
 import io
 import json
+import math
 import re
 import shutil
 import subprocess
@@ -305,6 +306,7 @@ def _numbers(d: str) -> list[float]:
 def test_figures_are_svg_that_plot_the_results(demo_reports):
     """Each figure is well-formed SVG (xml.etree), without style attributes, and its
     coordinates, read back through its own tick labels, are the results' numbers."""
+    outside = 0  # R-X diagrams whose load region lies beyond the zones' frame
     for r in demo_reports[1].values():
         d = json.loads(r.json)
         figs = _svgs(r.html)
@@ -322,10 +324,14 @@ def test_figures_are_svg_that_plot_the_results(demo_reports):
             tol = 0.02 / abs(kr)  # 0.02 user units, the rounding of the coordinates
             assert_allclose([(x0 - ar) / kr, (y0 - ax) / kx], [0, 0], rtol=0, atol=tol)
             assert_allclose([(x1 - ar) / kr, (y1 - ax) / kx], z1, rtol=0, atol=tol)
-            # Both load regions are checked, so both fronts (R = ±Zmin) are on the plot.
-            frame = [float(t.get("x")) for t in _role(root, "ticks-r").iter(SVG_NS + "text")]
+            # Scaled to the zones (issue 18), not to the load region: the legend says when
+            # the load region (|Z| >= Zmin within the load angle) lies outside the frame.
             zmin = end["load"]["z_min_primary_ohm"]
-            assert (min(frame) - ar) / kr < 0 and (56 - ar) / kr <= -zmin
+            phi = math.radians(end["load"]["load_angle_max_deg"])
+            r_edge = max(abs((56 - ar) / kr), abs((632 - ar) / kr))  # the frame's R edges
+            legend = " ".join(t.text or "" for t in root.iter(SVG_NS + "text"))
+            assert ("(outside this frame)" in legend) == (zmin * math.cos(phi) > r_edge)
+            outside += zmin * math.cos(phi) > r_edge
         # Reach error: the drawn largest error of each loop peaks at the results' value.
         for e in d["reach_study"]["ends"]:
             root = figs[f"reach error, relay at {e['end']}"]
@@ -357,6 +363,7 @@ def test_figures_are_svg_that_plot_the_results(demo_reports):
         assert_allclose(A @ sol, np.concatenate([cx, cy]), rtol=0, atol=0.03)
         shields = [w for w in d["parameters"]["wires"] if w["role"] == "shield"]
         assert _role(root, "shield-wires").get("d").count("M") == len(shields)
+    assert outside >= 1  # the zones set the scale, not the load region
 
 
 def test_rx_diagram_draws_the_zones_as_set(demo_reports):
