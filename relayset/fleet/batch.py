@@ -366,6 +366,7 @@ def _run_locked(jobs: list, source: str | Path, out: Path, note: str | None, cli
             else:
                 if res.index in written_inputs:
                     p.study_path.unlink(missing_ok=True)
+                (out / f"{p.stem}{INPUTS_SUFFIX}").unlink(missing_ok=True)  # nothing of it
                 fail(res.index, p.job.label, error, str(p.job.path))
             refresh()
     finally:
