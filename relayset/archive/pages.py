@@ -68,7 +68,7 @@ def rerender(a: Archive, results, study_name: str, renderer=None) -> bytes:
     philosophy = (others[0], a.attachments[others[0]]) if len(others) == 1 else None
     from relayset.inputs.unit_system import study_unit_system
 
-    units, paper = report_options(a, study_unit_system(results.study_input))
+    units, paper = report_options(a, study_unit_system(getattr(results, _names(results)[1])))
     environ = {}
     if a.created is not None:
         environ["SOURCE_DATE_EPOCH"] = str(int(a.created.timestamp()))
@@ -211,17 +211,25 @@ def _around_difference(a: str, b: str, width: int = 60) -> tuple[str, str]:
     return cut(a), cut(b)
 
 
+def _names(results) -> tuple[str, str]:
+    """The results' fields of the study identity and of the study as read (``study`` and
+    ``input`` where the results model names them as the JSON does, else the older names)."""
+    fields = {f.name for f in dataclasses.fields(results)}
+    return (("study", "input") if "input" in fields else ("identity", "study_input"))
+
+
 def patched_results(results, study_name: str, study_sha: str, philosophy: Any):
     """The recomputed results as the archived report had them: its study file name and
     SHA-256 and the philosophy name it wrote (the recomputation ran on a private copy)."""
-    identity = dict(results.identity)
-    study_input = dict(results.study_input)
+    id_name, in_name = _names(results)
+    identity = dict(getattr(results, id_name))
+    study_input = dict(getattr(results, in_name))
     if "philosophy" in identity:
         identity["philosophy"] = philosophy
     if isinstance(study_input.get("study"), dict) and "philosophy" in study_input["study"]:
         study_input["study"] = {**study_input["study"], "philosophy": philosophy}
     return dataclasses.replace(results, source_file=study_name, source_sha256=study_sha,
-                               identity=identity, study_input=study_input)
+                               **{id_name: identity, in_name: study_input})
 
 
 def check_pages(a: Archive, results, study_name: str, *, signed: bool,

@@ -89,7 +89,7 @@ def render_report(results, study_name: str, study_bytes: bytes,
     The one rendering path: ``relayset report`` calls it with the files it read, and
     ``relayset verify`` with the files an archived report embeds (to re-create its pages).
     """
-    from relayset.report.context import build_context, document_date
+    from relayset.report.context import build_context
     from relayset.report.html import render_html
     from relayset.report.pdf import EmbeddedFile, html_to_pdf
 
@@ -104,7 +104,7 @@ def render_report(results, study_name: str, study_bytes: bytes,
     if philosophy is not None:
         files.append(EmbeddedFile(philosophy[0], philosophy[1], DESCRIPTIONS["philosophy"],
                                   "Source"))
-    when = document_date(results.identity, environ).when
+    when = ctx["when"]  # the generation time the pages print, also the PDF's dates
     pdf = (pdf_renderer or html_to_pdf)(html, files, when)
     return ReportFiles(ctx["doc_id"], html, pdf, results_json, str(results.source_file),
                        n_failed=ctx["n_failed"])

@@ -717,6 +717,7 @@ def build_context(results, *, units: str = "si", paper: str = "a4",
         "failed_definition": DEFINITION,
         "not_for_use": not_for_use,
         "generated": dates.generated_text,
+        "when": dates.when,  # one time for the pages, the metadata and the attachments
         "philosophy": _philosophy_rows(d.get("philosophy")),
         "keywords": f"{ident['line_id']}, revision {ident['revision']}, distance protection, "
                     "setting calculation",
