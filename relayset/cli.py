@@ -72,6 +72,22 @@ def _fleet_parsers(sub) -> None:
                        "printed and stored SHA-256, results against a recomputation with the "
                        "installed relayset. Exit 0 only when everything matches.")
     p.add_argument("reports", nargs="+", metavar="REPORT.pdf")
+    p.add_argument("--trust", action="append", default=[], metavar="CA.pem",
+                   help="certificate of a trust anchor for the signatures (repeatable)")
+    p = sub.add_parser("sign", help="sign a report's prepared, checked or approved field",
+                       description="Sign one role's signature field of a report PDF (PAdES, an "
+                       "incremental update that keeps PDF/A-3b and the embedded files). Needs "
+                       "relayset[sign].")
+    p.add_argument("report", metavar="REPORT.pdf")
+    p.add_argument("--role", required=True, choices=("prepared", "checked", "approved"))
+    p.add_argument("--key", required=True, metavar="KEY.pem", help="the signer's private key")
+    p.add_argument("--cert", required=True, metavar="CERT.pem",
+                   help="the signer's certificate")
+    p.add_argument("--chain", action="append", default=[], metavar="CA.pem",
+                   help="certificates between the signer's and the trust anchor (repeatable)")
+    p.add_argument("--passphrase-file", metavar="FILE", default=None,
+                   help="a file holding the key's passphrase")
+    p.add_argument("-o", "--output", required=True, metavar="SIGNED.pdf")
     p = sub.add_parser("compare", help="what changed between two revisions of a line",
                        description="Changed inputs, results and settings between two study "
                        "files or archived report PDFs, as a table and an HTML and PDF change "
@@ -110,20 +126,50 @@ def _run_archive(args) -> int:
             for path in write_change_sheet(c, args.out):
                 print(f"  {path}")
         return 0
-    from relayset.archive.verify import format_verification, verify_report
+    if args.command == "sign":
+        return _run_sign(args)
+    from pathlib import Path
 
+    from relayset.archive.verify import format_verification, verify_report
+    from relayset.report.build import PdfHelper
+
+    for t in args.trust:
+        if not Path(t).is_file():
+            raise InputError("file does not exist", field="--trust", value=t,
+                             source="command line")
     code = 0
-    for pdf in args.reports:  # one bad file never stops the others
-        try:
-            v = verify_report(pdf)
-        except InputError as exc:
-            print(f"relayset: error: {exc}", file=sys.stderr)
-            code = max(code, EXIT_INPUT)
-            continue
-        sys.stdout.write(format_verification(v, all_checks=True))
-        if not v.passed:
-            code = max(code, 1)
+    with PdfHelper() as helper:  # imports the renderer while the first study recomputes
+        for pdf in args.reports:  # one bad file never stops the others
+            try:
+                v = verify_report(pdf, trust=[Path(t) for t in args.trust], renderer=helper)
+            except InputError as exc:
+                print(f"relayset: error: {exc}", file=sys.stderr)
+                code = max(code, EXIT_INPUT)
+                continue
+            sys.stdout.write(format_verification(v, all_checks=True))
+            if not v.passed:
+                code = max(code, 1)
     return code
+
+
+def _run_sign(args) -> int:
+    from pathlib import Path
+
+    from relayset.archive.signatures import sign_report
+    from relayset.errors import InputError
+
+    passphrase = None
+    if args.passphrase_file:
+        try:
+            passphrase = Path(args.passphrase_file).read_bytes().rstrip(b"\r\n")
+        except OSError as exc:
+            raise InputError(f"cannot be read ({exc.strerror})", field="--passphrase-file",
+                             value=args.passphrase_file, source="command line") from None
+    sign_report(Path(args.report), Path(args.output), role=args.role, key=Path(args.key),
+                cert=Path(args.cert), chain=[Path(c) for c in args.chain],
+                passphrase=passphrase)
+    print(f"signed as {args.role}: {args.output}")
+    return 0
 
 
 def _run_fleet(args) -> int:
@@ -145,7 +191,8 @@ def _run_fleet(args) -> int:
               file=sys.stderr)
         return 130
     print(f"{s.total} line(s): {s.computed} computed, {s.skipped} up to date, "
-          f"{len(s.failures)} failed, in {s.seconds:.1f} s")
+          f"{len(s.failures)} not computed (bad input), in {s.seconds:.1f} s; "
+          f"{s.failed_checks} failed check(s) in {s.lines_with_failed_checks} line(s)")
     for p in s.register:
         print(f"  {p}")
     if s.failures:
@@ -153,7 +200,8 @@ def _run_fleet(args) -> int:
         for _, err in s.failures:
             print(f"  {err}", file=sys.stderr)
         return EXIT_INPUT
-    return 0
+    # like `settings` and `report`: everything written, the exit code says checks failed
+    return EXIT_FAILED_CHECKS if s.failed_checks else 0
 
 
 def _files(args) -> list[str]:
@@ -175,7 +223,7 @@ def _files(args) -> list[str]:
 def _run(args) -> int:
     if args.command in ("batch", "demo"):
         return _run_fleet(args)
-    if args.command in ("verify", "compare"):
+    if args.command in ("verify", "compare", "sign"):
         return _run_archive(args)
     if args.command == "conductors":
         from relayset.inputs.conductors import builtin_table
@@ -197,9 +245,11 @@ def _run(args) -> int:
         files = _files(args)
         build.check_output_dir(args.output)
         reports = build.render_reports(files, units=args.units, paper=args.paper)
-        for path in build.write_reports(reports, args.output):
-            print(f"report: {path.with_suffix('.html')} and {path.name}")
-        return 0
+        for r, path in zip(reports, build.write_reports(reports, args.output), strict=True):
+            print(f"report: {path.with_suffix('.html')} and {path.name}"
+                  + (f" ({r.n_failed} failed check(s))" if r.n_failed else ""))
+        # like `settings`: the reports are written, and the exit code says checks failed
+        return EXIT_FAILED_CHECKS if any(r.n_failed for r in reports) else 0
     from relayset.inputs.unit_system import study_unit_system
     from relayset.report import text
     from relayset.studies import pipeline
@@ -221,8 +271,12 @@ def _run(args) -> int:
         if getattr(args, "csv", None):
             outputs.append(("--csv", args.csv, io.csv_bytes(_settings_csv(results[0]))))
         io.write_all(outputs)
+    from relayset.report.failures import failed_checks
+
+    # the one count of failed checks (setting rules and verification), as the report's
     failed = any(r.verification is not None and r.verification.verdict == "failed checks"
-                 for r in results)
+                 for r in results) or (args.command == "settings" and any(
+                     failed_checks(r.to_dict()) for r in results))
     return EXIT_FAILED_CHECKS if failed else 0
 
 

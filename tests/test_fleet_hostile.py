@@ -49,7 +49,7 @@ def _line(folder: Path, name: str, line_id: str, title: str | None = None) -> Pa
 
 
 def _rows(out: Path) -> list[dict[str, str]]:
-    return list(csv.DictReader(io.StringIO((out / "register.csv").read_text("utf-8"))))
+    return list(csv.DictReader(io.StringIO((out / "register.csv").read_text("utf-8-sig"))))
 
 
 def _xlsx(out: Path):

@@ -47,13 +47,13 @@ def test_killed_batch_loses_nothing(tmp_path):
         assert d["study"]["line_id"] + "_rev0.json" == p.name
     # the register lists finished lines only (the CSV follows every finished line)
     listed = {r["results_file"] for r in csv.DictReader(
-        io.StringIO((out / "register.csv").read_text("utf-8")))}
+        io.StringIO((out / "register.csv").read_text("utf-8-sig")))}
     assert listed <= set(done) and len(listed) >= len(done) - 1
 
     rerun = subprocess.run(cmd, capture_output=True, text=True, timeout=300)
     assert rerun.returncode == 0, rerun.stderr
     assert f"{len(done)} line(s) up to date" in rerun.stderr
     assert f"{N_LINES - len(done)} computed" in rerun.stdout
-    rows = list(csv.DictReader(io.StringIO((out / "register.csv").read_text("utf-8"))))
+    rows = list(csv.DictReader(io.StringIO((out / "register.csv").read_text("utf-8-sig"))))
     assert sorted(r["line_id"] for r in rows) == [f"VAR-{k:02d}" for k in range(N_LINES)]
     assert not [p for p in out.iterdir() if p.name.startswith(".")]  # no temporary left

@@ -12,6 +12,7 @@ import datetime as dt
 import hashlib
 import io
 import json
+import math
 import re
 import shutil
 import subprocess
@@ -150,7 +151,10 @@ def test_header_footer_and_not_approved_mark_on_every_page(demo_reports):
         assert verdict in pages[0].lower()
 
 
-def test_two_runs_give_identical_bytes(demo_path, tmp_path):
+def test_two_runs_give_identical_bytes(demo_path, tmp_path, monkeypatch):
+    # the generation time is printed: the same bytes need SOURCE_DATE_EPOCH (reproducible
+    # builds), else two runs differ by their time
+    monkeypatch.setenv("SOURCE_DATE_EPOCH", "1790000000")
     path = demo_path("ashcombe_brenwick_132kv.toml")
     a = build.report_for_study(path)
     b = build.report_for_study(path)
@@ -302,6 +306,7 @@ def _numbers(d: str) -> list[float]:
 def test_figures_are_svg_that_plot_the_results(demo_reports):
     """Each figure is well-formed SVG (xml.etree), without style attributes, and its
     coordinates, read back through its own tick labels, are the results' numbers."""
+    outside = 0  # R-X diagrams whose load region lies beyond the zones' frame
     for r in demo_reports[1].values():
         d = json.loads(r.json)
         figs = _svgs(r.html)
@@ -319,10 +324,14 @@ def test_figures_are_svg_that_plot_the_results(demo_reports):
             tol = 0.02 / abs(kr)  # 0.02 user units, the rounding of the coordinates
             assert_allclose([(x0 - ar) / kr, (y0 - ax) / kx], [0, 0], rtol=0, atol=tol)
             assert_allclose([(x1 - ar) / kr, (y1 - ax) / kx], z1, rtol=0, atol=tol)
-            # Both load regions are checked, so both fronts (R = ±Zmin) are on the plot.
-            frame = [float(t.get("x")) for t in _role(root, "ticks-r").iter(SVG_NS + "text")]
+            # Scaled to the zones (issue 18), not to the load region: the legend says when
+            # the load region (|Z| >= Zmin within the load angle) lies outside the frame.
             zmin = end["load"]["z_min_primary_ohm"]
-            assert (min(frame) - ar) / kr < 0 and (56 - ar) / kr <= -zmin
+            phi = math.radians(end["load"]["load_angle_max_deg"])
+            r_edge = max(abs((56 - ar) / kr), abs((632 - ar) / kr))  # the frame's R edges
+            legend = " ".join(t.text or "" for t in root.iter(SVG_NS + "text"))
+            assert ("(outside this frame)" in legend) == (zmin * math.cos(phi) > r_edge)
+            outside += zmin * math.cos(phi) > r_edge
         # Reach error: the drawn largest error of each loop peaks at the results' value.
         for e in d["reach_study"]["ends"]:
             root = figs[f"reach error, relay at {e['end']}"]
@@ -354,6 +363,7 @@ def test_figures_are_svg_that_plot_the_results(demo_reports):
         assert_allclose(A @ sol, np.concatenate([cx, cy]), rtol=0, atol=0.03)
         shields = [w for w in d["parameters"]["wires"] if w["role"] == "shield"]
         assert _role(root, "shield-wires").get("d").count("M") == len(shields)
+    assert outside >= 1  # the zones set the scale, not the load region
 
 
 def test_rx_diagram_draws_the_zones_as_set(demo_reports):
@@ -460,10 +470,12 @@ def test_section_and_figure_numbers_follow_the_sections(variant):
     assert "smallest at Z1 reach" in html and "under at Z1 reach" not in html
 
 
-def test_helper_process_gives_the_same_bytes_and_stops(demo_path):
+def test_helper_process_gives_the_same_bytes_and_stops(demo_path, monkeypatch):
     """The PDF rendered in the forked helper (single-report command) equals the in-process
     one byte for byte, and the helper is gone afterwards."""
     import multiprocessing as mp
+
+    monkeypatch.setenv("SOURCE_DATE_EPOCH", "1790000000")  # the generation time is printed
 
     path = demo_path("kessler_oxbow_115kv.toml")
     with build.PdfHelper() as helper:

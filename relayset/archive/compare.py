@@ -50,6 +50,10 @@ class Comparison:
     old_source: str
     new_source: str
     changes: tuple[Change, ...]
+    warnings: tuple[str, ...] = ()  #: the same revision twice, two different lines
+
+#: The sections of a comparison, in print order.
+SECTIONS = ("inputs", "philosophy", "results", "settings", "checks")
 
 
 def _tol(old: Any) -> float:
@@ -119,7 +123,70 @@ def compare(old: str | Path, new: str | Path) -> Comparison:
         ch = numeric_change(key[0], key[1], qa.get(key), qb.get(key))
         if ch is not None:
             changes.append(ch)
-    return Comparison(a, b, str(old), str(new), tuple(changes))
+    changes += _philosophy_changes(a.get("philosophy"), b.get("philosophy"))
+    changes += _check_changes(a, b)
+    order = {s: i for i, s in enumerate(SECTIONS)}
+    changes.sort(key=lambda ch: order.get(ch.section, len(SECTIONS)))  # stable within one
+    return Comparison(a, b, str(old), str(new), tuple(changes), _warnings(a, b))
+
+
+def _warnings(a: dict[str, Any], b: dict[str, Any]) -> tuple[str, ...]:
+    """What makes the comparison suspect: two different lines, or one revision twice."""
+    ia, ib = a.get("study") or {}, b.get("study") or {}
+    out = []
+    if ia.get("line_id") != ib.get("line_id"):
+        out.append(f"the two files are different lines ({ia.get('line_id')} and "
+                   f"{ib.get('line_id')}): the changes compare two lines, not two revisions")
+    elif ia.get("revision") == ib.get("revision"):
+        same = a.get("source_sha256") == b.get("source_sha256")
+        out.append(f"both files are revision {ia.get('revision')} of {ia.get('line_id')}"
+                   + (" from the same study file" if same else
+                      " but from different study files: a revision changed without a new "
+                      "revision name"))
+    return tuple(_printable(w) for w in out)
+
+
+def _philosophy_changes(pa: Any, pb: Any) -> list[Change]:
+    """The setting philosophy applied (every value, defaults filled in), key by key:
+    numbers within the display tolerance are not changes, other values as written."""
+    la = numeric_leaves(pa) if isinstance(pa, dict) else {}
+    lb = numeric_leaves(pb) if isinstance(pb, dict) else {}
+    out = []
+    for k in sorted(la.keys() | lb.keys()):
+        va, vb = la.get(k), lb.get(k)
+        if isinstance(va, int | float | complex) and isinstance(vb, int | float | complex) \
+                and not isinstance(va, bool) and not isinstance(vb, bool):
+            ch = numeric_change("philosophy", k, va, vb)
+            if ch is not None:
+                out.append(ch)
+        elif va != vb:
+            out.append(Change("philosophy", k, va, vb, None))
+    if not (isinstance(pa, dict) and isinstance(pb, dict)) and pa != pb:
+        return out or [Change("philosophy", "philosophy", "none" if pa is None else "given",
+                              "none" if pb is None else "given", None)]
+    return out
+
+
+def _check_results(d: dict[str, Any]) -> dict[str, str]:
+    """Every check of a results JSON and its result ("pass", "FAIL", "reported")."""
+    out: dict[str, str] = {}
+    for end in (d.get("settings") or {}).get("ends", []) or []:
+        for zone, z in (end.get("zones") or {}).items():
+            for c in z.get("checks", []) or []:
+                key = f"{end.get('end')} {zone} {c.get('check_id')} (setting rule)"
+                out[key] = "pass" if c.get("passed") else "FAIL"
+    for end in (d.get("verification") or {}).get("ends", []) or []:
+        for c in end.get("checks", []) or []:
+            key = f"{end.get('end')} {c.get('zone')} {c.get('check_id')} (verification)"
+            out[key] = str(c.get("result"))
+    return out
+
+
+def _check_changes(a: dict[str, Any], b: dict[str, Any]) -> list[Change]:
+    """Checks whose result changed, appeared or went away."""
+    ca, cb = _check_results(a), _check_results(b)
+    return [Change("checks", k, ca.get(k, "–"), cb.get(k, "–"), None)
+            for k in list(ca) + [k for k in cb if k not in ca] if ca.get(k) != cb.get(k)]
 
 
 def _digits(old: Any, new: Any) -> int:
@@ -175,7 +242,8 @@ def tolerance_text() -> str:
             f"difference); smaller differences are round-off, below every printed digit. "
             f"Change is the percent change of the magnitude and, for complex values "
             f"(magnitude ∠ angle), the change of angle, to {CHANGE_DIGITS} significant "
-            f"digits; inputs are compared as written.")
+            f"digits; inputs, text values of the philosophy and check results are compared "
+            f"as written.")
 
 
 def format_table(c: Comparison) -> str:
@@ -192,7 +260,8 @@ def format_table(c: Comparison) -> str:
     lines = ["  ".join(str(r[i])[:60].ljust(w[i]) if i < 4 else str(r[i]).rjust(w[i])
                        for i in range(5)).rstrip() for r in rows]
     lines.insert(1, "  ".join("-" * x for x in w))
-    return head + "\n".join(lines) + "\n" + tolerance_text() + "\n"
+    warn = "".join(f"WARNING: {w}\n" for w in c.warnings)
+    return warn + head + "\n".join(lines) + "\n" + tolerance_text() + "\n"
 
 
 def _printable(text: str) -> str:
@@ -215,7 +284,7 @@ def change_sheet_html(c: Comparison) -> str:
     env = jinja2.Environment(loader=jinja2.FileSystemLoader(str(templates_dir())),
                              autoescape=True, undefined=jinja2.StrictUndefined)
     sections = {s: [(ch.name, *shown(ch)) for ch in c.changes if ch.section == s]
-                for s in ("inputs", "results", "settings")}
+                for s in SECTIONS}
     old, new = _identity(c.old), _identity(c.new)
     verdict = (c.new.get("verification") or {}).get("verdict") or NOT_VERIFIED
     # as on the report: only an approved revision without failed checks is for use
@@ -225,6 +294,7 @@ def change_sheet_html(c: Comparison) -> str:
         new_source=c.new_source, old_sha=c.old.get("source_sha256"),
         new_sha=c.new.get("source_sha256"), sections=sections, caution=CAUTION,
         count=len(c.changes), tolerance=tolerance_text(), verdict=verdict,
+        warnings=c.warnings,
         old_verdict=(c.old.get("verification") or {}).get("verdict") or NOT_VERIFIED,
         status_text=STATUS_TEXT.get(new.get("status"), str(new.get("status"))),
         not_for_use=not_for_use)

@@ -78,6 +78,11 @@ class Archive:
     text: str  #: the page text
     metadata: dict[str, str]  #: document information (title, keywords ...) and XMP
     parsed: dict[str, Any] = field(default_factory=dict, repr=False)  #: the results, read
+    pages: tuple[str, ...] = ()  #: the text of each page (with ``text``)
+    annotations: tuple[tuple[int, str, str], ...] = ()  #: (page, kind, text) of each one
+    data: bytes = field(default=b"", repr=False)  #: the PDF file's bytes
+    created: Any = None  #: the document information's creation date (datetime), if any
+    media_box: tuple[float, float] | None = None  #: the first page's width, height [pt]
 
     @property
     def results_name(self) -> str:
@@ -195,7 +200,8 @@ def _lib(call: Callable[[], T], src: str) -> T:
 
 
 def _read_pdf(data: bytes, src: str, *, text: bool
-              ) -> tuple[dict[str, bytes], str, dict[str, str], dict[str, Any]]:
+              ) -> tuple[dict[str, bytes], list[str], dict[str, str], dict[str, Any],
+                         dict[str, Any]]:
     """Embedded files, results, page text and metadata (the last two with ``text``) within
     the limits. Each call into the PDF library goes through :func:`_lib`; the checks
     between them are ours and raise nothing but InputError."""
@@ -231,23 +237,48 @@ def _read_pdf(data: bytes, src: str, *, text: bool
                              "decompressed, more than an archived report may", source=src)
         attachments[name] = contents[0]
     results = _results(attachments, src)
-    page_text, meta = "", {}
+    texts: list[str] = []
+    meta: dict[str, str] = {}
+    extra: dict[str, Any] = {}
     if text:
         pages = _lib(lambda: list(reader.pages), src)
         if len(pages) > MAX_PAGES:
             raise InputError(f"has {len(pages)} pages, more than the {MAX_PAGES} an "
                              "archived report may have", source=src)
-        texts: list[str] = []
         for page in pages:
             texts.append(_lib(lambda p=page: str(p.extract_text() or ""), src))
             if sum(map(len, texts)) > MAX_TEXT_CHARS:
                 raise InputError(f"its pages hold more than {MAX_TEXT_CHARS} characters of "
                                  "text, more than an archived report may", source=src)
-        page_text = "\n".join(texts)
         meta = _lib(lambda: _metadata(reader), src)
+        extra["annotations"] = tuple(_lib(lambda: _annotations(pages), src))
+        extra["created"] = _lib(lambda: (reader.metadata or {}) and
+                                reader.metadata.creation_date, src) or None
+        if pages:
+            box = _lib(lambda: pages[0].mediabox, src)
+            extra["media_box"] = (float(box.width), float(box.height))
     _check_nesting(_lib(lambda: [*reader.resolved_objects.values(), reader.trailer],
                         src), src)
-    return attachments, page_text, meta, results
+    return attachments, texts, meta, results, extra
+
+
+def _annotations(pages: list[Any]) -> list[tuple[int, str, str]]:
+    """(page number from 1, kind, text) of every annotation: its subtype, and for a form
+    field its field type ("Widget Sig" is a signature field); the text is what it says."""
+    out = []
+    for k, page in enumerate(pages, start=1):
+        annots = page.get("/Annots")
+        for ref in (annots.get_object() if annots is not None else None) or []:
+            a = ref.get_object()
+            kind = str(a.get("/Subtype", "?")).lstrip("/")
+            ft, parent = a.get("/FT"), a.get("/Parent")
+            if ft is None and parent is not None:
+                ft = parent.get_object().get("/FT")
+            if ft is not None:
+                kind += " " + str(ft).lstrip("/")
+            said = " ".join(str(a.get(key, "")) for key in ("/T", "/Contents")).strip()
+            out.append((k, kind, _printable(said)[:120]))
+    return out
 
 
 def _metadata(reader: Any) -> dict[str, str]:
@@ -312,5 +343,6 @@ def read_archive(path: str | Path, *, text: bool = True) -> Archive:
         raise InputError("is not a readable PDF (no %PDF- header)", source=src)
     logging.getLogger("pypdf").setLevel(logging.ERROR)
     with _pdf_limits():
-        attachments, page_text, meta, results = _read_pdf(data, src, text=text)
-    return Archive(src, attachments, page_text, meta, results)
+        attachments, pages, meta, results, extra = _read_pdf(data, src, text=text)
+    return Archive(src, attachments, "\n".join(pages), meta, results, pages=tuple(pages),
+                   data=data, **extra)

@@ -66,6 +66,8 @@ class Verification:
     checks: list[Check] = field(default_factory=list)
     recorded_version: str | None = None
     installed_version: str | None = None
+    signatures: list = field(default_factory=list)  #: archive.signatures.Signature
+    signed_status: str | None = None  #: what the signatures give (None: not checked)
 
     @property
     def passed(self) -> bool:
@@ -148,11 +150,11 @@ def _embedded_philosophy(a: Archive, study: str, named: str) -> str | None:
     return pick if pick is not None or len(others) != 1 else others[0]
 
 
-def _not_recomputed(why: str) -> tuple[list[Check], str]:
-    return [Check("recomputation", False, why)], ""
+def _not_recomputed(why: str) -> tuple[list[Check], str, None]:
+    return [Check("recomputation", False, why)], "", None
 
 
-def recompute(a: Archive) -> tuple[list[Check], str]:
+def recompute(a: Archive) -> tuple[list[Check], str, object]:
     """Recompute the embedded study with the installed relayset and compare the results.
 
     The embedded files are written only into a private temporary folder (mode 0700), under
@@ -161,9 +163,14 @@ def recompute(a: Archive) -> tuple[list[Check], str]:
     that names its philosophy file is pointed at the embedded philosophy (the one edit of
     its text); the recomputed results then carry the study's own philosophy name and
     SHA-256 again, so that only computed values are compared.
+
+    Returns the checks, the installed version and the recomputed results (named as the
+    archive names them: :func:`relayset.archive.pages.patched_results`), None when the
+    study could not be recomputed.
     """
     import os
 
+    from relayset.archive.pages import patched_results
     from relayset.fleet.jobs import effective_study_text
     from relayset.io import to_json
     from relayset.studies import pipeline
@@ -203,8 +210,9 @@ def recompute(a: Archive) -> tuple[list[Check], str]:
         path = folder / STUDY_FILE
         path.write_bytes(text)
         try:
-            new = pipeline.run(path, reach="reach_study" in archived,
-                               settings="settings" in archived).to_dict()
+            res = pipeline.run(path, reach="reach_study" in archived,
+                               settings="settings" in archived)
+            new = res.to_dict()
         except InputError as exc:
             msg = str(exc).replace(str(path), study).replace(str(folder) + os.sep, "")
             return _not_recomputed(f"the embedded study fails: {msg}")
@@ -245,7 +253,8 @@ def recompute(a: Archive) -> tuple[list[Check], str]:
         detail += (f"; {len(added)} values are new in this version's results (not in the "
                    "archive, not compared), e.g. " + ", ".join(added[:3]))
     checks.append(Check(f"all {len(both)} values both results give", not bad, detail))
-    return checks, str(new.get("relayset_version"))
+    return checks, str(new.get("relayset_version")), patched_results(res, study, _sha(data),
+                                                                    phil)
 
 
 def _show(v) -> str:
@@ -256,38 +265,149 @@ def _show(v) -> str:
     return str(v)
 
 
-def verify_report(path: str | Path) -> Verification:
-    """Every check of one archived report (InputError when it is not a relayset report)."""
+def check_updates(a: Archive, sigs: list | None) -> Check:
+    """Nothing but signatures appended after the report was written (``sigs`` None: the
+    signatures could not be read, pyHanko missing)."""
+    from relayset.archive.pages import revision_ends
+
+    ends = revision_ends(a.data)
+    if not ends:
+        return Check("updates after the report was written", False,
+                     "the file has no end-of-file marker: truncated or not as written")
+    tail = a.data[ends[-1]:]
+    problems = []
+    if tail.strip(b"\x00\r\n\t ") != b"":
+        problems.append(f"{len(tail)} bytes follow the last end-of-file marker")
+    if len(ends) > 1:
+        if sigs is None:
+            problems.append(f"{len(ends) - 1} update(s) appended; telling signatures from "
+                            "other changes needs pyHanko (pip install 'relayset[sign]')")
+        else:
+            signed = {s.revision_end for s in sigs}
+            for k, end in enumerate(ends[1:], start=2):
+                if end not in signed:
+                    problems.append(f"revision {k} (bytes {ends[k - 2]}-{end}) is not a "
+                                    "signature: a change after the report was written")
+    if problems:
+        return Check("updates after the report was written", False, "; ".join(problems))
+    n = len(ends) - 1
+    return Check("updates after the report was written", True,
+                 "none" if n == 0 else f"{n}, each a signature")
+
+
+def _signature_checks(a: Archive, trust) -> tuple[list | None, list[Check]]:
+    """The report's signatures (None without pyHanko) and a check of each one."""
+    from relayset.archive import signatures as sg
+    from relayset.archive.pages import revision_ends
+
+    if not sg.available():
+        if len(revision_ends(a.data)) > 1:
+            return None, []
+        return None, [Check("signatures", None, "none (reading them needs pyHanko: pip "
+                            "install 'relayset[sign]')")]
+    try:
+        sigs = sg.read_signatures(a.data, trust)
+    except Exception as exc:  # the library's, on a hostile file
+        return [], [Check("signatures", False, f"cannot be read ({exc})")]
+    if not sigs:
+        return sigs, [Check("signatures", None, "none")]
+    checks = []
+    for s in sigs:
+        role = s.role or f"field {s.field} (no relayset role)"
+        trust_text = ("no trust anchor given (--trust): not checked" if s.trusted is None
+                      else "chains to the trust anchor" if s.trusted
+                      else "does NOT chain to the trust anchor")
+        detail = (f"signed by {s.signer} at {s.time} (the signer's clock, not a trusted "
+                  f"timestamp); {'intact' if s.intact else 'NOT intact'}, "
+                  f"{'valid' if s.valid else 'NOT valid'}; "
+                  f"{'covers the whole file' if s.whole else 'later updates follow'}; "
+                  f"changes after it: {s.later_changes}; {trust_text}")
+        checks.append(Check(f"signature {role}", s.ok, detail))
+    return sigs, checks
+
+
+def verify_report(path: str | Path, *, trust=None, renderer=None) -> Verification:
+    """Every check of one archived report (InputError when it is not a relayset report).
+
+    ``trust``: PEM or DER certificates of trust anchors for the signatures. ``renderer``:
+    the PDF renderer to re-create the pages with (:class:`relayset.report.build.PdfHelper`).
+    """
+    from relayset.archive import signatures as sg
+    from relayset.archive.pages import check_pages
+
     a = read_archive(path)
     v = Verification(str(path))
-    v.checks += check_hashes(a)
     v.recorded_version = str(a.results().get("relayset_version"))
-    checks, v.installed_version = recompute(a)
+    sigs, sig_checks = _signature_checks(a, trust)
+    v.checks.append(check_updates(a, sigs))
+    v.checks += sig_checks
+    v.signatures = sigs or []
+    if sigs is not None:
+        v.signed_status = sg.signed_status(v.signatures)
+    study = a.study_name()
+    if study is None:
+        v.checks.append(Check("embedded study file", False, "not among the embedded files "
+                              f"({', '.join(sorted(a.attachments))}): removed after the "
+                              "report was written, or not a complete relayset report; "
+                              "nothing recomputed"))
+        return v
+    v.checks += check_hashes(a)
+    checks, v.installed_version, res = recompute(a)
     v.checks += checks
+    if res is None:
+        v.checks.append(Check("printed pages", False, "not compared: the embedded study "
+                              "could not be recomputed"))
+    elif v.recorded_version != v.installed_version:
+        v.checks.append(Check("printed pages", None, f"not compared: written by relayset "
+                              f"{v.recorded_version}, this is {v.installed_version}, whose "
+                              "pages may differ; verify with the version that wrote it"))
+    else:
+        v.checks += check_pages(a, res, study, signed=bool(v.signatures), renderer=renderer)
     return v
+
+
+#: The checks of the file itself (printed first), by the start of their name.
+FILE_CHECKS = ("updates after", "signature", "printed pages", "report as written",
+               "annotations", "metadata", "embedded study file")
 
 
 def _is_quantity(c: Check) -> bool:
     return re.match(r"(results|settings): ", c.what) is not None
 
 
+def _is_file_check(c: Check) -> bool:
+    return c.what.startswith(FILE_CHECKS)
+
+
 def format_verification(v: Verification, *, all_checks: bool = False) -> str:
-    """The printed verdict of one report: what each hash was checked against, then each
-    quantity of the recomputation (failures always, every one with ``all_checks``)."""
-    lines = [f"{v.source}: {'MATCHES' if v.passed else 'DOES NOT MATCH'}",
-             "  hashes of the embedded files, and what each was checked against:"]
-    hashes = [c for c in v.checks if not _is_quantity(c) and c.what != "recomputation"
-              and not c.what.startswith("all ")]
+    """The printed verdict of one report: the file (updates, signatures, pages, annotations,
+    metadata), what each hash was checked against, then each quantity of the recomputation
+    (failures always, every one with ``all_checks``)."""
+    lines = [f"{v.source}: {'MATCHES' if v.passed else 'DOES NOT MATCH'}"]
+    if v.signed_status is not None:
+        lines.append(f"  signed status: {v.signed_status} (the last of prepared, checked, "
+                     "approved whose signature holds; approved only with a valid approved "
+                     "signature)")
+    lines.append("  the file, its pages and its signatures:")
+    for c in v.checks:
+        if _is_file_check(c):
+            lines.append(f"      {c.mark} {c.what}: {c.detail}")
+    hashes = [c for c in v.checks if not _is_quantity(c) and not _is_file_check(c)
+              and c.what != "recomputation" and not c.what.startswith("all ")]
+    if hashes:
+        lines.append("  hashes of the embedded files, and what each was checked against:")
     for c in hashes:
         if c.passed is None and c.detail.startswith("SHA-256 "):
             lines.append(f"    {c.what}: {c.detail}")  # the file and its hash
         else:
             lines.append(f"      {c.mark} {c.what}: {c.detail}")
+    if v.installed_version is None:
+        return "\n".join(lines) + "\n"
     lines.append(f"  recomputation: |now - archived| <= {ATOL:g} + {RTOL:g} x |archived|; "
                  f"archived with relayset {v.recorded_version}, recomputed with "
                  f"{v.installed_version or 'the installed version'}")
     for c in v.checks:
-        if c in hashes:
+        if c in hashes or _is_file_check(c):
             continue
         if all_checks or not c.passed or not _is_quantity(c):
             lines.append(f"    {c.mark} {c.what}: {c.detail}")

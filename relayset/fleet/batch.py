@@ -32,7 +32,12 @@ from relayset.fleet.register import check_rows, failed_row, rows_from_results, w
 REGISTER_REFRESH_S = 30.0
 
 #: What write_atomic leaves behind when a process is killed mid-write: ".NAME.XXXXXXXX".
-_STALE_TMP = re.compile(r"^\..+\.(json|pdf|html|csv|xlsx|toml)\.[A-Za-z0-9_]{8}$")
+_STALE_TMP = re.compile(r"^\..+\.(json|pdf|html|csv|xlsx|toml|txt)\.[A-Za-z0-9_]{8}$")
+
+#: Beside each line's outputs: every file the line read and its SHA-256 (study, philosophy,
+#: adjacent-line studies), so that a later batch finds the line up to date only when none
+#: of them changed.
+INPUTS_SUFFIX = ".inputs.txt"
 
 
 @dataclass
@@ -52,6 +57,16 @@ class BatchSummary:
     def ok(self) -> bool:
         return not self.failures
 
+    @property
+    def failed_checks(self) -> int:
+        """Failed checks of the lines in the register (relayset.report.failures)."""
+        return sum(int(r.get("failed_checks") or 0) for r in self.rows)
+
+    @property
+    def lines_with_failed_checks(self) -> int:
+        return len({(r.get("line_id"), r.get("revision")) for r in self.rows
+                    if r.get("failed_checks")})
+
 
 def _clean_stale(out_dir: Path) -> None:
     for folder in (out_dir, out_dir / "studies"):
@@ -61,12 +76,58 @@ def _clean_stale(out_dir: Path) -> None:
                     f.unlink(missing_ok=True)
 
 
+def input_files(p: PlannedJob) -> str:
+    """Every file the line reads, with its SHA-256, one per line: the study (the bytes the
+    pipeline parses), its philosophy file and the adjacent-line and line-behind studies it
+    names (relative to the study, as the pipeline resolves them). A file that cannot be
+    read is listed as missing: the pipeline then says why."""
+    import hashlib
+    import tomllib
+
+    from relayset.inputs.study_file import read_bytes
+
+    try:
+        data = p.effective if p.effective is not None else read_bytes(p.study_path)
+        tables = tomllib.loads(data.decode("utf-8-sig"))
+    except (InputError, ValueError):
+        return f"study {p.sha256}\n"
+    base = p.study_path.parent
+    named: list[tuple[str, str]] = []
+    info = tables.get("study") if isinstance(tables.get("study"), dict) else {}
+    phil = info.get("philosophy", "default")
+    if isinstance(phil, str) and phil != "default":
+        named.append(("philosophy", phil))
+    for key in ("adjacent_lines", "lines_behind"):
+        for entry in tables.get(key) if isinstance(tables.get(key), list) else []:
+            if isinstance(entry, dict) and isinstance(entry.get("study"), str):
+                named.append((key, entry["study"]))
+    lines = [f"study {p.sha256}"]
+    for role, name in named:
+        try:
+            digest = hashlib.sha256((base / name).read_bytes()).hexdigest()
+        except OSError:
+            digest = "missing"
+        lines.append(f"{role} {digest} {name}")
+    return "\n".join(lines) + "\n"
+
+
 def up_to_date(out_dir: Path, p: PlannedJob, report: bool) -> dict | None:
-    """The existing results of a line when its input hash and the version match, else None.
+    """The existing results of a line when every file it reads (:func:`input_files`) and the
+    version match, and its results JSON was written after that record, else None.
 
     With ``report``, the line's report must be there too.
     """
+    record = out_dir / f"{p.stem}{INPUTS_SUFFIX}"
     path = out_dir / f"{p.stem}.json"
+    try:
+        recorded = record.read_text("utf-8")
+        # the results were written after the record of what they were computed from
+        if path.stat().st_mtime_ns < record.stat().st_mtime_ns:
+            return None
+    except (OSError, ValueError):
+        return None
+    if recorded != input_files(p):
+        return None
     try:
         d = json.loads(path.read_text("utf-8"))
     except (OSError, ValueError):
@@ -242,7 +303,7 @@ def _run_locked(jobs: list, source: str | Path, out: Path, note: str | None, cli
                 continue
         planned[i] = p
     if summary.skipped:
-        progress.message(f"relayset: {summary.skipped} line(s) up to date (same input hash "
+        progress.message(f"relayset: {summary.skipped} line(s) up to date (the same input files "
                          f"and version), skipped; --force recomputes them")
     others = finished_elsewhere(out, set(stems))
     if others:
@@ -273,6 +334,14 @@ def _run_locked(jobs: list, source: str | Path, out: Path, note: str | None, cli
                          else _internal(p.job.label, exc), str(p.job.path))
                     continue
                 written_inputs.add(i)
+        for p in planned.values():
+            # What the line reads, recorded before it is computed: its results JSON, written
+            # last, is then newer than the record only when the line finished from these
+            # files (a batch killed before that leaves an older JSON: computed again).
+            try:
+                write_atomic(out / f"{p.stem}{INPUTS_SUFFIX}", input_files(p))
+            except OSError:
+                (out / f"{p.stem}{INPUTS_SUFFIX}").unlink(missing_ok=True)
         tasks = [(i, str(p.study_path), p.stem, report, str(out)) for i, p in planned.items()]
         if client is not None:
             results = runners.run_dask(tasks, client)
@@ -297,6 +366,7 @@ def _run_locked(jobs: list, source: str | Path, out: Path, note: str | None, cli
             else:
                 if res.index in written_inputs:
                     p.study_path.unlink(missing_ok=True)
+                (out / f"{p.stem}{INPUTS_SUFFIX}").unlink(missing_ok=True)  # nothing of it
                 fail(res.index, p.job.label, error, str(p.job.path))
             refresh()
     finally:

@@ -12,6 +12,7 @@ from pathlib import Path
 from typing import Any
 
 from relayset.io import spreadsheet_text, visible_text
+from relayset.report.failures import count_at
 
 #: Register columns, in order, with what each holds (the HTML index and README use these).
 COLUMNS: tuple[tuple[str, str], ...] = (
@@ -43,7 +44,8 @@ COLUMNS: tuple[tuple[str, str], ...] = (
      "the fault farther away)"),
     ("verification", "verification verdict of the study (all ends)"),
     ("end_verification", "verification of this relay end (pass / FAIL)"),
-    ("failed_checks", "number of failed verification checks at this end"),
+    ("failed_checks", "failed checks at this end: setting rules and verification, as the "
+     "report counts them"),
     ("warnings", "number of setting warnings at this end"),
     ("input_sha256", "SHA-256 of the study file computed"),
     ("relayset_version", "relayset version"),
@@ -116,11 +118,8 @@ def rows_from_results(d: dict[str, Any], *, results_file: str,
         row["overreach_on_line_pct"] = plan.get("worst_bolted_overreach_on_line_pct")
         row["underreach_on_line_pct"] = plan.get("worst_bolted_underreach_on_line_pct")
         ve = ver_ends.get(end["end"])
-        if ve is not None:
-            row["end_verification"] = ve.get("result")
-            row["failed_checks"] = sum(c.get("result") == "FAIL" for c in ve.get("checks", []))
-        else:
-            row["end_verification"] = NOT_VERIFIED
+        row["end_verification"] = NOT_VERIFIED if ve is None else ve.get("result")
+        row["failed_checks"] = count_at(d, str(end["end"]))  # the report's count
         rows.append({k: row.get(k) for k in NAMES})
     return rows
 
@@ -166,12 +165,17 @@ def _safe_values(values: tuple) -> tuple:
 
 
 def _cell(v: Any) -> str:
-    """A CSV cell: numbers at full precision, text visible and never a formula."""
+    """A CSV cell: numbers with the 12 significant digits of ``settings --csv``
+    (:data:`relayset.io.CSV_DIGITS`), text visible and never a formula."""
+    from relayset.io import CSV_DIGITS
+
     v = safe_value(v)
     if v is None:
         return ""
-    if isinstance(v, bool | int | float):
+    if isinstance(v, bool | int):
         return repr(v)
+    if isinstance(v, float):
+        return format(v, f".{CSV_DIGITS}g")
     return spreadsheet_text(v)
 
 
@@ -199,12 +203,14 @@ def check_rows(rows: list[dict[str, Any]]) -> None:
 
 
 def register_csv(rows: list[dict[str, Any]]) -> str:
-    """The register as CSV text (full precision, one header row)."""
+    """The register as CSV text, written like ``settings --csv``: one header row, numbers
+    with 12 significant digits, lines ending in CR LF; the file is written with a
+    byte-order mark (:func:`relayset.io.csv_bytes`) so that a spreadsheet reads Ω as Ω."""
     import csv
     import io
 
     buf = io.StringIO()
-    w = csv.writer(buf, lineterminator="\n")
+    w = csv.writer(buf, lineterminator="\r\n")
     w.writerow(NAMES)
     for r in rows:
         values = tuple(r.get(k) for k in NAMES)
@@ -220,8 +226,25 @@ def _csv_cells(values: tuple) -> list[str]:
     return [_cell(v) for v in values]
 
 
+#: Number formats of the .xlsx columns, by the end of the column name (the printed
+#: precision of the report: relayset.report.context.PRECISION); counts are whole numbers.
+XLSX_FORMATS = (("_ohm", "0.000"), ("_pct", "0.00"), ("_deg", "0.0"), ("k0_magnitude", "0.000"),
+                ("failed_checks", "0"), ("warnings", "0"))
+#: Widest column of the .xlsx [characters].
+XLSX_MAX_WIDTH = 48
+#: The time the .xlsx says it was made and changed, and the time of its zip entries: fixed
+#: (SOURCE_DATE_EPOCH when set), so that the same rows give the same bytes.
+XLSX_EPOCH = "2000-01-01T00:00:00Z"
+
+
+def _xlsx_format(name: str) -> str | None:
+    return next((f for end, f in XLSX_FORMATS if name.endswith(end)), None)
+
+
 def register_xlsx(rows: list[dict[str, Any]]) -> bytes:
-    """The register as an .xlsx workbook (sheet "register", header row frozen).
+    """The register as an .xlsx workbook: sheet "register", a bold header row with a filter,
+    frozen header and first column, column widths from the contents, number formats at the
+    report's precision (the cells keep full values), and the same bytes for the same rows.
 
     Text cells are written with the string data type, so no user text is ever a formula
     (and a leading ``= + - @`` is quoted as in the CSV).
@@ -229,11 +252,15 @@ def register_xlsx(rows: list[dict[str, Any]]) -> bytes:
     import io
 
     from openpyxl import Workbook
+    from openpyxl.styles import Alignment, Font
+    from openpyxl.utils import get_column_letter
 
     wb = Workbook()
     ws = wb.active
     ws.title = "register"
     ws.append(list(NAMES))
+    widths = [len(k) for k in NAMES]
+    formats = [_xlsx_format(k) for k in NAMES]
     for i, r in enumerate(rows, start=2):
         for j, k in enumerate(NAMES, start=1):
             v = _xlsx_cell(r.get(k))
@@ -242,10 +269,50 @@ def register_xlsx(rows: list[dict[str, Any]]) -> bytes:
             cell = ws.cell(row=i, column=j, value=v)
             if isinstance(v, str):
                 cell.data_type = "s"  # openpyxl would take "=..." for a formula
-    ws.freeze_panes = "A2"
+                widths[j - 1] = max(widths[j - 1], len(v))
+            elif isinstance(v, int | float) and not isinstance(v, bool):
+                if formats[j - 1]:
+                    cell.number_format = formats[j - 1]
+                widths[j - 1] = max(widths[j - 1], 10)
+    for j, cell in enumerate(ws[1], start=1):
+        cell.font = Font(bold=True)
+        cell.alignment = Alignment(wrap_text=True, vertical="top")
+        ws.column_dimensions[get_column_letter(j)].width = min(widths[j - 1] + 2,
+                                                               XLSX_MAX_WIDTH)
+    ws.freeze_panes = "C2"  # the header and the line id / revision stay in view
+    ws.auto_filter.ref = f"A1:{get_column_letter(len(NAMES))}{max(1, len(rows) + 1)}"
     buf = io.BytesIO()
     wb.save(buf)
-    return buf.getvalue()
+    return _fixed_times(buf.getvalue())
+
+
+def _fixed_times(data: bytes) -> bytes:
+    """The workbook with its made/changed times and its zip entries' times fixed."""
+    import datetime as dt
+    import io
+    import os
+    import re
+    import zipfile
+
+    when = XLSX_EPOCH
+    sde = os.environ.get("SOURCE_DATE_EPOCH", "").strip()
+    if sde.isdigit():
+        when = dt.datetime.fromtimestamp(int(sde), tz=dt.UTC).strftime("%Y-%m-%dT%H:%M:%SZ")
+    stamp = tuple(int(x) for x in re.findall(r"\d+", when)[:6])
+    stamp = (max(1980, stamp[0]), *stamp[1:])  # the zip format starts in 1980
+    src = zipfile.ZipFile(io.BytesIO(data))
+    out = io.BytesIO()
+    with zipfile.ZipFile(out, "w", zipfile.ZIP_DEFLATED) as z:
+        for info in src.infolist():
+            body = src.read(info.filename)
+            if info.filename == "docProps/core.xml":
+                body = re.sub(rb"(<dcterms:(created|modified)[^>]*>)[^<]*(</dcterms:)",
+                              rb"\g<1>" + when.encode() + rb"\g<3>", body)
+            entry = zipfile.ZipInfo(info.filename, date_time=stamp)
+            entry.compress_type = zipfile.ZIP_DEFLATED
+            entry.external_attr = 0o600 << 16
+            z.writestr(entry, body)
+    return out.getvalue()
 
 
 def _fmt(x: Any, digits: int = 3) -> str:
@@ -281,7 +348,7 @@ def write_register(out_dir: Path, rows: list[dict[str, Any]], *, title: str,
     User text is made visible in every format (:func:`safe_value`) and neutralised in the
     spreadsheets (:func:`relayset.io.spreadsheet_text`); the HTML escapes markup.
     """
-    from relayset.io import write_atomic
+    from relayset.io import csv_bytes, write_atomic
 
     rows = sorted(safe_rows(rows),
                   key=lambda r: (r.get("error") is not None, str(r.get("line_id")),
@@ -289,7 +356,7 @@ def write_register(out_dir: Path, rows: list[dict[str, Any]], *, title: str,
                                  str(r.get("study_file"))))
     written = []
     if "csv" in formats:
-        write_atomic(out_dir / "register.csv", register_csv(rows))
+        write_atomic(out_dir / "register.csv", csv_bytes(register_csv(rows)))
         written.append(out_dir / "register.csv")
     if "xlsx" in formats:
         write_atomic(out_dir / "register.xlsx", register_xlsx(rows))

@@ -150,6 +150,17 @@ def _order(v: Any) -> tuple[str, ...] | dict[str, tuple[str, ...]]:
 
 
 Name = _text(100)
+
+
+def PersonName(v: Any) -> str:
+    """Who prepared, checked or approved: empty (nobody yet), or a name of at least two
+    letters ("x" or "-" names nobody)."""
+    v = Name(v)
+    if v.strip() and sum(c.isalpha() for c in v) < 2:
+        raise ValueError("must name a person (at least two letters)")
+    return v
+
+
 Length = _quantity("length", gt=0)
 ResPerLength = _quantity("resistance_per_length", ge=1e-6, le=0.1, show=("ohm/km", 1e-3))
 Temperature = _quantity("temperature", ge=-70.0, le=300.0)
@@ -185,9 +196,9 @@ class StudyInfo:
     revision: str = spec(Name, "A")
     revision_date: dt.date | None = spec(schema.date, None)
     status: str = spec(schema.one_of("draft", "for review", "approved"), "draft")
-    prepared_by: str = spec(Name, "")
-    checked_by: str = spec(Name, "")
-    approved_by: str = spec(Name, "")
+    prepared_by: str = spec(PersonName, "")
+    checked_by: str = spec(PersonName, "")
+    approved_by: str = spec(PersonName, "")
     philosophy: str = spec(_path_text, "default")
     notes: str = spec(_text(10_000), "")
 

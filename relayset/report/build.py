@@ -24,6 +24,7 @@ class ReportFiles:
     pdf: bytes
     json: str  #: the results JSON (also embedded in the PDF)
     source: str  #: the study file
+    n_failed: int = 0  #: failed checks (relayset.report.failures), as the report prints them
 
 
 def philosophy_path(results) -> Path:
@@ -48,9 +49,6 @@ def make_report(results, *, units: str | None = None, paper: str = "a4",
     """
     from relayset import io
     from relayset.inputs.unit_system import study_unit_system
-    from relayset.report.context import build_context, document_date
-    from relayset.report.html import render_html
-    from relayset.report.pdf import EmbeddedFile, html_to_pdf
 
     src = Path(results.source_file)
     try:
@@ -59,17 +57,7 @@ def make_report(results, *, units: str | None = None, paper: str = "a4",
         raise InputError(f"cannot be read ({exc.strerror})", source=str(src)) from None
     if hashlib.sha256(study_bytes).hexdigest() != results.source_sha256:
         raise InputError("changed after it was read; run the report again", source=str(src))
-    env = dict(os.environ if environ is None else environ)
-    results_json = io.to_json(results.to_dict())
-    ctx = build_context(results, units=units or study_unit_system(results.input),
-                        paper=paper, environ=env,
-                        results_json=results_json)
-    html = render_html(ctx, study_bytes.decode("utf-8"))
-    files = [
-        EmbeddedFile(src.name, study_bytes, "The study file (input)", "Source"),
-        EmbeddedFile(f"{ctx['doc_id']}.results.json", results_json.encode("utf-8"),
-                     "The results (JSON, keys carry their units)", "Data"),
-    ]
+    philosophy = None
     if results.settings is not None:
         ph = philosophy_path(results)
         try:
@@ -79,10 +67,47 @@ def make_report(results, *, units: str | None = None, paper: str = "a4",
                              field="study.philosophy", value=str(ph),
                              source=str(src)) from None
         name = ph.name if ph.name != src.name else f"philosophy_{ph.name}"
-        files.append(EmbeddedFile(name, ph_bytes, "The setting philosophy (input)", "Source"))
-    when = document_date(results.study, env).when
+        philosophy = (name, ph_bytes)
+    return render_report(results, src.name, study_bytes, philosophy,
+                         results_json=io.to_json(results.to_dict()),
+                         units=units or study_unit_system(results.input), paper=paper,
+                         environ=dict(os.environ if environ is None else environ),
+                         pdf_renderer=pdf_renderer)
+
+
+#: What each embedded file is (its PDF description); verify re-creates the same.
+DESCRIPTIONS = {"study": "The study file (input)",
+                "results": "The results (JSON, keys carry their units)",
+                "philosophy": "The setting philosophy (input)"}
+
+
+def render_report(results, study_name: str, study_bytes: bytes,
+                  philosophy: tuple[str, bytes] | None, *, results_json: str, units: str,
+                  paper: str, environ: dict[str, str], pdf_renderer=None) -> ReportFiles:
+    """The report of ``results`` from its input files, named and given as bytes.
+
+    The one rendering path: ``relayset report`` calls it with the files it read, and
+    ``relayset verify`` with the files an archived report embeds (to re-create its pages).
+    """
+    from relayset.report.context import build_context
+    from relayset.report.html import render_html
+    from relayset.report.pdf import EmbeddedFile, html_to_pdf
+
+    ctx = build_context(results, units=units, paper=paper, environ=environ,
+                        results_json=results_json)
+    html = render_html(ctx, study_bytes.decode("utf-8"))
+    files = [
+        EmbeddedFile(study_name, study_bytes, DESCRIPTIONS["study"], "Source"),
+        EmbeddedFile(f"{ctx['doc_id']}.results.json", results_json.encode("utf-8"),
+                     DESCRIPTIONS["results"], "Data"),
+    ]
+    if philosophy is not None:
+        files.append(EmbeddedFile(philosophy[0], philosophy[1], DESCRIPTIONS["philosophy"],
+                                  "Source"))
+    when = ctx["when"]  # the generation time the pages print, also the PDF's dates
     pdf = (pdf_renderer or html_to_pdf)(html, files, when)
-    return ReportFiles(ctx["doc_id"], html, pdf, results_json, str(src))
+    return ReportFiles(ctx["doc_id"], html, pdf, results_json, str(results.source_file),
+                       n_failed=ctx["n_failed"])
 
 
 def report_for_study(path: str | Path, units: str | None = None,

@@ -115,7 +115,8 @@ def safe_stem(line_id: str, revision: str) -> str:
 
 @dataclass(frozen=True)
 class Dates:
-    """The document date: from SOURCE_DATE_EPOCH, else the study's revision date."""
+    """When the report was generated (SOURCE_DATE_EPOCH, else now); the revision date is
+    the study's and printed apart from it."""
 
     when: dt.datetime  #: UTC, used for the PDF metadata and the attachments
 
@@ -124,22 +125,25 @@ class Dates:
         return self.when.date().isoformat()
 
     @property
+    def generated_text(self) -> str:
+        """The generation time as printed: date and time to the minute, UTC."""
+        return self.when.strftime("%Y-%m-%d %H:%M UTC")
+
+    @property
     def iso(self) -> str:
         return self.when.strftime("%Y-%m-%dT%H:%M:%SZ")
 
 
 def document_date(identity: dict[str, Any], environ: dict[str, str]) -> Dates:
-    """The date the report carries, so that the same input gives the same bytes.
-
-    SOURCE_DATE_EPOCH (the reproducible-builds convention) wins; otherwise the study's
-    revision date at 00:00 UTC; otherwise today's date (still the same bytes within a day).
+    """When the report is generated: SOURCE_DATE_EPOCH (the reproducible-builds convention:
+    the same input then gives the same bytes) wins, otherwise the time now (UTC, whole
+    seconds). The study's revision date is not the document's date: it is printed apart.
+    ``relayset verify`` makes a report again at the creation date its PDF records.
     """
     sde = environ.get("SOURCE_DATE_EPOCH", "").strip()
     if sde.isdigit():
         return Dates(dt.datetime.fromtimestamp(int(sde), tz=dt.UTC))
-    rev = identity.get("revision_date")
-    day = dt.date.fromisoformat(rev) if rev else dt.datetime.now(dt.UTC).date()
-    return Dates(dt.datetime(day.year, day.month, day.day, tzinfo=dt.UTC))
+    return Dates(dt.datetime.now(dt.UTC).replace(microsecond=0))
 
 
 # --------------------------------------------------------------------------- building blocks
@@ -500,6 +504,7 @@ def _settings_ends(d: dict[str, Any]) -> list[dict[str, Any]]:
     """One block per relay end, in the order of the results (``settings.ends``)."""
     if d.get("settings") is None:
         return []
+    from relayset.report.failures import failed_checks
     from relayset.settings.context import ZONE_LABELS
 
     P = PRECISION
@@ -543,8 +548,8 @@ def _settings_ends(d: dict[str, Any]) -> list[dict[str, Any]]:
                           "consider": w["consider"]} for w in s["warnings"]],
             "shape_kind": (lambda k: k.pop() if len(k) == 1 else "mixed")(
                 {z["shape"] for z in s["zones"].values()}),
-            "failed_checks": [(name, c["check_id"]) for name, z in s["zones"].items()
-                              for c in z["checks"] if not c["passed"]],
+            # the one count (relayset.report.failures): setting rules and verification
+            "failed_checks": [f for f in failed_checks(d) if f.end == str(s["end"])],
             "settings_dict": {**s, "zones": zones},
         })
     return out
@@ -558,9 +563,64 @@ def _reported(c: dict[str, Any]) -> str | None:
     return f"{text}; {c['consider']}" if c.get("consider") else text
 
 
+#: What a margin means (results/verification.py), printed with the verification table.
+MARGIN_MEANING = (
+    "Margin: how much longer (for a must-not-operate check) or shorter (for a must-operate "
+    "check) the zone could be, in % of its reach, before the governing case would change "
+    "side; a check passes when its smallest margin over all cases run is at least the "
+    "required margin (the verification tolerance). \u2013: no case could change side.")
+
+#: Labels of the relay model's keys (results ``verification.relay_model``), in print order.
+RELAY_MODEL_LABELS = (
+    ("phase_selection", "phase selection"),
+    ("directional", "directional elements"),
+    ("min_operating_current_primary_a", "minimum operating current, primary [A]"),
+    ("min_operating_current_secondary_a", "minimum operating current, secondary [A]"),
+    ("ground_release_current_primary_a", "ground-loop release current, primary [A]"),
+    ("ground_release_current_secondary_a", "ground-loop release current, secondary [A]"),
+    ("mutual_compensation_supervision", "mutual compensation supervised"),
+)
+
+
+def _ohm_text(text: str) -> str:
+    """One notation in the report: "Ω" for ohm and "−" for a minus sign before a digit."""
+    text = re.sub(r"\bohm\*m\b", "\u03a9\u00b7m", text)
+    text = re.sub(r"\bohms?\b", "\u03a9", text)
+    return re.sub(r"(?<![\w.])-(?=\d)", "\u2212", text)
+
+
+def _case_text(g: dict[str, Any]) -> str:
+    """A governing fault case in words (everything needed to reproduce it)."""
+    return _ohm_text(
+        f"{g['fault_type']} on the {g['faulted']} at {num(g['location_pct'], PRECISION['pct'])}"
+        f" %, Rf {num(g['r_fault_ohm'], 3)} \u03a9, Rph {num(g.get('r_phase_ohm'), 3)} \u03a9, "
+        f"{g['source_case']}, transfer angle {num(g.get('transfer_angle_deg'), 1)}\u00b0, "
+        f"parallel circuit {g['parallel_state'].replace('_', ' ')}, "
+        f"{g['earth_resistivity_ohm_m']:g} \u03a9\u00b7m, loop {g['loop']}")
+
+
+def _relay_model(rm: dict[str, Any] | None) -> list[tuple[str, list[tuple[str, str]]]]:
+    """The relay the verification assumes, per end: (end, [(label, value)])."""
+    out = []
+    for end, model in (rm or {}).items():
+        if not isinstance(model, dict):
+            continue
+        rows = []
+        for key, label in RELAY_MODEL_LABELS:
+            if key in model:
+                v = model[key]
+                rows.append((label, "yes" if v is True else "no" if v is False else
+                             num(v, 2) if isinstance(v, float) else str(v).replace("_", " ")))
+        rows += [(str(k).replace("_", " "), str(v)) for k, v in model.items()
+                 if k not in dict(RELAY_MODEL_LABELS)]
+        out.append((str(end), rows))
+    return out
+
+
 def _verification(r) -> dict[str, Any]:
-    """The verification section: one row per relay end and check; "not verified" when the
-    study has none (parameters or reach only)."""
+    """The verification section: its basis (envelope, relay model, tolerance, what margin
+    means) and one row per relay end and check (requirement, cases run and failed, margin
+    and required margin, governing case); "not verified" when the study has none."""
     v = getattr(r, "verification", None)
     if v is None:
         return {"verdict": NOT_VERIFIED, "present": False, "zones": []}
@@ -569,36 +629,42 @@ def _verification(r) -> dict[str, Any]:
     # One row per end and check (results/verification.py: ends[].checks[]).
     for e in vd.get("ends", []) or []:
         for c in e.get("checks", []) or []:
-            fails = []
-            if c.get("result") == "FAIL":
-                g = c.get("governing_case")
-                case = c.get("requirement", "")
-                if g:
-                    case = (f"{g['fault_type']} on the {g['faulted']} at "
-                            f"{num(g['location_pct'], PRECISION['pct'])} %, Rf "
-                            f"{g['r_fault_ohm']:.3g} ohm, {g['source_case']}, parallel "
-                            f"{g['parallel_state']}, {g['earth_resistivity_ohm_m']:g} ohm*m, "
-                            f"loop {g['loop']}")
-                detail = str(c.get("consider", ""))
-                dev = c.get("accepted_deviation")
-                if dev:  # the study accepts this failure (results/verification.py)
-                    detail += (f"; accepted deviation ({dev.get('accepted_by', '')}, "
-                               f"{dev.get('date', '')}): {dev.get('reason', '')}")
-                fails.append({"case": case, "detail": detail})
+            g = c.get("governing_case")
+            result = c.get("result", "")
+            dev = c.get("accepted_deviation")
+            # the study accepts this failure (results/verification.py)
+            accepted = (f"accepted deviation ({dev.get('accepted_by', '')}, "
+                        f"{dev.get('date', '')}): {dev.get('reason', '')}") if dev else ""
             zones.append({
                 "end": str(e.get("end", "")),
-                "zone": f"{c.get('zone', '')} {c.get('check_id', '')}",
-                "cases_run": str(c.get("cases_run", "–")),
+                "zone": str(c.get("zone", "")),
+                "check_id": str(c.get("check_id", "")),
+                "requirement": _ohm_text(str(c.get("requirement", ""))),
+                "cases_run": f"{c.get('cases_run', 0):,}".replace(",", "\u2009"),
+                "cases_failed": f"{c.get('cases_failed', 0):,}".replace(",", "\u2009"),
                 "margin": num(c.get("margin_pct"), PRECISION["pct"]),
-                "fails": fails,
+                "required": num(c.get("required_margin_pct"), PRECISION["pct"]),
+                "result": result,
+                "case": _case_text(g) if g else "",
+                "consider": _ohm_text(str(c.get("consider", ""))) if result == "FAIL" else "",
                 # a finding reported without a pass/fail limit (e.g. zone 3's coverage of
                 # the adjacent line at the largest infeed) is printed in full
                 "reported": _reported(c),
+                "accepted": accepted,
+                # kept for readers of the old layout: the failure in one line
+                "fails": ([{"case": _case_text(g) if g else str(c.get("requirement", "")),
+                            "detail": str(c.get("consider", ""))}] if result == "FAIL" else []),
             })
     return {"verdict": str(vd.get("verdict", NOT_VERIFIED)), "present": True, "zones": zones,
             "deviations": [{k: str(x.get(k, "")) for k in
                             ("end", "check", "reason", "accepted_by", "date")}
-                           for x in vd.get("accepted_deviations") or []]}
+                           for x in vd.get("accepted_deviations") or []],
+            "reason": _ohm_text(str(vd.get("reason", ""))),
+            "tolerance": num(vd.get("tolerance_pct"), 1),
+            "cases_solved": f"{vd.get('cases_solved', 0):,}".replace(",", "\u2009"),
+            "basis": [_ohm_text(str(n)) for n in vd.get("notes", []) or []],
+            "relay_model": _relay_model(vd.get("relay_model")),
+            "margin_meaning": MARGIN_MEANING}
 
 
 def build_context(results, *, units: str = "si", paper: str = "a4",
@@ -637,8 +703,10 @@ def build_context(results, *, units: str = "si", paper: str = "a4",
     verification = _verification(results)
     settings = _settings_ends(d)
     reach = _reach(d)
-    failed = verification["verdict"] == "failed checks" or any(
-        s["failed_checks"] for s in settings)
+    from relayset.report.failures import DEFINITION, failed_checks
+
+    failures = failed_checks(d)
+    failed = verification["verdict"] == "failed checks" or bool(failures)
     # Only an approved calculation without failed checks is for use.
     not_for_use = ident["status"] != "approved" or failed
     ctx: dict[str, Any] = {
@@ -661,7 +729,11 @@ def build_context(results, *, units: str = "si", paper: str = "a4",
         "settings": settings,
         "verification": verification,
         "failed": failed,
+        "n_failed": len(failures),
+        "failed_definition": DEFINITION,
         "not_for_use": not_for_use,
+        "generated": dates.generated_text,
+        "when": dates.when,  # one time for the pages, the metadata and the attachments
         "philosophy": _philosophy_rows(d.get("philosophy")),
         "keywords": f"{ident['line_id']}, revision {ident['revision']}, distance protection, "
                     "setting calculation",
@@ -670,6 +742,8 @@ def build_context(results, *, units: str = "si", paper: str = "a4",
     # the embedded files against the metadata as well as against the printed page.
     ctx["keywords"] += (f", study file SHA-256 {ctx['source_sha256']}, results JSON SHA-256 "
                         f"{ctx['results_sha256']}")
+    # and how the pages were made, so that verify can make them again from the embedded files
+    ctx["keywords"] += f", units {units}, paper {paper}"
     ctx["figures"] = plots.figures(results, d, ctx)
     return ctx
 

@@ -142,6 +142,51 @@ def _dedupe_af(document, pdf) -> None:
     af[:] = unique
 
 
+#: The signature fields a report carries: the element id of each one's box in the HTML
+#: (templates/report/report.html.j2) and the field name (relayset.archive.signatures.FIELDS).
+SIGNATURE_BOXES = {"sig-prepared": "relayset_prepared", "sig-checked": "relayset_checked",
+                   "sig-approved": "relayset_approved"}
+_PT_PER_PX = 0.75  # CSS px (1/96 in) to PDF points (1/72 in)
+
+
+def _signature_fields(document, pdf) -> None:
+    """An empty signature field over each signature box of the pages, so that relayset or a
+    PDF reader that signs can fill it. Each widget is printable and has an (empty)
+    appearance, as PDF/A asks of an annotation; the form has no /SigFlags until signed."""
+    import pydyf
+
+    fields = pydyf.Array()
+    kids = pdf.pages["Kids"][::3]
+    for number, page in zip(kids, document.pages, strict=False):
+        for anchor, name in SIGNATURE_BOXES.items():
+            if anchor not in page.anchors:
+                continue
+            x1, y1, x2, y2 = (v * _PT_PER_PX for v in page.anchors[anchor])
+            top = page.height * _PT_PER_PX
+            rect = [x1, top - y2, x2, top - y1]
+            look = pydyf.Stream([], {"Type": "/XObject", "Subtype": "/Form",
+                                     "BBox": pydyf.Array([0, 0, x2 - x1, y2 - y1])})
+            pdf.add_object(look)
+            widget = pydyf.Dictionary({
+                "Type": "/Annot", "Subtype": "/Widget", "FT": "/Sig",
+                "T": pydyf.String(name), "TU": pydyf.String(name.split("_")[-1]),
+                "Rect": pydyf.Array(rect), "F": 4, "P": f"{number} 0 R".encode(),
+                "AP": pydyf.Dictionary({"N": look.reference})})
+            pdf.add_object(widget)
+            pdf_page = pdf.objects[number]
+            if "Annots" not in pdf_page:
+                pdf_page["Annots"] = pydyf.Array()
+            pdf_page["Annots"].append(widget.reference)
+            fields.append(widget.reference)
+    if fields:
+        pdf.catalog["AcroForm"] = pydyf.Dictionary({"Fields": fields})
+
+
+def _finish(document, pdf) -> None:
+    _dedupe_af(document, pdf)
+    _signature_fields(document, pdf)
+
+
 def html_to_pdf(html: str, files: Sequence[EmbeddedFile], when: dt.datetime,
                 requested: list[str] | None = None) -> bytes:
     """PDF/A-3b bytes of the report.
@@ -179,7 +224,7 @@ def html_to_pdf(html: str, files: Sequence[EmbeddedFile], when: dt.datetime,
         try:
             rendered = doc.render()
             return rendered.write_pdf(pdf_variant="pdf/a-3b", attachments=attachments,
-                                      finisher=_dedupe_af, uncompressed_pdf=False)
+                                      finisher=_finish, uncompressed_pdf=False)
         finally:
             log.setLevel(level)
 

@@ -34,7 +34,9 @@ MARKERS = ("o", "s", "^", "d", "v", "x")
 GROUNDING = {"continuous": "earthed at every tower", "segmented":
              "segmented, earthed at one point", "none": "insulated"}
 #: Fonts [user units] (figures are 640 units wide, about 170 mm on paper).
-FS, FS_SMALL, FS_LABEL = 9.0, 8.0, 10.0
+# Font sizes [user units]: a 640-unit figure is printed 176 mm wide (0.78 pt per unit), so
+# 10.4 units print at 8.1 pt, the report's smallest type.
+FS, FS_SMALL, FS_LABEL = 10.8, 10.4, 12.0
 MINUS = "\u2212"
 
 
@@ -48,6 +50,15 @@ def _n(v: float, digits: int = 2) -> str:
 def _style(k: int, width: float = 1.1) -> dict[str, Any]:
     return {"stroke": GREYS[k % len(GREYS)], "stroke_width": f(width),
             "stroke_dasharray": DASHES[k % len(DASHES)] or None}
+
+
+#: Zone colours of the R-X diagram (Okabe and Ito's colour-blind-safe set); each zone keeps
+#: its dash pattern too, so a black-and-white print still tells them apart.
+ZONE_COLOURS = ("#0072B2", "#009E73", "#D55E00", "#CC79A7")
+
+
+def _zone_style(k: int, width: float = 1.1) -> dict[str, Any]:
+    return _style(k, width) | {"stroke": ZONE_COLOURS[k % len(ZONE_COLOURS)]}
 
 
 def _sample(svg: Svg, x: float, y: float, style: dict[str, Any], marker: str | None = None,
@@ -196,9 +207,9 @@ def reach_error_svg(end: dict[str, Any], index: int) -> str:
     smallest (the same line, thinner, with markers). An arrangement marked as a repeat of
     another (the same line) is not drawn again."""
     arrs = [a for a in end["arrangements"] if not a.get("repeat_of")]
-    pw, ph = 280.0, 100.0
-    x0s = (52.0, 52.0 + pw + 22.0)
-    top_pad, row_pad, bottom_pad = 52.0, 22.0, 34.0
+    pw, ph = 270.0, 100.0  # the last tick label (100 %) stays inside the 640 units
+    x0s = (52.0, 52.0 + pw + 26.0)
+    top_pad, row_pad, bottom_pad = 66.0, 24.0, 36.0
     height = top_pad + len(arrs) * ph + (len(arrs) - 1) * row_pad + bottom_pad
     svg = Svg(height, f"reach error, relay at {end['end']}")
     all_y = [v for a in arrs for key in ("bolted_reach_error_max_pct",
@@ -228,8 +239,8 @@ def reach_error_svg(end: dict[str, Any], index: int) -> str:
             _sample(svg, lx + 23, 25, _style(k, 0.7), MARKERS[k], length=20)
             svg.text(lx + 47, 28, lp, FS_SMALL, fill="#000")
             k += 1
-    svg.text(x0s[1] + pw, 12, "heavy: largest · light with markers: smallest", FS_SMALL,
-             "end", fill="#000")
+    svg.text(x0s[0], 44, "per loop, heavy: the largest error; light with markers: the "
+             "smallest", FS_SMALL, fill="#000")
     for r, a in enumerate(arrs):
         env = a["envelope"]
         y0 = top_pad + r * (ph + row_pad)
@@ -339,14 +350,14 @@ def rx_svg(end: dict[str, Any], verification: dict[str, Any] | None = None) -> s
         regions = z["region_primary_ohm"]
         if z["shape"] == "mho":  # one circle for phase and ground loops
             kind, geo, frame = _region_shape(regions["phase_loops"])
-            shapes.append((kind, geo, _style(k, 1.2), f"{z['label']} (mho)",
+            shapes.append((kind, geo, _zone_style(k, 1.2), f"{z['label']} (mho)",
                            {"data_zone": name, "data_loops": "phase_loops ground_loops"}))
             pts += frame
         else:
             for key, width, lab in (("phase_loops", 1.3, "phase loops"),
                                     ("ground_loops", 0.6, "ground loops")):
                 kind, geo, frame = _region_shape(regions[key])
-                shapes.append((kind, geo, _style(k, width), f"{z['label']}, {lab}",
+                shapes.append((kind, geo, _zone_style(k, width), f"{z['label']}, {lab}",
                                {"data_zone": name, "data_loops": key}))
                 pts += frame
     cases = _governing_cases(verification, s["end"])
@@ -354,9 +365,8 @@ def rx_svg(end: dict[str, Any], verification: dict[str, Any] | None = None) -> s
     phi = math.radians(s["load"]["load_angle_max_deg"])
     re_, im_ = [q.real for q in pts], [q.imag for q in pts]
     lo_r, hi_r, lo_x, hi_x = min(re_), max(re_), min(im_), max(im_)
-    # Both load regions (export R > 0 and import R < 0) are checked: show their fronts.
-    front = zmin * 1.08
-    lo_r, hi_r = min(lo_r, -front), max(hi_r, front)
+    # Scaled to the zones (and the governing cases near them): the load region is drawn
+    # where it falls inside, and the legend says how far it is when it is outside.
     size = max(hi_r - lo_r, hi_x - lo_x)
     # Governing cases: shown where they fall unless far out (then clamped at the edge).
     box = (lo_r - 0.3 * size, hi_r + 0.3 * size, lo_x - 0.3 * size, hi_x + 0.3 * size)
@@ -377,8 +387,9 @@ def rx_svg(end: dict[str, Any], verification: dict[str, Any] | None = None) -> s
     R = Axis(lo_r, hi_r, left, right)
     X = Axis(lo_x, hi_x, top + ph, top)
     n_legend = len(shapes) + 2 + (1 if cases else 0)
-    legend_rows = math.ceil(n_legend / 3) + len(cases)
-    height = top + ph + 34 + legend_rows * 13 + 6
+    case_lines = [_case_lines(n, c) for n, c in enumerate(cases, 1)]
+    legend_rows = math.ceil(n_legend / 2) + sum(len(x) for x in case_lines)
+    height = top + ph + 38 + legend_rows * ROW + 6
     svg = Svg(height, f"R-X diagram, relay at {s['end']}")
     svg.text(left, 13, f"Relay at {s['end']} (primary ohms)", FS, fill="#000",
              font_weight="bold")
@@ -442,17 +453,19 @@ def rx_svg(end: dict[str, Any], verification: dict[str, Any] | None = None) -> s
                  stroke_width="0.9", fill="#fff" if c["result"] != "FAIL" else "#000")
         svg.text(cx + 5, cy - 4, str(n), FS_SMALL, fill="#000", font_weight="bold")
     svg.close()
-    # Legend, three entries a row, then one row per governing case.
+    # Legend, two entries a row, then the governing cases (one or two rows each).
     entries = [(label, style) for _, _, style, label, _ in shapes]
-    y = top + ph + 38
+    y = top + ph + 40
+    outside = zmin * math.cos(phi) > max(abs(lo_r), abs(hi_r))
     items: list[tuple[str, Any]] = [*entries, ("line replica Z1", "replica"),
-                                    (f"load region (|Z| ≥ {_n(zmin, 1)} Ω, "
-                                     f"±{_n(math.degrees(phi), 0)}°)", "load")]
+                                    (f"load region |Z| ≥ {_n(zmin, 1)} Ω, "
+                                     f"±{_n(math.degrees(phi), 0)}°"
+                                     + (" (outside this frame)" if outside else ""), "load")]
     if cases:
-        items.append(("governing fault case (filled: FAIL; × outside the plot)", "case"))
+        items.append(("governing case (filled: FAIL; × off the plot)", "case"))
     for i, (label, style) in enumerate(items):
-        lx = left + (i % 3) * 192
-        ly = y + (i // 3) * 13
+        lx = left + (i % 2) * 288
+        ly = y + (i // 2) * ROW
         if style == "replica":
             svg.lines([(lx, ly, lx + 26, ly)], stroke="#000", stroke_width="2.4")
         elif style == "load":
@@ -464,16 +477,27 @@ def rx_svg(end: dict[str, Any], verification: dict[str, Any] | None = None) -> s
         else:
             _sample(svg, lx, ly, style)
         svg.text(lx + 31, ly + 3, label, FS_SMALL, fill="#000")
-    y += math.ceil(len(items) / 3) * 13
-    for n, c in enumerate(cases, 1):
-        g = c["case"]
-        z = c["z"]
-        svg.text(left, y + 3, f"{n}  {c['check']} ({c['result']}): {g['fault_type']} on the "
-                 f"{g['faulted']} at {_n(g['location_pct'], 1)} %, Rf {_n(g['r_fault_ohm'], 1)}"
-                 f" Ω, loop {g['loop']}, Z = {_n(z.real, 1)} {'+' if z.imag >= 0 else MINUS}"
-                 f" j{_n(abs(z.imag), 1)} Ω", FS_SMALL, fill="#000")
-        y += 13
+    y += math.ceil(len(items) / 2) * ROW
+    for lines in case_lines:
+        for k, line in enumerate(lines):
+            svg.text(left + (14 if k else 0), y + 3, line, FS_SMALL, fill="#000")
+            y += ROW
     return svg.render()
+
+
+#: Height of a legend row [user units].
+ROW = 15.0
+
+
+def _case_lines(n: int, c: dict[str, Any]) -> list[str]:
+    """A governing case of the R-X diagram's legend, in one or two lines that fit."""
+    g, z = c["case"], c["z"]
+    head = f"{n}  {c['check']} ({c['result']}):"
+    body = (f"{g['fault_type']} on the {g['faulted']} at {_n(g['location_pct'], 1)} %, "
+            f"Rf {_n(g['r_fault_ohm'], 1)} Ω, loop {g['loop']}, Z = {_n(z.real, 1)} "
+            f"{'+' if z.imag >= 0 else MINUS} j{_n(abs(z.imag), 1)} Ω")
+    one = f"{head} {body}"
+    return [one] if text_width(one, FS_SMALL) <= 570 else [head, body]
 
 
 def _clip_box(poly: list[complex], lo_r: float, hi_r: float, lo_x: float,

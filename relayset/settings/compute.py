@@ -238,8 +238,9 @@ def compute_settings(
             cut = max(r_ph, r_g) > r_limit
             checks.append(Check(
                 "resistive_load_limit", not cut,
-                f"resistive reach phase {r_ph:.4g} Ω, ground {r_g:.4g} Ω against the load "
-                f"limit {r_limit:.4g} Ω (primary)",
+                f"resistive reach needed (arc and footing): phase {r_ph:.4g} Ω, ground "
+                f"{r_g:.4g} Ω; set: phase {min(r_ph, r_limit):.4g} Ω, ground "
+                f"{min(r_g, r_limit):.4g} Ω; load limit {r_limit:.4g} Ω (primary)",
             ))
             if cut:
                 w.warn(
