@@ -76,8 +76,8 @@ def _fleet_parsers(sub) -> None:
                    help="certificate of a trust anchor for the signatures (repeatable)")
     p = sub.add_parser("sign", help="sign a report's prepared, checked or approved field",
                        description="Sign one role's signature field of a report PDF (PAdES, an "
-                       "incremental update that keeps PDF/A-3b and the embedded files). Needs "
-                       "relayset[sign].")
+                       "incremental update that keeps PDF/A-3b and the embedded files). Uses "
+                       "pyHanko.")
     p.add_argument("report", metavar="REPORT.pdf")
     p.add_argument("--role", required=True, choices=("prepared", "checked", "approved"))
     p.add_argument("--key", required=True, metavar="KEY.pem", help="the signer's private key")

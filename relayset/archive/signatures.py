@@ -1,7 +1,8 @@
 """Digital signatures of a report, one per role (prepared, checked, approved), with pyHanko.
 
-pyHanko is an optional extra (``pip install relayset[sign]``): relayset makes and verifies
-reports without it, and says so where a signature would need it.
+pyHanko is a dependency of relayset (imported only here, when a signature is made or
+read); where it is missing relayset still makes and verifies reports and says so where a
+signature would need it.
 
 A report carries three empty signature fields, one per role (:data:`FIELDS`), so that
 relayset or any PDF reader that signs can fill them. A signature is an incremental update
@@ -51,7 +52,7 @@ class Signature:
 
 
 def available() -> bool:
-    """pyHanko is installed (relayset[sign])."""
+    """pyHanko is installed."""
     import importlib.util
 
     return importlib.util.find_spec("pyhanko") is not None
@@ -173,7 +174,7 @@ def sign_report(src: Path, out: Path, *, role: str, key: Path, cert: Path,
         raise InputError(f"must be one of {', '.join(ROLES)}", field="--role", value=role,
                          source="command line")
     if not available():
-        raise InputError("signing needs pyHanko: pip install 'relayset[sign]'",
+        raise InputError("signing needs pyHanko: pip install pyhanko",
                          field="sign", source="command line")
     _quiet()
     from pyhanko.pdf_utils.incremental_writer import IncrementalPdfFileWriter

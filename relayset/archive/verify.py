@@ -281,7 +281,7 @@ def check_updates(a: Archive, sigs: list | None) -> Check:
     if len(ends) > 1:
         if sigs is None:
             problems.append(f"{len(ends) - 1} update(s) appended; telling signatures from "
-                            "other changes needs pyHanko (pip install 'relayset[sign]')")
+                            "other changes needs pyHanko (pip install pyhanko)")
         else:
             signed = {s.revision_end for s in sigs}
             for k, end in enumerate(ends[1:], start=2):
@@ -304,7 +304,7 @@ def _signature_checks(a: Archive, trust) -> tuple[list | None, list[Check]]:
         if len(revision_ends(a.data)) > 1:
             return None, []
         return None, [Check("signatures", None, "none (reading them needs pyHanko: pip "
-                            "install 'relayset[sign]')")]
+                            "install pyhanko)")]
     try:
         sigs = sg.read_signatures(a.data, trust)
     except Exception as exc:  # the library's, on a hostile file
