@@ -15,6 +15,7 @@ import json
 import math
 import re
 import tomllib
+from pathlib import Path
 
 import pytest
 from numpy.testing import assert_allclose
@@ -32,6 +33,16 @@ from conftest import DEMO
 D132 = "ashcombe_brenwick_132kv.toml"
 D230 = "elsford_fallowby_230kv_double.toml"
 D115 = "kessler_oxbow_115kv.toml"
+
+
+def _ct_at_rating(x: dict) -> None:
+    """The 115 kV demo without its CT rating factor: the CT check then fails (600 A rated
+    against 669 A of load), which gives the deviation tests a failed check to accept."""
+    x["relay"].pop("ct_rating_factor", None)
+
+
+def _failing_115(variant) -> Path:
+    return variant(D115, _ct_at_rating, "failing.toml")
 
 
 # --------------------------------------------------------------------------- helpers
@@ -278,10 +289,11 @@ def _deviation(end, check, **kw):
 
 def test_all_failures_accepted_is_verified_with_deviations_and_exit_0(variant, tmp_path,
                                                                       capsys):
-    code, d = _json(DEMO / D115, tmp_path)
+    code, d = _json(_failing_115(variant), tmp_path)
     fails = _failures(d)
     assert fails and code == 3
-    path = variant(D115, lambda x: x.update(deviations=[_deviation(e, c) for e, c in fails]))
+    path = variant(D115, lambda x: (_ct_at_rating(x), x.update(
+        deviations=[_deviation(e, c) for e, c in fails])))
     capsys.readouterr()
     code, d2 = _json(path, tmp_path)
     out = capsys.readouterr().out
@@ -296,8 +308,8 @@ def test_all_failures_accepted_is_verified_with_deviations_and_exit_0(variant, t
             assert (c["accepted_deviation"] is not None) == (c["result"] == "FAIL")
     # One failure left open: still failed, exit 3 (the count of accepted ones said).
     if len(fails) > 1:
-        path = variant(D115, lambda x: x.update(
-            deviations=[_deviation(e, c) for e, c in fails[1:]]), "partial.toml")
+        path = variant(D115, lambda x: (_ct_at_rating(x), x.update(
+            deviations=[_deviation(e, c) for e, c in fails[1:]])), "partial.toml")
         code, d3 = _json(path, tmp_path)
         assert code == 3 and d3["verification"]["verdict"] == "failed checks"
 
@@ -305,10 +317,10 @@ def test_all_failures_accepted_is_verified_with_deviations_and_exit_0(variant, t
 def test_report_lists_accepted_deviations(variant, tmp_path):
     from relayset.report.context import _verification
 
-    _, d = _json(DEMO / D115, tmp_path)
+    _, d = _json(_failing_115(variant), tmp_path)
     fails = _failures(d)
-    path = variant(D115, lambda x: x.update(deviations=[
-        _deviation(e, c, reason="<b>tap</b> & memo") for e, c in fails]))
+    path = variant(D115, lambda x: (_ct_at_rating(x), x.update(deviations=[
+        _deviation(e, c, reason="<b>tap</b> & memo") for e, c in fails])))
     res = pipeline.run(path, settings=True)
     ctx = _verification(res)
     assert ctx["verdict"] == "verified with accepted deviations"
@@ -365,9 +377,10 @@ def test_bad_deviation_refused_with_one_line(capsys, tmp_path, variant, edit, fi
 
 
 def test_accepting_a_failure_twice_is_refused(capsys, tmp_path, variant):
-    _, d = _json(DEMO / D115, tmp_path)
+    _, d = _json(_failing_115(variant), tmp_path)
     end, check = _failures(d)[0]
-    path = variant(D115, lambda x: x.update(deviations=[_deviation(end, check)] * 2))
+    path = variant(D115, lambda x: (_ct_at_rating(x), x.update(
+        deviations=[_deviation(end, check)] * 2)))
     capsys.readouterr()
     assert main(["settings", str(path)]) == 2
     assert "deviations[1].check" in capsys.readouterr().err
@@ -387,6 +400,7 @@ def test_ct_rating_against_max_load(variant, ratio, factor, primary, judged):
 
     def edit(d):
         d["relay"]["ct_ratio"] = ratio
+        _ct_at_rating(d)
         if factor is not None:
             d["relay"]["ct_rating_factor"] = factor
 

@@ -653,7 +653,9 @@ def _verification(r) -> dict[str, Any]:
                 "accepted": accepted,
                 # kept for readers of the old layout: the failure in one line
                 "fails": ([{"case": _case_text(g) if g else str(c.get("requirement", "")),
-                            "detail": str(c.get("consider", ""))}] if result == "FAIL" else []),
+                            "detail": "; ".join(x for x in (str(c.get("consider", "")),
+                                                            accepted) if x)}]
+                          if result == "FAIL" else []),
             })
     return {"verdict": str(vd.get("verdict", NOT_VERIFIED)), "present": True, "zones": zones,
             "deviations": [{k: str(x.get(k, "")) for k in
