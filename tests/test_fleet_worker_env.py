@@ -82,3 +82,28 @@ def test_retuned_worker_reuses_freed_memory_instead_of_mapping_it_again():
     assert _probe({"MALLOC_TRIM_THRESHOLD_": "65537"}) == ("False", 4)
     # Nothing set: glibc adapts by itself, nothing to do.
     assert _probe({}) == ("False", 0)
+
+
+def test_a_cluster_line_runs_outside_the_task_thread(monkeypatch):
+    # Dask's worker profiler samples only the threads running tasks
+    # (distributed/worker.py, Worker.trigger_profile: active_threads), so the line must run
+    # in another thread while the task thread waits; its result and errors come back.
+    import threading
+
+    from relayset.fleet import worker
+
+    task_thread = threading.get_ident()
+    seen = {}
+
+    def fake_line(index, study_path, stem, report, parent):
+        seen["thread"] = threading.get_ident()
+        if index < 0:
+            raise ValueError("bad line")
+        return (index, study_path, stem, report)
+
+    monkeypatch.setattr(worker, "compute_line", fake_line)
+    monkeypatch.setattr(worker, "_prepare_cluster_worker", lambda report: None)
+    assert worker.compute_line_on_cluster(3, "a.toml", "a", False) == (3, "a.toml", "a", False)
+    assert seen["thread"] != task_thread
+    with pytest.raises(ValueError, match="bad line"):
+        worker.compute_line_on_cluster(-1, "a.toml", "a", False)
