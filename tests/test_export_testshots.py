@@ -173,3 +173,29 @@ def test_export_writes_csv_json_and_comtrade_with_the_umask(studies, tmp_path):
     cfgs = {p.stem for p in paths if p.suffix == ".cfg"}
     dats = {p.stem for p in paths if p.suffix == ".dat"}
     assert cfgs == dats == ids
+
+
+def test_report_table_per_end_escapes_the_end_name(tmp_path):
+    # A hostile substation name: escaped in the report's test-point table, and only its
+    # safe characters reach the file names.
+    from relayset.report.context import build_context
+    from relayset.report.html import render_html
+
+    text = (DEMO / "kessler_oxbow_115kv.toml").read_text(encoding="utf-8")
+    text = text.replace("Kessler Junction", "Kessler <i>Jct</i>")
+    path = tmp_path / "hostile.toml"
+    path.write_text(text, encoding="utf-8")
+    r = api.study_settings(path)
+    ctx = build_context(r, environ={"SOURCE_DATE_EPOCH": "0"})
+    (t,) = ctx["test_points"]
+    zones = {x.zone for x in r.settings[0].zones}
+    # one row per zone, kind of loop and ray (mho: diameter and +-30 deg)
+    assert len(t["rows"]) == len(zones) * 2 * 3
+    assert all(row["in_expected"] and row["out_expected"] for row in t["rows"])
+    html = render_html(ctx, text)
+    assert "Test points for secondary injection" in html
+    assert "Relay at Kessler &lt;i&gt;Jct&lt;/i&gt;: test current 5 A" in html
+    assert "<i>Jct" not in html.split("Test points for secondary injection")[1]
+    paths = testshots.export_test_cases(r, tmp_path / "out")
+    assert all(re.fullmatch(r"[A-Za-z0-9.-]+", p.name) for p in paths)
+    assert {p.parent.name for p in paths} == {"out", "end1-Kessler-i-Jct-i"}

@@ -352,21 +352,23 @@ def shots_json(shots: list[TestShot], basis: EndBasis, results) -> dict[str, Any
 
 
 def table_rows(shots: list[TestShot]) -> list[dict[str, str]]:
-    """Compact rows for the report: one per zone, kind of loop, ray and side (the three
-    loops of a kind share the point)."""
-    rows = []
-    seen = set()
+    """Compact rows for the report: one per zone, kind of loop and ray, with the point
+    inside and the point outside (the three loops of a kind share the points)."""
+    from relayset.settings.context import ZONE_LABELS
+
+    rows: dict[tuple, dict[str, str]] = {}
     for s in shots:
-        key = (s.zone, s.ground, s.ray, s.side)
-        if key in seen:
-            continue
-        seen.add(key)
-        rows.append({"zone": s.zone, "kind": "ground" if s.ground else "phase",
-                     "ray": s.ray, "side": f"{s.fraction * 100:.0f} %",
-                     "z_sec": f"{abs(s.z_secondary_ohm):.3g} \u2220 "
-                              f"{math.degrees(cmath.phase(s.z_secondary_ohm)):.1f}\u00b0",
-                     "expected": s.expected})
-    return rows
+        key = (s.zone, s.ground, s.ray)
+        row = rows.setdefault(key, {"zone": ZONE_LABELS.get(s.zone, s.zone),
+                                    "kind": "ground" if s.ground else "phase",
+                                    "ray": s.ray})
+        row[s.side] = (f"{abs(s.z_secondary_ohm):.4g} \u2220 "
+                       f"{math.degrees(cmath.phase(s.z_secondary_ohm)):.1f}\u00b0")
+        row[f"{s.side}_pct"] = f"{s.fraction * 100:.0f}"
+        row[f"{s.side}_expected"] = (
+            "no operation" if s.expected_zone is None else
+            f"{ZONE_LABELS.get(s.expected_zone, s.expected_zone)}, {s.expected_delay_s:g} s")
+    return list(rows.values())
 
 
 def export_test_cases(results, out_dir: Path, *, sample_rate_hz: float = 4000.0,
