@@ -169,7 +169,9 @@ def test_export_writes_csv_json_and_comtrade_with_the_umask(studies, tmp_path):
     assert len(rows) == len(js["shots"])
     ids = {c["id"] for c in js["comtrade"]["cases"]}
     assert {s["shot_id"] for s in js["shots"]} <= ids
-    assert any(c["kind"] == "governing case" for c in js["comtrade"]["cases"])
+    governing = [c for c in js["comtrade"]["cases"] if c["kind"] == "governing case"]
+    assert governing and all(c["verification_case"]["z_apparent_primary_ohm"]
+                             for c in governing)
     cfgs = {p.stem for p in paths if p.suffix == ".cfg"}
     dats = {p.stem for p in paths if p.suffix == ".dat"}
     assert cfgs == dats == ids
@@ -199,3 +201,18 @@ def test_report_table_per_end_escapes_the_end_name(tmp_path):
     paths = testshots.export_test_cases(r, tmp_path / "out")
     assert all(re.fullmatch(r"[A-Za-z0-9.-]+", p.name) for p in paths)
     assert {p.parent.name for p in paths} == {"out", "end1-Kessler-i-Jct-i"}
+
+
+def test_shot_below_the_minimum_operating_current_expects_no_operation(studies):
+    # The verification's relay model: no loop operates below its minimum operating current
+    # (relay_model.py); a shot the voltage limit brings below it expects no operation.
+    import dataclasses
+
+    r = studies["kessler_oxbow_115kv"]
+    s, b = r.settings[0], testshots.end_bases(r)[0]
+    assert b.min_current_a == r.verification.relay_model[s.end][
+        "min_operating_current_secondary_a"]
+    assert any(x.expected_zone for x in testshots.test_shots(s, b))
+    high = dataclasses.replace(b, min_current_a=10 * b.i_test)
+    assert all(x.expected_zone is None and x.expected == "no operation"
+               for x in testshots.test_shots(s, high))

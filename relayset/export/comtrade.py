@@ -67,6 +67,8 @@ class Case:
     delay_s: float | None  #: expected operating delay, None: no operation expected
     kind: str  #: "test shot" or "governing case"
     description: str
+    #: the verification case it stands for (``VerificationCase.to_dict()``), governing cases
+    source_case: dict | None = None
 
 
 def shot_cases(shots, basis) -> list[Case]:
@@ -108,7 +110,7 @@ def governing_cases(results, settings, basis) -> list[Case]:
         out.append(Case(f"{basis.stem}-case-{_slug(c.zone)}-{_slug(c.check_id)}", v_pre,
                         np.zeros(3, complex), v, i, None, "governing case",
                         f"{c.zone}.{c.check_id}: {g.loop} of {g.fault_type} at "
-                        f"{g.location_pct:g} %"))
+                        f"{g.location_pct:g} %", g.to_dict()))
     return out
 
 
@@ -224,6 +226,7 @@ def manifest(cases: list[Case], basis, *, sample_rate_hz: float, duration_s: flo
         "dc_offset_tau_s": tau_s(basis),
         "governing_cases_formed_from": "the governing loop's apparent impedance under the "
                                        "test-set convention (not re-solved)",
-        "cases": [{"id": c.case_id, "kind": c.kind, "description": c.description}
+        "cases": [{"id": c.case_id, "kind": c.kind, "description": c.description,
+                   **({} if c.source_case is None else {"verification_case": c.source_case})}
                   for c in cases],
     }

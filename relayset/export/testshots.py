@@ -17,7 +17,8 @@ at 0°; common practice, no source):
 
 - prefault: balanced nominal voltages :math:`V_n = V_{nom}/(\sqrt3\,n_{VT})`, no current;
 - test current :math:`I_t` the CT's rated secondary current (1 A where the study gives
-  only a ratio), lowered where the loop voltage would exceed 80 % of nominal;
+  only a ratio), lowered where the loop voltage would exceed 80 % of nominal (a shot whose
+  current falls below the relay model's minimum operating current expects no operation);
 - ground loop X: only phase X carries current, :math:`I_X = I_t e^{j(\angle V_{X,pre} -
   \angle Z(1+k_0))}`, so :math:`I_{res} = I_X` and
   :math:`V_X = Z\,(I_X + k_0 I_{res})` (the relay's own k0); healthy phases at nominal;
@@ -189,6 +190,8 @@ class EndBasis:
     frequency_hz: float
     z_source_ohm: complex | None  #: the source behind the relay (its X/R: the DC offset)
     phase_labels: tuple[str, ...]
+    #: the relay model's minimum operating current in each phase of a loop [A secondary]
+    min_current_a: float = 0.0
 
 
 def end_bases(results) -> list[EndBasis]:
@@ -203,10 +206,13 @@ def end_bases(results) -> list[EndBasis]:
         primary = getattr(ct, "primary_a", None)
         i_test = primary / float(ct) if primary else DEFAULT_TEST_CURRENT_A
         zs = next((x.z_source_ohm for x in s.sources if x.role == "relay"), None)
+        model = ((results.verification.relay_model or {}).get(s.end, {})
+                 if results.verification is not None else {})
+        i_min = float(model.get("min_operating_current_secondary_a") or 0.0)
         out.append(EndBasis(s.end, end_stem(n, s.end), s.secondary_factor,
                             results.parameters.v_nominal_v / (math.sqrt(3) * vt), i_test,
                             float(ct), float(vt), results.relay.k0_set,
-                            results.parameters.frequency_hz, zs, labels))
+                            results.parameters.frequency_hz, zs, labels, i_min))
     return out
 
 
@@ -251,12 +257,15 @@ def test_shots(settings, basis: EndBasis) -> list[TestShot]:
                     for loop in (_GROUND if ground else _PHASE):
                         v_pre, v, i = loop_phasors(loop, z_sec, basis.k0, basis.v_nom,
                                                    basis.i_test)
+                        # below the relay's minimum operating current nothing operates
+                        low = np.abs(i).max() < basis.min_current_a
                         sid = f"{basis.stem}-{zs.zone}-{loop}-{_RAY_IDS[ray]}-{side}"
                         if sid in seen:  # two edges of one name: never one file for both
                             sid = f"{sid}-{len(shots)}"
                         seen.add(sid)
                         shots.append(TestShot(sid, settings.end, zs.zone, loop, ground, ray,
-                                              side, f, psi, z, z_sec, ez, ed, v_pre, v, i,
+                                              side, f, psi, z, z_sec, None if low else ez,
+                                              None if low else ed, v_pre, v, i,
                                               basis.k0))
     return shots
 
