@@ -147,8 +147,8 @@ def test_ground_shot_matches_the_stated_formula():
 def test_safe_file_names():
     # Names come from the end's position and its safe characters only.
     for end in ("../../etc/passwd", "a,b\r\nc", "\u202ebad", "", "K\u00f8ge / Nord"):
-        stem = testshots.end_stem(0, end)
-        assert re.fullmatch(r"end1-[A-Za-z0-9-]+", stem), stem
+        stem = testshots.end_stem(0, end, "L_rev0")
+        assert re.fullmatch(r"L_rev0-end1-[A-Za-z0-9-]+", stem), stem
 
 
 def test_export_writes_csv_json_and_comtrade_with_the_umask(studies, tmp_path):
@@ -165,6 +165,14 @@ def test_export_writes_csv_json_and_comtrade_with_the_umask(studies, tmp_path):
     csv_path = next(p for p in paths if p.name.endswith("test-points.csv"))
     js = json.loads(next(p for p in paths if p.name.endswith("test-points.json")).read_text())
     assert js["schema"] == "relayset-test-points/1"
+    # the published schema, checked by a validator from the package registry (jsonschema)
+    jsonschema = pytest.importorskip("jsonschema")
+    schema = testshots.test_points_schema()
+    jsonschema.Draft202012Validator.check_schema(schema)
+    jsonschema.Draft202012Validator(schema).validate(js)
+    bad = dict(js, shots=[dict(js["shots"][0], side="middle")])
+    with pytest.raises(jsonschema.ValidationError):
+        jsonschema.Draft202012Validator(schema).validate(bad)
     rows = list(csv.DictReader(io.StringIO(csv_path.read_text(encoding="utf-8-sig"))))
     assert len(rows) == len(js["shots"])
     ids = {c["id"] for c in js["comtrade"]["cases"]}
@@ -199,8 +207,8 @@ def test_report_table_per_end_escapes_the_end_name(tmp_path):
     assert "Relay at Kessler &lt;i&gt;Jct&lt;/i&gt;: test current 5 A" in html
     assert "<i>Jct" not in html.split("Test points for secondary injection")[1]
     paths = testshots.export_test_cases(r, tmp_path / "out")
-    assert all(re.fullmatch(r"[A-Za-z0-9.-]+", p.name) for p in paths)
-    assert {p.parent.name for p in paths} == {"out", "end1-Kessler-i-Jct-i"}
+    assert all(re.fullmatch(r"[A-Za-z0-9._-]+", p.name) for p in paths)
+    assert {p.parent.name for p in paths} == {"out", "PR-KO-115_rev0-end1-Kessler-i-Jct-i"}
 
 
 def test_shot_below_the_minimum_operating_current_expects_no_operation(studies):

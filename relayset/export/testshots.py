@@ -170,9 +170,12 @@ def _slug(text: str, n: int = 40) -> str:
     return re.sub(r"[^A-Za-z0-9]+", "-", text).strip("-")[:n].strip("-") or "end"
 
 
-def end_stem(index: int, end: str) -> str:
-    """Safe file stem of a relay end: its position and its name's safe characters."""
-    return f"end{index + 1}-{_slug(end)}"
+def end_stem(index: int, end: str, study_stem: str = "") -> str:
+    """Safe file stem of a relay end: the study's report stem (line id and revision, so
+    several studies can share a folder), the end's position and its name's safe characters.
+    """
+    lead = f"{study_stem}-" if study_stem else ""
+    return f"{lead}end{index + 1}-{_slug(end)}"
 
 
 @dataclass(frozen=True)
@@ -197,8 +200,10 @@ class EndBasis:
 def end_bases(results) -> list[EndBasis]:
     """The basis of every relay end of a study with settings."""
     from relayset.inputs.study_file import parse_study
+    from relayset.report.context import safe_stem
 
     study = parse_study(results.input, results.source_file)
+    doc_stem = safe_stem(results.study["line_id"], results.study["revision"])
     labels = tuple(study.circuits[0].phase_labels)
     out = []
     for n, s in enumerate(results.settings or ()):
@@ -209,7 +214,7 @@ def end_bases(results) -> list[EndBasis]:
         model = ((results.verification.relay_model or {}).get(s.end, {})
                  if results.verification is not None else {})
         i_min = float(model.get("min_operating_current_secondary_a") or 0.0)
-        out.append(EndBasis(s.end, end_stem(n, s.end), s.secondary_factor,
+        out.append(EndBasis(s.end, end_stem(n, s.end, doc_stem), s.secondary_factor,
                             results.parameters.v_nominal_v / (math.sqrt(3) * vt), i_test,
                             float(ct), float(vt), results.relay.k0_set,
                             results.parameters.frequency_hz, zs, labels, i_min))
@@ -380,12 +385,65 @@ def table_rows(shots: list[TestShot]) -> list[dict[str, str]]:
     return list(rows.values())
 
 
+def test_points_schema() -> dict[str, Any]:
+    """JSON Schema (draft 2020-12) of the ``relayset-test-points/1`` file."""
+    num = {"type": "number"}
+    pair = {"type": "array", "items": num, "minItems": 2, "maxItems": 2}
+    phasors = {"type": "object", "minProperties": 3, "maxProperties": 3,
+               "additionalProperties": pair}
+    shot = {
+        "type": "object", "additionalProperties": False,
+        "required": ["shot_id", "zone", "loop", "loop_kind", "ray", "side",
+                     "fraction_of_reach", "ray_angle_deg", "z_primary_ohm",
+                     "z_secondary_ohm", "expected", "prefault_v_secondary", "v_secondary",
+                     "i_secondary", "phases"],
+        "properties": {
+            "shot_id": {"type": "string", "pattern": "^[A-Za-z0-9._-]+$"},
+            "zone": {"enum": ["zone1", "zone2", "zone3", "reverse"]},
+            "loop": {"type": "string"}, "loop_kind": {"enum": ["phase", "ground"]},
+            "ray": {"enum": sorted(_RAY_IDS)}, "side": {"enum": ["in", "out"]},
+            "fraction_of_reach": num, "ray_angle_deg": num,
+            "z_primary_ohm": pair, "z_secondary_ohm": pair,
+            "expected": {"type": "object", "required": ["zone", "delay_s", "text"],
+                         "additionalProperties": False,
+                         "properties": {"zone": {"type": ["string", "null"]},
+                                        "delay_s": {"type": ["number", "null"]},
+                                        "text": {"type": "string"}}},
+            "prefault_v_secondary": phasors, "v_secondary": phasors, "i_secondary": phasors,
+            "phases": {"type": "object", "additionalProperties": {"type": "string"}},
+        }}
+    case = {"type": "object", "required": ["id", "kind", "description"],
+            "properties": {"id": {"type": "string", "pattern": "^[A-Za-z0-9._-]+$"},
+                           "kind": {"enum": ["test shot", "governing case"]},
+                           "description": {"type": "string"},
+                           "verification_case": {"type": "object"}}}
+    return {
+        "$schema": "https://json-schema.org/draft/2020-12/schema",
+        "$id": "https://relayset.invalid/schemas/test-points.json",
+        "title": "relayset test points", "type": "object",
+        "required": ["schema", "end", "source_sha256", "convention", "shots", "comtrade",
+                     "nominal_phase_voltage_v", "ct_ratio", "vt_ratio", "k0",
+                     "frequency_hz"],
+        "properties": {
+            "schema": {"const": SCHEMA}, "end": {"type": "string"},
+            "line_id": {"type": ["string", "null"]}, "revision": {"type": ["string", "null"]},
+            "source_sha256": {"type": "string", "pattern": "^[0-9a-f]{64}$"},
+            "convention": {"type": "object"}, "nominal_phase_voltage_v": num,
+            "ct_ratio": num, "vt_ratio": num, "secondary_factor": num, "k0": pair,
+            "frequency_hz": num, "shots": {"type": "array", "items": shot},
+            "comtrade": {"type": "object", "required": ["standard", "folder", "cases"],
+                         "properties": {"cases": {"type": "array", "items": case}}},
+        },
+    }
+
+
 def export_test_cases(results, out_dir: Path, *, sample_rate_hz: float = 4000.0,
                       duration_s: float = 0.5) -> list[Path]:
     """Write the test points (CSV, JSON) and the COMTRADE cases of every relay end.
 
     Files: ``OUT/<end stem>-test-points.csv|json`` and
-    ``OUT/comtrade/<end stem>/<shot or case id>.cfg|dat``. All are formed first and then
+    ``OUT/comtrade/<end stem>/<shot or case id>.cfg|dat``, the end stem
+    ``<line id>_rev<revision>-end<N>-<end name's safe characters>``. All are formed first and then
     written together (:func:`relayset.io.write_all`: all or none, the user's umask).
 
     Parameters
