@@ -224,3 +224,60 @@ def test_shot_below_the_minimum_operating_current_expects_no_operation(studies):
     high = dataclasses.replace(b, min_current_a=10 * b.i_test)
     assert all(x.expected_zone is None and x.expected == "no operation"
                for x in testshots.test_shots(s, high))
+
+
+# Property: for any valid quadrilateral or mho (random reaches, angles, tilt, directional
+# line, left blinder, forward or reverse), every shot straddles the one characteristic's
+# boundary and the relay's loop impedance from its phasors is the point (identities).
+from hypothesis import given, settings  # noqa: E402
+from hypothesis import strategies as st  # noqa: E402
+
+from relayset.physics.characteristic import Mho, Quadrilateral  # noqa: E402
+
+
+class _Zone:
+    def __init__(self, ch, name="zone1", delay=0.0):
+        self.ch, self.zone, self.delay_s = ch, name, delay
+
+    def characteristic(self, ground, theta):
+        return self.ch
+
+
+class _End:
+    def __init__(self, zone, theta):
+        self.zones, self.line_angle_rad, self.end = (zone,), theta, "X"
+
+    def zone(self, name):
+        return self.zones[0]
+
+
+@st.composite
+def _characteristics(draw):
+    theta = math.radians(draw(st.floats(45, 88)))
+    direction = draw(st.sampled_from(["forward", "reverse"]))
+    if draw(st.booleans()):
+        ang = theta if direction == "forward" else theta + math.pi
+        return Mho(draw(st.floats(0.5, 200)), ang, direction), theta
+    tilt = math.radians(draw(st.floats(-10, 20)))
+    delta = theta - math.radians(draw(st.floats(60, 120)))
+    return Quadrilateral(draw(st.floats(0.5, 200)), draw(st.floats(0.5, 200)), theta,
+                         r_left_ohm=draw(st.one_of(st.none(), st.floats(0, 100))),
+                         direction=direction, tilt_rad=tilt,
+                         directional_angle_rad=draw(st.one_of(st.none(), st.just(delta)))
+                         ), theta
+
+
+@settings(max_examples=60, deadline=None)
+@given(_characteristics(), st.floats(0.05, 2.0),
+       st.builds(complex, st.floats(-0.3, 1.5), st.floats(-0.5, 0.5)))
+def test_property_shots_straddle_any_boundary(chth, factor, k0):
+    ch, theta = chth
+    basis = testshots.EndBasis("X", "s", factor, 63.5, 1.0, 100.0, 1000.0, k0, 50.0,
+                               None, ("A", "B", "C"))
+    shots = testshots.test_shots(_End(_Zone(ch), theta), basis)
+    assert len({s.shot_id for s in shots}) == len(shots) >= 2 * 3 * 2 * 3
+    for s in shots:
+        assert bool(ch.contains(s.z_primary_ohm)) == (s.side == "in")
+        assert s.expected_zone == ("zone1" if s.side == "in" else None)
+        z = loop_impedances(s.v, s.i, k0)[s.loop]
+        assert_allclose(z / factor, s.z_primary_ohm, rtol=1e-9, atol=0)
