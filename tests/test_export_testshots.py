@@ -17,10 +17,13 @@ import re
 
 import numpy as np
 import pytest
+from hypothesis import given, settings
+from hypothesis import strategies as st
 from numpy.testing import assert_allclose
 
 from relayset import api
 from relayset.export import testshots
+from relayset.physics.characteristic import Mho, Quadrilateral
 from relayset.physics.measurement import loop_impedances
 from relayset.resources import demo_lines_dir
 
@@ -229,11 +232,6 @@ def test_shot_below_the_minimum_operating_current_expects_no_operation(studies):
 # Property: for any valid quadrilateral or mho (random reaches, angles, tilt, directional
 # line, left blinder, forward or reverse), every shot straddles the one characteristic's
 # boundary and the relay's loop impedance from its phasors is the point (identities).
-from hypothesis import given, settings  # noqa: E402
-from hypothesis import strategies as st  # noqa: E402
-
-from relayset.physics.characteristic import Mho, Quadrilateral  # noqa: E402
-
 
 class _Zone:
     def __init__(self, ch, name="zone1", delay=0.0):
