@@ -747,6 +747,9 @@ def build_context(results, *, units: str = "si", paper: str = "a4",
     # and how the pages were made, so that verify can make them again from the embedded files
     ctx["keywords"] += f", units {units}, paper {paper}"
     ctx["figures"] = plots.figures(results, d, ctx)
+    from relayset.export.testshots import report_tables
+
+    ctx["test_points"] = report_tables(results)
     return ctx
 
 
