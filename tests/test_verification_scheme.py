@@ -562,3 +562,22 @@ def test_bad_philosophy_file_one_line_exit_2_nothing_written(capsys, tmp_path, v
     err = capsys.readouterr().err.strip()
     assert not out.exists() and len(err.splitlines()) == 1 and "Traceback" not in err
     assert f"{ph}: {field} = {value}: " in err, err
+
+
+@pytest.mark.parametrize("kind, check", [
+    ("permissive_underreach", "overlaps_remote_zone1"),
+    ("blocking", "covers_remote_zone2"),
+])
+def test_scheme_on_a_study_with_one_relay_end(variant, tmp_path, capsys, kind, check):
+    # Regression: a study that sets the relay at one end only, under a scheme that compares
+    # both ends' relays, stopped with a traceback (the other end's relay was not measured).
+    phil = tmp_path / "scheme.toml"
+    phil.write_text(f'[scheme]\nkind = "{kind}"\n', "utf-8")
+    path = variant("ashcombe_brenwick_132kv.toml",
+                   lambda x: x["study"].update(philosophy=str(phil)))
+    assert tomllib.loads(path.read_text("utf-8"))["relay"]["end"] != "both"
+    code, d = _json(path, tmp_path)
+    assert code in (0, 3)
+    assert "Traceback" not in capsys.readouterr().err
+    ids = [c["check_id"] for e in d["verification"]["ends"] for c in e["checks"]]
+    assert check in ids

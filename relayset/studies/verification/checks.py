@@ -466,6 +466,16 @@ def worst_remote_bus_scale(sim: Simulation, end: str, st: SettingsResult, model:
     return worst if math.isfinite(worst) else None
 
 
+def measured_ends(philosophy: Philosophy | None, judged: Sequence[str],
+                  names: Sequence[str]) -> tuple[str, ...]:
+    """The ends whose relays' views the simulation keeps: the judged ones, and both ends
+    where the communication scheme's checks compare the two relays (current reversal,
+    zone 1 overlap)."""
+    if philosophy is not None and philosophy.scheme.kind != "none":
+        return tuple(names)
+    return tuple(judged)
+
+
 def measure_for(study: Study, geo: LineGeometry, settings_by_end: dict[str, SettingsResult],
                 judged: Sequence[str] | None = None) -> Measure:
     """What to keep of each solved run: the views of the relays of these settings (their
@@ -528,9 +538,10 @@ def verify_settings(study: Study, geo: LineGeometry, params_by_rho: dict[float, 
         settings_by_end.values())))
     if simulation is None:
         m = verification_grid(settings_by_end, names, t)
-        wanted = {e: st for e, st in settings_by_end.items() if ends is None or e in ends}
+        judged = [e for e in settings_by_end if ends is None or e in ends]
         sim = simulate(study, geo, params_by_rho, env, m=m, source=source,
-                       measure=measure_for(study, geo, wanted))
+                       measure=measure_for(study, geo, settings_by_end,
+                                           measured_ends(philosophy, judged, names)))
     else:
         sim = simulation
     results = []

@@ -22,6 +22,7 @@ from relayset.studies.verification.checks import (
     check_tolerance,
     infeed_range,
     measure_for,
+    measured_ends,
     relay_model_at,
     resistive_targets,
     rf_mask,
@@ -111,8 +112,9 @@ def settle_and_verify(study: Study, geo: LineGeometry, params: LineParameters, r
     # (k0, k0m and relay model, which the closing does not change).
     m_sim = verification_grid(prelim, names, t)
     env0 = build_envelope(study, resistive_targets(study, list(prelim.values())))
-    # (the end the study does not ask for is not judged: its infeed alone is needed)
-    measure = measure_for(study, geo, prelim, wanted)
+    # (the end the study does not ask for is not judged: its infeed alone is needed, unless
+    # the scheme's checks need its relay's view as well: current reversal, zone 1 overlap)
+    measure = measure_for(study, geo, prelim, measured_ends(philosophy, wanted, names))
     sim0 = simulate(study, geo, by_rho, env0, m=m_sim, source=source, measure=measure)
     models = {end: relay_model_at(study, end) for end in names}
     st_tower = study.fault_resistance.tower_footing_resistance
@@ -181,7 +183,8 @@ def settle_and_verify(study: Study, geo: LineGeometry, params: LineParameters, r
     # The verification reuses the simulation, with the final zone 1 points solved on top
     # (solved afresh only if the final settings changed what the envelope sweeps).
     env = build_envelope(study, resistive_targets(study, list(final.values())))
-    same_relays = measure_for(study, geo, final, wanted) == measure
+    same_relays = measure_for(study, geo, final,
+                              measured_ends(philosophy, wanted, names)) == measure
     sim = None
     if env == env0 and same_relays:
         m_new = verification_grid(final, names, t)
