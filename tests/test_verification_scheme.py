@@ -581,3 +581,23 @@ def test_scheme_on_a_study_with_one_relay_end(variant, tmp_path, capsys, kind, c
     assert "Traceback" not in capsys.readouterr().err
     ids = [c["check_id"] for e in d["verification"]["ends"] for c in e["checks"]]
     assert check in ids
+
+
+@pytest.mark.parametrize("zone2, need_s, passes", [
+    # Short of the adjacent zone 1: only the adjacent zone 1 clears first, 0.1 + 0.2 s.
+    ("", 0.3, True),
+    # Past it (zone 2 at 170 % of the line): the adjacent zone 2 first, 0.35 + 0.1 + 0.2 s.
+    ('rule = "line_pct"\nreach_pct = 170.0\n', 0.65, False),
+])
+def test_time_graded_zone2_waits_for_what_it_overlaps(variant, tmp_path, zone2, need_s,
+                                                       passes):
+    # Grading times: the philosophy defaults (common practice, no source).
+    phil = tmp_path / "graded.toml"
+    phil.write_text(f'[zone2]\ngrading = "time_graded"\n{zone2}', "utf-8")
+    path = variant("ashcombe_brenwick_132kv.toml",
+                   lambda x: x["study"].update(philosophy=str(phil)))
+    _, d = _json(path, tmp_path)
+    c = next(c for e in d["verification"]["ends"] for c in e["checks"]
+             if c["check_id"] == "delay_graded_with_adjacent_protection")
+    assert f"at least {need_s:g} s" in c["requirement"]
+    assert (c["result"] == "pass") is passes

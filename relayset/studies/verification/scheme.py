@@ -97,6 +97,18 @@ def zone2_grading(st: SettingsResult, z2p: Zone2Philosophy, lines, inf: InfeedRa
         f"{remote_bus}) at the minimum infeed K = {abs(inf.k_min):.3g} ({inf.case_min}) "
         f"with {t:g} % margin (philosophy: zone 2 graded {graded})",
         1, 0 if ok else 1, margin, t, ok, None, "" if ok else remedy))
+    if z2p.grading != "short_of_adjacent_zone1":
+        # A time-graded zone 2 waits for the adjacent zone 2 only where it reaches past the
+        # adjacent zone 1; where it stays short of it (margin t at the minimum infeed, where
+        # it reaches furthest) the adjacent zone 1 alone clears first.
+        p1 = z_l + inf.k_min * z2p.adjacent_zone1_pct / 100 * zs
+        s1 = float(z2.reach_scale(np.array([p1]), theta)[0])
+        if not math.isfinite(s1) or (s1 - 1) * 100 >= t - 1e-9:
+            need = z2p.adjacent_zone1_clearing_s + z2p.grading_margin_s
+            need_text = (f"zone 2 stays short of the adjacent zone 1 ({z2p.adjacent_zone1_pct:g} "
+                         f"% of '{name}') at the minimum infeed, so it waits only for the "
+                         f"adjacent zone 1 clearing time {z2p.adjacent_zone1_clearing_s:g} s "
+                         f"plus the grading margin {z2p.grading_margin_s:g} s")
     out.append(delay_check(z2.delay_s, need, need_text))
     return out
 
