@@ -601,3 +601,46 @@ def test_time_graded_zone2_waits_for_what_it_overlaps(variant, tmp_path, zone2, 
              if c["check_id"] == "delay_graded_with_adjacent_protection")
     assert f"at least {need_s:g} s" in c["requirement"]
     assert (c["result"] == "pass") is passes
+
+
+@pytest.mark.parametrize("field, value, words", [
+    ("accepted_by", "X", ["at least two letters"]),
+    ("accepted_by", "-", ["at least two letters"]),
+    ("reason", "x", ["at least five letters"]),
+    ("reason", "ok", ["at least five letters"]),
+])
+def test_deviation_needs_a_person_and_a_reason(capsys, tmp_path, variant, field, value, words):
+    # Rule of this project: an accepted deviation names who accepted it and why, as the
+    # sign-off names do (README, accepted deviations).
+    path = variant(D115, lambda x: x.update(deviations=[_deviation(
+        "Kessler Junction", "zone3.clear_of_load", **{field: value})]))
+    out = tmp_path / "x.json"
+    capsys.readouterr()
+    assert main(["settings", str(path), "--json", str(out)]) == 2 and not out.exists()
+    err = capsys.readouterr().err.strip()
+    assert len(err.splitlines()) == 1 and f"deviations[0].{field} = " in err
+    for w in words:
+        assert w in err, err
+
+
+def test_a_failed_setting_rule_check_can_be_accepted_too(variant, tmp_path, capsys):
+    # The 230 kV demo fails checks of the verification and a setting rule of its own
+    # (zone 2's resistive reach cut by the load limit). With every one accepted the study is
+    # verified with accepted deviations and `settings` exits 0; the one count of failed
+    # checks (relayset.report.failures) is then 0.
+    from relayset.report.failures import failed_checks
+
+    demo = "elsford_fallowby_230kv_double.toml"
+    code, d = _json(variant(demo, lambda x: None, "plain.toml"), tmp_path)
+    rules = [(e["end"], f"{z}.{c['check_id']}") for e in d["settings"]["ends"]
+             for z, zone in e["zones"].items() for c in zone["checks"] if not c["passed"]]
+    assert code == 3 and rules  # the demo fails a setting rule on purpose
+    every = _failures(d) + rules
+    path = variant(demo, lambda x: x.update(
+        deviations=[_deviation(e, c) for e, c in every]), "accepted.toml")
+    code, d2 = _json(path, tmp_path)
+    assert code == 0, capsys.readouterr()
+    assert d2["verification"]["verdict"] == "verified with accepted deviations"
+    assert sorted((x["end"], x["check"]) for x in d2["verification"]["accepted_deviations"]
+                  ) == sorted(every)
+    assert failed_checks(d2) == []

@@ -658,6 +658,20 @@ def _said(max_len: int) -> Callable[[Any], str]:
     return check
 
 
+def _reason(v: Any) -> str:
+    """Why a failed check is accepted: words, not a mark ("x", "-", "ok")."""
+    v = _said(2000)(v)
+    if sum(c.isalpha() for c in v) < 5:
+        raise ValueError("must say why the failure is accepted (at least five letters)")
+    return v
+
+
+def _accepter(v: Any) -> str:
+    """Who accepted a deviation: a person's name, at least two letters."""
+    v = _said(100)(v)
+    return PersonName(v)
+
+
 def _check_name(v: Any) -> str:
     """A check as the verification JSON names it: zone and check id, "zone2.covers_whole_line"."""
     v = _text(200, min_len=1)(v)
@@ -673,8 +687,8 @@ class Deviation:
 
     check: str = spec(_check_name)
     end: str = spec(_text(100, min_len=1))  #: the relay end whose check failed
-    reason: str = spec(_said(2000))
-    accepted_by: str = spec(_said(100))
+    reason: str = spec(_reason)
+    accepted_by: str = spec(_accepter)
     date: dt.date = spec(schema.date)
 
 

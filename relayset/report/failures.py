@@ -32,11 +32,14 @@ class FailedCheck(NamedTuple):
 def failed_checks(d: dict[str, Any]) -> list[FailedCheck]:
     """Every failed check of a study, from its results dictionary (``to_dict()``)."""
     out = []
+    accepted = {(str(x.get("end")), str(x.get("check")))
+                for x in (d.get("verification") or {}).get("accepted_deviations", []) or []}
     for end in (d.get("settings") or {}).get("ends", []) or []:
         for zone, z in (end.get("zones") or {}).items():
             out += [FailedCheck(str(end.get("end")), str(zone), str(c.get("check_id")),
                                 "setting rule")
-                    for c in z.get("checks", []) or [] if c.get("passed") is False]
+                    for c in z.get("checks", []) or [] if c.get("passed") is False
+                    and (str(end.get("end")), f"{zone}.{c.get('check_id')}") not in accepted]
     for end in (d.get("verification") or {}).get("ends", []) or []:
         out += [FailedCheck(str(end.get("end")), str(c.get("zone")), str(c.get("check_id")),
                             "verification")

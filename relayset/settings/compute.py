@@ -203,18 +203,22 @@ def compute_settings(
             r_reach_ground_primary_ohm=None, r_reach_ground_secondary_ohm=None,
             arc_resistance_phase_ohm=None, arc_resistance_ground_ohm=None,
         )
+        # The fault resistance a zone must see (Warrington's arc, plus tower footing to
+        # ground) is the same for every shape: a quadrilateral's blinders are set from it, a
+        # mho zone is only tested against it (its circle decides its resistive coverage).
+        rs = ph.resistive
+        t_arc = delay if rs.arc_time_s == "zone_delay" else float(rs.arc_time_s)
+        ra_ph = float(zp.warrington_arc_resistance_ohm(
+            arc_i, i.arc_length_phase_m, rs.wind_speed_m_per_s, t_arc))
+        ra_g = float(zp.warrington_arc_resistance_ohm(
+            arc_i, i.arc_length_ground_m, rs.wind_speed_m_per_s, t_arc))
         if not quad:
             ang = char_angle if forward else math.remainder(char_angle + math.pi, 2 * math.pi)
             d = float(zp.mho_diameter_for_point_ohm(target, ang))
             mho.update(char_angle_rad=ang, mho_diameter_primary_ohm=d,
                        mho_diameter_secondary_ohm=sec(d))
+            qd.update(arc_resistance_phase_ohm=ra_ph, arc_resistance_ground_ohm=ra_g)
         else:
-            rs = ph.resistive
-            t_arc = delay if rs.arc_time_s == "zone_delay" else float(rs.arc_time_s)
-            ra_ph = float(zp.warrington_arc_resistance_ohm(
-                arc_i, i.arc_length_phase_m, rs.wind_speed_m_per_s, t_arc))
-            ra_g = float(zp.warrington_arc_resistance_ohm(
-                arc_i, i.arc_length_ground_m, rs.wind_speed_m_per_s, t_arc))
             m = 1 + rs.margin_pct / 100
             r_ph = m * ra_ph / 2
             r_g = m * (ra_g + i.tower_footing_ohm) / abs(1 + k0)

@@ -143,9 +143,10 @@ def _finish(zone: str, check_id: str, requirement: str, acc: _Acc, required: flo
 
 
 def resistive_target(zone: ZoneSetting, tower_ohm: float) -> tuple[float, float]:
-    """(R_g, R_ph) a zone must cover [ohm]: a quadrilateral's arc plus tower footing to
-    ground and its arc between phases; bolted (0, 0) for a zone without resistive target."""
-    if zone.shape == "quadrilateral" and zone.arc_resistance_ground_ohm is not None:
+    """(R_g, R_ph) a zone must cover [ohm]: its arc plus tower footing to ground and its arc
+    between phases, for every shape (a mho zone included: its circle must reach them too);
+    bolted (0, 0) for a zone without resistive target (the reverse and zone 3 zones)."""
+    if zone.arc_resistance_ground_ohm is not None and zone.zone in ("zone1", "zone2"):
         return zone.arc_resistance_ground_ohm + tower_ohm, zone.arc_resistance_phase_ohm
     return 0.0, 0.0
 
@@ -391,8 +392,16 @@ def _resistive_need(chk: ZoneVerification, zone: ZoneSetting, theta: float,
                     st: SettingsResult) -> ZoneVerification:
     """Add to a failed must-operate check the resistive reach its governing case needs."""
     g = chk.governing_case
-    if chk.passed or g is None or zone.shape != "quadrilateral":
+    if chk.passed or g is None:
         return chk
+    if zone.shape != "quadrilateral":
+        # A mho zone's resistive coverage is its circle's: no blinder to widen.
+        return replace(chk, consider=(
+            f"the governing case goes through {g.r_fault_ohm:.4g} Ω to ground and "
+            f"{g.r_phase_ohm:.4g} Ω between phases (arc plus tower footing), which the mho "
+            "circle does not reach; cover such faults with a quadrilateral ground "
+            "characteristic, or leave them to the line's ground overcurrent protection and "
+            "record that as an accepted deviation"))
     z = g.z_apparent_primary_ohm
     need = z.real - z.imag / math.tan(theta)  # blinder offset through the case [ohm]
     ground = g.loop.endswith("-G")
@@ -556,7 +565,9 @@ def verify_settings(study: Study, geo: LineGeometry, params_by_rho: dict[float, 
                                   model=models[end],
                                   zone2_adjacent_zone1_pct=zone2_adjacent_zone1_pct,
                                   philosophy=philosophy))
-    results, accepted = deviations.apply_deviations(study, results, source)
+    rule_checks = {end: {f"{z.zone}.{c.check_id}": c.passed for z in st.zones
+                         for c in z.checks} for end, st in settings_by_end.items()}
+    results, accepted = deviations.apply_deviations(study, results, source, rule_checks)
     verdict, reason = deviations.verdict(results, accepted)
     n_cases = sim.n_cases
     notes = (

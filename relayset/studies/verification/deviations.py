@@ -9,16 +9,22 @@ is "verified with accepted deviations" when every failed check is accepted, and 
 
 from __future__ import annotations
 
-from collections.abc import Sequence
+from collections.abc import Mapping, Sequence
 
 from relayset.errors import InputError, suggest
 from relayset.inputs.study_file import Study
 from relayset.results.verification import AcceptedDeviation, EndVerification
 
 
-def apply_deviations(study: Study, ends: Sequence[EndVerification], source: str
+def apply_deviations(study: Study, ends: Sequence[EndVerification], source: str,
+                     setting_checks: Mapping[str, Mapping[str, bool]] | None = None
                      ) -> tuple[tuple[EndVerification, ...], tuple[AcceptedDeviation, ...]]:
     """Mark the failed checks the study accepts; refuse entries that accept nothing.
+
+    ``setting_checks`` maps each verified end to its settings' own checks of the zones
+    (``"zone.check_id"`` -> passed, e.g. ``"zone2.resistive_load_limit"``): a failed one may
+    be accepted as well; it is listed among the accepted deviations, and the one count of
+    failed checks (relayset.report.failures) leaves it out.
 
     Entries for a relay end not verified in this run (``relayset settings`` of one end) are
     left aside: whether they name a failing check is decided where that end is verified.
@@ -38,12 +44,17 @@ def apply_deviations(study: Study, ends: Sequence[EndVerification], source: str
         if e is None:
             continue
         names = [c.check for c in e.checks]
+        rules = dict((setting_checks or {}).get(dev.end, {}))
         field = f"deviations[{k}].check"
-        if dev.check not in names:
-            raise InputError(f"is no check of the verification at {dev.end}"
-                             + suggest(dev.check, names), field=field, value=dev.check,
-                             source=source)
-        if all(c.passed for c in e.checks if c.check == dev.check):
+        if dev.check not in names and dev.check not in rules:
+            raise InputError(f"is no check of the verification or the settings at {dev.end}"
+                             + suggest(dev.check, [*names, *rules]), field=field,
+                             value=dev.check, source=source)
+        if dev.check in names:
+            passed = all(c.passed for c in e.checks if c.check == dev.check)
+        else:
+            passed = rules[dev.check]
+        if passed:
             raise InputError(f"names no failing check: it passed at {dev.end} (remove the "
                              "deviation)", field=field, value=dev.check, source=source)
         if (dev.end, dev.check) in accepted:
@@ -68,13 +79,16 @@ def verdict(ends: Sequence[EndVerification], accepted: Sequence[AcceptedDeviatio
     if open_:
         reason = f"{len(open_)} check(s) failed: " + "; ".join(
             f"{e} {c.zone} {c.check_id}" for e, c in open_[:4])
-        if len(failed) > len(open_):
-            reason += f" ({len(failed) - len(open_)} more accepted as deviations)"
+        if len(open_) > 4:
+            reason += f"; and {len(open_) - 4} more (listed below)"
+        if accepted:
+            reason += f" ({len(accepted)} more accepted as deviations)"
         return "failed checks", reason
-    if failed:
+    if accepted:
+        # Failed checks of the verification and of the setting rules the study accepts.
         return ("verified with accepted deviations",
-                f"every other check passed; {len(failed)} failed check(s) accepted as "
+                f"every other check passed; {len(accepted)} failed check(s) accepted as "
                 "deviations: " + "; ".join(
-                    f"{e} {c.check} (accepted by {c.deviation.accepted_by}, "
-                    f"{c.deviation.date})" for e, c in failed))
+                    f"{a.end} {a.check} (accepted by {a.accepted_by}, {a.date})"
+                    for a in accepted))
     return "verified", "every check passed in every simulated case"
