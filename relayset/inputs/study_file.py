@@ -235,8 +235,18 @@ class SystemData:
     # Uncertainty of the resistivity [low, high], swept by the verification (k0 moves with it).
     earth_resistivity_range: tuple[float, float] | None = spec(TupleOf(
         _quantity("resistivity", gt=0), _quantity("resistivity", gt=0)), None)
+    # Two-layer earth: earth_resistivity is the upper layer's, over this lower half-space.
+    earth_lower_resistivity: float | None = spec(_quantity("resistivity", ge=0.1, le=1e5), None)
+    earth_layer_thickness: float | None = spec(_quantity("length", gt=0, le=1e4), None)
 
     def _check(self) -> None:
+        two = self.earth_model == "two_layer"
+        for name in ("earth_lower_resistivity", "earth_layer_thickness"):
+            if two and getattr(self, name) is None:
+                raise KeyRuleError(name, "is needed with earth_model \"two_layer\"")
+            if not two and getattr(self, name) is not None:
+                raise KeyRuleError(name, "goes only with earth_model \"two_layer\" (this "
+                                   f"study's is \"{self.earth_model}\")")
         r = self.earth_resistivity_range
         if r is not None and not r[0] <= self.earth_resistivity <= r[1]:
             raise KeyRuleError("earth_resistivity_range", "must run from low to high and contain "

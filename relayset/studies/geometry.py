@@ -46,6 +46,8 @@ class LineGeometry:
     earth_model: str
     v_nominal_v: float
     assumptions: tuple[str, ...]
+    #: Two-layer earth only: (lower resistivity [ohm m], upper-layer thickness [m]).
+    earth_layers: tuple[float, float] | None = None
 
 
 def _conductor_props(study: Study, name: str, source: str) -> dict:
@@ -102,8 +104,7 @@ def build_geometry(study: Study, source: str = "<study>") -> LineGeometry:
     position_names: list[str] = []
     assumptions = [
         "Conductor height is the average over the span, h - 2/3 * sag (parabolic sag).",
-        "Earth is homogeneous with the given resistivity; earth-return model: "
-        f"{study.system.earth_model}.",
+        _earth_assumption(study.system),
         "Subconductors of a bundle share one voltage (bonded at the spacers).",
     ]
     assumptions.extend(study_warnings(study))
@@ -219,4 +220,22 @@ def build_geometry(study: Study, source: str = "<study>") -> LineGeometry:
         earth_model=study.system.earth_model,
         v_nominal_v=study.system.nominal_voltage,
         assumptions=tuple(assumptions),
+        earth_layers=_earth_layers(study.system),
     )
+
+
+def _earth_layers(system) -> tuple[float, float] | None:
+    if system.earth_model != "two_layer":
+        return None
+    return (float(system.earth_lower_resistivity), float(system.earth_layer_thickness))
+
+
+def _earth_assumption(system) -> str:
+    if system.earth_model == "two_layer":
+        return ("Earth is two horizontal layers: the upper one "
+                f"{system.earth_layer_thickness:g} m thick of {system.earth_resistivity:g} "
+                f"ohm*m over a half-space of {system.earth_lower_resistivity:g} ohm*m; "
+                "earth-return model: two_layer (Carson's integral over layered earth, "
+                "integrated numerically).")
+    return ("Earth is homogeneous with the given resistivity; earth-return model: "
+            f"{system.earth_model}.")

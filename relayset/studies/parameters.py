@@ -50,7 +50,7 @@ def position_matrices(geo: LineGeometry) -> tuple[np.ndarray, np.ndarray]:
     x, y, sel = arrays(phase_idx + earthed_series)
     z_prim = impedance.primitive_impedance_ohm_per_m(
         x, y, [w.conductor.gmr_m for w in sel], [w.conductor.r_ac_ohm_per_m for w in sel],
-        geo.frequency_hz, geo.resistivity_ohm_m, geo.earth_model)
+        geo.frequency_hz, geo.resistivity_ohm_m, geo.earth_model, geo.earth_layers)
     z_sub = impedance.kron_reduce(z_prim, len(phase_idx))
     z_pos = impedance.bundle_reduce(z_sub, groups)
 
