@@ -236,6 +236,7 @@ def _earth_assumption(system) -> str:
                 f"{system.earth_layer_thickness:g} m thick of {system.earth_resistivity:g} "
                 f"ohm*m over a half-space of {system.earth_lower_resistivity:g} ohm*m; "
                 "earth-return model: two_layer (Carson's integral over layered earth, "
-                "integrated numerically).")
+                "integrated numerically); the verification's resistivity sweep scales both "
+                "layers alike.")
     return ("Earth is homogeneous with the given resistivity; earth-return model: "
             f"{system.earth_model}.")
