@@ -35,6 +35,7 @@ from relayset.results.relay import RelayBasis
 from relayset.results.serialize import cplx
 from relayset.settings.zone1 import recommended_zone1_pct
 from relayset.studies.geometry import LineGeometry
+from relayset.studies.parameters import plan_sections, section_stack
 
 LOOPS = measurement.LOOPS
 
@@ -76,10 +77,29 @@ def _same_cascade(a: network.LineCascade, b: network.LineCascade) -> bool:
             and (a.y_s_per_m is None or np.array_equal(a.y_s_per_m, b.y_s_per_m)))
 
 
-def _cascade(z_pos, y_pos, orders, lengths, shunt: bool) -> network.LineCascade:
-    zs = transposition.section_matrices(z_pos, orders)
-    ys = transposition.section_matrices(y_pos, orders) if shunt else None
+def _cascade(z_pos, y_pos, orders, lengths, shunt: bool, towers=None) -> network.LineCascade:
+    """The line as a cascade of its sections. ``z_pos``/``y_pos``: the matrices by
+    position of the one cross-section, or (with ``towers``, the tower of each section) a
+    sequence of them, one per tower."""
+    if towers is None:
+        zs = transposition.section_matrices(z_pos, orders)
+        ys = transposition.section_matrices(y_pos, orders) if shunt else None
+    else:
+        zs = section_stack(z_pos, orders, towers)
+        ys = section_stack(y_pos, orders, towers) if shunt else None
     return network.LineCascade(zs, np.asarray(lengths, float), ys)
+
+
+def line_cascade(geo: LineGeometry, params: LineParameters, plan: str,
+                 shunt: bool) -> network.LineCascade:
+    """The cascade of an arrangement (see :func:`relayset.studies.parameters.plan_sections`)
+    at the resistivity of ``params``."""
+    orders, lengths, towers = plan_sections(geo, plan)
+    if len(geo.tower_names) <= 1:
+        return _cascade(params.z_by_position_ohm_per_m, params.y_by_position_s_per_m,
+                        orders, lengths, shunt)
+    z_t, y_t = params.tower_matrices()
+    return _cascade(z_t, y_t, orders, lengths, shunt, towers)
 
 
 def _positions_at(m: float, loop: str, orders, lengths, names) -> tuple[str, ...]:
@@ -139,19 +159,13 @@ def run_reach_study(
     z1_set, k0_set, k0m_set = relay.z1_set_ohm, relay.k0_set, relay.k0m_set
     budget = study.error_budget.total_pct
 
-    lengths = np.array(geo.section_lengths_m)
-    orders = [list(o) for o in geo.section_orders]
-    plans = {
-        "actual_plan": (orders, lengths),
-        "untransposed": (orders[:1], [geo.length_m]),
-        "ideal_cycle": (transposition.cyclic_orders(orders[0], n_c), [geo.length_m / 3] * 3),
-    }
+    plans = {key: plan_sections(geo, key)[:2]
+             for key in ("actual_plan", "untransposed", "ideal_cycle")}
     field_names = {"m": "reach_study.locations_pct",
                    "r_fault_ohm": "reach_study.fault_resistances",
                    "r_phase_ohm": "reach_study.phase_fault_resistance",
                    "source_scale": "reach_study.source_cases"}
-    lines = {key: _cascade(params.z_by_position_ohm_per_m, params.y_by_position_s_per_m, ords, lens,
-                           rs.shunt_capacitance) for key, (ords, lens) in plans.items()}
+    lines = {key: line_cascade(geo, params, key, rs.shunt_capacitance) for key in plans}
     # Identical arrangements (one-section line: actual plan = untransposed; ideal plan =
     # ideal cycle) are solved once and reported under each name.
     same_as: dict[str, str] = {}
