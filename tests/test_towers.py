@@ -120,15 +120,24 @@ def test_two_tower_types_average_and_cascade(variant, demo_path):
     pole = pipeline.run(variant(DEMO_TOWERS, compact, "pole.toml"))
     lengths = np.array(mixed.parameters.section_lengths_m)
     assert mixed.parameters.tower_names == ("compact_pole", "lattice")
-    zs = []
-    for k, order in enumerate(mixed.parameters.section_orders):
-        src = pole if k == 0 else lattice  # the one-tower study of section k's tower
-        labels = list(src.parameters.phase_labels[0])
-        zs.append(to_phase_order(src.parameters.z_by_position_ohm_per_m,
-                                 [labels.index(p) for p in order]))
-    expected = np.tensordot(lengths / lengths.sum(), np.stack(zs), axes=1)
-    assert_allclose(mixed.parameters.arrangements["actual_plan"].zabc_ohm_per_m, expected,
-                    rtol=RTOL, atol=0)
+    orders = mixed.parameters.section_orders
+    for plan, plan_orders in (("actual_plan", orders), ("untransposed", [orders[0]] * 4)):
+        zs = []
+        for k, order in enumerate(plan_orders):
+            src = pole if k == 0 else lattice  # the one-tower study of section k's tower
+            labels = list(src.parameters.phase_labels[0])
+            zs.append(to_phase_order(src.parameters.z_by_position_ohm_per_m,
+                                     [labels.index(p) for p in order]))
+        expected = np.tensordot(lengths / lengths.sum(), np.stack(zs), axes=1)
+        assert_allclose(mixed.parameters.arrangements[plan].zabc_ohm_per_m, expected,
+                        rtol=RTOL, atol=0)
+    # Per-tower Z1, Z0 (reported per section): the tower's ideally transposed sequence
+    # impedances = the one-tower study's ideal cycle (the diagonal of the Fortescue transform
+    # is unchanged by cyclic rotation of the phases: identity).
+    for k, src in enumerate((pole, lattice)):
+        z012 = src.parameters.arrangements["ideal_cycle"].z012_ohm_per_m
+        assert_allclose(mixed.parameters.tower_sequence(k)[0], (z012[1, 1], z012[0, 0]),
+                        rtol=RTOL, atol=0)
     # The pole section differs from the lattice (the check above can fail).
     assert not np.allclose(pole.parameters.z_by_position_ohm_per_m,
                            lattice.parameters.z_by_position_ohm_per_m, rtol=1e-3)
@@ -166,3 +175,18 @@ def test_towers_demo_is_verified(demo_path):
     d = res.parameters.to_dict()
     assert [s["tower"] for s in d["sections"]] == ["compact_pole"] + ["lattice"] * 3
     assert "z1_ohm_per_km" in d["sections"][0]
+
+
+def test_report_lists_every_towers_wires_and_each_sections_tower(demo_path):
+    """The report's input tables: each tower's positions and shield wires (tower name
+    first) and the tower of each section, as the study file gives them."""
+    from relayset.report.context import build_context
+
+    res = pipeline.run(demo_path(DEMO_TOWERS))
+    inputs = build_context(res)["inputs"]
+    circuits = [p["circuit"] for p in inputs["positions"]]
+    assert circuits == ["compact_pole · 1"] * 3 + ["lattice · 1"] * 3
+    assert [s["name"] for s in inputs["shields"]] == ["compact_pole · E1", "lattice · E1"]
+    assert [s["order"] for s in inputs["sections"]] == [
+        "A B C (tower compact_pole)", "A B C (tower lattice)", "C A B (tower lattice)",
+        "B C A (tower lattice)"]
