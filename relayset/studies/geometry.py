@@ -143,7 +143,9 @@ def build_geometry(study: Study, source: str = "<study>") -> LineGeometry:
         assumptions.append(
             "Sections of different tower types: each section's series impedance and shunt "
             "admittance from its own cross-section; the line's Z1 and Z0 (and k0) that the "
-            "relay is set with are the length-weighted totals over all sections.")
+            "relay is set with are the length-weighted totals over all sections, and its "
+            "distributed (exact pi) equivalent is that of the length-weighted average line; "
+            "the fault simulation cascades the sections as they are.")
 
     # Section plan.
     n_c = len(study.circuits)
