@@ -120,9 +120,12 @@ def two_layer_correction_ohm_per_m(
     omega = 2 * math.pi * frequency_hz
 
     def integrand(t):
-        lam = t / d
-        alpha = surface_alpha(lam, omega, rho_upper_ohm_m, rho_lower_ohm_m, thickness_m)
-        return np.exp(-t * cos_t) * np.cos(t * sin_t) / (t + d * alpha)
+        # quad_vec maps [0, inf) onto [0, 1): far out the exponentials underflow to their
+        # true value, zero.
+        with np.errstate(under="ignore"):
+            lam = t / d
+            alpha = surface_alpha(lam, omega, rho_upper_ohm_m, rho_lower_ohm_m, thickness_m)
+            return np.exp(-t * cos_t) * np.cos(t * sin_t) / (t + d * alpha)
 
     j_val, _err = quad_vec(integrand, 0.0, np.inf, epsrel=_EPSREL, epsabs=1e-15, norm="max",
                            limit=2000)
