@@ -36,8 +36,9 @@ References
    1949 (Dover reprint 1968), ch. 4, two-layer earth (chapter from memory).
 .. [3] M. Nakagawa, A. Ametani and K. Iwamoto, "Further studies on wave propagation in
    overhead lines with earth return: impedance of stratified earth," Proc. IEE, vol. 120,
-   no. 12, pp. 1521-1528, Dec. 1973 (volume and pages from memory); their stratified-earth
-   impedance with two layers, equal permeabilities and no displacement current.
+   no. 12, pp. 1521-1528, Dec. 1973 (the formulation from memory; volume and pages as other
+   papers' reference lists give them); their stratified-earth impedance with two layers,
+   equal permeabilities and no displacement current.
 """
 
 from __future__ import annotations
