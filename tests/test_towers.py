@@ -190,3 +190,25 @@ def test_report_lists_every_towers_wires_and_each_sections_tower(demo_path):
     assert [s["order"] for s in inputs["sections"]] == [
         "A B C (tower compact_pole)", "A B C (tower lattice)", "C A B (tower lattice)",
         "B C A (tower lattice)"]
+
+
+def test_reach_names_the_positions_of_the_faulted_sections_tower(demo_path):
+    """A fault on the compact poles is at their positions, one on the lattice at the
+    lattice's (each section's own tower), seen from either end."""
+    from relayset.inputs.study_file import load_study
+    from relayset.studies.geometry import build_geometry
+    from relayset.studies.parameters import plan_sections
+    from relayset.studies.reach import _positions_at
+
+    path = demo_path(DEMO_TOWERS)
+    geo = build_geometry(load_study(path), str(path))
+    orders, lengths, towers = plan_sections(geo, "actual_plan")
+    names = [geo.tower_position_names[t] for t in towers]
+    # 5 % of 70 km lies on the first 6 km (compact poles); section 1: A B C = top middle bottom
+    assert _positions_at(0.05, "AG", orders, lengths, names) == ("top",)
+    assert _positions_at(0.05, "BC", orders, lengths, names) == ("middle", "bottom")
+    # 50 % lies in section 3 (lattice, C A B at left middle right): A is in the middle.
+    assert _positions_at(0.50, "AG", orders, lengths, names) == ("middle",)
+    # Seen from Tessmoor the plan runs backwards: 5 % from there is the lattice's section 4.
+    back = _positions_at(0.05, "AG", orders[::-1], lengths[::-1], names[::-1])
+    assert back == ("right",)

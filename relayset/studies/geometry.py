@@ -53,6 +53,7 @@ class LineGeometry:
     tower_names: tuple[str, ...] = ()
     tower_wires: tuple[tuple[Wire, ...], ...] = ()
     section_towers: tuple[int, ...] = ()
+    tower_position_names: tuple[tuple[str, ...], ...] = ()  #: per tower, like position_names
 
 
 def _conductor_props(study: Study, name: str, source: str) -> dict:
@@ -210,6 +211,7 @@ def build_geometry(study: Study, source: str = "<study>") -> LineGeometry:
         earth_layers=_earth_layers(study.system),
         tower_names=tower_names,
         tower_wires=tower_wires if tower_names else (),
+        tower_position_names=tuple(n for _, n in placed) if tower_names else (),
         section_towers=section_towers,
     )
 

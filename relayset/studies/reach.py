@@ -103,11 +103,14 @@ def line_cascade(geo: LineGeometry, params: LineParameters, plan: str,
 
 
 def _positions_at(m: float, loop: str, orders, lengths, names) -> tuple[str, ...]:
+    """The positions of the loop's phases where the fault is (``names``: the position
+    names of each section's tower)."""
     total = math.fsum(lengths)  # a few sections: plain Python beats numpy's call overhead
     edges = list(itertools.accumulate(lengths))
     s = min(bisect.bisect_left([e / total for e in edges], m - 1e-12), len(orders) - 1)
     order = list(orders[s])
-    return tuple(names[order.index(p)].split("/", 1)[-1] for p in measurement.LOOP_PHASES[loop])
+    return tuple(names[s][order.index(p)].split("/", 1)[-1]
+                 for p in measurement.LOOP_PHASES[loop])
 
 
 def run_reach_study(
@@ -159,7 +162,7 @@ def run_reach_study(
     z1_set, k0_set, k0m_set = relay.z1_set_ohm, relay.k0_set, relay.k0m_set
     budget = study.error_budget.total_pct
 
-    plans = {key: plan_sections(geo, key)[:2]
+    plans = {key: plan_sections(geo, key)
              for key in ("actual_plan", "untransposed", "ideal_cycle")}
     field_names = {"m": "reach_study.locations_pct",
                    "r_fault_ohm": "reach_study.fault_resistances",
@@ -229,12 +232,15 @@ def run_reach_study(
         at_s = end_name == names[0]
         arrs = []
         for key, mutual in variants:
-            ords, lens = plans[key]
+            ords, lens, tws = plans[key]
+            names_by_section = [geo.tower_position_names[t] if geo.tower_names
+                                else geo.position_names for t in tws]
             if not at_s:  # seen from R the plan runs backwards
                 ords, lens = ords[::-1], list(lens)[::-1]
+                names_by_section = names_by_section[::-1]
             arrs.append(condensers[(end_name, same_as[key], mutual)].result(
                 key, same_as[key], angles_rad[same_as[key]], rs, labels, ords, lens,
-                geo.position_names))
+                names_by_section))
         actual = arrs[0]
         worst = actual.worst_bolted_overreach_at_remote_bus_pct
         rec = recommended_zone1_pct(worst, budget, zone1_max_pct, zone1_margin_pct)
