@@ -12,6 +12,7 @@ from relayset.cli import main
 
 DEMO_1C = "ashcombe_brenwick_132kv.toml"
 DEMO_2C = "elsford_fallowby_230kv_double.toml"
+DEMO_TW = "harlow_quay_tessmoor_132kv_towers.toml"
 
 
 def run_bad(capsys, path, tmp_path, *extra):
@@ -28,6 +29,19 @@ def run_bad(capsys, path, tmp_path, *extra):
 
 def _pos(data, k=0):
     return data["circuits"][0]["positions"][k]
+
+
+def _double_then_single(d):
+    """The double-circuit demo on [towers]: its towers, then single-circuit towers carrying
+    circuit 1 only for the last 20 km."""
+    pos = {c["name"]: c.pop("positions") for c in d["circuits"]}
+    d["towers"] = {"double": {"positions": pos, "shield_wires": d.pop("shield_wires")},
+                   "single": {"positions": {"1": pos["1"]}}}
+    d["line"]["sections"] = [
+        {"length": "44 km", "order": {"1": ["A", "B", "C"], "2": ["C", "B", "A"]},
+         "tower": "double"},
+        {"length": "20 km", "order": {"1": ["A", "B", "C"], "2": ["C", "B", "A"]},
+         "tower": "single"}]
 
 
 CASES = [
@@ -59,6 +73,54 @@ CASES = [
     ("no unit", DEMO_1C, lambda d: d["line"].update(length=80), ["needs a unit of length"]),
     ("unknown earth model", DEMO_1C, lambda d: d["system"].update(earth_model="karson"),
      ["earth_model", "did you mean 'carson'"]),
+    ("two-layer earth without its lower resistivity", DEMO_1C,
+     lambda d: d["system"].update(earth_model="two_layer", earth_layer_thickness="20 m"),
+     ["system.earth_lower_resistivity", "needed with earth_model \"two_layer\""]),
+    ("layer thickness with homogeneous earth", DEMO_1C,
+     lambda d: d["system"].update(earth_layer_thickness="20 m"),
+     ["system.earth_layer_thickness = \"20 m\"", "only with earth_model \"two_layer\""]),
+    ("negative layer thickness", DEMO_1C,
+     lambda d: d["system"].update(earth_model="two_layer", earth_layer_thickness="-3 m",
+                                  earth_lower_resistivity="800 ohm*m"),
+     ["system.earth_layer_thickness = \"-3 m\"", "greater than 0 m"]),
+    ("implausible lower resistivity", DEMO_1C,
+     lambda d: d["system"].update(earth_model="two_layer", earth_layer_thickness="3 m",
+                                  earth_lower_resistivity="1e6 ohm*m"),
+     ["system.earth_lower_resistivity = \"1e6 ohm*m\"", "plausible range"]),
+    ("section names an unknown tower", DEMO_TW,
+     lambda d: d["line"]["sections"][2].update(tower="latice"),
+     ["line.sections[2].tower = \"latice\"", "names no tower", "did you mean 'lattice'"]),
+    ("section without its tower", DEMO_TW, lambda d: d["line"]["sections"][1].pop("tower"),
+     ["line.sections[1].tower", "is required", "compact_pole, lattice"]),
+    ("tower without sections", DEMO_TW, lambda d: d["line"].pop("sections"),
+     ["line.sections", "each with its tower"]),
+    ("positions on the circuit and on towers", DEMO_TW,
+     lambda d: d["circuits"][0].update(
+         positions=d["towers"]["lattice"]["positions"]["1"]),
+     ["circuits[0].positions", "on the towers"]),
+    ("shield wires outside the towers", DEMO_TW,
+     lambda d: d.update(shield_wires=d["towers"]["lattice"]["shield_wires"]),
+     ["shield_wires", "on the towers"]),
+    ("tower lacks a circuit", DEMO_TW,
+     lambda d: d["towers"]["lattice"]["positions"].update({"2": d["towers"]["lattice"][
+         "positions"].pop("1")}),
+     ["towers.lattice.positions.2", "names no circuit"]),
+    ("parallel circuit on part of the route", DEMO_2C, _double_then_single,
+     ["towers.single.positions", "carries no circuit '2'", "own terminals"]),
+    ("tower with two positions", DEMO_TW,
+     lambda d: d["towers"]["lattice"]["positions"]["1"].pop(),
+     ["towers.lattice.positions.1", "exactly three positions"]),
+    ("tower conductors overlap", DEMO_TW,
+     lambda d: d["towers"]["compact_pole"]["positions"]["1"][1].update(height="26 m"),
+     ["towers.compact_pole.positions.1[0]", "overlaps"]),
+    ("tower sag reaches the ground", DEMO_TW,
+     lambda d: d["towers"]["lattice"]["shield_wires"][0].update(sag="30 m"),
+     ["towers.lattice.shield_wires[0].sag = \"30 m\"", "less than the attachment height"]),
+    ("tower named without towers", DEMO_1C,
+     lambda d: d["line"]["sections"][0].update(tower="lattice"),
+     ["line.sections[0].tower = \"lattice\"", "no [towers.NAME] tables"]),
+    ("circuit without positions", DEMO_1C, lambda d: d["circuits"][0].pop("positions"),
+     ["circuits[0].positions", "is required"]),
     ("unknown key", DEMO_1C, lambda d: d["system"].update(earth_resistivty="100 ohm*m"),
      ["system.earth_resistivty", "unknown key", "earth_resistivity"]),
     ("frequency", DEMO_1C, lambda d: d["system"].update(frequency="55 Hz"),

@@ -195,6 +195,6 @@ def test_truncated_departs_from_full_at_large_r():
 
 
 def test_model_registry_names():
-    """The three documented earth models are registered."""
-    assert set(list_earth_models()) == {"carson", "carson_truncated", "deri"}
+    """The four documented earth models are registered."""
+    assert set(list_earth_models()) == {"carson", "carson_truncated", "deri", "two_layer"}
     assert set(EARTH_MODELS) == set(list_earth_models())

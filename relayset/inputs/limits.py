@@ -28,6 +28,9 @@ MAX_SECTIONS = 1000
 #: of 3 positions and bundles of up to 8, a tower stays at most 6 + 8 conductors across.
 MAX_SHIELD_WIRES = 8
 
+#: Tower types of one study ([towers.NAME]); a line rarely has more than a handful.
+MAX_TOWERS = 50
+
 #: Conductor types of one study. Real studies name 1 to 3 (phase, earth wire, OPGW).
 MAX_CONDUCTOR_TYPES = 50
 

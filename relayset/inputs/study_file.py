@@ -235,8 +235,18 @@ class SystemData:
     # Uncertainty of the resistivity [low, high], swept by the verification (k0 moves with it).
     earth_resistivity_range: tuple[float, float] | None = spec(TupleOf(
         _quantity("resistivity", gt=0), _quantity("resistivity", gt=0)), None)
+    # Two-layer earth: earth_resistivity is the upper layer's, over this lower half-space.
+    earth_lower_resistivity: float | None = spec(_quantity("resistivity", ge=0.1, le=1e5), None)
+    earth_layer_thickness: float | None = spec(_quantity("length", gt=0, le=1e4), None)
 
     def _check(self) -> None:
+        two = self.earth_model == "two_layer"
+        for name in ("earth_lower_resistivity", "earth_layer_thickness"):
+            if two and getattr(self, name) is None:
+                raise KeyRuleError(name, "is needed with earth_model \"two_layer\"")
+            if not two and getattr(self, name) is not None:
+                raise KeyRuleError(name, "goes only with earth_model \"two_layer\" (this "
+                                   f"study's is \"{self.earth_model}\")")
         r = self.earth_resistivity_range
         if r is not None and not r[0] <= self.earth_resistivity <= r[1]:
             raise KeyRuleError("earth_resistivity_range", "must run from low to high and contain "
@@ -340,7 +350,8 @@ class Circuit:
 
     name: str = spec(_text(50, min_len=1))
     phase_labels: tuple[str, ...] = spec(ListOf(schema.text, _three_labels), ("A", "B", "C"))
-    positions: tuple[Position, ...] = spec(ListOf(table(Position), _three_positions))
+    #: Empty when the study's [towers] tables carry the positions (checked in check_study).
+    positions: tuple[Position, ...] = spec(ListOf(table(Position), _three_positions), ())
 
 
 def _one_or_two(v: tuple) -> tuple:
@@ -358,11 +369,25 @@ class ShieldWire(_Placed):
 
 
 @_table
+class Tower:
+    """``[towers.NAME]``: one tower type's cross-section: three positions per circuit (keyed
+    by the circuit's name) and its shield wires."""
+
+    positions: dict[str, tuple[Position, ...]] = spec(MapOf(
+        ListOf(table(Position), _three_positions), _text(50, min_len=1), max_items=2,
+        what="circuits"))
+    shield_wires: tuple[ShieldWire, ...] = spec(ListOf(
+        table(ShieldWire), max_items=limits.MAX_SHIELD_WIRES, what="shield wires"), ())
+
+
+@_table
 class Section:
-    """One transposition section: its length and the phase order along it."""
+    """One transposition section: its length, the phase order along it and (with
+    ``[towers]`` tables) the tower it is built on."""
 
     length: float = spec(LineLength)
     order: tuple[str, ...] | dict[str, tuple[str, ...]] = spec(_order)
+    tower: str | None = spec(_text(100, min_len=1), None)
 
 
 @_table
@@ -706,6 +731,9 @@ class Study:
     circuits: tuple[Circuit, ...] = spec(ListOf(table(Circuit), _one_or_two))
     shield_wires: tuple[ShieldWire, ...] = spec(ListOf(
         table(ShieldWire), max_items=limits.MAX_SHIELD_WIRES, what="shield wires"), ())
+    towers: dict[str, Tower] = spec(MapOf(table(Tower), _text(100, min_len=1),
+                                          max_items=limits.MAX_TOWERS, what="towers"),
+                                    factory=dict)
     line: LineData = spec(table(LineData))
     relay: RelayData | None = spec(table(RelayData), None)
     sources: dict[str, SourceData] = spec(MapOf(table(SourceData), _text(100)), factory=dict)
@@ -949,10 +977,18 @@ def check_study(study: Study, data: dict, source: str) -> None:
                 fail("names no circuit" + suggest(key, names),
                      f"line.sections[{s}].order.{_key(key)}",
                      _raw(data, "line", "sections", s, "order", key))
+    _check_towers(study, data, fail)
     placed = [(f"circuits[{c}].positions[{k}]", ("circuits", c, "positions", k), pos)
               for c, circ in enumerate(study.circuits) for k, pos in enumerate(circ.positions)]
     placed += [(f"shield_wires[{k}]", ("shield_wires", k), sw)
                for k, sw in enumerate(study.shield_wires)]
+    for t, tower in study.towers.items():
+        placed += [(f"towers.{_key(t)}.positions.{_key(c)}[{k}]",
+                    ("towers", t, "positions", c, k), pos)
+                   for c, positions in tower.positions.items()
+                   for k, pos in enumerate(positions)]
+        placed += [(f"towers.{_key(t)}.shield_wires[{k}]", ("towers", t, "shield_wires", k), sw)
+                   for k, sw in enumerate(tower.shield_wires)]
     for field, path, p in placed:
         if p.height is not None and p.sag >= p.height:
             fail(f"must be less than the attachment height ({_raw(data, *path, 'height')}): "
@@ -1051,15 +1087,67 @@ def check_settings_inputs(study: Study, source: str) -> None:
                         "relay.end is 'both'", field=f"{which}[{k}].bus", source=source)
 
 
+def _check_towers(study: Study, data: dict, fail: Callable[..., None]) -> None:
+    """Either the one cross-section of [[circuits]] and [[shield_wires]], or [towers.NAME]
+    tables named by every section; every tower carries every circuit."""
+    names = [c.name for c in study.circuits]
+    sections = study.line.sections or ()
+    if not study.towers:
+        for c, circ in enumerate(study.circuits):
+            if not circ.positions:
+                fail("is required (or give [towers.NAME] tables and a tower per section)",
+                     f"circuits[{c}].positions")
+        for s, sec in enumerate(sections):
+            if sec.tower is not None:
+                fail("names no tower: the study has no [towers.NAME] tables",
+                     f"line.sections[{s}].tower", sec.tower)
+        return
+    for c, circ in enumerate(study.circuits):
+        if circ.positions:
+            fail("must be left out: with [towers.NAME] tables the positions are on the towers",
+                 f"circuits[{c}].positions")
+    if study.shield_wires:
+        fail("must be left out: with [towers.NAME] tables the shield wires are on the towers",
+             "shield_wires")
+    if not sections:
+        fail("must list the sections, each with its tower, when the study has [towers.NAME] "
+             "tables", "line.sections")
+    for s, sec in enumerate(sections):
+        if sec.tower is None:
+            fail("is required: the study has [towers.NAME] tables (towers: "
+                 + ", ".join(study.towers) + ")", f"line.sections[{s}].tower")
+        if sec.tower not in study.towers:
+            fail("names no tower of [towers] (towers: " + ", ".join(study.towers) + ")"
+                 + suggest(sec.tower, study.towers), f"line.sections[{s}].tower", sec.tower)
+    for t, tower in study.towers.items():
+        for key in tower.positions:
+            if key not in names:
+                fail("names no circuit" + suggest(key, names),
+                     f"towers.{_key(t)}.positions.{_key(key)}",
+                     _raw(data, "towers", t, "positions", key))
+        missing = [n for n in names if n not in tower.positions]
+        if missing:
+            fail(f"carries no circuit {quote(missing[0])}: every tower carries every circuit "
+                 "of [[circuits]] (a circuit on part of the route only would need its own "
+                 "terminals there, which relayset does not model)",
+                 f"towers.{_key(t)}.positions")
+
+
 def study_warnings(study: Study) -> tuple[str, ...]:
     """Things that are allowed but probably wrong, one sentence each."""
     out = []
-    phases = [p.mean_height_m for c in study.circuits for p in c.positions]
-    top = max(phases)
-    for k, sw in enumerate(study.shield_wires):
-        if sw.mean_height_m < top:
-            out.append(
-                f"Warning: shield wire {sw.name or k + 1} (shield_wires[{k}]) hangs at "
-                f"{sw.mean_height_m:.2f} m mean height, below the highest phase conductor "
-                f"({top:.2f} m); earth wires normally run above the phases: check the heights.")
+    crossings = [("", [p for c in study.circuits for p in c.positions], study.shield_wires)]
+    crossings += [(f"towers.{_key(t)}.", [p for ps in tw.positions.values() for p in ps],
+                   tw.shield_wires) for t, tw in study.towers.items()]
+    for prefix, positions, shield_wires in crossings:
+        if not positions:
+            continue
+        top = max(p.mean_height_m for p in positions)
+        for k, sw in enumerate(shield_wires):
+            if sw.mean_height_m < top:
+                out.append(
+                    f"Warning: shield wire {sw.name or k + 1} ({prefix}shield_wires[{k}]) hangs "
+                    f"at {sw.mean_height_m:.2f} m mean height, below the highest phase "
+                    f"conductor ({top:.2f} m); earth wires normally run above the phases: "
+                    "check the heights.")
     return tuple(out)

@@ -166,6 +166,7 @@ def earth_correction_ohm_per_m(
     x_ij_m,
     frequency_hz: float,
     resistivity_ohm_m: float,
+    layers: tuple[float, float] | None = None,
 ) -> np.ndarray:
     r"""Earth-return correction :math:`\Delta Z_{ij}` [ohm/m] by the named model.
 
@@ -186,7 +187,10 @@ def earth_correction_ohm_per_m(
     frequency_hz : float
         Frequency [Hz].
     resistivity_ohm_m : float
-        Earth resistivity [ohm·m].
+        Earth resistivity [ohm·m]; for ``two_layer`` the upper layer's.
+    layers : (float, float), optional
+        For ``two_layer`` only: resistivity of the lower half-space [ohm·m] and thickness of
+        the upper layer [m].
 
     Returns
     -------
@@ -195,6 +199,13 @@ def earth_correction_ohm_per_m(
     """
     if model not in EARTH_MODELS:
         raise ValueError(f"unknown earth model {model!r}; valid: {', '.join(EARTH_MODELS)}")
+    if (model == "two_layer") != (layers is not None):
+        raise ValueError("layers (lower resistivity, thickness) go with two_layer only")
+    if model == "two_layer":
+        from relayset.physics.earth_two_layer import two_layer_correction_ohm_per_m
+
+        return two_layer_correction_ohm_per_m(h_i_m, h_j_m, x_ij_m, frequency_hz,
+                                              resistivity_ohm_m, *layers)
     omega = 2 * math.pi * frequency_hz
     h_i, h_j, x, d_image, theta = _geometry(h_i_m, h_j_m, x_ij_m)
     if model == "deri":

@@ -27,6 +27,7 @@ def primitive_impedance_ohm_per_m(
     frequency_hz: float,
     resistivity_ohm_m: float,
     earth_model: str = "carson",
+    earth_layers: tuple[float, float] | None = None,
 ) -> np.ndarray:
     r"""Primitive series impedance matrix of n conductors above earth [ohm/m].
 
@@ -49,6 +50,8 @@ def primitive_impedance_ohm_per_m(
         Earth resistivity [ohm·m].
     earth_model : str
         Name of the earth-return model (see :func:`relayset.physics.earth.list_earth_models`).
+    earth_layers : (float, float), optional
+        With ``two_layer``: lower resistivity [ohm·m] and upper-layer thickness [m].
 
     Returns
     -------
@@ -66,7 +69,7 @@ def primitive_impedance_ohm_per_m(
     np.fill_diagonal(d_direct, gmr)
     z = 1j * omega * MU0_H_PER_M / (2 * math.pi) * np.log(d_image / d_direct)
     z += earth_correction_ohm_per_m(
-        earth_model, y[:, None], y[None, :], dx, frequency_hz, resistivity_ohm_m
+        earth_model, y[:, None], y[None, :], dx, frequency_hz, resistivity_ohm_m, earth_layers
     )
     z[np.diag_indices_from(z)] += r
     return z

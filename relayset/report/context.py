@@ -219,11 +219,18 @@ def _input_tables(r, d: dict[str, Any], u: dict[str, Any]) -> dict[str, Any]:
             "from_memory": "from memory" in src.lower(),
         })
     positions = []
-    for c, circ in enumerate(raw.get("circuits", [])):
-        for pos in circ.get("positions", []):
+    # One cross-section ([[circuits]] positions), or one per [towers.NAME] table, the
+    # tower's name before the circuit's.
+    placed = [(str(circ.get("name", c + 1)), circ.get("positions", []))
+              for c, circ in enumerate(raw.get("circuits", []))]
+    towers = raw.get("towers") if isinstance(raw.get("towers"), dict) else {}
+    placed += [(f"{t} · {cname}", ps) for t, tw in towers.items() if isinstance(tw, dict)
+               for cname, ps in (tw.get("positions") or {}).items()]
+    for circuit_name, circ_positions in placed:
+        for pos in circ_positions:
             b = pos.get("bundle")
             positions.append({
-                "circuit": str(circ.get("name", c + 1)),
+                "circuit": circuit_name,
                 "name": str(pos.get("name", "")),
                 "x": str(pos.get("x", "")),
                 "height": str(pos.get("height", pos.get("average_height", ""))),
@@ -234,14 +241,17 @@ def _input_tables(r, d: dict[str, Any], u: dict[str, Any]) -> dict[str, Any]:
                            + (f", {b.get('orientation')}" if b.get("orientation") else "")
                            if isinstance(b, dict) else "single"),
             })
+    shield_lists = [("", raw.get("shield_wires", []))] + [
+        (f"{t} · ", tw.get("shield_wires", [])) for t, tw in towers.items()
+        if isinstance(tw, dict)]
     shields = [{
-        "name": str(sw.get("name", k + 1)),
+        "name": prefix + str(sw.get("name", k + 1)),
         "x": str(sw.get("x", "")),
         "height": str(sw.get("height", sw.get("average_height", ""))),
         "sag": str(sw.get("sag", "–")),
         "conductor": str(sw.get("conductor", "")),
         "grounding": str(sw.get("grounding", "continuous")),
-    } for k, sw in enumerate(raw.get("shield_wires", []))]
+    } for prefix, sws in shield_lists for k, sw in enumerate(sws)]
     sections = []
     for k, (sec, raw_sec) in enumerate(zip(p["sections"],
                                           (raw.get("line", {}) or {}).get("sections") or
@@ -249,7 +259,8 @@ def _input_tables(r, d: dict[str, Any], u: dict[str, Any]) -> dict[str, Any]:
         sections.append({
             "index": k + 1,
             "length": num(sec["length_km"] * u["km"], PRECISION["len"]),
-            "order": " ".join(sec["order"]),
+            "order": " ".join(sec["order"]) + (f" (tower {sec['tower']})" if "tower" in sec
+                                               else ""),
             "given": text(raw_sec.get("order", "")) if isinstance(raw_sec, dict) else "",
         })
     sources = [(str(name), kv(tab)) for name, tab in (raw.get("sources", {}) or {}).items()]

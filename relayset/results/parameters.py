@@ -166,7 +166,40 @@ class LineParameters:
     circuits: tuple[CircuitSequence, ...]
     k0m: complex | None  #: Z0M / (3 Z1) of the actual plan (double circuit)
     assumptions: tuple[str, ...]
-    wires: tuple[WirePosition, ...] = ()  #: every wire of the cross-section
+    wires: tuple[WirePosition, ...] = ()  #: every wire of the (first section's) cross-section
+    #: Sections on different towers ([towers.NAME]): the towers in order of first use, the
+    #: tower of each section and each tower's matrices by position (the first is
+    #: z_by_position). Empty: one cross-section over the whole line.
+    tower_names: tuple[str, ...] = ()
+    section_towers: tuple[int, ...] = ()
+    z_by_tower_ohm_per_m: tuple[np.ndarray, ...] = ()
+    y_by_tower_s_per_m: tuple[np.ndarray, ...] = ()
+
+    def tower_sequence(self, k: int) -> tuple[tuple[complex, complex], ...]:
+        """Per circuit (Z1, Z0) [ohm/m] of tower k's cross-section, phases ideally
+        transposed within it (the diagonal of its sequence matrix)."""
+        from relayset.physics.sequence import to_sequence
+
+        z = self.tower_matrices()[0][k]
+        out = []
+        for c in range(len(self.phase_labels)):
+            z012 = to_sequence(z[3 * c:3 * c + 3, 3 * c:3 * c + 3])
+            out.append((complex(z012[1, 1]), complex(z012[0, 0])))
+        return tuple(out)
+
+    def _section_tower(self, k: int) -> dict[str, Any]:
+        if not self.tower_names:
+            return {}
+        t = self.section_towers[k]
+        return {"tower": self.tower_names[t],
+                "z1_ohm_per_km": [cplx(z1, PER_KM) for z1, _ in self.tower_sequence(t)],
+                "z0_ohm_per_km": [cplx(z0, PER_KM) for _, z0 in self.tower_sequence(t)]}
+
+    def tower_matrices(self) -> tuple[tuple[np.ndarray, ...], tuple[np.ndarray, ...]]:
+        """Series impedance and shunt admittance by position of each tower [ohm/m, S/m]."""
+        if self.z_by_tower_ohm_per_m:
+            return self.z_by_tower_ohm_per_m, self.y_by_tower_s_per_m
+        return (self.z_by_position_ohm_per_m,), (self.y_by_position_s_per_m,)
 
     # Old names (relayset 0.2), one release.
     resistivity_ohm_m = alias("earth_resistivity_ohm_m", "resistivity_ohm_m")
@@ -190,8 +223,9 @@ class LineParameters:
             "positions": list(self.positions),
             "phase_labels": [list(p) for p in self.phase_labels],
             "sections": [
-                {"length_km": ln / 1e3, "order": list(o)}
-                for ln, o in zip(self.section_lengths_m, self.section_orders, strict=True)
+                {"length_km": ln / 1e3, "order": list(o), **self._section_tower(k)}
+                for k, (ln, o) in enumerate(zip(self.section_lengths_m, self.section_orders,
+                                                strict=True))
             ],
             "conductors": [
                 {

@@ -7,7 +7,7 @@ from dataclasses import dataclass
 
 import numpy as np
 
-from relayset.errors import InputError
+from relayset.errors import InputError, toml_key
 from relayset.inputs import conductors as cond
 from relayset.inputs.study_file import Study, study_warnings
 from relayset.physics.conductor import bundle_offsets_m
@@ -46,6 +46,14 @@ class LineGeometry:
     earth_model: str
     v_nominal_v: float
     assumptions: tuple[str, ...]
+    #: Two-layer earth only: (lower resistivity [ohm m], upper-layer thickness [m]).
+    earth_layers: tuple[float, float] | None = None
+    #: With [towers.NAME] tables: the towers in order of first use, each one's wires (the
+    #: first is ``wires``) and the tower of each section. Empty: one cross-section.
+    tower_names: tuple[str, ...] = ()
+    tower_wires: tuple[tuple[Wire, ...], ...] = ()
+    section_towers: tuple[int, ...] = ()
+    tower_position_names: tuple[tuple[str, ...], ...] = ()  #: per tower, like position_names
 
 
 def _conductor_props(study: Study, name: str, source: str) -> dict:
@@ -98,66 +106,47 @@ def build_geometry(study: Study, source: str = "<study>") -> LineGeometry:
             )
         return resolved[name]
 
-    wires: list[Wire] = []
-    position_names: list[str] = []
     assumptions = [
         "Conductor height is the average over the span, h - 2/3 * sag (parabolic sag).",
-        "Earth is homogeneous with the given resistivity; earth-return model: "
-        f"{study.system.earth_model}.",
+        _earth_assumption(study.system),
         "Subconductors of a bundle share one voltage (bonded at the spacers).",
     ]
     assumptions.extend(study_warnings(study))
-    for c, circuit in enumerate(study.circuits):
-        for k, pos in enumerate(circuit.positions):
-            field = f"circuits[{c}].positions[{k}]"
-            data = conductor(pos.conductor, f"{field}.conductor")
-            position_names.append(f"{circuit.name}/{pos.name}")
-            y0 = pos.mean_height_m
-            offsets = np.zeros((1, 2))
-            if pos.bundle is not None and pos.bundle.count > 1:
-                offsets = bundle_offsets_m(pos.bundle.count, pos.bundle.spacing,
-                                           pos.bundle.orientation)
-                if pos.bundle.spacing <= 2 * data.radius_m:
-                    raise InputError(
-                        f"bundle spacing must exceed the conductor diameter "
-                        f"({2e3 * data.radius_m:.1f} mm)",
-                        field=f"{field}.bundle.spacing", value=f"{pos.bundle.spacing:g} m",
-                        source=source)
-            for s, (dx, dy) in enumerate(offsets):
-                wires.append(Wire(pos.x + dx, y0 + dy, data, "phase", 3 * c + k,
-                                  f"circuit {circuit.name}, position {pos.name}"
-                                  + (f", subconductor {s + 1}" if len(offsets) > 1 else ""),
-                                  field))
-    for k, sw in enumerate(study.shield_wires):
-        field = f"shield_wires[{k}]"
-        data = conductor(sw.conductor, f"{field}.conductor")
-        wires.append(Wire(sw.x, sw.mean_height_m, data, "shield", k,
-                          f"shield wire {sw.name or k + 1}", field, sw.grounding))
-    if any(sw.grounding == "segmented" for sw in study.shield_wires):
+    if study.towers:
+        tower_names = tuple(dict.fromkeys(sec.tower for sec in study.line.sections))
+        crossings = [
+            ([(f"towers.{toml_key(t)}.positions.{toml_key(c.name)}[{{k}}]",
+               study.towers[t].positions[c.name]) for c in study.circuits],
+             study.towers[t].shield_wires, f"towers.{toml_key(t)}.shield_wires[{{k}}]")
+            for t in tower_names]
+        section_towers = tuple(tower_names.index(sec.tower) for sec in study.line.sections)
+    else:
+        tower_names = ()
+        crossings = [([(f"circuits[{c}].positions[{{k}}]", circ.positions)
+                       for c, circ in enumerate(study.circuits)],
+                      study.shield_wires, "shield_wires[{k}]")]
+        section_towers = ()
+    placed = [_place_wires(study, *cross, conductor, source) for cross in crossings]
+    tower_wires = tuple(w for w, _ in placed)
+    wires, position_names = placed[0]
+    all_shields = [sw for _, sws, _ in crossings for sw in sws]
+    if any(sw.grounding == "segmented" for sw in all_shields):
         assumptions.append(
             "Segmented shield wires (insulated sections, each earthed at one point) carry no "
             "power-frequency current: left out of the series impedance, kept at earth "
             "potential for capacitance.")
-    if any(sw.grounding == "none" for sw in study.shield_wires):
+    if any(sw.grounding == "none" for sw in all_shields):
         assumptions.append("Insulated shield wires float: no current and no net charge.")
-    if any(sw.grounding == "continuous" for sw in study.shield_wires):
+    if any(sw.grounding == "continuous" for sw in all_shields):
         assumptions.append("Continuously earthed shield wires are at zero voltage and are "
                            "eliminated by Kron reduction.")
-
-    # Geometry rules: above ground, no overlap.
-    for w in wires:
-        if w.y_m - w.conductor.radius_m <= 0:
-            raise InputError("conductor would be at or below ground (mean height = height - "
-                             "2/3 sag must exceed the conductor radius)",
-                             field=w.field, value=f"mean height {w.y_m:.3f} m", source=source)
-    for i in range(len(wires)):
-        for j in range(i + 1, len(wires)):
-            a, b = wires[i], wires[j]
-            d = math.hypot(a.x_m - b.x_m, a.y_m - b.y_m)
-            if d <= a.conductor.radius_m + b.conductor.radius_m + _MIN_CLEARANCE_M:
-                raise InputError(
-                    f"overlaps {b.label} ({b.field}); centres {d:.3f} m apart",
-                    field=a.field, value=a.label, source=source)
+    if len(tower_names) > 1:
+        assumptions.append(
+            "Sections of different tower types: each section's series impedance and shunt "
+            "admittance from its own cross-section; the line's Z1 and Z0 (and k0) that the "
+            "relay is set with are the length-weighted totals over all sections, and its "
+            "distributed (exact pi) equivalent is that of the length-weighted average line; "
+            "the fault simulation cascades the sections as they are.")
 
     # Section plan.
     n_c = len(study.circuits)
@@ -219,4 +208,80 @@ def build_geometry(study: Study, source: str = "<study>") -> LineGeometry:
         earth_model=study.system.earth_model,
         v_nominal_v=study.system.nominal_voltage,
         assumptions=tuple(assumptions),
+        earth_layers=_earth_layers(study.system),
+        tower_names=tower_names,
+        tower_wires=tower_wires if tower_names else (),
+        tower_position_names=tuple(n for _, n in placed) if tower_names else (),
+        section_towers=section_towers,
     )
+
+
+def _place_wires(study: Study, circuits, shield_wires, shield_field: str, conductor,
+                 source: str) -> tuple[tuple[Wire, ...], tuple[str, ...]]:
+    """Every wire of one cross-section, checked above ground and clear of each other.
+
+    ``circuits`` holds per circuit (field pattern with ``{k}``, its three positions).
+    """
+    wires: list[Wire] = []
+    position_names: list[str] = []
+    for c, (pattern, positions) in enumerate(circuits):
+        circuit = study.circuits[c]
+        for k, pos in enumerate(positions):
+            field = pattern.replace("{k}", str(k))
+            data = conductor(pos.conductor, f"{field}.conductor")
+            position_names.append(f"{circuit.name}/{pos.name}")
+            y0 = pos.mean_height_m
+            offsets = np.zeros((1, 2))
+            if pos.bundle is not None and pos.bundle.count > 1:
+                offsets = bundle_offsets_m(pos.bundle.count, pos.bundle.spacing,
+                                           pos.bundle.orientation)
+                if pos.bundle.spacing <= 2 * data.radius_m:
+                    raise InputError(
+                        f"bundle spacing must exceed the conductor diameter "
+                        f"({2e3 * data.radius_m:.1f} mm)",
+                        field=f"{field}.bundle.spacing", value=f"{pos.bundle.spacing:g} m",
+                        source=source)
+            for s, (dx, dy) in enumerate(offsets):
+                wires.append(Wire(pos.x + dx, y0 + dy, data, "phase", 3 * c + k,
+                                  f"circuit {circuit.name}, position {pos.name}"
+                                  + (f", subconductor {s + 1}" if len(offsets) > 1 else ""),
+                                  field))
+    for k, sw in enumerate(shield_wires):
+        field = shield_field.replace("{k}", str(k))
+        data = conductor(sw.conductor, f"{field}.conductor")
+        wires.append(Wire(sw.x, sw.mean_height_m, data, "shield", k,
+                          f"shield wire {sw.name or k + 1}", field, sw.grounding))
+
+    # Geometry rules: above ground, no overlap.
+    for w in wires:
+        if w.y_m - w.conductor.radius_m <= 0:
+            raise InputError("conductor would be at or below ground (mean height = height - "
+                             "2/3 sag must exceed the conductor radius)",
+                             field=w.field, value=f"mean height {w.y_m:.3f} m", source=source)
+    for i in range(len(wires)):
+        for j in range(i + 1, len(wires)):
+            a, b = wires[i], wires[j]
+            d = math.hypot(a.x_m - b.x_m, a.y_m - b.y_m)
+            if d <= a.conductor.radius_m + b.conductor.radius_m + _MIN_CLEARANCE_M:
+                raise InputError(
+                    f"overlaps {b.label} ({b.field}); centres {d:.3f} m apart",
+                    field=a.field, value=a.label, source=source)
+    return tuple(wires), tuple(position_names)
+
+
+def _earth_layers(system) -> tuple[float, float] | None:
+    if system.earth_model != "two_layer":
+        return None
+    return (float(system.earth_lower_resistivity), float(system.earth_layer_thickness))
+
+
+def _earth_assumption(system) -> str:
+    if system.earth_model == "two_layer":
+        return ("Earth is two horizontal layers: the upper one "
+                f"{system.earth_layer_thickness:g} m thick of {system.earth_resistivity:g} "
+                f"ohm*m over a half-space of {system.earth_lower_resistivity:g} ohm*m; "
+                "earth-return model: two_layer (Carson's integral over layered earth, "
+                "integrated numerically); the verification's resistivity sweep scales both "
+                "layers alike.")
+    return ("Earth is homogeneous with the given resistivity; earth-return model: "
+            f"{system.earth_model}.")

@@ -2,6 +2,7 @@
 
 from __future__ import annotations
 
+import itertools
 import math
 
 import numpy as np
@@ -24,15 +25,17 @@ from relayset.results.parameters import (
 from relayset.studies.geometry import LineGeometry
 
 
-def position_matrices(geo: LineGeometry) -> tuple[np.ndarray, np.ndarray]:
+def position_matrices(geo: LineGeometry, wires=None) -> tuple[np.ndarray, np.ndarray]:
     """Series impedance [ohm/m] and shunt admittance [S/m] by phase position.
+
+    ``wires``: one tower's cross-section (default: the first section's, ``geo.wires``).
 
     Order of elimination: continuously earthed shield wires by Kron reduction, then the
     subconductors of each bundle by bundle reduction. Segmented and insulated shield wires
     carry no series current; for capacitance, segmented ones are at earth potential and
     insulated ones float.
     """
-    wires = geo.wires
+    wires = geo.wires if wires is None else wires
     phase_idx = [i for i, w in enumerate(wires) if w.role == "phase"]
     earthed_series = [i for i, w in enumerate(wires)
                       if w.role == "shield" and w.grounding == "continuous"]
@@ -50,7 +53,7 @@ def position_matrices(geo: LineGeometry) -> tuple[np.ndarray, np.ndarray]:
     x, y, sel = arrays(phase_idx + earthed_series)
     z_prim = impedance.primitive_impedance_ohm_per_m(
         x, y, [w.conductor.gmr_m for w in sel], [w.conductor.r_ac_ohm_per_m for w in sel],
-        geo.frequency_hz, geo.resistivity_ohm_m, geo.earth_model)
+        geo.frequency_hz, geo.resistivity_ohm_m, geo.earth_model, geo.earth_layers)
     z_sub = impedance.kron_reduce(z_prim, len(phase_idx))
     z_pos = impedance.bundle_reduce(z_sub, groups)
 
@@ -87,30 +90,91 @@ def _arrangement(name, description, z_sections, y_sections, lengths, n_c) -> Arr
     return Arrangement(name, description, zabc, yabc, z012, tuple(m0), tuple(m2), z0m)
 
 
+def plan_sections(geo: LineGeometry, plan: str
+                  ) -> tuple[list[list[int]], list[float], list[int]]:
+    """The sections of an arrangement: phase orders, lengths [m] and tower indices.
+
+    ``actual_plan`` is the study's plan. ``untransposed`` holds the first section's order,
+    ``ideal_cycle`` rotates it cyclically in three equal parts of the length. With several
+    tower types every stretch keeps its own tower (the sections cut where needed).
+    """
+    orders = [list(o) for o in geo.section_orders]
+    lengths = [float(v) for v in geo.section_lengths_m]
+    towers = list(geo.section_towers) or [0] * len(orders)
+    if plan == "actual_plan":
+        return orders, lengths, towers
+    cycle = transposition.cyclic_orders(orders[0], geo.n_circuits)
+    if len(geo.tower_names) <= 1:
+        if plan == "untransposed":
+            return orders[:1], [geo.length_m], [0]
+        return cycle, [geo.length_m / 3] * 3, [0] * 3
+    if plan == "untransposed":
+        return [orders[0]] * len(orders), lengths, towers
+    # The same route (each stretch on its own towers) with the phases rotated at one and two
+    # thirds of the length: the sections cut at those two points.
+    edges = np.concatenate([[0.0], np.cumsum(lengths)])
+    total = float(edges[-1])
+    cuts = sorted({*edges.tolist(), total / 3, 2 * total / 3})
+    out_o, out_l, out_t = [], [], []
+    for a, b in itertools.pairwise(cuts):
+        if b - a <= 1e-9 * total:
+            continue
+        mid = 0.5 * (a + b)
+        k = min(int(np.searchsorted(edges, mid)) - 1, len(lengths) - 1)
+        out_o.append(cycle[min(int(3 * mid / total), 2)])
+        out_l.append(b - a)
+        out_t.append(towers[k])
+    return out_o, out_l, out_t
+
+
+def section_stack(z_towers, orders, towers) -> np.ndarray:
+    """Phase-ordered matrices of the sections, (S, n, n), each from its tower's matrix by
+    position (``z_towers``: one per tower)."""
+    return np.stack([transposition.to_phase_order(z_towers[t], o)
+                     for o, t in zip(orders, towers, strict=True)])
+
+
 def compute_parameters(geo: LineGeometry) -> LineParameters:
     """All line parameters of a study's geometry (pure computation)."""
     z_pos, y_pos = position_matrices(geo)
     n_c = geo.n_circuits
     lengths = np.array(geo.section_lengths_m)
     orders = [list(o) for o in geo.section_orders]
-
-    def stack(orders_):
-        return (transposition.section_matrices(z_pos, orders_),
-                transposition.section_matrices(y_pos, orders_))
-
     arrangements = {}
-    zs, ys = stack(orders[:1])
-    arrangements["untransposed"] = _arrangement(
-        "untransposed", "first section's phase order held over the whole line", zs, ys,
-        [1.0], n_c)
-    zs, ys = stack(orders)
-    arrangements["actual_plan"] = _arrangement(
-        "actual_plan", f"the transposition plan of the study ({len(orders)} section(s))",
-        zs, ys, lengths, n_c)
-    zs, ys = stack(transposition.cyclic_orders(orders[0], n_c))
-    arrangements["ideal_cycle"] = _arrangement(
-        "ideal_cycle", "three equal sections, phases rotated cyclically", zs, ys,
-        [1.0, 1.0, 1.0], n_c)
+    z_towers: tuple[np.ndarray, ...] = ()
+    y_towers: tuple[np.ndarray, ...] = ()
+    if len(geo.tower_names) > 1:
+        mats = [(z_pos, y_pos)] + [position_matrices(geo, w) for w in geo.tower_wires[1:]]
+        z_towers = tuple(m[0] for m in mats)
+        y_towers = tuple(m[1] for m in mats)
+        for name, description in (
+                ("untransposed", "first section's phase order held over the whole line, "
+                                 "each section on its own towers"),
+                ("actual_plan", f"the transposition plan of the study ({len(orders)} "
+                                "section(s), each on its own towers)"),
+                ("ideal_cycle", "three equal parts of the line, phases rotated "
+                                "cyclically, each stretch on its own towers")):
+            ords, lens, tws = plan_sections(geo, name)
+            arrangements[name] = _arrangement(
+                name, description, section_stack(z_towers, ords, tws),
+                section_stack(y_towers, ords, tws), lens, n_c)
+    else:
+        def stack(orders_):
+            return (transposition.section_matrices(z_pos, orders_),
+                    transposition.section_matrices(y_pos, orders_))
+
+        zs, ys = stack(orders[:1])
+        arrangements["untransposed"] = _arrangement(
+            "untransposed", "first section's phase order held over the whole line", zs, ys,
+            [1.0], n_c)
+        zs, ys = stack(orders)
+        arrangements["actual_plan"] = _arrangement(
+            "actual_plan", f"the transposition plan of the study ({len(orders)} section(s))",
+            zs, ys, lengths, n_c)
+        zs, ys = stack(transposition.cyclic_orders(orders[0], n_c))
+        arrangements["ideal_cycle"] = _arrangement(
+            "ideal_cycle", "three equal sections, phases rotated cyclically", zs, ys,
+            [1.0, 1.0, 1.0], n_c)
 
     plan = arrangements["actual_plan"]
     omega = 2 * math.pi * geo.frequency_hz
@@ -144,7 +208,8 @@ def compute_parameters(geo: LineGeometry) -> LineParameters:
     labels = geo.phase_labels
     section_orders = tuple(
         tuple(labels[i // 3][i % 3] for i in o) for o in geo.section_orders)
-    conductors = tuple({w.conductor.name: w.conductor for w in geo.wires}.values())
+    conductors = tuple({w.conductor.name: w.conductor
+                        for ws in (geo.tower_wires or (geo.wires,)) for w in ws}.values())
     return LineParameters(
         length_m=geo.length_m,
         frequency_hz=geo.frequency_hz,
@@ -158,6 +223,10 @@ def compute_parameters(geo: LineGeometry) -> LineParameters:
         conductors=conductors,
         z_by_position_ohm_per_m=z_pos,
         y_by_position_s_per_m=y_pos,
+        tower_names=geo.tower_names,
+        section_towers=geo.section_towers,
+        z_by_tower_ohm_per_m=z_towers,
+        y_by_tower_s_per_m=y_towers,
         arrangements=arrangements,
         circuits=tuple(circuits),
         k0m=k0m,

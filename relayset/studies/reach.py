@@ -35,6 +35,7 @@ from relayset.results.relay import RelayBasis
 from relayset.results.serialize import cplx
 from relayset.settings.zone1 import recommended_zone1_pct
 from relayset.studies.geometry import LineGeometry
+from relayset.studies.parameters import plan_sections, section_stack
 
 LOOPS = measurement.LOOPS
 
@@ -76,18 +77,40 @@ def _same_cascade(a: network.LineCascade, b: network.LineCascade) -> bool:
             and (a.y_s_per_m is None or np.array_equal(a.y_s_per_m, b.y_s_per_m)))
 
 
-def _cascade(z_pos, y_pos, orders, lengths, shunt: bool) -> network.LineCascade:
-    zs = transposition.section_matrices(z_pos, orders)
-    ys = transposition.section_matrices(y_pos, orders) if shunt else None
+def _cascade(z_pos, y_pos, orders, lengths, shunt: bool, towers=None) -> network.LineCascade:
+    """The line as a cascade of its sections. ``z_pos``/``y_pos``: the matrices by
+    position of the one cross-section, or (with ``towers``, the tower of each section) a
+    sequence of them, one per tower."""
+    if towers is None:
+        zs = transposition.section_matrices(z_pos, orders)
+        ys = transposition.section_matrices(y_pos, orders) if shunt else None
+    else:
+        zs = section_stack(z_pos, orders, towers)
+        ys = section_stack(y_pos, orders, towers) if shunt else None
     return network.LineCascade(zs, np.asarray(lengths, float), ys)
 
 
+def line_cascade(geo: LineGeometry, params: LineParameters, plan: str,
+                 shunt: bool) -> network.LineCascade:
+    """The cascade of an arrangement (see :func:`relayset.studies.parameters.plan_sections`)
+    at the resistivity of ``params``."""
+    orders, lengths, towers = plan_sections(geo, plan)
+    if len(geo.tower_names) <= 1:
+        return _cascade(params.z_by_position_ohm_per_m, params.y_by_position_s_per_m,
+                        orders, lengths, shunt)
+    z_t, y_t = params.tower_matrices()
+    return _cascade(z_t, y_t, orders, lengths, shunt, towers)
+
+
 def _positions_at(m: float, loop: str, orders, lengths, names) -> tuple[str, ...]:
+    """The positions of the loop's phases where the fault is (``names``: the position
+    names of each section's tower)."""
     total = math.fsum(lengths)  # a few sections: plain Python beats numpy's call overhead
     edges = list(itertools.accumulate(lengths))
     s = min(bisect.bisect_left([e / total for e in edges], m - 1e-12), len(orders) - 1)
     order = list(orders[s])
-    return tuple(names[order.index(p)].split("/", 1)[-1] for p in measurement.LOOP_PHASES[loop])
+    return tuple(names[s][order.index(p)].split("/", 1)[-1]
+                 for p in measurement.LOOP_PHASES[loop])
 
 
 def run_reach_study(
@@ -139,19 +162,13 @@ def run_reach_study(
     z1_set, k0_set, k0m_set = relay.z1_set_ohm, relay.k0_set, relay.k0m_set
     budget = study.error_budget.total_pct
 
-    lengths = np.array(geo.section_lengths_m)
-    orders = [list(o) for o in geo.section_orders]
-    plans = {
-        "actual_plan": (orders, lengths),
-        "untransposed": (orders[:1], [geo.length_m]),
-        "ideal_cycle": (transposition.cyclic_orders(orders[0], n_c), [geo.length_m / 3] * 3),
-    }
+    plans = {key: plan_sections(geo, key)
+             for key in ("actual_plan", "untransposed", "ideal_cycle")}
     field_names = {"m": "reach_study.locations_pct",
                    "r_fault_ohm": "reach_study.fault_resistances",
                    "r_phase_ohm": "reach_study.phase_fault_resistance",
                    "source_scale": "reach_study.source_cases"}
-    lines = {key: _cascade(params.z_by_position_ohm_per_m, params.y_by_position_s_per_m, ords, lens,
-                           rs.shunt_capacitance) for key, (ords, lens) in plans.items()}
+    lines = {key: line_cascade(geo, params, key, rs.shunt_capacitance) for key in plans}
     # Identical arrangements (one-section line: actual plan = untransposed; ideal plan =
     # ideal cycle) are solved once and reported under each name.
     same_as: dict[str, str] = {}
@@ -215,12 +232,15 @@ def run_reach_study(
         at_s = end_name == names[0]
         arrs = []
         for key, mutual in variants:
-            ords, lens = plans[key]
+            ords, lens, tws = plans[key]
+            names_by_section = [geo.tower_position_names[t] if geo.tower_names
+                                else geo.position_names for t in tws]
             if not at_s:  # seen from R the plan runs backwards
                 ords, lens = ords[::-1], list(lens)[::-1]
+                names_by_section = names_by_section[::-1]
             arrs.append(condensers[(end_name, same_as[key], mutual)].result(
                 key, same_as[key], angles_rad[same_as[key]], rs, labels, ords, lens,
-                geo.position_names))
+                names_by_section))
         actual = arrs[0]
         worst = actual.worst_bolted_overreach_at_remote_bus_pct
         rec = recommended_zone1_pct(worst, budget, zone1_max_pct, zone1_margin_pct)

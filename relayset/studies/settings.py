@@ -107,12 +107,16 @@ def arc_lengths(study: Study, geo: LineGeometry) -> ArcLengths:
 
 
 def _phase_spacing_m(geo: LineGeometry) -> float:
-    centres = {}
-    for w in geo.wires:
-        if w.role == "phase" and w.group < 3:
-            centres.setdefault(w.group, []).append((w.x_m, w.y_m))
-    pts = [tuple(sum(c) / len(v) for c in zip(*v, strict=True)) for v in centres.values()]
-    return min(math.dist(a, b) for i, a in enumerate(pts) for b in pts[i + 1:])
+    """The smallest phase spacing of the protected circuit, over every tower type."""
+    spacings = []
+    for wires in geo.tower_wires or (geo.wires,):
+        centres = {}
+        for w in wires:
+            if w.role == "phase" and w.group < 3:
+                centres.setdefault(w.group, []).append((w.x_m, w.y_m))
+        pts = [tuple(sum(c) / len(v) for c in zip(*v, strict=True)) for v in centres.values()]
+        spacings += [math.dist(a, b) for i, a in enumerate(pts) for b in pts[i + 1:]]
+    return min(spacings)
 
 
 def run_settings(study: Study, geo: LineGeometry, params: LineParameters, relay: RelayBasis,

@@ -18,12 +18,12 @@ from relayset.studies.parameters import compute_parameters
 
 def main() -> None:
     for name in ("ashcombe_brenwick_132kv.toml", "elsford_fallowby_230kv_double.toml",
-                 "greyholt_ivel_400kv_twin.toml"):
+                 "greyholt_ivel_400kv_twin.toml", "harlow_quay_tessmoor_132kv_towers.toml"):
         path = demo_lines_dir() / name
         study = load_study(path).study
         geo = build_geometry(study, str(path))
         compute_parameters(geo)  # warm up
-        n = 200
+        n = 20 if "towers" in name else 200  # two-layer earth: an integration per call
         t = timeit.timeit(lambda g=geo: compute_parameters(g), number=n) / n
         t_all = timeit.timeit(lambda s=study, p=path: compute_parameters(build_geometry(s, str(p))),
                               number=n) / n

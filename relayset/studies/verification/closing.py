@@ -57,6 +57,9 @@ def params_by_resistivity(study: Study, geo: LineGeometry, params: LineParameter
     for r in resistivities(study)[0]:
         if float(r) not in out:
             system = replace(study.system, earth_resistivity=r)
+            if system.earth_lower_resistivity is not None:  # two layers: both scale alike
+                system = replace(system, earth_lower_resistivity=(
+                    system.earth_lower_resistivity * r / rho))
             other = replace(study, system=system)
             out[float(r)] = compute_parameters(build_geometry(other, source))
     return out

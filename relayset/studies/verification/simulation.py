@@ -24,7 +24,7 @@ from relayset.inputs.study_file import Study
 from relayset.physics import network
 from relayset.results.parameters import LineParameters
 from relayset.studies.geometry import LineGeometry
-from relayset.studies.reach import _cascade, build_source, emfs_for_flows_at
+from relayset.studies.reach import build_source, emfs_for_flows_at, line_cascade
 from relayset.studies.verification.envelope import Envelope
 
 #: Per-case results the relay model reads (both ends, both circuits, the currents into the
@@ -225,8 +225,6 @@ def simulate(study: Study, geo: LineGeometry, params_by_rho: dict[float, LinePar
     n_c = geo.n_circuits
     states = network.PARALLEL_STATES if n_c == 2 else ("in_service",)
     mutual = n_c == 2 and rs.mutual_compensation
-    lengths = np.array(geo.section_lengths_m)
-    orders = [list(o) for o in geo.section_orders]
     relay_end = study.relay.end if study.relay and study.relay.end in names else names[0]
     configs = source_configs(study, names, src)
     groups = env.groups(tuple(network.FAULT_TYPES))
@@ -235,8 +233,7 @@ def simulate(study: Study, geo: LineGeometry, params_by_rho: dict[float, LinePar
     max_angle = 0.0
     for rho, params in params_by_rho.items():
         for state in states:
-            line = _cascade(params.z_by_position_ohm_per_m, params.y_by_position_s_per_m, orders,
-                            lengths, rs.shunt_capacitance)
+            line = line_cascade(geo, params, "actual_plan", rs.shunt_capacitance)
             jobs = []
             if protected:
                 jobs.append(("protected", line))
