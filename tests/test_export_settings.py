@@ -13,7 +13,6 @@ import cmath
 import hashlib
 import json
 import math
-import shutil
 import tomllib
 from decimal import Decimal
 from pathlib import Path
@@ -24,6 +23,7 @@ import pytest
 from relayset.cli import main
 from relayset.export.schemas import SCHEMAS
 from relayset.export.setting_file import setting_files
+from relayset.inputs.profile import with_profile
 from relayset.settings.settable import ROUNDING, round_to_step
 from relayset.studies import pipeline
 
@@ -48,10 +48,10 @@ def _copy(tmp_path, demo=MHO, profile_edit=None, text=None):
     d = tmp_path / "study"
     (d / "profiles").mkdir(parents=True)
     study = d / demo.name
-    shutil.copy(demo, study)
-    src = tomllib.loads(demo.read_text())["relay"]["profile"]
-    prof = d / src
-    body = (DEMOS / src).read_text() if text is None else text
+    name = tomllib.loads(demo.read_text())["relay"]["profile"]  # a shipped profile's name
+    study.write_text(with_profile(demo.read_text(), f"profiles/{name}.toml"))
+    prof = d / "profiles" / f"{name}.toml"
+    body = (DEMOS / "profiles" / f"{name}.toml").read_text() if text is None else text
     prof.write_text(profile_edit(body) if profile_edit else body)
     return study, prof
 
@@ -120,6 +120,7 @@ def test_verification_runs_on_settable_values(mho, tmp_path):
     # without the profile the same study keeps its ideal values: the verification differs
     study, _ = _copy(tmp_path)
     text = study.read_text().replace('profile = "profiles/generic_mho_5a.toml"\n', "")
+    assert "profile =" not in text
     study.write_text(text)
     ideal = pipeline.run(study, settings=True)
     z_ideal = ideal.settings[0].zone("zone1")

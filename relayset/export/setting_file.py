@@ -101,6 +101,49 @@ def to_csv(doc: dict[str, Any]) -> bytes:
     return csv_bytes(buf.getvalue())
 
 
+#: Name prefix of the relay profile embedded in a report (verify tells it from the
+#: philosophy by it); embedded setting files end in :data:`EMBEDDED_SETTINGS_SUFFIX`.
+PROFILE_PREFIX = "relay_profile."
+EMBEDDED_SETTINGS_SUFFIX = "_settings.json"
+
+
+def is_setting_attachment(name: str) -> bool:
+    """Whether a report's embedded file is its relay profile or a setting file."""
+    return name.startswith(PROFILE_PREFIX) or name.endswith(EMBEDDED_SETTINGS_SUFFIX)
+
+
+def profile_attachment(results) -> tuple[str, bytes] | None:
+    """The relay profile to embed in a report: (name, bytes), None without a profile.
+
+    Raises
+    ------
+    InputError
+        The profile changed after the settings were computed from it.
+    """
+    from relayset.inputs.profile import study_profile
+
+    ends = results.settings or ()
+    if not ends or ends[0].settable is None:
+        return None
+    rel = (results.input or {}).get("relay") or {}
+    prof = study_profile(rel.get("profile"), str(results.source_file))
+    if prof is None:
+        return None
+    if prof.sha256 != ends[0].settable.profile_sha256:
+        raise InputError("changed after the settings were computed; run the report again",
+                         source=prof.source)
+    return f"{PROFILE_PREFIX}{Path(prof.source).name}", Path(prof.source).read_bytes()
+
+
+def embedded_setting_files(results, results_text: str, doc_id: str
+                           ) -> list[tuple[str, bytes]]:
+    """(name, bytes) of each relay end's setting file (JSON) for a report's attachments."""
+    from relayset import io
+
+    return [(f"{end_stem(doc_id, d['relay_end'])}.json", io.to_json(d).encode("utf-8"))
+            for d in setting_records(results, results_text)]
+
+
 def end_stem(stem: str, end: str) -> str:
     """File stem of one relay end's setting file: ``<line>_rev<r>_<end>_settings``."""
     clean = re.sub(r"[^A-Za-z0-9._-]+", "_", end).strip("._") or "end"

@@ -197,10 +197,31 @@ def load_profile(path: str | Path) -> RelayProfile:
     return profile_from_dict(loads_toml(raw, source), source, hashlib.sha256(raw).hexdigest())
 
 
+def shipped_profiles() -> dict[str, Path]:
+    """The invented generic profiles shipped with relayset, by name (file name less .toml)."""
+    from relayset.resources import demo_lines_dir
+
+    return {p.stem: p for p in sorted((demo_lines_dir() / "profiles").glob("*.toml"))}
+
+
+def is_shipped_name(profile: str) -> bool:
+    """Whether ``relay.profile`` names a shipped profile (a bare name, no .toml, no folder)
+    rather than a file (a path ending in .toml)."""
+    return not profile.lower().endswith(".toml") and not any(c in profile for c in "/\\")
+
+
 def study_profile(profile: str | None, study_source: str) -> RelayProfile | None:
-    """The profile a study names (``relay.profile``, relative to the study file), or None."""
+    """The profile a study names, or None: a file (a path ending in .toml, relative to the
+    study file) or, by a bare name, one of relayset's shipped generic profiles."""
     if profile is None:
         return None
+    if is_shipped_name(profile):
+        shipped = shipped_profiles()
+        if profile not in shipped:
+            raise InputError("neither a profile file (a path ending in .toml) nor a shipped "
+                             f"profile ({', '.join(shipped)})", field="relay.profile",
+                             value=profile, source=study_source)
+        return load_profile(shipped[profile])
     path = Path(profile)
     if not path.is_absolute():
         path = Path(study_source).parent / path
@@ -208,3 +229,37 @@ def study_profile(profile: str | None, study_source: str) -> RelayProfile | None
         raise InputError("relay profile file does not exist", field="relay.profile",
                          value=profile, source=study_source)
     return load_profile(path)
+
+
+def with_profile(text: str, profile: str) -> str:
+    """A study's text with ``relay.profile`` set to ``profile`` (a copy elsewhere: verify's
+    private folder, a register's effective study). The edit is textual, comments and
+    layout kept, and the result is parsed again to prove that only that value changed.
+
+    Raises
+    ------
+    ValueError
+        The study has no ``profile`` key in a ``[relay]`` table written as such.
+    """
+    import json
+    import re
+    import tomllib
+
+    lines = text.splitlines(keepends=True)
+    head = next((i for i, ln in enumerate(lines)
+                 if re.match(r"""\s*\[\s*(relay|"relay"|'relay')\s*\]\s*(#.*)?$""", ln)), None)
+    if head is None:
+        raise ValueError("no [relay] table")
+    end = next((i for i in range(head + 1, len(lines)) if re.match(r"\s*\[", lines[i])),
+               len(lines))
+    pat = re.compile(r"""\s*(profile|"profile"|'profile')\s*=""")
+    hit = next((i for i in range(head + 1, end) if pat.match(lines[i])), None)
+    if hit is None:
+        raise ValueError("no relay.profile")
+    lines[hit] = f"profile = {json.dumps(profile)}\n"
+    new = "".join(lines)
+    before, after = tomllib.loads(text), tomllib.loads(new)
+    after["relay"]["profile"] = before["relay"]["profile"]
+    if after != before:
+        raise ValueError("relay.profile could not be replaced alone")
+    return new
