@@ -13,6 +13,7 @@ import cmath
 import hashlib
 import json
 import math
+import shutil
 import tomllib
 from decimal import Decimal
 from pathlib import Path
@@ -23,7 +24,6 @@ import pytest
 from relayset.cli import main
 from relayset.export.schemas import SCHEMAS
 from relayset.export.setting_file import setting_files
-from relayset.inputs.profile import with_profile
 from relayset.settings.settable import ROUNDING, round_to_step
 from relayset.studies import pipeline
 
@@ -39,17 +39,36 @@ def _validate(name, doc):
 
 
 @pytest.fixture(scope="module")
-def mho():
-    return pipeline.run(MHO, settings=True)
+def mho(tmp_path_factory):
+    return pipeline.run(_demo(tmp_path_factory.mktemp("mho")), settings=True)
+
+
+PROFILE_OF = {MHO: "generic_mho_5a", QUAD: "generic_quadrilateral_1a"}
+
+
+def _with_profile_line(text, value):
+    """The demo's text with ``profile = VALUE`` added to its [relay] table."""
+    assert "\n[relay]\n" in text
+    return text.replace("\n[relay]\n", f"\n[relay]\nprofile = {json.dumps(value)}\n", 1)
+
+
+def _demo(tmp_path, demo=MHO):
+    """The demo in tmp_path naming its shipped profile by name."""
+    tmp_path.mkdir(parents=True, exist_ok=True)
+    shutil.copytree(DEMOS / "philosophies", tmp_path / "philosophies", dirs_exist_ok=True)
+    study = tmp_path / demo.name
+    study.write_text(_with_profile_line(demo.read_text(), PROFILE_OF[demo]))
+    return study
 
 
 def _copy(tmp_path, demo=MHO, profile_edit=None, text=None):
-    """The demo and its profile copied into tmp_path, the profile edited as text."""
+    """The demo and its profile copied into tmp_path, named by path, the profile edited."""
     d = tmp_path / "study"
     (d / "profiles").mkdir(parents=True)
+    shutil.copytree(DEMOS / "philosophies", d / "philosophies")
     study = d / demo.name
-    name = tomllib.loads(demo.read_text())["relay"]["profile"]  # a shipped profile's name
-    study.write_text(with_profile(demo.read_text(), f"profiles/{name}.toml"))
+    name = PROFILE_OF[demo]
+    study.write_text(_with_profile_line(demo.read_text(), f"profiles/{name}.toml"))
     prof = d / "profiles" / f"{name}.toml"
     body = (DEMOS / "profiles" / f"{name}.toml").read_text() if text is None else text
     prof.write_text(profile_edit(body) if profile_edit else body)
@@ -83,8 +102,8 @@ def test_rule_per_setting_as_stated():
 
 
 @pytest.mark.parametrize("demo", [MHO, QUAD], ids=["mho_5a", "quad_1a"])
-def test_settable_on_grid_and_in_direction(demo):
-    res = pipeline.run(demo, settings=True)
+def test_settable_on_grid_and_in_direction(demo, tmp_path):
+    res = pipeline.run(_demo(tmp_path, demo), settings=True)
     for st in res.settings:
         assert st.settable is not None
         for v in st.settable.values:
@@ -104,14 +123,14 @@ def test_settable_on_grid_and_in_direction(demo):
         assert math.isclose(rec.primary, rec.settable / st.secondary_factor, rel_tol=1e-12)
 
 
-def test_k0_forms_identity(mho):
+def test_k0_forms_identity(mho, tmp_path):
     # Z0/Z1 = 1 + 3 k0 and k0 = (kr R1 + j kx X1)/Z1 (IEEE Std C37.113 forms)
     st = mho.settings[0]
     m, a = (st.settable.value("k0.magnitude").settable,
             st.settable.value("k0.angle").settable)
     assert st.k0.k0 == pytest.approx(cmath.rect(m, math.radians(a)), rel=1e-12)
     assert st.k0.z0_over_z1 == pytest.approx(1 + 3 * st.k0.k0, rel=1e-12)
-    q = pipeline.run(QUAD, settings=True).settings[0]
+    q = pipeline.run(_demo(tmp_path, QUAD), settings=True).settings[0]
     kr, kx = q.settable.value("k0.resistive").settable, q.settable.value("k0.reactive").settable
     assert (q.k0.kr, q.k0.kx) == pytest.approx((kr, kx), rel=1e-9)
 
@@ -119,7 +138,7 @@ def test_k0_forms_identity(mho):
 def test_verification_runs_on_settable_values(mho, tmp_path):
     # without the profile the same study keeps its ideal values: the verification differs
     study, _ = _copy(tmp_path)
-    text = study.read_text().replace('profile = "profiles/generic_mho_5a.toml"\n', "")
+    text = MHO.read_text()
     assert "profile =" not in text
     study.write_text(text)
     ideal = pipeline.run(study, settings=True)
@@ -149,10 +168,11 @@ def test_out_of_range_is_a_failed_check_not_a_clamp(tmp_path, capsys):
 
 def test_export_files_validate_and_hash(tmp_path, capsys):
     out = tmp_path / "out"
-    assert main(["export", str(MHO), str(QUAD), "-o", str(out)]) == 0
+    studies = {d: _demo(tmp_path / d.stem, d) for d in (MHO, QUAD)}
+    assert main(["export", *map(str, studies.values()), "-o", str(out)]) == 0
     capsys.readouterr()
-    for demo in (MHO, QUAD):
-        res = pipeline.run(demo, settings=True)
+    for study in studies.values():
+        res = pipeline.run(study, settings=True)
         stem = f"{res.study['line_id']}_rev{res.study['revision']}"
         results_bytes = (out / f"{stem}.json").read_bytes()
         _validate("results", json.loads(results_bytes))
@@ -161,7 +181,7 @@ def test_export_files_validate_and_hash(tmp_path, capsys):
             doc = json.loads(f.read_bytes())
             _validate("settings", doc)
             assert doc["results_sha256"] == hashlib.sha256(results_bytes).hexdigest()
-            assert doc["study_sha256"] == hashlib.sha256(demo.read_bytes()).hexdigest()
+            assert doc["study_sha256"] == hashlib.sha256(study.read_bytes()).hexdigest()
             assert [r["id"] for r in doc["settings"]] == [
                 v.setting_id for v in st.settable.values]
             csv = f.with_suffix(".csv").read_bytes()
@@ -230,6 +250,44 @@ def test_bad_profile_one_line_exit_2_nothing_written(tmp_path, capsys, edit, wor
     assert code == 2
     assert len(err.splitlines()) == 1 and "Traceback" not in err, err
     assert f"profiles/{prof.name}:" in err  # the file (its path shortened to fit)
+    for w in words:
+        assert w in err, err
+    assert not out.exists()
+
+
+def test_report_embeds_profile_and_setting_file(tmp_path):
+    # the report's attachments read back with pikepdf (an independent PDF library)
+    import pikepdf
+
+    from relayset.report.build import make_report
+
+    rep = make_report(pipeline.run(_demo(tmp_path / "s"), settings=True))
+    pdf_path = tmp_path / "r.pdf"
+    pdf_path.write_bytes(rep.pdf)
+    with pikepdf.open(pdf_path) as pdf:
+        files = {n: pdf.attachments[n].get_file().read_bytes() for n in pdf.attachments}
+    doc = json.loads(next(v for k, v in files.items() if k.endswith("_settings.json")))
+    _validate("settings", doc)
+    results = next(v for k, v in files.items() if k.endswith(".results.json"))
+    assert doc["results_sha256"] == hashlib.sha256(results).hexdigest()
+    prof = next(v for k, v in files.items() if k.startswith("relay_profile."))
+    assert prof == (DEMOS / "profiles" / "generic_mho_5a.toml").read_bytes()
+    # the settings chapter shows ideal, settable and the difference
+    assert "Settable values on the relay profile" in rep.html
+    assert "Step 1 circle diameter" in rep.html and "1.89</td>" in rep.html
+
+
+@pytest.mark.parametrize("value,words", [
+    ("generic_quadrilateral_1a", ['nominal_current = "1 A"', "5 A secondary of the CT"]),
+    ("no_such_profile", ['relay.profile = "no_such_profile"', "nor a shipped profile"]),
+], ids=["nominal current not the CT's", "unknown shipped name"])
+def test_profile_not_fitting_the_study_exit_2(tmp_path, capsys, value, words):
+    study = tmp_path / MHO.name
+    study.write_text(_with_profile_line(MHO.read_text(), value))
+    out = tmp_path / "out"
+    assert main(["export", str(study), "-o", str(out)]) == 2
+    err = capsys.readouterr().err.strip()
+    assert len(err.splitlines()) == 1, err
     for w in words:
         assert w in err, err
     assert not out.exists()

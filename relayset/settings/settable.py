@@ -231,7 +231,7 @@ def _zone(z: ZoneSetting, r: _Rounder, profile: RelayProfile, tilt_needed: bool,
     t = z.reach_primary_ohm
     s = float(z.reach_scale(np.array([t]), line_angle_rad)[0])
     k = 1 / s if math.isfinite(s) and s > 0 else ratio
-    return replace(z, reach_primary_ohm=t * k, reach_secondary_ohm=z.reach_secondary_ohm * k,
+    return replace(z, reach_primary_ohm=t * k, reach_secondary_ohm=t * k * f,
                    reach_pct=z.reach_pct * k)
 
 
@@ -260,18 +260,30 @@ def _k0(k0: K0, z1: complex, profile: RelayProfile, r: _Rounder) -> K0:
 
 
 def settable_settings(st: SettingsResult, profile: RelayProfile,
-                      min_operating_current_a: float) -> SettingsResult:
+                      min_operating_current_a: float, ct_secondary_a: float | None = None
+                      ) -> SettingsResult:
     """``st`` with every setting on ``profile``'s grid, the values kept in ``settable``,
     and a failed ``within_profile_range`` check on a zone for each value out of range
     (k0 and the minimum operating current are checked on zone 1: they act on it first).
 
+    ``ct_secondary_a`` is the CT's rated secondary current [A] where the study gives it; it
+    must be the profile's nominal current.
+
     Raises
     ------
     InputError
-        The profile lacks a setting or a shape the settings need (named in the profile).
+        The profile lacks a setting or a shape the settings need, or its nominal current is
+        not the CT's (named in the profile).
     """
     from pathlib import Path
 
+    if ct_secondary_a is not None and not math.isclose(ct_secondary_a,
+                                                       profile.nominal_current_a, rel_tol=1e-6):
+        from relayset.errors import InputError
+
+        raise InputError(f"does not match the {ct_secondary_a:g} A secondary of the CT at "
+                         f"{st.end}", field="nominal_current",
+                         value=f"{profile.nominal_current_a:g} A", source=profile.source)
     r = _Rounder(profile, st.secondary_factor)
     zones = [_zone(z, r, profile, tilt_needed=bool(z.reactance_tilt_rad),
                    line_angle_rad=st.line_angle_rad) for z in st.zones]

@@ -184,9 +184,13 @@ def settle_and_verify(study: Study, geo: LineGeometry, params: LineParameters, r
     if profile is not None:  # the settings become final: on the relay's steps
         from relayset.settings.settable import settable_settings
 
+        def ct_secondary(end):
+            primary = study.relay.ct_primary_a(end)
+            return None if primary is None else primary / study.relay.ratios(end)[0]
+
         mop = study.relay.min_operating_current
-        final = {end: settable_settings(st, profile, mop) if end in wanted else st
-                 for end, st in final.items()}
+        final = {end: settable_settings(st, profile, mop, ct_secondary(end))
+                 if end in wanted else st for end, st in final.items()}
     # The verification reuses the simulation, with the final zone 1 points solved on top
     # (solved afresh only if the final settings changed what the envelope sweeps).
     env = build_envelope(study, resistive_targets(study, list(final.values())))
