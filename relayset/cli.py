@@ -260,9 +260,11 @@ def _run(args) -> int:
     if args.command == "export":
         from relayset.export.setting_file import export
 
-        for path in export(_files(args), args.output):
+        written, n_failed = export(_files(args), args.output)
+        for path in written:
             print(f"export: {path}")
-        return 0
+        # like `settings` and `report`: the files are written, the exit code says checks failed
+        return EXIT_FAILED_CHECKS if n_failed else 0
     if args.command == "report":
         from relayset.report import build
 

@@ -165,13 +165,16 @@ def setting_files(results) -> list[tuple[str, bytes]]:
     return files
 
 
-def export(paths, out_dir: str | Path) -> list[Path]:
+def export(paths, out_dir: str | Path) -> tuple[list[Path], int]:
     """``relayset export``: compute each study, then write every file (or none).
 
     Writes per study the results JSON and per relay end the setting file (JSON and CSV);
     the test points and COMTRADE cases when :mod:`relayset.export.testshots` is installed.
+    Returns the files written and the number of failed checks
+    (:func:`relayset.report.failures.failed_checks`, the report's one count).
     """
     from relayset import io
+    from relayset.report.failures import failed_checks
     from relayset.studies import pipeline
 
     out = Path(out_dir)
@@ -188,4 +191,4 @@ def export(paths, out_dir: str | Path) -> list[Path]:
     if export_test_cases is not None:
         for res in runs:
             written += list(export_test_cases(res, out))
-    return written
+    return written, sum(len(failed_checks(r.to_dict())) for r in runs)
