@@ -53,6 +53,17 @@ def _parser() -> argparse.ArgumentParser:
     p.add_argument("--units", choices=("si", "us"), default=None,
                    help="units of lengths in the report (default: those of the study file)")
     # --- end report ---
+    p = sub.add_parser("export", help="setting files per relay end (on the relay profile's "
+                       "steps), test points and test cases",
+                       description="Write per study the results JSON and per relay end the "
+                       "setting file relayset-settings/1 (JSON and CSV); the study needs "
+                       "[relay] profile.")
+    p.add_argument("files", nargs="*", metavar="FILE", help="study files (TOML)")
+    p.add_argument("--demo", action="store_true", help="export every shipped demo line")
+    p.add_argument("-o", "--output", required=True, metavar="DIR", help="output folder")
+    p = sub.add_parser("schema", help="print a JSON Schema (draft 2020-12) of a relayset file",
+                       description="Print the JSON Schema of a relayset file.")
+    p.add_argument("name", choices=("study", "philosophy", "profile", "results", "settings"))
     _fleet_parsers(sub)
     sub.add_parser("conductors", help="list the built-in conductor table")
     sub.add_parser("earth-models", help="list the earth-return models")
@@ -239,6 +250,21 @@ def _run(args) -> int:
             print(f"{name:18s} {desc}")
         return 0
 
+    if args.command == "schema":
+        import json
+
+        from relayset.export.schemas import SCHEMAS
+
+        print(json.dumps(SCHEMAS[args.name](), indent=2))
+        return 0
+    if args.command == "export":
+        from relayset.export.setting_file import export
+
+        written, n_failed = export(_files(args), args.output)
+        for path in written:
+            print(f"export: {path}")
+        # like `settings` and `report`: the files are written, the exit code says checks failed
+        return EXIT_FAILED_CHECKS if n_failed else 0
     if args.command == "report":
         from relayset.report import build
 

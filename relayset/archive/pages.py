@@ -61,11 +61,15 @@ def report_options(a: Archive, study_units: str) -> tuple[str, str]:
 def rerender(a: Archive, results, study_name: str, renderer=None) -> bytes:
     """The report made again from the archive's embedded files and ``results`` (the
     recomputation of the embedded study, carrying the archived file name and hash)."""
+    from relayset.export.setting_file import PROFILE_PREFIX, is_setting_attachment
     from relayset.report.build import render_report
 
     results_name = a.results_name
-    others = [n for n in a.attachments if n not in (study_name, results_name)]
+    others = [n for n in a.attachments if n not in (study_name, results_name)
+              and not is_setting_attachment(n)]
     philosophy = (others[0], a.attachments[others[0]]) if len(others) == 1 else None
+    profile = next(((n, a.attachments[n]) for n in sorted(a.attachments)
+                    if n.startswith(PROFILE_PREFIX)), None)
     from relayset.inputs.unit_system import study_unit_system
 
     units, paper = report_options(a, study_unit_system(getattr(results, _names(results)[1])))
@@ -74,7 +78,8 @@ def rerender(a: Archive, results, study_name: str, renderer=None) -> bytes:
         environ["SOURCE_DATE_EPOCH"] = str(int(a.created.timestamp()))
     out = render_report(results, study_name, a.attachments[study_name], philosophy,
                         results_json=a.results_bytes.decode("utf-8"), units=units,
-                        paper=paper, environ=environ, pdf_renderer=renderer)
+                        paper=paper, environ=environ, pdf_renderer=renderer,
+                        profile=profile)
     return out.pdf
 
 
@@ -218,7 +223,8 @@ def _names(results) -> tuple[str, str]:
     return (("study", "input") if "input" in fields else ("identity", "study_input"))
 
 
-def patched_results(results, study_name: str, study_sha: str, philosophy: Any):
+def patched_results(results, study_name: str, study_sha: str, philosophy: Any, *,
+                    profile: str | None = None):
     """The recomputed results as the archived report had them: its study file name and
     SHA-256 and the philosophy name it wrote (the recomputation ran on a private copy)."""
     id_name, in_name = _names(results)
@@ -228,6 +234,8 @@ def patched_results(results, study_name: str, study_sha: str, philosophy: Any):
         identity["philosophy"] = philosophy
     if isinstance(study_input.get("study"), dict) and "philosophy" in study_input["study"]:
         study_input["study"] = {**study_input["study"], "philosophy": philosophy}
+    if profile is not None and isinstance(study_input.get("relay"), dict):
+        study_input["relay"] = {**study_input["relay"], "profile": profile}
     return dataclasses.replace(results, source_file=study_name, source_sha256=study_sha,
                                **{id_name: identity, in_name: study_input})
 

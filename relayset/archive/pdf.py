@@ -102,7 +102,7 @@ class Archive:
         if name in self.attachments and name != self.results_name:
             return name
         tomls = [n for n in self.attachments if n.endswith(".toml")
-                 and not n.startswith("philosophy")]
+                 and not n.startswith(("philosophy", "relay_profile."))]  # nor the profile
         return tomls[0] if len(tomls) == 1 else None
 
     def printed(self, label: str) -> str | None:

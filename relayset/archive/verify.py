@@ -39,6 +39,8 @@ IGNORED = ("source_file", "relayset_version")
 #: chosen here, never taken from the PDF.
 STUDY_FILE = "study.toml"
 PHILOSOPHY_FILE = "philosophy.toml"
+#: ... and the embedded relay profile, where its own name is not a plain file name
+PROFILE_FILE = "profile.toml"
 
 #: The labels the report prints before each SHA-256 (templates/report/report.html.j2).
 PRINTED_STUDY = "SHA-256 of the study file"
@@ -144,7 +146,10 @@ def _toml_tables(data: bytes, name: str, source: str) -> dict:
 def _embedded_philosophy(a: Archive, study: str, named: str) -> str | None:
     """The embedded file that is the philosophy the study names (by its name, else the one
     other TOML file); the name only chooses among the embedded files, never a path."""
-    others = [n for n in a.attachments if n.endswith(".toml") and n != study]
+    from relayset.export.setting_file import is_setting_attachment
+
+    others = [n for n in a.attachments if n.endswith(".toml") and n != study
+              and not is_setting_attachment(n)]
     wanted = PurePosixPath(named.replace("\\", "/")).name
     pick = next((n for n in others if n in (wanted, f"philosophy_{wanted}")), None)
     return pick if pick is not None or len(others) != 1 else others[0]
@@ -207,6 +212,27 @@ def recompute(a: Archive) -> tuple[list[Check], str, object]:
             except InputError:
                 return _not_recomputed("the embedded study's philosophy could not be pointed "
                                        "at the embedded philosophy file")
+        relay = tables.get("relay") if isinstance(tables.get("relay"), dict) else {}
+        prof = relay.get("profile")
+        if isinstance(prof, str):  # pointed at the embedded relay profile
+            from relayset.export.setting_file import PROFILE_PREFIX
+            from relayset.inputs.profile import with_profile
+
+            pick = next((n for n in sorted(a.attachments) if n.startswith(PROFILE_PREFIX)),
+                        None)
+            if pick is None:
+                return _not_recomputed("the embedded study names a relay profile, and the "
+                                       "report embeds none")
+            name = pick[len(PROFILE_PREFIX):]
+            if not re.fullmatch(r"[A-Za-z0-9][A-Za-z0-9._-]{0,100}", name) or name in (
+                    STUDY_FILE, PHILOSOPHY_FILE):
+                name = PROFILE_FILE
+            (folder / name).write_bytes(a.attachments[pick])
+            try:
+                text = with_profile(text.decode("utf-8-sig"), str(folder / name)).encode()
+            except ValueError:
+                return _not_recomputed("the embedded study's relay profile could not be "
+                                       "pointed at the embedded profile")
         path = folder / STUDY_FILE
         path.write_bytes(text)
         try:
@@ -219,6 +245,8 @@ def recompute(a: Archive) -> tuple[list[Check], str, object]:
     import json
 
     new = json.loads(to_json(new))  # the same JSON round trip as the archive
+    if isinstance(prof, str) and isinstance((new.get("input") or {}).get("relay"), dict):
+        new["input"]["relay"]["profile"] = prof
     # what the edit of the study's text changed: its SHA-256 and its philosophy's name
     new["source_sha256"] = _sha(data)
     for where in (new.get("study"), (new.get("input") or {}).get("study")):
@@ -253,8 +281,8 @@ def recompute(a: Archive) -> tuple[list[Check], str, object]:
         detail += (f"; {len(added)} values are new in this version's results (not in the "
                    "archive, not compared), e.g. " + ", ".join(added[:3]))
     checks.append(Check(f"all {len(both)} values both results give", not bad, detail))
-    return checks, str(new.get("relayset_version")), patched_results(res, study, _sha(data),
-                                                                    phil)
+    return checks, str(new.get("relayset_version")), patched_results(
+        res, study, _sha(data), phil, profile=prof if isinstance(prof, str) else None)
 
 
 def _show(v) -> str:

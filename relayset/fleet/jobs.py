@@ -284,6 +284,18 @@ def effective_study_text(text: str, study_dir: Path, new_dir: Path, *,
     # adjacent / behind line studies named by a relative path
     out = re.sub(r"""((?:\bstudy|"study"|'study')\s*=\s*)"([^"\n]+)(")""",
                  lambda m: m.group(1) + _toml_str(moved(m.group(2))), out)
+    prof = (before.get("relay") or {}).get("profile")
+    from relayset.inputs.profile import is_shipped_name, with_profile
+
+    if (isinstance(prof, str) and not Path(prof).is_absolute()
+            and not is_shipped_name(prof)):  # a relay profile file, too
+
+        try:
+            out = with_profile(out, moved(prof))
+        except ValueError:
+            raise InputError("the register's overrides could not be applied to this "
+                             "study's text", field="relay.profile", source=str(study_dir)
+                             ) from None
     try:
         after = tomllib.loads(out)
     except tomllib.TOMLDecodeError:  # the textual edit met a layout it does not handle
@@ -302,6 +314,10 @@ def effective_study_text(text: str, study_dir: Path, new_dir: Path, *,
 def _line_studies_at(tables: dict, folder: Path) -> dict:
     """``tables`` without [study], with each line study's path made absolute from ``folder``."""
     out = {k: v for k, v in tables.items() if k != "study"}
+    relay = out.get("relay")
+    if (isinstance(relay, dict) and isinstance(relay.get("profile"), str)
+            and relay["profile"].lower().endswith(".toml")):
+        out["relay"] = dict(relay, profile=os.path.normpath(folder / relay["profile"]))
     for key in ("adjacent_lines", "lines_behind"):
         entries = out.get(key)
         if isinstance(entries, list):

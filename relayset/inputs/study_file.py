@@ -493,6 +493,9 @@ class RelayData:
     #: continuous thermal current rating factor of the CTs (IEEE Std C57.13 rating factors
     #: 1.0 to 4.0; 1.0 the common practice default, no source)
     ct_rating_factor: float = spec(_number(ge=1, le=4), 1.0)
+    #: relay profile file (``relayset-relay-profile/1``, relative to the study): the
+    #: settings are rounded to its steps and verified as rounded (relayset.inputs.profile)
+    profile: str | None = spec(_text(1000, min_len=1), None)
 
     def ct_primary_a(self, end: str) -> float | None:
         """Rated primary current of the CT at ``end`` [A]; None where only a ratio is given."""

@@ -68,26 +68,33 @@ def make_report(results, *, units: str | None = None, paper: str = "a4",
                              source=str(src)) from None
         name = ph.name if ph.name != src.name else f"philosophy_{ph.name}"
         philosophy = (name, ph_bytes)
+    from relayset.export.setting_file import profile_attachment
+
     return render_report(results, src.name, study_bytes, philosophy,
                          results_json=io.to_json(results.to_dict()),
                          units=units or study_unit_system(results.input), paper=paper,
                          environ=dict(os.environ if environ is None else environ),
-                         pdf_renderer=pdf_renderer)
+                         pdf_renderer=pdf_renderer, profile=profile_attachment(results))
 
 
 #: What each embedded file is (its PDF description); verify re-creates the same.
 DESCRIPTIONS = {"study": "The study file (input)",
                 "results": "The results (JSON, keys carry their units)",
-                "philosophy": "The setting philosophy (input)"}
+                "philosophy": "The setting philosophy (input)",
+                "profile": "The relay profile: ranges and steps of the settings (input)",
+                "settings": "The setting file of one relay end (relayset-settings/1)"}
 
 
 def render_report(results, study_name: str, study_bytes: bytes,
                   philosophy: tuple[str, bytes] | None, *, results_json: str, units: str,
-                  paper: str, environ: dict[str, str], pdf_renderer=None) -> ReportFiles:
+                  paper: str, environ: dict[str, str], pdf_renderer=None,
+                  profile: tuple[str, bytes] | None = None) -> ReportFiles:
     """The report of ``results`` from its input files, named and given as bytes.
 
     The one rendering path: ``relayset report`` calls it with the files it read, and
     ``relayset verify`` with the files an archived report embeds (to re-create its pages).
+    With a relay profile (``profile``: its embedded name and bytes) the profile and each
+    relay end's setting file (relayset-settings/1) are embedded beside the results.
     """
     from relayset.report.context import build_context
     from relayset.report.html import render_html
@@ -104,6 +111,13 @@ def render_report(results, study_name: str, study_bytes: bytes,
     if philosophy is not None:
         files.append(EmbeddedFile(philosophy[0], philosophy[1], DESCRIPTIONS["philosophy"],
                                   "Source"))
+    if profile is not None:
+        from relayset.export.setting_file import embedded_setting_files
+
+        files.append(EmbeddedFile(profile[0], profile[1], DESCRIPTIONS["profile"], "Source"))
+        files += [EmbeddedFile(name, data, DESCRIPTIONS["settings"], "Data")
+                  for name, data in embedded_setting_files(results, results_json,
+                                                           ctx["doc_id"])]
     when = ctx["when"]  # the generation time the pages print, also the PDF's dates
     pdf = (pdf_renderer or html_to_pdf)(html, files, when)
     return ReportFiles(ctx["doc_id"], html, pdf, results_json, str(results.source_file),

@@ -562,8 +562,32 @@ def _settings_ends(d: dict[str, Any]) -> list[dict[str, Any]]:
             # the one count (relayset.report.failures): setting rules and verification
             "failed_checks": [f for f in failed_checks(d) if f.end == str(s["end"])],
             "settings_dict": {**s, "zones": zones},
+            "settable": _settable(s.get("settable")),
         })
     return out
+
+
+def _settable(st: dict[str, Any] | None) -> dict[str, Any] | None:
+    """The settable values on the relay profile's steps, ideal beside settable (text)."""
+    if not st:
+        return None
+
+    def digits(step: float) -> int:  # as many decimals as the step has, at least 2
+        text = f"{step:.10f}".rstrip("0")
+        return max(2, len(text.split(".")[1]) if "." in text else 0)
+
+    rows = []
+    for v in st["values"]:
+        k = digits(v["step"])
+        rows.append({"id": v["id"], "label": v["label"], "unit": v["unit"],
+                     "ideal": num(v["ideal"], k + 2), "settable": num(v["settable"], k),
+                     "difference": num(v["difference"], k + 2),
+                     "range": f"{num(v['range'][0], k)} to {num(v['range'][1], k)}",
+                     "step": num(v["step"], k), "direction": v["direction"],
+                     "ok": v["in_range"] and v["on_grid"]})
+    p = st["profile"]
+    return {"name": p["name"], "file": p["file"], "sha256": p["sha256"],
+            "form": p["residual_compensation"].replace("_", " "), "rows": rows}
 
 
 def _reported(c: dict[str, Any]) -> str | None:

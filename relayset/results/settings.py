@@ -182,6 +182,10 @@ class SettingsResult:
     warnings: tuple[SettingWarning, ...] = field(default=())
     #: supervision of mutual compensation, issued with k0m (None: no mutual compensation)
     mutual_supervision: MutualSupervision | None = None
+    #: the values on the relay profile's steps, ideal beside settable (None: no profile;
+    #: a :class:`relayset.settings.settable.SettableSettings`). With a profile the zones
+    #: and k0 above are the settable ones, which the verification judges.
+    settable: Any = None
 
     def zone(self, name: str) -> ZoneSetting:
         """The zone called ``"zone1"``, ``"zone2"``, ``"zone3"`` or ``"reverse"``."""
@@ -241,7 +245,7 @@ class SettingsResult:
                     for c in z.checks
                 ],
             }
-        return {
+        out = {
             "end": self.end,
             "remote_end": self.remote_end,
             "line": {
@@ -274,6 +278,9 @@ class SettingsResult:
                 for w in self.warnings
             ],
         }
+        if self.settable is not None:  # only with a relay profile (older results unchanged)
+            out["settable"] = self.settable.to_dict()
+        return out
 
 
 def _deg(x: float | None) -> float | None:

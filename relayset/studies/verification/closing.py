@@ -82,6 +82,7 @@ def settle_and_verify(study: Study, geo: LineGeometry, params: LineParameters, r
     4. The verification of the final settings of the ends the study asks for, on the same
        simulation (the final zone 1 points solved on top).
     """
+    from relayset.inputs.profile import study_profile
     from relayset.settings.simulated import (
         WIDENED_ZONES,
         ResistiveNeed,
@@ -90,6 +91,8 @@ def settle_and_verify(study: Study, geo: LineGeometry, params: LineParameters, r
     )
     from relayset.studies.settings import run_settings
 
+    # The relay profile is read before anything is computed (bad input stops at once).
+    profile = study_profile(study.relay.profile, source)
     names = (study.study.from_substation, study.study.to_substation)
     t = check_tolerance(study.error_budget.total_pct, source)
     wanted = tuple(relay.ends)
@@ -183,6 +186,16 @@ def settle_and_verify(study: Study, geo: LineGeometry, params: LineParameters, r
                 f"{summary[end].zone1_overreach_pct():.3g} % of the setting",
                 "review the governing case in the verification; a pilot scheme restores "
                 "instantaneous coverage of the line end")))
+    if profile is not None:  # the settings become final: on the relay's steps
+        from relayset.settings.settable import settable_settings
+
+        def ct_secondary(end):
+            primary = study.relay.ct_primary_a(end)
+            return None if primary is None else primary / study.relay.ratios(end)[0]
+
+        mop = study.relay.min_operating_current
+        final = {end: settable_settings(st, profile, mop, ct_secondary(end))
+                 if end in wanted else st for end, st in final.items()}
     # The verification reuses the simulation, with the final zone 1 points solved on top
     # (solved afresh only if the final settings changed what the envelope sweeps).
     env = build_envelope(study, resistive_targets(study, list(final.values())))

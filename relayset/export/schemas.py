@@ -1,0 +1,161 @@
+"""JSON Schemas (draft 2020-12) of relayset's files, built from the one definition of each.
+
+``relayset schema NAME`` prints one. The study file and the philosophy are TOML; their
+schemas describe the TOML tables as parsed (a TOML file converted to JSON validates). The
+profile and the setting file are relayset's own formats and are described in full; the
+results schema fixes the top-level shape and the settable values.
+"""
+
+from __future__ import annotations
+
+import dataclasses
+from typing import Any
+
+DRAFT = "https://json-schema.org/draft/2020-12/schema"
+_BASE = "https://relayset.invalid/schemas/"
+
+_NUM = {"type": "number"}
+_STR = {"type": "string"}
+
+
+def _tables(cls) -> dict[str, Any]:
+    """Properties of a declared input table: its TOML keys, any value (checked by relayset)."""
+    return {f.metadata.get("key") or f.name: {} for f in dataclasses.fields(cls)}
+
+
+def study_schema() -> dict[str, Any]:
+    """The study file (``relayset-study/1``) as TOML tables."""
+    from relayset.inputs.study_file import Study
+
+    props = _tables(Study)
+    props["schema"] = {"const": "relayset-study/1"}
+    props["relay"] = {"type": "object", "properties": {"profile": _STR}}
+    return {"$schema": DRAFT, "$id": _BASE + "study.json", "title": "relayset study file",
+            "type": "object", "required": ["schema", "study", "system", "line"],
+            "properties": props, "additionalProperties": False}
+
+
+def philosophy_schema() -> dict[str, Any]:
+    """The setting philosophy as TOML tables (partial files take the defaults)."""
+    from relayset.inputs.philosophy import Philosophy
+
+    props = {k: {"type": "object"} for k in _tables(Philosophy)}
+    props["schema"] = {"type": "string"}
+    return {"$schema": DRAFT, "$id": _BASE + "philosophy.json",
+            "title": "relayset setting philosophy", "type": "object",
+            "properties": props, "additionalProperties": False}
+
+
+def profile_schema() -> dict[str, Any]:
+    """The relay profile (``relayset-relay-profile/1``)."""
+    from relayset.inputs.profile import K0_FORMS, PROFILE_SCHEMA, SETTING_UNITS, SHAPES
+
+    setting = {"type": "object", "required": ["label", "min", "max", "step"],
+               "additionalProperties": False,
+               "properties": {"label": {"type": "string", "minLength": 1, "maxLength": 60},
+                              "min": _NUM, "max": _NUM,
+                              "step": {"type": "number", "exclusiveMinimum": 0}}}
+    return {
+        "$schema": DRAFT, "$id": _BASE + "profile.json", "title": "relayset relay profile",
+        "type": "object", "additionalProperties": False,
+        "required": ["schema", "name", "nominal_current", "characteristics",
+                     "residual_compensation", "settings"],
+        "properties": {
+            "schema": {"const": PROFILE_SCHEMA},
+            "name": {"type": "string", "minLength": 1, "maxLength": 200},
+            "nominal_current": {"enum": ["1 A", "5 A"]},
+            "characteristics": {"type": "array", "minItems": 1, "uniqueItems": True,
+                                "items": {"enum": list(SHAPES)}},
+            "reactance_tilt": {"type": "boolean"},
+            "residual_compensation": {"enum": list(K0_FORMS)},
+            "settings": {"type": "object", "minProperties": 1,
+                         "propertyNames": {"enum": list(SETTING_UNITS)},
+                         "additionalProperties": setting},
+        },
+    }
+
+
+def _settable_value() -> dict[str, Any]:
+    from relayset.inputs.profile import SETTING_UNITS
+    from relayset.settings.settable import ROUNDING
+
+    return {"type": "object", "additionalProperties": False,
+            "required": ["id", "label", "unit", "ideal", "settable", "difference", "primary",
+                         "range", "step", "direction", "rule", "in_range", "on_grid"],
+            "properties": {
+                "id": {"enum": list(SETTING_UNITS)}, "label": _STR,
+                "unit": {"enum": sorted(set(SETTING_UNITS.values()))},
+                "ideal": _NUM, "settable": _NUM, "difference": _NUM, "primary": _NUM,
+                "range": {"type": "array", "prefixItems": [_NUM, _NUM], "minItems": 2,
+                          "maxItems": 2},
+                "step": {"type": "number", "exclusiveMinimum": 0},
+                "direction": {"enum": sorted({d for d, _ in ROUNDING.values()})},
+                "rule": _STR, "in_range": {"type": "boolean"},
+                "on_grid": {"type": "boolean"}}}
+
+
+def _sha() -> dict[str, Any]:
+    return {"type": "string", "pattern": "^[0-9a-f]{64}$"}
+
+
+def results_schema() -> dict[str, Any]:
+    """The results JSON (``relayset settings --json``, the report's ``.json``)."""
+    profile = {"type": "object", "additionalProperties": False,
+               "required": ["name", "file", "sha256", "residual_compensation"],
+               "properties": {"name": _STR, "file": _STR, "sha256": _sha(),
+                              "residual_compensation": _STR}}
+    end = {"type": "object", "required": ["end", "remote_end", "line", "k0", "zones"],
+           "properties": {"end": _STR, "remote_end": _STR,
+                          "zones": {"type": "object"},
+                          "settable": {"type": "object", "additionalProperties": False,
+                                       "required": ["profile", "values"],
+                                       "properties": {"profile": profile, "values": {
+                                           "type": "array", "items": _settable_value()}}}}}
+    return {
+        "$schema": DRAFT, "$id": _BASE + "results.json", "title": "relayset results",
+        "type": "object",
+        "required": ["relayset_version", "source_file", "source_sha256", "study",
+                     "parameters"],
+        "properties": {
+            "relayset_version": _STR, "source_file": _STR, "source_sha256": _sha(),
+            "study": {"type": "object", "required": ["line_id", "revision"]},
+            "parameters": {"type": "object"},
+            "settings": {"type": ["object", "null"],
+                         "properties": {"ends": {"type": "array", "items": end}}},
+            "verification": {"type": ["object", "null"]},
+        },
+    }
+
+
+def settings_file_schema() -> dict[str, Any]:
+    """The neutral setting file of one relay end (``relayset-settings/1``)."""
+    from relayset.export.setting_file import SETTINGS_SCHEMA
+
+    record = _settable_value()
+    record = {**record, "required": [*record["required"], "secondary", "value"],
+              "properties": {**record["properties"], "secondary": _NUM, "value": _NUM}}
+    return {
+        "$schema": DRAFT, "$id": _BASE + "settings.json",
+        "title": "relayset setting file of one relay end", "type": "object",
+        "additionalProperties": False,
+        "required": ["schema", "relayset_version", "line_id", "revision", "relay_end",
+                     "remote_end", "ct_ratio", "vt_ratio", "profile", "study_sha256",
+                     "results_sha256", "verdict", "settings"],
+        "properties": {
+            "schema": {"const": SETTINGS_SCHEMA}, "relayset_version": _STR,
+            "line_id": _STR, "revision": {"type": ["string", "integer"]},
+            "relay_end": _STR, "remote_end": _STR,
+            "ct_ratio": {"type": "number", "exclusiveMinimum": 0},
+            "vt_ratio": {"type": "number", "exclusiveMinimum": 0},
+            "profile": results_schema()["properties"]["settings"]["properties"]["ends"][
+                "items"]["properties"]["settable"]["properties"]["profile"],
+            "study_sha256": _sha(), "results_sha256": _sha(),
+            "verdict": _STR,
+            "settings": {"type": "array", "minItems": 1, "items": record},
+        },
+    }
+
+
+#: ``relayset schema NAME``: the schemas by name.
+SCHEMAS = {"study": study_schema, "philosophy": philosophy_schema, "profile": profile_schema,
+           "results": results_schema, "settings": settings_file_schema}
