@@ -63,7 +63,8 @@ def _parser() -> argparse.ArgumentParser:
     p.add_argument("-o", "--output", required=True, metavar="DIR", help="output folder")
     p = sub.add_parser("schema", help="print a JSON Schema (draft 2020-12) of a relayset file",
                        description="Print the JSON Schema of a relayset file.")
-    p.add_argument("name", choices=("study", "philosophy", "profile", "results", "settings"))
+    p.add_argument("name", choices=("study", "philosophy", "profile", "results", "settings",
+                                     "test-points"))
     _fleet_parsers(sub)
     sub.add_parser("conductors", help="list the built-in conductor table")
     sub.add_parser("earth-models", help="list the earth-return models")

@@ -157,5 +157,13 @@ def settings_file_schema() -> dict[str, Any]:
 
 
 #: ``relayset schema NAME``: the schemas by name.
+def test_points_schema() -> dict[str, Any]:
+    """The test-point file ``relayset-test-points/1`` (:mod:`relayset.export.testshots`)."""
+    from relayset.export.testshots import test_points_schema as schema
+
+    return schema()
+
+
 SCHEMAS = {"study": study_schema, "philosophy": philosophy_schema, "profile": profile_schema,
-           "results": results_schema, "settings": settings_file_schema}
+           "results": results_schema, "settings": settings_file_schema,
+           "test-points": test_points_schema}

@@ -168,8 +168,8 @@ def setting_files(results) -> list[tuple[str, bytes]]:
 def export(paths, out_dir: str | Path) -> tuple[list[Path], int]:
     """``relayset export``: compute each study, then write every file (or none).
 
-    Writes per study the results JSON and per relay end the setting file (JSON and CSV);
-    the test points and COMTRADE cases when :mod:`relayset.export.testshots` is installed.
+    Writes per study the results JSON and per relay end the setting file (JSON and CSV),
+    the test points and the COMTRADE cases (:mod:`relayset.export.testshots`).
     Returns the files written and the number of failed checks
     (:func:`relayset.report.failures.failed_checks`, the report's one count).
     """
@@ -184,11 +184,8 @@ def export(paths, out_dir: str | Path) -> tuple[list[Path], int]:
         outputs += [("-o", out / name, data) for name, data in setting_files(res)]
     io.write_all(outputs)
     written = [Path(p) for _, p, _ in outputs]
-    try:
-        from relayset.export.testshots import export_test_cases  # type: ignore[import-not-found]
-    except ImportError:
-        export_test_cases = None
-    if export_test_cases is not None:
-        for res in runs:
-            written += list(export_test_cases(res, out))
+    from relayset.export.testshots import export_test_cases
+
+    for res in runs:
+        written += list(export_test_cases(res, out))
     return written, sum(len(failed_checks(r.to_dict())) for r in runs)
