@@ -169,9 +169,13 @@ def test_fault_solver_cascade_takes_each_sections_tower(demo_path):
 
 def test_towers_demo_is_verified(demo_path):
     """The invented towers demo (two tower types, two-layer earth) passes its verification
-    by fault simulation; its zone 1 is the simulation's (stated in the settings)."""
+    by fault simulation but for the tower-footing faults outside its mho circles, which it
+    accepts as deviations; its zone 1 is the simulation's (stated in the settings)."""
     res = pipeline.run(demo_path(DEMO_TOWERS), settings=True)
-    assert res.verification is not None and res.verification.verdict == "verified"
+    assert res.verification is not None
+    assert res.verification.verdict == "verified with accepted deviations"
+    assert all(c.deviation is not None and c.governing_case.r_fault_ohm > 0
+               for _, c in res.verification.failures)
     d = res.parameters.to_dict()
     assert [s["tower"] for s in d["sections"]] == ["compact_pole"] + ["lattice"] * 3
     assert "z1_ohm_per_km" in d["sections"][0]

@@ -161,7 +161,10 @@ def test_time_graded_zone2_is_not_failed_for_reaching_past_the_adjacent_zone1(st
 def test_time_grading_needs_the_adjacent_zone2_time_plus_margin(st132):
     # Arithmetic of the requirement: T2 >= T2,adj + t_clear + margin (common practice).
     inf = InfeedRange(1.0, 1.0, "min", "max")
-    lines = [("adj", 10 * st132.line_z1_primary_ohm)]
+    # A short adjacent line: zone 2 reaches past its zone 1, so it waits for its zone 2
+    # (short of it, zone 2 waits only for the adjacent zone 1: tested below and in
+    # test_time_graded_zone2_waits_for_what_it_overlaps).
+    lines = [("adj", 0.1 * st132.line_z1_primary_ohm)]
     timed = philosophy_from_dict({"zone2": {"grading": "time_graded"}}).zone2
     c = scheme.zone2_grading(st132, timed, lines, inf, 10.0, "B")[1]
     need = 0.35 + 0.1 + 0.2
@@ -454,7 +457,9 @@ def test_min_fault_current_check(variant, tmp_path):
 
     (c1, i1), (c2, i2) = run(0.05), run(0.1)
     for c in (c1, c2):
-        assert c["result"] == "pass" and c["cases_below_min_current"] == 0
+        assert c["result"] == "pass"
+    # A higher threshold leaves at least as many cases unmeasured (monotone).
+    assert c1["cases_below_min_current"] <= c2["cases_below_min_current"]
     assert_allclose((1 + c1["margin_pct"] / 100) * i1, (1 + c2["margin_pct"] / 100) * i2,
                     rtol=1e-9, atol=0)
     # Set the minimum operating current 1.5 times the smallest fault current: it fails,

@@ -208,10 +208,13 @@ def compute_settings(
         # mho zone is only tested against it (its circle decides its resistive coverage).
         rs = ph.resistive
         t_arc = delay if rs.arc_time_s == "zone_delay" else float(rs.arc_time_s)
-        ra_ph = float(zp.warrington_arc_resistance_ohm(
-            arc_i, i.arc_length_phase_m, rs.wind_speed_m_per_s, t_arc))
-        ra_g = float(zp.warrington_arc_resistance_ohm(
-            arc_i, i.arc_length_ground_m, rs.wind_speed_m_per_s, t_arc))
+        ra_ph = ra_g = None  # a mho zone without arc data (no source behind it) has none
+        if arc_i is not None and i.arc_length_phase_m is not None:
+            ra_ph = float(zp.warrington_arc_resistance_ohm(
+                arc_i, i.arc_length_phase_m, rs.wind_speed_m_per_s, t_arc))
+        if arc_i is not None and i.arc_length_ground_m is not None:
+            ra_g = float(zp.warrington_arc_resistance_ohm(
+                arc_i, i.arc_length_ground_m, rs.wind_speed_m_per_s, t_arc))
         if not quad:
             ang = char_angle if forward else math.remainder(char_angle + math.pi, 2 * math.pi)
             d = float(zp.mho_diameter_for_point_ohm(target, ang))

@@ -146,7 +146,8 @@ def resistive_target(zone: ZoneSetting, tower_ohm: float) -> tuple[float, float]
     """(R_g, R_ph) a zone must cover [ohm]: its arc plus tower footing to ground and its arc
     between phases, for every shape (a mho zone included: its circle must reach them too);
     bolted (0, 0) for a zone without resistive target (the reverse and zone 3 zones)."""
-    if zone.arc_resistance_ground_ohm is not None and zone.zone in ("zone1", "zone2"):
+    if (zone.arc_resistance_ground_ohm is not None and zone.arc_resistance_phase_ohm is not None
+            and zone.zone in ("zone1", "zone2")):
         return zone.arc_resistance_ground_ohm + tower_ohm, zone.arc_resistance_phase_ohm
     return 0.0, 0.0
 
