@@ -114,7 +114,7 @@ def solve_fault_single(
     -------
     FaultCase
     """
-    _check_state(line, parallel_state, None)
+    _check_state(line, parallel_state, None, open_end=True)
     _check_sources(source_s, source_r, None)
     m_arr = _check_locations(m, None)
     if m_arr.size != 1:
@@ -159,10 +159,13 @@ def solve_fault_single(
         for a_, b_ in zip(frm, to, strict=True):
             branches.append(("amm", [a_], [b_]))
 
-    add_ammeter("s1", [bus_s + c for c in range(3)], [node(0, c) for c in range(3)])
-    add_ammeter("r1", [bus_r + c for c in range(3)], [node(last, c) for c in range(3)])
+    # Sequential clearing: circuit 1's breaker at one bus is open, i.e. no branch there.
+    if parallel_state != "faulted_open_at_s":
+        add_ammeter("s1", [bus_s + c for c in range(3)], [node(0, c) for c in range(3)])
+    if parallel_state != "faulted_open_at_r":
+        add_ammeter("r1", [bus_r + c for c in range(3)], [node(last, c) for c in range(3)])
     if n == 6:
-        if parallel_state == "in_service":
+        if parallel_state in ("in_service", "faulted_open_at_s", "faulted_open_at_r"):
             add_ammeter("s2", [bus_s + c for c in range(3)], [node(0, 3 + c) for c in range(3)])
             add_ammeter("r2", [bus_r + c for c in range(3)],
                         [node(last, 3 + c) for c in range(3)])

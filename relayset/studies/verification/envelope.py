@@ -41,6 +41,10 @@ RF_FRACTIONS = (0.5, 1.0)
 #: [ohm]: the overreach of a two-phase-to-ground fault through ground resistance peaks at a
 #: few ohms, between the values a study usually lists (common practice, no source).
 SERIES_125 = (1.0, 2.0, 5.0)
+#: Fault locations of the sequential-clearing runs [1 from S] (common practice, no source:
+#: a coarser grid than the protected line's, the mutual-coupling error of zone 1 varying
+#: smoothly along the parallel circuit; both line ends included).
+SEQUENTIAL_M = (0.0, 0.25, 0.5, 0.75, 1.0)
 #: Fault types by the resistance they go through.
 GROUND_FAULTS = ("AG", "BG", "CG")
 PHASE_FAULTS = ("AB", "BC", "CA", "ABC")
@@ -107,11 +111,16 @@ class Envelope:
             + ("the study's range" if self.rho_range_given else
                f"no range given: {DEFAULT_RHO_FACTORS[0]:g} to {DEFAULT_RHO_FACTORS[1]:g} "
                "times the study's value, common practice, no source") + ").",
+            "Sequential clearing (double circuits): every fault type and resistance on the "
+            "parallel circuit at " + ", ".join(f"{100 * x:g}" for x in SEQUENTIAL_M)
+            + " % of it with that circuit's breaker open at "
+            "one end, then at the other (both circuits in service, the sources' EMFs of the "
+            "load flow with both breakers closed), every source and load case; zone 1 of "
+            "both ends judged.",
             "Not simulated (stated limits of the envelope): faults along the lines behind "
-            "the relay (behind it only at its own bus), faults on the adjacent lines beyond "
-            "the remote bus (zones 2 and 3 judged at Z_line + K Z_adjacent with the simulated "
-            "infeed K), and sequential clearing of a parallel-circuit fault (one breaker of "
-            "the faulted circuit open).",
+            "the relay (behind it only at its own bus), and faults on the adjacent lines "
+            "beyond the remote bus (zones 2 and 3 judged at Z_line + K Z_adjacent with the "
+            "simulated infeed K).",
         )
 
     def to_dict(self) -> dict:

@@ -25,7 +25,7 @@ from relayset.physics import network
 from relayset.results.parameters import LineParameters
 from relayset.studies.geometry import LineGeometry
 from relayset.studies.reach import _cascade, build_source, emfs_for_flows_at
-from relayset.studies.verification.envelope import Envelope
+from relayset.studies.verification.envelope import SEQUENTIAL_M, Envelope
 
 #: Per-case results the relay model reads (both ends, both circuits, the currents into the
 #: fault from each side for faults behind a relay); the fault-point voltage is not needed.
@@ -44,6 +44,9 @@ class Run:
     rho_ohm_m: float
     sources: tuple[bool, bool]  #: source in service at S, at R
     group: str = ""  #: fault group (by the resistance the faults go through)
+    #: Sequential clearing: the bus at which the faulted parallel circuit's breaker is open
+    #: ("" where both are closed).
+    open_at: str = ""
     #: Measurements kept when the phase quantities were dropped: key -> (relay, view).
     views: dict = field(default_factory=dict)
     #: Per end (True: S), the infeed samples of :func:`infeed_samples`, once measured.
@@ -186,7 +189,7 @@ def load_emfs(env: Envelope, line, src, names, relay_end, scales, state,
 
 def simulate(study: Study, geo: LineGeometry, params_by_rho: dict[float, LineParameters],
              env: Envelope, *, m: np.ndarray, source: str, protected: bool = True,
-             parallel: bool = True, load: bool = True,
+             parallel: bool = True, load: bool = True, sequential: bool = True,
              measure: Callable[[Run], Run] | None = None) -> Simulation:
     """Solve the fault cases of a verification over the envelope (no settings needed).
 
@@ -200,6 +203,10 @@ def simulate(study: Study, geo: LineGeometry, params_by_rho: dict[float, LinePar
         Load cases and fault-resistance grids.
     m : (M,) array
         Fault locations from the from-substation [1].
+    sequential : bool
+        Also solve sequential clearing of parallel-circuit faults on a double circuit
+        (the faulted parallel circuit open at one end, then at the other; both circuits
+        in service, the EMFs of the load flow with both closed) at :data:`SEQUENTIAL_M`.
     measure : callable, optional
         Applied to each run as it is solved (e.g. keep what the relays see and drop the
         phase quantities, :class:`relayset.studies.verification.relay_model.Measure`).
@@ -227,14 +234,22 @@ def simulate(study: Study, geo: LineGeometry, params_by_rho: dict[float, LinePar
                             lengths, rs.shunt_capacitance)
             jobs = []
             if protected:
-                jobs.append(("protected", line))
+                jobs.append(("protected", line, state, "", m))
             if parallel and n_c == 2 and state == "in_service":
-                jobs.append(("parallel", swap_circuits(line)))
-            for faulted, ln in jobs:
-                for s_s, s_r, scales, labels, loaded in configs:
+                swapped = swap_circuits(line)
+                jobs.append(("parallel", swapped, state, "", m))
+                if sequential:
+                    jobs += [("parallel", swapped, open_state, bus, SEQUENTIAL_M)
+                             for open_state, bus in zip(network.OPEN_END_STATES, names,
+                                                        strict=True)]
+            emfs: dict = {}  # per (line, configuration): sequential clearing reuses them
+            for faulted, ln, solved_state, open_at, m_job in jobs:
+                for c, (s_s, s_r, scales, labels, loaded) in enumerate(configs):
                     if loaded and load:
-                        emf = load_emfs(env, ln, src, names, relay_end, scales, state,
-                                        geo.v_nominal_v)
+                        if (id(ln), c) not in emfs:
+                            emfs[id(ln), c] = load_emfs(env, ln, src, names, relay_end,
+                                                        scales, state, geo.v_nominal_v)
+                        emf = emfs[id(ln), c]
                         d = np.degrees(np.abs(np.angle(emf[0] / emf[1])))
                         max_angle = max(max_angle, float(np.max(d)))
                         emf_t = (emf[0], emf[1])
@@ -244,14 +259,15 @@ def simulate(study: Study, geo: LineGeometry, params_by_rho: dict[float, LinePar
                         try:
                             sw = network.solve_fault_sweep(
                                 ln, s_s, s_r, v_nominal_v=geo.v_nominal_v,
-                                fault_types=g.fault_types, m=m,
+                                fault_types=g.fault_types, m=np.asarray(m_job),
                                 r_fault_ohm=g.rf_pairs[:, 0], r_phase_ohm=g.rf_pairs[:, 1],
                                 source_scale=scales, transfer_angle_rad=np.zeros(1),
-                                parallel_state=state, emf_v=emf_t, outputs=OUTPUTS)
+                                parallel_state=solved_state, emf_v=emf_t, outputs=OUTPUTS)
                         except InputError as exc:
                             raise exc.located(source=source) from None
                         run = Run(sw, faulted, state if n_c == 2 else "none", labels,
-                                  rho, (s_s is not None, s_r is not None), g.name)
+                                  rho, (s_s is not None, s_r is not None), g.name,
+                                  open_at=open_at)
                         runs.append(run if measure is None else measure(run))
                     all_names += [n for n in labels if n not in all_names]
     return Simulation(names, geo.phase_labels[0], tuple(runs), n_c, mutual,
