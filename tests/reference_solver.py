@@ -97,6 +97,7 @@ def solve_fault_single(
     transfer_angle_rad: float = 0.0,
     parallel_state: str = "in_service",
     emf_v: tuple[complex, complex] | None = None,
+    z_branch_ohm: np.ndarray | None = None,
 ) -> FaultCase:
     """Solve one fault case by plain modified nodal analysis [3]_ (reference for tests).
 
@@ -108,7 +109,8 @@ def solve_fault_single(
     2 floats; it is tied to ground at the S end only, which closes no current path.
 
     Parameters are those of :func:`~relayset.physics.network.solve_fault_sweep` for one
-    case (scalars).
+    case (scalars); ``z_branch_ohm`` (3, 3) is a series branch stamped as its nodal
+    admittance between the fault point and three extra nodes where the fault sits.
 
     Returns
     -------
@@ -143,7 +145,8 @@ def solve_fault_single(
     n_pos = len(positions)
     n_line = n_pos * n
     bus_s, bus_r = n_line, n_line + 3
-    n_nodes = n_line + 6
+    n_nodes = n_line + 6 + (3 if z_branch_ohm is not None else 0)
+    branch_nodes = [n_line + 6 + c for c in range(3)]
 
     def node(j: int, c: int) -> int:
         return j * n + c
@@ -210,6 +213,12 @@ def solve_fault_single(
         rhs[cols] = emf
         row += 3
     f_nodes = [node(j_f, c) for c in range(3)]
+    v_nodes = f_nodes  # the line point (v_f)
+    if z_branch_ohm is not None:
+        yb = np.linalg.inv(np.asarray(z_branch_ohm, dtype=complex))
+        idx = f_nodes + branch_nodes
+        mat[np.ix_(idx, idx)] += np.block([[yb, -yb], [-yb, yb]])
+        f_nodes = branch_nodes
     f_cols = list(range(row, row + 3))
     for c in range(3):
         mat[f_nodes[c], row + c] += 1.0  # fault current leaves the fault node
@@ -236,7 +245,7 @@ def solve_fault_single(
         v_r=volt[bus_r:bus_r + 3],
         i_r=current("r1"),
         i_r_parallel=current("r2"),
-        v_f=volt[f_nodes],
+        v_f=volt[v_nodes],
         i_fault=sol[f_cols],
         i_f_from_s=i_from_s,
         i_f_from_r=i_from_r,

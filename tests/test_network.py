@@ -438,6 +438,46 @@ def _sweep(**kw):
     return solve_fault_sweep(line, SRC_S, SRC_R, **args)
 
 
+def test_fault_through_a_series_branch():
+    # Independent check: the reference solver stamps the branch as a nodal admittance to
+    # extra nodes (MNA) where the batched solver adds it to the Thevenin matrix; relative
+    # 1e-9. Identity: on a radial, series-only line with balanced sections (no source at
+    # R), a fault at m equals the fault at m = 0 through the stretch 0..m as a branch.
+    from relayset.physics.sequence import balanced_phase_matrix
+
+    z1, z0 = (0.03 + 0.32j) / 1e3, (0.25 + 1.1j) / 1e3
+    zm = balanced_phase_matrix(z1, z0)
+    line = LineCascade(np.stack([zm, zm]), np.array([40e3, 60e3]))
+    x = 0.37
+    zb = balanced_phase_matrix(x * 100e3 * z1, x * 100e3 * z0)
+    kw = dict(v_nominal_v=V_NOM, fault_types=FAULT_TYPES, r_fault_ohm=[0.0, 6.0],
+              r_phase_ohm=[0.0, 2.0], transfer_angle_rad=[0.0])
+    far = solve_fault_sweep(line, SRC_S, None, m=[x], **kw)
+    branch = solve_fault_sweep(line, SRC_S, None, m=[0.0], z_branch_ohm=zb[None], **kw)
+    for name in ("i_fault", "v_s", "i_s"):
+        want = getattr(far, name)
+        np.testing.assert_allclose(getattr(branch, name), want, rtol=0,
+                                   atol=1e-9 * np.max(np.abs(want)), err_msg=name)
+    dbl = double_circuit(shunt=True)
+    zb2 = balanced_phase_matrix(4.0 + 30j, 12.0 + 95j)
+    sw = solve_fault_sweep(dbl, SRC_S, SRC_R, m=[0.0, 1.0], z_branch_ohm=np.stack([zb2, zb2]),
+                           **{**kw, "transfer_angle_rad": [0.3]})
+    for f, ft in enumerate(FAULT_TYPES):
+        for i, m in enumerate((0.0, 1.0)):
+            ref = solve_fault_single(dbl, SRC_S, SRC_R, v_nominal_v=V_NOM, fault_type=ft, m=m,
+                                     r_fault_ohm=6.0, r_phase_ohm=2.0, transfer_angle_rad=0.3,
+                                     z_branch_ohm=zb2)
+            for name in ("i_fault", "v_s", "i_s", "i_s_parallel", "i_r", "v_r"):
+                got = getattr(sw, name)[f, i, 1, 0, 0]
+                want = getattr(ref, name)
+                np.testing.assert_allclose(got, want, rtol=0,
+                                           atol=1e-9 * np.max(np.abs(getattr(sw, name))),
+                                           err_msg=f"{ft} {m} {name}")
+    with pytest.raises(InputError) as err:
+        solve_fault_sweep(line, SRC_S, None, m=[0.0, 0.5], z_branch_ohm=zb[None], **kw)
+    assert err.value.field == "z_branch_ohm"
+
+
 def test_sequential_clearing_mirrors_between_the_ends():
     # Identity (relabelling): circuit 1 open at R on a line equals circuit 1 open at S on the
     # same line reversed, with the sources and EMFs swapped and m -> 1 - m (relative 1e-9).

@@ -344,6 +344,22 @@ def _check_state(line: LineCascade, parallel_state: str, fn: Mapping[str, str] |
         )
 
 
+def _check_branch(z_b: np.ndarray, n_m: int, fn: Mapping[str, str] | None) -> np.ndarray:
+    """Series branch matrices (M, 3, 3) [ohm]: finite, symmetric, passive diagonal."""
+    z = np.asarray(z_b, dtype=complex)
+    if z.shape != (n_m, 3, 3):
+        raise InputError(f"branch impedance must have shape ({n_m}, 3, 3), one per location",
+                         field=_name("z_branch_ohm", fn), value=z.shape)
+    if not np.all(np.isfinite(z)):
+        raise InputError("branch impedance must be finite", field=_name("z_branch_ohm", fn))
+    scale = max(float(np.max(np.abs(z))), 1e-300)
+    if (np.max(np.abs(z - np.swapaxes(z, -1, -2))) > 1e-9 * scale
+            or np.any(np.diagonal(z, axis1=-2, axis2=-1).real < 0)):
+        raise InputError("branch impedance must be symmetric with non-negative resistance",
+                         field=_name("z_branch_ohm", fn))
+    return z
+
+
 def _check_locations(m: np.ndarray | float, fn: Mapping[str, str] | None) -> np.ndarray:
     m = np.atleast_1d(np.asarray(m, dtype=float))
     if m.ndim != 1 or not np.all(np.isfinite(m)) or np.any((m < 0) | (m > 1)):
@@ -502,6 +518,7 @@ def solve_fault_sweep(
     emf_v: tuple[np.ndarray, np.ndarray] | None = None,
     field_names: Mapping[str, str] | None = None,
     outputs: Collection[str] | None = None,
+    z_branch_ohm: np.ndarray | None = None,
 ) -> FaultSweep:
     """Solve every combination of fault type, location, resistance, source and load case.
 
@@ -543,6 +560,14 @@ def solve_fault_sweep(
     outputs : collection of str, optional
         Per-case results to form, from :data:`SWEEP_OUTPUTS` (default all); the others are
         None in the result. ``i_fault`` and the prefault quantities are always formed.
+    z_branch_ohm : (M, 3, 3) complex array, optional
+        Per location, the phase impedance matrix [ohm] of a series branch between the line
+        point and the fault (e.g. a stretch of a radial line leaving a bus, carrying the
+        fault current only): the fault is then at the branch's far end. Exact for a
+        series branch without shunt admittance and without source or load beyond it:
+        with :math:`V_{F'} = V_F - Z_b I_f = V_{pre} - (Z_{th} + Z_b) I_f` the fault
+        constraints see the Thevenin matrix :math:`Z_{th} + Z_b`. ``v_f`` stays the line
+        point's voltage; ``i_fault`` is the branch current into the fault.
 
     Returns
     -------
@@ -566,6 +591,7 @@ def solve_fault_sweep(
     rp = np.broadcast_to(rp, rf.shape).copy()
     scale = _check_scale(source_scale, fn)
     e_s, e_r = _emfs(v_nominal_v, transfer_angle_rad, emf_v, scale.shape[0], fn)
+    z_b = None if z_branch_ohm is None else _check_branch(z_branch_ohm, m.size, fn)
 
     z, y = _line_matrices(line, parallel_state)
     n = z.shape[-1]
@@ -631,6 +657,8 @@ def solve_fault_sweep(
         return np.ascontiguousarray(np.transpose(a, axes))
 
     z_th = -tr(out[..., :3, n_l:], (2, 3, 1, 0))[:, :, None, :, None, :]
+    if z_b is not None:  # the fault beyond a series branch (see the parameters)
+        z_th = z_th + np.transpose(z_b, (1, 2, 0))[:, :, None, None, None, :]
     v_pre = tr(out[..., :3, :n_l], (2, 1, 3, 0))[:, None]  # (3, 1, K, L, M)
     pre_o = tr(out[..., 3:, :n_l].reshape(n_m, n_k, n_b, 3, n_l),
                (2, 3, 1, 4, 0))[:, :, None]  # (B, 3, 1, K, L, M)

@@ -226,6 +226,8 @@ def verify_end(sim: Simulation, end: str, st: SettingsResult, *, study: Study,
     worst_bus = math.inf  # smallest zone 1 reach scale at the remote bus (its limit)
     par_runs = []  # parallel-circuit runs, judged again without mutual compensation
     for run in sim.runs:
+        if run.faulted == "branch":  # faults along the lines leaving the buses: .branches
+            continue
         sw = run.sweep
         rfp = np.stack([sw.r_fault_ohm, sw.r_phase_ohm], axis=1)
         rf_ax = (None, None, slice(None), None, None)
@@ -331,6 +333,10 @@ def verify_end(sim: Simulation, end: str, st: SettingsResult, *, study: Study,
         acc["fwd_behind"], t, "check the directional element and the left blinder"))
     checks += _beyond_bus_checks(sim, end, st, study=study, tolerance_pct=t, source=source,
                                  adjacent_zone1_pct=zone2_adjacent_zone1_pct)
+    from relayset.studies.verification.branches import branch_checks
+
+    checks += branch_checks(sim, end, st, study=study, tolerance_pct=t, model=model,
+                            source=source)
     checks += _load_check(st, z3, t)
     checks.append(_targets_inside(st))
     if remote is not None:
@@ -606,7 +612,9 @@ def verify_settings(study: Study, geo: LineGeometry, params_by_rho: dict[float, 
         "compensation has no input.",
         "Faults beyond the remote bus: the remote-bus fault governs zone 1 (infeed only "
         "moves faults further out); zone 2 and 3 are judged at Z_line + K Z_adjacent with K "
-        "from the simulated remote-bus faults.",
+        "from the simulated remote-bus faults, and by the simulated faults along the "
+        "adjacent lines.",
+        *_branch_notes(study, source),
         f"Verification tolerance {t:g} % (the study's error budget).",
         *_resistive_basis(study, geo, settings_by_end),
     )
@@ -616,6 +624,13 @@ def verify_settings(study: Study, geo: LineGeometry, params_by_rho: dict[float, 
         earth_resistivities_ohm_m=sim.resistivities, cases_solved=n_cases, notes=notes,
         envelope=env.to_dict(),
         relay_model={end: mdl.to_dict() for end, mdl in models.items()})
+
+
+def _branch_notes(study: Study, source: str) -> tuple[str, ...]:
+    """The lines behind and beyond as simulated (:mod:`.branches`)."""
+    from relayset.studies.verification.branches import branch_lines, describe
+
+    return describe(branch_lines(study, source))
 
 
 def _resistive_basis(study: Study, geo: LineGeometry, settings_by_end) -> tuple[str, ...]:
