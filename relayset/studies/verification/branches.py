@@ -182,10 +182,12 @@ def branch_checks(sim, end: str, st, *, study: Study, tolerance_pct: float, mode
                 acc["behind"].add((sb.scale - 1) * 100, np.ones(sb.scale.shape, bool), t,
                                   describer(vb, sb.which, own_locs, "behind the relay"),
                                   sb.insensitive)
-            sr = zone_scale(vb, zr, theta, zl, model)
             # the reverse zone sees a fault behind fed from the line: the far end's source
-            if run.sources[1 if at_s else 0]:
-                _worst(rev_cover, sr, bolted, own_locs, info, lines_at[own][0])
+            short = [j for j, k in enumerate(own_locs) if info[k][1] == lines_at[own][0]]
+            if run.sources[1 if at_s else 0] and short:
+                sr = zone_scale(vb.at_locations(np.array(short)), zr, theta, zl, model)
+                _worst(rev_cover, sr, bolted, [own_locs[j] for j in short], info,
+                       lines_at[own][0])
         if rem_locs:
             v = relay_view(run, at_s, st.k0.k0, k0m, model, line_angle=theta
                            ).at_locations(np.array(rem_locs))
@@ -196,13 +198,18 @@ def branch_checks(sim, end: str, st, *, study: Study, tolerance_pct: float, mode
             at_a = np.array([info[k][1] == lines_at[other][0] and math.isclose(info[k][2], a)
                              for k in rem_locs])[None, :, None, None, None]
             if grade and np.any(at_a):
-                s2 = zone_scale(v, z2, theta, zl, model)
-                acc["z2_grading"].add((s2.scale - 1) * 100, at_a & bolted, t,
-                                      describer(v, s2.which, rem_locs,
+                sel = np.flatnonzero(at_a.ravel())
+                locs2 = [rem_locs[j] for j in sel]
+                v2 = v.at_locations(sel)
+                s2 = zone_scale(v2, z2, theta, zl, model)
+                acc["z2_grading"].add((s2.scale - 1) * 100, bolted, t,
+                                      describer(v2, s2.which, locs2,
                                                 "beyond the remote bus"), s2.insensitive)
-            if run.sources[0 if at_s else 1]:  # without a source behind: no relay current
-                s3 = zone_scale(v, z3, theta, zl, model)
-                _worst(z3_cover, s3, bolted, rem_locs, info, lines_at[other][-1])
+            long_ = [j for j, k in enumerate(rem_locs) if info[k][1] == lines_at[other][-1]]
+            if run.sources[0 if at_s else 1] and long_:  # no source behind: no current
+                s3 = zone_scale(v.at_locations(np.array(long_)), z3, theta, zl, model)
+                _worst(z3_cover, s3, bolted, [rem_locs[j] for j in long_], info,
+                       lines_at[other][-1])
     out = []
     if acc["behind"].n_run:
         out.append(_finish(

@@ -118,8 +118,10 @@ class Envelope:
             "circuit at " + ", ".join(f"{100 * x:g}" for x in SEQUENTIAL_M)
             + " % of it with that circuit's breaker open at "
             "one end, then at the other (both circuits in service, the sources' EMFs of the "
-            "load flow with both breakers closed), every source and load case; zone 1 of "
-            "both ends judged.",
+            "load flow with both breakers closed), every source case with both sources in "
+            "service (with one out the protected circuit carries no fault current or sees "
+            "the fault through both circuits) and every load case; zone 1 of both ends "
+            "judged.",
             "Lines leaving the buses (the study's lines behind and adjacent lines; the "
             "shortest and the longest at each bus): faults along each, radial from its bus "
             "with its Z1 and Z0 (Z0 = 3 Z1 where none is given, common practice, no source), "

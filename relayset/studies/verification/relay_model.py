@@ -268,6 +268,7 @@ class Measure:
         light = replace(bare, views={}, infeed={})
         for at_s, k0, k0m, model, theta in self.relays:
             wanted = ([(k0m, False), (k0m, True)] if run.faulted in ("protected", "branch")
+                      else [(k0m, False)] if run.open_at  # sequential clearing: as set
                       else [(k0m, False), (None, False)])
             for km, behind in wanted:
                 v = relay_view(run, at_s, k0, km, model, line_angle=theta, behind=behind)

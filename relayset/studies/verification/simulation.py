@@ -211,7 +211,7 @@ def simulate(study: Study, geo: LineGeometry, params_by_rho: dict[float, LinePar
         Also solve sequential clearing of parallel-circuit faults on a double circuit
         (the faulted parallel circuit open at one end, then at the other; both circuits
         in service, the EMFs of the load flow with both closed) at :data:`SEQUENTIAL_M`,
-        faults to ground (ground and two-phase-to-ground groups).
+        faults to ground (ground and two-phase-to-ground groups), both sources in service.
     branches : bool
         Also solve faults along the lines leaving the buses (behind a relay, beyond the
         remote bus; :mod:`.branches`), at the study's earth resistivity, both circuits in
@@ -254,6 +254,11 @@ def simulate(study: Study, geo: LineGeometry, params_by_rho: dict[float, LinePar
             emfs: dict = {}  # per (line, configuration): sequential clearing reuses them
             for faulted, ln, solved_state, open_at, m_job in jobs:
                 for c, (s_s, s_r, scales, labels, loaded) in enumerate(configs):
+                    if open_at and (s_s is None or s_r is None):
+                        # Sequential clearing needs both sources: with one out, the
+                        # protected circuit carries no fault current or sees the fault
+                        # through both circuits (twice the line, no zone 1 concern).
+                        continue
                     if loaded and load:
                         if (id(ln), c) not in emfs:
                             emfs[id(ln), c] = load_emfs(env, ln, src, names, relay_end,
