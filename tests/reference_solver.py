@@ -97,6 +97,7 @@ def solve_fault_single(
     transfer_angle_rad: float = 0.0,
     parallel_state: str = "in_service",
     emf_v: tuple[complex, complex] | None = None,
+    z_branch_ohm: np.ndarray | None = None,
 ) -> FaultCase:
     """Solve one fault case by plain modified nodal analysis [3]_ (reference for tests).
 
@@ -108,13 +109,14 @@ def solve_fault_single(
     2 floats; it is tied to ground at the S end only, which closes no current path.
 
     Parameters are those of :func:`~relayset.physics.network.solve_fault_sweep` for one
-    case (scalars).
+    case (scalars); ``z_branch_ohm`` (3, 3) is a series branch stamped as its nodal
+    admittance between the fault point and three extra nodes where the fault sits.
 
     Returns
     -------
     FaultCase
     """
-    _check_state(line, parallel_state, None)
+    _check_state(line, parallel_state, None, open_end=True)
     _check_sources(source_s, source_r, None)
     m_arr = _check_locations(m, None)
     if m_arr.size != 1:
@@ -143,7 +145,8 @@ def solve_fault_single(
     n_pos = len(positions)
     n_line = n_pos * n
     bus_s, bus_r = n_line, n_line + 3
-    n_nodes = n_line + 6
+    n_nodes = n_line + 6 + (3 if z_branch_ohm is not None else 0)
+    branch_nodes = [n_line + 6 + c for c in range(3)]
 
     def node(j: int, c: int) -> int:
         return j * n + c
@@ -159,10 +162,13 @@ def solve_fault_single(
         for a_, b_ in zip(frm, to, strict=True):
             branches.append(("amm", [a_], [b_]))
 
-    add_ammeter("s1", [bus_s + c for c in range(3)], [node(0, c) for c in range(3)])
-    add_ammeter("r1", [bus_r + c for c in range(3)], [node(last, c) for c in range(3)])
+    # Sequential clearing: circuit 1's breaker at one bus is open, i.e. no branch there.
+    if parallel_state != "faulted_open_at_s":
+        add_ammeter("s1", [bus_s + c for c in range(3)], [node(0, c) for c in range(3)])
+    if parallel_state != "faulted_open_at_r":
+        add_ammeter("r1", [bus_r + c for c in range(3)], [node(last, c) for c in range(3)])
     if n == 6:
-        if parallel_state == "in_service":
+        if parallel_state in ("in_service", "faulted_open_at_s", "faulted_open_at_r"):
             add_ammeter("s2", [bus_s + c for c in range(3)], [node(0, 3 + c) for c in range(3)])
             add_ammeter("r2", [bus_r + c for c in range(3)],
                         [node(last, 3 + c) for c in range(3)])
@@ -207,6 +213,12 @@ def solve_fault_single(
         rhs[cols] = emf
         row += 3
     f_nodes = [node(j_f, c) for c in range(3)]
+    v_nodes = f_nodes  # the line point (v_f)
+    if z_branch_ohm is not None:
+        yb = np.linalg.inv(np.asarray(z_branch_ohm, dtype=complex))
+        idx = f_nodes + branch_nodes
+        mat[np.ix_(idx, idx)] += np.block([[yb, -yb], [-yb, yb]])
+        f_nodes = branch_nodes
     f_cols = list(range(row, row + 3))
     for c in range(3):
         mat[f_nodes[c], row + c] += 1.0  # fault current leaves the fault node
@@ -233,7 +245,7 @@ def solve_fault_single(
         v_r=volt[bus_r:bus_r + 3],
         i_r=current("r1"),
         i_r_parallel=current("r2"),
-        v_f=volt[f_nodes],
+        v_f=volt[v_nodes],
         i_fault=sol[f_cols],
         i_f_from_s=i_from_s,
         i_f_from_r=i_from_r,

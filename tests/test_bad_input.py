@@ -135,6 +135,15 @@ CASES = [
      lambda d: _pos(d).update(bundle={"count": 2, "spacing": "10 mm"}), ["bundle.spacing"]),
     ("missing field", DEMO_1C, lambda d: d["system"].pop("frequency"),
      ["system.frequency", "required"]),
+    ("adjacent z0 not an impedance", DEMO_1C,
+     lambda d: d["adjacent_lines"][0].update(z0="40 km"), ["adjacent_lines[0].z0", "40 km"]),
+    ("adjacent z0 with a study file", DEMO_1C,
+     lambda d: d["adjacent_lines"][0].update(z0="18 + 50j ohm", study="other.toml",
+                                             z1=None) or d["adjacent_lines"][0].pop("z1"),
+     ["adjacent_lines[0].z0", "only with z1"]),
+    ("line behind z0 negative resistance", DEMO_1C,
+     lambda d: d.update(lines_behind=[{"name": "x", "z1": "2 + 10j ohm",
+                                       "z0": "-6 + 30j ohm"}]), ["lines_behind[0].z0"]),
 ]
 
 

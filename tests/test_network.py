@@ -17,6 +17,7 @@ from relayset.physics.faults import FAULT_TYPES, fault_admittance, fault_constra
 from relayset.physics.loadflow import emfs_for_load
 from relayset.physics.measurement import loop_impedances, loops_for_fault, reach_error_pct
 from relayset.physics.network import (
+    OPEN_END_STATES,
     PARALLEL_STATES,
     LineCascade,
     Source,
@@ -249,8 +250,8 @@ def test_complex_power_balance(kind, state):
 
 
 CASES = [("single", "in_service", False), ("single", "in_service", True)] + [
-    ("double", s, sh) for s in PARALLEL_STATES for sh in (False, True)
-]
+    ("double", s, sh) for s in PARALLEL_STATES + OPEN_END_STATES for sh in (False, True)
+]  # OPEN_END_STATES: sequential clearing, the reference simply omits circuit 1's branch
 
 
 @pytest.mark.parametrize(("kind", "state", "shunt"), CASES)
@@ -437,6 +438,70 @@ def _sweep(**kw):
     return solve_fault_sweep(line, SRC_S, SRC_R, **args)
 
 
+def test_fault_through_a_series_branch():
+    # Independent check: the reference solver stamps the branch as a nodal admittance to
+    # extra nodes (MNA) where the batched solver adds it to the Thevenin matrix; relative
+    # 1e-9. Identity: on a radial, series-only line with balanced sections (no source at
+    # R), a fault at m equals the fault at m = 0 through the stretch 0..m as a branch.
+    from relayset.physics.sequence import balanced_phase_matrix
+
+    z1, z0 = (0.03 + 0.32j) / 1e3, (0.25 + 1.1j) / 1e3
+    zm = balanced_phase_matrix(z1, z0)
+    line = LineCascade(np.stack([zm, zm]), np.array([40e3, 60e3]))
+    x = 0.37
+    zb = balanced_phase_matrix(x * 100e3 * z1, x * 100e3 * z0)
+    kw = dict(v_nominal_v=V_NOM, fault_types=FAULT_TYPES, r_fault_ohm=[0.0, 6.0],
+              r_phase_ohm=[0.0, 2.0], transfer_angle_rad=[0.0])
+    far = solve_fault_sweep(line, SRC_S, None, m=[x], **kw)
+    branch = solve_fault_sweep(line, SRC_S, None, m=[0.0], z_branch_ohm=zb[None], **kw)
+    for name in ("i_fault", "v_s", "i_s"):
+        want = getattr(far, name)
+        np.testing.assert_allclose(getattr(branch, name), want, rtol=0,
+                                   atol=1e-9 * np.max(np.abs(want)), err_msg=name)
+    dbl = double_circuit(shunt=True)
+    zb2 = balanced_phase_matrix(4.0 + 30j, 12.0 + 95j)
+    sw = solve_fault_sweep(dbl, SRC_S, SRC_R, m=[0.0, 1.0], z_branch_ohm=np.stack([zb2, zb2]),
+                           **{**kw, "transfer_angle_rad": [0.3]})
+    for f, ft in enumerate(FAULT_TYPES):
+        for i, m in enumerate((0.0, 1.0)):
+            ref = solve_fault_single(dbl, SRC_S, SRC_R, v_nominal_v=V_NOM, fault_type=ft, m=m,
+                                     r_fault_ohm=6.0, r_phase_ohm=2.0, transfer_angle_rad=0.3,
+                                     z_branch_ohm=zb2)
+            for name in ("i_fault", "v_s", "i_s", "i_s_parallel", "i_r", "v_r"):
+                got = getattr(sw, name)[f, i, 1, 0, 0]
+                want = getattr(ref, name)
+                np.testing.assert_allclose(got, want, rtol=0,
+                                           atol=1e-9 * np.max(np.abs(getattr(sw, name))),
+                                           err_msg=f"{ft} {m} {name}")
+    with pytest.raises(InputError) as err:
+        solve_fault_sweep(line, SRC_S, None, m=[0.0, 0.5], z_branch_ohm=zb[None], **kw)
+    assert err.value.field == "z_branch_ohm"
+
+
+def test_sequential_clearing_mirrors_between_the_ends():
+    # Identity (relabelling): circuit 1 open at R on a line equals circuit 1 open at S on the
+    # same line reversed, with the sources and EMFs swapped and m -> 1 - m (relative 1e-9).
+    line = double_circuit(shunt=True)
+    rev = LineCascade(line.z_ohm_per_m[::-1], line.length_m[::-1], line.y_s_per_m[::-1])
+    m = np.array([0.0, 0.35, 1.0])
+    kw = dict(v_nominal_v=V_NOM, fault_types=("AG", "BCG", "ABC"), r_fault_ohm=[0.0, 7.0])
+    a = solve_fault_sweep(line, SRC_S, SRC_R, m=m, emf_v=([80e3 * np.exp(0.3j)], [76e3]),
+                          parallel_state="faulted_open_at_r", **kw)
+    b = solve_fault_sweep(rev, SRC_R, SRC_S, m=1 - m, emf_v=([76e3], [80e3 * np.exp(0.3j)]),
+                          parallel_state="faulted_open_at_s", **kw)
+    for x, y in (("v_s", "v_r"), ("i_s", "i_r"), ("i_s_parallel", "i_r_parallel"),
+                 ("v_r", "v_s"), ("i_fault", "i_fault")):
+        want = getattr(b, y)
+        assert_rel = 1e-9 * np.max(np.abs(want))
+        np.testing.assert_allclose(getattr(a, x), want, rtol=0, atol=assert_rel, err_msg=x)
+    assert np.max(np.abs(a.i_r)) <= 1e-9 * np.max(np.abs(a.i_fault))  # open breaker: nothing
+    np.testing.assert_allclose(a.v_r_pre, b.v_s_pre, rtol=0, atol=1e-9 * 80e3)
+    with pytest.raises(InputError) as err:  # the load flow knows no sequential clearing
+        emfs_for_load(line, SRC_S, SRC_R, v_nominal_v=V_NOM, p_w=[1e8], q_var=[0.0],
+                      parallel_state="faulted_open_at_s")
+    assert err.value.field == "parallel_state"
+
+
 @pytest.mark.parametrize(
     ("kwargs", "field"),
     [
@@ -447,6 +512,7 @@ def _sweep(**kw):
         ({"fault_types": ("AG", "AX")}, "reach_study.fault_types"),
         ({"parallel_state": "open", "line": double_circuit()}, "parallel_state"),
         ({"parallel_state": "earthed"}, "parallel_state"),
+        ({"parallel_state": "faulted_open_at_s"}, "parallel_state"),  # single circuit
         ({"source_scale": np.array([1.0, -0.5])}, "source_scale"),
     ],
 )

@@ -649,6 +649,8 @@ class AdjacentLine:
 
     name: str = spec(_text(200))
     z1: complex | None = spec(LineOhm, None)
+    #: zero-sequence impedance with z1 (default in the verification: 3 z1, stated there)
+    z0: complex | None = spec(LineOhm, None)
     study: str | None = spec(_path_text, None)
     #: the substation of this line the adjacent line leaves (default: for adjacent_lines the
     #: relay's remote end, for lines_behind the relay's own end; needed when relay.end is both)
@@ -660,6 +662,8 @@ class AdjacentLine:
                           "study file), not both")
         if self.z1 is None and self.study is None:
             raise ValueError("give either z1 or study (a path to the adjacent line's study file)")
+        if self.z0 is not None and self.study is not None:
+            raise KeyRuleError("z0", "give z0 only with z1 (a study file gives its own Z0)")
 
 
 @_table

@@ -66,11 +66,15 @@ from relayset.physics.faults import (
 from relayset.physics.sequence import balanced_phase_matrix, fortescue_matrix
 
 __all__ = [
-    "FAULT_TYPES", "PARALLEL_STATES", "FaultSweep", "LineCascade", "Source",
-    "solve_fault_sweep",
+    "FAULT_TYPES", "OPEN_END_STATES", "PARALLEL_STATES", "FaultSweep", "LineCascade",
+    "Source", "solve_fault_sweep",
 ]
 
 PARALLEL_STATES: tuple[str, ...] = ("in_service", "earthed", "isolated")
+#: Sequential clearing (six-conductor lines, fault solver only): both circuits in service
+#: but the faulted circuit 1 open at bus S, or at bus R (its breaker there has tripped);
+#: circuit 2 stays on both buses. Circuit 1's current at the open end is zero.
+OPEN_END_STATES: tuple[str, ...] = ("faulted_open_at_s", "faulted_open_at_r")
 
 
 def _name(field: str, field_names: Mapping[str, str] | None) -> str:
@@ -320,11 +324,15 @@ def _balanced(e_a: np.ndarray) -> np.ndarray:
     return np.asarray(e_a, dtype=complex)[..., None] * fortescue_matrix()[:, 1]
 
 
-def _check_state(line: LineCascade, parallel_state: str, fn: Mapping[str, str] | None) -> None:
-    if parallel_state not in PARALLEL_STATES:
+def _check_state(line: LineCascade, parallel_state: str, fn: Mapping[str, str] | None,
+                 open_end: bool = False) -> None:
+    """Validate the parallel-circuit state; ``open_end``: the fault solver's sequential
+    clearing states (:data:`OPEN_END_STATES`) are allowed too."""
+    known = PARALLEL_STATES + (OPEN_END_STATES if open_end else ())
+    if parallel_state not in known:
         raise InputError(
-            f"unknown parallel circuit state; use one of {', '.join(PARALLEL_STATES)}"
-            + suggest(str(parallel_state), PARALLEL_STATES),
+            f"unknown parallel circuit state; use one of {', '.join(known)}"
+            + suggest(str(parallel_state), known),
             field=_name("parallel_state", fn),
             value=parallel_state,
         )
@@ -334,6 +342,22 @@ def _check_state(line: LineCascade, parallel_state: str, fn: Mapping[str, str] |
             field=_name("parallel_state", fn),
             value=parallel_state,
         )
+
+
+def _check_branch(z_b: np.ndarray, n_m: int, fn: Mapping[str, str] | None) -> np.ndarray:
+    """Series branch matrices (M, 3, 3) [ohm]: finite, symmetric, passive diagonal."""
+    z = np.asarray(z_b, dtype=complex)
+    if z.shape != (n_m, 3, 3):
+        raise InputError(f"branch impedance must have shape ({n_m}, 3, 3), one per location",
+                         field=_name("z_branch_ohm", fn), value=z.shape)
+    if not np.all(np.isfinite(z)):
+        raise InputError("branch impedance must be finite", field=_name("z_branch_ohm", fn))
+    scale = max(float(np.max(np.abs(z))), 1e-300)
+    if (np.max(np.abs(z - np.swapaxes(z, -1, -2))) > 1e-9 * scale
+            or np.any(np.diagonal(z, axis1=-2, axis2=-1).real < 0)):
+        raise InputError("branch impedance must be symmetric with non-negative resistance",
+                         field=_name("z_branch_ohm", fn))
+    return z
 
 
 def _check_locations(m: np.ndarray | float, fn: Mapping[str, str] | None) -> np.ndarray:
@@ -435,13 +459,23 @@ def _terminal(
 
     Parameters: z_src (K, 3, 3) or None (open end), emf (K, L, 3). Returns G (K, n, 2n)
     and g (K, L, n). Current-only rows are multiplied by ``z_ref`` [ohm] so that every row
-    is in volts (better pivoting).
+    is in volts (better pivoting). ``state`` "open" (six conductors): circuit 1's breaker
+    at this end is open (I1 = 0) and circuit 2 alone is on the bus.
     """
     n_k, n_l = emf.shape[:2]
     g_mat = np.zeros((n_k, n, 2 * n), dtype=complex)
     g_vec = np.zeros((n_k, n_l, n), dtype=complex)
     eye = np.eye(3)
     c1 = slice(0, 3)  # rows and columns of circuit 1
+    if n == 6 and state == "open":
+        g_mat[:, c1, 6:9] = z_ref * eye  # I1 = 0: the faulted circuit's breaker is open
+        if z_src is None:
+            g_mat[:, 3:, 9:12] = z_ref * eye  # I2 = 0
+        else:
+            g_mat[:, 3:, 3:6] = eye  # V2 + Zs I2 = E
+            g_mat[:, 3:, 9:12] = z_src
+            g_vec[..., 3:] = emf
+        return g_mat, g_vec
     if n == 6 and state == "in_service":
         g_mat[:, 3:, 0:3] = eye  # V1 - V2 = 0: both circuits on the bus
         g_mat[:, 3:, 3:6] = -eye
@@ -484,6 +518,7 @@ def solve_fault_sweep(
     emf_v: tuple[np.ndarray, np.ndarray] | None = None,
     field_names: Mapping[str, str] | None = None,
     outputs: Collection[str] | None = None,
+    z_branch_ohm: np.ndarray | None = None,
 ) -> FaultSweep:
     """Solve every combination of fault type, location, resistance, source and load case.
 
@@ -511,7 +546,11 @@ def solve_fault_sweep(
         Load cases: angle by which the S EMF leads the R EMF [rad] (positive: power flows
         S to R). Both EMFs have the nominal magnitude.
     parallel_state : str
-        Circuit 2 state (six-conductor lines only): one of :data:`PARALLEL_STATES`.
+        Circuit 2 state (six-conductor lines only): one of :data:`PARALLEL_STATES`, or
+        one of :data:`OPEN_END_STATES` (sequential clearing: both circuits in service,
+        the faulted circuit 1 open at one end). The EMFs are then those given (e.g. of the
+        load flow with both circuits closed): the sources do not change while a breaker
+        opens, the prefault state solved is the network with the breaker open.
     emf_v : (e_s, e_r), optional
         Phase-A EMF phasors [V], shape (L,) or (K, L), e.g. from
         :func:`~relayset.physics.loadflow.emfs_for_load`; replaces ``transfer_angle_rad``.
@@ -521,6 +560,14 @@ def solve_fault_sweep(
     outputs : collection of str, optional
         Per-case results to form, from :data:`SWEEP_OUTPUTS` (default all); the others are
         None in the result. ``i_fault`` and the prefault quantities are always formed.
+    z_branch_ohm : (M, 3, 3) complex array, optional
+        Per location, the phase impedance matrix [ohm] of a series branch between the line
+        point and the fault (e.g. a stretch of a radial line leaving a bus, carrying the
+        fault current only): the fault is then at the branch's far end. Exact for a
+        series branch without shunt admittance and without source or load beyond it:
+        with :math:`V_{F'} = V_F - Z_b I_f = V_{pre} - (Z_{th} + Z_b) I_f` the fault
+        constraints see the Thevenin matrix :math:`Z_{th} + Z_b`. ``v_f`` stays the line
+        point's voltage; ``i_fault`` is the branch current into the fault.
 
     Returns
     -------
@@ -528,7 +575,7 @@ def solve_fault_sweep(
         Arrays with axes (fault_type, m, r_fault, source_case, load_case, phase).
     """
     fn = field_names
-    _check_state(line, parallel_state, fn)
+    _check_state(line, parallel_state, fn, open_end=True)
     _check_sources(source_s, source_r, fn)
     ftypes = tuple(fault_types)
     if not ftypes:
@@ -544,6 +591,7 @@ def solve_fault_sweep(
     rp = np.broadcast_to(rp, rf.shape).copy()
     scale = _check_scale(source_scale, fn)
     e_s, e_r = _emfs(v_nominal_v, transfer_angle_rad, emf_v, scale.shape[0], fn)
+    z_b = None if z_branch_ohm is None else _check_branch(z_branch_ohm, m.size, fn)
 
     z, y = _line_matrices(line, parallel_state)
     n = z.shape[-1]
@@ -554,8 +602,13 @@ def solve_fault_sweep(
     phi_l, phi_r = fault_chain_products(z, y, line.length_m, m)
     zs = None if source_s is None else source_s.phase_matrix(scale[:, 0])
     zr = None if source_r is None else source_r.phase_matrix(scale[:, 1])
-    g_l, b_l = _terminal(n, parallel_state, zs, _balanced(e_s), z_ref)
-    g_r, b_r = _terminal(n, parallel_state, zr, _balanced(e_r), z_ref)
+    # Sequential clearing: the open end's terminal is "open", the other end in service.
+    st_l = st_r = parallel_state
+    if parallel_state in OPEN_END_STATES:
+        st_l, st_r = (("open", "in_service") if parallel_state == OPEN_END_STATES[0]
+                      else ("in_service", "open"))
+    g_l, b_l = _terminal(n, st_l, zs, _balanced(e_s), z_ref)
+    g_r, b_r = _terminal(n, st_r, zr, _balanced(e_r), z_ref)
 
     # System in x = [V_F, I_L, I_R] (3n) for each (m, source case).
     w_l = g_l[None] @ phi_l[:, None]  # (M, K, n, 2n): terminal rows in fault-point terms
@@ -585,7 +638,10 @@ def solve_fault_sweep(
     t[:, 3 * n:4 * n, 0:n] = phi_r[:, n:, :n]
     t[:, 3 * n:4 * n, 2 * n:] = phi_r[:, n:, n:]
     t[:, 4 * n:, :] = np.eye(3 * n)
-    starts = {"v_s": 0, "i_s": n, "i_s_parallel": n + 3, "v_r": 2 * n, "i_r": 3 * n,
+    # The bus voltage is circuit 1's end voltage, but circuit 2's where circuit 1 is open.
+    bus_s, bus_r = 3 * (st_l == "open"), 3 * (st_r == "open")
+    starts = {"v_s": bus_s, "i_s": n, "i_s_parallel": n + 3, "v_r": 2 * n + bus_r,
+              "i_r": 3 * n,
               "i_r_parallel": 3 * n + 3, "v_f": 4 * n, "i_f_from_s": 5 * n,
               "i_f_from_r": 6 * n}
     wanted = _check_outputs(outputs, fn)
@@ -601,6 +657,8 @@ def solve_fault_sweep(
         return np.ascontiguousarray(np.transpose(a, axes))
 
     z_th = -tr(out[..., :3, n_l:], (2, 3, 1, 0))[:, :, None, :, None, :]
+    if z_b is not None:  # the fault beyond a series branch (see the parameters)
+        z_th = z_th + np.transpose(z_b, (1, 2, 0))[:, :, None, None, None, :]
     v_pre = tr(out[..., :3, :n_l], (2, 1, 3, 0))[:, None]  # (3, 1, K, L, M)
     pre_o = tr(out[..., 3:, :n_l].reshape(n_m, n_k, n_b, 3, n_l),
                (2, 3, 1, 4, 0))[:, :, None]  # (B, 3, 1, K, L, M)
@@ -660,13 +718,13 @@ def solve_fault_sweep(
         i_fault=view(i_fault),
         i_f_from_s=fields.get("i_f_from_s"),
         i_f_from_r=fields.get("i_f_from_r"),
-        v_s_pre=np.ascontiguousarray(pre0[..., 0:3]),
+        v_s_pre=np.ascontiguousarray(pre0[..., bus_s:bus_s + 3]),
         i_s_pre=np.ascontiguousarray(pre0[..., n:n + 3]),
         i_s_parallel_pre=(
             np.ascontiguousarray(pre0[..., n + 3:2 * n])
             if n == 6 else np.zeros((*pre0.shape[:-1], 3), dtype=complex)
         ),
-        v_r_pre=np.ascontiguousarray(pre_r[..., 0:3]),
+        v_r_pre=np.ascontiguousarray(pre_r[..., bus_r:bus_r + 3]),
         i_r_pre=np.ascontiguousarray(pre_r[..., n:n + 3]),
     )
 

@@ -3,8 +3,9 @@
 1. The 230 kV double-circuit demo with the relay at both ends, over the full envelope:
    every fault type, the default location grid plus the zone 1 points, the resistance
    grids, three parallel-circuit states, the study's source cases per end (3 x 3 pairs
-   plus each source alone), the load cases, every earth resistivity of the sweep, and the
-   faults on the parallel circuit. Target: the verification (simulation, measurement and
+   plus each source alone), the load cases, every earth resistivity of the sweep, the
+   faults on the parallel circuit (also with one of its breakers open), and the faults
+   along the adjacent lines. Target: the verification (simulation, measurement and
    checks) within 1.5 s of CPU, warm, on one core.
 2. The settings closed by simulation plus their verification (the same call the CLI makes),
    warm, beside it.

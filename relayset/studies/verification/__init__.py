@@ -5,6 +5,7 @@
 - :mod:`.relay_model`: what the relay measures (loops, directional elements, release
   currents, mutual compensation and its supervision);
 - :mod:`.checks`: each requirement on each zone, its margin and governing case;
+- :mod:`.branches`: faults along the lines behind and beyond the line (radial), their checks;
 - :mod:`.closing`: settings closed by the simulation, then verified.
 """
 

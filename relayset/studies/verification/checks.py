@@ -226,10 +226,14 @@ def verify_end(sim: Simulation, end: str, st: SettingsResult, *, study: Study,
     r1 = z1.reach_pct / 100
     acc = {k: _Acc(mo) for k, mo in (("z1_int", True), ("z2_int", True), ("z1_ext", False),
                                      ("z1_par", False), ("z1_par_nomut", False),
+                                     ("z1_seq", False),
                                      ("fwd_behind", False))}
     labels = sim.labels
     worst_bus = math.inf  # smallest zone 1 reach scale at the remote bus (its limit)
+    par_runs = []  # parallel-circuit runs, judged again without mutual compensation
     for run in sim.runs:
+        if run.faulted == "branch":  # faults along the lines leaving the buses: .branches
+            continue
         sw = run.sweep
         rfp = np.stack([sw.r_fault_ohm, sw.r_phase_ohm], axis=1)
         rf_ax = (None, None, slice(None), None, None)
@@ -269,12 +273,25 @@ def verify_end(sim: Simulation, end: str, st: SettingsResult, *, study: Study,
                         _describe(vb, sb.which, labels, "behind the relay", rfp),
                         sb.insensitive)
         else:
-            for key, km in (("z1_par", k0m), ("z1_par_nomut", None)):
-                v = relay_view(run, at_s, st.k0.k0, km, model, line_angle=theta)
-                sc = zone_scale(v, z1, theta, zl, model)
-                acc[key].add((sc.scale - 1) * 100, np.ones(sc.scale.shape, dtype=bool), t,
-                             _describe(v, sc.which, labels, "parallel circuit", rfp),
-                             sc.insensitive)
+            # Sequential clearing: the parallel circuit's breaker at one end already open.
+            seq = bool(run.open_at)
+            what = (f"parallel circuit, its breaker at {run.open_at} open" if seq
+                    else "parallel circuit")
+            if not seq:  # (sequential clearing is judged as set only)
+                par_runs.append((run, "z1_par_nomut", what, rfp))
+            v = relay_view(run, at_s, st.k0.k0, k0m, model, line_angle=theta)
+            sc = zone_scale(v, z1, theta, zl, model)
+            acc["z1_seq" if seq else "z1_par"].add(
+                (sc.scale - 1) * 100, np.ones(sc.scale.shape, dtype=bool), t,
+                _describe(v, sc.which, labels, what, rfp), sc.insensitive)
+    # Without mutual compensation, judged only where it names the remedy: a failure with it.
+    for run, key, what, rfp in par_runs:
+        if acc[key.replace("_nomut", "")].n_fail == 0:
+            continue
+        v = relay_view(run, at_s, st.k0.k0, None, model, line_angle=theta)
+        sc = zone_scale(v, z1, theta, zl, model)
+        acc[key].add((sc.scale - 1) * 100, np.ones(sc.scale.shape, dtype=bool), t,
+                     _describe(v, sc.which, labels, what, rfp), sc.insensitive)
     checks = [
         _finish("zone1", "operates_for_internal_faults",
                 f"zone 1 operates for every fault up to (1 − {t:g} %) of its reach "
@@ -298,6 +315,15 @@ def verify_end(sim: Simulation, end: str, st: SettingsResult, *, study: Study,
             "zone 1 does not operate for any fault on the parallel circuit "
             f"({'with' if sim.mutual else 'without'} mutual compensation) with {t:g} % margin",
             par, t, consider))
+    if acc["z1_seq"].n_run:
+        seq = acc["z1_seq"]
+        consider = ("shorten zone 1" + ("; or " + MUTUAL_REMEDY if sim.mutual else ""))
+        checks.append(_finish(
+            "zone1", "no_operation_for_sequential_clearing",
+            "zone 1 does not operate for any fault on the parallel circuit while that "
+            f"circuit's breaker at {end} (the relay's end), or at {other}, is open "
+            f"({'with' if sim.mutual else 'without'} mutual compensation), every source and "
+            f"load case, with {t:g} % margin", seq, t, consider))
     checks[0] = _resistive_need(checks[0], z1, theta, st)
     checks.append(_finish(
         "zone2", "covers_whole_line",
@@ -313,6 +339,10 @@ def verify_end(sim: Simulation, end: str, st: SettingsResult, *, study: Study,
         acc["fwd_behind"], t, "check the directional element and the left blinder"))
     checks += _beyond_bus_checks(sim, end, st, study=study, tolerance_pct=t, source=source,
                                  philosophy=ph)
+    from relayset.studies.verification.branches import branch_checks
+
+    checks += branch_checks(sim, end, st, study=study, tolerance_pct=t, model=model,
+                            source=source)
     checks += _load_check(st, z3, t)
     checks.append(_targets_inside(st))
     checks += equipment.equipment_checks(sim, end, st, study=study, model=model,
@@ -586,7 +616,9 @@ def verify_settings(study: Study, geo: LineGeometry, params_by_rho: dict[float, 
         "compensation has no input.",
         "Faults beyond the remote bus: the remote-bus fault governs zone 1 (infeed only "
         "moves faults further out); zone 2 and 3 are judged at Z_line + K Z_adjacent with K "
-        "from the simulated remote-bus faults.",
+        "from the simulated remote-bus faults, and by the simulated faults along the "
+        "adjacent lines.",
+        *_branch_notes(study, source),
         f"Verification tolerance {t:g} % (the study's error budget).",
         scheme.describe(_philosophy(philosophy, zone2_adjacent_zone1_pct)),
         *_resistive_basis(study, geo, settings_by_end),
@@ -598,6 +630,13 @@ def verify_settings(study: Study, geo: LineGeometry, params_by_rho: dict[float, 
         envelope=env.to_dict(),
         relay_model={end: mdl.to_dict() for end, mdl in models.items()},
         deviations=accepted)
+
+
+def _branch_notes(study: Study, source: str) -> tuple[str, ...]:
+    """The lines behind and beyond as simulated (:mod:`.branches`)."""
+    from relayset.studies.verification.branches import branch_lines, describe
+
+    return describe(branch_lines(study, source))
 
 
 def _resistive_basis(study: Study, geo: LineGeometry, settings_by_end) -> tuple[str, ...]:

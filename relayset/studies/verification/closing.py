@@ -207,7 +207,8 @@ def settle_and_verify(study: Study, geo: LineGeometry, params: LineParameters, r
         extra = m_new[~np.isclose(m_new[:, None], m_sim[None, :], rtol=0, atol=1e-12
                                   ).any(axis=1)]
         sim = sim0 if not extra.size else sim0.joined(simulate(
-            study, geo, by_rho, env0, m=extra, source=source, measure=measure))
+            study, geo, by_rho, env0, m=extra, source=source, sequential=False, branches=False,
+            measure=measure))
     del sim0
     ver = verify_settings(study, geo, by_rho, final, source=source,
                           zone2_adjacent_zone1_pct=philosophy.zone2.adjacent_zone1_pct,

@@ -41,6 +41,10 @@ RF_FRACTIONS = (0.5, 1.0)
 #: [ohm]: the overreach of a two-phase-to-ground fault through ground resistance peaks at a
 #: few ohms, between the values a study usually lists (common practice, no source).
 SERIES_125 = (1.0, 2.0, 5.0)
+#: Fault locations of the sequential-clearing runs [1 from S] (common practice, no source:
+#: a coarser grid than the protected line's, the mutual-coupling error of zone 1 varying
+#: smoothly along the parallel circuit; both line ends included).
+SEQUENTIAL_M = (0.0, 0.5, 1.0)
 #: Fault types by the resistance they go through.
 GROUND_FAULTS = ("AG", "BG", "CG")
 PHASE_FAULTS = ("AB", "BC", "CA", "ABC")
@@ -107,11 +111,23 @@ class Envelope:
             + ("the study's range" if self.rho_range_given else
                f"no range given: {DEFAULT_RHO_FACTORS[0]:g} to {DEFAULT_RHO_FACTORS[1]:g} "
                "times the study's value, common practice, no source") + ").",
-            "Not simulated (stated limits of the envelope): faults along the lines behind "
-            "the relay (behind it only at its own bus), faults on the adjacent lines beyond "
-            "the remote bus (zones 2 and 3 judged at Z_line + K Z_adjacent with the simulated "
-            "infeed K), and sequential clearing of a parallel-circuit fault (one breaker of "
-            "the faulted circuit open).",
+            "Sequential clearing (double circuits): every fault to ground (ground and "
+            "two-phase-to-ground, every fault resistance; the zero-sequence mutual coupling "
+            "that makes this case worst acts through the residual current, phase faults on "
+            "the parallel circuit are judged with both its breakers closed) on the parallel "
+            "circuit at " + ", ".join(f"{100 * x:g}" for x in SEQUENTIAL_M)
+            + " % of it with that circuit's breaker open at "
+            "one end, then at the other (both circuits in service, the sources' EMFs of the "
+            "load flow with both breakers closed), every source case with both sources in "
+            "service (with one out the protected circuit carries no fault current or sees "
+            "the fault through both circuits) and every load case; zone 1 of both ends "
+            "judged.",
+            "Lines leaving the buses (the study's lines behind and adjacent lines; the "
+            "shortest and the longest at each bus): faults along each, radial from its bus "
+            "with its Z1 and Z0 (Z0 = 3 Z1 where none is given, common practice, no source), "
+            "every type and fault resistance with both circuits in service, bolted faults "
+            "with the parallel circuit out, at the study's earth resistivity, every source "
+            "and load case (import and export).",
         )
 
     def to_dict(self) -> dict:

@@ -272,7 +272,8 @@ class Measure:
         bare = lighten(run)
         light = replace(bare, views={}, infeed={})
         for at_s, k0, k0m, model, theta in self.relays:
-            wanted = ([(k0m, False), (k0m, True)] if run.faulted == "protected"
+            wanted = ([(k0m, False), (k0m, True)] if run.faulted in ("protected", "branch")
+                      else [(k0m, False)] if run.open_at  # sequential clearing: as set
                       else [(k0m, False), (None, False)])
             for km, behind in wanted:
                 v = relay_view(run, at_s, k0, km, model, line_angle=theta, behind=behind)

@@ -25,7 +25,7 @@ from relayset.physics import network
 from relayset.results.parameters import LineParameters
 from relayset.studies.geometry import LineGeometry
 from relayset.studies.reach import build_source, emfs_for_flows_at, line_cascade
-from relayset.studies.verification.envelope import Envelope
+from relayset.studies.verification.envelope import SEQUENTIAL_M, Envelope, FaultGroup
 
 #: Per-case results the relay model reads (both ends, both circuits, the currents into the
 #: fault from each side for faults behind a relay); the fault-point voltage is not needed.
@@ -44,6 +44,12 @@ class Run:
     rho_ohm_m: float
     sources: tuple[bool, bool]  #: source in service at S, at R
     group: str = ""  #: fault group (by the resistance the faults go through)
+    #: Sequential clearing: the bus at which the faulted parallel circuit's breaker is open
+    #: ("" where both are closed).
+    open_at: str = ""
+    #: Faults along lines leaving the buses (faulted "branch"): per location (bus, line
+    #: name, fraction of that line), see :mod:`.branches`.
+    branch: tuple[tuple[str, str, float], ...] = ()
     #: Measurements kept when the phase quantities were dropped: key -> (relay, view).
     views: dict = field(default_factory=dict)
     #: Per end (True: S), the infeed samples of :func:`infeed_samples`, once measured.
@@ -198,7 +204,8 @@ def load_emfs(env: Envelope, line, src, names, relay_end, scales, state,
 
 def simulate(study: Study, geo: LineGeometry, params_by_rho: dict[float, LineParameters],
              env: Envelope, *, m: np.ndarray, source: str, protected: bool = True,
-             parallel: bool = True, load: bool = True,
+             parallel: bool = True, load: bool = True, sequential: bool = True,
+             branches: bool = True,
              measure: Callable[[Run], Run] | None = None) -> Simulation:
     """Solve the fault cases of a verification over the envelope (no settings needed).
 
@@ -212,6 +219,15 @@ def simulate(study: Study, geo: LineGeometry, params_by_rho: dict[float, LinePar
         Load cases and fault-resistance grids.
     m : (M,) array
         Fault locations from the from-substation [1].
+    sequential : bool
+        Also solve sequential clearing of parallel-circuit faults on a double circuit
+        (the faulted parallel circuit open at one end, then at the other; both circuits
+        in service, the EMFs of the load flow with both closed) at :data:`SEQUENTIAL_M`,
+        faults to ground (ground and two-phase-to-ground groups), both sources in service.
+    branches : bool
+        Also solve faults along the lines leaving the buses (behind a relay, beyond the
+        remote bus; :mod:`.branches`), at the study's earth resistivity, both circuits in
+        service.
     measure : callable, optional
         Applied to each run as it is solved (e.g. keep what the relays see and drop the
         phase quantities, :class:`relayset.studies.verification.relay_model.Measure`).
@@ -236,33 +252,104 @@ def simulate(study: Study, geo: LineGeometry, params_by_rho: dict[float, LinePar
             line = line_cascade(geo, params, "actual_plan", rs.shunt_capacitance)
             jobs = []
             if protected:
-                jobs.append(("protected", line))
+                jobs.append(("protected", line, state, "", m))
             if parallel and n_c == 2 and state == "in_service":
-                jobs.append(("parallel", swap_circuits(line)))
-            for faulted, ln in jobs:
-                for s_s, s_r, scales, labels, loaded in configs:
+                swapped = swap_circuits(line)
+                jobs.append(("parallel", swapped, state, "", m))
+                if sequential:
+                    jobs += [("parallel", swapped, open_state, bus, SEQUENTIAL_M)
+                             for open_state, bus in zip(network.OPEN_END_STATES, names,
+                                                        strict=True)]
+            emfs: dict = {}  # per (line, configuration): sequential clearing reuses them
+            for faulted, ln, solved_state, open_at, m_job in jobs:
+                for c, (s_s, s_r, scales, labels, loaded) in enumerate(configs):
+                    if open_at and (s_s is None or s_r is None):
+                        # Sequential clearing needs both sources: with one out, the
+                        # protected circuit carries no fault current or sees the fault
+                        # through both circuits (twice the line, no zone 1 concern).
+                        continue
                     if loaded and load:
-                        emf = load_emfs(env, ln, src, names, relay_end, scales, state,
-                                        geo.v_nominal_v)
+                        if (id(ln), c) not in emfs:
+                            emfs[id(ln), c] = load_emfs(env, ln, src, names, relay_end,
+                                                        scales, state, geo.v_nominal_v)
+                        emf = emfs[id(ln), c]
                         d = np.degrees(np.abs(np.angle(emf[0] / emf[1])))
                         max_angle = max(max_angle, float(np.max(d)))
                         emf_t = (emf[0], emf[1])
                     else:
                         emf_t = None
-                    for g in groups:
+                    # Sequential clearing: faults to ground only (lean: the zero-sequence
+                    # mutual coupling that makes it worst acts through the residual current;
+                    # phase faults on the parallel circuit are judged with both ends closed).
+                    for g in (groups if not open_at else
+                              [g for g in groups if g.name != "phase"]):
                         try:
                             sw = network.solve_fault_sweep(
                                 ln, s_s, s_r, v_nominal_v=geo.v_nominal_v,
-                                fault_types=g.fault_types, m=m,
+                                fault_types=g.fault_types, m=np.asarray(m_job),
                                 r_fault_ohm=g.rf_pairs[:, 0], r_phase_ohm=g.rf_pairs[:, 1],
                                 source_scale=scales, transfer_angle_rad=np.zeros(1),
-                                parallel_state=state, emf_v=emf_t, outputs=OUTPUTS)
+                                parallel_state=solved_state, emf_v=emf_t, outputs=OUTPUTS)
                         except InputError as exc:
                             raise exc.located(source=source) from None
                         run = Run(sw, faulted, state if n_c == 2 else "none", labels,
-                                  rho, (s_s is not None, s_r is not None), g.name)
+                                  rho, (s_s is not None, s_r is not None), g.name,
+                                  open_at=open_at)
                         runs.append(run if measure is None else measure(run))
                     all_names += [n for n in labels if n not in all_names]
+    if branches and protected:
+        runs += _branch_runs(study, geo, params_by_rho, env, names, src, configs, groups,
+                             relay_end, source, measure)
     return Simulation(names, geo.phase_labels[0], tuple(runs), n_c, mutual,
                       tuple(all_names), tuple(states) if n_c == 2 else ("none",),
                       tuple(sorted(params_by_rho)), max_angle)
+
+
+def _branch_runs(study, geo, params_by_rho, env, names, src, configs, groups, relay_end,
+                 source, measure) -> list[Run]:
+    """Faults along the lines leaving both buses (see :mod:`.branches`): one solve per
+    source configuration and fault group, every line point a location at its bus."""
+    from relayset.physics.sequence import balanced_phase_matrix
+    from relayset.studies.verification.branches import branch_lines
+
+    lines = branch_lines(study, source)
+    if not lines:
+        return []
+    info = tuple((b.bus, b.name, x) for b in lines for x in b.fractions)
+    m = np.array([0.0 if bus == names[0] else 1.0 for bus, _n, _x in info])
+    z1 = np.array([x * b.z1_ohm for b in lines for x in b.fractions])
+    z0 = np.array([x * b.z0_ohm for b in lines for x in b.fractions])
+    z_b = balanced_phase_matrix(z1, z0)
+    rho = float(study.system.earth_resistivity)
+    if rho not in params_by_rho:
+        rho = next(iter(params_by_rho))
+    params = params_by_rho[rho]
+    line = line_cascade(geo, params, "actual_plan", study.reach_study.shunt_capacitance)
+    out = []
+    # Lean (the benchmark's budget): every fault group with both circuits in service;
+    # with the parallel circuit out (the smallest infeed, for zone 2's grading and zone 3's
+    # coverage) bolted faults of every type.
+    bolted = FaultGroup("bolted", tuple(ft for g in groups for ft in g.fault_types),
+                        np.zeros((1, 2)))
+    states = network.PARALLEL_STATES if geo.n_circuits == 2 else ("in_service",)
+    for state in states:
+        for s_s, s_r, scales, labels, loaded in configs:
+            emf_t = None
+            if loaded:
+                emf = load_emfs(env, line, src, names, relay_end, scales, state,
+                                geo.v_nominal_v)
+                emf_t = (emf[0], emf[1])
+            for g in (groups if state == "in_service" else (bolted,)):
+                try:
+                    sw = network.solve_fault_sweep(
+                        line, s_s, s_r, v_nominal_v=geo.v_nominal_v,
+                        fault_types=g.fault_types, m=m, r_fault_ohm=g.rf_pairs[:, 0],
+                        r_phase_ohm=g.rf_pairs[:, 1], source_scale=scales,
+                        transfer_angle_rad=np.zeros(1), parallel_state=state, emf_v=emf_t,
+                        outputs=OUTPUTS, z_branch_ohm=z_b)
+                except InputError as exc:
+                    raise exc.located(source=source) from None
+                run = Run(sw, "branch", state if geo.n_circuits == 2 else "none", labels,
+                          rho, (s_s is not None, s_r is not None), g.name, branch=info)
+                out.append(run if measure is None else measure(run))
+    return out
