@@ -152,7 +152,10 @@ def test_verify_writes_only_its_own_names_in_a_private_folder(report, sandbox, c
     cwd, tmp, _ = sandbox
     code, cap = _verify(report, capsys)
     assert code == 0, cap.out
-    assert seen == [(["study.toml"], 0o700)]  # default philosophy: the installed one
+    # Default philosophy: the installed one; the demo's relay profile under verify's own
+    # name (never the name the PDF gives it).
+    assert [(sorted(names), mode) for names, mode in seen] == [
+        (["profile.toml", "study.toml"], 0o700)]
     assert _tree(cwd) == [] and _tree(tmp) == []
 
 

@@ -39,7 +39,7 @@ IGNORED = ("source_file", "relayset_version")
 #: chosen here, never taken from the PDF.
 STUDY_FILE = "study.toml"
 PHILOSOPHY_FILE = "philosophy.toml"
-#: ... and the embedded relay profile, where its own name is not a plain file name
+#: ... and the embedded relay profile
 PROFILE_FILE = "profile.toml"
 
 #: The labels the report prints before each SHA-256 (templates/report/report.html.j2).
@@ -223,10 +223,7 @@ def recompute(a: Archive) -> tuple[list[Check], str, object]:
             if pick is None:
                 return _not_recomputed("the embedded study names a relay profile, and the "
                                        "report embeds none")
-            name = pick[len(PROFILE_PREFIX):]
-            if not re.fullmatch(r"[A-Za-z0-9][A-Za-z0-9._-]{0,100}", name) or name in (
-                    STUDY_FILE, PHILOSOPHY_FILE):
-                name = PROFILE_FILE
+            name = PROFILE_FILE  # our own name: names inside the PDF decide nothing
             (folder / name).write_bytes(a.attachments[pick])
             try:
                 text = with_profile(text.decode("utf-8-sig"), str(folder / name)).encode()

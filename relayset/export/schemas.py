@@ -101,8 +101,8 @@ def _sha() -> dict[str, Any]:
 def results_schema() -> dict[str, Any]:
     """The results JSON (``relayset settings --json``, the report's ``.json``)."""
     profile = {"type": "object", "additionalProperties": False,
-               "required": ["name", "file", "sha256", "residual_compensation"],
-               "properties": {"name": _STR, "file": _STR, "sha256": _sha(),
+               "required": ["name", "sha256", "residual_compensation"],
+               "properties": {"name": _STR, "sha256": _sha(),
                               "residual_compensation": _STR}}
     end = {"type": "object", "required": ["end", "remote_end", "line", "k0", "zones"],
            "properties": {"end": _STR, "remote_end": _STR,

@@ -586,7 +586,7 @@ def _settable(st: dict[str, Any] | None) -> dict[str, Any] | None:
                      "step": num(v["step"], k), "direction": v["direction"],
                      "ok": v["in_range"] and v["on_grid"]})
     p = st["profile"]
-    return {"name": p["name"], "file": p["file"], "sha256": p["sha256"],
+    return {"name": p["name"], "sha256": p["sha256"],
             "form": p["residual_compensation"].replace("_", " "), "rows": rows}
 
 

@@ -138,9 +138,8 @@ class SettableValue:
 class SettableSettings:
     """The settable values of one relay end and the profile they follow."""
 
-    profile_name: str
-    profile_file: str  #: the file's name (no folders: the setting file travels)
-    profile_sha256: str
+    profile_name: str  #: the profile's own name; with its SHA-256 it identifies the profile
+    profile_sha256: str  #: (the file's path is the study's: input.relay.profile)
     residual_compensation: str
     values: tuple[SettableValue, ...]
 
@@ -152,8 +151,7 @@ class SettableSettings:
         raise KeyError(setting_id)
 
     def to_dict(self) -> dict[str, Any]:
-        return {"profile": {"name": self.profile_name, "file": self.profile_file,
-                            "sha256": self.profile_sha256,
+        return {"profile": {"name": self.profile_name, "sha256": self.profile_sha256,
                             "residual_compensation": self.residual_compensation},
                 "values": [v.to_dict() for v in self.values]}
 
@@ -275,7 +273,6 @@ def settable_settings(st: SettingsResult, profile: RelayProfile,
         The profile lacks a setting or a shape the settings need, or its nominal current is
         not the CT's (named in the profile).
     """
-    from pathlib import Path
 
     if ct_secondary_a is not None and not math.isclose(ct_secondary_a,
                                                        profile.nominal_current_a, rel_tol=1e-6):
@@ -305,5 +302,5 @@ def settable_settings(st: SettingsResult, profile: RelayProfile,
         out.append(replace(z, checks=(*z.checks, Check("within_profile_range", not bad,
                                                        detail))))
     return replace(st, zones=tuple(out), k0=k0, settable=SettableSettings(
-        profile.name, Path(profile.source).name, profile.sha256,
+        profile.name, profile.sha256,
         profile.residual_compensation, values))
