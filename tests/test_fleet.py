@@ -36,7 +36,11 @@ def _fleet(tmp_path: Path, names=FAST) -> Path:
     folder = tmp_path / "fleet"
     (folder / "north").mkdir(parents=True)
     for n in names:
-        shutil.copy(DEMO / n, folder / "north" / n)
+        # without the demo's relay profile (its steps are tested in test_export_settings):
+        # the register tests override the philosophy with shapes a profile may not offer
+        text = (DEMO / n).read_text("utf-8")
+        (folder / "north" / n).write_text("\n".join(
+            ln for ln in text.split("\n") if not ln.startswith("profile = ")), "utf-8")
     shutil.copytree(DEMO / "philosophies", folder / "north" / "philosophies")
     return folder
 
@@ -76,12 +80,13 @@ def test_folder_with_one_broken_study(tmp_path, capsys):
     res = pipeline.run(folder / "north" / FAST[0], settings=True)
     row = next(r for r in rows if r["line_id"] == "PR-KO-115")
     z1 = res.parameters.circuits[0].z1_ohm
+    # The register writes 12 significant digits (README): half a unit of the 12th digit.
     assert_allclose([float(row["z1_r_ohm"]), float(row["z1_x_ohm"])], [z1.real, z1.imag],
-                    rtol=1e-12, atol=0)
+                    rtol=5e-12, atol=0)
     s = res.settings[0]
     assert row["end"] == s.end
     assert_allclose(float(row["zone1_primary_ohm"]), abs(s.zone("zone1").reach_primary_ohm),
-                    rtol=1e-12, atol=0)
+                    rtol=5e-12, atol=0)
     assert row["input_sha256"] == res.source_sha256
     assert row["verification"] == "not verified" or row["verification"]
     assert (out / "PR-KO-115_rev0.json").is_file()

@@ -108,7 +108,13 @@ def test_attachments_are_the_inputs_and_the_results(demo_reports):
             assert rel[study.name] == "/Source" and rel[ph_path.name] == "/Source"
             assert rel[f"{r.stem}.results.json"] == "/Data"
             af = [str(x.objgen) for x in pdf.Root.AF]
-            assert len(af) == len(set(af)) == 3  # each associated file listed once
+            # study, philosophy, results; with a relay profile also the profile and each
+            # relay end's setting file
+            extra = 0
+            if d["input"].get("relay", {}).get("profile"):
+                extra = 1 + len(d["settings"]["ends"])
+                assert any(k.startswith("relay_profile.") for k in att), name
+            assert len(af) == len(set(af)) == 3 + extra  # each associated file listed once
 
 
 def test_pdfa_claim_metadata_and_structure(demo_reports, tmp_path):
