@@ -174,3 +174,29 @@ def test_flipped_byte_in_signed_range_is_not_intact(signed, tmp_path, capsys):
     for role in ("checked", "approved"):
         line = next(ln for ln in out.splitlines() if f"signature {role}" in ln)
         assert "FAIL" in line and "NOT intact" in line
+
+
+def test_a_report_with_failed_checks_cannot_be_signed_approved(tmp_path, capsys):
+    # Rule of this project: a report whose pages say "not approved for use" because checks
+    # failed must not carry an approval signature (README, signing). The 230 kV demo fails
+    # checks on purpose; "checked" may still be signed (the reviewer records the review).
+    pytest.importorskip("pyhanko")
+    pytest.importorskip("cryptography")
+    demo = "elsford_fallowby_230kv_double.toml"
+    folder = tmp_path / "study"
+    folder.mkdir()
+    (folder / demo).write_bytes((demo_lines_dir() / demo).read_bytes())
+    import shutil
+
+    shutil.copytree(demo_lines_dir() / "philosophies", folder / "philosophies")
+    assert main(["report", str(folder / demo), "-o", str(tmp_path / "out")]) == 3
+    pdf = next((tmp_path / "out").glob("*.pdf"))
+    ca = _ca(tmp_path / "ca")
+    out = tmp_path / "approved.pdf"
+    capsys.readouterr()
+    assert main(["sign", str(pdf), "--role", "approved", "--key", str(ca["approver.key"]),
+                 "--cert", str(ca["approver.pem"]), "-o", str(out)]) == 2
+    err = capsys.readouterr().err.strip()
+    assert len(err.splitlines()) == 1 and "failed check" in err and not out.exists()
+    assert main(["sign", str(pdf), "--role", "checked", "--key", str(ca["checker.key"]),
+                 "--cert", str(ca["checker.pem"]), "-o", str(out)]) == 0

@@ -188,6 +188,21 @@ def sign_report(src: Path, out: Path, *, role: str, key: Path, cert: Path,
         raise InputError(f"cannot be read ({exc.strerror})", source=str(src)) from None
     if data[:5] != b"%PDF-":
         raise InputError("is not a PDF", source=str(src))
+    if role == "approved":
+        # Approval is refused while the report carries failed checks (the report's one
+        # count: accepted deviations are not failures): its pages say "not approved for
+        # use", and a signature must not say otherwise.
+        from relayset.archive.pdf import read_archive
+        from relayset.report.failures import failed_checks
+
+        failed = failed_checks(read_archive(src, text=False).parsed)
+        if failed:
+            f = failed[0]
+            raise InputError(
+                f"cannot be signed: the report has {len(failed)} failed check(s) (first: "
+                f"{f.end} {f.zone} {f.check_id}); resolve them, or record each as an accepted "
+                "deviation in the study, and issue a new report", field="--role",
+                value=role, source=str(src))
     for what, p in (("--key", key), ("--cert", cert), *(("--chain", c) for c in chain or [])):
         if not Path(p).is_file():
             raise InputError("file does not exist", field=what, value=str(p),
