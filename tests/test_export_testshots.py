@@ -17,7 +17,7 @@ import re
 
 import numpy as np
 import pytest
-from hypothesis import given, settings
+from hypothesis import assume, given, settings
 from hypothesis import strategies as st
 from numpy.testing import assert_allclose
 
@@ -258,8 +258,12 @@ def _characteristics(draw):
         return Mho(draw(st.floats(0.5, 200)), ang, direction), theta
     tilt = math.radians(draw(st.floats(-10, 20)))
     delta = theta - math.radians(draw(st.floats(60, 120)))
-    return Quadrilateral(draw(st.floats(0.5, 200)), draw(st.floats(0.5, 200)), theta,
-                         r_left_ohm=draw(st.one_of(st.none(), st.floats(0, 100))),
+    x, r = draw(st.floats(0.5, 200)), draw(st.floats(0.5, 200))
+    # A valid shape: the tilted reactance line still above the R axis at the right blinder
+    # (the settings never tilt it further), and a left blinder of some width.
+    assume(x - r * math.tan(tilt) > 0.05 * x)
+    return Quadrilateral(x, r, theta,
+                         r_left_ohm=draw(st.one_of(st.none(), st.floats(0.1, 100))),
                          direction=direction, tilt_rad=tilt,
                          directional_angle_rad=draw(st.one_of(st.none(), st.just(delta)))
                          ), theta
