@@ -47,22 +47,21 @@ def study_philosophy(study: Study, source: str) -> Philosophy:
     return load_philosophy(path)
 
 
-def _lines_at(study: Study, relay_end: str, *, remote: bool, source: str
-              ) -> list[tuple[str, complex]]:
-    """Lines leaving the relay's remote bus (``remote``) or its own bus, as (name, Z1)."""
+def study_lines(study: Study, relay_end: str, source: str
+                ) -> list[tuple[str, str, complex, complex | None]]:
+    """Every line of ``adjacent_lines`` and ``lines_behind`` as (bus, name, Z1, Z0 or None)
+    [ohm]: Z1 (and Z0) as given, or from the line's own study file. A line without a bus is
+    at the relay's remote bus (adjacent) or its own (behind)."""
     from relayset.studies.pipeline import line_parameters
 
     names = study.ends
     other = names[1] if relay_end == names[0] else names[0]
-    want = other if remote else relay_end
     out = []
     for which, default_bus in (("adjacent_lines", other), ("lines_behind", relay_end)):
         for k, line in enumerate(getattr(study, which)):
             bus = line.bus or default_bus  # the bus rules are checked when the file is read
-            if bus != want:
-                continue
             if line.z1 is not None:
-                out.append((line.name, line.z1))
+                out.append((bus, line.name, line.z1, line.z0))
                 continue
             path = Path(line.study)
             if not path.is_absolute():
@@ -70,8 +69,18 @@ def _lines_at(study: Study, relay_end: str, *, remote: bool, source: str
             if not path.is_file():
                 raise InputError("adjacent line study file does not exist",
                                  field=f"{which}[{k}].study", value=line.study, source=source)
-            out.append((line.name, line_parameters(path).circuits[0].z1_ohm))
+            c = line_parameters(path).circuits[0]
+            out.append((bus, line.name, c.z1_ohm, c.z0_ohm))
     return out
+
+
+def _lines_at(study: Study, relay_end: str, *, remote: bool, source: str
+              ) -> list[tuple[str, complex]]:
+    """Lines leaving the relay's remote bus (``remote``) or its own bus, as (name, Z1)."""
+    names = study.ends
+    want = (names[1] if relay_end == names[0] else names[0]) if remote else relay_end
+    return [(name, z1) for bus, name, z1, _ in study_lines(study, relay_end, source)
+            if bus == want]
 
 
 @dataclass(frozen=True)

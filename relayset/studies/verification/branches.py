@@ -30,11 +30,9 @@ from __future__ import annotations
 
 import math
 from dataclasses import dataclass, replace
-from pathlib import Path
 
 import numpy as np
 
-from relayset.errors import InputError
 from relayset.inputs.study_file import Study
 
 #: Z0/Z1 of a line behind or beyond when the study gives no Z0 (common practice, no source).
@@ -59,27 +57,11 @@ class BranchLine:
 
 def _lines(study: Study, source: str) -> list[tuple[str, str, complex, complex | None]]:
     """(bus, name, Z1, Z0 or None) of every line of adjacent_lines and lines_behind."""
-    from relayset.studies.pipeline import line_parameters
+    from relayset.studies.settings import study_lines
 
     names = study.ends
     relay_end = study.relay.end if study.relay and study.relay.end in names else names[0]
-    other = names[1] if relay_end == names[0] else names[0]
-    out = []
-    for which, default_bus in (("adjacent_lines", other), ("lines_behind", relay_end)):
-        for k, line in enumerate(getattr(study, which)):
-            bus = line.bus or default_bus
-            if line.z1 is not None:
-                out.append((bus, line.name, line.z1, line.z0))
-                continue
-            path = Path(line.study)
-            if not path.is_absolute():
-                path = Path(source).parent / path
-            if not path.is_file():
-                raise InputError("adjacent line study file does not exist",
-                                 field=f"{which}[{k}].study", value=line.study, source=source)
-            c = line_parameters(path).circuits[0]
-            out.append((bus, line.name, c.z1_ohm, c.z0_ohm))
-    return out
+    return study_lines(study, relay_end, source)
 
 
 def branch_lines(study: Study, source: str) -> tuple[BranchLine, ...]:

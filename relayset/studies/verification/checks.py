@@ -486,23 +486,29 @@ def check_tolerance(tolerance_pct: float, source: str) -> float:
     return tolerance_pct
 
 
-def worst_remote_bus_scale(sim: Simulation, end: str, st: SettingsResult, model: RelayModel
-                           ) -> float | None:
-    """Smallest zone 1 reach scale of the simulated faults at the remote bus (None: none)."""
+def remote_bus_views(sim: Simulation, end: str, st: SettingsResult, model: RelayModel):
+    """What the relay at ``end`` measures for the simulated faults at its remote bus: one
+    view per run of the protected line that has a location there."""
     at_s = end == sim.names[0]
-    z1 = st.zone("zone1")
-    zl = abs(st.line_z1_primary_ohm)
     k0m = st.k0m if sim.mutual else None
-    theta = st.line_angle_rad
-    worst = math.inf
     for run in sim.runs:
         if run.faulted != "protected":
             continue
         bus = np.flatnonzero(np.isclose(run.sweep.m, 1.0 if at_s else 0.0))
-        if not bus.size:
-            continue
-        v = relay_view(run, at_s, st.k0.k0, k0m, model, line_angle=theta).at_locations(bus)
-        worst = min(worst, float(np.min(zone_scale(v, z1, theta, zl, model).scale)))
+        if bus.size:
+            yield relay_view(run, at_s, st.k0.k0, k0m, model,
+                             line_angle=st.line_angle_rad).at_locations(bus)
+
+
+def worst_remote_bus_scale(sim: Simulation, end: str, st: SettingsResult, model: RelayModel
+                           ) -> float | None:
+    """Smallest zone 1 reach scale of the simulated faults at the remote bus (None: none)."""
+    z1 = st.zone("zone1")
+    zl = abs(st.line_z1_primary_ohm)
+    worst = math.inf
+    for v in remote_bus_views(sim, end, st, model):
+        worst = min(worst, float(np.min(zone_scale(v, z1, st.line_angle_rad, zl,
+                                                   model).scale)))
     return worst if math.isfinite(worst) else None
 
 

@@ -24,6 +24,7 @@ from relayset.studies.verification.checks import (
     measure_for,
     measured_ends,
     relay_model_at,
+    remote_bus_views,
     resistive_targets,
     rf_mask,
     verification_grid,
@@ -253,17 +254,8 @@ def _remote_bus_points(sim: Simulation, end: str, st: SettingsResult, model: Rel
                        ) -> dict[bool, np.ndarray]:
     """Per kind of loop (True: ground), the apparent impedances [ohm] of every simulated
     fault at the remote bus that a loop released for it measures, seen forward."""
-    at_s = end == sim.names[0]
-    theta = st.line_angle_rad
-    k0m = st.k0m if sim.mutual else None
     out: dict[bool, list[np.ndarray]] = {True: [], False: []}
-    for run in sim.runs:
-        if run.faulted != "protected":
-            continue
-        bus = np.flatnonzero(np.isclose(run.sweep.m, 1.0 if at_s else 0.0))
-        if not bus.size:
-            continue
-        v = relay_view(run, at_s, st.k0.k0, k0m, model, line_angle=theta).at_locations(bus)
+    for v in remote_bus_views(sim, end, st, model):
         for loop in LOOPS:
             idx = v.meant[loop]
             if idx:
