@@ -30,6 +30,9 @@ def study_schema() -> dict[str, Any]:
     props = _tables(Study)
     props["schema"] = {"const": "relayset-study/1"}
     props["relay"] = {"type": "object", "properties": {"profile": _STR}}
+    from relayset.inputs.cable import json_schema as cables_schema
+
+    props["cables"] = cables_schema()
     return {"$schema": DRAFT, "$id": _BASE + "study.json", "title": "relayset study file",
             "type": "object", "required": ["schema", "study", "system", "line"],
             "properties": props, "additionalProperties": False}

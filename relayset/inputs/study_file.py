@@ -21,6 +21,7 @@ from typing import Any
 
 from relayset.errors import InputError, Written, WrittenFloat, quote, suggest, toml_key
 from relayset.inputs import limits, schema, units
+from relayset.inputs.cable import Cable, check_cables
 from relayset.inputs.schema import KeyRuleError, ListOf, MapOf, TupleOf, spec, table
 from relayset.inputs.toml_depth import nesting_depth
 
@@ -388,6 +389,7 @@ class Section:
     length: float = spec(LineLength)
     order: tuple[str, ...] | dict[str, tuple[str, ...]] = spec(_order)
     tower: str | None = spec(_text(100, min_len=1), None)
+    cable: str | None = spec(_text(100, min_len=1), None)  #: a [cables.NAME] (not overhead)
 
 
 @_table
@@ -741,6 +743,9 @@ class Study:
     towers: dict[str, Tower] = spec(MapOf(table(Tower), _text(100, min_len=1),
                                           max_items=limits.MAX_TOWERS, what="towers"),
                                     factory=dict)
+    cables: dict[str, Cable] = spec(MapOf(table(Cable), _text(100, min_len=1),
+                                          max_items=limits.MAX_TOWERS, what="cables"),
+                                    factory=dict)
     line: LineData = spec(table(LineData))
     relay: RelayData | None = spec(table(RelayData), None)
     sources: dict[str, SourceData] = spec(MapOf(table(SourceData), _text(100)), factory=dict)
@@ -984,6 +989,7 @@ def check_study(study: Study, data: dict, source: str) -> None:
                 fail("names no circuit" + suggest(key, names),
                      f"line.sections[{s}].order.{_key(key)}",
                      _raw(data, "line", "sections", s, "order", key))
+    check_cables(study, data, fail)
     _check_towers(study, data, fail)
     placed = [(f"circuits[{c}].positions[{k}]", ("circuits", c, "positions", k), pos)
               for c, circ in enumerate(study.circuits) for k, pos in enumerate(circ.positions)]
@@ -1120,6 +1126,8 @@ def _check_towers(study: Study, data: dict, fail: Callable[..., None]) -> None:
         fail("must list the sections, each with its tower, when the study has [towers.NAME] "
              "tables", "line.sections")
     for s, sec in enumerate(sections):
+        if sec.cable is not None:  # a cable section (relayset.inputs.cable)
+            continue
         if sec.tower is None:
             fail("is required: the study has [towers.NAME] tables (towers: "
                  + ", ".join(study.towers) + ")", f"line.sections[{s}].tower")

@@ -260,6 +260,7 @@ def _input_tables(r, d: dict[str, Any], u: dict[str, Any]) -> dict[str, Any]:
             "index": k + 1,
             "length": num(sec["length_km"] * u["km"], PRECISION["len"]),
             "order": " ".join(sec["order"]) + (f" (tower {sec['tower']})" if "tower" in sec
+                                               else f" (cable {sec['cable']})" if "cable" in sec
                                                else ""),
             "given": text(raw_sec.get("order", "")) if isinstance(raw_sec, dict) else "",
         })
@@ -283,6 +284,7 @@ def _input_tables(r, d: dict[str, Any], u: dict[str, Any]) -> dict[str, Any]:
         "fault_resistance": kv(raw.get("fault_resistance", {})),
         "adjacent": adjacent,
         "behind": behind,
+        "cables": [(str(k), kv(v)) for k, v in (raw.get("cables") or {}).items()],
     }
 
 
@@ -361,7 +363,29 @@ def _parameters(d: dict[str, Any], u: dict[str, Any]) -> dict[str, Any]:
         "seq_names": seq_names,
         "k0m": pnum(p["k0m"], P["pu"]) if p["k0m"] else None,
         "assumptions": list(p["assumptions"]),
+        "cables": _cables(p, u),
     }
+
+
+def _cables(p: dict[str, Any], u: dict[str, Any]) -> list[dict[str, Any]]:
+    """The cable sections' rows (templates/report/cables.html.j2), as the JSON holds them."""
+    k, P = u["per_km"], PRECISION
+    return [{
+        "name": c["name"],
+        "bonding": c["bonding"].replace("_", " "),
+        "return_paths": c["return_paths"],
+        "formation": c["formation"],
+        "depth": num(c["depth_m"], 2),
+        "length": num(c["length_km"] * u["km"], P["len"]),
+        "circuits": [{
+            "circuit": circ["circuit"],
+            "z1_per": cnum([z1[0] * k, z1[1] * k], P["ohm_per_len"]),
+            "z0_per": cnum([z0[0] * k, z0[1] * k], P["ohm_per_len"]),
+            "z1": cnum(z1s, P["ohm"]), "z0": cnum(z0s, P["ohm"]),
+        } for circ, z1, z0, z1s, z0s in zip(p["circuits"], c["z1_ohm_per_km"],
+                                            c["z0_ohm_per_km"], c["z1_ohm"], c["z0_ohm"],
+                                            strict=True)],
+    } for c in p.get("cables", [])]
 
 
 def _worst(w: dict[str, Any] | None) -> dict[str, str] | None:

@@ -147,6 +147,44 @@ class WirePosition:
 
 
 @dataclass(frozen=True)
+class CableSummary:
+    """A cable section's construction as computed: which tower index it is, its bonding and
+    the return paths assumed, and its sequence impedances (phases ideally transposed)."""
+
+    name: str
+    tower: int  #: index in LineParameters.tower_names
+    bonding: str
+    return_paths: str
+    formation: str
+    depth_m: float
+    spacing_m: float
+    length_m: float  #: total length of the sections on this cable
+    z1_ohm_per_m: tuple[complex, ...]  #: per circuit
+    z0_ohm_per_m: tuple[complex, ...]
+    c1_f_per_m: tuple[float, ...]
+
+    @property
+    def z1_ohm(self) -> tuple[complex, ...]:
+        """Per circuit, Z1 of all the sections on this cable [ohm]."""
+        return tuple(z * self.length_m for z in self.z1_ohm_per_m)
+
+    @property
+    def z0_ohm(self) -> tuple[complex, ...]:
+        """Per circuit, Z0 of all the sections on this cable [ohm]."""
+        return tuple(z * self.length_m for z in self.z0_ohm_per_m)
+
+    def to_dict(self) -> dict[str, Any]:
+        return {"name": self.name, "bonding": self.bonding, "return_paths": self.return_paths,
+                "formation": self.formation, "depth_m": self.depth_m,
+                "spacing_m": self.spacing_m, "length_km": self.length_m / 1e3,
+                "z1_ohm_per_km": [cplx(z, PER_KM) for z in self.z1_ohm_per_m],
+                "z0_ohm_per_km": [cplx(z, PER_KM) for z in self.z0_ohm_per_m],
+                "z1_ohm": [cplx(z) for z in self.z1_ohm],
+                "z0_ohm": [cplx(z) for z in self.z0_ohm],
+                "c1_nf_per_km": [c * 1e12 for c in self.c1_f_per_m]}
+
+
+@dataclass(frozen=True)
 class LineParameters:
     """Everything the line-parameter engine computed for one study."""
 
@@ -174,6 +212,11 @@ class LineParameters:
     section_towers: tuple[int, ...] = ()
     z_by_tower_ohm_per_m: tuple[np.ndarray, ...] = ()
     y_by_tower_s_per_m: tuple[np.ndarray, ...] = ()
+    cables: tuple[CableSummary, ...] = ()  #: the cable sections' constructions
+
+    def cable_at(self, k: int) -> CableSummary | None:
+        """The cable of tower index ``k`` (None: an overhead tower)."""
+        return next((c for c in self.cables if c.tower == k), None)
 
     def tower_sequence(self, k: int) -> tuple[tuple[complex, complex], ...]:
         """Per circuit (Z1, Z0) [ohm/m] of tower k's cross-section, phases ideally
@@ -191,7 +234,10 @@ class LineParameters:
         if not self.tower_names:
             return {}
         t = self.section_towers[k]
-        return {"tower": self.tower_names[t],
+        cable = self.cable_at(t)
+        where = ({"tower": self.tower_names[t]} if cable is None
+                 else {"cable": cable.name, "bonding": cable.bonding})
+        return {**where,
                 "z1_ohm_per_km": [cplx(z1, PER_KM) for z1, _ in self.tower_sequence(t)],
                 "z0_ohm_per_km": [cplx(z0, PER_KM) for _, z0 in self.tower_sequence(t)]}
 
@@ -245,4 +291,5 @@ class LineParameters:
             "arrangements": {k: a.to_dict() for k, a in self.arrangements.items()},
             "assumptions": list(self.assumptions),
             "wires": [w.to_dict() for w in self.wires],
+            **({"cables": [c.to_dict() for c in self.cables]} if self.cables else {}),
         }

@@ -54,6 +54,9 @@ class LineGeometry:
     tower_wires: tuple[tuple[Wire, ...], ...] = ()
     section_towers: tuple[int, ...] = ()
     tower_position_names: tuple[tuple[str, ...], ...] = ()  #: per tower, like position_names
+    #: Per tower: None (overhead) or its cable (relayset.inputs.cable.CableSection); the
+    #: cables come after the overhead towers, with no wires.
+    tower_cables: tuple = ()
 
 
 def _conductor_props(study: Study, name: str, source: str) -> dict:
@@ -113,14 +116,19 @@ def build_geometry(study: Study, source: str = "<study>") -> LineGeometry:
     ]
     assumptions.extend(study_warnings(study))
     if study.towers:
-        tower_names = tuple(dict.fromkeys(sec.tower for sec in study.line.sections))
+        tower_names = tuple(dict.fromkeys(sec.tower for sec in study.line.sections
+                                          if sec.cable is None))
+        cable_names = tuple(dict.fromkeys(sec.cable for sec in study.line.sections
+                                          if sec.cable is not None))
         crossings = [
             ([(f"towers.{toml_key(t)}.positions.{toml_key(c.name)}[{{k}}]",
                study.towers[t].positions[c.name]) for c in study.circuits],
              study.towers[t].shield_wires, f"towers.{toml_key(t)}.shield_wires[{{k}}]")
             for t in tower_names]
-        section_towers = tuple(tower_names.index(sec.tower) for sec in study.line.sections)
+        section_towers = tuple((tower_names + cable_names).index(sec.cable or sec.tower)
+                               for sec in study.line.sections)
     else:
+        cable_names = ()
         tower_names = ()
         crossings = [([(f"circuits[{c}].positions[{{k}}]", circ.positions)
                        for c, circ in enumerate(study.circuits)],
@@ -129,6 +137,10 @@ def build_geometry(study: Study, source: str = "<study>") -> LineGeometry:
     placed = [_place_wires(study, *cross, conductor, source) for cross in crossings]
     tower_wires = tuple(w for w, _ in placed)
     wires, position_names = placed[0]
+    from relayset.inputs.cable import constructions
+
+    cable_positions, cables, cable_notes = constructions(study, cable_names)
+    assumptions.extend(cable_notes)
     all_shields = [sw for _, sws, _ in crossings for sw in sws]
     if any(sw.grounding == "segmented" for sw in all_shields):
         assumptions.append(
@@ -140,7 +152,7 @@ def build_geometry(study: Study, source: str = "<study>") -> LineGeometry:
     if any(sw.grounding == "continuous" for sw in all_shields):
         assumptions.append("Continuously earthed shield wires are at zero voltage and are "
                            "eliminated by Kron reduction.")
-    if len(tower_names) > 1:
+    if len(tower_names) + len(cable_names) > 1:
         assumptions.append(
             "Sections of different tower types: each section's series impedance and shunt "
             "admittance from its own cross-section; the line's Z1 and Z0 (and k0) that the "
@@ -209,10 +221,12 @@ def build_geometry(study: Study, source: str = "<study>") -> LineGeometry:
         v_nominal_v=study.system.nominal_voltage,
         assumptions=tuple(assumptions),
         earth_layers=_earth_layers(study.system),
-        tower_names=tower_names,
-        tower_wires=tower_wires if tower_names else (),
-        tower_position_names=tuple(n for _, n in placed) if tower_names else (),
+        tower_names=tower_names + cable_names,
+        tower_wires=tower_wires + ((),) * len(cables) if tower_names else (),
+        tower_position_names=(tuple(n for _, n in placed) + cable_positions
+                              if tower_names else ()),
         section_towers=section_towers,
+        tower_cables=(None,) * len(tower_names) + cables if cables else (),
     )
 
 

@@ -18,6 +18,7 @@ from relayset.physics.sequence import (
 from relayset.results.parameters import (
     K0,
     Arrangement,
+    CableSummary,
     CircuitSequence,
     LineParameters,
     WirePosition,
@@ -66,6 +67,43 @@ def position_matrices(geo: LineGeometry, wires=None) -> tuple[np.ndarray, np.nda
     c_pos = shunt.bundle_reduce_capacitance(c_sub, groups)
     y_pos = 1j * 2 * math.pi * geo.frequency_hz * c_pos
     return 0.5 * (z_pos + z_pos.T), 0.5 * (y_pos + y_pos.T)
+
+
+def construction_matrices(geo: LineGeometry, k: int) -> tuple[np.ndarray, np.ndarray]:
+    """Series impedance [ohm/m] and shunt admittance [S/m] by position of tower ``k``: its
+    wires' (:func:`position_matrices`), or its buried cables' with the sheaths eliminated
+    by their bonding (:func:`relayset.physics.cable.cable_section_matrices`)."""
+    cable = geo.tower_cables[k] if geo.tower_cables else None
+    if cable is None:
+        return position_matrices(geo, geo.tower_wires[k])
+    from relayset.physics.cable import cable_section_matrices
+
+    return cable_section_matrices(
+        cable.design, cable.formation, cable.spacing_m, cable.depth_m, cable.bonding,
+        geo.frequency_hz, geo.resistivity_ohm_m, cable.n_circuits, cable.circuit_spacing_m)
+
+
+def _cable_summaries(geo: LineGeometry, z_towers, y_towers) -> tuple[CableSummary, ...]:
+    """Each cable's construction and its sequence impedances, phases ideally transposed."""
+    from relayset.physics.cable import RETURN_PATHS
+    from relayset.physics.sequence import to_sequence
+
+    out = []
+    for k, cable in enumerate(geo.tower_cables):
+        if cable is None:
+            continue
+        blocks = [(to_sequence(z_towers[k][3 * c:3 * c + 3, 3 * c:3 * c + 3]),
+                   to_sequence(y_towers[k][3 * c:3 * c + 3, 3 * c:3 * c + 3]))
+                  for c in range(geo.n_circuits)]
+        length = math.fsum(ln for ln, t in zip(geo.section_lengths_m, geo.section_towers,
+                                               strict=True) if t == k)
+        omega = 2 * math.pi * geo.frequency_hz
+        out.append(CableSummary(
+            cable.name, k, cable.bonding, RETURN_PATHS[cable.bonding], cable.formation,
+            cable.depth_m, cable.spacing_m, length,
+            tuple(complex(z[1, 1]) for z, _ in blocks), tuple(complex(z[0, 0]) for z, _ in blocks),
+            tuple(float(y[1, 1].imag) / omega for _, y in blocks)))
+    return tuple(out)
 
 
 def _block_sequence(m: np.ndarray, n_c: int) -> np.ndarray:
@@ -144,7 +182,8 @@ def compute_parameters(geo: LineGeometry) -> LineParameters:
     z_towers: tuple[np.ndarray, ...] = ()
     y_towers: tuple[np.ndarray, ...] = ()
     if len(geo.tower_names) > 1:
-        mats = [(z_pos, y_pos)] + [position_matrices(geo, w) for w in geo.tower_wires[1:]]
+        mats = [(z_pos, y_pos)] + [construction_matrices(geo, k)
+                                   for k in range(1, len(geo.tower_names))]
         z_towers = tuple(m[0] for m in mats)
         y_towers = tuple(m[1] for m in mats)
         for name, description in (
@@ -206,6 +245,7 @@ def compute_parameters(geo: LineGeometry) -> LineParameters:
     if n_c == 2 and plan.z0m_ohm_per_m is not None:
         k0m = plan.z0m_ohm_per_m / (3 * circuits[0].z1_ohm_per_m)
     labels = geo.phase_labels
+    cables = _cable_summaries(geo, z_towers, y_towers)
     section_orders = tuple(
         tuple(labels[i // 3][i % 3] for i in o) for o in geo.section_orders)
     conductors = tuple({w.conductor.name: w.conductor
@@ -227,6 +267,7 @@ def compute_parameters(geo: LineGeometry) -> LineParameters:
         section_towers=geo.section_towers,
         z_by_tower_ohm_per_m=z_towers,
         y_by_tower_s_per_m=y_towers,
+        cables=cables,
         arrangements=arrangements,
         circuits=tuple(circuits),
         k0m=k0m,
