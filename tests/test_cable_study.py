@@ -139,7 +139,7 @@ def test_cable_demo_report_and_json(tmp_path, demo_path):
     construction and carries the cable's sequence impedances."""
     out = tmp_path / "rep"
     code = main(["report", str(demo_path(DEMO)), "-o", str(out)])
-    assert code in (0, 1)
+    assert code == 0  # verified (with accepted deviations)
     html = next(out.glob("*.html")).read_text("utf-8")
     d = json.loads(next(out.glob("*.json")).read_text("utf-8"))
     p = d["parameters"]
