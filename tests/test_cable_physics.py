@@ -240,6 +240,11 @@ def test_trefoil_geometry():
     assert_allclose(dist, [0.1] * 3, rtol=1e-12, atol=0)
     assert_allclose([np.mean(x), np.mean(d)], [0.0, 1.0], rtol=0, atol=1e-12)
     assert names == ("left", "top", "right") and d[1] < d[0]
+    # Two circuits: the groups' centres circuit_spacing apart, the first on the left.
+    x2, d2, _ = cb.cable_positions("flat", 0.2, 1.0, 2, 1.5)
+    assert_allclose([x2[:3].mean(), x2[3:].mean()], [-0.75, 0.75], rtol=0, atol=1e-12)
+    assert_allclose(np.diff(x2[:3]), [0.2, 0.2], rtol=1e-12, atol=0)
+    assert_allclose(d2, 1.0, rtol=0, atol=0)
 
 
 @pytest.mark.parametrize("formation", ["trefoil", "flat"])

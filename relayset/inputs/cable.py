@@ -79,7 +79,7 @@ def _depth(v: Any) -> float:
         raise ValueError("must be greater than 0 m (a burial depth)")
     if x > MAX_DEPTH_M:
         raise ValueError(f"must be at most {MAX_DEPTH_M:g} m: deeper burial is implausible "
-                         "for a cable section (plausibility limit, common practice)")
+                         "for a cable section (plausibility limit: common practice, no source)")
     return x
 
 
