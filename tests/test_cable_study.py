@@ -205,3 +205,23 @@ def test_double_circuit_cable_needs_circuit_spacing(capsys, tmp_path, variant):
     err = capsys.readouterr().err.strip()
     assert code == 2 and len(err.splitlines()) == 1
     assert "cables.c.circuit_spacing" in err and "two circuits" in err
+
+
+def test_study_schema_covers_the_cable_tables(demo_path):
+    """`relayset schema study` describes [cables.NAME]: the demo validates (jsonschema, an
+    independent validator); a misspelt key or an unknown bonding does not."""
+    import tomllib
+
+    import jsonschema
+
+    from relayset.export.schemas import study_schema
+
+    schema = study_schema()
+    data = tomllib.loads(demo_path(DEMO).read_text("utf-8"))
+    jsonschema.validate(data, schema)
+    for edit in (lambda c: c.update(bonding="solid"), lambda c: c.update(burial_depth="1 m"),
+                 lambda c: c.pop("depth")):
+        bad = tomllib.loads(demo_path(DEMO).read_text("utf-8"))
+        edit(bad["cables"]["city_cable"])
+        with pytest.raises(jsonschema.ValidationError):
+            jsonschema.validate(bad, schema)
