@@ -451,12 +451,24 @@ def test_points_schema() -> dict[str, Any]:
 
 def export_test_cases(results, out_dir: Path, *, sample_rate_hz: float = 4000.0,
                       duration_s: float = 0.5) -> list[Path]:
-    """Write the test points (CSV, JSON) and the COMTRADE cases of every relay end.
+    """Write the test points and COMTRADE cases of every relay end (see
+    :func:`shot_and_case_files`; all or none, the user's umask)."""
+    from relayset import io
+
+    outputs = shot_and_case_files(results, out_dir, sample_rate_hz=sample_rate_hz,
+                              duration_s=duration_s)
+    io.write_all(outputs)
+    return [p for _, p, _ in outputs]
+
+
+def shot_and_case_files(results, out_dir: Path, *, sample_rate_hz: float = 4000.0,
+                    duration_s: float = 0.5) -> list[tuple[str, Path, bytes]]:
+    """The test points (CSV, JSON) and the COMTRADE cases of every relay end, formed, not
+    written: (kind, path, bytes) as :func:`relayset.io.write_all` takes them.
 
     Files: ``OUT/<end stem>-test-points.csv|json`` and
     ``OUT/comtrade/<end stem>/<shot or case id>.cfg|dat``, the end stem
-    ``<line id>_rev<revision>-end<N>-<end name's safe characters>``. All are formed first and then
-    written together (:func:`relayset.io.write_all`: all or none, the user's umask).
+    ``<line id>_rev<revision>-end<N>-<end name's safe characters>``.
 
     Parameters
     ----------
@@ -471,8 +483,8 @@ def export_test_cases(results, out_dir: Path, *, sample_rate_hz: float = 4000.0,
 
     Returns
     -------
-    list of pathlib.Path
-        The files written.
+    list of (str, pathlib.Path, bytes)
+        What each file is, where it goes, its bytes.
     """
     from relayset import io
     from relayset.export import comtrade
@@ -495,8 +507,7 @@ def export_test_cases(results, out_dir: Path, *, sample_rate_hz: float = 4000.0,
         for name, data in comtrade.render(cases, basis, sample_rate_hz=sample_rate_hz,
                                           duration_s=duration_s):
             outputs.append(("COMTRADE", folder / name, data))
-    io.write_all(outputs)
-    return [p for _, p, _ in outputs]
+    return outputs
 
 
 def report_tables(results) -> list[dict[str, Any]]:
