@@ -86,6 +86,7 @@ class CaseSolver:
 
     @cached_property
     def geo(self):
+        """The study's geometry (as the verification built it)."""
         from relayset.studies.geometry import build_geometry
 
         return build_geometry(self.study, self.source)
