@@ -324,3 +324,66 @@ def test_results_keys_of_another_version(archived, tmp_path, version, passes):
     assert "new in this version's results" in c.detail and "zone1_allowed" in c.detail
     assert "no longer in the results" in c.detail and "retired_quantity_pct" in c.detail
     assert "differ" not in c.detail.split(";")[0]
+
+
+def _one_byte(old: bytes, new: bytes):
+    """An edit of one byte: the first ``old`` (one byte) becomes ``new``."""
+    def edit(b: bytes) -> bytes:
+        k = b.index(old)
+        return b[:k] + new + b[k + 1:]
+    return edit
+
+
+def test_embedded_profile_and_setting_files_are_printed_and_verified(archived):
+    """The report prints the SHA-256 of its relay profile and of each setting file; verify
+    checks each against the page, the metadata and (profile) the results JSON, (setting
+    file) its own study and results SHA-256. Reference: hashlib."""
+    import hashlib
+
+    from relayset.archive.pdf import read_archive
+    from relayset.archive.verify import check_hashes
+
+    a = read_archive(archived)
+    names = sorted(n for n in a.attachments
+                   if n.startswith("relay_profile.") or n.endswith("_settings.json"))
+    assert len(names) == 2  # the demo's profile and its one relay end's setting file
+    checks = {c.what: c for c in check_hashes(a)}
+    for n in names:
+        h = hashlib.sha256(a.attachments[n]).hexdigest()
+        kind = "relay profile" if n.startswith("relay_profile.") else "setting file"
+        assert a.printed(f"SHA-256 of the {kind} {n}") == h  # printed on the page
+        assert h in a.metadata_hashes()
+        mine = [c for w, c in checks.items() if w.startswith(f"{kind} {n}")]
+        assert len(mine) >= 4 and all(c.passed is not False for c in mine)
+        assert any(c.passed is None and h in c.detail for c in mine)
+    assert not any("not checked by hash" in c.detail and (
+        "relay_profile." in w or "_settings.json" in w) for w, c in checks.items())
+
+
+@pytest.mark.parametrize("suffix, edit", [
+    # a digit of a value in the setting file (the pages re-rendered from the results stay
+    # the same: only the hash tells)
+    ("_settings.json", _one_byte(b'"value": 0', b'"value": 1')),
+    # a letter of the profile's comment (the settings recomputed stay the same)
+    (".toml", _one_byte(b"#", b";")),
+], ids=["setting file", "relay profile"])
+def test_one_byte_changed_in_an_embedded_file_fails_and_names_it(archived, tmp_path, capsys,
+                                                                 suffix, edit):
+    bad = tmp_path / "edited.pdf"
+    if suffix == ".toml":  # the profile, not the study
+        with pikepdf.open(archived) as pdf:
+            name = next(n for n in pdf.attachments if n.startswith("relay_profile."))
+            data = pdf.attachments[name].get_file().read_bytes()
+            pdf.attachments[name] = pikepdf.AttachedFileSpec(pdf, edit(data), filename=name)
+            pdf.save(bad)
+    else:
+        _edit_attachment(archived, bad, suffix, edit)
+        with pikepdf.open(bad) as pdf:
+            name = next(n for n in pdf.attachments if n.endswith(suffix))
+    v = verify_report(bad)
+    failed = [c.what for c in v.checks if c.passed is False]
+    named = [f for f in failed if name in f and "SHA-256 against the page text" in f]
+    assert named, failed
+    assert main(["verify", str(bad)]) == 1
+    out = capsys.readouterr().out
+    assert "DOES NOT MATCH" in out and f"FAIL {named[0]}" in out

@@ -301,3 +301,17 @@ def test_profile_not_fitting_the_study_exit_2(tmp_path, capsys, value, words):
     for w in words:
         assert w in err, err
     assert not out.exists()
+
+
+def test_export_writes_all_or_nothing(tmp_path, capsys):
+    # Every file of every study is formed before any is written (relayset.io.write_all):
+    # where the COMTRADE folder cannot be made (a file of that name is in the way), neither
+    # the results JSON nor the setting files appear.
+    study = _demo(tmp_path / "s")
+    out = tmp_path / "out"
+    out.mkdir()
+    (out / "comtrade").write_text("in the way")
+    assert main(["export", str(study), "-o", str(out)]) == 2
+    err = capsys.readouterr().err.strip()
+    assert len(err.splitlines()) == 1 and "Traceback" not in err, err
+    assert sorted(p.name for p in out.iterdir()) == ["comtrade"]

@@ -7,9 +7,14 @@ results JSON; the SHA-256 of the embedded results JSON against the value printed
 "SHA-256 of the results JSON". Each of these references is required: a reference that is
 missing fails the check, like one that differs. The PDF metadata (document information and
 XMP) is checked too: reports store both SHA-256 in their keywords; a PDF whose metadata
-carries none is said so in the verdict rather than passed silently. An embedded file for
-which the report carries no reference (the philosophy file) is named as not checked by
-hash; its content still meets the recomputation, which compares the philosophy applied.
+carries none is said so in the verdict rather than passed silently. The embedded relay
+profile and each relay end's setting file: their SHA-256 against the value printed after
+"SHA-256 of the relay profile NAME" / "SHA-256 of the setting file NAME" and against the
+metadata; the profile's also against the SHA-256 each end's settable values record in the
+results JSON, and each setting file's own ``study_sha256`` and ``results_sha256`` against
+the embedded study file and results JSON. An embedded file for which the report carries no
+reference (the philosophy file) is named as not checked by hash; its content still meets
+the recomputation, which compares the philosophy applied.
 
 Tolerance of the recomputation: a quantity still matches when
 ``|new - archived| <= ATOL + RTOL * |archived|``; RTOL = 1e-6 (six significant figures, far
@@ -42,9 +47,12 @@ PHILOSOPHY_FILE = "philosophy.toml"
 #: ... and the embedded relay profile
 PROFILE_FILE = "profile.toml"
 
-#: The labels the report prints before each SHA-256 (templates/report/report.html.j2).
+#: The labels the report prints before each SHA-256 (templates/report/report.html.j2);
+#: the profile's and each setting file's are followed by the file's embedded name.
 PRINTED_STUDY = "SHA-256 of the study file"
 PRINTED_RESULTS = "SHA-256 of the results JSON"
+PRINTED_PROFILE = "SHA-256 of the relay profile"
+PRINTED_SETTINGS = "SHA-256 of the setting file"
 
 
 @dataclass(frozen=True)
@@ -117,11 +125,83 @@ def check_hashes(a: Archive) -> list[Check]:
     else:
         checks.append(Check("PDF metadata", None, "carries no SHA-256 (document information "
                             "and XMP): nothing to check there"))
+    from relayset.export.setting_file import PROFILE_PREFIX, is_setting_attachment
+
     for name in sorted(a.attachments):
-        if name not in (study, a.results_name):
+        if name in (study, a.results_name):
+            continue
+        if not is_setting_attachment(name):
             checks.append(Check(f"embedded {name}", None, "the report carries no SHA-256 "
                                 "of it: not checked by hash (the recomputation uses it)"))
+            continue
+        profile = name.startswith(PROFILE_PREFIX)
+        checks += _embedded_checks(a, name, profile, results, meta, s_hash, r_hash)
     return checks
+
+
+def _embedded_checks(a: Archive, name: str, profile: bool, results: dict, meta: set[str],
+                     s_hash: str, r_hash: str) -> list[Check]:
+    """The relay profile or a setting file: its SHA-256 against the page text and the PDF
+    metadata; a profile's also against the results JSON (each end's settable values record
+    it), a setting file's own references against the study file and results JSON."""
+    got = _sha(a.attachments[name])
+    label = f"{'relay profile' if profile else 'setting file'} {name}"
+    printed = f"{PRINTED_PROFILE if profile else PRINTED_SETTINGS} {name}"
+    out = [Check(label, None, f"SHA-256 {got}"),
+           _against(label, got, a.printed(printed), f'the page text ("{printed}")')]
+    if meta:
+        out.append(Check(f"{label} SHA-256 against the PDF metadata", got in meta,
+                         "found" if got in meta else
+                         f"{got} is not among the {len(meta)} SHA-256 stored there"))
+    if profile:
+        recorded = _recorded_profile_hashes(results)
+        where = "the embedded results JSON (settings.ends[].settable.profile.sha256)"
+        if len(set(recorded)) > 1:
+            out.append(Check(f"{label} SHA-256 against {where}", False,
+                             "the ends record different profiles: " + ", ".join(recorded)))
+        else:
+            out.append(_against(label, got, recorded[0] if recorded else None, where))
+        return out
+    refs = _setting_file_references(a.attachments[name])
+    for key, want, what in (("study_sha256", s_hash, "study file"),
+                            ("results_sha256", r_hash, "results JSON")):
+        ref = refs.get(key)
+        if ref is None:
+            out.append(Check(f"{label}: its {key}", False, "missing: the setting file "
+                             "carries no such value"))
+        else:
+            out.append(Check(f"{label}: its {key}", ref == want,
+                             f"equal to the embedded {what}'s" if ref == want else
+                             f"differs: it gives {ref}, the embedded {what} is {want}"))
+    return out
+
+
+def _recorded_profile_hashes(results: dict) -> list[str]:
+    """The profile SHA-256 each relay end of the results JSON records (hostile JSON)."""
+    st = results.get("settings")
+    ends = st.get("ends") if isinstance(st, dict) else None
+    out = []
+    for e in ends if isinstance(ends, list) else []:
+        sv = e.get("settable") if isinstance(e, dict) else None
+        prof = sv.get("profile") if isinstance(sv, dict) else None
+        h = prof.get("sha256") if isinstance(prof, dict) else None
+        if isinstance(h, str) and h:
+            out.append(h)
+    return out
+
+
+def _setting_file_references(data: bytes) -> dict[str, str]:
+    """The SHA-256 a setting file records of its study and results (none if unreadable)."""
+    import json
+
+    try:
+        doc = json.loads(data.decode("utf-8"))
+    except (ValueError, UnicodeDecodeError, RecursionError):
+        return {}
+    if not isinstance(doc, dict):
+        return {}
+    return {k: v for k in ("study_sha256", "results_sha256")
+            if isinstance(v := doc.get(k), str)}
 
 
 def _toml_tables(data: bytes, name: str, source: str) -> dict:

@@ -174,18 +174,16 @@ def export(paths, out_dir: str | Path) -> tuple[list[Path], int]:
     (:func:`relayset.report.failures.failed_checks`, the report's one count).
     """
     from relayset import io
+    from relayset.export.testshots import shot_and_case_files
     from relayset.report.failures import failed_checks
     from relayset.studies import pipeline
 
     out = Path(out_dir)
     runs = [pipeline.run(p, settings=True) for p in paths]
-    outputs = []
+    outputs = []  # every file of every study formed first, then written together
     for res in runs:
         outputs += [("-o", out / name, data) for name, data in setting_files(res)]
+        outputs += shot_and_case_files(res, out)
     io.write_all(outputs)
-    written = [Path(p) for _, p, _ in outputs]
-    from relayset.export.testshots import export_test_cases
-
-    for res in runs:
-        written += list(export_test_cases(res, out))
-    return written, sum(len(failed_checks(r.to_dict())) for r in runs)
+    return [Path(p) for _, p, _ in outputs], sum(len(failed_checks(r.to_dict()))
+                                                 for r in runs)

@@ -195,6 +195,8 @@ class EndBasis:
     phase_labels: tuple[str, ...]
     #: the relay model's minimum operating current in each phase of a loop [A secondary]
     min_current_a: float = 0.0
+    #: mutual compensation of the relay (double circuit), None without
+    k0m: complex | None = None
 
 
 def end_bases(results) -> list[EndBasis]:
@@ -214,10 +216,13 @@ def end_bases(results) -> list[EndBasis]:
         model = ((results.verification.relay_model or {}).get(s.end, {})
                  if results.verification is not None else {})
         i_min = float(model.get("min_operating_current_secondary_a") or 0.0)
+        # as the verification's relay: k0m where the double circuit's relay compensates
+        mutual = len(study.circuits) == 2 and study.reach_study.mutual_compensation
         out.append(EndBasis(s.end, end_stem(n, s.end, doc_stem), s.secondary_factor,
                             results.parameters.v_nominal_v / (math.sqrt(3) * vt), i_test,
-                            float(ct), float(vt), results.relay.k0_set,
-                            results.parameters.frequency_hz, zs, labels, i_min))
+                            float(ct), float(vt), complex(s.k0.k0),
+                            results.parameters.frequency_hz, zs, labels, i_min,
+                            complex(s.k0m) if mutual and s.k0m is not None else None))
     return out
 
 
@@ -416,7 +421,14 @@ def test_points_schema() -> dict[str, Any]:
             "properties": {"id": {"type": "string", "pattern": "^[A-Za-z0-9._-]+$"},
                            "kind": {"enum": ["test shot", "governing case"]},
                            "description": {"type": "string"},
-                           "verification_case": {"type": "object"}}}
+                           "verification_case": {"type": "object"},
+                           "phasors_secondary": {
+                               "type": "object", "additionalProperties": False,
+                               "required": ["prefault_v", "prefault_i", "v", "i"],
+                               "properties": {
+                                   "prefault_v": phasors, "prefault_i": phasors,
+                                   "v": phasors, "i": phasors,
+                                   "in_parallel_prefault": pair, "in_parallel": pair}}}}
     return {
         "$schema": "https://json-schema.org/draft/2020-12/schema",
         "$id": "https://relayset.invalid/schemas/test-points.json",
@@ -439,12 +451,24 @@ def test_points_schema() -> dict[str, Any]:
 
 def export_test_cases(results, out_dir: Path, *, sample_rate_hz: float = 4000.0,
                       duration_s: float = 0.5) -> list[Path]:
-    """Write the test points (CSV, JSON) and the COMTRADE cases of every relay end.
+    """Write the test points and COMTRADE cases of every relay end (see
+    :func:`shot_and_case_files`; all or none, the user's umask)."""
+    from relayset import io
+
+    outputs = shot_and_case_files(results, out_dir, sample_rate_hz=sample_rate_hz,
+                              duration_s=duration_s)
+    io.write_all(outputs)
+    return [p for _, p, _ in outputs]
+
+
+def shot_and_case_files(results, out_dir: Path, *, sample_rate_hz: float = 4000.0,
+                    duration_s: float = 0.5) -> list[tuple[str, Path, bytes]]:
+    """The test points (CSV, JSON) and the COMTRADE cases of every relay end, formed, not
+    written: (kind, path, bytes) as :func:`relayset.io.write_all` takes them.
 
     Files: ``OUT/<end stem>-test-points.csv|json`` and
     ``OUT/comtrade/<end stem>/<shot or case id>.cfg|dat``, the end stem
-    ``<line id>_rev<revision>-end<N>-<end name's safe characters>``. All are formed first and then
-    written together (:func:`relayset.io.write_all`: all or none, the user's umask).
+    ``<line id>_rev<revision>-end<N>-<end name's safe characters>``.
 
     Parameters
     ----------
@@ -459,20 +483,21 @@ def export_test_cases(results, out_dir: Path, *, sample_rate_hz: float = 4000.0,
 
     Returns
     -------
-    list of pathlib.Path
-        The files written.
+    list of (str, pathlib.Path, bytes)
+        What each file is, where it goes, its bytes.
     """
     from relayset import io
     from relayset.export import comtrade
 
     out_dir = Path(out_dir)
     outputs: list[tuple[str, Path, bytes]] = []
+    solver = comtrade.case_solver(results)  # shared by the ends (line, sources, load flow)
     for basis, settings in zip(end_bases(results), results.settings or (), strict=True):
         shots = test_shots(settings, basis)
         outputs.append(("test points", out_dir / f"{basis.stem}-test-points.csv",
                         shots_csv(shots, basis.phase_labels)))
         cases = comtrade.shot_cases(shots, basis) + comtrade.governing_cases(
-            results, settings, basis)
+            results, settings, basis, solver)
         doc = shots_json(shots, basis, results)
         doc["comtrade"] = comtrade.manifest(cases, basis, sample_rate_hz=sample_rate_hz,
                                             duration_s=duration_s)
@@ -482,8 +507,7 @@ def export_test_cases(results, out_dir: Path, *, sample_rate_hz: float = 4000.0,
         for name, data in comtrade.render(cases, basis, sample_rate_hz=sample_rate_hz,
                                           duration_s=duration_s):
             outputs.append(("COMTRADE", folder / name, data))
-    io.write_all(outputs)
-    return [p for _, p, _ in outputs]
+    return outputs
 
 
 def report_tables(results) -> list[dict[str, Any]]:

@@ -102,6 +102,19 @@ def render_report(results, study_name: str, study_bytes: bytes,
 
     ctx = build_context(results, units=units, paper=paper, environ=environ,
                         results_json=results_json)
+    extra = []  # the relay profile and the setting files: their SHA-256 printed, verified
+    if profile is not None:
+        from relayset.export.setting_file import embedded_setting_files
+
+        extra.append(EmbeddedFile(profile[0], profile[1], DESCRIPTIONS["profile"], "Source"))
+        extra += [EmbeddedFile(name, data, DESCRIPTIONS["settings"], "Data")
+                  for name, data in embedded_setting_files(results, results_json,
+                                                           ctx["doc_id"])]
+    ctx["embedded_hashes"] = [
+        {"kind": "profile" if f is extra[0] else "settings", "name": f.name,
+         "sha256": hashlib.sha256(f.data).hexdigest()} for f in extra]
+    ctx["keywords"] += "".join(f", {h['name']} SHA-256 {h['sha256']}"
+                               for h in ctx["embedded_hashes"])
     html = render_html(ctx, study_bytes.decode("utf-8"))
     files = [
         EmbeddedFile(study_name, study_bytes, DESCRIPTIONS["study"], "Source"),
@@ -111,13 +124,7 @@ def render_report(results, study_name: str, study_bytes: bytes,
     if philosophy is not None:
         files.append(EmbeddedFile(philosophy[0], philosophy[1], DESCRIPTIONS["philosophy"],
                                   "Source"))
-    if profile is not None:
-        from relayset.export.setting_file import embedded_setting_files
-
-        files.append(EmbeddedFile(profile[0], profile[1], DESCRIPTIONS["profile"], "Source"))
-        files += [EmbeddedFile(name, data, DESCRIPTIONS["settings"], "Data")
-                  for name, data in embedded_setting_files(results, results_json,
-                                                           ctx["doc_id"])]
+    files += extra
     when = ctx["when"]  # the generation time the pages print, also the PDF's dates
     pdf = (pdf_renderer or html_to_pdf)(html, files, when)
     return ReportFiles(ctx["doc_id"], html, pdf, results_json, str(results.source_file),

@@ -6,7 +6,9 @@
   currents, mutual compensation and its supervision);
 - :mod:`.checks`: each requirement on each zone, its margin and governing case;
 - :mod:`.branches`: faults along the lines behind and beyond the line (radial), their checks;
-- :mod:`.closing`: settings closed by the simulation, then verified.
+- :mod:`.closing`: settings closed by the simulation, then verified;
+- :mod:`.replay`: one case of a verification solved again on its own (the network's
+  phasors at the relay, for the governing cases' COMTRADE files).
 """
 
 from relayset.studies.verification.checks import (

@@ -168,6 +168,23 @@ def _meant(model: RelayModel, fault_types) -> dict[str, list[int]]:
             for loop in LOOPS}
 
 
+def relay_quantities(run: Run, at_s: bool, *, behind: bool = False
+                     ) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
+    """The relay's bus voltages, its circuit's currents and the parallel circuit's currents
+    (F, M, Rf, K, L, 3) at S (``at_s``) or R in ``run`` (faults behind: at its own bus)."""
+    sw = run.sweep
+    if run.faulted == "parallel":
+        # The protected circuit is circuit 2 of the swapped line; its parallel is the faulted.
+        return ((sw.v_s, sw.i_s_parallel, sw.i_s) if at_s
+                else (sw.v_r, sw.i_r_parallel, sw.i_r))
+    if behind:
+        # A fault at the relay's own bus: the relay current is what arrives from the line.
+        return ((sw.v_s, -sw.i_f_from_r, sw.i_s_parallel) if at_s
+                else (sw.v_r, -sw.i_f_from_s, sw.i_r_parallel))
+    return ((sw.v_s, sw.i_s, sw.i_s_parallel) if at_s
+            else (sw.v_r, sw.i_r, sw.i_r_parallel))
+
+
 def view(run: Run, at_s: bool, k0: complex, k0m: complex | None, model: RelayModel, *,
          behind: bool = False, line_angle: float = math.radians(80.0),
          m_index: np.ndarray | None = None) -> View:
@@ -178,17 +195,7 @@ def view(run: Run, at_s: bool, k0: complex, k0m: complex | None, model: RelayMod
     """
     sw = run.sweep
     v_pre = sw.v_s_pre if at_s else sw.v_r_pre
-    if run.faulted == "parallel":
-        # The protected circuit is circuit 2 of the swapped line; its parallel is the faulted.
-        v, i, ip = ((sw.v_s, sw.i_s_parallel, sw.i_s) if at_s
-                    else (sw.v_r, sw.i_r_parallel, sw.i_r))
-    elif behind:
-        # A fault at the relay's own bus: the relay current is what arrives from the line.
-        v, i, ip = ((sw.v_s, -sw.i_f_from_r, sw.i_s_parallel) if at_s
-                    else (sw.v_r, -sw.i_f_from_s, sw.i_r_parallel))
-    else:
-        v, i, ip = ((sw.v_s, sw.i_s, sw.i_s_parallel) if at_s
-                    else (sw.v_r, sw.i_r, sw.i_r_parallel))
+    v, i, ip = relay_quantities(run, at_s, behind=behind)
     m = sw.m
     if m_index is not None:
         v, i, ip, m = v[:, m_index], i[:, m_index], ip[:, m_index], m[m_index]
