@@ -174,6 +174,9 @@ class LineParameters:
     section_towers: tuple[int, ...] = ()
     z_by_tower_ohm_per_m: tuple[np.ndarray, ...] = ()
     y_by_tower_s_per_m: tuple[np.ndarray, ...] = ()
+    #: A neighbouring line in a shared corridor
+    #: (:class:`relayset.results.corridor.NeighbourParameters`), or None.
+    neighbour: Any = None
 
     def tower_sequence(self, k: int) -> tuple[tuple[complex, complex], ...]:
         """Per circuit (Z1, Z0) [ohm/m] of tower k's cross-section, phases ideally
@@ -245,4 +248,5 @@ class LineParameters:
             "arrangements": {k: a.to_dict() for k, a in self.arrangements.items()},
             "assumptions": list(self.assumptions),
             "wires": [w.to_dict() for w in self.wires],
+            **({} if self.neighbour is None else {"neighbour": self.neighbour.to_dict()}),
         }
