@@ -196,3 +196,31 @@ def test_double_circuit_with_neighbour_is_refused():
                                sources={}, sections=[0])]
     with pytest.raises(InputError, match="single-circuit line only"):
         parse_study(tomllib.loads(dump_toml(data)), "t.toml")
+
+
+def test_study_schema_covers_the_neighbour_table():
+    # Checked with the registry's jsonschema (Draft 2020-12 validator): the demo with a
+    # neighbour validates; a misspelt key in [[neighbours]] and a second neighbour do not.
+    import jsonschema
+
+    from relayset.export.schemas import study_schema
+
+    schema = study_schema()
+    jsonschema.Draft202012Validator.check_schema(schema)
+    data = json_ready(tables())
+    jsonschema.Draft202012Validator(schema).validate(data)
+    bad = json_ready(tables())
+    bad["neighbours"][0]["route_lenghts"] = ["1 km", "2 km"]
+    with pytest.raises(jsonschema.ValidationError):
+        jsonschema.Draft202012Validator(schema).validate(bad)
+    two = json_ready(tables())
+    two["neighbours"] *= 2
+    with pytest.raises(jsonschema.ValidationError):
+        jsonschema.Draft202012Validator(schema).validate(two)
+
+
+def json_ready(data):
+    """TOML tables as JSON would carry them (dates as text)."""
+    import json
+
+    return json.loads(json.dumps(data, default=str))
