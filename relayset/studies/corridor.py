@@ -113,6 +113,20 @@ def corridor_cascade(geo, params, plan: str, shunt: bool) -> network.LineCascade
     return network.LineCascade(np.stack(zs), np.array(lens), np.stack(ys) if shunt else None)
 
 
+#: Points of the shared stretch at which the verification faults the neighbour, as
+#: fractions of it (both ends of the stretch included; common practice, no source: the
+#: coupling's effect on the protected line's relays varies smoothly along it).
+NEIGHBOUR_FAULT_POINTS = (0.0, 0.25, 0.5, 0.75, 1.0)
+
+
+def neighbour_fault_locations(geo, m: np.ndarray) -> np.ndarray:
+    """Fault locations on the neighbour [1 of the protected line from its from-end]: the
+    :data:`NEIGHBOUR_FAULT_POINTS` of the shared stretch."""
+    cor = geo.corridor
+    a, b = cor.start_m / geo.length_m, cor.end_m / geo.length_m
+    return np.clip(a + (b - a) * np.array(NEIGHBOUR_FAULT_POINTS), 0.0, 1.0)
+
+
 def protected_part(line: network.LineCascade) -> network.LineCascade:
     """The protected circuit alone (the load flow's line: the neighbour's positive-sequence
     coupling is negligible and its own buses carry its load)."""
