@@ -224,3 +224,26 @@ def json_ready(data):
     import json
 
     return json.loads(json.dumps(data, default=str))
+
+
+@pytest.mark.parametrize(("change", "message"), BAD[:4])
+def test_bad_neighbour_on_the_command_line(change, message, capsys, tmp_path):
+    # The real command line: exit 2, one line naming the file, nothing written.
+    from relayset.cli import main
+
+    data = tables()
+    nb = data["neighbours"][0]
+    for k, v in change.items():
+        if v is None:
+            nb.pop(k)
+        else:
+            nb[k] = v
+    path = tmp_path / "bad.toml"
+    path.write_text(dump_toml(data))
+    out = tmp_path / "out"
+    code = main(["report", str(path), "-o", str(out)])
+    err = capsys.readouterr().err.strip()
+    assert code == 2
+    assert len(err.splitlines()) == 1 and "Traceback" not in err
+    assert f"{path}: " in err and message in err, err
+    assert not out.exists() or not any(out.iterdir())
