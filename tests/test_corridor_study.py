@@ -247,3 +247,18 @@ def test_bad_neighbour_on_the_command_line(change, message, capsys, tmp_path):
     assert len(err.splitlines()) == 1 and "Traceback" not in err
     assert f"{path}: " in err and message in err, err
     assert not out.exists() or not any(out.iterdir())
+
+
+def test_frames_name_the_neighbour_state():
+    # The DataFrames read to_dict(): each row of a corridor study says the neighbour's
+    # state, so the three solves of the actual plan stay apart.
+    data = quick(tables())
+    _, res = reach(data)
+    worst = res.to_frame()
+    assert "neighbour_state" in worst.columns
+    assert set(worst["neighbour_state"]) == {"in_service", "earthed", "isolated"}
+    from relayset.frames import reach_errors_frame
+
+    env = reach_errors_frame(res)
+    n = env.groupby(["arrangement", "neighbour_state"]).size()
+    assert len(n) == 5  # three arrangements in service, the actual plan out twice
