@@ -323,10 +323,9 @@ def _place_neighbour(study: Study, corridor, tower_wires, section_towers, conduc
             raise InputError("conductor would be at or below ground (mean height = height - "
                              "2/3 sag must exceed the conductor radius)",
                              field=w.field, value=f"mean height {w.y_m:.3f} m", source=source)
-    for t in towers:
-        others = list(tower_wires[t]) + out
+    for t in towers:  # clear of the protected line's wires and of each other
         for i, a in enumerate(out):
-            for b in others[:len(tower_wires[t])] + out[i + 1:]:
+            for b in [*tower_wires[t], *out[i + 1:]]:
                 d = math.hypot(a.x_m - b.x_m, a.y_m - b.y_m)
                 if d <= a.conductor.radius_m + b.conductor.radius_m + _MIN_CLEARANCE_M:
                     raise InputError(f"overlaps {b.label} ({b.field}); centres {d:.3f} m apart",
