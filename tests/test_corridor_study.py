@@ -262,3 +262,27 @@ def test_frames_name_the_neighbour_state():
     env = reach_errors_frame(res)
     n = env.groupby(["arrangement", "neighbour_state"]).size()
     assert len(n) == 5  # three arrangements in service, the actual plan out twice
+
+
+def test_neighbour_beside_sections_of_different_towers():
+    # A neighbour beside part of a line of two tower types: the coincidence rule looks at
+    # the towers of the shared stretch only, and the coupled stretch may cut a section.
+    data = tables(DEMO / "harlow_quay_tessmoor_132kv_towers.toml")
+    ends = (data["study"]["from_substation"], data["study"]["to_substation"])
+    pos = [{"name": n, "x": "1.9 m", "height": h, "sag": "3 m", "conductor": "phase"}
+           for n, h in (("a", "26 m"), ("b", "33 m"), ("c", "40 m"))]  # a: as the pole's top
+    data["neighbours"] = [{"name": "N", "positions": pos, "sections": [1, 2],
+                           "buses": list(ends)}]  # beside the lattice sections only
+    data = quick(data)
+    params, res = reach(data)
+    assert params.neighbour.towers == (1,)
+    assert params.neighbour.shared_length_m == pytest.approx(44e3)
+    data["neighbours"][0]["sections"] = [0, 1]  # now beside the pole too
+    with pytest.raises(InputError, match=r"positions\[0\]\.x.*coincides with the protected "
+                       r"line's conductor at towers\.compact_pole"):
+        parse_study(tomllib.loads(dump_toml(data)), "t.toml")
+    data["neighbours"][0].pop("sections")
+    data["neighbours"][0].update(start="10 km", length="30 km")  # cuts sections 1 and 2
+    params, res = reach(data)
+    assert params.neighbour.shared_length_m == pytest.approx(30e3)
+    assert [a.neighbour_state for a in res.ends[0].arrangements].count("earthed") == 1

@@ -75,6 +75,21 @@ def corridor_of(study: Study) -> Corridor | None:
         route_z0_ohm_per_m=nb.route_z0, sources=dict(nb.sources), table=nb)
 
 
+def _shared_towers(study: Study, j: int) -> set[str]:
+    """The towers of the sections neighbour ``j`` runs beside (its stretch already checked
+    to lie on the line)."""
+    secs = study.line.sections or ()
+    nb = study.neighbours[j]
+    if nb.sections is not None:
+        return {secs[k].tower for k in nb.sections if k < len(secs)}
+    edges = [0.0]
+    for sec in secs:
+        edges.append(edges[-1] + sec.length)
+    start, end = nb.start, nb.start + nb.length
+    return {sec.tower for k, sec in enumerate(secs)
+            if edges[k + 1] > start and edges[k] < end}
+
+
 def check_neighbours(study: Study, data: dict, fail: Callable[..., None]) -> None:
     """The rules of ``[[neighbours]]`` that tie it to the rest of the study; ``fail(rule,
     field, value)`` raises the one-line error."""
@@ -107,12 +122,14 @@ def check_neighbours(study: Study, data: dict, fail: Callable[..., None]) -> Non
                 fail(f"the shared stretch would end {_in_users_unit(end, raw('length'))} from "
                      f"{quote(ends[0])}, beyond the line's end ({raw_len}); it must lie on "
                      "the line", f"{at}.length", raw("length"))
-        # Its conductors must hang somewhere else than the protected line's.
+        # Its conductors must hang somewhere else than the protected line's (on the towers
+        # of the stretch it shares).
         own = [(f"circuits[0].positions[{k}]", p) for k, p in
                enumerate(study.circuits[0].positions)]
+        shared = _shared_towers(study, j)
         own += [(f"towers.{toml_key(t)}.positions.{toml_key(c)}[{k}]", p)
-                for t, tw in study.towers.items() for c, ps in tw.positions.items()
-                for k, p in enumerate(ps)]
+                for t, tw in study.towers.items() if t in shared
+                for c, ps in tw.positions.items() for k, p in enumerate(ps)]
         for k, p in enumerate(nb.positions):
             for field, q in own:
                 if math.hypot(p.x - q.x, p.mean_height_m - q.mean_height_m) < COINCIDENT_M:
