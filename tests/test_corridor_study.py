@@ -87,15 +87,18 @@ def test_neighbour_far_away_gives_the_single_circuit():
     assert far.ends[0].recommended_zone1_pct == alone.ends[0].recommended_zone1_pct
 
 
-def test_neighbour_on_the_same_towers_and_buses_is_the_double_circuit():
+@pytest.mark.parametrize("shunt", [False, True])
+def test_neighbour_on_the_same_towers_and_buses_is_the_double_circuit(shunt):
     # Identity: a neighbour on the protected line's towers (the other circuit's
     # positions) over the whole route, both ends on the line's buses, no route outside:
-    # the double-circuit line with its parallel circuit in service. Series impedance only
-    # and transfer angles (the double circuit's load flow and shunt capacitance see both
-    # circuits; the corridor's see the protected one). Tolerance 1e-9 percentage points.
+    # the double-circuit line with its parallel circuit in service, with or without shunt
+    # capacitance (the same 6x6 matrices). Load cases as transfer angles (a power flow's
+    # load flow sees both circuits of a double circuit, the protected one of a corridor).
+    # Tolerance 1e-9 percentage points of reach (rounding).
     double = tables(DEMO / "elsford_fallowby_230kv_double.toml")
     double["reach_study"] = {"location_step_pct": 5.0, "fault_resistances": ["0 ohm", "10 ohm"],
-                             "mutual_compensation": False, "parallel_circuit": "in_service"}
+                             "mutual_compensation": False, "parallel_circuit": "in_service",
+                             "shunt_capacitance": shunt}
     double["line"] = {"length": double["line"]["length"]}  # one section
     double.pop("towers", None)
     load = double.get("load")
