@@ -644,7 +644,9 @@ def verify_settings(study: Study, geo: LineGeometry, params_by_rho: dict[float, 
         "line; margins are in % of the zone's forward reach.",
         *(f"At {end}: " + mdl.describe(sim.mutual) for end, mdl in models.items()),
         *env.describe(),
-        f"Envelope: {len(sim.states)} parallel-circuit state(s) × {len(sim.case_names)} "
+        f"Envelope: {len(sim.states)} "
+        f"{'neighbouring-line' if geo.corridor is not None else 'parallel-circuit'} "
+        f"state(s) × {len(sim.case_names)} "
         f"source case(s) × {env.n_load_cases} load case(s) × "
         f"{len(env.resistivities_ohm_m)} earth resistivit(ies), {n_cases:,} fault cases "
         f"solved; largest transfer angle {sim.max_transfer_angle_deg:.1f}°.",
