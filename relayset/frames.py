@@ -69,8 +69,20 @@ def parameters_frame(params: LineParameters) -> pd.DataFrame:
 
 
 def _arrangement_keys(end: str, a: dict[str, Any]) -> dict[str, Any]:
-    return {"end": end, "arrangement": a["arrangement"], "solved_as": a["solved_as"],
+    keys = {"end": end, "arrangement": a["arrangement"], "solved_as": a["solved_as"],
             "mutual_compensation": a["mutual_compensation"]}
+    if "neighbour_state" in a:  # a shared corridor: the neighbouring line's state
+        keys["neighbour_state"] = a["neighbour_state"]
+    return keys
+
+
+def _with_state(columns: list[str], reach) -> list[str]:
+    """The columns, with the neighbouring line's state after the arrangement's keys when the
+    study has a shared corridor."""
+    if getattr(reach, "neighbour", None) is None:
+        return columns
+    k = columns.index("mutual_compensation") + 1
+    return [*columns[:k], "neighbour_state", *columns[k:]]
 
 
 _ENVELOPE_KEYS = ["end", "arrangement", "solved_as", "mutual_compensation"]
@@ -94,7 +106,7 @@ def reach_errors_frame(reach: ReachStudyResult) -> pd.DataFrame:
     for end in reach.ends:
         for a in end.to_dict()["arrangements"]:
             rows.extend(_envelope_rows(a, _arrangement_keys(end.end, a)))
-    return _frame(rows, [*_ENVELOPE_KEYS, *_ENVELOPE_COLUMNS])
+    return _frame(rows, _with_state([*_ENVELOPE_KEYS, *_ENVELOPE_COLUMNS], reach))
 
 
 def envelope_frame(arrangement: ArrangementReach) -> pd.DataFrame:
@@ -121,7 +133,10 @@ def worst_cases_frame(reach: ReachStudyResult | EndReach) -> pd.DataFrame:
                     if extreme != "loop" and case is not None:
                         rows.append({**keys, "loop": lp["loop"], "extreme": extreme,
                                      **case, "positions": "/".join(case["positions"])})
-    return _frame(rows, _WORST_COLUMNS)
+    corridor = any("neighbour_state" in r for r in rows)
+    return _frame(rows, _with_state(_WORST_COLUMNS, reach) if hasattr(reach, "ends")
+                  else [*_WORST_COLUMNS[:4], "neighbour_state", *_WORST_COLUMNS[4:]]
+                  if corridor else _WORST_COLUMNS)
 
 
 def _ends(settings: SettingsResult | tuple[SettingsResult, ...]) -> tuple[SettingsResult, ...]:

@@ -98,6 +98,8 @@ def solve_fault_single(
     parallel_state: str = "in_service",
     emf_v: tuple[complex, complex] | None = None,
     z_branch_ohm: np.ndarray | None = None,
+    neighbour: tuple | None = None,
+    fault_circuit: int = 1,
 ) -> FaultCase:
     """Solve one fault case by plain modified nodal analysis [3]_ (reference for tests).
 
@@ -111,6 +113,11 @@ def solve_fault_single(
     Parameters are those of :func:`~relayset.physics.network.solve_fault_sweep` for one
     case (scalars); ``z_branch_ohm`` (3, 3) is a series branch stamped as its nodal
     admittance between the fault point and three extra nodes where the fault sits.
+    ``neighbour`` (one :class:`~relayset.physics.network.NeighbourEnd` per end): circuit
+    2 is a line on buses of its own, stamped as a coupled route branch (V_from - V_to =
+    Z I) from its bus (the line's bus, a bus of its own behind its source with the EMF of
+    the line's source at that end, or ground when earthed) to the line's end nodes;
+    ``fault_circuit`` 2 faults circuit 2.
 
     Returns
     -------
@@ -147,6 +154,13 @@ def solve_fault_single(
     bus_s, bus_r = n_line, n_line + 3
     n_nodes = n_line + 6 + (3 if z_branch_ohm is not None else 0)
     branch_nodes = [n_line + 6 + c for c in range(3)]
+    nb_bus = {}  # end -> first node of the neighbour's own bus
+    if neighbour is not None:
+        for end, nb in enumerate(neighbour):
+            if (parallel_state == "in_service" and not nb.on_line_bus
+                    and nb.source is not None):
+                nb_bus[end] = n_nodes
+                n_nodes += 3
 
     def node(j: int, c: int) -> int:
         return j * n + c
@@ -167,7 +181,26 @@ def solve_fault_single(
         add_ammeter("s1", [bus_s + c for c in range(3)], [node(0, c) for c in range(3)])
     if parallel_state != "faulted_open_at_r":
         add_ammeter("r1", [bus_r + c for c in range(3)], [node(last, c) for c in range(3)])
-    if n == 6:
+    routes = []  # (first branch index, 3x3 impedance)
+
+    def add_route(key: str, frm: list[int], to: list[int], z_route: np.ndarray) -> None:
+        routes.append((len(branches), np.asarray(z_route, dtype=complex)))
+        add_ammeter(key, frm, to)
+
+    if n == 6 and neighbour is not None:
+        for end, (key, j) in enumerate((("s2", 0), ("r2", last))):
+            nb = neighbour[end]
+            to = [node(j, 3 + c) for c in range(3)]
+            line_bus = (bus_s, bus_r)[end]
+            if parallel_state == "in_service" and nb.on_line_bus:
+                add_route(key, [line_bus + c for c in range(3)], to, nb.z_route_ohm)
+            elif end in nb_bus:
+                add_route(key, [nb_bus[end] + c for c in range(3)], to, nb.z_route_ohm)
+            elif parallel_state == "earthed":
+                add_route(key, [-1] * 3, to, nb.z_route_ohm)
+            elif end == 0 and y is None:  # floating, series only: tie it (no current path)
+                add_ammeter(key, [-1] * 3, to)
+    elif n == 6:
         if parallel_state in ("in_service", "faulted_open_at_s", "faulted_open_at_r"):
             add_ammeter("s2", [bus_s + c for c in range(3)], [node(0, 3 + c) for c in range(3)])
             add_ammeter("r2", [bus_r + c for c in range(3)],
@@ -181,6 +214,8 @@ def solve_fault_single(
     for bus, source, k, emf in ((bus_s, source_s, 0, e_s), (bus_r, source_r, 1, e_r)):
         if source is not None:
             src.append((bus, source.phase_matrix(scale[k]), emf))
+        if k in nb_bus:  # the neighbour's own source: not scaled, the same EMF
+            src.append((nb_bus[k], neighbour[k].source.phase_matrix(), emf))
     n_unk = n_nodes + n_amm + 3 * len(src) + 3
     mat = np.zeros((n_unk, n_unk), dtype=complex)
     rhs = np.zeros(n_unk, dtype=complex)
@@ -202,6 +237,9 @@ def solve_fault_single(
         mat[t_, row] -= 1.0
         mat[row, t_] += 1.0
         row += 1
+    for first, z_route in routes:  # V_from - V_to = Z I: V_to - V_from + Z I = 0
+        rr = [n_nodes + first + c for c in range(3)]
+        mat[np.ix_(rr, rr)] += z_route
     src_rows = []
     for bus, zsrc, emf in src:
         cols = list(range(row, row + 3))
@@ -212,7 +250,8 @@ def solve_fault_single(
         mat[np.ix_(cols, cols)] = zsrc
         rhs[cols] = emf
         row += 3
-    f_nodes = [node(j_f, c) for c in range(3)]
+    off = 3 * (fault_circuit - 1)
+    f_nodes = [node(j_f, off + c) for c in range(3)]
     v_nodes = f_nodes  # the line point (v_f)
     if z_branch_ohm is not None:
         yb = np.linalg.inv(np.asarray(z_branch_ohm, dtype=complex))
@@ -236,8 +275,9 @@ def solve_fault_single(
         idx = [node(j, c) for c in range(n)] + [node(j + 1, c) for c in range(n)]
         return seg_y[j] @ volt[idx]  # into the segment at its S end (:n) and R end (n:)
 
-    i_from_s = -seg_currents(j_f - 1)[n:n + 3] if j_f > 0 else current("s1")
-    i_from_r = -seg_currents(j_f)[:3] if j_f < last else current("r1")
+    end_s, end_r = ("s1", "r1") if fault_circuit == 1 else ("s2", "r2")
+    i_from_s = -seg_currents(j_f - 1)[n + off:n + off + 3] if j_f > 0 else current(end_s)
+    i_from_r = -seg_currents(j_f)[off:off + 3] if j_f < last else current(end_r)
     return FaultCase(
         v_s=volt[bus_s:bus_s + 3],
         i_s=current("s1"),

@@ -33,9 +33,29 @@ def study_schema() -> dict[str, Any]:
     from relayset.inputs.cable import json_schema as cables_schema
 
     props["cables"] = cables_schema()
+    props["neighbours"] = _neighbours()
     return {"$schema": DRAFT, "$id": _BASE + "study.json", "title": "relayset study file",
             "type": "object", "required": ["schema", "study", "system", "line"],
             "properties": props, "additionalProperties": False}
+
+
+def _neighbours() -> dict[str, Any]:
+    """``[[neighbours]]``: one neighbouring line in a shared corridor (its keys; the values
+    are checked by relayset)."""
+    from relayset.inputs.study_file import Neighbour
+
+    return {"type": "array", "maxItems": 1, "items": {
+        "type": "object", "required": ["name", "positions", "buses"],
+        "properties": {**_tables(Neighbour),
+                       "positions": {"type": "array", "minItems": 3, "maxItems": 3,
+                                     "items": {"type": "object"}},
+                       "buses": {"type": "array", "minItems": 2, "maxItems": 2,
+                                 "items": {"type": "string", "minLength": 1}},
+                       "sections": {"type": "array", "minItems": 1,
+                                    "items": {"type": "integer", "minimum": 0}},
+                       "sources": {"type": "object",
+                                   "additionalProperties": {"type": "object"}}},
+        "additionalProperties": False}}
 
 
 def philosophy_schema() -> dict[str, Any]:

@@ -726,6 +726,50 @@ class Deviation:
     date: dt.date = spec(schema.date)
 
 
+RouteLength = _quantity("length", ge=0, le=3e6, show=("km", 1e3))
+ZPerLength = _complex_quantity("resistance_per_length", min_abs=1e-7, max_abs=0.1)
+
+
+@_table
+class Neighbour:
+    """``[[neighbours]]``: another line beside this one over part of its route (a shared
+    corridor), with its own buses and sources (:mod:`relayset.inputs.corridor`)."""
+
+    name: str = spec(_text(200, min_len=1))
+    #: its three phases (A, B, C in this order) on the corridor's cross-section, x from the
+    #: protected line's tower centre line
+    positions: tuple[Position, ...] = spec(ListOf(table(Position), _three_positions))
+    shield_wires: tuple[ShieldWire, ...] = spec(ListOf(
+        table(ShieldWire), max_items=limits.MAX_SHIELD_WIRES, what="shield wires"), ())
+    #: the protected line's sections it runs beside (as numbered in line.sections[k]) ...
+    sections: tuple[int, ...] | None = spec(ListOf(schema.integer(ge=0, le=10_000),
+                                                   _non_empty), None)
+    #: ... or the stretch it runs beside: from ``start`` (from the from-substation), ``length``
+    start: float | None = spec(RouteLength, None)
+    length: float | None = spec(LineLength, None)
+    #: its bus beside the from-substation's side and beside the to-substation's side
+    buses: tuple[str, str] = spec(TupleOf(_text(100, min_len=1), _text(100, min_len=1)))
+    #: its route outside the corridor at each end (to each bus)
+    route_lengths: tuple[float, float] = spec(TupleOf(RouteLength, RouteLength), (0.0, 0.0))
+    #: Z1 and Z0 per length of those routes (default: its own, from the corridor)
+    route_z1: complex | None = spec(ZPerLength, None)
+    route_z0: complex | None = spec(ZPerLength, None)
+    #: the sources of its own buses (not needed for a bus of the protected line)
+    sources: dict[str, SourceData] = spec(MapOf(table(SourceData), _text(100)), factory=dict)
+
+    def _check(self) -> None:
+        if self.sections is None and self.start is None:
+            raise ValueError("give the sections it runs beside, or start and length")
+        if self.sections is not None and (self.start is not None or self.length is not None):
+            raise KeyRuleError("start", "give either sections or start and length, not both")
+        if (self.start is None) != (self.length is None):
+            raise KeyRuleError("length" if self.length is None else "start",
+                               "goes with start (or length): give both")
+        if (self.route_z1 is None) != (self.route_z0 is None):
+            raise KeyRuleError("route_z0" if self.route_z0 is None else "route_z1",
+                               "give route_z1 and route_z0 together")
+
+
 @_table
 class Study:
     """A whole study file, validated, SI inside."""
@@ -759,6 +803,8 @@ class Study:
     fault_resistance: FaultResistanceData = spec(table(FaultResistanceData),
                                                  factory=FaultResistanceData)
     deviations: tuple[Deviation, ...] = spec(ListOf(table(Deviation), what="deviations"), ())
+    neighbours: tuple[Neighbour, ...] = spec(ListOf(
+        table(Neighbour), max_items=1, what="neighbouring lines"), ())
 
     @property
     def ends(self) -> tuple[str, str]:
@@ -1059,6 +1105,10 @@ def check_study(study: Study, data: dict, source: str) -> None:
             if line.bus is not None and line.bus not in ends:
                 fail("is not an end of this line" + suggest(line.bus, ends),
                      f"{which}[{k}].bus", line.bus)
+    if study.neighbours:  # the shared corridor's rules (imported only when there is one)
+        from relayset.inputs.corridor import check_neighbours
+
+        check_neighbours(study, data, fail)
     if study.load is not None and study.load.power_flows:
         missing = [e for e in ends if e not in study.sources]
         if missing:

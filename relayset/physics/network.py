@@ -67,7 +67,7 @@ from relayset.physics.sequence import balanced_phase_matrix, fortescue_matrix
 
 __all__ = [
     "FAULT_TYPES", "OPEN_END_STATES", "PARALLEL_STATES", "FaultSweep", "LineCascade",
-    "Source", "solve_fault_sweep",
+    "NeighbourEnd", "Source", "solve_fault_sweep",
 ]
 
 PARALLEL_STATES: tuple[str, ...] = ("in_service", "earthed", "isolated")
@@ -179,6 +179,48 @@ class Source:
         """Balanced 3x3 phase impedance [ohm] times ``scale`` (broadcast, shape (..., 3, 3))."""
         scale = np.asarray(scale, dtype=float)
         return balanced_phase_matrix(self.z1_ohm * scale, self.z0_ohm * scale)
+
+
+@dataclass(frozen=True, eq=False)
+class NeighbourEnd:
+    """One end of circuit 2 when it is a neighbouring line on buses of its own (a shared
+    corridor) rather than the protected line's parallel circuit.
+
+    Circuit 2 leaves the cascade at this end through its route outside the corridor (a
+    lumped series impedance) to its own bus. In service, that bus is the protected line's
+    bus at this end (``on_line_bus``) or a bus of its own behind ``source``, whose EMF is
+    the protected line's source EMF at the same end (the neighbour carries load the same
+    way). Earthed (out of service), it is earthed at its own terminals, beyond its route:
+    :math:`V_2 + Z_{route} I_2 = 0`. Isolated: :math:`I_2 = 0`.
+
+    Parameters
+    ----------
+    z_route_ohm : (3, 3) complex array
+        Series phase impedance of its route outside the corridor at this end [ohm]; zero
+        where its bus is at the corridor's end.
+    source : Source or None
+        The Thevenin source of its own bus (not scaled by the source cases); None with
+        ``on_line_bus`` False: an open end.
+    on_line_bus : bool
+        Its bus is the protected line's bus at this end (fed by that bus's source).
+    """
+
+    z_route_ohm: np.ndarray
+    source: Source | None = None
+    on_line_bus: bool = False
+
+    def __post_init__(self) -> None:
+        z = np.array(self.z_route_ohm, dtype=complex)
+        if z.shape != (3, 3) or not np.all(np.isfinite(z)):
+            raise InputError("the route impedance must be a finite 3x3 matrix",
+                             field="z_route_ohm", value=z.shape)
+        if np.max(np.abs(z - z.T)) > 1e-9 * max(float(np.max(np.abs(z))), 1e-300):
+            raise InputError("the route impedance must be symmetric", field="z_route_ohm")
+        if self.on_line_bus and self.source is not None:
+            raise InputError("an end on the protected line's bus takes that bus's source",
+                             field="source")
+        z.setflags(write=False)
+        object.__setattr__(self, "z_route_ohm", z)
 
 
 @dataclass(frozen=True, eq=False)
@@ -454,19 +496,24 @@ def _terminal(
     z_src: np.ndarray | None,
     emf: np.ndarray,
     z_ref: float,
+    neighbour: NeighbourEnd | None = None,
 ) -> tuple[np.ndarray, np.ndarray]:
     """Terminal equations ``G @ [V; I] = g`` at one line end.
 
     Parameters: z_src (K, 3, 3) or None (open end), emf (K, L, 3). Returns G (K, n, 2n)
     and g (K, L, n). Current-only rows are multiplied by ``z_ref`` [ohm] so that every row
     is in volts (better pivoting). ``state`` "open" (six conductors): circuit 1's breaker
-    at this end is open (I1 = 0) and circuit 2 alone is on the bus.
+    at this end is open (I1 = 0) and circuit 2 alone is on the bus. ``neighbour`` (six
+    conductors): circuit 2 is a neighbouring line on its own buses (see
+    :class:`NeighbourEnd`), ``state`` its state.
     """
     n_k, n_l = emf.shape[:2]
     g_mat = np.zeros((n_k, n, 2 * n), dtype=complex)
     g_vec = np.zeros((n_k, n_l, n), dtype=complex)
     eye = np.eye(3)
     c1 = slice(0, 3)  # rows and columns of circuit 1
+    if n == 6 and neighbour is not None:
+        return _neighbour_terminal(g_mat, g_vec, state, z_src, emf, z_ref, neighbour)
     if n == 6 and state == "open":
         g_mat[:, c1, 6:9] = z_ref * eye  # I1 = 0: the faulted circuit's breaker is open
         if z_src is None:
@@ -502,6 +549,37 @@ def _terminal(
     return g_mat, g_vec
 
 
+def _neighbour_terminal(g_mat, g_vec, state, z_src, emf, z_ref, nb: NeighbourEnd):
+    """Rows of :func:`_terminal` where circuit 2 is a neighbouring line (its own buses)."""
+    eye = np.eye(3)
+    zr = nb.z_route_ohm
+    tie = nb.on_line_bus and state == "in_service"  # both circuits on this bus
+    if z_src is None:
+        g_mat[:, :3, 6:9] = z_ref * eye  # I1 (+ I2) = 0: no source on the bus
+        if tie:
+            g_mat[:, :3, 9:12] = z_ref * eye
+    else:
+        g_mat[:, :3, 0:3] = eye  # V1 + Zs (I1 [+ I2]) = E
+        g_mat[:, :3, 6:9] = z_src
+        if tie:
+            g_mat[:, :3, 9:12] = z_src
+        g_vec[..., :3] = emf
+    if tie:  # the bus voltage V1 = V2 + Z_route I2
+        g_mat[:, 3:, 0:3] = eye
+        g_mat[:, 3:, 3:6] = -eye
+        g_mat[:, 3:, 9:12] = -zr
+    elif state == "earthed":  # earthed at its own terminals, beyond its route
+        g_mat[:, 3:, 3:6] = eye
+        g_mat[:, 3:, 9:12] = zr
+    elif state == "in_service" and nb.source is not None:  # V2 + (Z_route + Zs') I2 = E
+        g_mat[:, 3:, 3:6] = eye
+        g_mat[:, 3:, 9:12] = zr + nb.source.phase_matrix()
+        g_vec[..., 3:] = emf
+    else:  # isolated, or an open end
+        g_mat[:, 3:, 9:12] = z_ref * eye
+    return g_mat, g_vec
+
+
 def solve_fault_sweep(
     line: LineCascade,
     source_s: Source | None,
@@ -519,6 +597,8 @@ def solve_fault_sweep(
     field_names: Mapping[str, str] | None = None,
     outputs: Collection[str] | None = None,
     z_branch_ohm: np.ndarray | None = None,
+    neighbour: tuple[NeighbourEnd, NeighbourEnd] | None = None,
+    fault_circuit: int = 1,
 ) -> FaultSweep:
     """Solve every combination of fault type, location, resistance, source and load case.
 
@@ -568,6 +648,14 @@ def solve_fault_sweep(
         with :math:`V_{F'} = V_F - Z_b I_f = V_{pre} - (Z_{th} + Z_b) I_f` the fault
         constraints see the Thevenin matrix :math:`Z_{th} + Z_b`. ``v_f`` stays the line
         point's voltage; ``i_fault`` is the branch current into the fault.
+    neighbour : (NeighbourEnd, NeighbourEnd), optional
+        Six conductors only: circuit 2 is a neighbouring line on its own buses (a shared
+        corridor), at the S end and at the R end of the cascade; ``parallel_state`` is
+        its state (:data:`PARALLEL_STATES`). The relay quantities stay circuit 1's.
+    fault_circuit : int
+        1 (default) or 2: the circuit faulted at ``m`` (2: circuit 2 in service, e.g. a
+        neighbouring line's fault, external to the protected circuit 1). ``v_f``,
+        ``i_f_from_s`` and ``i_f_from_r`` are then circuit 2's.
 
     Returns
     -------
@@ -592,6 +680,15 @@ def solve_fault_sweep(
     scale = _check_scale(source_scale, fn)
     e_s, e_r = _emfs(v_nominal_v, transfer_angle_rad, emf_v, scale.shape[0], fn)
     z_b = None if z_branch_ohm is None else _check_branch(z_branch_ohm, m.size, fn)
+    if neighbour is not None and (line.n_conductors != 6 or len(neighbour) != 2
+                                  or parallel_state not in PARALLEL_STATES):
+        raise InputError("a neighbouring line is circuit 2 of a six-conductor cascade, in "
+                         "one of the states " + ", ".join(PARALLEL_STATES),
+                         field=_name("neighbour", fn), value=parallel_state)
+    if fault_circuit not in (1, 2) or (fault_circuit == 2 and (
+            line.n_conductors != 6 or parallel_state != "in_service")):
+        raise InputError("the faulted circuit is 1, or 2 of a six-conductor line in service",
+                         field=_name("fault_circuit", fn), value=fault_circuit)
 
     z, y = _line_matrices(line, parallel_state)
     n = z.shape[-1]
@@ -607,8 +704,10 @@ def solve_fault_sweep(
     if parallel_state in OPEN_END_STATES:
         st_l, st_r = (("open", "in_service") if parallel_state == OPEN_END_STATES[0]
                       else ("in_service", "open"))
-    g_l, b_l = _terminal(n, st_l, zs, _balanced(e_s), z_ref)
-    g_r, b_r = _terminal(n, st_r, zr, _balanced(e_r), z_ref)
+    nb_l, nb_r = neighbour if neighbour is not None else (None, None)
+    g_l, b_l = _terminal(n, st_l, zs, _balanced(e_s), z_ref, nb_l)
+    g_r, b_r = _terminal(n, st_r, zr, _balanced(e_r), z_ref, nb_r)
+    off = 3 * (fault_circuit - 1)  # the faulted circuit's first conductor
 
     # System in x = [V_F, I_L, I_R] (3n) for each (m, source case).
     w_l = g_l[None] @ phi_l[:, None]  # (M, K, n, 2n): terminal rows in fault-point terms
@@ -623,7 +722,8 @@ def solve_fault_sweep(
     rhs = np.zeros((n_m, n_k, 3 * n, n_l + 3), dtype=complex)
     rhs[..., :n, :n_l] = np.swapaxes(b_l, -1, -2)[None]
     rhs[..., n:2 * n, :n_l] = np.swapaxes(b_r, -1, -2)[None]
-    rhs[..., 2 * n:2 * n + 3, n_l:] = z_ref * np.eye(3)  # unit current into each fault phase
+    rhs[..., 2 * n + off:2 * n + off + 3, n_l:] = z_ref * np.eye(3)  # unit current into each
+    # fault phase
     x = np.linalg.solve(a, rhs)  # (M, K, 3n, L + 3)
 
     # Rows of T (M, 7n, 3n) map x to the line-end and fault-point quantities; only the
@@ -642,11 +742,11 @@ def solve_fault_sweep(
     bus_s, bus_r = 3 * (st_l == "open"), 3 * (st_r == "open")
     starts = {"v_s": bus_s, "i_s": n, "i_s_parallel": n + 3, "v_r": 2 * n + bus_r,
               "i_r": 3 * n,
-              "i_r_parallel": 3 * n + 3, "v_f": 4 * n, "i_f_from_s": 5 * n,
-              "i_f_from_r": 6 * n}
+              "i_r_parallel": 3 * n + 3, "v_f": 4 * n + off, "i_f_from_s": 5 * n + off,
+              "i_f_from_r": 6 * n + off}
     wanted = _check_outputs(outputs, fn)
     blocks = [k for k in starts if k in wanted and (n == 6 or not k.endswith("parallel"))]
-    rows = np.concatenate([np.arange(4 * n, 4 * n + 3)]
+    rows = np.concatenate([np.arange(4 * n + off, 4 * n + off + 3)]
                           + [np.arange(starts[k], starts[k] + 3) for k in blocks])
     out = t[:, None, rows] @ x  # (M, K, 3 + 3B, L + 3)
     # Internal layout: phase axes first and the location axis last, cases as

@@ -364,6 +364,32 @@ def _parameters(d: dict[str, Any], u: dict[str, Any]) -> dict[str, Any]:
         "k0m": pnum(p["k0m"], P["pu"]) if p["k0m"] else None,
         "assumptions": list(p["assumptions"]),
         "cables": _cables(p, u),
+        "neighbour": _neighbour(p.get("neighbour"), u),
+    }
+
+
+def _neighbour(nb: dict[str, Any] | None, u: dict[str, Any]) -> dict[str, Any] | None:
+    """A neighbouring line in a shared corridor (results' parameters.neighbour), or None."""
+    if nb is None:
+        return None
+    k, P = u["per_km"], PRECISION
+
+    def per(pair: list[float]) -> str:
+        return cnum([pair[0] * k, pair[1] * k], P["ohm_per_len"])
+
+    return {
+        "name": nb["name"],
+        "buses": [f"{b} (this line's bus)" if own else b
+                  for b, own in zip(nb["buses"], nb["on_protected_line_bus"], strict=True)],
+        "shared_from": num(nb["shared_from_km"] * u["km"], P["len"]),
+        "shared_to": num(nb["shared_to_km"] * u["km"], P["len"]),
+        "shared_length": num(nb["shared_length_km"] * u["km"], P["len"]),
+        "routes": [num(x * u["km"], P["len"]) for x in nb["route_lengths_km"]],
+        "z1": per(nb["z1_ohm_per_km"]), "z0": per(nb["z0_ohm_per_km"]),
+        "z0m": per(nb["z0m_ohm_per_km"]),
+        "route_z1": per(nb["route_z1_ohm_per_km"]), "route_z0": per(nb["route_z0_ohm_per_km"]),
+        "k0m_equivalent": pnum(nb["k0m_equivalent"], P["pu"]),
+        "coupling_ratio": pnum(nb["coupling_ratio"], P["pu"]),
     }
 
 
@@ -429,6 +455,8 @@ def _reach(d: dict[str, Any]) -> dict[str, Any] | None:
                 loops.append({"loop": lp["loop"],
                               "worst": [_worst(lp[key]) for key, _ in WORST_KEYS]})
             title = ARRANGEMENT_TEXT.get(a["arrangement"], a["arrangement"])
+            if a.get("neighbour_state"):
+                title += f", neighbour {a['neighbour_state'].replace('_', ' ')}"
             if e["k0m_set"] is not None:
                 title += (", with mutual compensation" if a["mutual_compensation"]
                           else ", without mutual compensation")
@@ -445,6 +473,7 @@ def _reach(d: dict[str, Any]) -> dict[str, Any] | None:
                 # the comparisons give the values (their cases are in the results JSON)
                 "with_cases": not arrs,
                 "mutual": a["mutual_compensation"],
+                "neighbour_state": (a.get("neighbour_state") or "").replace("_", " "),
                 "over_remote": num(a["worst_bolted_overreach_at_remote_bus_pct"], P["pct"]),
                 "over_line": num(a["worst_bolted_overreach_on_line_pct"], P["pct"]),
                 "under_line": num(a["worst_bolted_underreach_on_line_pct"], P["pct"]),
@@ -648,13 +677,20 @@ def _ohm_text(text: str) -> str:
     return re.sub(r"(?<![\w.])-(?=\d)", "\u2212", text)
 
 
+def _state_text(state: str) -> str:
+    """The other circuit's state in words: a neighbouring line's ("neighbour earthed") as
+    it is, the parallel circuit's after "parallel circuit"."""
+    words = state.replace("_", " ")
+    return words if state.startswith("neighbour") else f"parallel circuit {words}"
+
+
 def _case_text(g: dict[str, Any]) -> str:
     """A governing fault case in words (everything needed to reproduce it)."""
     return _ohm_text(
         f"{g['fault_type']} on the {g['faulted']} at {num(g['location_pct'], PRECISION['pct'])}"
         f" %, Rf {num(g['r_fault_ohm'], 3)} \u03a9, Rph {num(g.get('r_phase_ohm'), 3)} \u03a9, "
         f"{g['source_case']}, transfer angle {num(g.get('transfer_angle_deg'), 1)}\u00b0, "
-        f"parallel circuit {g['parallel_state'].replace('_', ' ')}, "
+        f"{_state_text(g['parallel_state'])}, "
         f"{g['earth_resistivity_ohm_m']:g} \u03a9\u00b7m, loop {g['loop']}")
 
 

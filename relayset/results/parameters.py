@@ -212,6 +212,9 @@ class LineParameters:
     section_towers: tuple[int, ...] = ()
     z_by_tower_ohm_per_m: tuple[np.ndarray, ...] = ()
     y_by_tower_s_per_m: tuple[np.ndarray, ...] = ()
+    #: A neighbouring line in a shared corridor
+    #: (:class:`relayset.results.corridor.NeighbourParameters`), or None.
+    neighbour: Any = None
     cables: tuple[CableSummary, ...] = ()  #: the cable sections' constructions
 
     def cable_at(self, k: int) -> CableSummary | None:
@@ -291,5 +294,6 @@ class LineParameters:
             "arrangements": {k: a.to_dict() for k, a in self.arrangements.items()},
             "assumptions": list(self.assumptions),
             "wires": [w.to_dict() for w in self.wires],
+            **({} if self.neighbour is None else {"neighbour": self.neighbour.to_dict()}),
             **({"cables": [c.to_dict() for c in self.cables]} if self.cables else {}),
         }

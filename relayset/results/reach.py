@@ -107,6 +107,8 @@ class ArrangementReach:
     envelope_m: np.ndarray  #: (M,) locations
     envelope_max_pct: np.ndarray  #: (6, M) bolted, max over types/sources/loads, per loop
     envelope_min_pct: np.ndarray
+    #: A shared corridor: the neighbouring line's state in this solve (else None).
+    neighbour_state: str | None = None
 
     def to_frame(self):
         """The bolted reach error along the line per loop, a pandas DataFrame."""
@@ -130,6 +132,8 @@ class ArrangementReach:
                 "bolted_reach_error_max_pct": self.envelope_max_pct.tolist(),
                 "bolted_reach_error_min_pct": self.envelope_min_pct.tolist(),
             },
+            **({} if self.neighbour_state is None
+               else {"neighbour_state": self.neighbour_state}),
         }
 
 
@@ -206,6 +210,8 @@ class ReachStudyResult:
     ends: tuple[EndReach, ...]
     cases_solved: int
     notes: tuple[str, ...]
+    #: A shared corridor: the neighbouring line's name, shared length and states solved.
+    neighbour: dict[str, Any] | None = None
 
     # Old names (relayset 0.2), one release.
     source_impedances = alias("source_impedances_ohm", "source_impedances")
@@ -240,4 +246,5 @@ class ReachStudyResult:
             "cases_solved": self.cases_solved,
             "ends": [e.to_dict() for e in self.ends],
             "notes": list(self.notes),
+            **({} if self.neighbour is None else {"neighbour": self.neighbour}),
         }

@@ -4,6 +4,7 @@ from __future__ import annotations
 
 import math
 from dataclasses import dataclass
+from typing import Any
 
 import numpy as np
 
@@ -57,6 +58,10 @@ class LineGeometry:
     #: Per tower: None (overhead) or its cable (relayset.inputs.cable.CableSection); the
     #: cables come after the overhead towers, with no wires.
     tower_cables: tuple = ()
+    #: A neighbouring line in a shared corridor (``[[neighbours]]``): its stretch, buses and
+    #: routes, and its wires on the corridor's cross-section (phases in groups 3, 4, 5).
+    corridor: Any = None
+    corridor_wires: tuple[Wire, ...] = ()
 
 
 def _conductor_props(study: Study, name: str, source: str) -> dict:
@@ -207,7 +212,26 @@ def build_geometry(study: Study, source: str = "<study>") -> LineGeometry:
             orders_l.append(tuple(order))
         lengths, orders = tuple(lengths_l), tuple(orders_l)
 
+    corridor, corridor_wires = None, ()
+    if study.neighbours:
+        from relayset.inputs.corridor import corridor_of
+
+        corridor = corridor_of(study)
+        corridor_wires = _place_neighbour(study, corridor, tower_wires, section_towers,
+                                          conductor, source)
+        assumptions.append(
+            f"Neighbouring line {corridor.name} beside the line from "
+            f"{corridor.start_m / 1e3:g} km to {corridor.end_m / 1e3:g} km (shared "
+            f"{corridor.shared_length_m / 1e3:g} km): mutually coupled over that stretch "
+            "only, its phases not transposed there; its routes outside the corridor are "
+            "series impedances (their shunt capacitance neglected) and couple with nothing; "
+            "its own buses' EMFs are those of the protected line's sources at the same side "
+            "(it carries load the same way) and its sources keep their impedance in every "
+            "source case.")
+
     return LineGeometry(
+        corridor=corridor,
+        corridor_wires=corridor_wires,
         wires=tuple(wires),
         n_circuits=n_c,
         position_names=tuple(position_names),
@@ -281,6 +305,56 @@ def _place_wires(study: Study, circuits, shield_wires, shield_field: str, conduc
                     f"overlaps {b.label} ({b.field}); centres {d:.3f} m apart",
                     field=a.field, value=a.label, source=source)
     return tuple(wires), tuple(position_names)
+
+
+def _place_neighbour(study: Study, corridor, tower_wires, section_towers, conductor,
+                     source: str) -> tuple[Wire, ...]:
+    """The neighbouring line's wires on the corridor's cross-section, checked above ground
+    and clear of the protected line's wires on every tower of the shared stretch."""
+    nb = corridor.table
+    out: list[Wire] = []
+    for k, pos in enumerate(nb.positions):
+        field = f"neighbours[0].positions[{k}]"
+        data = conductor(pos.conductor, f"{field}.conductor")
+        offsets = np.zeros((1, 2))
+        if pos.bundle is not None and pos.bundle.count > 1:
+            offsets = bundle_offsets_m(pos.bundle.count, pos.bundle.spacing,
+                                       pos.bundle.orientation)
+        for s, (dx, dy) in enumerate(offsets):
+            out.append(Wire(pos.x + dx, pos.mean_height_m + dy, data, "phase", 3 + k,
+                            f"neighbour {nb.name}, phase {'ABC'[k]}"
+                            + (f", subconductor {s + 1}" if len(offsets) > 1 else ""), field))
+    for k, sw in enumerate(nb.shield_wires):
+        field = f"neighbours[0].shield_wires[{k}]"
+        data = conductor(sw.conductor, f"{field}.conductor")
+        out.append(Wire(sw.x, sw.mean_height_m, data, "shield", 100 + k,
+                        f"neighbour {nb.name}, shield wire {sw.name or k + 1}", field,
+                        sw.grounding))
+    towers = sorted({section_towers[k] for k in shared_sections(corridor, study)}
+                    if section_towers else {0})
+    for w in out:
+        if w.y_m - w.conductor.radius_m <= 0:
+            raise InputError("conductor would be at or below ground (mean height = height - "
+                             "2/3 sag must exceed the conductor radius)",
+                             field=w.field, value=f"mean height {w.y_m:.3f} m", source=source)
+    for t in towers:  # clear of the protected line's wires and of each other
+        for i, a in enumerate(out):
+            for b in [*tower_wires[t], *out[i + 1:]]:
+                d = math.hypot(a.x_m - b.x_m, a.y_m - b.y_m)
+                if d <= a.conductor.radius_m + b.conductor.radius_m + _MIN_CLEARANCE_M:
+                    raise InputError(f"overlaps {b.label} ({b.field}); centres {d:.3f} m apart",
+                                     field=a.field, value=a.label, source=source)
+    return tuple(out)
+
+
+def shared_sections(corridor, study: Study) -> list[int]:
+    """Indices of the study's sections that the shared stretch touches."""
+    lengths = [s.length for s in study.line.sections] if study.line.sections else [
+        study.line.length]
+    edges = np.concatenate([[0.0], np.cumsum(lengths)])
+    tol = 1e-9 * edges[-1]
+    return [k for k in range(len(lengths))
+            if edges[k + 1] > corridor.start_m + tol and edges[k] < corridor.end_m - tol]
 
 
 def _earth_layers(system) -> tuple[float, float] | None:

@@ -12,6 +12,7 @@ import bisect
 import itertools
 import math
 import warnings
+from dataclasses import replace
 
 import numpy as np
 
@@ -45,7 +46,11 @@ def build_source(study: Study, name: str, source: str) -> network.Source | None:
     data = study.sources.get(name)
     if data is None:
         return None
-    field = f"sources.{name}"
+    return source_from_data(study, data, f"sources.{name}", source)
+
+
+def source_from_data(study: Study, data, field: str, source: str) -> network.Source:
+    """The Thevenin source of a ``[sources.NAME]``-like table (``field`` its path)."""
     if data.z1 is not None:
         try:
             return network.Source(z1_ohm=data.z1, z0_ohm=data.z0)
@@ -94,6 +99,10 @@ def line_cascade(geo: LineGeometry, params: LineParameters, plan: str,
                  shunt: bool) -> network.LineCascade:
     """The cascade of an arrangement (see :func:`relayset.studies.parameters.plan_sections`)
     at the resistivity of ``params``."""
+    if getattr(params, "neighbour", None) is not None:  # a shared corridor: six conductors
+        from relayset.studies.corridor import corridor_cascade
+
+        return corridor_cascade(geo, params, plan, shunt)
     orders, lengths, towers = plan_sections(geo, plan)
     if len(geo.tower_names) <= 1:
         return _cascade(params.z_by_position_ohm_per_m, params.y_by_position_s_per_m,
@@ -176,7 +185,15 @@ def run_reach_study(
         same_as[key] = next((k for k in same_as if same_as[k] == k
                              and _same_cascade(lines[k], line)), key)
     per_arrangement = len(rs.fault_types) * m.size * rf.size * scales.shape[0] * angles.size
-    n_distinct = len(set(same_as.values()))
+    # A shared corridor: the neighbour's states are a state axis (every arrangement with it
+    # in service, the actual plan also with it out, earthed and isolated).
+    corridor = params.neighbour is not None
+    nb_ends = None
+    if corridor:
+        from relayset.studies.corridor import NEIGHBOUR_STATES, neighbour_ends
+
+        nb_ends = neighbour_ends(study, params, source)
+    n_distinct = len(set(same_as.values())) + (len(NEIGHBOUR_STATES) - 1 if corridor else 0)
     per_location = per_arrangement // m.size
     if per_location > MAX_CASES_PER_LOCATION:  # one location is the smallest chunk
         raise InputError(
@@ -189,15 +206,17 @@ def run_reach_study(
             f"at most {MAX_CASES:,}: use a coarser step or fewer resistances or cases",
             field="reach_study.location_step_pct", value=rs.location_step_pct, source=source)
     labels = geo.phase_labels[0]
-    variants = [(k, False) for k in plans]
+    variants = [(k, False, parallel) for k in plans]
     if n_c == 2 and parallel == "in_service" and rs.mutual_compensation:
-        variants = [(k, True) for k in plans] + [("actual_plan", False)]
+        variants = [(k, True, parallel) for k in plans] + [("actual_plan", False, parallel)]
+    if corridor:
+        variants += [("actual_plan", False, st) for st in NEIGHBOUR_STATES[1:]]
     # One condenser per (end, distinct arrangement, mutual compensation); the sweep runs in
     # chunks of locations so that memory stays bounded, each chunk condensed and dropped.
-    condensers: dict[tuple[str, str, bool], _Condenser] = {}
+    condensers: dict[tuple[str, str, bool, str], _Condenser] = {}
     for end_name in ends:
-        for key, mutual in variants:
-            ck = (end_name, same_as[key], mutual)
+        for key, mutual, state in variants:
+            ck = (end_name, same_as[key], mutual, state)
             if ck not in condensers:
                 condensers[ck] = _Condenser(
                     end_name == names[0], mutual, z1_set, k0_set,
@@ -206,23 +225,23 @@ def run_reach_study(
                                          else ("v_r", "i_r", "i_r_parallel"))]
     m_chunk = max(1, CHUNK_CASES // per_location)
     angles_rad = {}  # per arrangement solved: (K, L) transfer angles of its load cases
-    for key, line in lines.items():
-        if same_as[key] != key:
-            continue
+    solves = list(dict.fromkeys((same_as[k], st) for k, _mu, st in variants))
+    for key, state in solves:
+        line = lines[key]
         try:
-            emf = _emfs_for_power_flows(study, line, src, names, ends[0], scales, parallel,
-                                        geo.v_nominal_v)
+            emf = _emfs_for_power_flows(study, line, src, names, ends[0], scales, state,
+                                        geo.v_nominal_v, corridor)
             for start in range(0, m.size, m_chunk):
                 sw = network.solve_fault_sweep(
                     line, src[names[0]], src[names[1]], v_nominal_v=geo.v_nominal_v,
                     fault_types=rs.fault_types, m=m[start:start + m_chunk], r_fault_ohm=rf,
                     r_phase_ohm=rs.phase_fault_resistance, source_scale=scales,
-                    transfer_angle_rad=angles, parallel_state=parallel, emf_v=emf,
-                    field_names=field_names, outputs=outputs)
-                for (_end, k, _mutual), cond in condensers.items():
-                    if k == key:
+                    transfer_angle_rad=angles, parallel_state=state, emf_v=emf,
+                    field_names=field_names, outputs=outputs, neighbour=nb_ends)
+                for (_end, k, _mutual, st), cond in condensers.items():
+                    if k == key and st == state:
                         cond.add(sw, start)
-                angles_rad[key] = sw.transfer_angle_rad
+                angles_rad[key, state] = sw.transfer_angle_rad
                 del sw
         except InputError as exc:
             raise exc.located(source=source) from None
@@ -231,17 +250,21 @@ def run_reach_study(
     for end_name in ends:
         at_s = end_name == names[0]
         arrs = []
-        for key, mutual in variants:
+        for key, mutual, state in variants:
             ords, lens, tws = plans[key]
             names_by_section = [geo.tower_position_names[t] if geo.tower_names
                                 else geo.position_names for t in tws]
             if not at_s:  # seen from R the plan runs backwards
                 ords, lens = ords[::-1], list(lens)[::-1]
                 names_by_section = names_by_section[::-1]
-            arrs.append(condensers[(end_name, same_as[key], mutual)].result(
-                key, same_as[key], angles_rad[same_as[key]], rs, labels, ords, lens,
-                names_by_section))
+            res = condensers[(end_name, same_as[key], mutual, state)].result(
+                key, same_as[key], angles_rad[same_as[key], state], rs, labels, ords, lens,
+                names_by_section)
+            arrs.append(replace(res, neighbour_state=state) if corridor else res)
         actual = arrs[0]
+        if corridor:  # the neighbour's worst state governs zone 1
+            actual = max((a for a in arrs if a.arrangement == "actual_plan"),
+                         key=lambda a: a.worst_bolted_overreach_at_remote_bus_pct)
         worst = actual.worst_bolted_overreach_at_remote_bus_pct
         rec = recommended_zone1_pct(worst, budget, zone1_max_pct, zone1_margin_pct)
         allowed = recommended_zone1_pct(worst, budget, 100.0, zone1_margin_pct)  # no cap
@@ -270,6 +293,17 @@ def run_reach_study(
         if src[n] is None:
             notes.append(f"No source at {n}: the line is fed from the other end only; the "
                          "load cases (transfer angles) have no effect there and repeat.")
+    neighbour = None
+    if corridor:
+        nbp = params.neighbour
+        notes.append(
+            f"Shared corridor: {nbp.name} beside the line over {nbp.shared_length_m / 1e3:g} "
+            "km, mutually coupled there only; the actual plan solved with it in service, out "
+            "and earthed at its terminals, and out and isolated (the worst of the three "
+            "governs zone 1). The relay is not given its residual current (it ends on "
+            "other buses): no mutual compensation for it.")
+        neighbour = {"name": nbp.name, "shared_length_km": nbp.shared_length_m / 1e3,
+                     "states": list(NEIGHBOUR_STATES)}
     if rs.shunt_capacitance:
         notes.append("Line shunt capacitance included (exact distributed sections).")
     else:
@@ -290,24 +324,34 @@ def run_reach_study(
         ends=tuple(end_results),
         cases_solved=per_arrangement * n_distinct,  # identical arrangements are solved once
         notes=tuple(notes),
+        neighbour=neighbour,
     )
 
 
-def _emfs_for_power_flows(study, line, src, names, relay_end, scales, parallel, v_nom):
+def _emfs_for_power_flows(study, line, src, names, relay_end, scales, parallel, v_nom,
+                          corridor=False):
     """EMFs of both sources for the P, Q load cases at the relay end (None: use angles)."""
     if not (study.load and study.load.power_flows):
         return None
     p = np.array([f.active_power for f in study.load.power_flows])
     q = np.array([f.reactive_power for f in study.load.power_flows])
-    return emfs_for_flows_at(line, src, names, relay_end, p, q, scales, parallel, v_nom)
+    return emfs_for_flows_at(line, src, names, relay_end, p, q, scales, parallel, v_nom,
+                             corridor)
 
 
-def emfs_for_flows_at(line, src, names, end, p_w, q_var, scales, parallel, v_nom):
+def emfs_for_flows_at(line, src, names, end, p_w, q_var, scales, parallel, v_nom,
+                      corridor: bool = False):
     """EMFs (e_s, e_r) of both sources for powers P + jQ [W, var] into the line at ``end``.
 
     The positive-sequence load flow of :func:`relayset.physics.loadflow.emfs_for_load`
     fixes that end's voltage at nominal; seen from the far end the line is reversed.
+    ``corridor``: circuit 2 is a neighbouring line on its own buses, left out of the load
+    flow (:func:`relayset.studies.corridor.protected_part`).
     """
+    if corridor:
+        from relayset.studies.corridor import protected_part
+
+        line, parallel = protected_part(line), "in_service"
     if end == names[0]:
         return loadflow.emfs_for_load(line, src[names[0]], src[names[1]], v_nominal_v=v_nom,
                                      p_w=p_w, q_var=q_var, source_scale=scales,

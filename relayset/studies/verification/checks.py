@@ -226,7 +226,7 @@ def verify_end(sim: Simulation, end: str, st: SettingsResult, *, study: Study,
     r1 = z1.reach_pct / 100
     acc = {k: _Acc(mo) for k, mo in (("z1_int", True), ("z2_int", True), ("z1_ext", False),
                                      ("z1_par", False), ("z1_par_nomut", False),
-                                     ("z1_seq", False),
+                                     ("z1_seq", False), ("z1_nb", False),
                                      ("fwd_behind", False))}
     labels = sim.labels
     worst_bus = math.inf  # smallest zone 1 reach scale at the remote bus (its limit)
@@ -272,6 +272,14 @@ def verify_end(sim: Simulation, end: str, st: SettingsResult, *, study: Study,
                         (sb.scale - 1) * 100, np.ones(sb.scale.shape, dtype=bool), t,
                         _describe(vb, sb.which, labels, "behind the relay", rfp),
                         sb.insensitive)
+        elif run.faulted == "neighbour":
+            # A fault on the neighbouring line of a shared corridor: external, as a
+            # parallel-circuit fault, but on other buses (no mutual compensation).
+            v = relay_view(run, at_s, st.k0.k0, k0m, model, line_angle=theta)
+            sc = zone_scale(v, z1, theta, zl, model)
+            acc["z1_nb"].add((sc.scale - 1) * 100, np.ones(sc.scale.shape, dtype=bool), t,
+                             _describe(v, sc.which, labels, "neighbouring line", rfp),
+                             sc.insensitive)
         else:
             # Sequential clearing: the parallel circuit's breaker at one end already open.
             seq = bool(run.open_at)
@@ -315,6 +323,13 @@ def verify_end(sim: Simulation, end: str, st: SettingsResult, *, study: Study,
             "zone 1 does not operate for any fault on the parallel circuit "
             f"({'with' if sim.mutual else 'without'} mutual compensation) with {t:g} % margin",
             par, t, consider))
+    if acc["z1_nb"].n_run:
+        checks.append(_finish(
+            "zone1", "no_operation_for_neighbouring_line_faults",
+            "zone 1 does not operate for any fault on the neighbouring line of the shared "
+            f"corridor (along the shared stretch, the neighbour in service) with {t:g} % "
+            "margin", acc["z1_nb"], t,
+            "shorten zone 1 (the relay cannot be given the neighbour's residual current)"))
     if acc["z1_seq"].n_run:
         seq = acc["z1_seq"]
         consider = ("shorten zone 1" + ("; or " + MUTUAL_REMEDY if sim.mutual else ""))
@@ -478,6 +493,23 @@ def verification_grid(st_by_end: dict[str, SettingsResult], names, tolerance_pct
     return unique_sorted(np.clip(np.array(m), 0.0, 1.0))
 
 
+def _corridor_notes(geo: LineGeometry) -> tuple[str, ...]:
+    """What the verification did with a neighbouring line in a shared corridor."""
+    cor = geo.corridor
+    if cor is None:
+        return ()
+    from relayset.studies.corridor import NEIGHBOUR_FAULT_POINTS
+
+    pts = ", ".join(f"{100 * x:g}" for x in NEIGHBOUR_FAULT_POINTS)
+    return (
+        f"Shared corridor: {cor.name} beside the line from {cor.start_m / 1e3:g} km to "
+        f"{cor.end_m / 1e3:g} km, mutually coupled there only; every check is judged with it "
+        "in service, out and earthed at its terminals, and out and isolated. Faults on it "
+        f"(every type and fault resistance, in service) at {pts} % of the shared stretch are "
+        "external faults: zone 1 must not operate. The relay is not given its residual "
+        "current (it ends on other buses), so there is no mutual compensation for it.",)
+
+
 def check_tolerance(tolerance_pct: float, source: str) -> float:
     if not (math.isfinite(tolerance_pct) and 0 <= tolerance_pct < 50):
         raise InputError("the verification tolerance (the error budget's total) must be at "
@@ -612,7 +644,9 @@ def verify_settings(study: Study, geo: LineGeometry, params_by_rho: dict[float, 
         "line; margins are in % of the zone's forward reach.",
         *(f"At {end}: " + mdl.describe(sim.mutual) for end, mdl in models.items()),
         *env.describe(),
-        f"Envelope: {len(sim.states)} parallel-circuit state(s) × {len(sim.case_names)} "
+        f"Envelope: {len(sim.states)} "
+        f"{'neighbouring-line' if geo.corridor is not None else 'parallel-circuit'} "
+        f"state(s) × {len(sim.case_names)} "
         f"source case(s) × {env.n_load_cases} load case(s) × "
         f"{len(env.resistivities_ohm_m)} earth resistivit(ies), {n_cases:,} fault cases "
         f"solved; largest transfer angle {sim.max_transfer_angle_deg:.1f}°.",
@@ -625,6 +659,7 @@ def verify_settings(study: Study, geo: LineGeometry, params_by_rho: dict[float, 
         "from the simulated remote-bus faults, and by the simulated faults along the "
         "adjacent lines.",
         *_branch_notes(study, source),
+        *_corridor_notes(geo),
         f"Verification tolerance {t:g} % (the study's error budget).",
         scheme.describe(_philosophy(philosophy, zone2_adjacent_zone1_pct)),
         *_resistive_basis(study, geo, settings_by_end),

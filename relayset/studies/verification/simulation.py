@@ -182,7 +182,7 @@ def swap_circuits(line: network.LineCascade) -> network.LineCascade:
 
 
 def load_emfs(env: Envelope, line, src, names, relay_end, scales, state,
-              v_nom: float) -> np.ndarray:
+              v_nom: float, corridor: bool = False) -> np.ndarray:
     """(2, K, L) phase-A EMFs of both sources for every load case of the envelope: the
     listed cases (transfer angles, or power flows at the relay end), then the maximum load
     exported at each end in turn (the other end then imports it), through the load flow."""
@@ -190,7 +190,7 @@ def load_emfs(env: Envelope, line, src, names, relay_end, scales, state,
     if env.listed_flows_va:
         f = np.array(env.listed_flows_va)
         parts.append(np.stack(emfs_for_flows_at(line, src, names, relay_end, f.real, f.imag,
-                                                scales, state, v_nom)))
+                                                scales, state, v_nom, corridor)))
     else:
         parts.append(np.stack(network._emfs(v_nom, np.array(env.transfer_angles_rad), None,
                                             scales.shape[0], None)))
@@ -198,7 +198,7 @@ def load_emfs(env: Envelope, line, src, names, relay_end, scales, state,
         f = np.array(env.envelope_flows_va)
         for end in names:
             parts.append(np.stack(emfs_for_flows_at(line, src, names, end, f.real, f.imag,
-                                                    scales, state, v_nom)))
+                                                    scales, state, v_nom, corridor)))
     return np.concatenate(parts, axis=2)
 
 
@@ -228,6 +228,12 @@ def simulate(study: Study, geo: LineGeometry, params_by_rho: dict[float, LinePar
         Also solve faults along the lines leaving the buses (behind a relay, beyond the
         remote bus; :mod:`.branches`), at the study's earth resistivity, both circuits in
         service.
+
+    With a neighbouring line in a shared corridor (``[[neighbours]]``) its states take the
+    parallel circuit's place (run state "neighbour in_service" and so on), and with
+    ``parallel`` its faults are solved as faults on circuit 2 along the shared stretch
+    (faulted "neighbour", external to the protected line; see
+    :mod:`relayset.studies.corridor`).
     measure : callable, optional
         Applied to each run as it is solved (e.g. keep what the relays see and drop the
         phase quantities, :class:`relayset.studies.verification.relay_model.Measure`).
@@ -241,6 +247,15 @@ def simulate(study: Study, geo: LineGeometry, params_by_rho: dict[float, LinePar
     n_c = geo.n_circuits
     states = network.PARALLEL_STATES if n_c == 2 else ("in_service",)
     mutual = n_c == 2 and rs.mutual_compensation
+    corridor = geo.corridor is not None
+    if corridor:
+        from relayset.studies.corridor import (
+            NEIGHBOUR_STATES,
+            neighbour_ends,
+            neighbour_fault_locations,
+        )
+
+        states = NEIGHBOUR_STATES
     relay_end = study.relay.end if study.relay and study.relay.end in names else names[0]
     configs = source_configs(study, names, src)
     groups = env.groups(tuple(network.FAULT_TYPES))
@@ -248,11 +263,14 @@ def simulate(study: Study, geo: LineGeometry, params_by_rho: dict[float, LinePar
     all_names: list[str] = []
     max_angle = 0.0
     for rho, params in params_by_rho.items():
+        nb_ends = neighbour_ends(study, params, source) if corridor else None
         for state in states:
             line = line_cascade(geo, params, "actual_plan", rs.shunt_capacitance)
             jobs = []
             if protected:
                 jobs.append(("protected", line, state, "", m))
+            if parallel and corridor and state == "in_service":
+                jobs.append(("neighbour", line, state, "", neighbour_fault_locations(geo, m)))
             if parallel and n_c == 2 and state == "in_service":
                 swapped = swap_circuits(line)
                 jobs.append(("parallel", swapped, state, "", m))
@@ -271,7 +289,8 @@ def simulate(study: Study, geo: LineGeometry, params_by_rho: dict[float, LinePar
                     if loaded and load:
                         if (id(ln), c) not in emfs:
                             emfs[id(ln), c] = load_emfs(env, ln, src, names, relay_end,
-                                                        scales, state, geo.v_nominal_v)
+                                                        scales, state, geo.v_nominal_v,
+                                                        corridor)
                         emf = emfs[id(ln), c]
                         d = np.degrees(np.abs(np.angle(emf[0] / emf[1])))
                         max_angle = max(max_angle, float(np.max(d)))
@@ -289,10 +308,12 @@ def simulate(study: Study, geo: LineGeometry, params_by_rho: dict[float, LinePar
                                 fault_types=g.fault_types, m=np.asarray(m_job),
                                 r_fault_ohm=g.rf_pairs[:, 0], r_phase_ohm=g.rf_pairs[:, 1],
                                 source_scale=scales, transfer_angle_rad=np.zeros(1),
-                                parallel_state=solved_state, emf_v=emf_t, outputs=OUTPUTS)
+                                parallel_state=solved_state, emf_v=emf_t, outputs=OUTPUTS,
+                                neighbour=nb_ends,
+                                fault_circuit=2 if faulted == "neighbour" else 1)
                         except InputError as exc:
                             raise exc.located(source=source) from None
-                        run = Run(sw, faulted, state if n_c == 2 else "none", labels,
+                        run = Run(sw, faulted, _state_name(state, n_c, corridor), labels,
                                   rho, (s_s is not None, s_r is not None), g.name,
                                   open_at=open_at)
                         runs.append(run if measure is None else measure(run))
@@ -301,8 +322,17 @@ def simulate(study: Study, geo: LineGeometry, params_by_rho: dict[float, LinePar
         runs += _branch_runs(study, geo, params_by_rho, env, names, src, configs, groups,
                              relay_end, source, measure)
     return Simulation(names, geo.phase_labels[0], tuple(runs), n_c, mutual,
-                      tuple(all_names), tuple(states) if n_c == 2 else ("none",),
+                      tuple(all_names),
+                      tuple(_state_name(s, n_c, corridor) for s in states)
+                      if n_c == 2 or corridor else ("none",),
                       tuple(sorted(params_by_rho)), max_angle)
+
+
+def _state_name(state: str, n_c: int, corridor: bool) -> str:
+    """A run's state as reported: the parallel circuit's, the neighbour's, or "none"."""
+    if corridor:
+        return f"neighbour {state}"
+    return state if n_c == 2 else "none"
 
 
 def _branch_runs(study, geo, params_by_rho, env, names, src, configs, groups, relay_end,
@@ -332,12 +362,18 @@ def _branch_runs(study, geo, params_by_rho, env, names, src, configs, groups, re
     bolted = FaultGroup("bolted", tuple(ft for g in groups for ft in g.fault_types),
                         np.zeros((1, 2)))
     states = network.PARALLEL_STATES if geo.n_circuits == 2 else ("in_service",)
+    corridor = geo.corridor is not None
+    nb_ends = None
+    if corridor:  # the neighbour's states as the parallel circuit's
+        from relayset.studies.corridor import NEIGHBOUR_STATES, neighbour_ends
+
+        states, nb_ends = NEIGHBOUR_STATES, neighbour_ends(study, params, source)
     for state in states:
         for s_s, s_r, scales, labels, loaded in configs:
             emf_t = None
             if loaded:
                 emf = load_emfs(env, line, src, names, relay_end, scales, state,
-                                geo.v_nominal_v)
+                                geo.v_nominal_v, corridor)
                 emf_t = (emf[0], emf[1])
             for g in (groups if state == "in_service" else (bolted,)):
                 try:
@@ -346,10 +382,10 @@ def _branch_runs(study, geo, params_by_rho, env, names, src, configs, groups, re
                         fault_types=g.fault_types, m=m, r_fault_ohm=g.rf_pairs[:, 0],
                         r_phase_ohm=g.rf_pairs[:, 1], source_scale=scales,
                         transfer_angle_rad=np.zeros(1), parallel_state=state, emf_v=emf_t,
-                        outputs=OUTPUTS, z_branch_ohm=z_b)
+                        outputs=OUTPUTS, z_branch_ohm=z_b, neighbour=nb_ends)
                 except InputError as exc:
                     raise exc.located(source=source) from None
-                run = Run(sw, "branch", state if geo.n_circuits == 2 else "none", labels,
+                run = Run(sw, "branch", _state_name(state, geo.n_circuits, corridor), labels,
                           rho, (s_s is not None, s_r is not None), g.name, branch=info)
                 out.append(run if measure is None else measure(run))
     return out

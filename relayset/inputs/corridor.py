@@ -1,0 +1,174 @@
+"""Shared corridors: the rules of a ``[[neighbours]]`` table and its stretch along the line.
+
+A neighbouring line runs beside the protected line over one stretch of its route, with its
+own buses and sources. On that stretch its conductors hang on the corridor's cross-section
+(positions from the protected line's tower centre line) and are mutually coupled with the
+protected line; outside it they are not there at all. relayset models it as circuit 2 of
+the six-conductor fault solver (:class:`relayset.physics.network.NeighbourEnd`): coupled
+6x6 matrices over the shared stretch, zero-impedance connectors elsewhere, and its routes
+outside the corridor lumped into its terminals.
+
+This module holds what the file says (checked here, one line per defect) in SI:
+:func:`check_neighbours` (called by :func:`relayset.inputs.study_file.check_study`) and
+:func:`corridor_of` (the neighbour's stretch, buses and routes).
+"""
+
+from __future__ import annotations
+
+import math
+from collections.abc import Callable
+from dataclasses import dataclass
+from typing import Any
+
+from relayset.errors import as_written, quote, suggest, toml_key
+from relayset.inputs.study_file import Neighbour, SourceData, Study, _in_users_unit, _raw
+
+#: Centres of a neighbour's conductor and a protected conductor closer than this [m] are
+#: taken as the same place (a copied position): the smallest real clearance is metres.
+COINCIDENT_M = 0.05
+
+
+@dataclass(frozen=True)
+class Corridor:
+    """A neighbouring line as the study states it, SI."""
+
+    name: str
+    start_m: float  #: where the shared stretch begins, from the from-substation [m]
+    end_m: float  #: where it ends [m]
+    buses: tuple[str, str]  #: its bus on the from-substation's side, on the to side
+    on_line_bus: tuple[bool, bool]  #: that bus is the protected line's bus at that end
+    route_lengths_m: tuple[float, float]  #: its route outside the corridor at each end [m]
+    route_z1_ohm_per_m: complex | None  #: None: its own Z1 in the corridor
+    route_z0_ohm_per_m: complex | None
+    sources: dict[str, SourceData]  #: its own buses' sources
+    table: Neighbour  #: the table as read (positions, shield wires)
+
+    @property
+    def shared_length_m(self) -> float:
+        """Length of the shared stretch [m]."""
+        return self.end_m - self.start_m
+
+
+def _sections(study: Study) -> list[float]:
+    secs = study.line.sections
+    return [s.length for s in secs] if secs else [study.line.length]
+
+
+def corridor_of(study: Study) -> Corridor | None:
+    """The study's neighbouring line (None without one); the file was checked on reading."""
+    if not study.neighbours:
+        return None
+    nb = study.neighbours[0]
+    if nb.sections is not None:
+        lengths = _sections(study)
+        first, last = min(nb.sections), max(nb.sections)
+        start = math.fsum(lengths[:first])
+        end = math.fsum(lengths[:last + 1])
+    else:
+        start, end = nb.start, nb.start + nb.length
+    end = min(end, study.line.length)  # within the rounding the check allows
+    ends = study.ends
+    return Corridor(
+        name=nb.name, start_m=float(start), end_m=float(end), buses=nb.buses,
+        on_line_bus=(nb.buses[0] == ends[0], nb.buses[1] == ends[1]),
+        route_lengths_m=nb.route_lengths, route_z1_ohm_per_m=nb.route_z1,
+        route_z0_ohm_per_m=nb.route_z0, sources=dict(nb.sources), table=nb)
+
+
+def _shared_sections(study: Study, j: int) -> list[int]:
+    """The indices of the sections neighbour ``j`` runs beside (its stretch already checked
+    to lie on the line)."""
+    secs = study.line.sections or ()
+    nb = study.neighbours[j]
+    if nb.sections is not None:
+        return [k for k in nb.sections if k < len(secs)]
+    edges = [0.0]
+    for sec in secs:
+        edges.append(edges[-1] + sec.length)
+    start, end = nb.start, nb.start + nb.length
+    return [k for k in range(len(secs)) if edges[k + 1] > start and edges[k] < end]
+
+
+def _shared_towers(study: Study, j: int) -> set[str]:
+    """The towers of the sections neighbour ``j`` runs beside."""
+    secs = study.line.sections or ()
+    return {secs[k].tower for k in _shared_sections(study, j)}
+
+
+def check_neighbours(study: Study, data: dict, fail: Callable[..., None]) -> None:
+    """The rules of ``[[neighbours]]`` that tie it to the rest of the study; ``fail(rule,
+    field, value)`` raises the one-line error."""
+    ends = study.ends
+    for j, nb in enumerate(study.neighbours):
+        at = f"neighbours[{j}]"
+
+        def raw(*path: Any, j=j) -> Any:
+            return _raw(data, "neighbours", j, *path)
+
+        if len(study.circuits) != 1:
+            fail("a neighbouring line is modelled beside a single-circuit line only (six "
+                 "conductors in all); this line has two circuits", f"{at}.name", nb.name)
+        lengths = _sections(study)
+        if nb.sections is not None:
+            for k, s in enumerate(nb.sections):
+                if s >= len(lengths):
+                    fail(f"names no section of the line (it has {len(lengths)} section(s), "
+                         f"line.sections[0] to line.sections[{len(lengths) - 1}])",
+                         f"{at}.sections[{k}]", raw("sections", k))
+            idx = sorted(nb.sections)
+            if len(set(idx)) != len(idx) or idx[-1] - idx[0] != len(idx) - 1:
+                fail("must list consecutive sections, each once: a neighbouring line runs "
+                     "beside one stretch of the route", f"{at}.sections", raw("sections"))
+        else:
+            total = study.line.length
+            end = nb.start + nb.length
+            if end > total * (1 + 1e-9) + 1e-3:
+                raw_len = _raw(data, "line", "length")
+                fail(f"the shared stretch would end {_in_users_unit(end, raw('length'))} from "
+                     f"{quote(ends[0])}, beyond the line's end ({raw_len}); it must lie on "
+                     "the line", f"{at}.length", raw("length"))
+        # Its conductors must hang somewhere else than the protected line's (on the towers
+        # of the stretch it shares).
+        own = [(f"circuits[0].positions[{k}]", p) for k, p in
+               enumerate(study.circuits[0].positions)]
+        secs = study.line.sections or ()
+        for k in _shared_sections(study, j):
+            if secs[k].cable is not None:
+                where = ("sections", f"{at}.sections") if nb.sections is not None else (
+                    "start", f"{at}.start")
+                fail(f"runs beside line.sections[{k}], a cable section; a neighbouring line "
+                     "is coupled with overhead sections only", where[1], raw(where[0]))
+        shared = _shared_towers(study, j)
+        own += [(f"towers.{toml_key(t)}.positions.{toml_key(c)}[{k}]", p)
+                for t, tw in study.towers.items() if t in shared
+                for c, ps in tw.positions.items() for k, p in enumerate(ps)]
+        for k, p in enumerate(nb.positions):
+            for field, q in own:
+                if math.hypot(p.x - q.x, p.mean_height_m - q.mean_height_m) < COINCIDENT_M:
+                    fail(f"coincides with the protected line's conductor at {field}; give "
+                         "the neighbour's positions on the corridor's cross-section, from "
+                         "the protected line's tower centre line", f"{at}.positions[{k}].x",
+                         raw("positions", k, "x"))
+        # Buses: each end on the protected line's bus at that side or on a bus of its own.
+        b0, b1 = nb.buses
+        if b0 == b1:
+            fail("must name two different buses", f"{at}.buses[1]", b1)
+        for k, bus in enumerate(nb.buses):
+            if bus == ends[1 - k]:
+                fail(f"is the protected line's bus at the other end: the neighbour's end "
+                     f"beside {quote(ends[k])} is on {quote(ends[k])} or a bus of its own",
+                     f"{at}.buses[{k}]", bus)
+            if bus != ends[k] and bus not in nb.sources:
+                known = [ends[k], *nb.sources]
+                fail(f"names no bus: give its source as [{at}.sources.{toml_key(bus)}] or "
+                     f"use {quote(ends[k])}, the protected line's bus"
+                     + suggest(bus, known), f"{at}.buses[{k}]", bus)
+        for key in nb.sources:
+            if key in ends:
+                fail(f"is a bus of the protected line: its source is [sources."
+                     f"{toml_key(key)}]", f"{at}.sources.{toml_key(key)}",
+                     raw("sources", key))
+            if key not in nb.buses:
+                fail(f"names no bus of this neighbouring line (its buses are "
+                     f"{as_written(list(nb.buses))})" + suggest(key, nb.buses),
+                     f"{at}.sources.{toml_key(key)}", raw("sources", key))
