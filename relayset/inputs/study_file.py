@@ -22,6 +22,11 @@ from typing import Any
 from relayset.errors import InputError, Written, WrittenFloat, quote, suggest, toml_key
 from relayset.inputs import limits, schema, units
 from relayset.inputs.schema import KeyRuleError, ListOf, MapOf, TupleOf, spec, table
+from relayset.inputs.series_capacitor import (
+    MAX_SERIES_CAPACITORS,
+    SeriesCapacitor,
+    check_series_capacitors,
+)
 from relayset.inputs.toml_depth import nesting_depth
 
 SCHEMA = "relayset-study/1"
@@ -754,6 +759,9 @@ class Study:
     fault_resistance: FaultResistanceData = spec(table(FaultResistanceData),
                                                  factory=FaultResistanceData)
     deviations: tuple[Deviation, ...] = spec(ListOf(table(Deviation), what="deviations"), ())
+    #: series capacitor banks in the line (relayset.inputs.series_capacitor)
+    series_capacitors: tuple[SeriesCapacitor, ...] = spec(ListOf(
+        table(SeriesCapacitor), max_items=MAX_SERIES_CAPACITORS, what="banks"), ())
 
     @property
     def ends(self) -> tuple[str, str]:
@@ -1053,6 +1061,7 @@ def check_study(study: Study, data: dict, source: str) -> None:
             if line.bus is not None and line.bus not in ends:
                 fail("is not an end of this line" + suggest(line.bus, ends),
                      f"{which}[{k}].bus", line.bus)
+    check_series_capacitors(study, data, fail)
     if study.load is not None and study.load.power_flows:
         missing = [e for e in ends if e not in study.sources]
         if missing:
