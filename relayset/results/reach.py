@@ -206,6 +206,9 @@ class ReachStudyResult:
     ends: tuple[EndReach, ...]
     cases_solved: int
     notes: tuple[str, ...]
+    #: Series capacitor banks, their states, the varistor state's operating point and the
+    #: inversion checks (relayset.studies.series_capacitors); None without banks.
+    series_capacitors: dict[str, Any] | None = None
 
     # Old names (relayset 0.2), one release.
     source_impedances = alias("source_impedances_ohm", "source_impedances")
@@ -240,4 +243,5 @@ class ReachStudyResult:
             "cases_solved": self.cases_solved,
             "ends": [e.to_dict() for e in self.ends],
             "notes": list(self.notes),
-        }
+        } | ({} if self.series_capacitors is None
+             else {"series_capacitors": self.series_capacitors})
