@@ -23,7 +23,7 @@ def demo_data() -> dict:
 def test_demo_bank_is_read_in_si():
     st = parse_study(demo_data(), str(DEMO))
     (bank,) = st.series_capacitors
-    assert bank.distance == 180e3 and bank.measured_from == "Tarrow Ness"
+    assert bank.distance == 150e3 and bank.measured_from == "Tarrow Ness"
     assert bank.compensation_pct == 45 and bank.vt_side == "bus"
     # protective-level current = protective level (pu) x rated current (definition)
     assert bank.protective_current_a == pytest.approx(2.2 * 2500, rel=1e-12)
@@ -48,8 +48,8 @@ CASES = [
      "series_capacitors[0].compensation_pct = 0: must be above 0"),
     ("negative", lambda d: _bank(d).update(compensation_pct=-5),
      "series_capacitors[0].compensation_pct = -5: must be above 0"),
-    ("outside the line", lambda d: _bank(d).update(distance="380 km"),
-     'series_capacitors[0].distance = "380 km": must lie inside the line'),
+    ("outside the line", lambda d: _bank(d).update(distance="320 km"),
+     'series_capacitors[0].distance = "320 km": must lie inside the line'),
     ("unknown bus (mid-line)", lambda d: _bank(d).update(measured_from="Tarow Ness"),
      'series_capacitors[0].measured_from = "Tarow Ness": names no end of this line'),
     ("unknown bus (line end)", lambda d: _at_bus(d, "Hithe Vail"),

@@ -129,7 +129,8 @@ def _describe(vw: View, which: np.ndarray, labels, faulted: str, rf_pairs):
             transfer_angle_deg=round(ang, 6), parallel_state=run.state,
             earth_resistivity_ohm_m=run.rho_ohm_m, loop=loop_label(loop, labels),
             z_apparent_primary_ohm=vw.loop_at(loop, idx),
-            mutual_compensation=bool(np.broadcast_to(vw.mutual, which.shape)[idx]))
+            mutual_compensation=bool(np.broadcast_to(vw.mutual, which.shape)[idx]),
+            capacitor_state=run.cap_state or None)
     return fn
 
 
@@ -612,6 +613,7 @@ def verify_settings(study: Study, geo: LineGeometry, params_by_rho: dict[float, 
         "line; margins are in % of the zone's forward reach.",
         *(f"At {end}: " + mdl.describe(sim.mutual) for end, mdl in models.items()),
         *env.describe(),
+        *_capacitor_notes(sim),
         f"Envelope: {len(sim.states)} parallel-circuit state(s) × {len(sim.case_names)} "
         f"source case(s) × {env.n_load_cases} load case(s) × "
         f"{len(env.resistivities_ohm_m)} earth resistivit(ies), {n_cases:,} fault cases "
@@ -635,7 +637,18 @@ def verify_settings(study: Study, geo: LineGeometry, params_by_rho: dict[float, 
         earth_resistivities_ohm_m=sim.resistivities, cases_solved=n_cases, notes=notes,
         envelope=env.to_dict(),
         relay_model={end: mdl.to_dict() for end, mdl in models.items()},
-        deviations=accepted)
+        deviations=accepted, capacitor_states=sim.capacitor_states,
+        series_capacitors=sim.capacitors)
+
+
+def _capacitor_notes(sim: Simulation) -> tuple[str, ...]:
+    """The series capacitor states as simulated (each multiplies the envelope)."""
+    if not sim.capacitor_states:
+        return ()
+    from relayset.studies.series_capacitors import describe_state
+
+    return ("Series capacitor states (every case solved in each): "
+            + "; ".join(describe_state(s) for s in sim.capacitor_states) + ".",)
 
 
 def _branch_notes(study: Study, source: str) -> tuple[str, ...]:
