@@ -409,14 +409,20 @@ def element_fault_chain_products(
     elem[:, :n, n:] = z_el
     whole_s = np.tile(eye, (n_p, 1, 1))  # each piece from its S end
     whole_r = np.tile(eye, (n_p, 1, 1))  # each piece from its R end
-    subs = []
+    local_s: dict[int, np.ndarray] = {}  # per piece: its faults' parts (from S, from R)
+    local_r: dict[int, np.ndarray] = {}
     for k in range(n_p):
         idx, ln = _sub_cascade(length_m, bounds[k] * total, bounds[k + 1] * total)
-        subs.append((idx, ln))
-        if idx.size:
-            ps, pr = fault_chain_products(z[idx], None if y is None else y[idx], ln,
-                                          np.array([0.0, 1.0]))
-            whole_s[k], whole_r[k] = ps[1], pr[0]
+        if not idx.size:  # a zero-length piece (an element at a bus)
+            continue
+        sel = np.flatnonzero(piece == k)
+        span = bounds[k + 1] - bounds[k]
+        local = np.clip((m[sel] - bounds[k]) / span, 0.0, 1.0)
+        # the piece's faults and its two ends in one call (the whole piece either way)
+        ps, pr = fault_chain_products(z[idx], None if y is None else y[idx], ln,
+                                      np.concatenate([local, [0.0, 1.0]]))
+        whole_s[k], whole_r[k] = ps[-1], pr[-2]
+        local_s[k], local_r[k] = ps[:-2], pr[:-2]
     pre_s = np.empty((n_p, 2 * n, 2 * n), dtype=complex)  # bus S to the S end of piece k
     pre_s[0] = eye
     for k in range(1, n_p):
@@ -431,13 +437,9 @@ def element_fault_chain_products(
         sel = np.flatnonzero(piece == k)
         if not sel.size:
             continue
-        idx, ln = subs[k]
-        if not idx.size:  # a zero-length piece (an element at a bus)
+        if k not in local_s:  # faults in a zero-length piece: at the element's bus side
             phi_s[sel], phi_r[sel] = pre_s[k], pre_r[k]
             continue
-        span = bounds[k + 1] - bounds[k]
-        local = np.clip((m[sel] - bounds[k]) / span, 0.0, 1.0)
-        ps, pr = fault_chain_products(z[idx], None if y is None else y[idx], ln, local)
-        phi_s[sel] = pre_s[k] @ ps
-        phi_r[sel] = pre_r[k] @ pr
+        phi_s[sel] = pre_s[k] @ local_s[k]
+        phi_r[sel] = pre_r[k] @ local_r[k]
     return phi_s, phi_r
