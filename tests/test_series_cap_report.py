@@ -19,6 +19,7 @@ def test_bus_bank_report_and_warnings(tmp_path):
     b = data["series_capacitors"][0]
     b.pop("distance"), b.pop("measured_from")
     b.update(at="Tarrow Ness", vt_side="bus", name="<b>Kelp</b> & bank")
+    data["relay"]["end"] = "both"
     path = tmp_path / "bus_bank.toml"
     path.write_text(tomli_w.dumps(data))
     res = pipeline.run(path, settings=True)

@@ -107,3 +107,34 @@ def test_bypassed_bank_equals_no_bank():
     b = solve_fault_sweep(base, SRC_S, SRC_R, **kw)
     np.testing.assert_allclose(a.i_s, b.i_s, rtol=1e-11, atol=1e-9)
     np.testing.assert_allclose(a.v_r, b.v_r, rtol=1e-11, atol=1e-6)
+
+
+def test_load_flow_through_a_bank_from_either_end():
+    # The load flow (relayset.physics.loadflow) sees the banks: the solver's prefault power
+    # into the line at the end whose voltage it fixed is the P + jQ asked for (definition,
+    # S = 3 V I*), from S and, through the reversed line, from R.
+    from relayset.physics.loadflow import emfs_for_load
+    from relayset.physics.sequence import balanced_phase_matrix
+    from relayset.studies.reach import emfs_for_flows_at
+
+    # a balanced line (the load flow is positive-sequence), with shunt capacitance
+    z = balanced_phase_matrix(0.03 + 0.33j, 0.25 + 1.1j) / 1e3
+    y = balanced_phase_matrix(1j * 3.5e-6, 1j * 2.2e-6) / 1e3
+    base = LineCascade(np.stack([z, z]), np.array([60e3, 140e3]), np.stack([y, y]))
+    line = with_banks(base, [(0.45, -1j * X_C, False), (1.0, -1j * 9.0, True)])
+    src = {"S": SRC_S, "R": SRC_R}
+    p, q = np.array([60e6, -40e6]), np.array([10e6, 5e6])
+    e_s, e_r = emfs_for_load(line, SRC_S, SRC_R, v_nominal_v=V_NOM, p_w=p, q_var=q)
+    sw = solve_fault_sweep(line, SRC_S, SRC_R, v_nominal_v=V_NOM, fault_types=["AG"],
+                           m=[0.5], r_fault_ohm=[0.0], emf_v=(e_s, e_r))
+    s_in = 3 * sw.v_s_pre[0, :, 0] * np.conj(sw.i_s_pre[0, :, 0])
+    np.testing.assert_allclose(s_in, p + 1j * q, rtol=1e-9, atol=0)
+    e_s, e_r = emfs_for_flows_at(line, src, ("S", "R"), "R", p, q, np.array([[1.0, 1.0]]),
+                                 "in_service", V_NOM)
+    sw = solve_fault_sweep(line, SRC_S, SRC_R, v_nominal_v=V_NOM, fault_types=["AG"],
+                           m=[0.5], r_fault_ohm=[0.0], emf_v=(e_s, e_r))
+    # at R the bank's VT is on its line side: the power at the bus is V_bus I*, with
+    # V_bus = V_line + Z_bank I (the current into the line flows through the bank first)
+    v_bus = sw.v_r_pre[0, :, 0] + (-1j * 9.0) * sw.i_r_pre[0, :, 0]
+    s_in = 3 * v_bus * np.conj(sw.i_r_pre[0, :, 0])
+    np.testing.assert_allclose(s_in, p + 1j * q, rtol=1e-9, atol=0)

@@ -84,6 +84,7 @@ def _bank_at(bus, vt):
         b = d["series_capacitors"][0]
         b.pop("distance"), b.pop("measured_from")
         b.update(at=bus, vt_side=vt)
+        d["relay"]["end"] = "both"
     return edit
 
 

@@ -335,7 +335,9 @@ def emfs_for_flows_at(line, src, names, end, p_w, q_var, scales, parallel, v_nom
                                      p_w=p_w, q_var=q_var, source_scale=scales,
                                      parallel_state=parallel)
     rev = network.LineCascade(line.z_ohm_per_m[::-1], line.length_m[::-1],
-                              None if line.y_s_per_m is None else line.y_s_per_m[::-1])
+                              None if line.y_s_per_m is None else line.y_s_per_m[::-1],
+                              tuple(network.SeriesElement(1.0 - e.at, e.z_ohm, e.vt_line_side)
+                                    for e in line.elements))  # series capacitor banks
     e_r, e_s = loadflow.emfs_for_load(rev, src[names[1]], src[names[0]], v_nominal_v=v_nom,
                                      p_w=p_w, q_var=q_var, source_scale=scales[..., ::-1]
                                      if np.ndim(scales) == 2 else scales,

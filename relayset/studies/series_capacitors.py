@@ -69,6 +69,7 @@ class Bank:
                 "bypassed": 0j}[state]
 
     def to_dict(self) -> dict[str, Any]:
+        """The bank as the results JSON writes it."""
         from relayset.results.serialize import cplx
 
         return {"name": self.name, "place": self.where, "at_fraction": self.at,
@@ -91,6 +92,7 @@ class Inversion:
     text: str
 
     def to_dict(self) -> dict[str, Any]:
+        """The condition as the results JSON writes it."""
         return {"end": self.end, "kind": self.kind, "exists": self.exists, "text": self.text}
 
 
@@ -117,6 +119,7 @@ class CapacitorBasis:
                                            b.vt_line_side) for b in self.banks)
 
     def to_dict(self) -> dict[str, Any]:
+        """The banks, states, Z1 with and without them and the inversion checks (JSON)."""
         from relayset.results.serialize import cplx
 
         return {"banks": [b.to_dict() for b in self.banks],
