@@ -142,13 +142,30 @@ def solve_fault_single(
     length = line.total_length_m
     edges = np.concatenate([[0.0], np.cumsum(line.length_m)])
     x_f = m * length
-    near = int(np.argmin(np.abs(edges - x_f)))
-    if abs(edges[near] - x_f) <= _SNAP_REL * length:
-        positions = list(edges)
-        j_f = near
+    # Points along the line: every section edge, both sides of each lumped series element
+    # (two points at one place, the element between them) and the fault point.
+    el_at = {}
+    for e in line.elements:
+        el_at.setdefault(float(e.at * edges[-1]), []).append(e)
+    places = sorted({*edges.tolist(), *el_at})
+    near = int(np.argmin(np.abs(np.array(places) - x_f)))
+    if abs(places[near] - x_f) <= _SNAP_REL * length:
+        x_f = places[near]
     else:
-        positions = sorted([*edges, x_f])
-        j_f = positions.index(x_f)
+        places = sorted([*places, x_f])
+    positions, links, first_at = [], [], {}
+    for x in places:
+        if positions:  # a uniform segment from the previous place
+            sec = int(np.searchsorted(edges, positions[-1], side="right") - 1)
+            links.append(("seg", x - positions[-1], min(sec, len(line.length_m) - 1)))
+        first_at[x] = len(positions)
+        positions.append(x)
+        for e in el_at.get(x, ()):
+            links.append(("el", e.z_ohm, None))
+            positions.append(x)
+    last_at = {x: (first_at[x] + len(el_at.get(x, ()))) for x in places}
+    # A fault exactly at an element: the bus side at a line end, else the S side.
+    j_f = last_at[x_f] if x_f == places[-1] else first_at[x_f]
     n_pos = len(positions)
     n_line = n_pos * n
     bus_s, bus_r = n_line, n_line + 3
@@ -221,10 +238,12 @@ def solve_fault_single(
     rhs = np.zeros(n_unk, dtype=complex)
 
     seg_y = []
-    for j in range(n_pos - 1):
-        seg_len = positions[j + 1] - positions[j]
-        sec = int(np.searchsorted(edges, positions[j], side="right") - 1)
-        yy = _segment_nodal(z[sec], None if y is None else y[sec], seg_len)
+    for j, (kind, a, sec) in enumerate(links):
+        if kind == "seg":
+            yy = _segment_nodal(z[sec], None if y is None else y[sec], a)
+        else:  # lumped series element: nodal admittance of its impedance
+            ye = np.linalg.inv(a)
+            yy = np.block([[ye, -ye], [-ye, ye]])
         seg_y.append(yy)
         idx = [node(j, c) for c in range(n)] + [node(j + 1, c) for c in range(n)]
         mat[np.ix_(idx, idx)] += yy
@@ -278,11 +297,21 @@ def solve_fault_single(
     end_s, end_r = ("s1", "r1") if fault_circuit == 1 else ("s2", "r2")
     i_from_s = -seg_currents(j_f - 1)[n + off:n + off + 3] if j_f > 0 else current(end_s)
     i_from_r = -seg_currents(j_f)[off:off + 3] if j_f < last else current(end_r)
+    v_s, v_r = volt[bus_s:bus_s + 3], volt[bus_r:bus_r + 3]
+    for e in line.elements:  # a relay VT on the line side of an element at its bus
+        if e.vt_line_side:  # (of the circuit on the bus: circuit 2 where 1 is open there)
+            j = 1 if e.at == 0.0 else last - 1
+            off_e = 3 * (parallel_state == ("faulted_open_at_s" if e.at == 0.0
+                                            else "faulted_open_at_r"))
+            if e.at == 0.0:
+                v_s = volt[[node(j, off_e + c) for c in range(3)]]
+            else:
+                v_r = volt[[node(j, off_e + c) for c in range(3)]]
     return FaultCase(
-        v_s=volt[bus_s:bus_s + 3],
+        v_s=v_s,
         i_s=current("s1"),
         i_s_parallel=current("s2"),
-        v_r=volt[bus_r:bus_r + 3],
+        v_r=v_r,
         i_r=current("r1"),
         i_r_parallel=current("r2"),
         v_f=volt[v_nodes],

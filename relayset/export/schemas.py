@@ -34,6 +34,7 @@ def study_schema() -> dict[str, Any]:
 
     props["cables"] = cables_schema()
     props["neighbours"] = _neighbours()
+    props["series_capacitors"] = _series_capacitors()
     return {"$schema": DRAFT, "$id": _BASE + "study.json", "title": "relayset study file",
             "type": "object", "required": ["schema", "study", "system", "line"],
             "properties": props, "additionalProperties": False}
@@ -56,6 +57,21 @@ def _neighbours() -> dict[str, Any]:
                        "sources": {"type": "object",
                                    "additionalProperties": {"type": "object"}}},
         "additionalProperties": False}}
+def _series_capacitors() -> dict[str, Any]:
+    """``[[series_capacitors]]``: banks at a bus (``at``) or mid-line (``distance`` from
+    ``measured_from``), sized by ``compensation_pct`` or ``reactance``, with the varistor's
+    protective level (relayset.inputs.series_capacitor)."""
+    from relayset.inputs.series_capacitor import MAX_SERIES_CAPACITORS, SeriesCapacitor
+
+    props = _tables(SeriesCapacitor)
+    props.update(name=_STR, at=_STR, measured_from=_STR, distance=_STR, reactance=_STR,
+                 rated_current=_STR, protective_level_current=_STR,
+                 compensation_pct={"type": "number", "exclusiveMinimum": 0, "maximum": 100},
+                 protective_level={"type": "number", "minimum": 1, "maximum": 5},
+                 vt_side={"enum": ["bus", "line"]})
+    bank = {"type": "object", "properties": props, "additionalProperties": False,
+            "oneOf": [{"required": ["at"]}, {"required": ["distance", "measured_from"]}]}
+    return {"type": "array", "maxItems": MAX_SERIES_CAPACITORS, "items": bank}
 
 
 def philosophy_schema() -> dict[str, Any]:

@@ -23,6 +23,11 @@ from relayset.errors import InputError, Written, WrittenFloat, quote, suggest, t
 from relayset.inputs import limits, schema, units
 from relayset.inputs.cable import Cable, check_cables
 from relayset.inputs.schema import KeyRuleError, ListOf, MapOf, TupleOf, spec, table
+from relayset.inputs.series_capacitor import (
+    MAX_SERIES_CAPACITORS,
+    SeriesCapacitor,
+    check_series_capacitors,
+)
 from relayset.inputs.toml_depth import nesting_depth
 
 SCHEMA = "relayset-study/1"
@@ -805,6 +810,9 @@ class Study:
     deviations: tuple[Deviation, ...] = spec(ListOf(table(Deviation), what="deviations"), ())
     neighbours: tuple[Neighbour, ...] = spec(ListOf(
         table(Neighbour), max_items=1, what="neighbouring lines"), ())
+    #: series capacitor banks in the line (relayset.inputs.series_capacitor)
+    series_capacitors: tuple[SeriesCapacitor, ...] = spec(ListOf(
+        table(SeriesCapacitor), max_items=MAX_SERIES_CAPACITORS, what="banks"), ())
 
     @property
     def ends(self) -> tuple[str, str]:
@@ -1109,6 +1117,11 @@ def check_study(study: Study, data: dict, source: str) -> None:
         from relayset.inputs.corridor import check_neighbours
 
         check_neighbours(study, data, fail)
+    check_series_capacitors(study, data, fail)
+    if study.neighbours and study.series_capacitors:
+        fail("a shared corridor ([[neighbours]]) and series capacitors are not modelled "
+             "together: give the compensated line without its neighbour, or the corridor "
+             "without the banks", "series_capacitors[0].name", study.series_capacitors[0].name)
     if study.load is not None and study.load.power_flows:
         missing = [e for e in ends if e not in study.sources]
         if missing:

@@ -345,3 +345,101 @@ def _run_index(rows: np.ndarray) -> np.ndarray:
     start = np.flatnonzero(np.r_[True, rows[1:] != rows[:-1]])
     counts = np.diff(np.r_[start, rows.size])
     return np.arange(rows.size) - np.repeat(start, counts)
+
+
+def _sub_cascade(length_m: np.ndarray, a: float, b: float) -> tuple[np.ndarray, np.ndarray]:
+    """Sections (indices) and their lengths [m] within [a, b] of the line [m]."""
+    edges = np.concatenate([[0.0], np.cumsum(length_m)])
+    lo = np.maximum(edges[:-1], a)
+    hi = np.minimum(edges[1:], b)
+    part = hi - lo
+    keep = np.flatnonzero(part > 1e-12 * max(edges[-1], 1.0))
+    return keep, part[keep]
+
+
+def element_fault_chain_products(
+    z: np.ndarray, y: np.ndarray | None, length_m: np.ndarray, m: np.ndarray,
+    at: np.ndarray, z_el: np.ndarray,
+) -> tuple[np.ndarray, np.ndarray]:
+    r"""As :func:`fault_chain_products`, with lumped series elements in the cascade.
+
+    A lumped series element of impedance matrix :math:`Z_e` (e.g. a series capacitor
+    bank, :math:`-jX_C` in each phase) has the chain matrix
+
+    .. math:: E = \begin{bmatrix} 1 & Z_e \\ 0 & 1 \end{bmatrix}
+
+    (the same seen from either side), inserted at its place between the uniform parts
+    [1]_. The line is cut at the elements into pieces; the chain matrix from a bus to a
+    fault is the product of the whole pieces and elements on the way and the part of the
+    fault's own piece (:func:`fault_chain_products` of that piece).
+
+    A fault exactly at an element's place is on its bus side for an element at a line end
+    (m = 0 and m = 1 are the buses) and on its S side for a mid-line element; a fault on
+    the other side is at a location just beyond it.
+
+    Parameters
+    ----------
+    z, y, length_m, m
+        As :func:`fault_chain_products` [ohm/m, S/m, m, 1].
+    at : (E,) float array
+        Places of the elements as fractions of the line from bus S [1], in [0, 1].
+    z_el : (E, n, n) complex array
+        Impedance matrix of each element [ohm].
+
+    Returns
+    -------
+    phi_s, phi_r : (M, 2n, 2n) complex arrays
+        Chain matrix from bus S to the fault and from bus R to the fault.
+    """
+    length_m = np.asarray(length_m, dtype=float)
+    m = np.asarray(m, dtype=float)
+    at = np.asarray(at, dtype=float)
+    order = np.argsort(at, kind="stable")
+    at, z_el = at[order], np.asarray(z_el, dtype=complex)[order]
+    n = z.shape[-1]
+    total = float(np.sum(length_m))
+    bounds = np.concatenate([[0.0], at, [1.0]])  # piece k is [bounds[k], bounds[k + 1]]
+    n_p = at.size + 1
+    # piece of each fault: the first whose R end is at or beyond it (S side of a mid-line
+    # element), but the last for m = 1 (bus side of an element at bus R)
+    piece = np.searchsorted(bounds[1:], m, side="left")
+    piece = np.where(m >= 1.0, n_p - 1, np.minimum(piece, n_p - 1))
+    eye = np.eye(2 * n, dtype=complex)
+    elem = np.tile(eye, (at.size, 1, 1))
+    elem[:, :n, n:] = z_el
+    whole_s = np.tile(eye, (n_p, 1, 1))  # each piece from its S end
+    whole_r = np.tile(eye, (n_p, 1, 1))  # each piece from its R end
+    local_s: dict[int, np.ndarray] = {}  # per piece: its faults' parts (from S, from R)
+    local_r: dict[int, np.ndarray] = {}
+    for k in range(n_p):
+        idx, ln = _sub_cascade(length_m, bounds[k] * total, bounds[k + 1] * total)
+        if not idx.size:  # a zero-length piece (an element at a bus)
+            continue
+        sel = np.flatnonzero(piece == k)
+        span = bounds[k + 1] - bounds[k]
+        local = np.clip((m[sel] - bounds[k]) / span, 0.0, 1.0)
+        # the piece's faults and its two ends in one call (the whole piece either way)
+        ps, pr = fault_chain_products(z[idx], None if y is None else y[idx], ln,
+                                      np.concatenate([local, [0.0, 1.0]]))
+        whole_s[k], whole_r[k] = ps[-1], pr[-2]
+        local_s[k], local_r[k] = ps[:-2], pr[:-2]
+    pre_s = np.empty((n_p, 2 * n, 2 * n), dtype=complex)  # bus S to the S end of piece k
+    pre_s[0] = eye
+    for k in range(1, n_p):
+        pre_s[k] = pre_s[k - 1] @ whole_s[k - 1] @ elem[k - 1]
+    pre_r = np.empty_like(pre_s)  # bus R to the R end of piece k
+    pre_r[-1] = eye
+    for k in range(n_p - 2, -1, -1):
+        pre_r[k] = pre_r[k + 1] @ whole_r[k + 1] @ elem[k]
+    phi_s = np.empty((m.size, 2 * n, 2 * n), dtype=complex)
+    phi_r = np.empty_like(phi_s)
+    for k in range(n_p):
+        sel = np.flatnonzero(piece == k)
+        if not sel.size:
+            continue
+        if k not in local_s:  # faults in a zero-length piece: at the element's bus side
+            phi_s[sel], phi_r[sel] = pre_s[k], pre_r[k]
+            continue
+        phi_s[sel] = pre_s[k] @ local_s[k]
+        phi_r[sel] = pre_r[k] @ local_r[k]
+    return phi_s, phi_r

@@ -18,7 +18,7 @@ from collections.abc import Mapping
 import numpy as np
 
 from relayset.errors import InputError
-from relayset.physics.chain import chain_products
+from relayset.physics.chain import chain_products, element_fault_chain_products
 from relayset.physics.network import (
     LineCascade,
     Source,
@@ -86,7 +86,12 @@ def emfs_for_load(
     n_c = 2 if (line.n_conductors == 6 and parallel_state == "in_service") else 1
     z1 = _positive_sequence(line.z_ohm_per_m, n_c)
     y1 = None if line.y_s_per_m is None else _positive_sequence(line.y_s_per_m, n_c)
-    phi = chain_products(z1, y1, line.length_m[None, :], reverse=False)[0]
+    if line.elements:  # series capacitor banks in the line
+        z_el = np.concatenate([_positive_sequence(e.z_ohm[None], n_c) for e in line.elements])
+        phi = element_fault_chain_products(z1, y1, line.length_m, np.array([1.0]),
+                                           np.array([e.at for e in line.elements]), z_el)[0][0]
+    else:
+        phi = chain_products(z1, y1, line.length_m[None, :], reverse=False)[0]
     a_, b_, c_, d_ = phi[:n_c, :n_c], phi[:n_c, n_c:], phi[n_c:, :n_c], phi[n_c:, n_c:]
     b_inv = np.linalg.inv(b_)
     y11, y12 = d_ @ b_inv, c_ - d_ @ b_inv @ a_  # current into the line at S

@@ -56,7 +56,7 @@ from dataclasses import dataclass
 import numpy as np
 
 from relayset.errors import InputError, suggest
-from relayset.physics.chain import fault_chain_products
+from relayset.physics.chain import element_fault_chain_products, fault_chain_products
 from relayset.physics.faults import (
     FAULT_TYPES,
     check_fault_type,
@@ -67,7 +67,7 @@ from relayset.physics.sequence import balanced_phase_matrix, fortescue_matrix
 
 __all__ = [
     "FAULT_TYPES", "OPEN_END_STATES", "PARALLEL_STATES", "FaultSweep", "LineCascade",
-    "NeighbourEnd", "Source", "solve_fault_sweep",
+    "NeighbourEnd", "SeriesElement", "Source", "solve_fault_sweep",
 ]
 
 PARALLEL_STATES: tuple[str, ...] = ("in_service", "earthed", "isolated")
@@ -224,6 +224,47 @@ class NeighbourEnd:
 
 
 @dataclass(frozen=True, eq=False)
+class SeriesElement:
+    r"""A lumped series element in the line (a series capacitor bank).
+
+    Its chain matrix :math:`[[1, Z_e],[0, 1]]` sits between the uniform sections at its
+    place (:func:`~relayset.physics.chain.element_fault_chain_products`, where the side of
+    a fault exactly at its place is stated).
+
+    Parameters
+    ----------
+    at : float
+        Place as a fraction of the line from bus S [1], in [0, 1] (0, 1: at a bus).
+    z_ohm : (n, n) complex array
+        Impedance matrix [ohm], n the line's conductors (a bank: ``-jX_C`` on the diagonal
+        of each compensated phase; zero rows for an uncompensated circuit).
+    vt_line_side : bool
+        For an element at a bus: the relay's voltage transformer there is on the line side
+        of the element, so the sweep's voltage at that end is the line-side voltage.
+    """
+
+    at: float
+    z_ohm: np.ndarray
+    vt_line_side: bool = False
+
+    def __post_init__(self) -> None:
+        at = float(self.at)
+        if not (0.0 <= at <= 1.0):
+            raise InputError("element place must be a fraction of the line in [0, 1]",
+                             field="at", value=at)
+        z = np.array(self.z_ohm, dtype=complex)
+        if z.ndim != 2 or z.shape[0] != z.shape[1] or not np.all(np.isfinite(z)):
+            raise InputError("element impedance must be a finite square matrix",
+                             field="z_ohm", value=z.shape)
+        if self.vt_line_side and 0.0 < at < 1.0:
+            raise InputError("a voltage transformer side belongs to an element at a bus",
+                             field="vt_line_side", value=at)
+        z.setflags(write=False)
+        object.__setattr__(self, "at", at)
+        object.__setattr__(self, "z_ohm", z)
+
+
+@dataclass(frozen=True, eq=False)
 class LineCascade:
     """Protected line as a cascade of uniform sections, matrices in phase order.
 
@@ -236,11 +277,14 @@ class LineCascade:
         Section lengths [m], > 0, in order from bus S to bus R.
     y_s_per_m : (S, n, n) complex array, optional
         Shunt admittance matrix of each section [S/m] (j·omega·C). None: series-only.
+    elements : tuple of SeriesElement, optional
+        Lumped series elements (series capacitor banks) in the cascade.
     """
 
     z_ohm_per_m: np.ndarray
     length_m: np.ndarray
     y_s_per_m: np.ndarray | None = None
+    elements: tuple[SeriesElement, ...] = ()
 
     def __post_init__(self) -> None:
         z = np.array(self.z_ohm_per_m, dtype=complex)
@@ -274,6 +318,11 @@ class LineCascade:
                 )
             _check_matrix(y, "y_s_per_m")
             y.setflags(write=False)
+        for el in self.elements:
+            if el.z_ohm.shape != z.shape[1:]:
+                raise InputError(f"element impedance must have shape {z.shape[1:]}",
+                                 field="elements", value=el.z_ohm.shape)
+        object.__setattr__(self, "elements", tuple(self.elements))
         z.setflags(write=False)
         length.setflags(write=False)
         object.__setattr__(self, "z_ohm_per_m", z)
@@ -473,6 +522,27 @@ def _emfs(
     e_s = np.broadcast_to(e * np.exp(1j * delta), (n_cases, delta.size)).copy()
     e_r = np.full((n_cases, delta.size), e, dtype=complex)
     return e_s, e_r
+
+
+def _vt_line_side(line: LineCascade, t: np.ndarray, n: int, m: np.ndarray) -> None:
+    """Rows of the end voltages moved to the line side of a bus element whose relay VT is
+    there (in place on the result rows ``t``, unknowns ``x = [V_F, I_L, I_R]``). For a
+    fault beyond the element the current into the line flows through it first:
+    :math:`V_{line} = V_{bus} - Z_e I`. For a fault at the bus (between the current
+    transformer and the element) the element carries the current from the line into the
+    fault: :math:`V_{line} = V_F + Z_e I_{R}` at S (:math:`V_F + Z_e I_{L}` at R)."""
+    for el in line.elements:
+        if not el.vt_line_side:
+            continue
+        ze = el.z_ohm[:n, :n]
+        at_s = el.at == 0.0
+        v0, i0 = (0, n) if at_s else (2 * n, 3 * n)
+        bus = (m == 0.0) if at_s else (m == 1.0)
+        t[~bus, v0:v0 + n] -= ze @ t[~bus, i0:i0 + n]
+        t[bus, v0:v0 + n] = 0.0
+        t[bus, v0:v0 + n, 0:n] = np.eye(n)
+        c0 = 2 * n if at_s else n  # the current from the line side into the fault
+        t[bus, v0:v0 + n, c0:c0 + n] = ze
 
 
 def _line_matrices(line: LineCascade, parallel_state: str) -> tuple[np.ndarray, np.ndarray | None]:
@@ -696,7 +766,12 @@ def solve_fault_sweep(
     z_ref = float(np.max(np.abs(line.z_total_ohm)))
 
     # (M, 2n, 2n) each; memory bounded in the number of sections
-    phi_l, phi_r = fault_chain_products(z, y, line.length_m, m)
+    if line.elements:
+        phi_l, phi_r = element_fault_chain_products(
+            z, y, line.length_m, m, np.array([e.at for e in line.elements]),
+            np.array([e.z_ohm[:n, :n] for e in line.elements]))
+    else:
+        phi_l, phi_r = fault_chain_products(z, y, line.length_m, m)
     zs = None if source_s is None else source_s.phase_matrix(scale[:, 0])
     zr = None if source_r is None else source_r.phase_matrix(scale[:, 1])
     # Sequential clearing: the open end's terminal is "open", the other end in service.
@@ -738,6 +813,7 @@ def solve_fault_sweep(
     t[:, 3 * n:4 * n, 0:n] = phi_r[:, n:, :n]
     t[:, 3 * n:4 * n, 2 * n:] = phi_r[:, n:, n:]
     t[:, 4 * n:, :] = np.eye(3 * n)
+    _vt_line_side(line, t, n, m)
     # The bus voltage is circuit 1's end voltage, but circuit 2's where circuit 1 is open.
     bus_s, bus_r = 3 * (st_l == "open"), 3 * (st_r == "open")
     starts = {"v_s": bus_s, "i_s": n, "i_s_parallel": n + 3, "v_r": 2 * n + bus_r,

@@ -522,6 +522,34 @@ def _reach(d: dict[str, Any]) -> dict[str, Any] | None:
         "worst_resistive": [key.endswith("_resistive") for key, _ in WORST_KEYS],
         # the cases name their transfer angle when there is more than one load case
         "several_loads": len(q["power_flows"] or q["transfer_angles_deg"]) > 1,
+        "series_capacitors": _series_capacitors(q.get("series_capacitors")),
+    }
+
+
+def _series_capacitors(c: dict[str, Any] | None) -> dict[str, Any] | None:
+    """The series capacitor banks, their states, Z1 with and without them and the
+    inversion checks, as the report prints them (relayset.studies.series_capacitors)."""
+    if not c:
+        return None
+    banks = []
+    for b in c["banks"]:
+        v = b["varistor_state"]
+        banks.append({
+            "name": b["name"], "place": b["place"], "x_c": num(b["reactance_ohm"], 4),
+            "compensation": num(b["compensation_pct"], 3),
+            "i_pl": num(b["protective_level_current_a"] / 1e3, 3),
+            "i_close_in": num(v["capacitor_current_a"] / 1e3, 3),
+            "i_pu": num(v["current_pu_of_protective_level"], 3),
+            "z_varistor": cnum(v["impedance_ohm"], 4)})
+    return {
+        "banks": banks,
+        "states": list(c["states"].values()),
+        "z1_line": cnum(c["z1_line_ohm"], 4),
+        "z1_compensated": [(end, cnum(z, 4)) for end, z in c["z1_compensated_ohm"].items()],
+        "inversions": [{"end": i["end"], "kind": i["kind"].replace("_", " "),
+                        "exists": i["exists"], "text": _ohm_text(i["text"])}
+                       for i in c["inversion_checks"]],
+        "notes": list(c["notes"]),
     }
 
 
@@ -684,6 +712,11 @@ def _state_text(state: str) -> str:
     return words if state.startswith("neighbour") else f"parallel circuit {words}"
 
 
+#: The series capacitor states as a case names them.
+_CAP_WORDS = {"in_service": "in service", "varistor": "varistor conducting",
+              "bypassed": "bypassed"}
+
+
 def _case_text(g: dict[str, Any]) -> str:
     """A governing fault case in words (everything needed to reproduce it)."""
     return _ohm_text(
@@ -691,6 +724,8 @@ def _case_text(g: dict[str, Any]) -> str:
         f" %, Rf {num(g['r_fault_ohm'], 3)} \u03a9, Rph {num(g.get('r_phase_ohm'), 3)} \u03a9, "
         f"{g['source_case']}, transfer angle {num(g.get('transfer_angle_deg'), 1)}\u00b0, "
         f"{_state_text(g['parallel_state'])}, "
+        + (f"series capacitors {_CAP_WORDS.get(g['capacitor_state'], g['capacitor_state'])}, "
+           if g.get("capacitor_state") else "") +
         f"{g['earth_resistivity_ohm_m']:g} \u03a9\u00b7m, loop {g['loop']}")
 
 

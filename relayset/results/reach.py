@@ -212,6 +212,9 @@ class ReachStudyResult:
     notes: tuple[str, ...]
     #: A shared corridor: the neighbouring line's name, shared length and states solved.
     neighbour: dict[str, Any] | None = None
+    #: Series capacitor banks, their states, the varistor state's operating point and the
+    #: inversion checks (relayset.studies.series_capacitors); None without banks.
+    series_capacitors: dict[str, Any] | None = None
 
     # Old names (relayset 0.2), one release.
     source_impedances = alias("source_impedances_ohm", "source_impedances")
@@ -247,4 +250,5 @@ class ReachStudyResult:
             "ends": [e.to_dict() for e in self.ends],
             "notes": list(self.notes),
             **({} if self.neighbour is None else {"neighbour": self.neighbour}),
-        }
+        } | ({} if self.series_capacitors is None
+             else {"series_capacitors": self.series_capacitors})

@@ -46,6 +46,8 @@ class VerificationCase:
     loop: str  #: the measuring loop that governs, in the study's phase labels
     z_apparent_primary_ohm: complex  #: what that loop measures [ohm]
     mutual_compensation: bool
+    #: series capacitor state ("in_service", "varistor", "bypassed"); None without banks
+    capacitor_state: str | None = None
 
     def to_dict(self) -> dict[str, Any]:
         return {
@@ -61,7 +63,8 @@ class VerificationCase:
             "loop": self.loop,
             "z_apparent_primary_ohm": cplx(self.z_apparent_primary_ohm),
             "mutual_compensation": self.mutual_compensation,
-        }
+        } | ({} if self.capacitor_state is None
+             else {"capacitor_state": self.capacitor_state})
 
 
 @dataclass(frozen=True)
@@ -167,6 +170,9 @@ class VerificationResult:
     envelope: dict[str, Any] | None = None  #: what was swept (load, resistances, rho)
     relay_model: dict[str, Any] | None = None  #: per end, the relay the proof assumes
     deviations: tuple[AcceptedDeviation, ...] = ()  #: failed checks the study accepts
+    #: series capacitor states solved (empty without banks) and the banks' basis
+    capacitor_states: tuple[str, ...] = ()
+    series_capacitors: dict[str, Any] | None = None
 
     @property
     def failures(self) -> list[tuple[str, ZoneVerification]]:
@@ -204,4 +210,6 @@ class VerificationResult:
             "envelope": self.envelope,
             "relay_model": self.relay_model,
             "accepted_deviations": [d.to_dict() for d in self.deviations],
-        }
+        } | ({} if not self.capacitor_states else {
+            "capacitor_states": list(self.capacitor_states),
+            "series_capacitors": self.series_capacitors})

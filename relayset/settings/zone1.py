@@ -146,3 +146,33 @@ def zone1_target(w: RuleContext) -> tuple[complex, str, list[Check]]:
             f"{limit:g} %",
         ))
     return pct / 100 * i.z1_line_ohm, rule, checks
+
+
+def compensated_zone1_pct(x_line_ohm: float, x_compensated_ohm: float,
+                          error_budget_pct: float, margin_pct: float) -> float:
+    r"""Zone 1 limit of a series-compensated line [% of the line's Z1].
+
+    Zone 1 must stay short of the remote bus through the compensated line: below the
+    reactance of the protected line with every bank in service as seen from the relay
+    (:math:`X_{L1} - X_C`, the banks in the relay's measured path), minus the margin, and
+    with the error budget as for any line (common practice, no source; the reactance,
+    which a capacitor reduces, decides):
+
+    .. math:: r \le \frac{(100 - m)\,(X_{L1} - X_C)/X_{L1}}{1 + b/100}\ [\%]
+
+    rounded down to 0.5 %.
+
+    Parameters
+    ----------
+    x_line_ohm : float
+        Positive-sequence reactance of the protected line [ohm], > 0.
+    x_compensated_ohm : float
+        That reactance less the banks in the relay's path [ohm].
+    error_budget_pct, margin_pct : float
+        As :func:`recommended_zone1_pct` [%].
+    """
+    if not (math.isfinite(x_line_ohm) and x_line_ohm > 0 and math.isfinite(x_compensated_ohm)):
+        raise InputError("line reactance must be positive", field="x_line_ohm",
+                         value=x_line_ohm)
+    limit = (100.0 - margin_pct) * x_compensated_ohm / x_line_ohm / (1 + error_budget_pct / 100)
+    return max(0.0, math.floor(limit * 2 + 1e-9) / 2)

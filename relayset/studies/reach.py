@@ -34,9 +34,10 @@ from relayset.results.reach import (
 )
 from relayset.results.relay import RelayBasis
 from relayset.results.serialize import cplx
-from relayset.settings.zone1 import recommended_zone1_pct
+from relayset.settings.zone1 import compensated_zone1_pct, recommended_zone1_pct
 from relayset.studies.geometry import LineGeometry
 from relayset.studies.parameters import plan_sections, section_stack
+from relayset.studies.series_capacitors import capacitor_basis, describe_state, with_state
 
 LOOPS = measurement.LOOPS
 
@@ -178,13 +179,17 @@ def run_reach_study(
                    "r_phase_ohm": "reach_study.phase_fault_resistance",
                    "source_scale": "reach_study.source_cases"}
     lines = {key: line_cascade(geo, params, key, rs.shunt_capacitance) for key in plans}
+    # Series capacitor banks: their states are an extra axis of every arrangement's sweep.
+    caps = capacitor_basis(study, geo, params, lines["actual_plan"], src, source)
+    cap_states = caps.states if caps is not None else ("",)
     # Identical arrangements (one-section line: actual plan = untransposed; ideal plan =
     # ideal cycle) are solved once and reported under each name.
     same_as: dict[str, str] = {}
     for key, line in lines.items():
         same_as[key] = next((k for k in same_as if same_as[k] == k
                              and _same_cascade(lines[k], line)), key)
-    per_arrangement = len(rs.fault_types) * m.size * rf.size * scales.shape[0] * angles.size
+    per_arrangement = (len(rs.fault_types) * m.size * rf.size * scales.shape[0] * angles.size
+                       * len(cap_states))
     # A shared corridor: the neighbour's states are a state axis (every arrangement with it
     # in service, the actual plan also with it out, earthed and isolated).
     corridor = params.neighbour is not None
@@ -194,7 +199,7 @@ def run_reach_study(
 
         nb_ends = neighbour_ends(study, params, source)
     n_distinct = len(set(same_as.values())) + (len(NEIGHBOUR_STATES) - 1 if corridor else 0)
-    per_location = per_arrangement // m.size
+    per_location = per_arrangement // m.size // len(cap_states)
     if per_location > MAX_CASES_PER_LOCATION:  # one location is the smallest chunk
         raise InputError(
             f"asks for {per_location:,} fault cases at each location (fault types x "
@@ -220,31 +225,37 @@ def run_reach_study(
             if ck not in condensers:
                 condensers[ck] = _Condenser(
                     end_name == names[0], mutual, z1_set, k0_set,
-                    k0m_set if mutual else None, z1_reach, rs.fault_types, rf, m)
+                    k0m_set if mutual else None, z1_reach, rs.fault_types, rf, m,
+                    cap_states)
     outputs = [o for e in ends for o in (("v_s", "i_s", "i_s_parallel") if e == names[0]
                                          else ("v_r", "i_r", "i_r_parallel"))]
     m_chunk = max(1, CHUNK_CASES // per_location)
-    angles_rad = {}  # per arrangement solved: (K, L) transfer angles of its load cases
+    # per arrangement solved (and the neighbour's state), per capacitor state: (K, L)
+    # transfer angles of its load cases
+    angles_rad: dict[tuple[str, str], list] = {}
     solves = list(dict.fromkeys((same_as[k], st) for k, _mu, st in variants))
     for key, state in solves:
-        line = lines[key]
-        try:
-            emf = _emfs_for_power_flows(study, line, src, names, ends[0], scales, state,
-                                        geo.v_nominal_v, corridor)
-            for start in range(0, m.size, m_chunk):
-                sw = network.solve_fault_sweep(
-                    line, src[names[0]], src[names[1]], v_nominal_v=geo.v_nominal_v,
-                    fault_types=rs.fault_types, m=m[start:start + m_chunk], r_fault_ohm=rf,
-                    r_phase_ohm=rs.phase_fault_resistance, source_scale=scales,
-                    transfer_angle_rad=angles, parallel_state=state, emf_v=emf,
-                    field_names=field_names, outputs=outputs, neighbour=nb_ends)
-                for (_end, k, _mutual, st), cond in condensers.items():
-                    if k == key and st == state:
-                        cond.add(sw, start)
-                angles_rad[key, state] = sw.transfer_angle_rad
-                del sw
-        except InputError as exc:
-            raise exc.located(source=source) from None
+        angles_rad[key, state] = [None] * len(cap_states)
+        for k_c, cap in enumerate(cap_states):
+            line = with_state(lines[key], caps, cap)
+            try:
+                emf = _emfs_for_power_flows(study, line, src, names, ends[0], scales, state,
+                                            geo.v_nominal_v, corridor)
+                for start in range(0, m.size, m_chunk):
+                    sw = network.solve_fault_sweep(
+                        line, src[names[0]], src[names[1]], v_nominal_v=geo.v_nominal_v,
+                        fault_types=rs.fault_types, m=m[start:start + m_chunk],
+                        r_fault_ohm=rf, r_phase_ohm=rs.phase_fault_resistance,
+                        source_scale=scales, transfer_angle_rad=angles,
+                        parallel_state=state, emf_v=emf, field_names=field_names,
+                        outputs=outputs, neighbour=nb_ends)
+                    for (_end, k, _mutual, st), cond in condensers.items():
+                        if k == key and st == state:
+                            cond.add(sw, start, k_c)
+                    angles_rad[key, state][k_c] = sw.transfer_angle_rad
+                    del sw
+            except InputError as exc:
+                raise exc.located(source=source) from None
 
     end_results = []
     for end_name in ends:
@@ -268,6 +279,10 @@ def run_reach_study(
         worst = actual.worst_bolted_overreach_at_remote_bus_pct
         rec = recommended_zone1_pct(worst, budget, zone1_max_pct, zone1_margin_pct)
         allowed = recommended_zone1_pct(worst, budget, 100.0, zone1_margin_pct)  # no cap
+        if caps is not None:  # a compensated line: below its compensated reactance
+            comp = compensated_zone1_pct(caps.x_line1_ohm, caps.z1_compensated_ohm[end_name].imag,
+                                         budget, zone1_margin_pct)
+            rec, allowed = min(rec, comp), min(allowed, comp)
         gov = max((lp for lp in actual.loops if lp.worst_overreach_at_remote_bus is not None),
                   key=lambda lp: lp.worst_overreach_at_remote_bus.error_pct, default=None)
         end_results.append(EndReach(
@@ -304,6 +319,12 @@ def run_reach_study(
             "other buses): no mutual compensation for it.")
         neighbour = {"name": nbp.name, "shared_length_km": nbp.shared_length_m / 1e3,
                      "states": list(NEIGHBOUR_STATES)}
+    if caps is not None:
+        notes += list(caps.notes)
+        notes.append(
+            f"Compensated line: zone 1 at most (100 - {zone1_margin_pct:g} %) x (X_L1 - X_C)"
+            f"/X_L1 / (1 + {budget:g} %/100) (common practice, no source), with X_C the "
+            "banks in the relay's measured path; worst cases name the capacitor state.")
     if rs.shunt_capacitance:
         notes.append("Line shunt capacitance included (exact distributed sections).")
     else:
@@ -325,6 +346,7 @@ def run_reach_study(
         cases_solved=per_arrangement * n_distinct,  # identical arrangements are solved once
         notes=tuple(notes),
         neighbour=neighbour,
+        series_capacitors=None if caps is None else caps.to_dict(),
     )
 
 
@@ -357,7 +379,9 @@ def emfs_for_flows_at(line, src, names, end, p_w, q_var, scales, parallel, v_nom
                                      p_w=p_w, q_var=q_var, source_scale=scales,
                                      parallel_state=parallel)
     rev = network.LineCascade(line.z_ohm_per_m[::-1], line.length_m[::-1],
-                              None if line.y_s_per_m is None else line.y_s_per_m[::-1])
+                              None if line.y_s_per_m is None else line.y_s_per_m[::-1],
+                              tuple(network.SeriesElement(1.0 - e.at, e.z_ohm, e.vt_line_side)
+                                    for e in line.elements))  # series capacitor banks
     e_r, e_s = loadflow.emfs_for_load(rev, src[names[1]], src[names[0]], v_nominal_v=v_nom,
                                      p_w=p_w, q_var=q_var, source_scale=scales[..., ::-1]
                                      if np.ndim(scales) == 2 else scales,
@@ -406,8 +430,11 @@ class _Condenser:
     load case) order, as np.nanargmax would return it on each loop's own fault types.
     All six loops are condensed together, a loop's other fault types masked with NaN."""
 
-    def __init__(self, at_s, mutual, z1_set, k0_set, k0m_set, z1_reach, ftypes, rf, m):
+    def __init__(self, at_s, mutual, z1_set, k0_set, k0m_set, z1_reach, ftypes, rf, m,
+                 cap_states=("",)):
         self.at_s, self.mutual = at_s, mutual
+        self.cap_states = tuple(cap_states)  #: series capacitor states ("" without banks)
+        self.k_c = 0  #: the capacitor state of the chunk being condensed
         self.z1_set, self.k0_set, self.k0m_set = z1_set, k0_set, k0m_set
         self.ftypes, self.rf = tuple(ftypes), rf
         self.m = m if at_s else 1.0 - m  # location seen from the relay
@@ -455,8 +482,11 @@ class _Condenser:
         react[~self.meant] = np.nan
         return along, react
 
-    def add(self, sw, start: int) -> None:
-        """Condense one chunk of the sweep, whose locations start at index ``start``."""
+    def add(self, sw, start: int, k_c: int = 0) -> None:
+        """Condense one chunk of the sweep, whose locations start at index ``start``
+        (``k_c``: its capacitor state)."""
+        self.k_c = k_c
+        cap = (k_c,) if len(self.cap_states) > 1 else ()  # the case index's capacitor state
         if self.at_s:
             v, i, ip = sw.v_s, sw.i_s, sw.i_s_parallel
         else:
@@ -469,11 +499,14 @@ class _Condenser:
                                 self.m[start:stop][None, None, :, None, None, None])
         with warnings.catch_warnings():  # all-NaN slices (m = 0, unused loops) are expected
             warnings.simplefilter("ignore", RuntimeWarning)
-            self.env_max[:, start:stop] = np.nanmax(along, axis=(1, 3, 4, 5))
-            self.env_min[:, start:stop] = np.nanmin(along, axis=(1, 3, 4, 5))
+            self.env_max[:, start:stop] = np.fmax(self.env_max[:, start:stop],
+                                                  np.nanmax(along, axis=(1, 3, 4, 5)))
+            self.env_min[:, start:stop] = np.fmin(self.env_min[:, start:stop],
+                                                  np.nanmin(along, axis=(1, 3, 4, 5)))
 
         def line_idx(ix):
-            return (int(ix[0]), start + int(ix[1]), int(rb[ix[2]]), int(ix[3]), int(ix[4]))
+            return (int(ix[0]), start + int(ix[1]), int(rb[ix[2]]), int(ix[3]), int(ix[4]),
+                    *cap)
 
         self._offer("over_line", along, True, line_idx)
         self._offer("under_line", along, False, line_idx)
@@ -483,7 +516,7 @@ class _Condenser:
                 continue
 
             def point_idx(ix, j_m=j_m):
-                return (int(ix[0]), j_m, int(rb[ix[1]]), int(ix[2]), int(ix[3]))
+                return (int(ix[0]), j_m, int(rb[ix[1]]), int(ix[2]), int(ix[3]), *cap)
 
             sub = along[:, :, j_m - start]
             for pick, largest in picks:
@@ -494,7 +527,8 @@ class _Condenser:
                                     self.m[self.i_reach])  # (loop, F, Rr, K, L)
 
             def res_idx(ix):
-                return (int(ix[0]), self.i_reach, int(rr[ix[1]]), int(ix[2]), int(ix[3]))
+                return (int(ix[0]), self.i_reach, int(rr[ix[1]]), int(ix[2]), int(ix[3]),
+                        *cap)
 
             self._offer("reactance_over_resistive", react, True, res_idx)
 
@@ -509,12 +543,16 @@ class _Condenser:
             has_finite, val, idx = self.best[(lp, pick)]
             if not has_finite or val is None:
                 return None
-            f, k_m, k_rf, k_s, k_l = idx
+            f, k_m, k_rf, k_s, k_l = idx[:5]
+            k_c = idx[5] if len(idx) > 5 else 0
             mm = float(self.m[k_m])
+            cap = self.cap_states[k_c]
             return WorstCase(
                 error_pct=val, fault_type=ft_labels[f], m=mm,
-                r_fault_ohm=float(self.rf[k_rf]), source_case=rs.source_cases[k_s].name,
-                transfer_angle_deg=math.degrees(float(angle[k_s, k_l])),
+                r_fault_ohm=float(self.rf[k_rf]),
+                source_case=rs.source_cases[k_s].name + (
+                    f" (series capacitors {describe_state(cap, short=True)})" if cap else ""),
+                transfer_angle_deg=math.degrees(float(angle[k_c][k_s, k_l])),
                 positions=_positions_at(mm, lp, orders, lengths, position_names))
 
         summaries = [LoopSummary(loop=loop_label(lp, labels),

@@ -129,7 +129,8 @@ def _describe(vw: View, which: np.ndarray, labels, faulted: str, rf_pairs):
             transfer_angle_deg=round(ang, 6), parallel_state=run.state,
             earth_resistivity_ohm_m=run.rho_ohm_m, loop=loop_label(loop, labels),
             z_apparent_primary_ohm=vw.loop_at(loop, idx),
-            mutual_compensation=bool(np.broadcast_to(vw.mutual, which.shape)[idx]))
+            mutual_compensation=bool(np.broadcast_to(vw.mutual, which.shape)[idx]),
+            capacitor_state=run.cap_state or None)
     return fn
 
 
@@ -644,6 +645,7 @@ def verify_settings(study: Study, geo: LineGeometry, params_by_rho: dict[float, 
         "line; margins are in % of the zone's forward reach.",
         *(f"At {end}: " + mdl.describe(sim.mutual) for end, mdl in models.items()),
         *env.describe(),
+        *_capacitor_notes(sim),
         f"Envelope: {len(sim.states)} "
         f"{'neighbouring-line' if geo.corridor is not None else 'parallel-circuit'} "
         f"state(s) × {len(sim.case_names)} "
@@ -670,7 +672,22 @@ def verify_settings(study: Study, geo: LineGeometry, params_by_rho: dict[float, 
         earth_resistivities_ohm_m=sim.resistivities, cases_solved=n_cases, notes=notes,
         envelope=env.to_dict(),
         relay_model={end: mdl.to_dict() for end, mdl in models.items()},
-        deviations=accepted)
+        deviations=accepted, capacitor_states=sim.capacitor_states,
+        series_capacitors=sim.capacitors)
+
+
+def _capacitor_notes(sim: Simulation) -> tuple[str, ...]:
+    """The series capacitor states as simulated (each multiplies the envelope)."""
+    if not sim.capacitor_states:
+        return ()
+    from relayset.studies.series_capacitors import describe_state
+
+    return ("Series capacitor states (every case solved in each): "
+            + "; ".join(describe_state(s) for s in sim.capacitor_states) + ". Zone 1's "
+            "limit is the compensated line's (every bank in service, the worst case for "
+            "its overreach); zone 2 is set on the line's own Z1 (the banks bypassed, the "
+            "worst case for its underreach), and its coverage and grading are judged in "
+            "every state.",)
 
 
 def _branch_notes(study: Study, source: str) -> tuple[str, ...]:

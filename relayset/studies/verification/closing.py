@@ -187,6 +187,7 @@ def settle_and_verify(study: Study, geo: LineGeometry, params: LineParameters, r
                 f"{summary[end].zone1_overreach_pct():.3g} % of the setting",
                 "review the governing case in the verification; a pilot scheme restores "
                 "instantaneous coverage of the line end")))
+    final = _inversion_warnings(reach, final)
     if profile is not None:  # the settings become final: on the relay's steps
         from relayset.settings.settable import settable_settings
 
@@ -228,6 +229,30 @@ def settle_and_verify(study: Study, geo: LineGeometry, params: LineParameters, r
         ends.append(replace(e, checks=tuple(checks)))
     ver = replace(ver, ends=tuple(ends))
     return tuple(final[e] for e in wanted), ver
+
+
+def _inversion_warnings(reach, final: dict) -> dict:
+    """Voltage and current inversion found by the series capacitor study
+    (relayset.studies.series_capacitors) as warnings of the settings at that end."""
+    caps = getattr(reach, "series_capacitors", None) if reach is not None else None
+    if not caps:
+        return final
+    from relayset.results.settings import SettingWarning
+
+    consider = {
+        "voltage_inversion": "use memory-polarised or positive-sequence-polarised "
+        "directional elements, and check zone 1 does not rely on the faulted-phase voltage "
+        "for faults just beyond the bank",
+        "current_inversion": "directional elements see the fault as reverse: rely on a pilot "
+        "scheme with current-reversal logic, or reconsider the bank's size or place"}
+    out = dict(final)
+    for end, st in final.items():
+        found = [i for i in caps["inversion_checks"] if i["end"] == end and i["exists"]]
+        if found:
+            out[end] = replace(st, warnings=(*st.warnings, *(SettingWarning(
+                f"series_capacitor_{i['kind']}", i["text"], consider[i["kind"]])
+                for i in found)))
+    return out
 
 
 def _lines_on_their_buses(study: Study) -> Study:

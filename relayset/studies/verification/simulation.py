@@ -25,6 +25,7 @@ from relayset.physics import network
 from relayset.results.parameters import LineParameters
 from relayset.studies.geometry import LineGeometry
 from relayset.studies.reach import build_source, emfs_for_flows_at, line_cascade
+from relayset.studies.series_capacitors import capacitor_basis, with_state
 from relayset.studies.verification.envelope import SEQUENTIAL_M, Envelope, FaultGroup
 
 #: Per-case results the relay model reads (both ends, both circuits, the currents into the
@@ -56,6 +57,9 @@ class Run:
     infeed: dict = field(default_factory=dict)
     #: Per end (True: S), the largest phase current of each case [A], once measured.
     i_max: dict = field(default_factory=dict)
+    #: Series capacitor state of every bank ("" for a line without banks), see
+    #: :mod:`relayset.studies.series_capacitors`.
+    cap_state: str = ""
 
     @property
     def n_cases(self) -> int:
@@ -81,6 +85,9 @@ class Simulation:
     states: tuple[str, ...]
     resistivities: tuple[float, ...]
     max_transfer_angle_deg: float = 0.0
+    #: Series capacitor states solved (empty without banks) and the banks' basis.
+    capacitor_states: tuple[str, ...] = ()
+    capacitors: dict | None = None
 
     @property
     def n_cases(self) -> int:
@@ -142,8 +149,9 @@ def infeed_samples(run: Run, at_s: bool) -> list[tuple[complex, str]]:
     out = []
     for (a, b), kv in np.ndenumerate(k):
         if np.isfinite(kv):
-            out.append((complex(kv), f"{run.case_names[a]}, parallel {run.state}, transfer "
-                        f"angle {delta[a, b]:.1f}°"))
+            cap = f", series capacitors {run.cap_state.replace('_', ' ')}" if run.cap_state else ""
+            out.append((complex(kv), f"{run.case_names[a]}, parallel {run.state}{cap}, "
+                        f"transfer angle {delta[a, b]:.1f}°"))
     return out
 
 
@@ -178,7 +186,9 @@ def swap_circuits(line: network.LineCascade) -> network.LineCascade:
     p = [3, 4, 5, 0, 1, 2]
     z = line.z_ohm_per_m[:, p][:, :, p]
     y = None if line.y_s_per_m is None else line.y_s_per_m[:, p][:, :, p]
-    return network.LineCascade(z, line.length_m, y)
+    els = tuple(network.SeriesElement(e.at, e.z_ohm[p][:, p], e.vt_line_side)
+                for e in line.elements)
+    return network.LineCascade(z, line.length_m, y, els)
 
 
 def load_emfs(env: Envelope, line, src, names, relay_end, scales, state,
@@ -262,10 +272,14 @@ def simulate(study: Study, geo: LineGeometry, params_by_rho: dict[float, LinePar
     runs = []
     all_names: list[str] = []
     max_angle = 0.0
+    caps = _capacitors(study, geo, params_by_rho, src, source)
+    cap_states = caps.states if caps is not None else ("",)
     for rho, params in params_by_rho.items():
         nb_ends = neighbour_ends(study, params, source) if corridor else None
-        for state in states:
-            line = line_cascade(geo, params, "actual_plan", rs.shunt_capacitance)
+        # one level: parallel-circuit (or neighbour) state x capacitor state
+        for state, cap in ((s, c) for s in states for c in cap_states):
+            line = with_state(line_cascade(geo, params, "actual_plan", rs.shunt_capacitance),
+                              caps, cap)
             jobs = []
             if protected:
                 jobs.append(("protected", line, state, "", m))
@@ -315,17 +329,34 @@ def simulate(study: Study, geo: LineGeometry, params_by_rho: dict[float, LinePar
                             raise exc.located(source=source) from None
                         run = Run(sw, faulted, _state_name(state, n_c, corridor), labels,
                                   rho, (s_s is not None, s_r is not None), g.name,
-                                  open_at=open_at)
+                                  open_at=open_at, cap_state=cap)
                         runs.append(run if measure is None else measure(run))
                     all_names += [n for n in labels if n not in all_names]
     if branches and protected:
-        runs += _branch_runs(study, geo, params_by_rho, env, names, src, configs, groups,
-                             relay_end, source, measure)
+        for cap in cap_states:
+            runs += _branch_runs(study, geo, params_by_rho, env, names, src, configs, groups,
+                                 relay_end, source, measure, caps, cap)
     return Simulation(names, geo.phase_labels[0], tuple(runs), n_c, mutual,
                       tuple(all_names),
                       tuple(_state_name(s, n_c, corridor) for s in states)
                       if n_c == 2 or corridor else ("none",),
-                      tuple(sorted(params_by_rho)), max_angle)
+                      tuple(sorted(params_by_rho)), max_angle,
+                      capacitor_states=tuple(c for c in cap_states if c),
+                      capacitors=None if caps is None else caps.to_dict())
+
+
+def _capacitors(study, geo, params_by_rho, src, source):
+    """The series capacitor banks' basis (None without banks), at the study's earth
+    resistivity (or the first of the sweep)."""
+    if not study.series_capacitors:
+        return None
+    rho = float(study.system.earth_resistivity)
+    params = params_by_rho.get(rho) or next(iter(params_by_rho.values()))
+    line = line_cascade(geo, params, "actual_plan", study.reach_study.shunt_capacitance)
+    try:
+        return capacitor_basis(study, geo, params, line, src, source)
+    except InputError as exc:
+        raise exc.located(source=source) from None
 
 
 def _state_name(state: str, n_c: int, corridor: bool) -> str:
@@ -336,7 +367,7 @@ def _state_name(state: str, n_c: int, corridor: bool) -> str:
 
 
 def _branch_runs(study, geo, params_by_rho, env, names, src, configs, groups, relay_end,
-                 source, measure) -> list[Run]:
+                 source, measure, caps=None, cap="") -> list[Run]:
     """Faults along the lines leaving both buses (see :mod:`.branches`): one solve per
     source configuration and fault group, every line point a location at its bus."""
     from relayset.physics.sequence import balanced_phase_matrix
@@ -354,7 +385,8 @@ def _branch_runs(study, geo, params_by_rho, env, names, src, configs, groups, re
     if rho not in params_by_rho:
         rho = next(iter(params_by_rho))
     params = params_by_rho[rho]
-    line = line_cascade(geo, params, "actual_plan", study.reach_study.shunt_capacitance)
+    line = with_state(line_cascade(geo, params, "actual_plan",
+                                   study.reach_study.shunt_capacitance), caps, cap)
     out = []
     # Lean (the benchmark's budget): every fault group with both circuits in service;
     # with the parallel circuit out (the smallest infeed, for zone 2's grading and zone 3's
@@ -386,6 +418,7 @@ def _branch_runs(study, geo, params_by_rho, env, names, src, configs, groups, re
                 except InputError as exc:
                     raise exc.located(source=source) from None
                 run = Run(sw, "branch", _state_name(state, geo.n_circuits, corridor), labels,
-                          rho, (s_s is not None, s_r is not None), g.name, branch=info)
+                          rho, (s_s is not None, s_r is not None), g.name, branch=info,
+                          cap_state=cap)
                 out.append(run if measure is None else measure(run))
     return out
