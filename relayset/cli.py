@@ -9,6 +9,8 @@ from collections.abc import Sequence
 EXIT_INPUT = 2
 #: A study whose settings failed a verification check (its outputs are still written).
 EXIT_FAILED_CHECKS = 3
+#: A fault of relayset's own (one line, nothing written).
+EXIT_INTERNAL = 1
 
 
 def _version() -> str:
@@ -349,13 +351,17 @@ def main(argv: Sequence[str] | None = None) -> int:
     _one_blas_thread()
     _tolerant_console()
     args = _parser().parse_args(argv)
-    from relayset.errors import InputError
+    from relayset.errors import InputError, InternalError
 
     try:
         return _run(args)
     except InputError as exc:
         print(f"relayset: error: {exc}", file=sys.stderr)
         return EXIT_INPUT
+    except InternalError as exc:  # a fault of relayset's, not of the input
+        print(f"relayset: internal error (please report it; nothing was written): {exc}",
+              file=sys.stderr)
+        return EXIT_INTERNAL
     except BrokenPipeError:
         return 0
 

@@ -136,6 +136,11 @@ def toml_key(key: str) -> str:
     return key if _BARE_KEY.match(key) else as_written(key)
 
 
+class InternalError(RuntimeError):
+    """A fault of the program, not of the input (the command line says so in one line and
+    writes nothing)."""
+
+
 class Written(str):
     """Text shown in a message exactly as it stands in the file (no quotes added)."""
 

@@ -3,7 +3,8 @@ r"""One case of a verification solved again on its own: the network's phasors at
 A :class:`~relayset.results.verification.VerificationCase` names its case as the engineer
 reads it (fault type and loop in the study's phase labels, what was faulted, the location
 from the relay end, :math:`R_g` and :math:`R_{ph}`, the source case, the load case by its
-transfer angle, the parallel-circuit state and the earth resistivity). That is enough to
+transfer angle, the parallel-circuit or neighbouring line's state, the series capacitors'
+state and the earth resistivity). That is enough to
 solve it again as one case with the verification's own pieces: the line at that
 resistivity (:func:`~relayset.studies.verification.closing.params_by_resistivity`), the
 source configurations and load-flow EMFs of :mod:`.simulation`, the faults along the lines
@@ -31,6 +32,7 @@ from functools import cached_property
 
 import numpy as np
 
+from relayset.errors import InternalError
 from relayset.inputs.study_file import Study
 from relayset.physics import network
 from relayset.physics.faults import FAULT_TYPES
@@ -45,7 +47,7 @@ Z_RTOL = 1e-6
 ANGLE_ATOL_DEG = 1e-5
 
 
-class CaseNotReproducedError(RuntimeError):
+class CaseNotReproducedError(InternalError):
     """The case could not be solved again to the verification's loop impedance."""
 
 
@@ -111,14 +113,31 @@ class CaseSolver:
 
         return build_envelope(self.study, [])  # the load cases do not depend on the zones
 
-    def _line(self, rho: float) -> network.LineCascade:
+    @cached_property
+    def _caps(self):
+        """The series capacitor banks' basis as the verification formed it (None: none)."""
+        from relayset.studies.verification.simulation import _capacitors
+
+        return _capacitors(self.study, self.geo, self._by_rho, self._sources, self.source)
+
+    def _line(self, rho: float, capacitor_state: str = ""):
+        """The line at ``rho`` with its banks in the case's state, and the neighbouring
+        line's ends of a shared corridor (None without one)."""
         from relayset.studies.reach import line_cascade
+        from relayset.studies.series_capacitors import with_state
 
         by_rho = self._by_rho
         params = by_rho[rho] if rho in by_rho else by_rho[min(by_rho, key=lambda r: abs(
             r - rho))]
-        return line_cascade(self.geo, params, "actual_plan",
-                            self.study.reach_study.shunt_capacitance)
+        line = with_state(line_cascade(self.geo, params, "actual_plan",
+                                       self.study.reach_study.shunt_capacitance),
+                          self._caps, capacitor_state)
+        nb_ends = None
+        if self.geo.corridor is not None:
+            from relayset.studies.corridor import neighbour_ends
+
+            nb_ends = neighbour_ends(self.study, params, self.source)
+        return line, nb_ends
 
     def _jobs(self, case: VerificationCase, at_s: bool, line):
         """Candidates (faulted, line, solved state, open_at, behind, m from S, branch
@@ -131,9 +150,12 @@ class CaseSolver:
         x = case.location_pct / 100
         m = x if at_s else 1.0 - x
         state = "in_service" if case.parallel_state == "none" else case.parallel_state
+        state = state.removeprefix("neighbour ")  # a shared corridor's neighbour's state
         what = case.faulted
         if what == "protected line":
             return [("protected", line, state, "", False, m, None, ())]
+        if what == "neighbouring line":  # a fault on the neighbour (circuit 2)
+            return [("neighbour", line, state, "", False, m, None, ())]
         if what == "behind the relay":
             return [("protected", line, state, "", True, 0.0 if at_s else 1.0, None, ())]
         if what.startswith("parallel circuit"):
@@ -194,7 +216,8 @@ class CaseSolver:
             raise CaseNotReproducedError(f"unknown fault type or loop: {case.fault_type}, "
                                     f"{case.loop}")
         rho = float(case.earth_resistivity_ohm_m)
-        line = self._line(rho)
+        line, nb_ends = self._line(rho, case.capacitor_state or "")
+        corridor = nb_ends is not None
         src = self._sources
         relay_end = study.relay.end if study.relay and study.relay.end in names else names[0]
         mutual = geo.n_circuits == 2 and study.reach_study.mutual_compensation
@@ -214,17 +237,18 @@ class CaseSolver:
                     emf = None
                     if loaded:
                         e = load_emfs(self._envelope, ln, src, names, relay_end, sc,
-                                      emf_state, v_nom)
+                                      emf_state, v_nom, corridor)
                         emf = (e[0], e[1])
                     sw = network.solve_fault_sweep(
                         ln, s_s, s_r, v_nominal_v=v_nom, fault_types=(ft,),
                         m=np.array([m]), r_fault_ohm=np.array([case.r_fault_ohm]),
                         r_phase_ohm=np.array([case.r_phase_ohm]), source_scale=sc,
                         transfer_angle_rad=np.zeros(1), parallel_state=solved, emf_v=emf,
-                        outputs=OUTPUTS, z_branch_ohm=z_b)
+                        outputs=OUTPUTS, z_branch_ohm=z_b, neighbour=nb_ends,
+                        fault_circuit=2 if faulted == "neighbour" else 1)
                     run = Run(sw, faulted, case.parallel_state, labels_k, rho,
                               (s_s is not None, s_r is not None), open_at=open_at,
-                              branch=info)
+                              branch=info, cap_state=case.capacitor_state or "")
                     vw = view(run, at_s, st.k0.k0, km, model, behind=behind,
                               line_angle=st.line_angle_rad)
                     ang = np.degrees(sw.transfer_angle_rad[0])
@@ -244,13 +268,16 @@ class CaseSolver:
         sw = run.sweep
         v, i, ip = (a[0, 0, 0, 0, li] for a in relay_quantities(run, at_s, behind=behind))
         emf = (sw.emf_s_v[:, li:li + 1], sw.emf_r_v[:, li:li + 1])
-        v_pre, i_pre, ip_pre = self._prefault(line, s_s, s_r, sc, emf, emf_state, at_s)
-        if emf_state != "in_service":  # parallel circuit out: no current in its CTs
+        v_pre, i_pre, ip_pre = self._prefault(line, s_s, s_r, sc, emf, emf_state, at_s,
+                                              nb_ends)
+        if emf_state != "in_service" or corridor:
+            # parallel circuit out (no current in its CTs), or a neighbouring line (its
+            # currents are at other substations)
             ip, ip_pre = np.zeros(3, complex), np.zeros(3, complex)
         return CasePhasors(v_pre, i_pre, ip_pre, np.array(v), np.array(i), np.array(ip), z,
                            complex(emf[0][0, 0]), complex(emf[1][0, 0]))
 
-    def _prefault(self, line, s_s, s_r, sc, emf, state: str, at_s: bool):
+    def _prefault(self, line, s_s, s_r, sc, emf, state: str, at_s: bool, nb_ends=None):
         """Prefault (V, I, I parallel) at the relay end of the healthy network with the
         case's EMFs; the parallel circuit at R from the line with the circuits swapped
         (the solver gives circuit 2's prefault current at S only)."""
@@ -260,13 +287,13 @@ class CaseSolver:
             return network.solve_fault_sweep(
                 ln, s_s, s_r, v_nominal_v=self.geo.v_nominal_v, fault_types=("AG",),
                 m=np.array([0.5]), r_fault_ohm=np.array([0.0]), source_scale=sc,
-                parallel_state=state, emf_v=emf, outputs=())
+                parallel_state=state, emf_v=emf, outputs=(), neighbour=nb_ends)
 
         sw = pre(line)
         if at_s:
             return sw.v_s_pre[0, 0], sw.i_s_pre[0, 0], sw.i_s_parallel_pre[0, 0]
-        ip = (pre(swap_circuits(line)).i_r_pre[0, 0] if line.n_conductors == 6
-              else np.zeros(3, complex))
+        ip = (pre(swap_circuits(line)).i_r_pre[0, 0]
+              if line.n_conductors == 6 and nb_ends is None else np.zeros(3, complex))
         return sw.v_r_pre[0, 0], sw.i_r_pre[0, 0], ip
 
 
