@@ -30,9 +30,20 @@ def study_schema() -> dict[str, Any]:
     props = _tables(Study)
     props["schema"] = {"const": "relayset-study/1"}
     props["relay"] = {"type": "object", "properties": {"profile": _STR}}
+    props["tee"] = _tee_schema()
     return {"$schema": DRAFT, "$id": _BASE + "study.json", "title": "relayset study file",
             "type": "object", "required": ["schema", "study", "system", "line"],
             "properties": props, "additionalProperties": False}
+
+
+def _tee_schema() -> dict[str, Any]:
+    """``[tee]`` (relayset.inputs.teed): its keys, the required ones, sections as a list."""
+    from relayset.inputs.teed import TeeData
+
+    keys = _tables(TeeData)
+    keys["sections"] = {"type": "array", "minItems": 1, "items": {"type": "object"}}
+    return {"type": "object", "required": ["distance", "substation", "sections"],
+            "properties": keys, "additionalProperties": False}
 
 
 def philosophy_schema() -> dict[str, Any]:

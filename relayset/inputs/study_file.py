@@ -724,6 +724,12 @@ class Deviation:
     date: dt.date = spec(schema.date)
 
 
+def _tee_table() -> schema.Table:
+    from relayset.inputs.teed import TeeData  # declared there; it reads this module's Section
+
+    return table(TeeData)
+
+
 @_table
 class Study:
     """A whole study file, validated, SI inside."""
@@ -754,6 +760,8 @@ class Study:
     fault_resistance: FaultResistanceData = spec(table(FaultResistanceData),
                                                  factory=FaultResistanceData)
     deviations: tuple[Deviation, ...] = spec(ListOf(table(Deviation), what="deviations"), ())
+    #: ``[tee]``: a third terminal (:class:`relayset.inputs.teed.TeeData`)
+    tee: Any = spec(schema.Lazy(_tee_table), None)
 
     @property
     def ends(self) -> tuple[str, str]:
@@ -765,6 +773,8 @@ class Study:
         """The end(s) the relay sits at ("both" means both)."""
         if self.relay is None:
             return ()
+        if self.tee is not None and self.relay.end == "all":
+            return (*self.ends, self.tee.substation)
         return self.ends if self.relay.end == "both" else (self.relay.end,)
 
 
@@ -958,6 +968,12 @@ def check_study(study: Study, data: dict, source: str) -> None:
         raise InputError(rule, field=field, value=value, source=source)
 
     no_end = f"names no end of this line (the ends are {quote(ends[0])} and {quote(ends[1])})"
+    if study.tee is not None:  # a third substation (relayset.inputs.teed)
+        from relayset.inputs.teed import buses, check_tee
+
+        check_tee(study, data, fail)
+        ends = buses(study)
+        no_end = "names no substation of this line (" + ", ".join(map(quote, ends)) + ")"
     if ends[0] == ends[1]:
         fail("must differ from study.from_substation", "study.to_substation", ends[1])
     if study.relay is not None:
@@ -1015,9 +1031,10 @@ def check_study(study: Study, data: dict, source: str) -> None:
 
     if study.relay is not None:
         end = study.relay.end
-        if end != "both" and end not in ends:
-            fail(f"is not an end of this line; use {quote(ends[0])}, {quote(ends[1])} or 'both'"
-                 + suggest(end, ends), "relay.end", end)
+        every = "all" if study.tee is not None else "both"
+        if end != every and end not in ends:
+            fail(f"is not an end of this line; use {', '.join(map(quote, ends))} or "
+                 f"'{every}'" + suggest(end, ends), "relay.end", end)
         for key in study.relay.at:
             if key not in ends:
                 fail(no_end + suggest(key, ends), f"relay.at.{_key(key)}",
