@@ -21,7 +21,7 @@ from test_network import C_ABC_NF_KM, Z_ABC_KM
 from relayset.errors import InputError
 from relayset.physics.faults import FAULT_TYPES, fault_constraints
 from relayset.physics.network import LineCascade, Source, solve_fault_sweep
-from relayset.physics.sequence import fortescue_matrix
+from relayset.physics.sequence import balanced_phase_matrix, fortescue_matrix
 from relayset.physics.teed import (
     ENDS,
     GroundedTransformer,
@@ -222,3 +222,51 @@ def test_bad_input_is_refused():
     with pytest.raises(InputError, match="unknown leg"):
         solve_teed_sweep(teed(False), SOURCES, v_nominal_v=V_NOM, fault_leg="X",
                          fault_types=["AG"], m=[0.5], r_fault_ohm=[0.0])
+
+
+def _balanced_leg(length_m: float) -> LineCascade:
+    z1, z0 = (0.05 + 0.40j) / 1e3, (0.20 + 1.20j) / 1e3  # ohm/m, invented
+    return LineCascade(balanced_phase_matrix(z1, z0), [length_m])
+
+
+def test_infeed_closed_form_on_a_balanced_line():
+    """Three-phase bolted fault at bus R of a balanced teed line. Positive sequence only
+    (Fortescue): with the fault voltage zero, V_tee = Z_R (I_S + I_T) and
+    E = (Zs + Z_leg) I + V_tee at S and at T, a 2 x 2 system solved here by hand; the relay
+    at S then measures Z_S + Z_R (1 + I_T / I_S) (the infeed effect, Kirchhoff's voltage
+    law, e.g. Horowitz and Phadke, Power System Relaying, ch. on distance protection,
+    from memory). Without the source at T it measures Z_S + Z_R."""
+    z1 = (0.05 + 0.40j) / 1e3
+    ls, lr, lt = 25e3, 35e3, 15e3
+    line = TeedLine((_balanced_leg(ls), _balanced_leg(lr), _balanced_leg(lt)))
+    src = SOURCES
+    sw = solve_teed_sweep(line, src, v_nominal_v=V_NOM, fault_leg="R",
+                          fault_types=["ABC"], m=[0.0], r_fault_ohm=[0.0])
+    e = V_NOM / math.sqrt(3)
+    a = np.array([[src[0].z1_ohm + z1 * ls + z1 * lr, z1 * lr],
+                  [z1 * lr, src[2].z1_ohm + z1 * lt + z1 * lr]])
+    i_s, i_t = np.linalg.solve(a, [e, e])
+    expected = z1 * ls + z1 * lr * (1 + i_t / i_s)
+    v, i = sw.v["S"][0, 0, 0, 0, 0], sw.i["S"][0, 0, 0, 0, 0]
+    z_ab = (v[0] - v[1]) / (i[0] - i[1])
+    assert_allclose(z_ab, expected, rtol=1e-9)
+    assert_allclose(i[0], i_s, rtol=1e-9)  # phase A carries the positive-sequence current
+    out = solve_teed_sweep(line, (src[0], src[1], None), v_nominal_v=V_NOM, fault_leg="R",
+                           fault_types=["ABC"], m=[0.0], r_fault_ohm=[0.0])
+    v, i = out.v["S"][0, 0, 0, 0, 0], out.i["S"][0, 0, 0, 0, 0]
+    assert_allclose((v[0] - v[1]) / (i[0] - i[1]), z1 * (ls + lr), rtol=1e-9)
+
+
+def test_grounded_transformer_changes_no_three_phase_fault():
+    """A grounded-star transformer passes zero-sequence current only (Fortescue): a
+    balanced three-phase fault on a balanced line sees the same network as with that end
+    open; a ground fault does not."""
+    line = TeedLine((_balanced_leg(25e3), _balanced_leg(35e3), _balanced_leg(15e3)))
+    kw = dict(v_nominal_v=V_NOM, fault_leg="R", fault_types=["ABC", "AG"], m=[0.4],
+              r_fault_ohm=[0.0])
+    with_tr = solve_teed_sweep(line, (SOURCES[0], SOURCES[1], GroundedTransformer(2 + 20j)),
+                               **kw)
+    open_t = solve_teed_sweep(line, (SOURCES[0], SOURCES[1], None), **kw)
+    scale = np.max(np.abs(open_t.i_fault))
+    assert_allclose(with_tr.i["S"][0], open_t.i["S"][0], rtol=1e-9, atol=1e-9 * scale)
+    assert np.max(np.abs(with_tr.i["S"][1] - open_t.i["S"][1])) > 1e-3 * scale

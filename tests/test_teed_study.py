@@ -181,3 +181,128 @@ def test_schema_covers_the_tee_table(capsys):
     tee = json.loads(capsys.readouterr().out)["properties"]["tee"]
     assert set(tee["required"]) == {"distance", "substation", "sections"}
     assert "grounded_transformer_z0" in tee["properties"]
+
+
+def _run(text: str):
+    from relayset.studies import pipeline
+    from relayset.studies.teed import run_teed
+
+    return run_teed(pipeline.load_bytes(text.encode(), "teed.toml"))
+
+
+def _apparent(res, end, remote, infeed):
+    e = next(x for x in res.ends if x.end == end)
+    return next(a for a in e.apparent if a.remote == remote and a.infeed == infeed)
+
+
+def test_teed_reach_without_infeed_equals_the_two_ended_line():
+    """Series-only legs (the default) with the third source out: the branch is an open stub
+    carrying no current, so the relay measures what it measures on the two-ended line
+    (Kirchhoff's laws), here solved by relayset.physics.network (itself checked against
+    the nodal reference in tests/test_network.py)."""
+    import cmath
+
+    import numpy as np
+
+    from relayset.physics import measurement, network
+    from relayset.studies import pipeline
+    from relayset.studies.geometry import build_geometry
+    from relayset.studies.parameters import compute_parameters
+    from relayset.studies.reach import build_source, line_cascade
+    from relayset.studies.relay import resolve_relay
+
+    res = _run(TEED_TOML)
+    study = pipeline.load_bytes(TEED_TOML.encode(), "teed.toml").study
+    geo = build_geometry(study)
+    params = compute_parameters(geo)
+    relay = resolve_relay(study, params)
+    line = line_cascade(geo, params, "actual_plan", False)
+    scales = [c.scale for c in study.reach_study.source_cases]
+    sw = network.solve_fault_sweep(
+        line, build_source(study, "Wrenfold", ""), build_source(study, "Velmar", ""),
+        v_nominal_v=132e3, fault_types=study.reach_study.fault_types, m=[1.0],
+        r_fault_ohm=[0.0], source_scale=np.array(scales))
+    loops = measurement.loop_impedances(sw.v_s, sw.i_s, relay.k0_set)
+    rot = cmath.rect(1.0, -cmath.phase(relay.z1_set_ohm))
+    vals = [(loops[lp][f] * rot).real for f, ft in enumerate(study.reach_study.fault_types)
+            for lp in measurement.loops_for_fault(ft)]
+    a = _apparent(res, "Wrenfold", "Velmar", False)
+    assert a.min_ohm == pytest.approx(float(np.min(vals)), rel=1e-9)
+    assert a.max_ohm == pytest.approx(float(np.max(vals)), rel=1e-9)
+
+
+def test_teed_zones_follow_the_rules():
+    """Zone 1 short of the nearest remote terminal without infeed, zone 2 beyond the
+    farthest with infeed (common practice, no source); infeed makes the relay see a fault
+    beyond the tee farther away (Kirchhoff's voltage law)."""
+    import cmath
+
+    res = _run(TEED_TOML)
+    assert [e.end for e in res.ends] == ["Wrenfold", "Velmar", "Oakrest"]
+    rot = cmath.rect(1.0, -cmath.phase(res.z1_set_ohm))
+    for e in res.ends:
+        no_inf = min(a.min_ohm for a in e.apparent if not a.infeed)
+        with_inf = max(a.max_ohm for a in e.apparent if a.infeed)
+        along1, along2 = (e.zone1_ohm * rot).real, (e.zone2_ohm * rot).real
+        assert along1 == pytest.approx(e.zone1_pct / 100 * no_inf, rel=1e-12)
+        assert along1 < no_inf and along2 > with_inf
+        for remote in {a.remote for a in e.apparent}:
+            assert (_apparent(res, e.end, remote, True).min_ohm
+                    > _apparent(res, e.end, remote, False).max_ohm)
+    assert "not verified" in res.verification
+
+
+def test_teed_checks_say_why_a_rule_cannot_be_met():
+    # the tee near Velmar: zone 1 from Wrenfold, short of Oakrest, does not reach the tee
+    far_tee = TEED_TOML.replace('distance = "25 km"', 'distance = "55 km"').replace(
+        '{ length = "7 km", order = ["B", "C", "A"] },\n', "").replace(
+        '{ length = "8 km"', '{ length = "1 km"')
+    res = _run(far_tee)
+    chk = {c.check_id: c for c in res.ends[0].checks}
+    assert not chk["zone1_reaches_tee"].passed
+    assert "does not reach the tee" in chk["zone1_reaches_tee"].detail
+    # a short line leaving Velmar: zone 2 from Wrenfold would overlap its zone 1
+    short_next = TEED_TOML + '''
+[[adjacent_lines]]
+name = "Velmar - Tarn 132 kV"
+z1 = "0.5 + 2j ohm"
+bus = "Velmar"
+'''
+    res = _run(short_next)
+    chk = [c for c in res.ends[0].checks if c.check_id == "zone2_short_of_next_zone1"]
+    assert len(chk) == 1 and not chk[0].passed
+    assert "overlaps" in chk[0].detail and "Velmar - Tarn 132 kV" in chk[0].detail
+    long_next = short_next.replace('z1 = "0.5 + 2j ohm"', 'z1 = "20 + 80j ohm"')
+    chk = [c for c in _run(long_next).ends[0].checks
+           if c.check_id == "zone2_short_of_next_zone1"]
+    assert chk[0].passed
+
+
+def test_grounded_transformer_only_at_the_third_substation():
+    text = TEED_TOML.replace('end = "all"', 'end = "Wrenfold"').replace(
+        '[sources.Oakrest]\nz1 = "4 + 30j ohm"\nz0 = "5 + 40j ohm"\n', "").replace(
+        'substation = "Oakrest"\n', 'substation = "Oakrest"\ngrounded_transformer_z0 = '
+        '"1 + 15j ohm"\n')
+    res = _run(text)
+    assert [e.end for e in res.ends] == ["Wrenfold"]
+    # the transformer feeds ground faults only: with it in, the ground loops see Velmar
+    # farther (zero-sequence infeed), the phase loops as without it
+    a_in, a_out = (_apparent(res, "Wrenfold", "Velmar", inf) for inf in (True, False))
+    assert a_in.max_ohm > a_out.max_ohm
+
+
+@pytest.mark.parametrize("command", ["reach", "settings", "report", "export"])
+def test_two_ended_commands_refuse_a_teed_line(tmp_path, capsys, command):
+    path = write(tmp_path)
+    out = tmp_path / "out"
+    args = [command, str(path)]
+    if command in ("report", "export"):
+        args += ["--output", str(out)]
+    else:
+        args += ["--json", str(tmp_path / "out.json")]
+    code = main(args)
+    err = capsys.readouterr().err.strip()
+    assert code == 2 and len(err.splitlines()) == 1, err
+    assert f"{path}: tee: " in err and "not verified by fault simulation" in err
+    assert not (tmp_path / "out.json").exists()
+    assert not out.exists() or not any(out.iterdir())
