@@ -270,3 +270,35 @@ def test_grounded_transformer_changes_no_three_phase_fault():
     scale = np.max(np.abs(open_t.i_fault))
     assert_allclose(with_tr.i["S"][0], open_t.i["S"][0], rtol=1e-9, atol=1e-9 * scale)
     assert np.max(np.abs(with_tr.i["S"][1] - open_t.i["S"][1])) > 1e-3 * scale
+
+
+def test_simulated_zones_on_a_balanced_line():
+    """The verification's reach scales on a balanced line, three-phase bolted faults: the
+    relay at S measures Z_S + Z_Y for a fault at bus Y with the third source out (the infeed
+    only adds), and a mho circle of diameter D at the line angle has the reach scale
+    |Z| / D for an impedance at that angle (the circle's equation, see
+    relayset.physics.characteristic.Mho). With zone 1 at 80 % of the nearest terminal the
+    smallest remote-terminal scale is 1/0.8; a zone 1 past it operates; a zone 2 short of
+    the farthest terminal with infeed does not cover every leg."""
+    from relayset.studies.verification.relay_model import RelayModel
+    from relayset.studies.verification.teed import verify_teed
+
+    z1 = (0.05 + 0.40j) / 1e3
+    ls, lr, lt = 25e3, 35e3, 15e3
+    line = TeedLine((_balanced_leg(ls), _balanced_leg(lr), _balanced_leg(lt)))
+    theta = float(np.angle(z1))
+    near = abs(z1) * (ls + lt)
+    kw = dict(v_nominal_v=V_NOM, fault_types=["ABC"], r_fault_ohm=[0.0],
+              source_scale=np.array([1.0]), case_names=("nominal",), k0=0j,
+              line_angle_rad=theta, z_line_ohm=abs(z1) * (ls + lr),
+              models={0: RelayModel()}, buses=("S", "R", "T"))
+    good = verify_teed(line, SOURCES, (0,), {0: (0.8 * near, 3 * near)}, **kw)[0]
+    assert good.zone1_remote_scale == pytest.approx(1 / 0.8, rel=1e-9)
+    assert all(c.passed for c in good.checks)
+    assert 0 < good.zone1_coverage_pct < 100
+    bad = verify_teed(line, SOURCES, (0,), {0: (1.05 * near, 1.1 * near)}, **kw)[0]
+    chk = {c.check_id: c for c in bad.checks}
+    assert not chk["zone1_no_remote_terminal_trip"].passed
+    assert "overreaches a remote terminal" in chk["zone1_no_remote_terminal_trip"].detail
+    assert not chk["zone2_covers_all_legs"].passed
+    assert bad.zone2_internal_scale > 1.0

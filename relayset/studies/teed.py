@@ -6,8 +6,8 @@ solved together (:mod:`relayset.physics.teed`). For each relay end, bolted fault
 reach study's types at each remote terminal are solved with the third terminal's source in
 and out, over the source cases; the meant loops' apparent impedances along the line angle
 give zone 1 (short of the nearest remote terminal without infeed) and zone 2 (covering the
-farthest with infeed) by the rules of :mod:`relayset.settings.teed`. The settings are not
-verified by fault simulation (:data:`relayset.results.teed.NOT_VERIFIED`).
+farthest with infeed) by the rules of :mod:`relayset.settings.teed`, and the zones are then
+verified by fault simulation (:mod:`relayset.studies.verification.teed`).
 """
 
 from __future__ import annotations
@@ -44,9 +44,9 @@ ASSUMPTIONS = (
 
 
 #: Why ``relayset reach``, ``settings``, ``report`` and ``export`` refuse a teed line.
-REFUSAL = ("a three-terminal line's settings are not verified by fault simulation yet, so "
-           "relayset reach, settings, report and export refuse it (no unverified verdict); "
-           "its reach study and zone 1/zone 2 come from relayset.studies.teed.run_teed")
+REFUSAL = ("the two-ended reach study, settings, report and export do not take a tee; a "
+           "three-terminal line's reach study, zone 1/zone 2 and their verification by fault "
+           "simulation come from relayset.studies.teed.run_teed (Python API)")
 
 
 def refuse_in_pipeline(source: str) -> None:
@@ -70,6 +70,15 @@ def run_teed(loaded) -> TeedStudyResult:
     relay = resolve_relay(study, params)
     return run_teed_study(study, geo, params, relay, study_philosophy(study, src),
                           source=src)
+
+
+#: How the zones are verified (stated with the results).
+VERIFIED = ("Verified by fault simulation on the teed solver with the relay model of the "
+            "two-ended verification (relayset.studies.verification.teed): mho zones at the "
+            "line angle; every infeed state (all sources in, each source out in turn), the "
+            "reach study's source cases, fault types and resistances; faults along the three "
+            "legs (5 % steps) and at each remote terminal. Not simulated: faults on the lines "
+            "beyond the remote buses, load, the earth-resistivity range, setting steps.")
 
 
 def teed_line(study: Study, geo: LineGeometry, params: LineParameters, shunt: bool,
@@ -151,6 +160,7 @@ def run_teed_study(study: Study, geo: LineGeometry, params: LineParameters,
                                 best[1], best[3] = float(val), label
                 seen[x, y, infeed] = tuple(best)
 
+    zones: dict[int, tuple[float, float]] = {}
     budget = study.error_budget.total_pct
     z1ph = philosophy.zone1
     pct1 = teed_zone1_pct(budget, z1ph.reach_pct, z1ph.min_margin_pct)
@@ -179,6 +189,7 @@ def run_teed_study(study: Study, geo: LineGeometry, params: LineParameters,
                 if adj.bus == buses[y] and adj.z1 is not None and (x, y, False) in seen:
                     reach = philosophy.zone2.adjacent_zone1_pct / 100 * abs(adj.z1)
                     next_z1.append((buses[y], adj.name, seen[x, y, False][0] + reach))
+        zones[x] = (z1_ohm, z2_ohm)
         results.append(TeedEndSettings(
             end=buses[x], apparent=apparent, tee_ohm=tee_ohm, zone1_pct=pct1,
             zone1_ohm=z1_ohm * unit,
@@ -189,7 +200,22 @@ def run_teed_study(study: Study, geo: LineGeometry, params: LineParameters,
                         f"impedance of the farthest remote terminal {buses[y_far]} with the "
                         f"infeed in ({far:.4g} ohm)"),
             checks=teed_checks(z1_ohm, z2_ohm, tee_ohm, next_z1)))
+    # Fault simulation of the zones (imported here: the reach alone needs none of it).
+    from relayset.studies.verification.checks import relay_model_at
+    from relayset.studies.verification.teed import verify_teed
+
+    judged = tuple(x for x in range(3) if buses[x] in relay.ends)
+    sim = verify_teed(
+        line, terms, judged, zones, v_nominal_v=v_nom, fault_types=ftypes,
+        r_fault_ohm=rs.fault_resistances, source_scale=scales,
+        case_names=tuple(c.name for c in rs.source_cases), k0=k0, line_angle_rad=theta,
+        z_line_ohm=abs(relay.z1_set_ohm),
+        models={x: relay_model_at(study, buses[x]) for x in judged}, buses=buses)
+    results = [dataclasses.replace(e, checks=e.checks + sim[x].checks)
+               for e, x in zip(results, judged, strict=True)]
+    failed = sum(not c.passed for e in results for c in e.checks)
     return TeedStudyResult(
         buses=buses, tee_distance_m=study.tee.distance, branch_length_m=study.tee.length,
         z1_set_ohm=relay.z1_set_ohm, k0_set=k0, ends=tuple(results),
-        assumptions=ASSUMPTIONS)
+        assumptions=(*ASSUMPTIONS, VERIFIED),
+        verification="failed checks" if failed else "all checks passed")
