@@ -306,3 +306,43 @@ def test_two_ended_commands_refuse_a_teed_line(tmp_path, capsys, command):
     assert f"{path}: tee: " in err and "do not take a tee" in err
     assert not (tmp_path / "out.json").exists()
     assert not out.exists() or not any(out.iterdir())
+
+
+def test_teed_command_prints_writes_json_and_says_failed_checks(tmp_path, capsys):
+    out_json = tmp_path / "teed.json"
+    assert main(["teed", str(write(tmp_path)), "--json", str(out_json)]) == 0
+    text = capsys.readouterr().out
+    assert "Relay at Oakrest" in text and "Verdict: all checks passed" in text
+    data = json.loads(out_json.read_text(encoding="utf-8"))
+    assert [e["end"] for e in data["ends"]] == ["Wrenfold", "Velmar", "Oakrest"]
+    # secondary = primary x CT ratio / VT ratio (600 / 1200), relayset.physics.zones
+    e = data["ends"][0]
+    assert abs(complex(*e["zone1_secondary_ohm"])) == pytest.approx(
+        abs(complex(*e["zone1_ohm"])) * 600 / 1200, rel=1e-12)
+    # a failed check (zone 2 over a short next line): outputs written, exit code 3
+    short_next = TEED_TOML + '''
+[[adjacent_lines]]
+name = "Velmar - Tarn 132 kV"
+z1 = "0.5 + 2j ohm"
+bus = "Velmar"
+'''
+    out2 = tmp_path / "teed2.json"
+    assert main(["teed", str(write(tmp_path, short_next, "t2.toml")), "--json",
+                 str(out2)]) == 3
+    assert "[FAIL] zone2_short_of_next_zone1" in capsys.readouterr().out
+    assert json.loads(out2.read_text(encoding="utf-8"))["verification"] == "failed checks"
+
+
+def test_teed_command_refuses_bad_input_and_a_two_ended_study(tmp_path, capsys):
+    bad = write(tmp_path, TEED_TOML.replace('distance = "25 km"', 'distance = "90 km"'))
+    out_json = tmp_path / "x.json"
+    assert main(["teed", str(bad), "--json", str(out_json)]) == 2
+    err = capsys.readouterr().err.strip()
+    assert len(err.splitlines()) == 1 and 'tee.distance = "90 km"' in err
+    assert not out_json.exists()
+    plain = TEED_TOML.split("[tee]")[0] + "[relay]" + TEED_TOML.split("[relay]")[1]
+    plain = plain.replace('end = "all"', 'end = "Wrenfold"').replace(
+        '[sources.Oakrest]\nz1 = "4 + 30j ohm"\nz0 = "5 + 40j ohm"\n', "")
+    assert main(["teed", str(write(tmp_path, plain, "plain.toml"))]) == 2
+    err = capsys.readouterr().err.strip()
+    assert len(err.splitlines()) == 1 and "no [tee] table" in err

@@ -43,9 +43,14 @@ class TeedEndSettings:
     zone2_ohm: complex
     zone2_rule: str
     checks: tuple[Check, ...]
+    zone1_secondary_ohm: complex = 0j  #: through this end's CT and VT ratios [ohm]
+    zone2_secondary_ohm: complex = 0j
 
     def to_dict(self) -> dict[str, Any]:
-        return {"end": self.end, "apparent": [a.to_dict() for a in self.apparent],
+        return {"end": self.end,
+                "zone1_secondary_ohm": cplx(self.zone1_secondary_ohm),
+                "zone2_secondary_ohm": cplx(self.zone2_secondary_ohm),
+                "apparent": [a.to_dict() for a in self.apparent],
                 "tee_ohm": self.tee_ohm, "zone1_pct": self.zone1_pct,
                 "zone1_ohm": cplx(self.zone1_ohm), "zone1_rule": self.zone1_rule,
                 "zone2_ohm": cplx(self.zone2_ohm), "zone2_rule": self.zone2_rule,

@@ -25,6 +25,7 @@ from relayset.physics import measurement
 from relayset.physics.network import Source
 from relayset.physics.sequence import to_sequence
 from relayset.physics.teed import ENDS, GroundedTransformer, TeedLine, solve_teed_sweep
+from relayset.physics.zones import secondary_ohm
 from relayset.results.parameters import LineParameters
 from relayset.results.relay import RelayBasis
 from relayset.results.teed import TeedApparent, TeedEndSettings, TeedStudyResult
@@ -46,7 +47,7 @@ ASSUMPTIONS = (
 #: Why ``relayset reach``, ``settings``, ``report`` and ``export`` refuse a teed line.
 REFUSAL = ("the two-ended reach study, settings, report and export do not take a tee; a "
            "three-terminal line's reach study, zone 1/zone 2 and their verification by fault "
-           "simulation come from relayset.studies.teed.run_teed (Python API)")
+           "simulation come from 'relayset teed' (Python: relayset.studies.teed.run_teed)")
 
 
 def refuse_in_pipeline(source: str) -> None:
@@ -190,6 +191,7 @@ def run_teed_study(study: Study, geo: LineGeometry, params: LineParameters,
                     reach = philosophy.zone2.adjacent_zone1_pct / 100 * abs(adj.z1)
                     next_z1.append((buses[y], adj.name, seen[x, y, False][0] + reach))
         zones[x] = (z1_ohm, z2_ohm)
+        ratios = study.relay.ratios(buses[x])  # CT, VT of the relay at this end
         results.append(TeedEndSettings(
             end=buses[x], apparent=apparent, tee_ohm=tee_ohm, zone1_pct=pct1,
             zone1_ohm=z1_ohm * unit,
@@ -199,7 +201,9 @@ def run_teed_study(study: Study, geo: LineGeometry, params: LineParameters,
             zone2_rule=(f"{max(philosophy.zone2.reach_pct, 100.0):g} % of the apparent "
                         f"impedance of the farthest remote terminal {buses[y_far]} with the "
                         f"infeed in ({far:.4g} ohm)"),
-            checks=teed_checks(z1_ohm, z2_ohm, tee_ohm, next_z1)))
+            checks=teed_checks(z1_ohm, z2_ohm, tee_ohm, next_z1),
+            zone1_secondary_ohm=complex(secondary_ohm(z1_ohm * unit, *ratios)),
+            zone2_secondary_ohm=complex(secondary_ohm(z2_ohm * unit, *ratios))))
     # Fault simulation of the zones (imported here: the reach alone needs none of it).
     from relayset.studies.verification.checks import relay_model_at
     from relayset.studies.verification.teed import verify_teed
