@@ -59,7 +59,7 @@ EMFS = tuple(V_NOM / math.sqrt(3) * np.exp(1j * np.radians(a)) for a in (10.0, 0
 
 
 def nodal(line: TeedLine, terms, emf, fault_leg: str | None, m: float, fault_type: str,
-          rf: float, rp: float):
+          rf: float, rp: float, z_branch=None):
     """Independent per-case nodal solution: bus voltages and currents into each leg."""
     n = 3
     base = {}
@@ -76,6 +76,9 @@ def nodal(line: TeedLine, terms, emf, fault_leg: str | None, m: float, fault_typ
             base[k, j] = idx
             idx += n
         base[k, len(edges) - 1] = 0
+    if z_branch is not None:  # three nodes at the branch's far end, where the fault sits
+        far = list(range(idx, idx + 3))
+        idx += 3
     n_nodes = idx
     extra = 3 if fault_leg else 0
     mat = np.zeros((n_nodes + extra, n_nodes + extra), dtype=complex)
@@ -102,6 +105,11 @@ def nodal(line: TeedLine, terms, emf, fault_leg: str | None, m: float, fault_typ
         k = ENDS.index(fault_leg)
         j = int(np.argmin(np.abs(np.array(positions[k]) - m * positions[k][-1])))
         fn = [base[k, j] + c for c in range(3)]
+        if z_branch is not None:
+            yb = np.linalg.inv(z_branch)
+            ids = fn + far
+            mat[np.ix_(ids, ids)] += np.block([[yb, -yb], [-yb, yb]])
+            fn = far
         p_v, p_i = fault_constraints(fault_type, rf, rp)
         cols = list(range(n_nodes, n_nodes + 3))
         for c in range(3):
@@ -302,3 +310,51 @@ def test_simulated_zones_on_a_balanced_line():
     assert "overreaches a remote terminal" in chk["zone1_no_remote_terminal_trip"].detail
     assert not chk["zone2_covers_all_legs"].passed
     assert bad.zone2_internal_scale > 1.0
+
+
+def test_fault_beyond_a_series_branch_equals_nodal_reference():
+    """A fault at the far end of a line leaving bus R (a series branch at m = 0 of leg R,
+    stamped as its nodal admittance in the reference)."""
+    line = teed(True)
+    zb = np.stack([balanced_phase_matrix(f * (1 + 8j), f * (3 + 24j)) for f in (0.3, 1.0)])
+    sw = solve_teed_sweep(line, SOURCES, v_nominal_v=V_NOM, fault_leg="R",
+                          fault_types=("AG", "BC", "ABC"), m=[0.0, 0.0], r_fault_ohm=[2.0],
+                          z_branch_ohm=zb, emf_v=tuple(np.array([e]) for e in EMFS))
+    for fi, ft in enumerate(("AG", "BC", "ABC")):
+        for mi in range(2):
+            ref, i_f = nodal(line, SOURCES, EMFS, "R", 0.0, ft, 2.0, 0.0, z_branch=zb[mi])
+            for end in ENDS:
+                assert_allclose(sw.v[end][fi, mi, 0, 0, 0], ref[end][0], rtol=1e-8,
+                                atol=1e-8 * V_NOM)
+                assert_allclose(sw.i[end][fi, mi, 0, 0, 0], ref[end][1], rtol=1e-8,
+                                atol=1e-8 * np.max(np.abs(i_f)))
+            assert_allclose(sw.i_fault[fi, mi, 0, 0, 0], i_f, rtol=1e-8,
+                            atol=1e-8 * np.max(np.abs(i_f)))
+
+
+@pytest.mark.parametrize("factor, passes", [(0.99, True), (1.01, False)])
+def test_simulated_zone2_against_the_next_zone1(factor, passes):
+    """Zone 2 graded short of the next line's zone 1 (80 % of it): with the relay's own
+    source feeding alone, a three-phase bolted fault at 80 % of a line leaving bus R is
+    seen at Z_S + Z_R + 0.8 Z_adj (Kirchhoff's voltage law on a balanced network), and a
+    mho of diameter D at that angle gives it the reach scale |Z| / D: a zone 2 of
+    0.99 times that impedance stays out, 1.01 times reaches in."""
+    from relayset.studies.verification.relay_model import RelayModel
+    from relayset.studies.verification.teed import verify_teed
+
+    z1 = (0.05 + 0.40j) / 1e3
+    ls, lr, lt = 25e3, 35e3, 15e3
+    line = TeedLine((_balanced_leg(ls), _balanced_leg(lr), _balanced_leg(lt)))
+    z_adj = z1 * 20e3
+    limit = abs(z1 * (ls + lr) + 0.8 * z_adj)
+    res = verify_teed(
+        line, SOURCES, (0,), {0: (0.5 * abs(z1) * (ls + lt), factor * limit)},
+        v_nominal_v=V_NOM, fault_types=["ABC"], r_fault_ohm=[0.0],
+        source_scale=np.array([1.0]), case_names=("nominal",), k0=0j,
+        line_angle_rad=float(np.angle(z1)), z_line_ohm=abs(z1) * (ls + lr),
+        models={0: RelayModel()}, buses=("S", "R", "T"),
+        beyond={1: [("R - X", z_adj, 3 * z_adj)]}, next_zone1_pct=80.0)[0]
+    chk = {c.check_id: c for c in res.checks}["zone2_stays_short_of_next_zone1"]
+    assert chk.passed is passes
+    assert "80 % along 'R - X' beyond R" in chk.detail and "no source at R and T" in chk.detail
+    assert f"reach scale {1 / factor:.3g} " in chk.detail

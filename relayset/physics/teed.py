@@ -67,6 +67,7 @@ from relayset.physics.network import (
     LineCascade,
     Source,
     _balanced,
+    _check_branch,
     _check_locations,
     _name,
     _terminal,
@@ -236,6 +237,7 @@ def solve_teed_sweep(
     source_scale: np.ndarray | float = 1.0,
     emf_v: Sequence[np.ndarray] | None = None,
     field_names: Mapping[str, str] | None = None,
+    z_branch_ohm: np.ndarray | None = None,
 ) -> TeedSweep:
     """Solve every fault type, location on one leg, resistance, source and load case.
 
@@ -264,6 +266,11 @@ def solve_teed_sweep(
         of nominal EMFs in phase (no load). EMFs of terminals without a Source are unused.
     field_names : mapping, optional
         Names to use in :class:`~relayset.errors.InputError` for the parameters above.
+    z_branch_ohm : (M, 3, 3) complex array, optional
+        Per location, a series branch between the leg point and the fault (e.g. part of a
+        line leaving the bus at m = 0, carrying the fault current only), exactly as in
+        :func:`relayset.physics.network.solve_fault_sweep`: the fault constraints see
+        :math:`Z_{th} + Z_b`; ``v_f`` stays the leg point's voltage.
 
     Returns
     -------
@@ -297,6 +304,7 @@ def solve_teed_sweep(
     n_k = scale.shape[0]
     emf = _check_emfs(v_nominal_v, emf_v, n_k, fn)
     n_l, n_m = emf.shape[2], m.size
+    z_b = None if z_branch_ohm is None else _check_branch(z_branch_ohm, n_m, fn)
     z_ref = max(float(np.max(np.abs(leg.z_total_ohm))) for leg in line.legs)
 
     g_mat, g_vec = [], []
@@ -357,6 +365,8 @@ def solve_teed_sweep(
 
     # Cases laid out (M, Rf, K, L); phase axes first for fault_currents.
     z_th = -np.transpose(out[..., 0:3, n_l:], (2, 3, 0, 1))[:, :, :, None, :, None]
+    if z_b is not None:  # the fault beyond a series branch (see the parameters)
+        z_th = z_th + np.transpose(z_b, (1, 2, 0))[:, :, :, None, None, None]
     v_pre_f = np.transpose(out[..., 0:3, :n_l], (2, 0, 1, 3))[:, :, None]  # (3, M, 1, K, L)
     pre = np.transpose(out[..., :n_l], (0, 1, 3, 2))[:, None]  # (M, 1, K, L, 21)
     sens = np.transpose(out[..., n_l:], (3, 0, 1, 2))[:, :, None, :, None, :]  # (j,M,1,K,1,21)

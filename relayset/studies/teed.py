@@ -76,10 +76,12 @@ def run_teed(loaded) -> TeedStudyResult:
 #: How the zones are verified (stated with the results).
 VERIFIED = ("Verified by fault simulation on the teed solver with the relay model of the "
             "two-ended verification (relayset.studies.verification.teed): mho zones at the "
-            "line angle; every infeed state (all sources in, each source out in turn), the "
+            "line angle; every infeed state (all sources in, each source out, each two out), "
+            "the "
             "reach study's source cases, fault types and resistances; faults along the three "
-            "legs (5 % steps) and at each remote terminal. Not simulated: faults on the lines "
-            "beyond the remote buses, load, the earth-resistivity range, setting steps.")
+            "legs (5 % steps), at each remote terminal and along the lines beyond it that "
+            "name their bus (Z0 = 3 Z1 where none is given). Not simulated: load, the "
+            "earth-resistivity range, setting steps.")
 
 
 def teed_line(study: Study, geo: LineGeometry, params: LineParameters, shunt: bool,
@@ -214,7 +216,12 @@ def run_teed_study(study: Study, geo: LineGeometry, params: LineParameters,
         r_fault_ohm=rs.fault_resistances, source_scale=scales,
         case_names=tuple(c.name for c in rs.source_cases), k0=k0, line_angle_rad=theta,
         z_line_ohm=abs(relay.z1_set_ohm),
-        models={x: relay_model_at(study, buses[x]) for x in judged}, buses=buses)
+        models={x: relay_model_at(study, buses[x]) for x in judged}, buses=buses,
+        beyond={y: [(a.name, a.z1, a.z0 if a.z0 is not None else 3 * a.z1)
+                    for a in study.adjacent_lines if a.bus == buses[y] and a.z1 is not None]
+                for y in range(3)},
+        next_zone1_pct=(philosophy.zone2.adjacent_zone1_pct
+                        if philosophy.zone2.grading == "short_of_adjacent_zone1" else None))
     results = [dataclasses.replace(e, checks=e.checks + sim[x].checks)
                for e, x in zip(results, judged, strict=True)]
     failed = sum(not c.passed for e in results for c in e.checks)
