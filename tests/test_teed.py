@@ -358,3 +358,18 @@ def test_simulated_zone2_against_the_next_zone1(factor, passes):
     assert chk.passed is passes
     assert "80 % along 'R - X' beyond R" in chk.detail and "no source at R and T" in chk.detail
     assert f"reach scale {1 / factor:.3g} " in chk.detail
+
+
+def test_branch_in_two_equal_sections_equals_one_section():
+    """A uniform branch written as two sections gives the result of one section (the chain
+    matrices multiply: Phi(a) Phi(b) = Phi(a + b), Paul ch. 7)."""
+    one = TeedLine((cascade([30e3], True), cascade([25e3], True, 1), cascade([18e3], True)))
+    two = TeedLine((cascade([30e3], True), cascade([25e3], True, 1),
+                    LineCascade(np.stack([one.legs[2].z_ohm_per_m[0]] * 2), [11e3, 7e3],
+                                np.stack([one.legs[2].y_s_per_m[0]] * 2))))
+    kw = dict(v_nominal_v=V_NOM, fault_leg="T", fault_types=FAULT_TYPES, m=[0.0, 0.5, 1.0],
+              r_fault_ohm=[0.0, 3.0])
+    a, b = solve_teed_sweep(one, SOURCES, **kw), solve_teed_sweep(two, SOURCES, **kw)
+    for end in ENDS:
+        assert_allclose(b.v[end], a.v[end], rtol=1e-10, atol=1e-10 * V_NOM)
+        assert_allclose(b.i[end], a.i[end], rtol=1e-10, atol=1e-6)

@@ -27,6 +27,9 @@ def teed_summary(res: TeedStudyResult, source: str) -> str:
         "mho zones at the line angle",
         "=" * 80,
     ]
+    for bus, (length, z1, z0) in zip(b, res.legs, strict=True):
+        out.append(f"Leg {bus} - tee: {length / 1e3:.4g} km, Z1 = {z1.real:.4g} + "
+                   f"j{z1.imag:.4g} ohm, Z0 = {z0.real:.4g} + j{z0.imag:.4g} ohm")
     for e in res.ends:
         out.append(f"Relay at {visible_text(e.end)} (tee {e.tee_ohm:.4g} ohm away)")
         out.append("  remote terminal      infeed   apparent reach along the line angle")

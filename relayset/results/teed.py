@@ -69,10 +69,15 @@ class TeedStudyResult:
     k0_set: complex
     ends: tuple[TeedEndSettings, ...]
     assumptions: tuple[str, ...]
+    #: per leg (from, to, third substation to the tee): (length [m], Z1 [ohm], Z0 [ohm]),
+    #: sequence impedances of the leg's series matrix as built (Fortescue)
+    legs: tuple[tuple[float, complex, complex], ...]
     verification: str  #: "all checks passed" or "failed checks" (setting rules and simulation)
 
     def to_dict(self) -> dict[str, Any]:
         return {"buses": list(self.buses), "tee_distance_m": self.tee_distance_m,
                 "branch_length_m": self.branch_length_m, "z1_set_ohm": cplx(self.z1_set_ohm),
                 "k0_set": cplx(self.k0_set), "ends": [e.to_dict() for e in self.ends],
+                "legs": [{"bus": b, "length_m": ln, "z1_ohm": cplx(z1), "z0_ohm": cplx(z0)}
+                         for b, (ln, z1, z0) in zip(self.buses, self.legs, strict=True)],
                 "assumptions": list(self.assumptions), "verification": self.verification}

@@ -229,4 +229,6 @@ def run_teed_study(study: Study, geo: LineGeometry, params: LineParameters,
         buses=buses, tee_distance_m=study.tee.distance, branch_length_m=study.tee.length,
         z1_set_ohm=relay.z1_set_ohm, k0_set=k0, ends=tuple(results),
         assumptions=(*ASSUMPTIONS, VERIFIED),
+        legs=tuple((leg.total_length_m, complex(to_sequence(leg.z_total_ohm)[1, 1]),
+                    complex(to_sequence(leg.z_total_ohm)[0, 0])) for leg in line.legs),
         verification="failed checks" if failed else "all checks passed")
