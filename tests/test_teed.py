@@ -300,11 +300,11 @@ def test_simulated_zones_on_a_balanced_line():
               source_scale=np.array([1.0]), case_names=("nominal",), k0=0j,
               line_angle_rad=theta, z_line_ohm=abs(z1) * (ls + lr),
               models={0: RelayModel()}, buses=("S", "R", "T"))
-    good = verify_teed(line, SOURCES, (0,), {0: (0.8 * near, 3 * near)}, **kw)[0]
+    good = verify_teed([("earth", line)], SOURCES, (0,), {0: (0.8 * near, 3 * near)}, **kw)[0]
     assert good.zone1_remote_scale == pytest.approx(1 / 0.8, rel=1e-9)
     assert all(c.passed for c in good.checks)
     assert 0 < good.zone1_coverage_pct < 100
-    bad = verify_teed(line, SOURCES, (0,), {0: (1.05 * near, 1.1 * near)}, **kw)[0]
+    bad = verify_teed([("earth", line)], SOURCES, (0,), {0: (1.05 * near, 1.1 * near)}, **kw)[0]
     chk = {c.check_id: c for c in bad.checks}
     assert not chk["zone1_no_remote_terminal_trip"].passed
     assert "overreaches a remote terminal" in chk["zone1_no_remote_terminal_trip"].detail
@@ -348,7 +348,7 @@ def test_simulated_zone2_against_the_next_zone1(factor, passes):
     z_adj = z1 * 20e3
     limit = abs(z1 * (ls + lr) + 0.8 * z_adj)
     res = verify_teed(
-        line, SOURCES, (0,), {0: (0.5 * abs(z1) * (ls + lt), factor * limit)},
+        [("earth", line)], SOURCES, (0,), {0: (0.5 * abs(z1) * (ls + lt), factor * limit)},
         v_nominal_v=V_NOM, fault_types=["ABC"], r_fault_ohm=[0.0],
         source_scale=np.array([1.0]), case_names=("nominal",), k0=0j,
         line_angle_rad=float(np.angle(z1)), z_line_ohm=abs(z1) * (ls + lr),
@@ -373,3 +373,27 @@ def test_branch_in_two_equal_sections_equals_one_section():
     for end in ENDS:
         assert_allclose(b.v[end], a.v[end], rtol=1e-10, atol=1e-10 * V_NOM)
         assert_allclose(b.i[end], a.i[end], rtol=1e-10, atol=1e-6)
+
+
+def test_verification_judges_every_line_it_is_given():
+    """The earth-resistivity sweep hands the verification one line per resistivity: a zone 1
+    safe on one (80 % of the nearest terminal, scale 1/0.8 on a balanced line, see above)
+    but overreaching on another (a shorter leg T) must fail, naming that line."""
+    from relayset.studies.verification.relay_model import RelayModel
+    from relayset.studies.verification.teed import verify_teed
+
+    z1 = (0.05 + 0.40j) / 1e3
+    base = TeedLine((_balanced_leg(25e3), _balanced_leg(35e3), _balanced_leg(15e3)))
+    short = TeedLine((_balanced_leg(25e3), _balanced_leg(35e3), _balanced_leg(5e3)))
+    kw = dict(v_nominal_v=V_NOM, fault_types=["ABC"], r_fault_ohm=[0.0],
+              source_scale=np.array([1.0]), case_names=("nominal",), k0=0j,
+              line_angle_rad=float(np.angle(z1)), z_line_ohm=abs(z1) * 60e3,
+              models={0: RelayModel()}, buses=("S", "R", "T"))
+    zones = {0: (0.8 * abs(z1) * 40e3, 3 * abs(z1) * 60e3)}
+    alone = verify_teed([("earth 100 ohm*m", base)], SOURCES, (0,), zones, **kw)[0]
+    both = verify_teed([("earth 100 ohm*m", base), ("earth 30 ohm*m", short)], SOURCES,
+                       (0,), zones, **kw)[0]
+    assert alone.zone1_remote_scale == pytest.approx(1 / 0.8, rel=1e-9)
+    assert both.zone1_remote_scale == pytest.approx(30 / 32, rel=1e-9)  # |Z| / D
+    chk = {c.check_id: c for c in both.checks}["zone1_no_remote_terminal_trip"]
+    assert not chk.passed and "earth 30 ohm*m" in chk.detail

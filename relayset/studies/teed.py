@@ -80,8 +80,10 @@ VERIFIED = ("Verified by fault simulation on the teed solver with the relay mode
             "the "
             "reach study's source cases, fault types and resistances; faults along the three "
             "legs (5 % steps), at each remote terminal and along the lines beyond it that "
-            "name their bus (Z0 = 3 Z1 where none is given). Not simulated: load, the "
-            "earth-resistivity range, setting steps.")
+            "name their bus (Z0 = 3 Z1 where none is given); the earth-resistivity range "
+            "(the relay keeps its k0); load: the first bus leading the others by each "
+            "transfer angle of [load]. Not simulated: power-flow load cases, setting steps, "
+            "quadrilateral shapes.")
 
 
 def teed_line(study: Study, geo: LineGeometry, params: LineParameters, shunt: bool,
@@ -208,11 +210,29 @@ def run_teed_study(study: Study, geo: LineGeometry, params: LineParameters,
             zone2_secondary_ohm=complex(secondary_ohm(z2_ohm * unit, *ratios))))
     # Fault simulation of the zones (imported here: the reach alone needs none of it).
     from relayset.studies.verification.checks import relay_model_at
+    from relayset.studies.verification.closing import study_at_resistivity
+    from relayset.studies.verification.envelope import resistivities
     from relayset.studies.verification.teed import verify_teed
 
     judged = tuple(x for x in range(3) if buses[x] in relay.ends)
+    lines = []
+    for r in resistivities(study)[0]:  # the relay keeps its k0 while the line's moves
+        if float(r) == float(study.system.earth_resistivity):
+            lines.append((f"earth {r:g} ohm*m", line))
+            continue
+        st = study_at_resistivity(study, r)
+        g = build_geometry(st, source)
+        lines.append((f"earth {r:g} ohm*m",
+                      teed_line(st, g, compute_parameters(g), rs.shunt_capacitance, source)))
+    # Load: bus S leads R and T by each transfer angle of [load] (none: no load).
+    angles = study.load.transfer_angles if study.load is not None else (0.0,)
+    e = v_nom / math.sqrt(3)
+    emf = (np.array([cmath.rect(e, a) for a in angles]), np.full(len(angles), e + 0j),
+           np.full(len(angles), e + 0j))
+    loads = tuple(f"{buses[0]} leading by {math.degrees(a):g} deg" for a in angles)
     sim = verify_teed(
-        line, terms, judged, zones, v_nominal_v=v_nom, fault_types=ftypes,
+        lines, terms, judged, zones, v_nominal_v=v_nom, fault_types=ftypes,
+        emf_v=emf, load_names=loads,
         r_fault_ohm=rs.fault_resistances, source_scale=scales,
         case_names=tuple(c.name for c in rs.source_cases), k0=k0, line_angle_rad=theta,
         z_line_ohm=abs(relay.z1_set_ohm),

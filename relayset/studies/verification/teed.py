@@ -18,7 +18,9 @@ source out, each two out) and the reach study's source cases, fault types and re
 
 from __future__ import annotations
 
+import itertools
 import math
+from collections.abc import Sequence
 from dataclasses import dataclass
 
 import numpy as np
@@ -72,15 +74,20 @@ def _as_run(sw: TeedSweep, end: str, case_names: tuple[str, ...]) -> Run:
 
 
 def verify_teed(
-    line: TeedLine, terminals, relay_ends: tuple[int, ...], zones: dict[int, tuple[float, float]],
+    lines: Sequence[tuple[str, TeedLine]], terminals, relay_ends: tuple[int, ...],
+    zones: dict[int, tuple[float, float]],
     *, v_nominal_v: float, fault_types, r_fault_ohm, source_scale: np.ndarray,
     case_names: tuple[str, ...], k0: complex, line_angle_rad: float, z_line_ohm: float,
     models: dict[int, RelayModel], buses: tuple[str, str, str],
     beyond: dict[int, list[tuple[str, complex, complex]]] | None = None,
     next_zone1_pct: float | None = None,
+    emf_v: tuple[np.ndarray, np.ndarray, np.ndarray] | None = None,
+    load_names: tuple[str, ...] = ("no load",),
 ) -> dict[int, TeedVerdict]:
     """Checks and their numbers per relay end (index into :data:`~relayset.physics.teed.ENDS`).
 
+    ``lines`` holds the line at each earth resistivity, with a label; ``emf_v`` the
+    phase-A EMFs of the load cases, per terminal (L,), named by ``load_names``.
     ``zones[x]`` is (zone 1, zone 2) reach along the line angle [ohm] at end x and
     ``models[x]`` the relay model there. ``beyond[y]`` lists the lines leaving bus y
     (name, Z1, Z0 [ohm]); faults along them (a series branch from the bus, carrying the
@@ -102,18 +109,18 @@ def verify_teed(
     fracs = np.unique(np.array([0.25, 0.5, 1.0] + ([p_next] if p_next else [])))
     zone_1 = {x: MhoZone(zones[x][0]) for x in relay_ends}
     zone_2 = {x: MhoZone(zones[x][1]) for x in relay_ends}
-    for out in states:
+    for (earth, line), out in itertools.product(lines, states):
         if any(terminals[k] is None for k in out):
             continue  # already open: the same network as a smaller state
         terms = [None if k in out else t for k, t in enumerate(terminals)]
         if not any(isinstance(t, Source) for t in terms):
             continue
         state = ("all sources in" if not out else
-                 "no source at " + " and ".join(buses[k] for k in out))
+                 "no source at " + " and ".join(buses[k] for k in out)) + f", {earth}"
         for leg in range(3):
             sw = solve_teed_sweep(line, terms, v_nominal_v=v_nominal_v, fault_leg=ENDS[leg],
                                   fault_types=fault_types, m=LEG_LOCATIONS, r_fault_ohm=rf,
-                                  source_scale=source_scale)
+                                  source_scale=source_scale, emf_v=emf_v)
             for x in relay_ends:
                 if x in out:
                     continue  # the relay's own source out: not this relay's case
@@ -122,10 +129,10 @@ def verify_teed(
                           line_angle=line_angle_rad)
 
                 def label(idx, loop, leg=leg, state=state, sw=sw):
-                    f, mi, ri, k, _ = idx
+                    f, mi, ri, k, ld = idx
                     return (f"{sw.fault_types[f]} fault, loop {LOOPS[loop]}, "
                             f"{_where(buses, leg, float(sw.m[mi]))}, Rf = {rf[ri]:g} ohm, "
-                            f"source case {case_names[k]}, {state}")
+                            f"source case {case_names[k]}, {load_names[ld]}, {state}")
 
                 if leg != x:  # faults at the remote bus (m = 0 of that leg)
                     s1 = zone_scale(vw.at_locations(np.array([0])), zone_1[x],
@@ -150,7 +157,8 @@ def verify_teed(
                             for _, z1, z0 in lines for f in fracs])
             sw = solve_teed_sweep(line, terms, v_nominal_v=v_nominal_v, fault_leg=ENDS[y],
                                   fault_types=fault_types, m=np.zeros(len(where)),
-                                  r_fault_ohm=rf, source_scale=source_scale, z_branch_ohm=z_b)
+                                  r_fault_ohm=rf, source_scale=source_scale, z_branch_ohm=z_b,
+                                  emf_v=emf_v)
             for x in relay_ends:
                 if x in out or x == y:
                     continue
@@ -159,11 +167,11 @@ def verify_teed(
                           line_angle=line_angle_rad)
 
                 def blabel(idx, loop, y=y, state=state, where=where, sw=sw):
-                    f, mi, ri, k, _ = idx
+                    f, mi, ri, k, ld = idx
                     name, frac = where[mi]
                     return (f"{sw.fault_types[f]} fault, loop {LOOPS[loop]}, {100 * frac:.0f} "
                             f"% along '{name}' beyond {buses[y]}, Rf = {rf[ri]:g} ohm, "
-                            f"source case {case_names[k]}, {state}")
+                            f"source case {case_names[k]}, {load_names[ld]}, {state}")
 
                 s1 = zone_scale(vw, zone_1[x], line_angle_rad, z_line_ohm, model)
                 j = np.unravel_index(int(np.argmin(s1.scale)), s1.scale.shape)
