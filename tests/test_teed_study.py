@@ -346,3 +346,27 @@ def test_teed_command_refuses_bad_input_and_a_two_ended_study(tmp_path, capsys):
     assert main(["teed", str(write(tmp_path, plain, "plain.toml"))]) == 2
     err = capsys.readouterr().err.strip()
     assert len(err.splitlines()) == 1 and "no [tee] table" in err
+
+
+def test_time_graded_zone2_is_not_held_short_of_the_next_zone1(tmp_path):
+    """With zone2.grading = "time_graded" the philosophy does not ask zone 2 to stay short
+    of the next zone 1: both the rule's check and the simulated one say so and pass."""
+    from relayset.studies import pipeline
+    from relayset.studies.teed import run_teed
+
+    (tmp_path / "graded.toml").write_text(
+        '[zone2]\ngrading = "time_graded"\n'
+        "check_adjacent_zone1 = false\n", encoding="utf-8")
+    text = TEED_TOML.replace('to_substation = "Velmar"\n',
+                             'to_substation = "Velmar"\nphilosophy = "graded.toml"\n') + '''
+[[adjacent_lines]]
+name = "Velmar - Tarn 132 kV"
+z1 = "0.5 + 2j ohm"
+bus = "Velmar"
+'''
+    res = run_teed(pipeline.load(write(tmp_path, text)))
+    chk = {c.check_id: c for c in res.ends[0].checks}
+    assert chk["zone2_short_of_next_zone1"].passed
+    assert "time graded" in chk["zone2_short_of_next_zone1"].detail
+    assert chk["zone2_stays_short_of_next_zone1"].passed
+    assert "time graded" in chk["zone2_stays_short_of_next_zone1"].detail

@@ -44,7 +44,7 @@ def teed_zone2_ohm(farthest_with_infeed_ohm: float, zone2_pct: float) -> float:
 
 def teed_checks(
     zone1_ohm: float, zone2_ohm: float, tee_ohm: float,
-    next_zone1: Sequence[tuple[str, str, float]],
+    next_zone1: Sequence[tuple[str, str, float]] | None,
 ) -> tuple[Check, ...]:
     """Checks of a teed line's zone 1 and zone 2 that say why a rule cannot be met.
 
@@ -57,7 +57,7 @@ def teed_checks(
     next_zone1 : sequence of (bus, line name, limit [ohm])
         Where the zone 1 of each next line ends, seen from this relay without infeed:
         the apparent impedance of that bus plus the next line's zone 1 (empty: no adjacent
-        line given).
+        line given; None: zone 2 is time graded, not kept short of the next zone 1).
     """
     checks = [Check(
         "zone1_reaches_tee", zone1_ohm > tee_ohm,
@@ -65,6 +65,11 @@ def teed_checks(
         + ("" if zone1_ohm > tee_ohm else ": zone 1 does not reach the tee, so faults on "
            "the other legs are cleared in zone 2 time unless a communication scheme "
            "trips them"))]
+    if next_zone1 is None:
+        checks.append(Check("zone2_short_of_next_zone1", True,
+                            "zone 2 is time graded with the next zone 2: not compared with a "
+                            "next zone 1"))
+        return tuple(checks)
     if not next_zone1:
         checks.append(Check("zone2_short_of_next_zone1", True,
                             "no adjacent line given: zone 2 not compared with a next zone 1"))

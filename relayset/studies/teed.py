@@ -205,7 +205,9 @@ def run_teed_study(study: Study, geo: LineGeometry, params: LineParameters,
             zone2_rule=(f"{max(philosophy.zone2.reach_pct, 100.0):g} % of the apparent "
                         f"impedance of the farthest remote terminal {buses[y_far]} with the "
                         f"infeed in ({far:.4g} ohm)"),
-            checks=teed_checks(z1_ohm, z2_ohm, tee_ohm, next_z1),
+            checks=teed_checks(z1_ohm, z2_ohm, tee_ohm,
+                               next_z1 if philosophy.zone2.grading == "short_of_adjacent_zone1"
+                               else None),
             zone1_secondary_ohm=complex(secondary_ohm(z1_ohm * unit, *ratios)),
             zone2_secondary_ohm=complex(secondary_ohm(z2_ohm * unit, *ratios))))
     # Fault simulation of the zones (imported here: the reach alone needs none of it).
