@@ -397,3 +397,18 @@ def test_verification_judges_every_line_it_is_given():
     assert both.zone1_remote_scale == pytest.approx(30 / 32, rel=1e-9)  # |Z| / D
     chk = {c.check_id: c for c in both.checks}["zone1_no_remote_terminal_trip"]
     assert not chk.passed and "earth 30 ohm*m" in chk.detail
+
+
+def test_a_fault_at_the_tee_is_the_same_from_every_leg():
+    """The tee is one node (voltage continuity, Kirchhoff's current law): a fault at the
+    tee end (m = 1) of any leg is the same fault."""
+    line = teed(True)
+    kw = dict(v_nominal_v=V_NOM, fault_types=FAULT_TYPES, m=[1.0], r_fault_ohm=[0.0, 4.0],
+              r_phase_ohm=1.0, emf_v=tuple(np.array([e]) for e in EMFS))
+    sw = {leg: solve_teed_sweep(line, SOURCES, fault_leg=leg, **kw) for leg in ENDS}
+    scale = np.max(np.abs(sw["S"].i_fault))
+    for leg in ("R", "T"):
+        assert_allclose(sw[leg].i_fault, sw["S"].i_fault, rtol=1e-9, atol=1e-9 * scale)
+        for end in ENDS:
+            assert_allclose(sw[leg].v[end], sw["S"].v[end], rtol=1e-9, atol=1e-9 * V_NOM)
+            assert_allclose(sw[leg].i[end], sw["S"].i[end], rtol=1e-9, atol=1e-9 * scale)
