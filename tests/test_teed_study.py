@@ -370,3 +370,10 @@ bus = "Velmar"
     assert "time graded" in chk["zone2_short_of_next_zone1"].detail
     assert chk["zone2_stays_short_of_next_zone1"].passed
     assert "time graded" in chk["zone2_stays_short_of_next_zone1"].detail
+
+
+def test_params_of_a_teed_line_say_what_they_cover(tmp_path, capsys):
+    assert main(["params", str(write(tmp_path))]) == 0
+    out = " ".join(capsys.readouterr().out.split())
+    assert ("these parameters are of the line from Wrenfold to Velmar; the branch from the "
+            "tee at 25 km to Oakrest (15 km)") in out
