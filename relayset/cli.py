@@ -67,6 +67,11 @@ def _parser() -> argparse.ArgumentParser:
                        description="Print the JSON Schema of a relayset file.")
     p.add_argument("name", choices=("study", "philosophy", "profile", "results", "settings",
                                      "test-points"))
+    p = sub.add_parser("teed", help="three-terminal line: zones per end and their verification",
+                       description="Reach study, zone 1/zone 2 and their verification by fault "
+                       "simulation of a study with a [tee] table.")
+    p.add_argument("files", nargs=1, metavar="FILE", help="study file (TOML) with [tee]")
+    p.add_argument("--json", metavar="PATH", help="write the results as JSON")
     _fleet_parsers(sub)
     sub.add_parser("conductors", help="list the built-in conductor table")
     sub.add_parser("earth-models", help="list the earth-return models")
@@ -239,6 +244,17 @@ def _run(args) -> int:
         return _run_fleet(args)
     if args.command in ("verify", "compare", "sign"):
         return _run_archive(args)
+    if args.command == "teed":  # three-terminal lines (relayset.studies.teed)
+        from relayset import io
+        from relayset.report.teed import teed_summary
+        from relayset.studies import pipeline
+        from relayset.studies.teed import run_teed
+
+        res = run_teed(pipeline.load(args.files[0]))
+        if args.json:
+            io.write_all([("--json", args.json, io.to_json(res.to_dict()))])
+        sys.stdout.write(teed_summary(res, args.files[0]))
+        return EXIT_FAILED_CHECKS if res.verification != "all checks passed" else 0
     if args.command == "conductors":
         from relayset.inputs.conductors import builtin_table
 

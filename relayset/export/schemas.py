@@ -35,6 +35,7 @@ def study_schema() -> dict[str, Any]:
     props["cables"] = cables_schema()
     props["neighbours"] = _neighbours()
     props["series_capacitors"] = _series_capacitors()
+    props["tee"] = _tee_schema()
     return {"$schema": DRAFT, "$id": _BASE + "study.json", "title": "relayset study file",
             "type": "object", "required": ["schema", "study", "system", "line"],
             "properties": props, "additionalProperties": False}
@@ -57,6 +58,8 @@ def _neighbours() -> dict[str, Any]:
                        "sources": {"type": "object",
                                    "additionalProperties": {"type": "object"}}},
         "additionalProperties": False}}
+
+
 def _series_capacitors() -> dict[str, Any]:
     """``[[series_capacitors]]``: banks at a bus (``at``) or mid-line (``distance`` from
     ``measured_from``), sized by ``compensation_pct`` or ``reactance``, with the varistor's
@@ -72,6 +75,16 @@ def _series_capacitors() -> dict[str, Any]:
     bank = {"type": "object", "properties": props, "additionalProperties": False,
             "oneOf": [{"required": ["at"]}, {"required": ["distance", "measured_from"]}]}
     return {"type": "array", "maxItems": MAX_SERIES_CAPACITORS, "items": bank}
+
+
+def _tee_schema() -> dict[str, Any]:
+    """``[tee]`` (relayset.inputs.teed): its keys, the required ones, sections as a list."""
+    from relayset.inputs.teed import TeeData
+
+    keys = _tables(TeeData)
+    keys["sections"] = {"type": "array", "minItems": 1, "items": {"type": "object"}}
+    return {"type": "object", "required": ["distance", "substation", "sections"],
+            "properties": keys, "additionalProperties": False}
 
 
 def philosophy_schema() -> dict[str, Any]:

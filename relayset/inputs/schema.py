@@ -151,6 +151,20 @@ class Table(_Node):
         return obj
 
 
+class Lazy(_Node):
+    """A node made on first use by ``make()``: a table declared in a module that itself
+    imports this one's caller (e.g. ``[tee]`` in :mod:`relayset.inputs.teed`)."""
+
+    def __init__(self, make: Callable[[], _Node]):
+        self._make = make
+        self._node: _Node | None = None
+
+    def run(self, value: Any, loc: tuple, issues: list[Issue]) -> Any:
+        if self._node is None:
+            self._node = self._make()
+        return self._node.run(value, loc, issues)
+
+
 def _too_many(n: int, most: int, what: str) -> str:
     return f"has {n:,} {what}; at most {most:,} (a size limit far above any real line)"
 

@@ -775,6 +775,12 @@ class Neighbour:
                                "give route_z1 and route_z0 together")
 
 
+def _tee_table() -> schema.Table:
+    from relayset.inputs.teed import TeeData  # declared there; it reads this module's Section
+
+    return table(TeeData)
+
+
 @_table
 class Study:
     """A whole study file, validated, SI inside."""
@@ -813,6 +819,8 @@ class Study:
     #: series capacitor banks in the line (relayset.inputs.series_capacitor)
     series_capacitors: tuple[SeriesCapacitor, ...] = spec(ListOf(
         table(SeriesCapacitor), max_items=MAX_SERIES_CAPACITORS, what="banks"), ())
+    #: ``[tee]``: a third terminal (:class:`relayset.inputs.teed.TeeData`)
+    tee: Any = spec(schema.Lazy(_tee_table), None)
 
     @property
     def ends(self) -> tuple[str, str]:
@@ -824,6 +832,8 @@ class Study:
         """The end(s) the relay sits at ("both" means both)."""
         if self.relay is None:
             return ()
+        if self.tee is not None and self.relay.end == "all":
+            return (*self.ends, self.tee.substation)
         return self.ends if self.relay.end == "both" else (self.relay.end,)
 
 
@@ -1017,6 +1027,12 @@ def check_study(study: Study, data: dict, source: str) -> None:
         raise InputError(rule, field=field, value=value, source=source)
 
     no_end = f"names no end of this line (the ends are {quote(ends[0])} and {quote(ends[1])})"
+    if study.tee is not None:  # a third substation (relayset.inputs.teed)
+        from relayset.inputs.teed import buses, check_tee
+
+        check_tee(study, data, fail)
+        ends = buses(study)
+        no_end = "names no substation of this line (" + ", ".join(map(quote, ends)) + ")"
     if ends[0] == ends[1]:
         fail("must differ from study.from_substation", "study.to_substation", ends[1])
     if study.relay is not None:
@@ -1075,9 +1091,10 @@ def check_study(study: Study, data: dict, source: str) -> None:
 
     if study.relay is not None:
         end = study.relay.end
-        if end != "both" and end not in ends:
-            fail(f"is not an end of this line; use {quote(ends[0])}, {quote(ends[1])} or 'both'"
-                 + suggest(end, ends), "relay.end", end)
+        every = "all" if study.tee is not None else "both"
+        if end != every and end not in ends:
+            fail(f"is not an end of this line; use {', '.join(map(quote, ends))} or "
+                 f"'{every}'" + suggest(end, ends), "relay.end", end)
         for key in study.relay.at:
             if key not in ends:
                 fail(no_end + suggest(key, ends), f"relay.at.{_key(key)}",
@@ -1118,6 +1135,17 @@ def check_study(study: Study, data: dict, source: str) -> None:
 
         check_neighbours(study, data, fail)
     check_series_capacitors(study, data, fail)
+    if study.tee is not None:  # the teed solver takes overhead sections, nothing else yet
+        others = [(f"{what}[0].name", getattr(study, what)[0].name)
+                  for what in ("neighbours", "series_capacitors") if getattr(study, what)]
+        others += [(f"line.sections[{k}].cable", sec.cable)
+                   for k, sec in enumerate(study.line.sections or ()) if sec.cable]
+        others += [(f"tee.sections[{k}].cable", sec.cable)
+                   for k, sec in enumerate(study.tee.sections or ())
+                   if getattr(sec, "cable", None)]
+        if others:
+            fail("a three-terminal line ([tee]) is modelled with overhead sections only, "
+                 "without a neighbouring line or series capacitors", *others[0])
     if study.neighbours and study.series_capacitors:
         fail("a shared corridor ([[neighbours]]) and series capacitors are not modelled "
              "together: give the compensated line without its neighbour, or the corridor "

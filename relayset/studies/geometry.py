@@ -120,6 +120,13 @@ def build_geometry(study: Study, source: str = "<study>") -> LineGeometry:
         "Subconductors of a bundle share one voltage (bonded at the spacers).",
     ]
     assumptions.extend(study_warnings(study))
+    if study.tee is not None:  # three-terminal line (relayset.studies.teed)
+        assumptions.append(
+            f"Three-terminal line: these parameters are of the line from "
+            f"{study.ends[0]} to {study.ends[1]}; the branch from the tee at "
+            f"{study.tee.distance / 1e3:g} km to {study.tee.substation} "
+            f"({study.tee.length / 1e3:g} km) is built from its own sections by "
+            "'relayset teed', which also gives the zones of a teed line.")
     if study.towers:
         tower_names = tuple(dict.fromkeys(sec.tower for sec in study.line.sections
                                           if sec.cable is None))

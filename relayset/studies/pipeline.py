@@ -81,6 +81,10 @@ def run_loaded(loaded: LoadedStudy, *, reach: bool = False, settings: bool = Fal
     geo = build_geometry(study, src)
     params = compute_parameters(geo)
     relay = philosophy = reach_res = settings_res = None
+    if reach and study.tee is not None:  # three-terminal line: relayset.studies.teed
+        from relayset.studies.teed import refuse_in_pipeline
+
+        refuse_in_pipeline(src)
     if reach:
         # Imported here: `relayset params` needs none of the study steps below.
         from relayset.studies.reach import run_reach_study

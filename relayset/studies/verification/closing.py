@@ -57,13 +57,20 @@ def params_by_resistivity(study: Study, geo: LineGeometry, params: LineParameter
     out = {float(rho): params}
     for r in resistivities(study)[0]:
         if float(r) not in out:
-            system = replace(study.system, earth_resistivity=r)
-            if system.earth_lower_resistivity is not None:  # two layers: both scale alike
-                system = replace(system, earth_lower_resistivity=(
-                    system.earth_lower_resistivity * r / rho))
-            other = replace(study, system=system)
-            out[float(r)] = compute_parameters(build_geometry(other, source))
+            out[float(r)] = compute_parameters(build_geometry(study_at_resistivity(study, r),
+                                                              source))
     return out
+
+
+def study_at_resistivity(study: Study, r: float) -> Study:
+    """The study with the earth resistivity ``r`` [ohm m] (a two-layer earth's lower layer
+    scaled alike)."""
+    rho = study.system.earth_resistivity
+    system = replace(study.system, earth_resistivity=r)
+    if system.earth_lower_resistivity is not None:  # two layers: both scale alike
+        system = replace(system, earth_lower_resistivity=(
+            system.earth_lower_resistivity * r / rho))
+    return replace(study, system=system)
 
 
 def settle_and_verify(study: Study, geo: LineGeometry, params: LineParameters, relay,

@@ -1,0 +1,103 @@
+"""The ``[tee]`` table of a study file: a branch leaving the line to a third substation.
+
+.. code-block:: toml
+
+    [tee]
+    distance = "18 km"              # along the line from study.from_substation
+    substation = "Third"            # the substation at the branch's far end
+    sections = [                    # the branch, from the tee to the third substation,
+      { length = "9 km", order = ["A", "B", "C"] },  # written as the line's sections
+    ]
+    # grounded_transformer_z0 = "1 + 12j ohm"  # the third substation has only a
+    #                                          # grounded-star transformer (no source)
+
+The third substation's source is ``[sources."Third"]`` like the other buses'; without it
+(and without ``grounded_transformer_z0``) the branch ends open. ``[relay] end`` may name
+the third substation, or ``"all"`` for relays at all three ends. A tee is modelled on a
+single-circuit line only. This module declares the table and checks it against the rest of
+the study (:func:`check_tee`, called from
+:func:`relayset.inputs.study_file.check_study`).
+"""
+
+from __future__ import annotations
+
+from collections.abc import Callable
+from typing import Any
+
+from relayset.errors import quote, suggest, toml_key
+from relayset.inputs import limits
+from relayset.inputs.schema import ListOf, spec, table
+from relayset.inputs.study_file import (
+    ComplexOhm,
+    LineLength,
+    Section,
+    _non_empty,
+    _raw,
+    _table,
+    _text,
+)
+
+#: ``relay.end`` for relays at all three ends of a teed line.
+ALL_ENDS = "all"
+
+
+@_table
+class TeeData:
+    """``[tee]``: where the branch leaves the line, its sections and its substation."""
+
+    distance: float = spec(LineLength)
+    substation: str = spec(_text(100, min_len=1))
+    sections: tuple[Section, ...] = spec(ListOf(
+        table(Section), _non_empty, max_items=limits.MAX_SECTIONS, what="sections"))
+    grounded_transformer_z0: complex | None = spec(ComplexOhm, None)
+
+    @property
+    def length(self) -> float:
+        """Length of the branch [m]."""
+        return sum(s.length for s in self.sections)
+
+
+def check_tee(study: Any, data: dict, fail: Callable[..., None]) -> None:
+    """Rules of ``[tee]`` against the rest of the study (``fail(rule, field, value)``)."""
+    tee = study.tee
+    ends = study.ends
+    if len(study.circuits) != 1:
+        fail("a tee is modelled on a single-circuit line only (this line has two circuits)",
+             "tee", None)
+    length = study.line.length
+    raw_d = _raw(data, "tee", "distance")
+    if not tee.distance < length:
+        fail(f"must lie inside the line, between 0 and {_raw(data, 'line', 'length')} from "
+             f"{quote(ends[0])}", "tee.distance", raw_d)
+    if tee.substation in ends:
+        fail("must be a third substation, not an end of the line (the ends are "
+             f"{quote(ends[0])} and {quote(ends[1])})", "tee.substation", tee.substation)
+    if tee.grounded_transformer_z0 is not None:
+        z = tee.grounded_transformer_z0
+        if z.real < 0 or z.imag <= 0:
+            fail("must have R >= 0 and X > 0", "tee.grounded_transformer_z0",
+                 _raw(data, "tee", "grounded_transformer_z0"))
+        if tee.substation in study.sources:
+            fail(f"give either [sources.{toml_key(tee.substation)}] or "
+                 "tee.grounded_transformer_z0 (a grounded transformer only), not both",
+                 "tee.grounded_transformer_z0", _raw(data, "tee", "grounded_transformer_z0"))
+    names = [c.name for c in study.circuits]
+    for s, sec in enumerate(tee.sections):
+        field = f"tee.sections[{s}]"
+        for key in sec.order if isinstance(sec.order, dict) else ():
+            if key not in names:
+                fail("names no circuit" + suggest(key, names), f"{field}.order.{toml_key(key)}",
+                     _raw(data, "tee", "sections", s, "order", key))
+        if study.towers and sec.tower is None:
+            fail("is required: the study has [towers.NAME] tables (towers: "
+                 + ", ".join(study.towers) + ")", f"{field}.tower")
+        if sec.tower is not None and sec.tower not in study.towers:
+            known = ", ".join(study.towers) or "none"
+            fail(f"names no tower of [towers] (towers: {known})"
+                 + suggest(sec.tower, study.towers), f"{field}.tower", sec.tower)
+
+
+def buses(study: Any) -> tuple[str, ...]:
+    """The substations of the line: its two ends and, with a tee, the third."""
+    tee = getattr(study, "tee", None)
+    return study.ends + ((tee.substation,) if tee is not None else ())

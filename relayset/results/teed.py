@@ -1,0 +1,83 @@
+"""Results of a three-terminal (teed) line's reach study and zone 1/zone 2 settings."""
+
+from __future__ import annotations
+
+from dataclasses import dataclass
+from typing import Any
+
+from relayset.results.serialize import cplx
+from relayset.results.settings import Check
+
+
+@dataclass(frozen=True)
+class TeedApparent:
+    """What a relay measures for bolted faults at one remote terminal, one infeed state.
+
+    Reaches are along the relay's line angle, Re(Z exp(-j theta1)) [ohm], over the fault
+    types of the reach study, their meant loops and the source cases.
+    """
+
+    remote: str  #: the faulted remote terminal
+    infeed: bool  #: the third terminal's source in (True) or disconnected (False)
+    min_ohm: float
+    max_ohm: float
+    min_case: str  #: fault type, loop and source case of the smallest
+    max_case: str
+
+    def to_dict(self) -> dict[str, Any]:
+        return {"remote": self.remote, "infeed": self.infeed, "min_ohm": self.min_ohm,
+                "max_ohm": self.max_ohm, "min_case": self.min_case,
+                "max_case": self.max_case}
+
+
+@dataclass(frozen=True)
+class TeedEndSettings:
+    """Zone 1 and zone 2 of the relay at one end of a teed line."""
+
+    end: str
+    apparent: tuple[TeedApparent, ...]
+    tee_ohm: float  #: Z1 from this end to the tee along the line angle [ohm]
+    zone1_pct: float  #: of the nearest remote terminal's apparent impedance without infeed
+    zone1_ohm: complex  #: reach at the line angle [ohm]
+    zone1_rule: str
+    zone2_ohm: complex
+    zone2_rule: str
+    checks: tuple[Check, ...]
+    zone1_secondary_ohm: complex = 0j  #: through this end's CT and VT ratios [ohm]
+    zone2_secondary_ohm: complex = 0j
+
+    def to_dict(self) -> dict[str, Any]:
+        return {"end": self.end,
+                "zone1_secondary_ohm": cplx(self.zone1_secondary_ohm),
+                "zone2_secondary_ohm": cplx(self.zone2_secondary_ohm),
+                "apparent": [a.to_dict() for a in self.apparent],
+                "tee_ohm": self.tee_ohm, "zone1_pct": self.zone1_pct,
+                "zone1_ohm": cplx(self.zone1_ohm), "zone1_rule": self.zone1_rule,
+                "zone2_ohm": cplx(self.zone2_ohm), "zone2_rule": self.zone2_rule,
+                "checks": [{"check_id": c.check_id, "passed": c.passed, "detail": c.detail}
+                           for c in self.checks]}
+
+
+@dataclass(frozen=True)
+class TeedStudyResult:
+    """The teed line's reach study and settings for every relay end (not verified)."""
+
+    buses: tuple[str, str, str]  #: from, to, third substation
+    tee_distance_m: float
+    branch_length_m: float
+    z1_set_ohm: complex
+    k0_set: complex
+    ends: tuple[TeedEndSettings, ...]
+    assumptions: tuple[str, ...]
+    #: per leg (from, to, third substation to the tee): (length [m], Z1 [ohm], Z0 [ohm]),
+    #: sequence impedances of the leg's series matrix as built (Fortescue)
+    legs: tuple[tuple[float, complex, complex], ...]
+    verification: str  #: "all checks passed" or "failed checks" (setting rules and simulation)
+
+    def to_dict(self) -> dict[str, Any]:
+        return {"buses": list(self.buses), "tee_distance_m": self.tee_distance_m,
+                "branch_length_m": self.branch_length_m, "z1_set_ohm": cplx(self.z1_set_ohm),
+                "k0_set": cplx(self.k0_set), "ends": [e.to_dict() for e in self.ends],
+                "legs": [{"bus": b, "length_m": ln, "z1_ohm": cplx(z1), "z0_ohm": cplx(z0)}
+                         for b, (ln, z1, z0) in zip(self.buses, self.legs, strict=True)],
+                "assumptions": list(self.assumptions), "verification": self.verification}

@@ -1,0 +1,256 @@
+"""Reach study and zone 1/zone 2 settings of a three-terminal (teed) line.
+
+From a study with a ``[tee]`` table (:mod:`relayset.inputs.teed`): the line is split at the
+tee, the branch is built from its own sections like the line's, and the three legs are
+solved together (:mod:`relayset.physics.teed`). For each relay end, bolted faults of the
+reach study's types at each remote terminal are solved with the third terminal's source in
+and out, over the source cases; the meant loops' apparent impedances along the line angle
+give zone 1 (short of the nearest remote terminal without infeed) and zone 2 (covering the
+farthest with infeed) by the rules of :mod:`relayset.settings.teed`, and the zones are then
+verified by fault simulation (:mod:`relayset.studies.verification.teed`).
+"""
+
+from __future__ import annotations
+
+import cmath
+import dataclasses
+import math
+
+import numpy as np
+
+from relayset.errors import InputError
+from relayset.inputs.philosophy import Philosophy
+from relayset.inputs.study_file import Study, check_reach_inputs
+from relayset.physics import measurement
+from relayset.physics.network import Source
+from relayset.physics.sequence import to_sequence
+from relayset.physics.teed import ENDS, GroundedTransformer, TeedLine, solve_teed_sweep
+from relayset.physics.zones import secondary_ohm
+from relayset.results.parameters import LineParameters
+from relayset.results.relay import RelayBasis
+from relayset.results.teed import TeedApparent, TeedEndSettings, TeedStudyResult
+from relayset.settings.teed import teed_checks, teed_zone1_ohm, teed_zone1_pct, teed_zone2_ohm
+from relayset.studies.geometry import LineGeometry, build_geometry
+from relayset.studies.parameters import compute_parameters
+from relayset.studies.reach import build_source, line_cascade
+
+ASSUMPTIONS = (
+    "Three-terminal line: bolted faults at each remote terminal (on the line side of its "
+    "current transformer), no prefault load (all source EMFs at nominal voltage, in phase).",
+    "Infeed out: the third terminal's source disconnected; infeed in: every source in, over "
+    "the reach study's source cases (the strongest infeed included).",
+    "Reaches along the relay's line angle, Re(Z exp(-j theta1)), of the loops meant for each "
+    "fault type, with the relay's Z1 and k0.",
+)
+
+
+#: Why ``relayset reach``, ``settings``, ``report`` and ``export`` refuse a teed line.
+REFUSAL = ("the two-ended reach study, settings, report and export do not take a tee; a "
+           "three-terminal line's reach study, zone 1/zone 2 and their verification by fault "
+           "simulation come from 'relayset teed' (Python: relayset.studies.teed.run_teed)")
+
+
+def refuse_in_pipeline(source: str) -> None:
+    """The one-line refusal of the two-ended pipeline for a study with a tee (exit 2)."""
+    raise InputError(REFUSAL, field="tee", source=source)
+
+
+def run_teed(loaded) -> TeedStudyResult:
+    """The reach study and zone 1/zone 2 of a study read by
+    :func:`relayset.studies.pipeline.load` (or ``load_bytes``) that has a ``[tee]``."""
+    from relayset.studies.relay import resolve_relay
+    from relayset.studies.settings import study_philosophy
+
+    study, src = loaded.study, loaded.source
+    if study.tee is None:
+        raise InputError("the study has no [tee] table (not a three-terminal line)",
+                         field="tee", source=src)
+    geo = build_geometry(study, src)
+    params = compute_parameters(geo)
+    check_reach_inputs(study, src)
+    relay = resolve_relay(study, params)
+    return run_teed_study(study, geo, params, relay, study_philosophy(study, src),
+                          source=src)
+
+
+#: How the zones are verified (stated with the results).
+VERIFIED = ("Verified by fault simulation on the teed solver with the relay model of the "
+            "two-ended verification (relayset.studies.verification.teed): mho zones at the "
+            "line angle; every infeed state (all sources in, each source out, each two out), "
+            "the "
+            "reach study's source cases, fault types and resistances; faults along the three "
+            "legs (5 % steps), at each remote terminal and along the lines beyond it that "
+            "name their bus (Z0 = 3 Z1 where none is given); the earth-resistivity range "
+            "(the relay keeps its k0); load: the first bus leading the others by each "
+            "transfer angle of [load]. Not simulated: power-flow load cases, setting steps, "
+            "quadrilateral shapes.")
+
+
+def teed_line(study: Study, geo: LineGeometry, params: LineParameters, shunt: bool,
+              source: str) -> TeedLine:
+    """The study's line split at the tee, with the branch from its own sections (its tower
+    geometry and phase orders read as the line's)."""
+    tee = study.tee
+    main = line_cascade(geo, params, "actual_plan", shunt)
+    branch_study = dataclasses.replace(
+        study, tee=None,
+        line=dataclasses.replace(study.line, length=tee.length, sections=tee.sections))
+    try:
+        geo_b = build_geometry(branch_study, source)
+    except InputError as exc:  # the branch's sections are named as written in [tee]
+        raise InputError(exc.rule, field=exc.field.replace("line.sections", "tee.sections"),
+                         value=exc.value, source=exc.source) from None
+    branch = line_cascade(geo_b, compute_parameters(geo_b), "actual_plan", shunt)
+    return TeedLine.from_line(main, tee.distance, branch)
+
+
+def teed_terminals(study: Study, source: str) -> tuple:
+    """The terminals at the from, to and third substation (Source, transformer or None)."""
+    buses = (*study.ends, study.tee.substation)
+    terms = [build_source(study, b, source) for b in buses]
+    if study.tee.grounded_transformer_z0 is not None:
+        terms[2] = GroundedTransformer(study.tee.grounded_transformer_z0)
+    return tuple(terms)
+
+
+def _along(z: np.ndarray, theta: float) -> np.ndarray:
+    return (z * complex(math.cos(theta), -math.sin(theta))).real
+
+
+def run_teed_study(study: Study, geo: LineGeometry, params: LineParameters,
+                   relay: RelayBasis, philosophy: Philosophy, *, source: str
+                   ) -> TeedStudyResult:
+    """Apparent impedances and zone 1/zone 2 of every relay end of a teed line."""
+    check_reach_inputs(study, source)
+    rs = study.reach_study
+    buses = (*study.ends, study.tee.substation)
+    line = teed_line(study, geo, params, rs.shunt_capacitance, source)
+    terms = teed_terminals(study, source)
+    scales = np.array([[c.scale_at(b) for b in buses] for c in rs.source_cases])
+    v_nom = study.system.nominal_voltage
+    theta = cmath.phase(relay.z1_set_ohm)
+    k0 = relay.k0_set
+    ftypes = rs.fault_types
+    fn = {"source_scale": "reach_study.source_cases", "fault_types": "reach_study.fault_types"}
+
+    # (relay end x, remote y, infeed) -> (min, max, min case, max case)
+    seen: dict[tuple[int, int, bool], tuple[float, float, str, str]] = {}
+    for y in range(3):
+        for out in (None, *[z for z in range(3) if z != y]):
+            t = list(terms)
+            if out is not None:
+                t[out] = None
+            if not any(isinstance(s, Source) for s in t):
+                continue
+            sw = solve_teed_sweep(line, t, v_nominal_v=v_nom, fault_leg=ENDS[y],
+                                  fault_types=ftypes, m=[0.0], r_fault_ohm=[0.0],
+                                  source_scale=scales, field_names=fn)
+            for x in range(3):
+                if x == y or (out is not None and out == x) or buses[x] not in relay.ends:
+                    continue
+                infeed = out is None
+                loops = measurement.loop_impedances(sw.v[ENDS[x]], sw.i[ENDS[x]], k0)
+                best = [math.inf, -math.inf, "", ""]
+                for f, ft in enumerate(ftypes):
+                    for lp in measurement.loops_for_fault(ft):
+                        a = _along(loops[lp][f, 0, 0, :, 0], theta)  # over source cases
+                        for k, val in enumerate(a):
+                            if not math.isfinite(val):
+                                continue
+                            label = (f"fault {ft}, loop {lp}, source case "
+                                     f"{rs.source_cases[k].name}")
+                            if val < best[0]:
+                                best[0], best[2] = float(val), label
+                            if val > best[1]:
+                                best[1], best[3] = float(val), label
+                seen[x, y, infeed] = tuple(best)
+
+    zones: dict[int, tuple[float, float]] = {}
+    budget = study.error_budget.total_pct
+    z1ph = philosophy.zone1
+    pct1 = teed_zone1_pct(budget, z1ph.reach_pct, z1ph.min_margin_pct)
+    unit = cmath.rect(1.0, theta)
+    results = []
+    for x in range(3):
+        if buses[x] not in relay.ends:
+            continue
+        remotes = [y for y in range(3) if y != x]
+        apparent = tuple(TeedApparent(buses[y], inf, *seen[x, y, inf])
+                         for y in remotes for inf in (True, False) if (x, y, inf) in seen)
+        no_inf = [(seen[x, y, False][0], y) for y in remotes if (x, y, False) in seen]
+        with_inf = [(seen[x, y, True][1], y) for y in remotes if (x, y, True) in seen]
+        if not no_inf or not with_inf:
+            raise InputError("the relay measures no remote-terminal fault (no loop current)",
+                             field="relay.end", value=buses[x], source=source)
+        near, y_near = min(no_inf)
+        far, y_far = max(with_inf)
+        z1_ohm = teed_zone1_ohm(near, pct1)
+        z2_ohm = teed_zone2_ohm(far, philosophy.zone2.reach_pct)
+        leg_z1 = complex(to_sequence(line.legs[x].z_total_ohm)[1, 1])
+        tee_ohm = float(_along(np.array(leg_z1), theta))
+        next_z1 = []
+        for y in remotes:
+            for adj in study.adjacent_lines:
+                if adj.bus == buses[y] and adj.z1 is not None and (x, y, False) in seen:
+                    reach = philosophy.zone2.adjacent_zone1_pct / 100 * abs(adj.z1)
+                    next_z1.append((buses[y], adj.name, seen[x, y, False][0] + reach))
+        zones[x] = (z1_ohm, z2_ohm)
+        ratios = study.relay.ratios(buses[x])  # CT, VT of the relay at this end
+        results.append(TeedEndSettings(
+            end=buses[x], apparent=apparent, tee_ohm=tee_ohm, zone1_pct=pct1,
+            zone1_ohm=z1_ohm * unit,
+            zone1_rule=(f"{pct1:g} % of the apparent impedance of the nearest remote "
+                        f"terminal {buses[y_near]} with the infeed out ({near:.4g} ohm)"),
+            zone2_ohm=z2_ohm * unit,
+            zone2_rule=(f"{max(philosophy.zone2.reach_pct, 100.0):g} % of the apparent "
+                        f"impedance of the farthest remote terminal {buses[y_far]} with the "
+                        f"infeed in ({far:.4g} ohm)"),
+            checks=teed_checks(z1_ohm, z2_ohm, tee_ohm,
+                               next_z1 if philosophy.zone2.grading == "short_of_adjacent_zone1"
+                               else None),
+            zone1_secondary_ohm=complex(secondary_ohm(z1_ohm * unit, *ratios)),
+            zone2_secondary_ohm=complex(secondary_ohm(z2_ohm * unit, *ratios))))
+    # Fault simulation of the zones (imported here: the reach alone needs none of it).
+    from relayset.studies.verification.checks import relay_model_at
+    from relayset.studies.verification.closing import study_at_resistivity
+    from relayset.studies.verification.envelope import resistivities
+    from relayset.studies.verification.teed import verify_teed
+
+    judged = tuple(x for x in range(3) if buses[x] in relay.ends)
+    lines = []
+    for r in resistivities(study)[0]:  # the relay keeps its k0 while the line's moves
+        if float(r) == float(study.system.earth_resistivity):
+            lines.append((f"earth {r:g} ohm*m", line))
+            continue
+        st = study_at_resistivity(study, r)
+        g = build_geometry(st, source)
+        lines.append((f"earth {r:g} ohm*m",
+                      teed_line(st, g, compute_parameters(g), rs.shunt_capacitance, source)))
+    # Load: bus S leads R and T by each transfer angle of [load] (none: no load).
+    angles = study.load.transfer_angles if study.load is not None else (0.0,)
+    e = v_nom / math.sqrt(3)
+    emf = (np.array([cmath.rect(e, a) for a in angles]), np.full(len(angles), e + 0j),
+           np.full(len(angles), e + 0j))
+    loads = tuple(f"{buses[0]} leading by {math.degrees(a):g} deg" for a in angles)
+    sim = verify_teed(
+        lines, terms, judged, zones, v_nominal_v=v_nom, fault_types=ftypes,
+        emf_v=emf, load_names=loads,
+        r_fault_ohm=rs.fault_resistances, source_scale=scales,
+        case_names=tuple(c.name for c in rs.source_cases), k0=k0, line_angle_rad=theta,
+        z_line_ohm=abs(relay.z1_set_ohm),
+        models={x: relay_model_at(study, buses[x]) for x in judged}, buses=buses,
+        beyond={y: [(a.name, a.z1, a.z0 if a.z0 is not None else 3 * a.z1)
+                    for a in study.adjacent_lines if a.bus == buses[y] and a.z1 is not None]
+                for y in range(3)},
+        next_zone1_pct=(philosophy.zone2.adjacent_zone1_pct
+                        if philosophy.zone2.grading == "short_of_adjacent_zone1" else None))
+    results = [dataclasses.replace(e, checks=e.checks + sim[x].checks)
+               for e, x in zip(results, judged, strict=True)]
+    failed = sum(not c.passed for e in results for c in e.checks)
+    return TeedStudyResult(
+        buses=buses, tee_distance_m=study.tee.distance, branch_length_m=study.tee.length,
+        z1_set_ohm=relay.z1_set_ohm, k0_set=k0, ends=tuple(results),
+        assumptions=(*ASSUMPTIONS, VERIFIED),
+        legs=tuple((leg.total_length_m, complex(to_sequence(leg.z_total_ohm)[1, 1]),
+                    complex(to_sequence(leg.z_total_ohm)[0, 0])) for leg in line.legs),
+        verification="failed checks" if failed else "all checks passed")
