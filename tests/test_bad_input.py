@@ -106,7 +106,7 @@ CASES = [
          "positions"].pop("1")}),
      ["towers.lattice.positions.2", "names no circuit"]),
     ("parallel circuit on part of the route", DEMO_2C, _double_then_single,
-     ["towers.single.positions", "carries no circuit '2'", "own terminals"]),
+     ["towers.single.positions", "carries no circuit '2'", "[[neighbours]]"]),
     ("tower with two positions", DEMO_TW,
      lambda d: d["towers"]["lattice"]["positions"]["1"].pop(),
      ["towers.lattice.positions.1", "exactly three positions"]),

@@ -1234,8 +1234,8 @@ def _check_towers(study: Study, data: dict, fail: Callable[..., None]) -> None:
         missing = [n for n in names if n not in tower.positions]
         if missing:
             fail(f"carries no circuit {quote(missing[0])}: every tower carries every circuit "
-                 "of [[circuits]] (a circuit on part of the route only would need its own "
-                 "terminals there, which relayset does not model)",
+                 "of [[circuits]]; a circuit on part of the route only ends on buses of its "
+                 "own: give it as a [[neighbours]] line over the sections it shares",
                  f"towers.{_key(t)}.positions")
 
 
