@@ -44,6 +44,18 @@ CAPACITOR_STATES: tuple[str, ...] = ("in_service", "varistor", "bypassed")
 STATE_WORDS = {"in_service": "in service (varistor not conducting)",
                "varistor": "varistor conducting at the close-in fault current",
                "bypassed": "bypassed"}
+#: What the phasor model of the banks leaves out (the reach study's and the verification's
+#: notes; common practice, no source).
+MODEL_LIMITS = (
+    "The varistor state is one operating point, the same "
+    "impedance in every phase, Goldsworthy's at the current of a bolted three-phase fault "
+    "just beyond the bank (strongest sources); in an unbalanced fault only the faulted "
+    "phases' varistors conduct, and a smaller fault current leaves a bank nearer its full "
+    "reactance (the in-service state). The cases are fundamental-frequency phasors: the "
+    "subsynchronous transient of the compensated line (the known cause of zone 1 transient "
+    "overreach on such lines), the varistor's energy and the bypass's timing are not "
+    "simulated; keep the margin of zone 1 for them or use a relay algorithm made for "
+    "compensated lines.")
 #: Fraction of the line "just beyond" a bank where its close-in faults are placed [1].
 BEYOND = 1e-6
 _MAX_ITER = 50
@@ -184,6 +196,7 @@ def capacitor_basis(study, geo, params, line: network.LineCascade, src: dict,
         "Varistor model: D. L. Goldsworthy, \"A linearized model for MOV-protected series "
         "capacitors,\" IEEE Trans. Power Systems, PWRS-2(4), 1987 (coefficients from memory, "
         "checked against a time-domain computation within 0.05 of X_C).",
+        MODEL_LIMITS,
     )
     return replace(basis, z1_compensated_ohm=z_comp, inversions=inv, notes=notes)
 
