@@ -9,7 +9,7 @@ circuit's):
 - ``varistor``: every bank is Goldsworthy's equivalent impedance
   (:mod:`relayset.physics.series_capacitor`) at the current of a bolted three-phase fault
   just beyond it (the larger of either side), both sources in service at the strongest
-  source case, found by fixed-point iteration (the bank's impedance sets the current,
+  source case, found as the fixed point, by bisection (the bank's impedance sets the current,
   which sets the impedance). The same impedance in all three phases: a bounded
   representation, the conducting varistor's reactance lying between :math:`X_C` and 0 for
   any current, so its reach effect is bounded by the other two states; this state adds
