@@ -169,6 +169,12 @@ BAD = [
     ({"positions": [{"name": "a", "x": "-5.0 m", "height": "21 m", "sag": "6 m",
                      "conductor": "phase"}, None, None]},
      'neighbours[0].positions[0].x = "-5.0 m": coincides with the protected line\'s conductor'),
+    # Reviewer's finding: a neighbour ending on this line's bus 56 km from the end of the
+    # shared stretch cannot get there over a route of 0 km (the model would join it to the
+    # bus through a zero impedance); the file must give its route.
+    ({"sections": [0]},
+     'neighbours[0].route_lengths[1] = "0 km": the shared stretch ends 56 km from '
+     "'Brenwick'"),
 ]
 
 
@@ -274,8 +280,9 @@ def test_neighbour_beside_sections_of_different_towers():
     ends = (data["study"]["from_substation"], data["study"]["to_substation"])
     pos = [{"name": n, "x": "1.9 m", "height": h, "sag": "3 m", "conductor": "phase"}
            for n, h in (("a", "26 m"), ("b", "33 m"), ("c", "40 m"))]  # a: as the pole's top
+    # beside the lattice sections only; its routes reach this line's buses
     data["neighbours"] = [{"name": "N", "positions": pos, "sections": [1, 2],
-                           "buses": list(ends)}]  # beside the lattice sections only
+                           "buses": list(ends), "route_lengths": ["20 km", "20 km"]}]
     data = quick(data)
     params, res = reach(data)
     assert params.neighbour.towers == (1,)
@@ -304,5 +311,6 @@ def test_neighbour_beside_a_cable_section_is_refused():
     with pytest.raises(InputError, match=r"neighbours\[0\]\.sections = \[3, 4\]: runs beside "
                        r"line\.sections\[4\], a cable section"):
         parse_study(tomllib.loads(dump_toml(data)), "t.toml")
-    nb.update(sections=[0, 1])  # overhead sections only: accepted
+    # overhead sections only, its route to Saltmarsh Street given: accepted
+    nb.update(sections=[0, 1], route_lengths=["14 km", "20 km"])
     parse_study(tomllib.loads(dump_toml(data)), "t.toml")

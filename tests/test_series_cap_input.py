@@ -67,6 +67,15 @@ CASES = [
     ("two banks over 100 %", lambda d: d["series_capacitors"].append(
         {**_bank(d), "compensation_pct": 60, "distance": "100 km"}),
      "series_capacitors = [45, 60]: the banks add up to 105 % compensation"),
+    # A bank given by its reactance is compared with the line's only once the line's
+    # reactance is known; one over the line's reactance, or a compensation that leaves the
+    # compensated-line zone 1 rule at 0 %, is bad input like the rest (reviewer's finding:
+    # it used to be "recommended_zone1_pct = 0.0", a name of the code).
+    ("reactance over the line's", lambda d: (_bank(d).pop("compensation_pct"),
+                                             _bank(d).update(reactance="200 ohm")),
+     "series_capacitors: the banks in the path from Tarrow Ness to Hithe Vale have X_C"),
+    ("100 % leaves no zone 1", lambda d: _bank(d).update(compensation_pct=100),
+     "series_capacitors: the banks in the path from Tarrow Ness to Hithe Vale have X_C"),
 ]
 
 

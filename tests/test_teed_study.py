@@ -381,3 +381,26 @@ def test_params_of_a_teed_line_say_what_they_cover(tmp_path, capsys):
     out = " ".join(capsys.readouterr().out.split())
     assert ("these parameters are of the line from Wrenfold to Velmar; the branch from the "
             "tee at 25 km to Oakrest (15 km)") in out
+
+
+def test_teed_zone2_covers_the_largest_infeed_of_independent_source_strengths():
+    """Reviewer's finding: the infeed ratio I_C/I_A = (Z_SA + Z_A)/(Z_SC + Z_C) is largest
+    with the relay's own source weak and the third terminal's strong, a case the uniform
+    source cases (all strong, all weak) never form. As in the two-ended verification, each
+    bus takes every uniform case independently. Kirchhoff (textbook, three-phase fault at
+    Velmar, no load): Z_app = Z_A + Z_B (1 + I_C/I_A), with the legs' Z1 of the result and
+    the file's source impedances, Wrenfold weak (x2) and Oakrest strong (x0.5); zone 2 at
+    Wrenfold must reach past it along the line angle."""
+    import cmath
+
+    res = _run(TEED_TOML)
+    (z_a, _), (z_b, _), (z_c, _) = [(z1, z0) for _, z1, z0 in res.legs]
+    ratio = (2 * (1.5 + 12j) + z_a) / (0.5 * (4 + 30j) + z_c)
+    z_app = z_a + z_b * (1 + ratio)
+    rot = cmath.rect(1.0, -cmath.phase(res.z1_set_ohm))
+    e = next(x for x in res.ends if x.end == "Wrenfold")
+    assert (z_app * rot).real == pytest.approx(51.0, abs=0.5)  # the hand value
+    assert (e.zone2_ohm * rot).real > (z_app * rot).real
+    a = _apparent(res, "Wrenfold", "Velmar", True)
+    assert a.max_ohm >= (z_app * rot).real  # the ground loops see more (zero-sequence infeed)
+    assert "Wrenfold weak" in a.max_case and "Oakrest strong" in a.max_case

@@ -59,13 +59,7 @@ def corridor_of(study: Study) -> Corridor | None:
     if not study.neighbours:
         return None
     nb = study.neighbours[0]
-    if nb.sections is not None:
-        lengths = _sections(study)
-        first, last = min(nb.sections), max(nb.sections)
-        start = math.fsum(lengths[:first])
-        end = math.fsum(lengths[:last + 1])
-    else:
-        start, end = nb.start, nb.start + nb.length
+    start, end = _stretch(study, 0)
     end = min(end, study.line.length)  # within the rounding the check allows
     ends = study.ends
     return Corridor(
@@ -87,6 +81,17 @@ def _shared_sections(study: Study, j: int) -> list[int]:
         edges.append(edges[-1] + sec.length)
     start, end = nb.start, nb.start + nb.length
     return [k for k in range(len(secs)) if edges[k + 1] > start and edges[k] < end]
+
+
+def _stretch(study: Study, j: int) -> tuple[float, float]:
+    """Where the shared stretch of neighbour ``j`` begins and ends, from the
+    from-substation [m] (its sections already checked to exist)."""
+    nb = study.neighbours[j]
+    if nb.sections is not None:
+        lengths = _sections(study)
+        return (math.fsum(lengths[:min(nb.sections)]),
+                math.fsum(lengths[:max(nb.sections) + 1]))
+    return nb.start, nb.start + nb.length
 
 
 def _shared_towers(study: Study, j: int) -> set[str]:
@@ -163,6 +168,20 @@ def check_neighbours(study: Study, data: dict, fail: Callable[..., None]) -> Non
                 fail(f"names no bus: give its source as [{at}.sources.{toml_key(bus)}] or "
                      f"use {quote(ends[k])}, the protected line's bus"
                      + suggest(bus, known), f"{at}.buses[{k}]", bus)
+        # A bus of this line lies at the line's end: over no route of its own the
+        # neighbour cannot reach it from a stretch that ends short of that end (the model
+        # would join it to the bus through a zero impedance).
+        start, end = _stretch(study, j)
+        gaps = (start, study.line.length - end)
+        for k, bus in enumerate(nb.buses):
+            if bus == ends[k] and nb.route_lengths[k] == 0 and gaps[k] > 1.0:
+                given = raw("route_lengths", k)
+                gap = _in_users_unit(gaps[k], _raw(data, "line", "length"))
+                fail(("" if given is not None else "not given (0 km): ")
+                     + f"the shared stretch ends {gap} from {quote(bus)}, this line's bus "
+                     "where the neighbour ends: give the length of its own route from the "
+                     "stretch to that bus",
+                     f"{at}.route_lengths" + ("" if given is None else f"[{k}]"), given)
         for key in nb.sources:
             if key in ends:
                 fail(f"is a bus of the protected line: its source is [sources."

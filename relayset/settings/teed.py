@@ -38,7 +38,8 @@ def teed_zone2_ohm(farthest_with_infeed_ohm: float, zone2_pct: float) -> float:
     """Zone 2 reach along the line angle [ohm]: ``zone2_pct`` (the philosophy's zone 2
     percentage, >= 100) of the largest apparent impedance the meant loops measure for bolted
     faults at either remote terminal with the infeed from the third terminal in, over the
-    source cases (the strongest infeed included). Common practice, no source."""
+    source cases (each bus strong or weak independently: the strongest infeed included,
+    :func:`relayset.studies.teed.teed_source_cases`). Common practice, no source."""
     return max(zone2_pct, 100.0) / 100.0 * farthest_with_infeed_ohm
 
 

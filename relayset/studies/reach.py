@@ -181,6 +181,8 @@ def run_reach_study(
     lines = {key: line_cascade(geo, params, key, rs.shunt_capacitance) for key in plans}
     # Series capacitor banks: their states are an extra axis of every arrangement's sweep.
     caps = capacitor_basis(study, geo, params, lines["actual_plan"], src, source)
+    if caps is not None:
+        _check_compensation(caps, study, budget, zone1_margin_pct, source)
     cap_states = caps.states if caps is not None else ("",)
     # Identical arrangements (one-section line: actual plan = untransposed; ideal plan =
     # ideal cycle) are solved once and reported under each name.
@@ -348,6 +350,26 @@ def run_reach_study(
         neighbour=neighbour,
         series_capacitors=None if caps is None else caps.to_dict(),
     )
+
+
+def _check_compensation(caps, study: Study, budget: float, margin_pct: float,
+                        source: str) -> None:
+    """A compensation the compensated-line zone 1 rule cannot take is bad input: the banks
+    in a relay's path leave so little of the line's reactance to the remote bus (or none: a
+    bank given by its reactance is compared with the line's only here) that zone 1 would
+    be 0 %."""
+    ends = study.ends
+    for end in study.relay_ends:
+        x_comp = caps.z1_compensated_ohm[end].imag
+        if compensated_zone1_pct(caps.x_line1_ohm, x_comp, budget, margin_pct) > 0:
+            continue
+        other = ends[1] if end == ends[0] else ends[0]
+        raise InputError(
+            f"the banks in the path from {end} to {other} have X_C "
+            f"{caps.x_line1_ohm - x_comp:.4g} ohm, the line's X1 is "
+            f"{caps.x_line1_ohm:.4g} ohm: zone 1, kept below the compensated reactance, "
+            "would be 0 %; give a smaller compensation", field="series_capacitors",
+            source=source)
 
 
 def _emfs_for_power_flows(study, line, src, names, relay_end, scales, parallel, v_nom,

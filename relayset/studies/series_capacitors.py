@@ -9,7 +9,7 @@ circuit's):
 - ``varistor``: every bank is Goldsworthy's equivalent impedance
   (:mod:`relayset.physics.series_capacitor`) at the current of a bolted three-phase fault
   just beyond it (the larger of either side), both sources in service at the strongest
-  source case, found by fixed-point iteration (the bank's impedance sets the current,
+  source case, found as the fixed point, by bisection (the bank's impedance sets the current,
   which sets the impedance). The same impedance in all three phases: a bounded
   representation, the conducting varistor's reactance lying between :math:`X_C` and 0 for
   any current, so its reach effect is bounded by the other two states; this state adds
@@ -37,13 +37,25 @@ from typing import Any
 import numpy as np
 
 from relayset.physics import network
-from relayset.physics.series_capacitor import goldsworthy_impedance_pu
+from relayset.physics.series_capacitor import GOLDSWORTHY_RANGE, goldsworthy_impedance_pu
 
 #: The capacitor states, each a state of every bank at once.
 CAPACITOR_STATES: tuple[str, ...] = ("in_service", "varistor", "bypassed")
 STATE_WORDS = {"in_service": "in service (varistor not conducting)",
                "varistor": "varistor conducting at the close-in fault current",
                "bypassed": "bypassed"}
+#: What the phasor model of the banks leaves out (the reach study's and the verification's
+#: notes; common practice, no source).
+MODEL_LIMITS = (
+    "The varistor state is one operating point, the same "
+    "impedance in every phase, Goldsworthy's at the current of a bolted three-phase fault "
+    "just beyond the bank (strongest sources); in an unbalanced fault only the faulted "
+    "phases' varistors conduct, and a smaller fault current leaves a bank nearer its full "
+    "reactance (the in-service state). The cases are fundamental-frequency phasors: the "
+    "subsynchronous transient of the compensated line (the known cause of zone 1 transient "
+    "overreach on such lines), the varistor's energy and the bypass's timing are not "
+    "simulated; keep the margin of zone 1 for them or use a relay algorithm made for "
+    "compensated lines.")
 #: Fraction of the line "just beyond" a bank where its close-in faults are placed [1].
 BEYOND = 1e-6
 _MAX_ITER = 50
@@ -184,6 +196,7 @@ def capacitor_basis(study, geo, params, line: network.LineCascade, src: dict,
         "Varistor model: D. L. Goldsworthy, \"A linearized model for MOV-protected series "
         "capacitors,\" IEEE Trans. Power Systems, PWRS-2(4), 1987 (coefficients from memory, "
         "checked against a time-domain computation within 0.05 of X_C).",
+        MODEL_LIMITS,
     )
     return replace(basis, z1_compensated_ohm=z_comp, inversions=inv, notes=notes)
 
@@ -206,46 +219,91 @@ def _close_in_m(bank: Bank) -> list[tuple[float, str]]:
 
 def _varistor_fixed_point(banks: list[Bank], study, geo, line, src) -> list[Bank]:
     """Each bank's current for a bolted three-phase fault just beyond it (both sides of a
-    mid-line bank), every bank at Goldsworthy's impedance of its own current: fixed-point
-    iteration from the full capacitor, to 0.1 % of the protective-level current."""
+    mid-line bank, the larger phase current), every bank at Goldsworthy's impedance of its
+    own current: the fixed point, bank by bank (Gauss-Seidel over the banks, to 0.1 % of
+    the protective-level current).
+
+    For one bank with the others held, the current the bank lets through falls as its own
+    current rises (the varistor takes reactance out and adds resistance), so the fixed
+    point is found by bisection between the protective level and the fit's upper end
+    rather than by iterating the map, which oscillates where the impedance falls steeply
+    just above the level. A bank whose current with its full capacitor stays below the
+    level does not conduct (its full capacitor, that current); one that lets more than the
+    fit's upper end through is held at the fit's value there (the module's bounded
+    representation); one with no fixed point above the level (the current it lets through
+    just above the level is below it) is held at the level.
+    """
     ends = study.ends
     cases = study.reach_study.source_cases
     scale = np.array([[min(c.scale_at(ends[0]) for c in cases),
                        min(c.scale_at(ends[1]) for c in cases)]])
-    z = [-1j * b.x_c_ohm for b in banks]
-    cur = [0.0] * len(banks)
     n = line.n_conductors
-    state = "in_service"
-    for _ in range(_MAX_ITER):
+    places = [p for b in banks for p in _close_in_m(b)]
+
+    def currents(z: list[complex]) -> list[float]:
+        """The banks' currents [A] with the banks at impedances ``z`` [ohm]."""
         els = tuple(network.SeriesElement(b.at, np.eye(n) * zk, b.vt_line_side)
                     for b, zk in zip(banks, z, strict=True))
         ln = network.LineCascade(line.z_ohm_per_m, line.length_m, line.y_s_per_m, els)
-        places = [p for b in banks for p in _close_in_m(b)]
         sw = network.solve_fault_sweep(
             ln, src[ends[0]], src[ends[1]], v_nominal_v=geo.v_nominal_v,
             fault_types=["ABC"], m=np.array([p for p, _ in places]), r_fault_ohm=[0.0],
-            source_scale=scale, parallel_state=state,
+            source_scale=scale, parallel_state="in_service",
             outputs=("i_f_from_s", "i_f_from_r"))
-        new, j = [], 0
+        out, j = [], 0
         for b in banks:
             i_b = 0.0
             for _p, side in _close_in_m(b):
                 arr = sw.i_f_from_s if side == "s" else sw.i_f_from_r
                 i_b = max(i_b, float(np.max(np.abs(arr[0, j, 0, 0, 0]))))
                 j += 1
-            new.append(i_b)
-        done = all(abs(a - c) <= 1e-3 * b.i_protective_a
-                   for a, c, b in zip(new, cur, banks, strict=True))
-        cur = new
-        z_new = [complex(goldsworthy_impedance_pu(i / b.i_protective_a)) * b.x_c_ohm
-                 for i, b in zip(cur, banks, strict=True)]
-        # damped update: the impedance falls steeply with the current near the level
-        z = [0.5 * (a + c) for a, c in zip(z, z_new, strict=True)]
-        if done:
+            out.append(i_b)
+        return out
+
+    def gold(i: float, b: Bank) -> complex:
+        return complex(goldsworthy_impedance_pu(i / b.i_protective_a)) * b.x_c_ohm
+
+    lo_pu, hi_pu = GOLDSWORTHY_RANGE
+    z = [-1j * b.x_c_ohm for b in banks]
+    cur = currents(z)
+    at = list(cur)  # each bank's current: the fixed point, or the bound it is held at
+    for _ in range(_MAX_ITER):
+        before = list(at)
+        for k, b in enumerate(banks):
+            def through(i: float, k=k, b=b) -> list[float]:
+                zz = list(z)
+                zz[k] = gold(i, b)
+                return currents(zz)
+
+            z[k] = -1j * b.x_c_ohm
+            full = currents(z)
+            lo, hi = lo_pu * b.i_protective_a, hi_pu * b.i_protective_a
+            if full[k] <= lo:  # the varistor does not conduct
+                cur = full
+                at[k] = full[k]
+                continue
+            lo_in = lo * (1 + 1e-9)
+            if through(lo_in)[k] <= lo_in:
+                i_star = lo_in  # no fixed point above the level: held at it
+            elif through(hi)[k] >= hi:
+                i_star = hi  # beyond the fit: its value at the upper end
+            else:
+                a_, c_ = lo_in, hi
+                while c_ - a_ > 1e-4 * b.i_protective_a:
+                    mid = 0.5 * (a_ + c_)
+                    if through(mid)[k] > mid:
+                        a_ = mid
+                    else:
+                        c_ = mid
+                i_star = 0.5 * (a_ + c_)
+            z[k] = gold(i_star, b)
+            at[k] = i_star
+            cur = currents(z)
+        if all(abs(x - y) <= 1e-3 * b.i_protective_a
+               for x, y, b in zip(at, before, banks, strict=True)):
             break
-    return [replace(b, i_close_in_a=i, z_varistor_ohm=complex(
-        goldsworthy_impedance_pu(i / b.i_protective_a)) * b.x_c_ohm)
-        for b, i in zip(banks, cur, strict=True)]
+    return [replace(b, i_close_in_a=i, z_varistor_ohm=zk)
+            for b, i, zk in zip(banks, at, z, strict=True)]
 
 
 def _inversions(basis: CapacitorBasis, study, src, x_l: float) -> tuple[Inversion, ...]:

@@ -14,6 +14,7 @@ from __future__ import annotations
 
 import cmath
 import dataclasses
+import itertools
 import math
 
 import numpy as np
@@ -37,8 +38,10 @@ from relayset.studies.reach import build_source, line_cascade
 ASSUMPTIONS = (
     "Three-terminal line: bolted faults at each remote terminal (on the line side of its "
     "current transformer), no prefault load (all source EMFs at nominal voltage, in phase).",
-    "Infeed out: the third terminal's source disconnected; infeed in: every source in, over "
-    "the reach study's source cases (the strongest infeed included).",
+    "Infeed out: the third terminal's source disconnected; infeed in: every source in; each "
+    "bus takes every uniform source case of the reach study independently (the strongest "
+    "infeed, the relay's source weak and the third terminal's strong, included), then the "
+    "cases given per bus.",
     "Reaches along the relay's line angle, Re(Z exp(-j theta1)), of the loops meant for each "
     "fault type, with the relay's Z1 and k0.",
 )
@@ -77,8 +80,8 @@ def run_teed(loaded) -> TeedStudyResult:
 VERIFIED = ("Verified by fault simulation on the teed solver with the relay model of the "
             "two-ended verification (relayset.studies.verification.teed): mho zones at the "
             "line angle; every infeed state (all sources in, each source out, each two out), "
-            "the "
-            "reach study's source cases, fault types and resistances; faults along the three "
+            "the source cases above (each bus strong, nominal or weak independently), the "
+            "reach study's fault types and resistances; faults along the three "
             "legs (5 % steps), at each remote terminal and along the lines beyond it that "
             "name their bus (Z0 = 3 Z1 where none is given); the earth-resistivity range "
             "(the relay keeps its k0); load: the first bus leading the others by each "
@@ -113,6 +116,27 @@ def teed_terminals(study: Study, source: str) -> tuple:
     return tuple(terms)
 
 
+def teed_source_cases(study: Study, buses: tuple[str, str, str]
+                      ) -> tuple[np.ndarray, tuple[str, ...]]:
+    """Source scales (K, 3) at the three buses and the cases' names: each bus takes every
+    uniform case of the reach study independently (the infeed ratio is largest with the
+    relay's own source weak and the third terminal's strong, which no uniform case forms;
+    as the two-ended verification pairs the ends), then the cases the study gives per bus
+    as they are."""
+    cases = study.reach_study.source_cases
+    uniform = [c for c in cases if not c.at]
+    scales, names = [], []
+    for trio in itertools.product(uniform, repeat=3):
+        scales.append([c.scale for c in trio])
+        names.append(trio[0].name if all(c is trio[0] for c in trio) else
+                     ", ".join(f"{b} {c.name}" for b, c in zip(buses, trio, strict=True)))
+    for c in cases:
+        if c.at:
+            scales.append([c.scale_at(b) for b in buses])
+            names.append(c.name)
+    return np.array(scales, dtype=float), tuple(names)
+
+
 def _along(z: np.ndarray, theta: float) -> np.ndarray:
     return (z * complex(math.cos(theta), -math.sin(theta))).real
 
@@ -126,7 +150,7 @@ def run_teed_study(study: Study, geo: LineGeometry, params: LineParameters,
     buses = (*study.ends, study.tee.substation)
     line = teed_line(study, geo, params, rs.shunt_capacitance, source)
     terms = teed_terminals(study, source)
-    scales = np.array([[c.scale_at(b) for b in buses] for c in rs.source_cases])
+    scales, case_names = teed_source_cases(study, buses)
     v_nom = study.system.nominal_voltage
     theta = cmath.phase(relay.z1_set_ohm)
     k0 = relay.k0_set
@@ -157,8 +181,7 @@ def run_teed_study(study: Study, geo: LineGeometry, params: LineParameters,
                         for k, val in enumerate(a):
                             if not math.isfinite(val):
                                 continue
-                            label = (f"fault {ft}, loop {lp}, source case "
-                                     f"{rs.source_cases[k].name}")
+                            label = f"fault {ft}, loop {lp}, source case {case_names[k]}"
                             if val < best[0]:
                                 best[0], best[2] = float(val), label
                             if val > best[1]:
@@ -236,7 +259,7 @@ def run_teed_study(study: Study, geo: LineGeometry, params: LineParameters,
         lines, terms, judged, zones, v_nominal_v=v_nom, fault_types=ftypes,
         emf_v=emf, load_names=loads,
         r_fault_ohm=rs.fault_resistances, source_scale=scales,
-        case_names=tuple(c.name for c in rs.source_cases), k0=k0, line_angle_rad=theta,
+        case_names=case_names, k0=k0, line_angle_rad=theta,
         z_line_ohm=abs(relay.z1_set_ohm),
         models={x: relay_model_at(study, buses[x]) for x in judged}, buses=buses,
         beyond={y: [(a.name, a.z1, a.z0 if a.z0 is not None else 3 * a.z1)

@@ -680,14 +680,14 @@ def _capacitor_notes(sim: Simulation) -> tuple[str, ...]:
     """The series capacitor states as simulated (each multiplies the envelope)."""
     if not sim.capacitor_states:
         return ()
-    from relayset.studies.series_capacitors import describe_state
+    from relayset.studies.series_capacitors import MODEL_LIMITS, describe_state
 
     return ("Series capacitor states (every case solved in each): "
             + "; ".join(describe_state(s) for s in sim.capacitor_states) + ". Zone 1's "
             "limit is the compensated line's (every bank in service, the worst case for "
             "its overreach); zone 2 is set on the line's own Z1 (the banks bypassed, the "
             "worst case for its underreach), and its coverage and grading are judged in "
-            "every state.",)
+            "every state.", MODEL_LIMITS)
 
 
 def _branch_notes(study: Study, source: str) -> tuple[str, ...]:
