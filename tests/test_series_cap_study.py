@@ -51,17 +51,20 @@ def test_in_service_bank_moves_the_remote_bus_by_xc():
 
 
 def test_zone1_rule_for_compensated_lines():
-    # The rule (common practice, no source): zone 1 <= (100 - margin) (X_L - X_C)/X_L /
-    # (1 + budget/100), rounded down to 0.5 %, from both ends of a mid-line bank.
+    # The rule (common practice, no source): zone 1 <= min(p, (100 - margin) / (1 +
+    # budget/100)) (X_L - X_C)/X_L, p the philosophy's zone 1 applied to the compensated
+    # reactance, rounded down to 0.5 %, from both ends of a mid-line bank.
     res = _demo_reach()
     caps = res.reach_study.series_capacitors
     from relayset.inputs.study_file import load_study
     from relayset.studies.settings import study_philosophy
 
-    margin = study_philosophy(load_study(DEMO), str(DEMO)).zone1.min_margin_pct
+    ph = study_philosophy(load_study(DEMO), str(DEMO)).zone1
+    margin, cap = ph.min_margin_pct, ph.reach_pct
     for e in res.reach_study.ends:
         x_comp = caps["z1_compensated_ohm"][e.end][1]
-        limit = (100 - margin) * x_comp / caps["line_x1_ohm"] / (1 + e.error_budget_pct / 100)
+        limit = min(cap, (100 - margin) / (1 + e.error_budget_pct / 100)) * x_comp / caps[
+            "line_x1_ohm"]
         assert e.recommended_zone1_pct == math.floor(limit * 2 + 1e-9) / 2
 
 
@@ -123,7 +126,8 @@ def test_verification_covers_every_capacitor_state():
         (c,) = [c for c in e.checks if c.check_id == "no_operation_at_remote_bus"]
         assert c.governing_case.capacitor_state == "in_service"
         st = next(s for s in res.settings if s.end == e.end)
-        assert st.zone("zone1").reach_pct <= 49.0 + 1e-9  # the compensated-line rule
+        rule = next(r for r in res.reach_study.ends if r.end == e.end)
+        assert st.zone("zone1").reach_pct <= rule.recommended_zone1_pct + 1e-9  # compensated
 
 
 def _protective_current(value):

@@ -149,16 +149,19 @@ def zone1_target(w: RuleContext) -> tuple[complex, str, list[Check]]:
 
 
 def compensated_zone1_pct(x_line_ohm: float, x_compensated_ohm: float,
-                          error_budget_pct: float, margin_pct: float) -> float:
+                          error_budget_pct: float, margin_pct: float,
+                          philosophy_max_pct: float = 100.0) -> float:
     r"""Zone 1 limit of a series-compensated line [% of the line's Z1].
 
     Zone 1 must stay short of the remote bus through the compensated line: below the
     reactance of the protected line with every bank in service as seen from the relay
-    (:math:`X_{L1} - X_C`, the banks in the relay's measured path), minus the margin, and
-    with the error budget as for any line (common practice, no source; the reactance,
-    which a capacitor reduces, decides):
+    (:math:`X_{L1} - X_C`, the banks in the relay's measured path). The philosophy's zone 1
+    reach p and the margin with the error budget apply to that compensated reactance as
+    they apply to an uncompensated line's (common practice, no source; the reactance, which
+    a capacitor reduces, decides):
 
-    .. math:: r \le \frac{(100 - m)\,(X_{L1} - X_C)/X_{L1}}{1 + b/100}\ [\%]
+    .. math:: r \le \min\left(p,\ \frac{100 - m}{1 + b/100}\right)
+              \frac{X_{L1} - X_C}{X_{L1}}\ [\%]
 
     rounded down to 0.5 %.
 
@@ -170,9 +173,12 @@ def compensated_zone1_pct(x_line_ohm: float, x_compensated_ohm: float,
         That reactance less the banks in the relay's path [ohm].
     error_budget_pct, margin_pct : float
         As :func:`recommended_zone1_pct` [%].
+    philosophy_max_pct : float
+        The philosophy's zone 1 reach [%], applied to the compensated reactance.
     """
     if not (math.isfinite(x_line_ohm) and x_line_ohm > 0 and math.isfinite(x_compensated_ohm)):
         raise InputError("line reactance must be positive", field="x_line_ohm",
                          value=x_line_ohm)
-    limit = (100.0 - margin_pct) * x_compensated_ohm / x_line_ohm / (1 + error_budget_pct / 100)
+    share = min(philosophy_max_pct, (100.0 - margin_pct) / (1 + error_budget_pct / 100))
+    limit = share * x_compensated_ohm / x_line_ohm
     return max(0.0, math.floor(limit * 2 + 1e-9) / 2)

@@ -283,8 +283,11 @@ def run_reach_study(
         allowed = recommended_zone1_pct(worst, budget, 100.0, zone1_margin_pct)  # no cap
         if caps is not None:  # a compensated line: below its compensated reactance
             comp = compensated_zone1_pct(caps.x_line1_ohm, caps.z1_compensated_ohm[end_name].imag,
-                                         budget, zone1_margin_pct)
-            rec, allowed = min(rec, comp), min(allowed, comp)
+                                         budget, zone1_margin_pct, zone1_max_pct)
+            comp_allowed = compensated_zone1_pct(  # no philosophy cap, as ``allowed``
+                caps.x_line1_ohm, caps.z1_compensated_ohm[end_name].imag, budget,
+                zone1_margin_pct)
+            rec, allowed = min(rec, comp), min(allowed, comp_allowed)
         gov = max((lp for lp in actual.loops if lp.worst_overreach_at_remote_bus is not None),
                   key=lambda lp: lp.worst_overreach_at_remote_bus.error_pct, default=None)
         end_results.append(EndReach(
@@ -324,9 +327,11 @@ def run_reach_study(
     if caps is not None:
         notes += list(caps.notes)
         notes.append(
-            f"Compensated line: zone 1 at most (100 - {zone1_margin_pct:g} %) x (X_L1 - X_C)"
-            f"/X_L1 / (1 + {budget:g} %/100) (common practice, no source), with X_C the "
-            "banks in the relay's measured path; worst cases name the capacitor state.")
+            f"Compensated line: zone 1 at most min({zone1_max_pct:g} %, (100 - "
+            f"{zone1_margin_pct:g} %) / (1 + {budget:g} %/100)) x (X_L1 - X_C)/X_L1 (the "
+            "philosophy's zone 1 applied to the compensated reactance; common practice, no "
+            "source), with X_C the banks in the relay's measured path; worst cases name the "
+            "capacitor state.")
     if rs.shunt_capacitance:
         notes.append("Line shunt capacitance included (exact distributed sections).")
     else:
