@@ -190,3 +190,21 @@ def test_notes_say_what_the_phasor_model_of_the_banks_leaves_out():
     vnotes = " ".join(ver.notes)
     for words in ("same impedance in every phase", "subsynchronous"):
         assert words in vnotes, words
+
+
+def test_zone2_rule_check_takes_the_bank_in_service():
+    # The setting rule "zone 2 short of the adjacent line's zone 1" takes the remote bus
+    # X_C nearer with the bank in service (its worst case), as the simulation does: on the
+    # demo the end of the adjacent zone 1 is then at |Z_L - jX_C + 0.8 Z_adj| (identity
+    # with the reach study's basis), inside zone 2 (the simulation fails it too).
+    res = pipeline.run(DEMO, settings=True)
+    caps = res.reach_study.series_capacitors
+    for st in res.settings:
+        chk = next(c for c in st.zone("zone2").checks if c.check_id == "past_adjacent_zone1")
+        assert not chk.passed
+        assert "series capacitors in service" in chk.detail
+        x_c = caps["line_x1_ohm"] - caps["z1_compensated_ohm"][st.end][1]
+        assert x_c > 0
+        sim = next(c for c in res.verification.end(st.end).checks
+                   if c.zone == "zone2" and c.check_id.startswith("short_of_adjacent_zone1"))
+        assert not sim.passed

@@ -307,16 +307,19 @@ def compute_settings(
         built.append(replace(zset, load_reach_pct_of_min=load_pct, checks=tuple(checks)))
 
     zs = {z.zone: z for z in built}
-    # Zone 2 against the adjacent line's zone 1, without infeed (the furthest zone 2 reaches).
+    # Zone 2 against the adjacent line's zone 1, without infeed (the furthest zone 2 reaches),
+    # series capacitor banks in the path in service (they bring the remote bus nearer).
     z2p = ph.zone2
     if z2p.check_adjacent_zone1 and i.adjacent_lines:
         name, zadj = pick_line(i.adjacent_lines, longest=False)
-        point = zl + z2p.adjacent_zone1_pct / 100 * zadj
+        point = zl - 1j * i.series_xc_in_path_ohm + z2p.adjacent_zone1_pct / 100 * zadj
         past = bool(zs["zone2"].contains(point, theta))
+        banks = ", series capacitors in service" if i.series_xc_in_path_ohm else ""
         _add_check(zs, "zone2", Check(
             "past_adjacent_zone1", not past,
             f"end of zone 1 of '{name}' ({z2p.adjacent_zone1_pct:g} % of it, "
-            f"{abs(point):.4g} Ω from the relay) is {'inside' if past else 'outside'} zone 2",
+            f"{abs(point):.4g} Ω from the relay{banks}) is "
+            f"{'inside' if past else 'outside'} zone 2",
         ))
         if past:
             w.warn(

@@ -123,6 +123,10 @@ class SettingsInputs:
     reverse_cover_ohm : float, optional
         How far past the relay bus, along the line angle, the remote end's zone 2 reaches,
         with the verification tolerance [ohm]; the reverse zone reaches at least this far.
+    series_xc_in_path_ohm : float
+        Reactance of the series capacitor banks in the relay's measured path to the remote
+        bus, in service [ohm], >= 0 (0: none); zone 2's check against the adjacent zone 1
+        takes the remote bus that much nearer (the bank in service is its worst case).
     zone1_shape : (float, float)
         Reactance-line tilt [rad], in [0, π/4] (positive: down toward +R), and widening of
         the resistive reach [1], >= 1, of a quadrilateral zone 1, chosen from the simulated
@@ -161,6 +165,7 @@ class SettingsInputs:
     reverse_cover_ohm: float | None = None
     resistive_need_ohm: dict[str, tuple[float, float]] | None = None
     zone1_shape: tuple[float, float] = (0.0, 1.0)
+    series_xc_in_path_ohm: float = 0.0
 
     def __post_init__(self) -> None:
         def put(name: str, value: Any) -> None:
@@ -198,6 +203,8 @@ class SettingsInputs:
             if getattr(self, name) is not None:
                 put(name, _real(name, getattr(self, name), gt=0))
         put("tower_footing_ohm", _real("tower_footing_ohm", self.tower_footing_ohm, ge=0))
+        put("series_xc_in_path_ohm",
+            _real("series_xc_in_path_ohm", self.series_xc_in_path_ohm, ge=0))
         tilt, widen = self.zone1_shape
         put("zone1_shape", (_real("zone1_shape", tilt, ge=0, lt=math.pi / 4 + 1e-12),
                             _real("zone1_shape", widen, ge=1)))

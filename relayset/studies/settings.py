@@ -195,6 +195,7 @@ def run_settings(study: Study, geo: LineGeometry, params: LineParameters, relay:
                 resistive_need_ohm=(None if sim is None
                                     else resistive_widening(sim, widened_zones)),
                 zone1_shape=(0.0, 1.0) if sim is None else zone1_shape(sim),
+                series_xc_in_path_ohm=_xc_in_path(reach, end),
             )
             res = compute_settings(inputs, philosophy)
         except InputError as exc:
@@ -204,6 +205,16 @@ def run_settings(study: Study, geo: LineGeometry, params: LineParameters, relay:
                 study.relay.mutual_compensation_supervision))
         out.append(_warn_unfed_remote_end(res, other) if src_remote is None else res)
     return tuple(out)
+
+
+def _xc_in_path(reach: ReachStudyResult | None, end: str) -> float:
+    """X_C of the series capacitor banks in the measured path from ``end`` to the remote
+    bus [ohm] (the reach study's basis; 0 without banks)."""
+    caps = None if reach is None else reach.series_capacitors
+    if not caps:
+        return 0.0
+    x_comp = caps["z1_compensated_ohm"][end][1]
+    return max(0.0, float(caps["line_x1_ohm"]) - float(x_comp))
 
 
 def _warn_unfed_remote_end(res: SettingsResult, other: str) -> SettingsResult:
