@@ -184,7 +184,15 @@ Diameter = _quantity("length", ge=1e-3, le=0.2, show=("mm", 1e-3))
 WireDiameter = _quantity("length", ge=1e-4, le=0.02, show=("mm", 1e-3))
 LineLength = _quantity("length", gt=0, le=3e6, show=("km", 1e3))
 Power = _quantity("power", gt=0, le=1e11, show=("MVA", 1e6))
-FaultLevel = _quantity("power", ge=1e6, le=1e12, show=("MVA", 1e6))
+_FaultLevelPower = _quantity("power", ge=1e6, le=1e12, show=("MVA", 1e6))
+
+
+def FaultLevel(v: Any) -> float:
+    """A fault level is an apparent power, written in VA (W or var are other quantities)."""
+    if isinstance(v, str) and re.search(r"(?i)(?<![a-z])[kmg]?(w|var)\s*$", v.strip()):
+        raise ValueError("a fault level is an apparent power: give it in MVA (or VA, kVA, "
+                         "GVA), not W or var")
+    return _FaultLevelPower(v)
 SignedPower = _quantity("power", ge=-1e11, le=1e11, show=("MW", 1e6))
 
 # Every table: frozen, keyword-only (fields with and without defaults mix freely).
