@@ -719,8 +719,9 @@ _CAP_WORDS = {"in_service": "in service", "varistor": "varistor conducting",
 
 def _case_text(g: dict[str, Any]) -> str:
     """A governing fault case in words (everything needed to reproduce it)."""
+    where = g["faulted"] if g["faulted"].startswith("behind") else f"on the {g['faulted']}"
     return _ohm_text(
-        f"{g['fault_type']} on the {g['faulted']} at {num(g['location_pct'], PRECISION['pct'])}"
+        f"{g['fault_type']} {where} at {num(g['location_pct'], PRECISION['pct'])}"
         f" %, Rf {num(g['r_fault_ohm'], 3)} \u03a9, Rph {num(g.get('r_phase_ohm'), 3)} \u03a9, "
         f"{g['source_case']}, transfer angle {num(g.get('transfer_angle_deg'), 1)}\u00b0, "
         f"{_state_text(g['parallel_state'])}, "

@@ -493,7 +493,8 @@ def _case_lines(n: int, c: dict[str, Any]) -> list[str]:
     """A governing case of the R-X diagram's legend, in one or two lines that fit."""
     g, z = c["case"], c["z"]
     head = f"{n}  {c['check']} ({c['result']}):"
-    body = (f"{g['fault_type']} on the {g['faulted']} at {_n(g['location_pct'], 1)} %, "
+    where = g["faulted"] if g["faulted"].startswith("behind") else f"on the {g['faulted']}"
+    body = (f"{g['fault_type']} {where} at {_n(g['location_pct'], 1)} %, "
             f"Rf {_n(g['r_fault_ohm'], 1)} Ω, loop {g['loop']}, Z = {_n(z.real, 1)} "
             f"{'+' if z.imag >= 0 else MINUS} j{_n(abs(z.imag), 1)} Ω")
     one = f"{head} {body}"

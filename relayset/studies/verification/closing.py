@@ -189,8 +189,9 @@ def settle_and_verify(study: Study, geo: LineGeometry, params: LineParameters, r
             final[end] = replace(st, warnings=(*st.warnings, SettingWarning(
                 "zone1_limited_by_simulation",
                 f"Zone 1 at most {lim[0]:.4g} % of the line: the "
-                "worst fault at the remote bus over every parallel-circuit state, source and "
-                f"load case and fault resistance overreaches by "
+                "worst fault at the remote bus over every "
+                + ("parallel-circuit state, " if geo.n_circuits == 2 else "")
+                + "source and load case and fault resistance overreaches by "
                 f"{summary[end].zone1_overreach_pct():.3g} % of the setting",
                 "review the governing case in the verification; a pilot scheme restores "
                 "instantaneous coverage of the line end")))
