@@ -231,3 +231,32 @@ def test_batch_registers_each_end_of_a_teed_line(tmp_path):
         assert int(row["failed_checks"]) == n
         assert row["verification"] == "failed checks"
     assert (out / "index.html").is_file() and (out / "register.xlsx").is_file()
+
+
+def test_teed_results_json_validates_against_the_results_schema(teed_report):
+    """The report's results JSON of a teed line is a `relayset schema results` document
+    (jsonschema, a registry validator): the teed part with every relay end's zones and
+    both kinds of checks; a teed part without the fault simulation's checks is refused."""
+    jsonschema = pytest.importorskip("jsonschema")
+    from relayset.export.schemas import SCHEMAS
+
+    _, r = teed_report
+    schema = SCHEMAS["results"]()
+    d = json.loads(r.json)
+    jsonschema.Draft202012Validator(schema).validate(d)
+    del d["teed"]["ends"][0]["verification_checks"]
+    with pytest.raises(jsonschema.ValidationError):
+        jsonschema.Draft202012Validator(schema).validate(d)
+
+
+def test_reach_and_export_of_the_demos_leave_the_teed_demo_out(capsys):
+    """`reach --demo` and `export --demo` take no three-terminal line: the teed demo is
+    left out and named on stderr; every other demo stays."""
+    from relayset.cli import _without_teed
+    from relayset.resources import demo_studies
+
+    demos = [str(p) for p in demo_studies()]
+    kept = _without_teed(demos, "export")
+    assert str(DEMO) in demos and kept == [p for p in demos if p != str(DEMO)]
+    err = capsys.readouterr().err
+    assert f"{DEMO.name} skipped: a three-terminal line" in err and len(err.splitlines()) == 1
