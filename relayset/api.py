@@ -309,7 +309,9 @@ def study_reach(study: Study | str | Path) -> StudyResults:
 
 def study_settings(study: Study | str | Path) -> StudyResults:
     """Line parameters, reach study, distance-zone settings (one per relay end) and their
-    verification by fault simulation, of a study (a :class:`Study` or a path).
+    verification by fault simulation, of a study (a :class:`Study` or a path). A study
+    with a ``[tee]`` (a three-terminal line) gives its zones and their verification in
+    ``teed`` (:class:`relayset.results.teed.TeedStudyResult`) instead.
 
     Raises
     ------

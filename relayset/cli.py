@@ -67,11 +67,6 @@ def _parser() -> argparse.ArgumentParser:
                        description="Print the JSON Schema of a relayset file.")
     p.add_argument("name", choices=("study", "philosophy", "profile", "results", "settings",
                                      "test-points"))
-    p = sub.add_parser("teed", help="three-terminal line: zones per end and their verification",
-                       description="Reach study, zone 1/zone 2 and their verification by fault "
-                       "simulation of a study with a [tee] table.")
-    p.add_argument("files", nargs=1, metavar="FILE", help="study file (TOML) with [tee]")
-    p.add_argument("--json", metavar="PATH", help="write the results as JSON")
     _fleet_parsers(sub)
     sub.add_parser("conductors", help="list the built-in conductor table")
     sub.add_parser("earth-models", help="list the earth-return models")
@@ -230,7 +225,10 @@ def _files(args) -> list[str]:
     if args.demo:
         from relayset.resources import demo_studies
 
-        files += [str(p) for p in demo_studies()]
+        demos = [str(p) for p in demo_studies()]
+        if args.command in ("reach", "export"):  # they take no three-terminal line
+            demos = _without_teed(demos, args.command)
+        files += demos
     if not files:
         raise InputError("give at least one study FILE or --demo", source="command line")
     if (getattr(args, "json", None) or getattr(args, "csv", None)) and len(files) > 1:
@@ -239,22 +237,27 @@ def _files(args) -> list[str]:
     return files
 
 
+def _without_teed(demos: list[str], command: str) -> list[str]:
+    """The shipped demos but the three-terminal ones (``[tee]``), each named on stderr."""
+    import tomllib
+    from pathlib import Path
+
+    keep = []
+    for p in demos:
+        if "tee" in tomllib.loads(Path(p).read_text("utf-8")):
+            print(f"relayset: {Path(p).name} skipped: a three-terminal line, which "
+                  f"'relayset {command}' does not take ('relayset settings' and 'relayset "
+                  "report' do)", file=sys.stderr)
+        else:
+            keep.append(p)
+    return keep
+
+
 def _run(args) -> int:
     if args.command in ("batch", "demo"):
         return _run_fleet(args)
     if args.command in ("verify", "compare", "sign"):
         return _run_archive(args)
-    if args.command == "teed":  # three-terminal lines (relayset.studies.teed)
-        from relayset import io
-        from relayset.report.teed import teed_summary
-        from relayset.studies import pipeline
-        from relayset.studies.teed import run_teed
-
-        res = run_teed(pipeline.load(args.files[0]))
-        if args.json:
-            io.write_all([("--json", args.json, io.to_json(res.to_dict()))])
-        sys.stdout.write(teed_summary(res, args.files[0]))
-        return EXIT_FAILED_CHECKS if res.verification != "all checks passed" else 0
     if args.command == "conductors":
         from relayset.inputs.conductors import builtin_table
 
@@ -329,7 +332,12 @@ def _settings_csv(res) -> str:
     from relayset import io
     from relayset.report.tables import settings_rows
 
-    rows = [(t.end, *row) for t in res.settings for row in settings_rows(t)]
+    if res.teed is not None:  # a three-terminal line: its zones per relay end
+        from relayset.report.tables import teed_rows
+
+        rows = [(e.end, *row) for e in res.teed.ends for row in teed_rows(e)]
+    else:
+        rows = [(t.end, *row) for t in res.settings for row in settings_rows(t)]
     ident = res.study
     return io.rows_to_csv(rows, header=("end", "setting", "value", "unit"),
                           columns={"line_id": ident["line_id"], "revision": ident["revision"]})

@@ -134,6 +134,11 @@ BAD = [
                                      'at = "Velmar"\ncompensation_pct = 30\n'
                                      'protective_level = 2.2\nrated_current = "1 kA"\n\n[load]'),
      ['series_capacitors[0].name = "bank"', "overhead sections only"]),
+    # no settable values for a teed line (a report would embed no profile to verify with)
+    ("teed line on a relay profile",
+     ('vt_ratio = "132000/110 V"',
+      'vt_ratio = "132000/110 V"\nprofile = "generic_quadrilateral_1a"'),
+     ['relay.profile = "generic_quadrilateral_1a"', "relay profile's steps"]),
 ]
 
 
@@ -253,7 +258,7 @@ def test_teed_zones_follow_the_rules():
         for remote in {a.remote for a in e.apparent}:
             assert (_apparent(res, e.end, remote, True).min_ohm
                     > _apparent(res, e.end, remote, False).max_ohm)
-    assert res.verification == "all checks passed"
+    assert res.verification == "verified"
 
 
 def test_teed_checks_say_why_a_rule_cannot_be_met():
@@ -295,8 +300,10 @@ def test_grounded_transformer_only_at_the_third_substation():
     assert a_in.max_ohm > a_out.max_ohm
 
 
-@pytest.mark.parametrize("command", ["reach", "settings", "report", "export"])
-def test_two_ended_commands_refuse_a_teed_line(tmp_path, capsys, command):
+@pytest.mark.parametrize("command", ["reach", "export"])
+def test_reach_and_export_refuse_a_teed_line(tmp_path, capsys, command):
+    """`relayset reach` (the teed reach study is part of its settings) and `relayset
+    export` (setting files are two-ended) refuse in one line, exit 2, nothing written."""
     path = write(tmp_path)
     out = tmp_path / "out"
     args = [command, str(path)]
@@ -307,17 +314,17 @@ def test_two_ended_commands_refuse_a_teed_line(tmp_path, capsys, command):
     code = main(args)
     err = capsys.readouterr().err.strip()
     assert code == 2 and len(err.splitlines()) == 1, err
-    assert f"{path}: tee: " in err and "do not take a tee" in err
+    assert f"{path}: tee: " in err and "'relayset settings' and 'relayset report'" in err
     assert not (tmp_path / "out.json").exists()
     assert not out.exists() or not any(out.iterdir())
 
 
-def test_teed_command_prints_writes_json_and_says_failed_checks(tmp_path, capsys):
+def test_settings_of_a_teed_line_prints_writes_json_and_says_failed_checks(tmp_path, capsys):
     out_json = tmp_path / "teed.json"
-    assert main(["teed", str(write(tmp_path)), "--json", str(out_json)]) == 0
+    assert main(["settings", str(write(tmp_path)), "--json", str(out_json)]) == 0
     text = capsys.readouterr().out
-    assert "Relay at Oakrest" in text and "Verdict: all checks passed" in text
-    data = json.loads(out_json.read_text(encoding="utf-8"))
+    assert "Relay at Oakrest" in text and "Verdict: verified" in text
+    data = json.loads(out_json.read_text(encoding="utf-8"))["teed"]
     assert [e["end"] for e in data["ends"]] == ["Wrenfold", "Velmar", "Oakrest"]
     # secondary = primary x CT ratio / VT ratio (600 / 1200), relayset.physics.zones
     e = data["ends"][0]
@@ -331,25 +338,29 @@ z1 = "0.5 + 2j ohm"
 bus = "Velmar"
 '''
     out2 = tmp_path / "teed2.json"
-    assert main(["teed", str(write(tmp_path, short_next, "t2.toml")), "--json",
+    assert main(["settings", str(write(tmp_path, short_next, "t2.toml")), "--json",
                  str(out2)]) == 3
     assert "[FAIL] zone2_short_of_next_zone1" in capsys.readouterr().out
-    assert json.loads(out2.read_text(encoding="utf-8"))["verification"] == "failed checks"
+    assert json.loads(out2.read_text(encoding="utf-8"))["teed"]["verification"] == \
+        "failed checks"
 
 
-def test_teed_command_refuses_bad_input_and_a_two_ended_study(tmp_path, capsys):
+def test_teed_settings_refuse_bad_input_and_run_teed_a_two_ended_study(tmp_path, capsys):
+    from relayset.errors import InputError
+    from relayset.studies import pipeline
+    from relayset.studies.teed import run_teed
+
     bad = write(tmp_path, TEED_TOML.replace('distance = "25 km"', 'distance = "90 km"'))
     out_json = tmp_path / "x.json"
-    assert main(["teed", str(bad), "--json", str(out_json)]) == 2
+    assert main(["settings", str(bad), "--json", str(out_json)]) == 2
     err = capsys.readouterr().err.strip()
     assert len(err.splitlines()) == 1 and 'tee.distance = "90 km"' in err
     assert not out_json.exists()
     plain = TEED_TOML.split("[tee]")[0] + "[relay]" + TEED_TOML.split("[relay]")[1]
     plain = plain.replace('end = "all"', 'end = "Wrenfold"').replace(
         '[sources.Oakrest]\nz1 = "4 + 30j ohm"\nz0 = "5 + 40j ohm"\n', "")
-    assert main(["teed", str(write(tmp_path, plain, "plain.toml"))]) == 2
-    err = capsys.readouterr().err.strip()
-    assert len(err.splitlines()) == 1 and "no [tee] table" in err
+    with pytest.raises(InputError, match=r"no \[tee\] table"):
+        run_teed(pipeline.load(write(tmp_path, plain, "plain.toml")))
 
 
 def test_time_graded_zone2_is_not_held_short_of_the_next_zone1(tmp_path):
@@ -369,7 +380,7 @@ z1 = "0.5 + 2j ohm"
 bus = "Velmar"
 '''
     res = run_teed(pipeline.load(write(tmp_path, text)))
-    chk = {c.check_id: c for c in res.ends[0].checks}
+    chk = {c.check_id: c for c in res.ends[0].all_checks}
     assert chk["zone2_short_of_next_zone1"].passed
     assert "time graded" in chk["zone2_short_of_next_zone1"].detail
     assert chk["zone2_stays_short_of_next_zone1"].passed

@@ -113,6 +113,13 @@ def results_quantities(d: dict[str, Any]) -> list[tuple[str, str, float | comple
         if not isinstance(warnings, list):
             raise ShapeError(f"{at}warnings", "must be an array")
         out.append(("settings", f"{end} warnings [count]", float(len(warnings))))
+    where = "teed.ends"  # a three-terminal line's zones (relayset.results.teed)
+    for i, e in enumerate(_rows(_table(d, "teed", ""), "ends", "teed.")):
+        end = _end(e, f"{where}[{i}]")
+        for z in ("zone1", "zone2"):
+            out.append(("settings", f"{end} {z} reach primary [ohm]", _num(e.get(f"{z}_ohm"))))
+            out.append(("settings", f"{end} {z} reach secondary [ohm]",
+                        _num(e.get(f"{z}_secondary_ohm"))))
     return out
 
 

@@ -314,7 +314,7 @@ def recompute(a: Archive) -> tuple[list[Check], str, object]:
         path.write_bytes(text)
         try:
             res = pipeline.run(path, reach="reach_study" in archived,
-                               settings="settings" in archived)
+                               settings="settings" in archived or "teed" in archived)
             new = res.to_dict()
         except InputError as exc:
             msg = str(exc).replace(str(path), study).replace(str(folder) + os.sep, "")

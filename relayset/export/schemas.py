@@ -175,8 +175,32 @@ def results_schema() -> dict[str, Any]:
             "settings": {"type": ["object", "null"],
                          "properties": {"ends": {"type": "array", "items": end}}},
             "verification": {"type": ["object", "null"]},
+            "teed": _teed_results(),
         },
     }
+
+
+def _teed_results() -> dict[str, Any]:
+    """A three-terminal line's results (relayset.results.teed.TeedStudyResult.to_dict)."""
+    check = {"type": "object", "required": ["check_id", "passed", "detail"],
+             "properties": {"check_id": _STR, "passed": {"type": "boolean"},
+                            "detail": _STR}}
+    cplx = {"type": "array", "items": _NUM, "minItems": 2, "maxItems": 2}
+    end = {"type": "object",
+           "required": ["end", "apparent", "tee_ohm", "zone1_pct", "zone1_ohm", "zone2_ohm",
+                        "zone1_secondary_ohm", "zone2_secondary_ohm", "zone1_rule",
+                        "zone2_rule", "checks", "verification_checks"],
+           "properties": {"end": _STR, "zone1_ohm": cplx, "zone2_ohm": cplx,
+                          "zone1_secondary_ohm": cplx, "zone2_secondary_ohm": cplx,
+                          "checks": {"type": "array", "items": check},
+                          "verification_checks": {"type": "array", "items": check}}}
+    return {"type": ["object", "null"],
+            "required": ["buses", "tee_distance_m", "branch_length_m", "z1_set_ohm",
+                         "k0_set", "ends", "legs", "assumptions", "verification"],
+            "properties": {"buses": {"type": "array", "items": _STR, "minItems": 3,
+                                     "maxItems": 3},
+                           "ends": {"type": "array", "items": end},
+                           "verification": {"enum": ["verified", "failed checks"]}}}
 
 
 def settings_file_schema() -> dict[str, Any]:

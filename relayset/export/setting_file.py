@@ -179,7 +179,13 @@ def export(paths, out_dir: str | Path) -> tuple[list[Path], int]:
     from relayset.studies import pipeline
 
     out = Path(out_dir)
-    runs = [pipeline.run(p, settings=True) for p in paths]
+    loaded = [pipeline.load(p) for p in paths]
+    for ld in loaded:
+        if ld.study.tee is not None:  # setting files are two-ended: refused in one line
+            from relayset.studies.teed import refuse_in_pipeline
+
+            refuse_in_pipeline(ld.source)
+    runs = [pipeline.run_loaded(ld, settings=True) for ld in loaded]
     outputs = []  # every file of every study formed first, then written together
     for res in runs:
         outputs += [("-o", out / name, data) for name, data in setting_files(res)]

@@ -93,7 +93,8 @@ def rows_from_results(d: dict[str, Any], *, results_file: str,
     z0r, z0x = _re_im(c.get("z0_ohm"))
     k0 = (d.get("relay") or {}).get("k0_set") or {}
     ver = d.get("verification") or {}
-    verdict = ver.get("verdict") or NOT_VERIFIED
+    teed = d.get("teed") or {}  # a three-terminal line: its verdict and zones
+    verdict = ver.get("verdict") or teed.get("verification") or NOT_VERIFIED
     ver_ends = {e["end"]: e for e in ver.get("ends", [])}
     reach_ends = {e["end"]: e for e in (d.get("reach_study") or {}).get("ends", [])}
     base = {
@@ -120,6 +121,17 @@ def rows_from_results(d: dict[str, Any], *, results_file: str,
         ve = ver_ends.get(end["end"])
         row["end_verification"] = NOT_VERIFIED if ve is None else ve.get("result")
         row["failed_checks"] = count_at(d, str(end["end"]))  # the report's count
+        rows.append({k: row.get(k) for k in NAMES})
+    for end in teed.get("ends", []):  # zone 1 and zone 2 per end; no reach error columns
+        n = count_at(d, str(end["end"]))
+        row = dict(base, end=end["end"], remote_end=", ".join(
+            b for b in teed.get("buses", []) if b != end["end"]), warnings=0,
+            end_verification="FAIL" if any(c.get("passed") is False for c in
+                                           end.get("verification_checks", [])) else "pass",
+            failed_checks=n)
+        for z in ("zone1", "zone2"):
+            row[f"{z}_primary_ohm"] = abs(complex(*end[f"{z}_ohm"]))
+            row[f"{z}_secondary_ohm"] = abs(complex(*end[f"{z}_secondary_ohm"]))
         rows.append({k: row.get(k) for k in NAMES})
     return rows
 

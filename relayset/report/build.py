@@ -58,7 +58,7 @@ def make_report(results, *, units: str | None = None, paper: str = "a4",
     if hashlib.sha256(study_bytes).hexdigest() != results.source_sha256:
         raise InputError("changed after it was read; run the report again", source=str(src))
     philosophy = None
-    if results.settings is not None:
+    if results.philosophy is not None:  # settings computed (two-ended or teed)
         ph = philosophy_path(results)
         try:
             ph_bytes = ph.read_bytes()

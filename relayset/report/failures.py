@@ -9,6 +9,10 @@ A failed check is a check that did not pass, of either kind, counted per relay e
   result "FAIL"), section "Verification". A finding reported without a pass/fail limit
   is not a check that can fail. A failed check the study accepts as a deviation
   (``[[deviations]]``, its ``accepted_deviation`` set) is listed as accepted, not counted.
+
+A three-terminal line (results ``teed.ends[]``) counts the same two kinds: its setting
+rules' ``checks`` and its fault simulation's ``verification_checks`` that did not pass; the
+zone is the one the check's id begins with (``zone1_...``, ``zone2_...``).
 """
 
 from __future__ import annotations
@@ -45,6 +49,11 @@ def failed_checks(d: dict[str, Any]) -> list[FailedCheck]:
                             "verification")
                 for c in end.get("checks", []) or []
                 if c.get("result") == "FAIL" and not c.get("accepted_deviation")]
+    for end in (d.get("teed") or {}).get("ends", []) or []:
+        for key, kind in (("checks", "setting rule"), ("verification_checks", "verification")):
+            out += [FailedCheck(str(end.get("end")), str(c.get("check_id")).split("_")[0],
+                                str(c.get("check_id")), kind)
+                    for c in end.get(key, []) or [] if c.get("passed") is False]
     return out
 
 

@@ -15,7 +15,7 @@ from relayset.results.teed import TeedStudyResult
 
 
 def teed_summary(res: TeedStudyResult, source: str) -> str:
-    """The summary printed by ``relayset teed``."""
+    """The summary ``relayset settings`` prints for a teed line."""
     b = [visible_text(x) for x in res.buses]
     angle = math.degrees(cmath.phase(res.z1_set_ohm))
     out = [
@@ -40,7 +40,7 @@ def teed_summary(res: TeedStudyResult, source: str) -> str:
                                   ("2", e.zone2_ohm, e.zone2_secondary_ohm, e.zone2_rule)):
             out.append(f"  Zone {z}  {abs(pri):8.4g} ohm primary, {abs(sec):8.4g} ohm "
                        f"secondary: {visible_text(rule)}")
-        for c in e.checks:
+        for c in e.all_checks:
             out.append(f"  [{'pass' if c.passed else 'FAIL'}] {c.check_id}: "
                        f"{visible_text(c.detail)}")
     out.append("Assumptions:")

@@ -177,7 +177,12 @@ def reach_summary(results, unit_system: str = "si") -> str:
 
 
 def settings_summary(results, unit_system: str = "si") -> str:
-    """The settings table and warnings of one study, one block per relay end."""
+    """The settings table and warnings of one study, one block per relay end (a
+    three-terminal line: :func:`relayset.report.teed.teed_summary`)."""
+    if getattr(results, "teed", None) is not None:
+        from relayset.report.teed import teed_summary
+
+        return teed_summary(results.teed, results.source_file)
     # Imported here: the setting tables load the settings package, which params/reach skip.
     from relayset.report.tables import settings_rows
     from relayset.settings.context import ZONE_LABELS

@@ -13,6 +13,7 @@ if TYPE_CHECKING:  # annotations only: `relayset params` loads no reach/settings
     from relayset.results.reach import ReachStudyResult
     from relayset.results.relay import RelayBasis
     from relayset.results.settings import SettingsResult
+    from relayset.results.teed import TeedStudyResult
     from relayset.results.verification import VerificationResult
 
 CAUTION = (
@@ -38,6 +39,9 @@ class StudyResults:
     philosophy: dict[str, Any] | None = None  #: the setting philosophy applied
     verification: VerificationResult | None = None  #: the settings tested by simulation
     caution: str = CAUTION
+    #: a three-terminal (teed) line's reach study, zones and their verification, in place
+    #: of ``reach_study``, ``settings`` and ``verification`` (relayset.studies.teed)
+    teed: TeedStudyResult | None = None
 
     # Old names (relayset 0.2), one release.
     identity = alias("study", "identity")
@@ -68,5 +72,8 @@ class StudyResults:
             d["philosophy"] = self.philosophy
         if self.verification is not None:
             d["verification"] = self.verification.to_dict()
+        if self.teed is not None:
+            d["teed"] = self.teed.to_dict()
+            d["philosophy"] = self.philosophy
         d["input"] = self.input
         return d

@@ -42,9 +42,16 @@ class TeedEndSettings:
     zone1_rule: str
     zone2_ohm: complex
     zone2_rule: str
-    checks: tuple[Check, ...]
+    checks: tuple[Check, ...]  #: the setting rules' (relayset.settings.teed)
     zone1_secondary_ohm: complex = 0j  #: through this end's CT and VT ratios [ohm]
     zone2_secondary_ohm: complex = 0j
+    #: the fault simulation's (relayset.studies.verification.teed)
+    verification_checks: tuple[Check, ...] = ()
+
+    @property
+    def all_checks(self) -> tuple[Check, ...]:
+        """The setting rules' checks, then the fault simulation's."""
+        return self.checks + self.verification_checks
 
     def to_dict(self) -> dict[str, Any]:
         return {"end": self.end,
@@ -54,13 +61,17 @@ class TeedEndSettings:
                 "tee_ohm": self.tee_ohm, "zone1_pct": self.zone1_pct,
                 "zone1_ohm": cplx(self.zone1_ohm), "zone1_rule": self.zone1_rule,
                 "zone2_ohm": cplx(self.zone2_ohm), "zone2_rule": self.zone2_rule,
-                "checks": [{"check_id": c.check_id, "passed": c.passed, "detail": c.detail}
-                           for c in self.checks]}
+                "checks": [_check(c) for c in self.checks],
+                "verification_checks": [_check(c) for c in self.verification_checks]}
+
+
+def _check(c: Check) -> dict[str, Any]:
+    return {"check_id": c.check_id, "passed": c.passed, "detail": c.detail}
 
 
 @dataclass(frozen=True)
 class TeedStudyResult:
-    """The teed line's reach study and settings for every relay end (not verified)."""
+    """The teed line's reach study, the zones of every relay end and their verification."""
 
     buses: tuple[str, str, str]  #: from, to, third substation
     tee_distance_m: float
@@ -72,7 +83,9 @@ class TeedStudyResult:
     #: per leg (from, to, third substation to the tee): (length [m], Z1 [ohm], Z0 [ohm]),
     #: sequence impedances of the leg's series matrix as built (Fortescue)
     legs: tuple[tuple[float, complex, complex], ...]
-    verification: str  #: "all checks passed" or "failed checks" (setting rules and simulation)
+    #: "verified" or "failed checks" (relayset.results.verification.VERDICTS), over the
+    #: setting rules' and the fault simulation's checks of every end
+    verification: str
 
     def to_dict(self) -> dict[str, Any]:
         return {"buses": list(self.buses), "tee_distance_m": self.tee_distance_m,

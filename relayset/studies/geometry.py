@@ -125,8 +125,9 @@ def build_geometry(study: Study, source: str = "<study>") -> LineGeometry:
             f"Three-terminal line: these parameters are of the line from "
             f"{study.ends[0]} to {study.ends[1]}; the branch from the tee at "
             f"{study.tee.distance / 1e3:g} km to {study.tee.substation} "
-            f"({study.tee.length / 1e3:g} km) is built from its own sections by "
-            "'relayset teed', which also gives the zones of a teed line.")
+            f"({study.tee.length / 1e3:g} km) is built from its own sections in the "
+            "three-terminal study ('relayset settings', 'relayset report'), which also "
+            "gives the zones of a teed line.")
     if study.towers:
         tower_names = tuple(dict.fromkeys(sec.tower for sec in study.line.sections
                                           if sec.cable is None))

@@ -80,11 +80,20 @@ def run_loaded(loaded: LoadedStudy, *, reach: bool = False, settings: bool = Fal
     study, src = loaded.study, loaded.source
     geo = build_geometry(study, src)
     params = compute_parameters(geo)
-    relay = philosophy = reach_res = settings_res = None
+    relay = philosophy = reach_res = settings_res = teed = None
     if reach and study.tee is not None:  # three-terminal line: relayset.studies.teed
-        from relayset.studies.teed import refuse_in_pipeline
+        from relayset.studies.teed import refuse_in_pipeline, run_teed_study
 
-        refuse_in_pipeline(src)
+        if not settings:  # its reach study is part of its settings: no reach alone
+            refuse_in_pipeline(src)
+        from relayset.studies.relay import resolve_relay
+        from relayset.studies.settings import study_philosophy
+
+        check_reach_inputs(study, src)
+        relay = resolve_relay(study, params)
+        philosophy = study_philosophy(study, src)
+        teed = run_teed_study(study, geo, params, relay, philosophy, source=src)
+        reach = settings = False  # the two-ended steps do not run
     if reach:
         # Imported here: `relayset params` needs none of the study steps below.
         from relayset.studies.reach import run_reach_study
@@ -112,6 +121,7 @@ def run_loaded(loaded: LoadedStudy, *, reach: bool = False, settings: bool = Fal
         relay=relay,
         reach_study=reach_res,
         settings=settings_res,
-        philosophy=philosophy.to_dict() if settings else None,
+        philosophy=philosophy.to_dict() if settings or teed is not None else None,
         verification=verification,
+        teed=teed,
     )

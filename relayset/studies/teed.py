@@ -47,33 +47,27 @@ ASSUMPTIONS = (
 )
 
 
-#: Why ``relayset reach``, ``settings``, ``report`` and ``export`` refuse a teed line.
-REFUSAL = ("the two-ended reach study, settings, report and export do not take a tee; a "
-           "three-terminal line's reach study, zone 1/zone 2 and their verification by fault "
-           "simulation come from 'relayset teed' (Python: relayset.studies.teed.run_teed)")
+#: Why ``relayset reach`` and ``relayset export`` refuse a teed line.
+REFUSAL = ("a three-terminal line is computed by 'relayset settings' and 'relayset report' "
+           "(its reach study is part of its settings; setting files are two-ended only)")
 
 
 def refuse_in_pipeline(source: str) -> None:
-    """The one-line refusal of the two-ended pipeline for a study with a tee (exit 2)."""
+    """The one-line refusal of ``relayset reach`` and ``export`` for a study with a tee
+    (exit 2)."""
     raise InputError(REFUSAL, field="tee", source=source)
 
 
 def run_teed(loaded) -> TeedStudyResult:
     """The reach study and zone 1/zone 2 of a study read by
-    :func:`relayset.studies.pipeline.load` (or ``load_bytes``) that has a ``[tee]``."""
-    from relayset.studies.relay import resolve_relay
-    from relayset.studies.settings import study_philosophy
+    :func:`relayset.studies.pipeline.load` (or ``load_bytes``) that has a ``[tee]``: the
+    ``teed`` part of :func:`relayset.studies.pipeline.run_loaded` with settings."""
+    from relayset.studies.pipeline import run_loaded
 
-    study, src = loaded.study, loaded.source
-    if study.tee is None:
+    if loaded.study.tee is None:
         raise InputError("the study has no [tee] table (not a three-terminal line)",
-                         field="tee", source=src)
-    geo = build_geometry(study, src)
-    params = compute_parameters(geo)
-    check_reach_inputs(study, src)
-    relay = resolve_relay(study, params)
-    return run_teed_study(study, geo, params, relay, study_philosophy(study, src),
-                          source=src)
+                         field="tee", source=loaded.source)
+    return run_loaded(loaded, settings=True).teed
 
 
 #: How the zones are verified (stated with the results).
@@ -267,13 +261,13 @@ def run_teed_study(study: Study, geo: LineGeometry, params: LineParameters,
                 for y in range(3)},
         next_zone1_pct=(philosophy.zone2.adjacent_zone1_pct
                         if philosophy.zone2.grading == "short_of_adjacent_zone1" else None))
-    results = [dataclasses.replace(e, checks=e.checks + sim[x].checks)
+    results = [dataclasses.replace(e, verification_checks=sim[x].checks)
                for e, x in zip(results, judged, strict=True)]
-    failed = sum(not c.passed for e in results for c in e.checks)
+    failed = sum(not c.passed for e in results for c in e.all_checks)
     return TeedStudyResult(
         buses=buses, tee_distance_m=study.tee.distance, branch_length_m=study.tee.length,
         z1_set_ohm=relay.z1_set_ohm, k0_set=k0, ends=tuple(results),
         assumptions=(*ASSUMPTIONS, VERIFIED),
         legs=tuple((leg.total_length_m, complex(to_sequence(leg.z_total_ohm)[1, 1]),
                     complex(to_sequence(leg.z_total_ohm)[0, 0])) for leg in line.legs),
-        verification="failed checks" if failed else "all checks passed")
+        verification="failed checks" if failed else "verified")

@@ -1,9 +1,11 @@
 """Speed of a three-terminal (teed) line: the whole process and the growth with sections.
 
-1. The whole ``relayset teed`` process (reach study, zone 1/zone 2 and their verification by
-   fault simulation over every infeed state, source case, load case and earth resistivity)
-   on the invented test study of tests/test_teed_study.py with lines beyond each remote
-   bus: CPU of the child process, target 3 s (issue 21).
+1. The whole ``relayset settings`` process of a teed line (reach study, zone 1/zone 2 and
+   their verification by fault simulation over every infeed state, source case, load case
+   and earth resistivity) on the invented test study of tests/test_teed_study.py with lines
+   beyond each remote bus: CPU of the child process, target 3 s (issue 21); and the whole
+   ``relayset report`` process of the teed demo (HTML and PDF/A-3b; CPU of the process
+   and its PDF helper, and wall time).
 2. ``solve_teed_sweep`` with 1 to 50 sections in each leg (shunt admittance on, every fault
    type, 21 locations, 4 resistances, 3 source cases): CPU per call, warm; it should grow
    no faster than linearly with the sections.
@@ -58,10 +60,27 @@ def whole_process() -> float:
         path.write_text(TEED_TOML + ADJACENT, encoding="utf-8")
         before = resource.getrusage(resource.RUSAGE_CHILDREN)
         subprocess.run([sys.executable, "-c", "import sys; from relayset.cli import main; "
-                        "sys.exit(main())", "teed", str(path)], check=False,
+                        "sys.exit(main())", "settings", str(path)], check=False,
                        stdout=subprocess.DEVNULL, env=os.environ.copy())
         after = resource.getrusage(resource.RUSAGE_CHILDREN)
     return (after.ru_utime - before.ru_utime) + (after.ru_stime - before.ru_stime)
+
+
+def report_process() -> tuple[float, float]:
+    """CPU (the process and its PDF helper) and wall time of ``relayset report`` on the
+    teed demo [s]."""
+    from relayset.resources import demo_lines_dir
+
+    demo = demo_lines_dir() / "dunmarrow_keswyn_132kv_teed.toml"
+    with tempfile.TemporaryDirectory() as tmp:
+        before = resource.getrusage(resource.RUSAGE_CHILDREN)
+        t = time.perf_counter()
+        subprocess.run([sys.executable, "-c", "import sys; from relayset.cli import main; "
+                        "sys.exit(main())", "report", str(demo), "-o", tmp], check=False,
+                       stdout=subprocess.DEVNULL, env=os.environ.copy())
+        wall = time.perf_counter() - t
+        after = resource.getrusage(resource.RUSAGE_CHILDREN)
+    return (after.ru_utime - before.ru_utime) + (after.ru_stime - before.ru_stime), wall
 
 
 def leg(n_sec: int, length_m: float, rng) -> LineCascade:
@@ -94,7 +113,10 @@ def sections() -> list[tuple[int, float]]:
 
 if __name__ == "__main__":
     cpu = whole_process()
-    print(f"relayset teed, whole process: {cpu:.2f} s CPU (target {TARGET_PROCESS_S:g} s) "
-          f"{'ok' if cpu < TARGET_PROCESS_S else 'OVER'}")
+    print(f"relayset settings (teed line), whole process: {cpu:.2f} s CPU (target "
+          f"{TARGET_PROCESS_S:g} s) {'ok' if cpu < TARGET_PROCESS_S else 'OVER'}")
+    rep_cpu, rep_wall = report_process()
+    print(f"relayset report (teed demo), whole process: {rep_cpu:.2f} s CPU, "
+          f"{rep_wall:.2f} s wall")
     for n, s in sections():
         print(f"solve_teed_sweep, {n:2d} sections per leg: {1e3 * s:7.2f} ms CPU")
