@@ -260,3 +260,28 @@ def test_reach_and_export_of_the_demos_leave_the_teed_demo_out(capsys):
     assert str(DEMO) in demos and kept == [p for p in demos if p != str(DEMO)]
     err = capsys.readouterr().err
     assert f"{DEMO.name} skipped: a three-terminal line" in err and len(err.splitlines()) == 1
+
+
+def test_checks_not_carried_out_are_not_judged_never_pass(teed_report, capsys):
+    # A check that was not carried out (no adjacent line given, not simulated) or that only
+    # states a value (zone 1's coverage) is "not judged": never printed as pass, never failed.
+    _out, r = teed_report
+    html = r.html
+    d = json.loads(r.json)["teed"]
+    unjudged = [(e["end"], c) for e in d["ends"]
+                for c in e["checks"] + e["verification_checks"] if c.get("judged") is False]
+    ids = {c["check_id"] for _e, c in unjudged}
+    assert {"zone1_coverage", "zone2_short_of_next_zone1",
+            "zone2_stays_short_of_next_zone1"} <= ids
+    assert all(c["passed"] for _e, c in unjudged)  # not counted as failed
+    text = _text(html)
+    for _end, c in unjudged:
+        assert f"not judged {c['check_id']}" in text
+        assert f"pass {c['check_id']}" not in text or any(
+            c2["check_id"] == c["check_id"] and c2.get("judged", True)
+            for e in d["ends"] for c2 in e["checks"] + e["verification_checks"])
+    assert main(["settings", str(DEMO)]) == 3
+    out = capsys.readouterr().out
+    assert "[n/j ] zone1_coverage" in out
+    assert "[pass] zone1_coverage" not in out
+    assert "[pass] zone2_short_of_next_zone1: no adjacent line given" not in out

@@ -184,7 +184,7 @@ def _teed_results() -> dict[str, Any]:
     """A three-terminal line's results (relayset.results.teed.TeedStudyResult.to_dict)."""
     check = {"type": "object", "required": ["check_id", "passed", "detail"],
              "properties": {"check_id": _STR, "passed": {"type": "boolean"},
-                            "detail": _STR}}
+                            "detail": _STR, "judged": {"type": "boolean"}}}
     cplx = {"type": "array", "items": _NUM, "minItems": 2, "maxItems": 2}
     end = {"type": "object",
            "required": ["end", "apparent", "tee_ohm", "zone1_pct", "zone1_ohm", "zone2_ohm",

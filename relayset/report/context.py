@@ -772,6 +772,7 @@ def _teed(d: dict[str, Any], raw: dict[str, Any], u: dict[str, Any]) -> dict[str
 
     def check(c: dict[str, Any]) -> dict[str, Any]:
         return {"id": str(c["check_id"]), "passed": bool(c["passed"]),
+                "judged": bool(c.get("judged", True)),
                 "detail": _ohm_text(str(c["detail"]))}
 
     def zone(label: str, pri: Any, sec: Any, rule: str) -> dict[str, str]:

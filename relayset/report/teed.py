@@ -41,7 +41,8 @@ def teed_summary(res: TeedStudyResult, source: str) -> str:
             out.append(f"  Zone {z}  {abs(pri):8.4g} ohm primary, {abs(sec):8.4g} ohm "
                        f"secondary: {visible_text(rule)}")
         for c in e.all_checks:
-            out.append(f"  [{'pass' if c.passed else 'FAIL'}] {c.check_id}: "
+            mark = "n/j " if not c.judged else "pass" if c.passed else "FAIL"
+            out.append(f"  [{mark}] {c.check_id}: "
                        f"{visible_text(c.detail)}")
     out.append("Assumptions:")
     out += [f"  - {a}" for a in res.assumptions]

@@ -21,6 +21,9 @@ class Check:
     check_id: str
     passed: bool
     detail: str
+    #: False: the check was not carried out or only states a value (printed "not judged",
+    #: never "pass"); it does not count as failed
+    judged: bool = True
 
 
 @dataclass(frozen=True)

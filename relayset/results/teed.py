@@ -66,7 +66,8 @@ class TeedEndSettings:
 
 
 def _check(c: Check) -> dict[str, Any]:
-    return {"check_id": c.check_id, "passed": c.passed, "detail": c.detail}
+    return {"check_id": c.check_id, "passed": c.passed, "detail": c.detail} | (
+        {} if c.judged else {"judged": False})
 
 
 @dataclass(frozen=True)

@@ -69,11 +69,12 @@ def teed_checks(
     if next_zone1 is None:
         checks.append(Check("zone2_short_of_next_zone1", True,
                             "zone 2 is time graded with the next zone 2: not compared with a "
-                            "next zone 1"))
+                            "next zone 1", judged=False))
         return tuple(checks)
     if not next_zone1:
         checks.append(Check("zone2_short_of_next_zone1", True,
-                            "no adjacent line given: zone 2 not compared with a next zone 1"))
+                            "no adjacent line given: zone 2 not compared with a next zone 1",
+                            judged=False))
     for bus, name, limit in next_zone1:
         ok = zone2_ohm < limit
         checks.append(Check(

@@ -199,7 +199,7 @@ def verify_teed(
             why = ("zone 2 is time graded" if p_next is None
                    else "no line beyond the remote terminals given")
             grading = Check("zone2_stays_short_of_next_zone1", True,
-                            f"not simulated: {why}")
+                            f"not simulated: {why}", judged=False)
         else:
             ok3 = s3 > 1.0
             grading = Check(
@@ -220,7 +220,7 @@ def verify_teed(
                      "reach, or a communication scheme covers it")),
             Check("zone1_coverage", True,
                   f"zone 1 trips {share:.3g} % of the bolted faults along the three legs "
-                  "(stated, not judged)"),
+                  "(stated, not judged)", judged=False),
             grading,
         ), s1, s2, share)
     return out_checks
