@@ -105,6 +105,25 @@ def _res_per_length(v: Any) -> float:
 
 
 _Radius = _length(le=0.2)
+
+
+def _offset(v: Any) -> float:
+    x = units.parse_real(v, "length")
+    if not -5.0 <= x <= 5.0:
+        raise ValueError("must lie between -5 m and 5 m of the cables' centre (plausible "
+                         "range)")
+    return x
+
+
+@dataclass(frozen=True, kw_only=True)
+class ContinuityConductorData:
+    """``earth_continuity_conductor = {...}`` of a single-point bonded cable: a bare or
+    insulated round conductor laid with the cables and earthed at both ends."""
+
+    cross_section: float = spec(_area)
+    material: str = spec(schema.one_of(*CORE_MATERIALS), "copper")
+    x: float = spec(_offset)  #: from the centre of the cable group (of both, two circuits)
+    depth: float | None = spec(_depth, None)  #: default the cables' depth
 #: The radii from the axis outwards, in the order they must grow.
 RADII = ("core_radius", "insulation_inner_radius", "insulation_outer_radius",
          "sheath_inner_radius", "sheath_outer_radius", "jacket_outer_radius")
@@ -142,6 +161,9 @@ class Cable:
     spacing: float | None = spec(_length(le=5.0, show=("m", 1.0)), None)  #: between axes
     circuit_spacing: float | None = spec(_length(le=50.0, show=("m", 1.0)), None)
     bonding: str = spec(schema.one_of("both_ends", "single_point", "cross_bonded"))
+    #: single-point bonding: the earth continuity conductor that carries the return current
+    earth_continuity_conductor: ContinuityConductorData | None = spec(
+        schema.table(ContinuityConductorData), None)
 
     def _check(self) -> None:
         if self.core_radius is None and self.core_cross_section is None:
@@ -169,6 +191,10 @@ class Cable:
             raise KeyRuleError("spacing", "the cables would overlap: the spacing between axes "
                                f"must be at least the jacket's diameter "
                                f"({2e3 * self.jacket_outer_radius:g} mm)")
+        if self.earth_continuity_conductor is not None and self.bonding != "single_point":
+            raise KeyRuleError("earth_continuity_conductor", "goes with single-point bonding "
+                               "(with both-ends or cross-bonding the sheaths carry the "
+                               "return current)")
         top = self.depth - (s / math.sqrt(3) if self.formation == "trefoil" else 0.0)
         if top - self.jacket_outer_radius <= 0:
             raise KeyRuleError("depth", "the cables would stick out of the ground (the "
@@ -201,11 +227,17 @@ class CableSection:
     circuit_spacing_m: float
     position_names: tuple[str, str, str]
     notes: tuple[str, ...]
+    ecc: Any = None  #: relayset.physics.cable.ContinuityConductor, or None
+
+    @property
+    def return_paths_key(self) -> str:
+        """The key of :data:`relayset.physics.cable.RETURN_PATHS` for this cable."""
+        return self.bonding + ("_ecc" if self.ecc is not None else "")
 
 
 def resolve(name: str, cable: Cable, n_circuits: int) -> CableSection:
     """The cable of ``[cables.NAME]`` for the physics (resistivities at temperature)."""
-    from relayset.physics.cable import CableDesign, cable_positions
+    from relayset.physics.cable import CableDesign, ContinuityConductor, cable_positions
 
     rho20, alpha = MATERIALS[cable.core_material]
     r1 = cable.core_radius_m
@@ -234,9 +266,19 @@ def resolve(name: str, cable: Cable, n_circuits: int) -> CableSection:
         sheath_resistivity_ohm_m=rho_sheath, jacket_radius_m=cable.jacket_outer_radius,
         insulation_permittivity=eps, jacket_permittivity=cable.jacket_permittivity)
     _, _, names = cable_positions(cable.formation, 1.0, 1.0)
+    ecc = None
+    e = cable.earth_continuity_conductor
+    if e is not None:  # at 20 degC: it carries no load current
+        ecc = ContinuityConductor(
+            radius_m=math.sqrt(e.cross_section / math.pi),
+            resistivity_ohm_m=MATERIALS[e.material][0], x_m=e.x,
+            depth_m=e.depth if e.depth is not None else cable.depth)
+        notes.append(f"Cable {name}: earth continuity conductor {1e6 * e.cross_section:g} mm2 "
+                     f"{e.material}, a solid round conductor at 20 degC, earthed at both "
+                     "ends.")
     return CableSection(name, design, cable.formation, cable.spacing_m, cable.depth,
                         cable.bonding, n_circuits, cable.circuit_spacing or 0.0, names,
-                        tuple(notes))
+                        tuple(notes), ecc)
 
 
 def check_cables(study: Any, data: dict, fail: Callable[..., None]) -> None:
@@ -278,6 +320,18 @@ def check_cables(study: Any, data: dict, fail: Callable[..., None]) -> None:
         if n_c == 1 and cable.circuit_spacing is not None:
             fail("goes only with a double-circuit line", f"{field}.circuit_spacing",
                  raw.get("circuit_spacing"))
+        e = cable.earth_continuity_conductor
+        if e is not None:  # laid beside the cables, not through one
+            from relayset.physics.cable import cable_positions
+
+            xs, ds, _ = cable_positions(cable.formation, cable.spacing_m, cable.depth, n_c,
+                                        cable.circuit_spacing or 0.0)
+            depth = e.depth if e.depth is not None else cable.depth
+            clear = cable.jacket_outer_radius + math.sqrt(e.cross_section / math.pi)
+            if min(math.hypot(x - e.x, d - depth) for x, d in zip(xs, ds, strict=True)) < clear:
+                fail(f"the earth continuity conductor would lie inside a cable: at least "
+                     f"{clear:.3g} m from every cable's axis", f"{field}.earth_continuity_"
+                     "conductor.x", (raw.get("earth_continuity_conductor") or {}).get("x"))
         if n_c == 2:
             width = (2 if cable.formation == "flat" else 1) * cable.spacing_m
             least = width + 2 * cable.jacket_outer_radius
@@ -337,5 +391,5 @@ def constructions(study: Any, names: tuple[str, ...]
 
     for cs in resolved:
         notes.append(f"Cable {cs.name}: sheaths {cs.bonding.replace('_', ' ')}; "
-                     f"zero-sequence return through {RETURN_PATHS[cs.bonding]}.")
+                     f"zero-sequence return through {RETURN_PATHS[cs.return_paths_key]}.")
     return positions, resolved, notes

@@ -55,11 +55,25 @@ RETURN_PATHS: dict[str, str] = {
     "both_ends": "the sheaths (bonded and earthed at both ends, taken at earth potential all "
                  "along) in parallel with the earth",
     "single_point": "the earth only (sheaths earthed at one end carry no current; no earth "
-                    "continuity conductor modelled)",
+                    "continuity conductor given)",
+    "single_point_ecc": "the earth continuity conductor (earthed at both ends, at earth "
+                        "potential all along) in parallel with the earth (sheaths earthed at "
+                        "one end carry no current)",
     "cross_bonded": "the cross-bonded sheath circuits (ideal cross-bonding: three equal minor "
                     "sections, sheaths earthed at the major-section ends, earthing resistances "
                     "neglected) in parallel with the earth",
 }
+
+
+@dataclass(frozen=True)
+class ContinuityConductor:
+    """An earth continuity conductor laid with single-point bonded cables: a solid round
+    conductor, earthed at both ends, at ``x_m`` from the group's centre and ``depth_m``."""
+
+    radius_m: float
+    resistivity_ohm_m: float
+    x_m: float
+    depth_m: float
 
 
 @dataclass(frozen=True)
@@ -421,16 +435,64 @@ def bonded_core_matrices(z: np.ndarray, y: np.ndarray, bonding: str, n_circuits:
     return 0.5 * (zc + zc.T), 0.5 * (yc + yc.T)
 
 
+def with_continuity_conductor(z_cores: np.ndarray, x_m, depth_m, ecc: ContinuityConductor,
+                              frequency_hz: float, resistivity_ohm_m: float) -> np.ndarray:
+    r"""The cores' series impedance [ohm/m] with an earth continuity conductor that is
+    earthed at both ends (single-point bonded sheaths carry no current).
+
+    The conductor e is a solid round wire outside the cables: its self impedance is its
+    internal impedance plus Pollaczek's earth return, its mutual with the core of cable i
+    the earth-return mutual :math:`Z_{e,ie}` (outside cable i, core and sheath see it
+    alike [1]_). Earthed at both ends it is at earth potential all along and is eliminated
+    by Kron reduction [2]_:
+
+    .. math:: Z = Z_{cc} - Z_{ce} Z_{ee}^{-1} Z_{ec}
+
+    Parameters
+    ----------
+    z_cores : (n, n) complex ndarray
+        The cores' impedance with the sheaths carrying no current [ohm/m].
+    x_m, depth_m : array_like, shape (n,)
+        The cables' axes [m].
+    ecc : ContinuityConductor
+        The conductor.
+    frequency_hz, resistivity_ohm_m : float
+        Frequency [Hz], earth resistivity [ohm m].
+    """
+    x = np.asarray(x_m, float)
+    dep = np.asarray(depth_m, float)
+    n = len(x)
+    z = np.empty((n + 1, n + 1), complex)
+    z[:n, :n] = z_cores
+    for i in range(n):
+        z[i, n] = z[n, i] = earth_return_impedance(
+            float(x[i] - ecc.x_m), float(dep[i]), ecc.depth_m, ecc.radius_m,
+            resistivity_ohm_m, frequency_hz)
+    z[n, n] = (core_internal_impedance(ecc.radius_m, ecc.resistivity_ohm_m, frequency_hz)
+               + earth_return_impedance(0.0, ecc.depth_m, ecc.depth_m, ecc.radius_m,
+                                        resistivity_ohm_m, frequency_hz))
+    return kron_reduce(z, n)
+
+
 def cable_section_matrices(design: CableDesign, formation: str, spacing_m: float,
                            depth_m: float, bonding: str, frequency_hz: float,
                            resistivity_ohm_m: float, n_circuits: int = 1,
-                           circuit_spacing_m: float = 0.0) -> tuple[np.ndarray, np.ndarray]:
+                           circuit_spacing_m: float = 0.0,
+                           ecc: ContinuityConductor | None = None
+                           ) -> tuple[np.ndarray, np.ndarray]:
     """Series impedance [ohm/m] and shunt admittance [S/m] of a cable section by position.
 
     The cores in position order (:func:`cable_positions`), sheaths eliminated by their
     bonding (:func:`bonded_core_matrices`): the ``(3 n_circuits)``-square matrices that an
-    overhead section's tower gives.
+    overhead section's tower gives. ``ecc`` (single-point bonding only): an earth
+    continuity conductor (:func:`with_continuity_conductor`).
     """
     x, d, _ = cable_positions(formation, spacing_m, depth_m, n_circuits, circuit_spacing_m)
     z, y = primitive_matrices(design, x, d, frequency_hz, resistivity_ohm_m)
-    return bonded_core_matrices(z, y, bonding, n_circuits)
+    zc, yc = bonded_core_matrices(z, y, bonding, n_circuits)
+    if ecc is not None:
+        if bonding != "single_point":
+            raise ValueError("an earth continuity conductor goes with single-point bonding")
+        zc = with_continuity_conductor(zc, x, d, ecc, frequency_hz, resistivity_ohm_m)
+        zc = 0.5 * (zc + zc.T)
+    return zc, yc

@@ -80,7 +80,8 @@ def construction_matrices(geo: LineGeometry, k: int) -> tuple[np.ndarray, np.nda
 
     return cable_section_matrices(
         cable.design, cable.formation, cable.spacing_m, cable.depth_m, cable.bonding,
-        geo.frequency_hz, geo.resistivity_ohm_m, cable.n_circuits, cable.circuit_spacing_m)
+        geo.frequency_hz, geo.resistivity_ohm_m, cable.n_circuits, cable.circuit_spacing_m,
+        cable.ecc)
 
 
 def _cable_summaries(geo: LineGeometry, z_towers, y_towers) -> tuple[CableSummary, ...]:
@@ -99,7 +100,7 @@ def _cable_summaries(geo: LineGeometry, z_towers, y_towers) -> tuple[CableSummar
                                                strict=True) if t == k)
         omega = 2 * math.pi * geo.frequency_hz
         out.append(CableSummary(
-            cable.name, k, cable.bonding, RETURN_PATHS[cable.bonding], cable.formation,
+            cable.name, k, cable.bonding, RETURN_PATHS[cable.return_paths_key], cable.formation,
             cable.depth_m, cable.spacing_m, length,
             tuple(complex(z[1, 1]) for z, _ in blocks), tuple(complex(z[0, 0]) for z, _ in blocks),
             tuple(float(y[1, 1].imag) / omega for _, y in blocks)))
