@@ -386,7 +386,9 @@ def constructions(study: Any, names: tuple[str, ...]
             "Schelkunoff's formulas, earth return by Pollaczek's integral evaluated "
             f"numerically over homogeneous earth of the study's resistivity{upper}); shunt "
             "admittance of the insulation with the sheaths at earth potential; the core a "
-            "solid round conductor (skin effect of a solid core, no proximity effect).")
+            "solid round conductor (skin effect of a solid core, no proximity effect); the "
+            "core's resistivity at its operating temperature, the sheath's at 20 degC (a warm "
+            "sheath's higher resistance raises R0 of sheath-return bondings by some %).")
     from relayset.physics.cable import RETURN_PATHS
 
     for cs in resolved:

@@ -121,7 +121,10 @@ def zone1_target(w: RuleContext) -> tuple[complex, str, list[Check]]:
                 f"Zone 1 reduced from {pct:g} % to the reach study's recommended "
                 f"{study_rec:g} % of the line (worst-case overreach plus the error budget "
                 f"exceed the margin){further}",
-                "check the reach study's assumptions (transposition, earth resistivity)",
+                "check the reach study's assumptions (" + (
+                    "the series capacitors in the relay's path, which bring the remote bus "
+                    "nearer; " if i.series_xc_in_path_ohm > 0 else "")
+                + "transposition, earth resistivity)",
             )
         # (a reduction by the fault simulation alone is warned by the verification:
         # zone1_limited_by_simulation, with the governing overreach)
