@@ -97,6 +97,23 @@ def test_radial_bolted_fault_beyond_the_bank_measures_line_minus_xc():
     assert (want[0] - 1j * X_C).imag < 0  # close to the bank the reactance is inverted
 
 
+def test_bus_fault_behind_a_line_side_vt_is_measured_at_plus_jxc():
+    # Kirchhoff's voltage law: a bolted three-phase fault on bus S fed from R only through
+    # the line and a bank at S, with the relay's VT on the line side of the bank, gives
+    # V_VT = V_bus + jX_C * (current from the line into the bus) = jX_C (-I_S): the relay
+    # measures V/I = +jX_C, a reverse fault seen forward and inductive.
+    from relayset.physics.sequence import balanced_phase_matrix
+    z = balanced_phase_matrix(0.03 + 0.33j, 0.25 + 1.1j) / 1e3  # ohm/m, invented
+    line = with_banks(LineCascade(np.stack([z]), np.array([100e3])),
+                      [(0.0, -1j * X_C, True)])
+    sw = solve_fault_sweep(line, None, SRC_R, v_nominal_v=V_NOM, fault_types=["ABC"],
+                           m=np.array([0.0]), r_fault_ohm=[0.0])
+    # the relay's current for a fault at its own bus is what arrives from the line (the
+    # verification's relay model, relay_model.relay_quantities with behind=True)
+    z_meas = sw.v_s[0, 0, 0, 0, 0] / -sw.i_f_from_r[0, 0, 0, 0, 0]
+    np.testing.assert_allclose(z_meas, 1j * X_C * np.ones(3), rtol=1e-9, atol=0)
+
+
 def test_bypassed_bank_equals_no_bank():
     # A zero element is the line itself (identity of the chain matrix [[1, 0],[0, 1]]).
     base = single_circuit(True)

@@ -102,6 +102,7 @@ def test_line_end_bank_inversion_conditions(tmp_path):
     caps = res.reach_study.series_capacitors
     inv = {(i["end"], i["kind"]): i["exists"] for i in caps["inversion_checks"]}
     assert inv[("Tarrow Ness", "voltage_inversion")]
+    assert ("Tarrow Ness", "reverse_fault_seen_forward") not in inv  # VT on the bus side
     assert not inv[("Hithe Vale", "voltage_inversion")]
     assert inv[("Tarrow Ness", "current_inversion")]
     res = pipeline.run(_variant(tmp_path, _bank_at("Tarrow Ness", "line"), "w.toml"),
@@ -109,6 +110,10 @@ def test_line_end_bank_inversion_conditions(tmp_path):
     caps = res.reach_study.series_capacitors
     inv = {(i["end"], i["kind"]): i["exists"] for i in caps["inversion_checks"]}
     assert not inv[("Tarrow Ness", "voltage_inversion")]
+    # the bank behind the line-side VT: a fault on the bus behind is seen forward at +jX_C
+    # (tests/test_series_cap_solver.py checks the measurement itself)
+    assert inv[("Tarrow Ness", "reverse_fault_seen_forward")]
+    assert ("Hithe Vale", "reverse_fault_seen_forward") not in inv
     z_line = caps["z1_line_ohm"]
     assert caps["z1_compensated_ohm"]["Tarrow Ness"] == z_line  # bank behind the relay
     assert caps["z1_compensated_ohm"]["Hithe Vale"][1] == pytest.approx(

@@ -99,7 +99,8 @@ class Inversion:
     """One inversion condition found (or looked for) at a relay end."""
 
     end: str
-    kind: str  #: "voltage_inversion" or "current_inversion"
+    #: "voltage_inversion", "current_inversion" or "reverse_fault_seen_forward"
+    kind: str
     exists: bool
     text: str
 
@@ -315,6 +316,15 @@ def _inversions(basis: CapacitorBasis, study, src, x_l: float) -> tuple[Inversio
     for e in study.relay_ends:
         at_s = e == ends[0]
         for b in basis.banks:
+            if b.vt_line_side and b.at == (0.0 if at_s else 1.0):
+                # The bank behind the relay's VT (its own bus, VT on the line side): a fault
+                # on the bus behind the relay drives the current from the line through the
+                # bank, so the VT sees V = jX_C I: a reverse fault measured forward.
+                out.append(Inversion(e, "reverse_fault_seen_forward", True, (
+                    f"{b.name}: at {e}'s own bus with the relay's VT on the line side: a "
+                    f"fault on the bus behind the relay is measured at +j{b.x_c_ohm:.4g} Ω, "
+                    "forward and inductive; zones reaching further than X_C operate for it "
+                    "unless the directional element sees through the bank")))
             d = b.at if at_s else 1.0 - b.at  # relay to bank [fraction of the line]
             # banks from the relay's bus up to and including this one
             between = [c for c in basis.banks

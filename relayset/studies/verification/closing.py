@@ -252,7 +252,11 @@ def _inversion_warnings(reach, final: dict) -> dict:
         "directional elements, and check zone 1 does not rely on the faulted-phase voltage "
         "for faults just beyond the bank",
         "current_inversion": "directional elements see the fault as reverse: rely on a pilot "
-        "scheme with current-reversal logic, or reconsider the bank's size or place"}
+        "scheme with current-reversal logic, or reconsider the bank's size or place",
+        "reverse_fault_seen_forward": "take the relay's voltage from the bus side of the "
+        "bank, or keep the forward zones' reactive reach below X_C with a directional "
+        "element polarised from the bus side; the verification's faults behind the relay "
+        "show whether a zone operates"}
     out = dict(final)
     for end, st in final.items():
         found = [i for i in caps["inversion_checks"] if i["end"] == end and i["exists"]]
