@@ -77,3 +77,13 @@ def test_console_that_is_not_utf8_never_stops_a_command(tmp_path, demo_path):
         r = subprocess.run([sys.executable, "-m", "relayset.cli", "compare", other, study],
                            capture_output=True, env=env, check=False)
         assert r.returncode == 0 and b"Traceback" not in r.stderr
+
+
+def test_python_dash_m_runs_the_command_line():
+    # `python -m relayset` is the same command line as the `relayset` script.
+    import subprocess
+    import sys
+
+    out = subprocess.run([sys.executable, "-m", "relayset", "--help"], capture_output=True,
+                         text=True, check=False)
+    assert out.returncode == 0 and out.stdout.startswith("usage: relayset"), out.stderr
