@@ -654,7 +654,7 @@ def verify_settings(study: Study, geo: LineGeometry, params_by_rho: dict[float, 
         "Zones tested as set (primary ohms) against the phase-domain solution of the real "
         "line; margins are in % of the zone's forward reach.",
         *(f"At {end}: " + mdl.describe(sim.mutual) for end, mdl in models.items()),
-        *env.describe(),
+        *env.describe(double_circuit=geo.n_circuits == 2),
         *_capacitor_notes(sim),
         f"Envelope: {len(sim.states)} "
         f"{'neighbouring-line' if geo.corridor is not None else 'parallel-circuit'} "
@@ -664,8 +664,8 @@ def verify_settings(study: Study, geo: LineGeometry, params_by_rho: dict[float, 
         f"solved; largest transfer angle {sim.max_transfer_angle_deg:.1f}°.",
         "Faults behind the relay: every type and fault resistance at its own bus, under "
         "every load case (export and import).",
-        "With the parallel circuit out of service its CTs carry no current, so mutual "
-        "compensation has no input.",
+        *(("With the parallel circuit out of service its CTs carry no current, so mutual "
+           "compensation has no input.",) if geo.n_circuits == 2 else ()),
         "Faults beyond the remote bus: the remote-bus fault governs zone 1 (infeed only "
         "moves faults further out); zone 2 and 3 are judged at Z_line + K Z_adjacent with K "
         "from the simulated remote-bus faults, and by the simulated faults along the "
