@@ -298,6 +298,12 @@ def test_grounded_transformer_only_at_the_third_substation():
     # farther (zero-sequence infeed), the phase loops as without it
     a_in, a_out = (_apparent(res, "Wrenfold", "Velmar", inf) for inf in (True, False))
     assert a_in.max_ohm > a_out.max_ohm
+    # nothing scales at a bus without a source: its "strong" or "weak" names no case
+    # (outside-check finding: the cases read "..., Oakrest strong")
+    e = res.ends[0]
+    for a in e.apparent:
+        assert "Oakrest strong" not in a.min_case + a.max_case
+        assert "Oakrest weak" not in a.min_case + a.max_case
 
 
 @pytest.mark.parametrize("command", ["reach", "export"])
