@@ -288,11 +288,24 @@ def _run(args) -> int:
         # like `settings` and `report`: the files are written, the exit code says checks failed
         return EXIT_FAILED_CHECKS if n_failed else 0
     if args.command == "report":
+        import contextlib
+        from pathlib import Path
+
+        from relayset.errors import InputError
         from relayset.report import build
 
         files = _files(args)
+        out = Path(args.output)
+        made = [p for p in (out, *out.parents) if not p.exists()]  # deepest first
         build.check_output_dir(args.output)
-        reports = build.render_reports(files, units=args.units, paper=args.paper)
+        try:
+            reports = build.render_reports(files, units=args.units, paper=args.paper)
+        except InputError:
+            # bad input writes nothing: not even the folders made to probe the output
+            with contextlib.suppress(OSError):
+                for p in made:
+                    p.rmdir()
+            raise
         for r, path in zip(reports, build.write_reports(reports, args.output), strict=True):
             print(f"report: {path.with_suffix('.html')} and {path.name}"
                   + (f" ({r.n_failed} failed check(s))" if r.n_failed else ""))

@@ -225,3 +225,12 @@ def test_study_schema_covers_the_cable_tables(demo_path):
         edit(bad["cables"]["city_cable"])
         with pytest.raises(jsonschema.ValidationError):
             jsonschema.validate(bad, schema)
+
+
+def test_params_console_names_each_circuit_of_a_double_circuit_cable(capsys, variant):
+    # Two circuits in cable: the console gives each circuit's Z1 and Z0 under its name (it
+    # printed "Z1 = ..., Z0 = ... Z1 = ..., Z0 = ..." unnamed; outside-check finding).
+    path = variant("elsford_fallowby_230kv_double.toml", _double_with_cable)
+    assert main(["params", str(path)]) == 0
+    line = next(x for x in capsys.readouterr().out.splitlines() if x.startswith("Cable c:"))
+    assert ": circuit 1 Z1 = " in line and "; circuit 2 Z1 = " in line

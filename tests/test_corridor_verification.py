@@ -102,3 +102,12 @@ def test_report_shows_the_neighbour(results):
         assert f"Ashcombe, {state}</td>" in html
     assert "not given mutual compensation for the neighbour" in html
     assert "neighbour earthed" in html  # the reach study's arrangement titles
+
+
+def test_infeed_cases_name_the_neighbour_state_as_every_case_does(results):
+    # Wording: the neighbour's state reads "neighbour earthed" in the infeed factor's case
+    # as in every governing case, not "parallel neighbour earthed" (outside-check finding).
+    cor, _ = results
+    for e in cor.verification.ends:
+        for case in (e.infeed.case_min, e.infeed.case_max):
+            assert "neighbour " in case and "parallel neighbour" not in case, case

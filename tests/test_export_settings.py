@@ -102,6 +102,12 @@ def test_rule_per_setting_as_stated():
         assert ROUNDING[f"{z}.resistive_ground"][0] == "down"
         assert ROUNDING[f"{z}.delay"][0] == "up"
     assert ROUNDING["zone1.reactance_tilt"][0] == "up"
+    # each rule's words name its own zone: zone 1's reasoning is not given for the others
+    # (outside-check finding: zone 2, zone 3 and reverse rows spoke of a zone 1 blinder)
+    assert "zone 1" in ROUNDING["zone1.resistive_ground"][1]
+    for z in ("zone2", "zone3", "reverse"):
+        for key in ("resistive_phase", "resistive_ground", "resistive_left_phase"):
+            assert "zone 1" not in ROUNDING[f"{z}.{key}"][1], (z, key)
 
 
 @pytest.mark.parametrize("demo", [MHO, QUAD], ids=["mho_5a", "quad_1a"])

@@ -271,6 +271,24 @@ def test_bad_input_writes_no_report(variant, tmp_path, capsys):
     assert not out.exists() or not any(out.iterdir())
 
 
+def test_bad_input_leaves_no_output_folder_behind(variant, tmp_path, capsys):
+    # RULES.md: bad input, no partial output; the folders made to probe that -o can be
+    # written are removed again (outside-check finding: an empty folder stayed), and a
+    # folder that was there stays.
+    def edit(d):
+        d["line"]["length"] = "-5 km"
+
+    bad = variant("ashcombe_brenwick_132kv.toml", edit)
+    out = tmp_path / "new" / "reports"
+    assert main(["report", str(bad), "-o", str(out)]) == 2
+    assert "line.length" in capsys.readouterr().err
+    assert not (tmp_path / "new").exists()
+    kept = tmp_path / "kept"
+    kept.mkdir()
+    assert main(["report", str(bad), "-o", str(kept)]) == 2
+    assert kept.is_dir() and not any(kept.iterdir())
+
+
 def test_unwritable_output_folder(tmp_path, demo_path, capsys):
     blocker = tmp_path / "file"
     blocker.write_text("x")

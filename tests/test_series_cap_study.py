@@ -9,6 +9,7 @@ import tomllib
 from functools import cache
 from pathlib import Path
 
+import numpy as np
 import pytest
 import tomli_w
 
@@ -213,3 +214,38 @@ def test_zone2_rule_check_takes_the_bank_in_service():
         sim = next(c for c in res.verification.end(st.end).checks
                    if c.zone == "zone2" and c.check_id.startswith("short_of_adjacent_zone1"))
         assert not sim.passed
+
+
+def test_zone2_grading_at_min_infeed_takes_the_bank_in_service(tmp_path):
+    # Kirchhoff (textbook): through a bank in service in the measured path, the end of the
+    # adjacent line's zone 1 is measured at Z_L - jX_C + K 0.8 Z_adj, K the infeed factor.
+    # With a line-end bank at the relay's bus and a bus-side VT (X_C in the path) zone 2,
+    # set on the line's own Z1, reaches past it: the verification's graded check must fail
+    # like the setting rule's check and the simulated one; with a line-side VT the bank
+    # is behind the relay and the same check is judged on the line alone.
+    def edit_for(vt):
+        def edit(d):
+            _bank_at("Tarrow Ness", vt)(d)
+            d["relay"]["end"] = "Tarrow Ness"
+        return edit
+
+    for vt, name in (("bus", "b.toml"), ("line", "l.toml")):
+        res = pipeline.run(_variant(tmp_path, edit_for(vt), name), settings=True)
+        caps = res.reach_study.series_capacitors
+        x_c = caps["line_x1_ohm"] - caps["z1_compensated_ohm"]["Tarrow Ness"][1]
+        (st,) = res.settings
+        ver = res.verification.end("Tarrow Ness")
+        (chk,) = [c for c in ver.checks
+                  if c.check_id == "short_of_adjacent_zone1_at_min_infeed"]
+        k_min = ver.infeed.k_min
+        z_adj = complex(2.2, 29)  # the demo's adjacent line
+        point = st.line_z1_primary_ohm - 1j * x_c + k_min * 0.8 * z_adj
+        scale = float(st.zone("zone2").reach_scale(np.array([point]),
+                                                   st.line_angle_rad)[0])
+        assert chk.margin_pct == pytest.approx((scale - 1) * 100, abs=1e-9)
+        if vt == "bus":
+            assert x_c > 0
+            assert not chk.passed
+            assert "series capacitors in service bring that bus" in chk.requirement
+        else:
+            assert x_c == 0

@@ -298,6 +298,12 @@ def test_grounded_transformer_only_at_the_third_substation():
     # farther (zero-sequence infeed), the phase loops as without it
     a_in, a_out = (_apparent(res, "Wrenfold", "Velmar", inf) for inf in (True, False))
     assert a_in.max_ohm > a_out.max_ohm
+    # nothing scales at a bus without a source: its "strong" or "weak" names no case
+    # (outside-check finding: the cases read "..., Oakrest strong")
+    e = res.ends[0]
+    for a in e.apparent:
+        assert "Oakrest strong" not in a.min_case + a.max_case
+        assert "Oakrest weak" not in a.min_case + a.max_case
 
 
 @pytest.mark.parametrize("command", ["reach", "export"])
@@ -415,3 +421,23 @@ def test_teed_zone2_covers_the_largest_infeed_of_independent_source_strengths():
     a = _apparent(res, "Wrenfold", "Velmar", True)
     assert a.max_ohm >= (z_app * rot).real  # the ground loops see more (zero-sequence infeed)
     assert "Wrenfold weak" in a.max_case and "Oakrest strong" in a.max_case
+
+
+def test_relay_at_a_grounded_transformer_only_terminal_is_refused_without_a_dead_end(
+        tmp_path, capsys):
+    # The third substation with only a grounded-star transformer: a relay there is refused
+    # in one line that names what is there and the ends a relay may name; the message must
+    # not ask for a [sources.Oakrest] table, which is refused beside the transformer
+    # (RULES.md: one line naming the field, the value as written and the rule).
+    text = TEED_TOML.replace(
+        '[sources.Oakrest]\nz1 = "4 + 30j ohm"\nz0 = "5 + 40j ohm"\n', "").replace(
+        'substation = "Oakrest"\n', 'substation = "Oakrest"\ngrounded_transformer_z0 = '
+        '"1 + 15j ohm"\n')
+    out_json = tmp_path / "x.json"
+    assert main(["settings", str(write(tmp_path, text)), "--json", str(out_json)]) == 2
+    err = capsys.readouterr().err.strip()
+    assert len(err.splitlines()) == 1, err
+    assert 'relay.end = "all"' in err and "grounded-star transformer" in err
+    assert "'Wrenfold' or 'Velmar'" in err
+    assert "[sources." not in err
+    assert not out_json.exists()

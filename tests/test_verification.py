@@ -588,3 +588,19 @@ def test_remote_infeed_into_fault_resistance_widens_zone2(demo_path):
     # Over the envelope (maximum load exported by the far end, weak local source) the worst
     # case is a close-in resistive ground fault seen just behind the directional line.
     assert not chk.passed and chk.consider
+
+
+def test_single_circuit_notes_state_no_parallel_circuit_cases(demo_path):
+    # A single-circuit line's verification notes (and so its signed report) must not
+    # describe cases that were not solved there: sequential clearing of parallel-circuit
+    # faults and the parallel circuit's CTs out of service (outside-check finding); the
+    # double circuit keeps them.
+    res = api.study_settings(demo_path(D132))
+    notes = " ".join(res.verification.notes)
+    assert "Sequential clearing" not in notes
+    assert "parallel circuit out of service" not in notes
+    assert "both circuits in service" not in notes
+    assert "Lines leaving the buses" in notes
+    res = api.study_settings(demo_path(D230))
+    notes = " ".join(res.verification.notes)
+    assert "Sequential clearing" in notes and "parallel circuit out of service" in notes

@@ -1174,7 +1174,17 @@ def check_reach_inputs(study: Study, source: str) -> None:
     if not any(e in study.sources for e in ends):
         raise InputError(f"give a source for {quote(ends[0])} or {quote(ends[1])} (or both)",
                          field="sources", source=source)
+    tee = study.tee
     for end in study.relay_ends:
+        if (end not in study.sources and tee is not None and end == tee.substation
+                and tee.grounded_transformer_z0 is not None):
+            # Adding the source the message below asks for is refused beside the transformer.
+            others = " or ".join(quote(e) for e in study.ends)
+            raise InputError(
+                f"the relay at {quote(end)} has only a grounded-star transformer behind it "
+                "(tee.grounded_transformer_z0: zero-sequence current for ground faults only), "
+                f"which is not modelled as a relay end; name {others} instead",
+                field="relay.end", value=study.relay.end, source=source)
         if end not in study.sources:
             raise InputError(
                 f"the relay at {quote(end)} has no source behind it, so it would measure no fault "

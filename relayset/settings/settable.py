@@ -32,8 +32,9 @@ def _zone_rules(zone: str) -> dict[str, tuple[str, str]]:
     else:
         reach = ("up", f"{name} must cover the whole line and its share beyond: coverage "
                  "governs, a longer reach is the safe side")
-    blinder = ("down", "the load limits the resistive reach (and a narrower zone 1 blinder "
-               "reaches less far for resistive faults at the remote bus)")
+    blinder = ("down", "the load limits the resistive reach" + (
+        " (and a narrower zone 1 blinder reaches less far for resistive faults at the "
+        "remote bus)" if zone == "zone1" else ""))
     return {
         f"{zone}.reach": reach,
         f"{zone}.resistive_phase": blinder,

@@ -110,20 +110,25 @@ def teed_terminals(study: Study, source: str) -> tuple:
     return tuple(terms)
 
 
-def teed_source_cases(study: Study, buses: tuple[str, str, str]
+def teed_source_cases(study: Study, buses: tuple[str, str, str],
+                      sourced: tuple[bool, bool, bool] = (True, True, True)
                       ) -> tuple[np.ndarray, tuple[str, ...]]:
-    """Source scales (K, 3) at the three buses and the cases' names: each bus takes every
-    uniform case of the reach study independently (the infeed ratio is largest with the
-    relay's own source weak and the third terminal's strong, which no uniform case forms;
-    as the two-ended verification pairs the ends), then the cases the study gives per bus
-    as they are."""
+    """Source scales (K, 3) at the three buses and the cases' names: each bus with a source
+    (``sourced``) takes every uniform case of the reach study independently (the infeed
+    ratio is largest with the relay's own source weak and the third terminal's strong,
+    which no uniform case forms; as the two-ended verification pairs the ends), then the
+    cases the study gives per bus as they are. A bus without a source (a grounded
+    transformer, or none) is neither varied nor named: nothing there scales."""
     cases = study.reach_study.source_cases
     uniform = [c for c in cases if not c.at]
     scales, names = [], []
-    for trio in itertools.product(uniform, repeat=3):
-        scales.append([c.scale for c in trio])
-        names.append(trio[0].name if all(c is trio[0] for c in trio) else
-                     ", ".join(f"{b} {c.name}" for b, c in zip(buses, trio, strict=True)))
+    for combo in itertools.product(uniform, repeat=sum(sourced)):
+        it = iter(combo)
+        picked = [next(it) if s else None for s in sourced]
+        scales.append([1.0 if c is None else c.scale for c in picked])
+        names.append(combo[0].name if all(c is combo[0] for c in combo) else
+                     ", ".join(f"{b} {c.name}" for b, c in zip(buses, picked, strict=True)
+                               if c is not None))
     for c in cases:
         if c.at:
             scales.append([c.scale_at(b) for b in buses])
@@ -144,7 +149,9 @@ def run_teed_study(study: Study, geo: LineGeometry, params: LineParameters,
     buses = (*study.ends, study.tee.substation)
     line = teed_line(study, geo, params, rs.shunt_capacitance, source)
     terms = teed_terminals(study, source)
-    scales, case_names = teed_source_cases(study, buses)
+    scales, case_names = teed_source_cases(
+        study, buses, tuple(t is not None and not isinstance(t, GroundedTransformer)
+                            for t in terms))
     v_nom = study.system.nominal_voltage
     theta = cmath.phase(relay.z1_set_ohm)
     k0 = relay.k0_set

@@ -371,6 +371,15 @@ def verify_end(sim: Simulation, end: str, st: SettingsResult, *, study: Study,
     return EndVerification(end, tuple(checks), infeed_range(sim, end), lim)
 
 
+def _xc_in_path(sim: Simulation, end: str) -> float:
+    """X_C of the series capacitor banks in the measured path from ``end`` to the remote
+    bus [ohm] (0 without banks), from the simulation's capacitor basis."""
+    caps = sim.capacitors
+    if not caps:
+        return 0.0
+    return max(0.0, float(caps["line_x1_ohm"]) - float(caps["z1_compensated_ohm"][end][1]))
+
+
 def _beyond_bus_checks(sim, end, st, *, study, tolerance_pct, source, philosophy):
     """Zone 2 graded as the philosophy says (:mod:`.scheme`); zone 3 coverage at maximum
     infeed."""
@@ -384,7 +393,8 @@ def _beyond_bus_checks(sim, end, st, *, study, tolerance_pct, source, philosophy
         return []
     theta = st.line_angle_rad
     z_l = st.line_z1_primary_ohm
-    out = scheme.zone2_grading(st, philosophy.zone2, lines, inf, tolerance_pct, remote_bus)
+    out = scheme.zone2_grading(st, philosophy.zone2, lines, inf, tolerance_pct, remote_bus,
+                               _xc_in_path(sim, end))
     name3, z3l = max(lines, key=lambda nl: abs(nl[1]))
     zone3 = st.zone("zone3")
     # Largest fraction x of the longest adjacent line inside zone 3 at maximum infeed.
@@ -644,7 +654,7 @@ def verify_settings(study: Study, geo: LineGeometry, params_by_rho: dict[float, 
         "Zones tested as set (primary ohms) against the phase-domain solution of the real "
         "line; margins are in % of the zone's forward reach.",
         *(f"At {end}: " + mdl.describe(sim.mutual) for end, mdl in models.items()),
-        *env.describe(),
+        *env.describe(double_circuit=geo.n_circuits == 2),
         *_capacitor_notes(sim),
         f"Envelope: {len(sim.states)} "
         f"{'neighbouring-line' if geo.corridor is not None else 'parallel-circuit'} "
@@ -654,8 +664,8 @@ def verify_settings(study: Study, geo: LineGeometry, params_by_rho: dict[float, 
         f"solved; largest transfer angle {sim.max_transfer_angle_deg:.1f}°.",
         "Faults behind the relay: every type and fault resistance at its own bus, under "
         "every load case (export and import).",
-        "With the parallel circuit out of service its CTs carry no current, so mutual "
-        "compensation has no input.",
+        *(("With the parallel circuit out of service its CTs carry no current, so mutual "
+           "compensation has no input.",) if geo.n_circuits == 2 else ()),
         "Faults beyond the remote bus: the remote-bus fault governs zone 1 (infeed only "
         "moves faults further out); zone 2 and 3 are judged at Z_line + K Z_adjacent with K "
         "from the simulated remote-bus faults, and by the simulated faults along the "

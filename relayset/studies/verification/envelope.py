@@ -96,9 +96,25 @@ class Envelope:
         return (0 if self.listed_flows_va else len(self.transfer_angles_rad)) + len(
             self.listed_flows_va) + 2 * len(self.envelope_flows_va)
 
-    def describe(self) -> tuple[str, ...]:
-        """The envelope in words, for the notes of the verification and the report."""
+    def describe(self, double_circuit: bool = True) -> tuple[str, ...]:
+        """The envelope in words, for the notes of the verification and the report (the
+        parallel circuit's cases only on a double-circuit line)."""
         rho = ", ".join(f"{r:g}" for r in self.resistivities_ohm_m)
+        sequential = (
+            "Sequential clearing (double circuits): every fault to ground (ground and "
+            "two-phase-to-ground, every fault resistance; the zero-sequence mutual coupling "
+            "that makes this case worst acts through the residual current, phase faults on "
+            "the parallel circuit are judged with both its breakers closed) on the parallel "
+            "circuit at " + ", ".join(f"{100 * x:g}" for x in SEQUENTIAL_M)
+            + " % of it with that circuit's breaker open at "
+            "one end, then at the other (both circuits in service, the sources' EMFs of the "
+            "load flow with both breakers closed), every source case with both sources in "
+            "service (with one out the protected circuit carries no fault current or sees "
+            "the fault through both circuits) and every load case; zone 1 of both ends "
+            "judged.",) if double_circuit else ()
+        states = ("every type and fault resistance with both circuits in service, bolted "
+                  "faults with the parallel circuit out" if double_circuit else
+                  "every type and fault resistance")
         return (
             f"Load envelope: {self.load_description}.",
             "Fault resistance grids: to ground R_g = "
@@ -111,22 +127,11 @@ class Envelope:
             + ("the study's range" if self.rho_range_given else
                f"no range given: {DEFAULT_RHO_FACTORS[0]:g} to {DEFAULT_RHO_FACTORS[1]:g} "
                "times the study's value, common practice, no source") + ").",
-            "Sequential clearing (double circuits): every fault to ground (ground and "
-            "two-phase-to-ground, every fault resistance; the zero-sequence mutual coupling "
-            "that makes this case worst acts through the residual current, phase faults on "
-            "the parallel circuit are judged with both its breakers closed) on the parallel "
-            "circuit at " + ", ".join(f"{100 * x:g}" for x in SEQUENTIAL_M)
-            + " % of it with that circuit's breaker open at "
-            "one end, then at the other (both circuits in service, the sources' EMFs of the "
-            "load flow with both breakers closed), every source case with both sources in "
-            "service (with one out the protected circuit carries no fault current or sees "
-            "the fault through both circuits) and every load case; zone 1 of both ends "
-            "judged.",
+            *sequential,
             "Lines leaving the buses (the study's lines behind and adjacent lines; the "
             "shortest and the longest at each bus): faults along each, radial from its bus "
             "with its Z1 and Z0 (Z0 = 3 Z1 where none is given, common practice, no source), "
-            "every type and fault resistance with both circuits in service, bolted faults "
-            "with the parallel circuit out, at the study's earth resistivity, every source "
+            f"{states}, at the study's earth resistivity, every source "
             "and load case (import and export).",
         )
 

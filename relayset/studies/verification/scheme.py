@@ -43,7 +43,8 @@ from relayset.studies.verification.simulation import Simulation
 
 
 def zone2_grading(st: SettingsResult, z2p: Zone2Philosophy, lines, inf: InfeedRange,
-                  t: float, remote_bus: str) -> list[ZoneVerification]:
+                  t: float, remote_bus: str, xc_in_path_ohm: float = 0.0
+                  ) -> list[ZoneVerification]:
     """Zone 2 against the adjacent line's protection, as the philosophy grades it.
 
     Parameters
@@ -59,9 +60,15 @@ def zone2_grading(st: SettingsResult, z2p: Zone2Philosophy, lines, inf: InfeedRa
     t : float
         Tolerance (the error budget) [%].
     remote_bus : str
+    xc_in_path_ohm : float
+        X_C of the series capacitor banks in the measured path to the remote bus [ohm]:
+        in service they bring the remote bus that much nearer, the furthest zone 2 reaches
+        past it (as the setting rule's check takes them).
     """
     theta = st.line_angle_rad
-    z_l = st.line_z1_primary_ohm
+    z_l = st.line_z1_primary_ohm - 1j * xc_in_path_ohm
+    banks = (f"; the series capacitors in service bring that bus {xc_in_path_ohm:.4g} Ω "
+             "of reactance nearer" if xc_in_path_ohm else "")
     z2 = st.zone("zone2")
     name, zs = min(lines, key=lambda nl: abs(nl[1]))
     out = []
@@ -94,7 +101,7 @@ def zone2_grading(st: SettingsResult, z2p: Zone2Philosophy, lines, inf: InfeedRa
     out.append(ZoneVerification(
         "zone2", check_id,
         f"zone 2 stays short of the end of {what} of '{name}' ({pct:g} % of it, from "
-        f"{remote_bus}) at the minimum infeed K = {abs(inf.k_min):.3g} ({inf.case_min}) "
+        f"{remote_bus}{banks}) at the minimum infeed K = {abs(inf.k_min):.3g} ({inf.case_min}) "
         f"with {t:g} % margin (philosophy: zone 2 graded {graded})",
         1, 0 if ok else 1, margin, t, ok, None, "" if ok else remedy))
     if z2p.grading != "short_of_adjacent_zone1":

@@ -147,10 +147,12 @@ def infeed_samples(run: Run, at_s: bool) -> list[tuple[complex, str]]:
     # the load case by its transfer angle, also for power flows
     delta = np.degrees(sw.transfer_angle_rad)  # (K, L)
     out = []
+    # A neighbouring line's state names itself ("neighbour earthed"), as in every case.
+    state = run.state if run.state.startswith("neighbour") else f"parallel {run.state}"
     for (a, b), kv in np.ndenumerate(k):
         if np.isfinite(kv):
             cap = f", series capacitors {run.cap_state.replace('_', ' ')}" if run.cap_state else ""
-            out.append((complex(kv), f"{run.case_names[a]}, parallel {run.state}{cap}, "
+            out.append((complex(kv), f"{run.case_names[a]}, {state}{cap}, "
                         f"transfer angle {delta[a, b]:.1f}°"))
     return out
 
