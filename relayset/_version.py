@@ -2,7 +2,7 @@
 pyproject.toml) and so does every process, without importlib.metadata, which alone costs
 about 30 ms of start-up."""
 
-__version__ = "0.3.0"
+__version__ = "0.3.1"
 
 
 def relayset_version() -> str:
