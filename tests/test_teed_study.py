@@ -8,6 +8,7 @@ the rule, exit code 2 and no output (RULES.md).
 from __future__ import annotations
 
 import json
+import re
 
 import pytest
 
@@ -441,3 +442,19 @@ def test_relay_at_a_grounded_transformer_only_terminal_is_refused_without_a_dead
     assert "'Wrenfold' or 'Velmar'" in err
     assert "[sources." not in err
     assert not out_json.exists()
+
+
+def test_both_on_a_teed_line_means_the_two_ends_of_the_line(tmp_path):
+    # With no source at the third substation (a grounded transformer only) no relay sits
+    # there; "both" studies the relays at the line's two ends together.
+    text = TEED_TOML.replace('end = "all"', 'end = "both"', 1)
+    text = text.replace('substation = "Oakrest"\n',
+                        'substation = "Oakrest"\ngrounded_transformer_z0 = "1+12j ohm"\n', 1)
+    text = re.sub(r"\[sources\.Oakrest\][^\[]*", "", text)
+    from relayset.studies import pipeline
+    from relayset.studies.teed import run_teed
+
+    study = parse_study(read_toml(write(tmp_path, text)))
+    assert study.relay_ends == ("Wrenfold", "Velmar")
+    r = run_teed(pipeline.load_bytes(text.encode(), "teed.toml"))
+    assert [e.end for e in r.ends] == ["Wrenfold", "Velmar"]

@@ -1099,10 +1099,13 @@ def check_study(study: Study, data: dict, source: str) -> None:
 
     if study.relay is not None:
         end = study.relay.end
-        every = "all" if study.tee is not None else "both"
-        if end != every and end not in ends:
+        # a teed line: "all" three ends, or "both" ends of the line (the third substation
+        # may have no source of its own, only a grounded transformer)
+        every = ("all", "both") if study.tee is not None else ("both",)
+        if end not in every and end not in ends:
             fail(f"is not an end of this line; use {', '.join(map(quote, ends))} or "
-                 f"'{every}'" + suggest(end, ends), "relay.end", end)
+                 + " or ".join(f"'{e}'" for e in every) + suggest(end, ends), "relay.end",
+                 end)
         for key in study.relay.at:
             if key not in ends:
                 fail(no_end + suggest(key, ends), f"relay.at.{_key(key)}",
