@@ -249,3 +249,11 @@ def test_zone2_grading_at_min_infeed_takes_the_bank_in_service(tmp_path):
             assert "series capacitors in service bring that bus" in chk.requirement
         else:
             assert x_c == 0
+
+
+def test_line_parameters_say_the_banks_are_not_in_them():
+    # The line parameters are the line's own (what the relay is set with); a reader of
+    # `relayset params` is told where the banks do enter.
+    params = pipeline.line_parameters(DEMO)
+    (note,) = [a for a in params.assumptions if a.startswith("Series capacitors")]
+    assert "Saltmere bank" in note and "not part of these line parameters" in note

@@ -128,6 +128,12 @@ def build_geometry(study: Study, source: str = "<study>") -> LineGeometry:
             f"({study.tee.length / 1e3:g} km) is built from its own sections in the "
             "three-terminal study ('relayset settings', 'relayset report'), which also "
             "gives the zones of a teed line.")
+    if study.series_capacitors:  # lumped elements of the fault study, not of the line
+        assumptions.append(
+            "Series capacitors (" + ", ".join(b.name for b in study.series_capacitors)
+            + "): not part of these line parameters (the line's own Z1, Z0 and k0, which "
+            "the relay is set with); the banks enter the fault study, the settings and the "
+            "verification ('relayset reach', 'relayset settings', 'relayset report').")
     if study.towers:
         tower_names = tuple(dict.fromkeys(sec.tower for sec in study.line.sections
                                           if sec.cable is None))
