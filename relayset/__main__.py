@@ -2,4 +2,5 @@
 
 from relayset.cli import main
 
-raise SystemExit(main())
+if __name__ == "__main__":  # importing the module (e.g. walking the package) runs nothing
+    raise SystemExit(main())
