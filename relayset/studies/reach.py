@@ -331,7 +331,11 @@ def run_reach_study(
             f"{zone1_margin_pct:g} %) / (1 + {budget:g} %/100)) x (X_L1 - X_C)/X_L1 (the "
             "philosophy's zone 1 applied to the compensated reactance; common practice, no "
             "source), with X_C the banks in the relay's measured path; worst cases name the "
-            "capacitor state.")
+            "capacitor state. Close beyond a bank in the relay's path the measured reactance "
+            "is offset by -X_C, so the reach error in % of the distance to the fault grows "
+            "without bound there: the 'on the line' extremes of a compensated line show that "
+            "offset, not a setting error (zone 1 follows from the remote bus and the "
+            "compensated-line rule; the inversion checks judge the region near the bank).")
     if rs.shunt_capacitance:
         notes.append("Line shunt capacitance included (exact distributed sections).")
     else:
