@@ -360,6 +360,17 @@ def strict_number(value: Any, *, prefix: str = "must") -> float:
 _TABLES: dict[type, Table] = {}
 
 
+def raw_at(data: Any, *path: str | int) -> Any:
+    """The user's own value at ``path`` of the raw tables (to echo it in messages); None
+    where the path does not exist."""
+    for p in path:
+        try:
+            data = data[p]
+        except (KeyError, IndexError, TypeError):
+            return None
+    return data
+
+
 def table(cls: type) -> Table:
     """The (cached) :class:`Table` node of a dataclass."""
     node = _TABLES.get(cls)

@@ -31,6 +31,7 @@ from typing import Any
 from relayset.errors import quote, suggest
 from relayset.inputs import units
 from relayset.inputs.schema import KeyRuleError, one_of, spec
+from relayset.inputs.schema import raw_at as _raw
 
 __all__ = ["MAX_SERIES_CAPACITORS", "SeriesCapacitor", "check_series_capacitors"]
 
@@ -141,15 +142,6 @@ class SeriesCapacitor:
             return 0.0 if self.at == ends[0] else 1.0
         x = self.distance / length_m
         return x if self.measured_from == ends[0] else 1.0 - x
-
-
-def _raw(data: Any, *path: str | int) -> Any:
-    for p in path:
-        try:
-            data = data[p]
-        except (KeyError, IndexError, TypeError):
-            return None
-    return data
 
 
 def check_series_capacitors(study: Any, data: dict, fail: Callable[..., None]) -> None:

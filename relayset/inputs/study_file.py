@@ -997,14 +997,7 @@ def load_study(path: str | Path) -> Study:
 
 # -- Rules that tie fields together ---------------------------------------------------------
 
-def _raw(data: Any, *path: str | int) -> Any:
-    """The user's own text at ``path`` of the raw tables (to echo it in messages)."""
-    for p in path:
-        try:
-            data = data[p]
-        except (KeyError, IndexError, TypeError):
-            return None
-    return data
+_raw = schema.raw_at  # the user's own text at a path of the raw tables
 
 
 def _in_users_unit(si: float, example: Any) -> str:

@@ -144,6 +144,14 @@ class CapacitorBasis:
                 "notes": list(self.notes)}
 
 
+def x_c_in_path_ohm(caps: dict[str, Any] | None, end: str) -> float:
+    """X_C of the banks in the measured path from ``end`` to the remote bus [ohm], from a
+    basis as the results carry it (:meth:`CapacitorBasis.to_dict`); 0 without banks."""
+    if not caps:
+        return 0.0
+    return max(0.0, float(caps["line_x1_ohm"]) - float(caps["z1_compensated_ohm"][end][1]))
+
+
 def with_state(line: network.LineCascade, basis: CapacitorBasis | None,
                state: str) -> network.LineCascade:
     """The cascade with the banks in a state (the line itself without banks)."""

@@ -27,6 +27,7 @@ from relayset.settings.simulated import (
 )
 from relayset.studies.geometry import LineGeometry
 from relayset.studies.reach import build_source
+from relayset.studies.series_capacitors import x_c_in_path_ohm
 
 #: Insulator flashover length per kV of nominal voltage for the ground-fault arc when the
 #: study gives none [m/kV] (common practice, no source: about 1.3 m at 132 kV).
@@ -195,7 +196,8 @@ def run_settings(study: Study, geo: LineGeometry, params: LineParameters, relay:
                 resistive_need_ohm=(None if sim is None
                                     else resistive_widening(sim, widened_zones)),
                 zone1_shape=(0.0, 1.0) if sim is None else zone1_shape(sim),
-                series_xc_in_path_ohm=_xc_in_path(reach, end),
+                series_xc_in_path_ohm=x_c_in_path_ohm(
+                    None if reach is None else reach.series_capacitors, end),
             )
             res = compute_settings(inputs, philosophy)
         except InputError as exc:
@@ -205,16 +207,6 @@ def run_settings(study: Study, geo: LineGeometry, params: LineParameters, relay:
                 study.relay.mutual_compensation_supervision))
         out.append(_warn_unfed_remote_end(res, other) if src_remote is None else res)
     return tuple(out)
-
-
-def _xc_in_path(reach: ReachStudyResult | None, end: str) -> float:
-    """X_C of the series capacitor banks in the measured path from ``end`` to the remote
-    bus [ohm] (the reach study's basis; 0 without banks)."""
-    caps = None if reach is None else reach.series_capacitors
-    if not caps:
-        return 0.0
-    x_comp = caps["z1_compensated_ohm"][end][1]
-    return max(0.0, float(caps["line_x1_ohm"]) - float(x_comp))
 
 
 def _warn_unfed_remote_end(res: SettingsResult, other: str) -> SettingsResult:

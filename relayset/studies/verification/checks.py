@@ -49,6 +49,7 @@ from relayset.results.verification import (
     ZoneVerification,
 )
 from relayset.studies.geometry import LineGeometry
+from relayset.studies.series_capacitors import x_c_in_path_ohm
 from relayset.studies.verification import deviations, equipment, scheme
 from relayset.studies.verification.envelope import Envelope, build_envelope
 from relayset.studies.verification.relay_model import (
@@ -371,15 +372,6 @@ def verify_end(sim: Simulation, end: str, st: SettingsResult, *, study: Study,
     return EndVerification(end, tuple(checks), infeed_range(sim, end), lim)
 
 
-def _xc_in_path(sim: Simulation, end: str) -> float:
-    """X_C of the series capacitor banks in the measured path from ``end`` to the remote
-    bus [ohm] (0 without banks), from the simulation's capacitor basis."""
-    caps = sim.capacitors
-    if not caps:
-        return 0.0
-    return max(0.0, float(caps["line_x1_ohm"]) - float(caps["z1_compensated_ohm"][end][1]))
-
-
 def _beyond_bus_checks(sim, end, st, *, study, tolerance_pct, source, philosophy):
     """Zone 2 graded as the philosophy says (:mod:`.scheme`); zone 3 coverage at maximum
     infeed."""
@@ -394,7 +386,7 @@ def _beyond_bus_checks(sim, end, st, *, study, tolerance_pct, source, philosophy
     theta = st.line_angle_rad
     z_l = st.line_z1_primary_ohm
     out = scheme.zone2_grading(st, philosophy.zone2, lines, inf, tolerance_pct, remote_bus,
-                               _xc_in_path(sim, end))
+                               x_c_in_path_ohm(sim.capacitors, end))
     name3, z3l = max(lines, key=lambda nl: abs(nl[1]))
     zone3 = st.zone("zone3")
     # Largest fraction x of the longest adjacent line inside zone 3 at maximum infeed.
