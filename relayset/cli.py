@@ -226,7 +226,7 @@ def _files(args) -> list[str]:
         from relayset.resources import demo_studies
 
         demos = [str(p) for p in demo_studies()]
-        if args.command in ("reach", "export"):  # they take no three-terminal line
+        if args.command == "export":  # it takes no three-terminal line
             demos = _without_teed(demos, args.command)
         files += demos
     if not files:
@@ -321,6 +321,11 @@ def _run(args) -> int:
     results = [pipeline.run(f, **flags[args.command]) for f in _files(args)]
     for res in results:
         units = args.units or study_unit_system(res.input)
+        if getattr(res, "teed_reach", None) is not None:  # a three-terminal line's reach
+            from relayset.report.teed_reach import teed_reach_summary
+
+            sys.stdout.write(teed_reach_summary(res, units))
+            continue
         sys.stdout.write(show(res, units))
     # Every output file is rendered first, then all are written or none.
     if args.json or getattr(args, "csv", None):

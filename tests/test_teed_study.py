@@ -307,10 +307,10 @@ def test_grounded_transformer_only_at_the_third_substation():
         assert "Oakrest weak" not in a.min_case + a.max_case
 
 
-@pytest.mark.parametrize("command", ["reach", "export"])
+@pytest.mark.parametrize("command", ["export"])
 def test_reach_and_export_refuse_a_teed_line(tmp_path, capsys, command):
-    """`relayset reach` (the teed reach study is part of its settings) and `relayset
-    export` (setting files are two-ended) refuse in one line, exit 2, nothing written."""
+    """`relayset export` (setting files are two-ended) refuses in one line, exit 2, nothing
+    written (`relayset reach` takes a teed line: tests/test_teed_reach.py)."""
     path = write(tmp_path)
     out = tmp_path / "out"
     args = [command, str(path)]

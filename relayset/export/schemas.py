@@ -176,8 +176,33 @@ def results_schema() -> dict[str, Any]:
                          "properties": {"ends": {"type": "array", "items": end}}},
             "verification": {"type": ["object", "null"]},
             "teed": _teed_results(),
+            "teed_reach": _teed_reach_results(),
         },
     }
+
+
+def _teed_reach_results() -> dict[str, Any]:
+    """A three-terminal line's reach study (relayset.results.teed_reach, ``relayset
+    reach``): the top-level keys, per end its paths."""
+    path = {"type": "object",
+            "required": ["remote", "third", "infeed", "length_km", "tee_location_pct",
+                         "z1_path_ohm", "worst_bolted_overreach_at_remote_terminal_pct",
+                         "worst_bolted_overreach_on_path_pct",
+                         "worst_bolted_underreach_on_path_pct",
+                         "worst_untransposition_overreach_on_path_pct",
+                         "worst_untransposition_underreach_on_path_pct",
+                         "apparent_at_tee_ohm", "apparent_at_remote_terminal_ohm", "loops",
+                         "envelope"],
+            "properties": {"remote": _STR, "third": _STR, "infeed": {"type": "boolean"},
+                           "loops": {"type": "array", "minItems": 6, "maxItems": 6}}}
+    end = {"type": "object", "required": ["end", "z1_set_ohm", "k0_set", "tee_ohm", "paths"],
+           "properties": {"end": _STR, "paths": {"type": "array", "items": path}}}
+    return {"type": ["object", "null"],
+            "required": ["buses", "tee_distance_km", "branch_length_km", "fault_types",
+                         "source_cases", "cases_solved", "ends", "notes"],
+            "properties": {"buses": {"type": "array", "items": _STR, "minItems": 3,
+                                     "maxItems": 3},
+                           "ends": {"type": "array", "items": end}}}
 
 
 def _teed_results() -> dict[str, Any]:

@@ -14,6 +14,7 @@ if TYPE_CHECKING:  # annotations only: `relayset params` loads no reach/settings
     from relayset.results.relay import RelayBasis
     from relayset.results.settings import SettingsResult
     from relayset.results.teed import TeedStudyResult
+    from relayset.results.teed_reach import TeedReachResult
     from relayset.results.verification import VerificationResult
 
 CAUTION = (
@@ -42,6 +43,9 @@ class StudyResults:
     #: a three-terminal (teed) line's reach study, zones and their verification, in place
     #: of ``reach_study``, ``settings`` and ``verification`` (relayset.studies.teed)
     teed: TeedStudyResult | None = None
+    #: a three-terminal line's reach study (``relayset reach``; relayset.studies.teed_reach),
+    #: in place of ``reach_study``
+    teed_reach: TeedReachResult | None = None
 
     # Old names (relayset 0.2), one release.
     identity = alias("study", "identity")
@@ -75,5 +79,7 @@ class StudyResults:
         if self.teed is not None:
             d["teed"] = self.teed.to_dict()
             d["philosophy"] = self.philosophy
+        if self.teed_reach is not None:
+            d["teed_reach"] = self.teed_reach.to_dict()
         d["input"] = self.input
         return d

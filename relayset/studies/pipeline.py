@@ -81,13 +81,19 @@ def run_loaded(loaded: LoadedStudy, *, reach: bool = False, settings: bool = Fal
     geo = build_geometry(study, src)
     params = compute_parameters(geo)
     relay = philosophy = reach_res = settings_res = teed = None
-    if reach and study.tee is not None:  # three-terminal line: relayset.studies.teed
-        from relayset.studies.teed import refuse_in_pipeline, run_teed_study
+    teed_reach = None
+    if reach and study.tee is not None and not settings:  # relayset.studies.teed_reach
+        from relayset.studies.relay import resolve_relay
+        from relayset.studies.teed_reach import run_teed_reach
 
-        if not settings:  # its reach study is part of its settings: no reach alone
-            refuse_in_pipeline(src)
+        check_reach_inputs(study, src)
+        relay = resolve_relay(study, params)
+        teed_reach = run_teed_reach(study, geo, params, relay, source=src)
+        reach = False  # the two-ended reach study does not run
+    if reach and study.tee is not None:  # three-terminal line: relayset.studies.teed
         from relayset.studies.relay import resolve_relay
         from relayset.studies.settings import study_philosophy
+        from relayset.studies.teed import run_teed_study
 
         check_reach_inputs(study, src)
         relay = resolve_relay(study, params)
@@ -124,4 +130,5 @@ def run_loaded(loaded: LoadedStudy, *, reach: bool = False, settings: bool = Fal
         philosophy=philosophy.to_dict() if settings or teed is not None else None,
         verification=verification,
         teed=teed,
+        teed_reach=teed_reach,
     )

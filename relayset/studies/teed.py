@@ -47,14 +47,13 @@ ASSUMPTIONS = (
 )
 
 
-#: Why ``relayset reach`` and ``relayset export`` refuse a teed line.
-REFUSAL = ("a three-terminal line is computed by 'relayset settings' and 'relayset report' "
-           "(its reach study is part of its settings; setting files are two-ended only)")
+#: Why ``relayset export`` refuses a teed line.
+REFUSAL = ("a three-terminal line is computed by 'relayset reach', 'relayset settings' and "
+           "'relayset report' (setting files are two-ended only)")
 
 
 def refuse_in_pipeline(source: str) -> None:
-    """The one-line refusal of ``relayset reach`` and ``export`` for a study with a tee
-    (exit 2)."""
+    """The one-line refusal of ``relayset export`` for a study with a tee (exit 2)."""
     raise InputError(REFUSAL, field="tee", source=source)
 
 
