@@ -294,9 +294,10 @@ def _notes(study: Study, terms, buses) -> tuple[str, ...]:
         "Z1 of the path from the relay to the fault and theta1 the relay's line angle; on "
         "a path of one construction this is the two-ended study's (m - m_apparent)/m. "
         "Positive is overreach.",
-        "Infeed in: the third terminal's "
-        + ("grounded-star transformer (zero-sequence infeed only)" if grounded else "source")
-        + " connected; infeed out: it is disconnected. The reach study's source cases as "
+        "Infeed in: the third terminal (the one off the path) connected"
+        + (f" (at {buses[2]} a grounded-star transformer: zero-sequence infeed only)"
+           if grounded else "")
+        + "; infeed out: it is disconnected. The reach study's source cases as "
         "given (a case's factor at each bus; 'relayset settings' also varies each bus's "
         "source independently for the infeed range). With the infeed in, a fault beyond "
         "the tee is seen farther away (the infeed's drop on the remote leg): that "
