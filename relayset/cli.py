@@ -225,32 +225,13 @@ def _files(args) -> list[str]:
     if args.demo:
         from relayset.resources import demo_studies
 
-        demos = [str(p) for p in demo_studies()]
-        if args.command == "export":  # it takes no three-terminal line
-            demos = _without_teed(demos, args.command)
-        files += demos
+        files += [str(p) for p in demo_studies()]
     if not files:
         raise InputError("give at least one study FILE or --demo", source="command line")
     if (getattr(args, "json", None) or getattr(args, "csv", None)) and len(files) > 1:
         raise InputError(f"--json and --csv take one study file at a time, not {len(files)} "
                          "(use 'relayset batch' for many)", source="command line")
     return files
-
-
-def _without_teed(demos: list[str], command: str) -> list[str]:
-    """The shipped demos but the three-terminal ones (``[tee]``), each named on stderr."""
-    import tomllib
-    from pathlib import Path
-
-    keep = []
-    for p in demos:
-        if "tee" in tomllib.loads(Path(p).read_text("utf-8")):
-            print(f"relayset: {Path(p).name} skipped: a three-terminal line, which "
-                  f"'relayset {command}' does not take ('relayset settings' and 'relayset "
-                  "report' do)", file=sys.stderr)
-        else:
-            keep.append(p)
-    return keep
 
 
 def _run(args) -> int:

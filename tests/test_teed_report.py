@@ -253,19 +253,6 @@ def test_teed_results_json_validates_against_the_results_schema(teed_report):
         jsonschema.Draft202012Validator(schema).validate(d)
 
 
-def test_reach_and_export_of_the_demos_leave_the_teed_demo_out(capsys):
-    """`reach --demo` and `export --demo` take no three-terminal line: the teed demo is
-    left out and named on stderr; every other demo stays."""
-    from relayset.cli import _without_teed
-    from relayset.resources import demo_studies
-
-    demos = [str(p) for p in demo_studies()]
-    kept = _without_teed(demos, "export")
-    assert str(DEMO) in demos and kept == [p for p in demos if p != str(DEMO)]
-    err = capsys.readouterr().err
-    assert f"{DEMO.name} skipped: a three-terminal line" in err and len(err.splitlines()) == 1
-
-
 def test_checks_not_carried_out_are_not_judged_never_pass(teed_report, capsys):
     # A check that was not carried out (no adjacent line given, not simulated) or that only
     # states a value (zone 1's coverage) is "not judged": never printed as pass, never failed.

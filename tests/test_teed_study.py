@@ -135,11 +135,6 @@ BAD = [
                                      'at = "Velmar"\ncompensation_pct = 30\n'
                                      'protective_level = 2.2\nrated_current = "1 kA"\n\n[load]'),
      ['series_capacitors[0].name = "bank"', "overhead sections only"]),
-    # no settable values for a teed line (a report would embed no profile to verify with)
-    ("teed line on a relay profile",
-     ('vt_ratio = "132000/110 V"',
-      'vt_ratio = "132000/110 V"\nprofile = "generic_quadrilateral_1a"'),
-     ['relay.profile = "generic_quadrilateral_1a"', "relay profile's steps"]),
 ]
 
 
@@ -307,22 +302,15 @@ def test_grounded_transformer_only_at_the_third_substation():
         assert "Oakrest weak" not in a.min_case + a.max_case
 
 
-@pytest.mark.parametrize("command", ["export"])
-def test_reach_and_export_refuse_a_teed_line(tmp_path, capsys, command):
-    """`relayset export` (setting files are two-ended) refuses in one line, exit 2, nothing
-    written (`relayset reach` takes a teed line: tests/test_teed_reach.py)."""
+def test_export_of_a_teed_line_without_a_profile_is_one_line(tmp_path, capsys):
+    """`relayset export` of a teed line (tests/test_teed_export.py) needs a relay profile,
+    as a two-ended line's: one line naming relay.profile, exit 2, nothing written."""
     path = write(tmp_path)
     out = tmp_path / "out"
-    args = [command, str(path)]
-    if command in ("report", "export"):
-        args += ["--output", str(out)]
-    else:
-        args += ["--json", str(tmp_path / "out.json")]
-    code = main(args)
+    code = main(["export", str(path), "--output", str(out)])
     err = capsys.readouterr().err.strip()
     assert code == 2 and len(err.splitlines()) == 1, err
-    assert f"{path}: tee: " in err and "'relayset settings' and 'relayset report'" in err
-    assert not (tmp_path / "out.json").exists()
+    assert f"{path}: relay.profile: " in err and "names no relay profile" in err
     assert not out.exists() or not any(out.iterdir())
 
 

@@ -40,19 +40,22 @@ def setting_records(results, results_text: str) -> list[dict[str, Any]]:
         The study names no relay profile (``relay.profile``).
     """
     from relayset._version import relayset_version
+    from relayset.export.teed import end_settings
 
-    if results.settings is None or any(st.settable is None for st in results.settings):
+    ends = end_settings(results)  # a teed line's ends too (relayset.export.teed)
+    if not ends or any(st.settable is None for st in ends):
         raise InputError('the study names no relay profile: add profile = "PATH" to [relay] '
                          "for a setting file", field="relay.profile",
                          source=str(results.source_file))
     digest = hashlib.sha256(results_text.encode("utf-8")).hexdigest()
     ident = results.study
-    verdict = None if results.verification is None else results.verification.verdict
+    verdict = (results.teed.verification if results.teed is not None else
+               None if results.verification is None else results.verification.verdict)
     from relayset.inputs.study_file import parse_study
 
     study = parse_study(results.input, source=str(results.source_file))
     out = []
-    for st in results.settings:
+    for st in ends:
         ct, vt = study.relay.ratios(st.end)
         recs = []
         for v in st.settable.values:
@@ -120,9 +123,10 @@ def profile_attachment(results) -> tuple[str, bytes] | None:
     InputError
         The profile changed after the settings were computed from it.
     """
+    from relayset.export.teed import end_settings
     from relayset.inputs.profile import study_profile
 
-    ends = results.settings or ()
+    ends = end_settings(results)  # a teed line's ends too
     if not ends or ends[0].settable is None:
         return None
     rel = (results.input or {}).get("relay") or {}
@@ -169,7 +173,8 @@ def export(paths, out_dir: str | Path) -> tuple[list[Path], int]:
     """``relayset export``: compute each study, then write every file (or none).
 
     Writes per study the results JSON and per relay end the setting file (JSON and CSV),
-    the test points and the COMTRADE cases (:mod:`relayset.export.testshots`).
+    the test points and the COMTRADE cases (:mod:`relayset.export.testshots`; a
+    three-terminal line's: :mod:`relayset.export.teed`).
     Returns the files written and the number of failed checks
     (:func:`relayset.report.failures.failed_checks`, the report's one count).
     """
@@ -180,16 +185,16 @@ def export(paths, out_dir: str | Path) -> tuple[list[Path], int]:
 
     out = Path(out_dir)
     loaded = [pipeline.load(p) for p in paths]
-    for ld in loaded:
-        if ld.study.tee is not None:  # setting files are two-ended: refused in one line
-            from relayset.studies.teed import refuse_in_pipeline
-
-            refuse_in_pipeline(ld.source)
     runs = [pipeline.run_loaded(ld, settings=True) for ld in loaded]
     outputs = []  # every file of every study formed first, then written together
     for res in runs:
         outputs += [("-o", out / name, data) for name, data in setting_files(res)]
-        outputs += shot_and_case_files(res, out)
+        if res.teed is not None:  # a three-terminal line: relayset.export.teed
+            from relayset.export.teed import shot_and_case_files as teed_files
+
+            outputs += teed_files(res, out)
+        else:
+            outputs += shot_and_case_files(res, out)
     io.write_all(outputs)
     return [Path(p) for _, p, _ in outputs], sum(len(failed_checks(r.to_dict()))
                                                  for r in runs)

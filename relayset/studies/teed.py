@@ -47,16 +47,6 @@ ASSUMPTIONS = (
 )
 
 
-#: Why ``relayset export`` refuses a teed line.
-REFUSAL = ("a three-terminal line is computed by 'relayset reach', 'relayset settings' and "
-           "'relayset report' (setting files are two-ended only)")
-
-
-def refuse_in_pipeline(source: str) -> None:
-    """The one-line refusal of ``relayset export`` for a study with a tee (exit 2)."""
-    raise InputError(REFUSAL, field="tee", source=source)
-
-
 def run_teed(loaded) -> TeedStudyResult:
     """The reach study and zone 1/zone 2 of a study read by
     :func:`relayset.studies.pipeline.load` (or ``load_bytes``) that has a ``[tee]``: the

@@ -1,0 +1,317 @@
+r"""``relayset export`` of a three-terminal (teed) line: per relay end the setting file,
+the test points and the COMTRADE cases, the governing ones solved on the teed solver.
+
+The zones of each end are read from the results as they are
+(:class:`relayset.results.teed.TeedEndSettings`: its ``settings``, the two-ended settings'
+results type with the zones' characteristics and the relay profile's settable values,
+where the results carry it; else its zone 1 and zone 2 reaches as mho circles at the line
+angle, put on the relay profile's steps by the one rounding rule,
+:func:`relayset.settings.settable.settable_settings`). Nothing here sets a zone.
+
+Governing cases of a teed end are the cases its two zones are set from
+(:mod:`relayset.studies.teed`): zone 1's, the bolted fault at the nearest remote terminal
+with the third terminal's infeed out whose meant loop measures the smallest apparent
+impedance along the line angle; zone 2's, the bolted fault at the farthest remote terminal
+with the infeed in whose meant loop measures the largest. Each is found again on the teed
+solver (:func:`relayset.physics.teed.solve_teed_sweep`) over the same source cases and
+must measure the apparent impedance the results report (:data:`Z_RTOL`), else
+:class:`CaseNotReproducedError`; its phasors at the relay are the network's, prefault
+(no load: every EMF at nominal, in phase, as the teed reach study) and fault.
+"""
+
+from __future__ import annotations
+
+import cmath
+import math
+from dataclasses import dataclass
+
+import numpy as np
+
+from relayset.errors import InternalError
+
+#: Relative agreement of the re-found apparent impedance with the results' [1] (the same
+#: solver on the same cases; floating-point rounding only).
+Z_RTOL = 1e-6
+
+
+class CaseNotReproducedError(InternalError):
+    """A teed end's governing case could not be found again at the reported impedance."""
+
+
+def end_settings(results) -> list:
+    """The :class:`~relayset.results.settings.SettingsResult` of every relay end: a
+    two-ended study's ``settings``; a teed line's, one per end (see the module text)."""
+    if results.teed is None:
+        return list(results.settings or ())
+    out = []
+    for e in results.teed.ends:
+        st = getattr(e, "settings", None)  # the results' own, where they carry it
+        out.append(st if st is not None else _mho_settings(results, e))
+    return out
+
+
+def _mho_settings(results, e):
+    """A teed end's zone 1 and zone 2 as the results give them (reaches along the line
+    angle, mho circles at it), in the settings' results type, on the relay profile's steps
+    where the study names one."""
+    from relayset.inputs.profile import study_profile
+    from relayset.inputs.study_file import parse_study
+    from relayset.results.parameters import K0
+    from relayset.results.settings import LoadCheck, SettingsResult, SourceEnd, ZoneSetting
+    from relayset.studies.reach import build_source
+    from relayset.studies.settings import study_philosophy
+
+    src = str(results.source_file)
+    study = parse_study(results.input, source=src)
+    philosophy = study_philosophy(study, src)
+    t = results.teed
+    ct, vt = study.relay.ratios(e.end)
+    factor = ct / vt
+    z1 = complex(t.z1_set_ohm)
+    theta = cmath.phase(z1)
+    zones = []
+    for name, reach, rule, delay in (
+            ("zone1", e.zone1_ohm, e.zone1_rule, philosophy.zone1.delay_s),
+            ("zone2", e.zone2_ohm, e.zone2_rule, philosophy.zone2.delay_s)):
+        d = abs(complex(reach))
+        zones.append(ZoneSetting(
+            zone=name, direction="forward", rule=rule, reach_primary_ohm=complex(reach),
+            reach_secondary_ohm=complex(reach) * factor, reach_pct=100 * d / abs(z1),
+            delay_s=delay, shape="mho", infeed_factor=None, char_angle_rad=theta,
+            mho_diameter_primary_ohm=d, mho_diameter_secondary_ohm=d * factor,
+            x_reach_primary_ohm=None, x_reach_secondary_ohm=None,
+            r_reach_phase_primary_ohm=None, r_reach_phase_secondary_ohm=None,
+            r_reach_ground_primary_ohm=None, r_reach_ground_secondary_ohm=None,
+            arc_resistance_phase_ohm=None, arc_resistance_ground_ohm=None,
+            load_reach_pct_of_min=math.nan))
+    k = complex(t.k0_set)
+    z0 = z1 * (1 + 3 * k)
+    s = build_source(study, e.end, src)
+    others = [b for b in t.buses if b != e.end]
+    st = SettingsResult(
+        end=e.end, remote_end=" and ".join(others), line_z1_primary_ohm=z1,
+        line_z1_secondary_ohm=z1 * factor, line_angle_rad=theta,
+        length_m=float(results.parameters.length_m), secondary_factor=factor,
+        zones=tuple(zones),
+        k0=K0(k0=k, kr=float((z0.real - z1.real) / (3 * z1.real)),
+              kx=float((z0.imag - z1.imag) / (3 * z1.imag)), z0_over_z1=1 + 3 * k),
+        k0m=None, load=LoadCheck(math.nan, math.nan, math.nan, math.nan, None),
+        sources=() if s is None else (SourceEnd(e.end, s.z1_ohm, math.nan, ""),),
+        arc_current_a=None)
+    profile = study_profile(study.relay.profile, src)
+    if profile is None:
+        return st
+    from relayset.settings.settable import settable_settings
+
+    primary = study.relay.ct_primary_a(e.end)
+    return settable_settings(st, profile, study.relay.min_operating_current,
+                             None if primary is None else primary / ct)
+
+
+def end_bases(results, settings: list) -> list:
+    """The :class:`~relayset.export.testshots.EndBasis` of every relay end of a teed line
+    (``settings`` from :func:`end_settings`)."""
+    from relayset.export.testshots import DEFAULT_TEST_CURRENT_A, EndBasis, end_stem
+    from relayset.inputs.study_file import parse_study
+    from relayset.report.context import safe_stem
+    from relayset.studies.reach import build_source
+
+    src = str(results.source_file)
+    study = parse_study(results.input, src)
+    doc_stem = safe_stem(results.study["line_id"], results.study["revision"])
+    labels = tuple(study.circuits[0].phase_labels)
+    out = []
+    for n, st in enumerate(settings):
+        ct, vt = study.relay.ratios(st.end)
+        primary = study.relay.ct_primary_a(st.end)
+        s = build_source(study, st.end, src)
+        out.append(EndBasis(
+            st.end, end_stem(n, st.end, doc_stem), st.secondary_factor,
+            results.parameters.v_nominal_v / (math.sqrt(3) * vt),
+            primary / ct if primary else DEFAULT_TEST_CURRENT_A, float(ct), float(vt),
+            complex(st.k0.k0), results.parameters.frequency_hz,
+            None if s is None else s.z1_ohm, labels,
+            float(study.relay.min_operating_current)))  # the relay model's, secondary
+    return out
+
+
+@dataclass(frozen=True)
+class TeedCase:
+    """One governing case of a teed end, as the engineer reads it."""
+
+    zone: str  #: "zone1" or "zone2", whose rule it sets
+    remote: str  #: the faulted remote terminal (bolted, on the line side of its CT)
+    infeed: bool  #: the third terminal's source in
+    fault_type: str  #: in the study's phase labels
+    loop: str  #: the governing loop, in the study's phase labels
+    source_case: str
+    z_apparent_primary_ohm: complex  #: what the loop measures [ohm]
+    along_ohm: float  #: its reach along the line angle [ohm], as the results report it
+
+    def to_dict(self) -> dict:
+        return {"zone": self.zone, "faulted": "remote terminal", "remote": self.remote,
+                "infeed": self.infeed, "fault_type": self.fault_type, "location_pct": 100.0,
+                "r_fault_ohm": 0.0, "r_phase_ohm": 0.0, "loop": self.loop,
+                "source_case": self.source_case, "load": "none (EMFs nominal, in phase)",
+                "z_apparent_primary_ohm": [self.z_apparent_primary_ohm.real,
+                                           self.z_apparent_primary_ohm.imag],
+                "along_line_angle_ohm": self.along_ohm}
+
+
+@dataclass(frozen=True)
+class TeedCasePhasors:
+    """The network's phasors at the relay for one case (primary, currents into the line)."""
+
+    case: TeedCase
+    v_pre: np.ndarray  #: (3,) [V]
+    i_pre: np.ndarray  #: (3,) [A]
+    v: np.ndarray  #: (3,) [V]
+    i: np.ndarray  #: (3,) [A]
+
+
+class TeedCaseSolver:
+    """The teed line, terminals and source cases of a study with settings, formed once.
+
+    Parameters
+    ----------
+    results : StudyResults
+        A teed study's results with settings (``results.teed``).
+    """
+
+    def __init__(self, results):
+        from relayset.inputs.study_file import parse_study
+        from relayset.physics.teed import GroundedTransformer
+        from relayset.studies.geometry import build_geometry
+        from relayset.studies.parameters import compute_parameters
+        from relayset.studies.teed import teed_line, teed_source_cases, teed_terminals
+
+        src = str(results.source_file)
+        study = parse_study(results.input, source=src)
+        geo = build_geometry(study, src)
+        self.study, self.results = study, results
+        self.labels = tuple(study.circuits[0].phase_labels)
+        self.buses = tuple(results.teed.buses)
+        self.line = teed_line(study, geo, compute_parameters(geo),
+                              study.reach_study.shunt_capacitance, src)
+        self.terms = teed_terminals(study, src)
+        self.scales, self.names = teed_source_cases(
+            study, self.buses, tuple(t is not None and not isinstance(t, GroundedTransformer)
+                                     for t in self.terms))
+
+    def _search(self, x: int, y: int, infeed: bool, largest: bool):
+        """(along, phasors) of the extreme meant loop for a bolted fault at bus y."""
+        from relayset.physics import measurement
+        from relayset.physics.network import Source
+        from relayset.physics.teed import ENDS, solve_teed_sweep
+        from relayset.results.reach import fault_label, loop_label
+
+        t = list(self.terms)
+        if not infeed:
+            t[3 - x - y] = None
+        if not any(isinstance(s, Source) for s in t):
+            return None
+        ftypes = tuple(self.study.reach_study.fault_types)
+        sw = solve_teed_sweep(self.line, t, v_nominal_v=self.study.system.nominal_voltage,
+                              fault_leg=ENDS[y], fault_types=ftypes, m=[0.0],
+                              r_fault_ohm=[0.0], source_scale=self.scales)
+        k0 = complex(self.results.teed.k0_set)  # what the apparent impedances are with
+        rot = cmath.rect(1.0, -cmath.phase(self.results.teed.z1_set_ohm))
+        v, i = sw.v[ENDS[x]][:, 0, 0, :, 0], sw.i[ENDS[x]][:, 0, 0, :, 0]  # (F, K, 3)
+        loops = measurement.loop_impedances(v, i, k0)
+        best = None
+        for f, ft in enumerate(ftypes):
+            for lp in measurement.loops_for_fault(ft):
+                for k, z in enumerate(loops[lp][f]):
+                    a = (z * rot).real
+                    if not math.isfinite(a):
+                        continue
+                    if best is None or (a > best[0] if largest else a < best[0]):
+                        best = (float(a), f, lp, k, complex(z))
+        if best is None:
+            return None
+        a, f, lp, k, z = best
+        case = TeedCase("zone2" if largest else "zone1", self.buses[y], infeed,
+                        fault_label(ftypes[f], self.labels), loop_label(lp, self.labels),
+                        self.names[k], z, a)
+        return a, TeedCasePhasors(case, sw.v_pre[ENDS[x]][k, 0], sw.i_pre[ENDS[x]][k, 0],
+                                  v[f, k], i[f, k])
+
+    def governing(self, end) -> list[TeedCasePhasors]:
+        """Zone 1's and zone 2's cases of the relay at ``end`` (a TeedEndSettings), each
+        checked against the apparent impedances the results report."""
+        x = self.buses.index(end.end)
+        out = []
+        for zone, infeed, largest in (("zone1", False, False), ("zone2", True, True)):
+            found = [r for y in range(3) if y != x
+                     if (r := self._search(x, y, infeed, largest)) is not None]
+            if not found:
+                continue
+            a, p = (max if largest else min)(found, key=lambda r: r[0])
+            told = [(ap.max_ohm if largest else ap.min_ohm) for ap in end.apparent
+                    if ap.infeed == infeed]
+            want = (max if largest else min)(told) if told else math.nan
+            if not math.isclose(a, want, rel_tol=Z_RTOL):
+                raise CaseNotReproducedError(
+                    f"{end.end}: the {zone} case measures {a:.9g} ohm along the line angle, "
+                    f"the results report {want:.9g} ohm")
+            out.append(p)
+        return out
+
+
+def governing_cases(results, end, basis, solver: TeedCaseSolver) -> list:
+    """The COMTRADE cases (:class:`relayset.export.comtrade.Case`) of a teed end's
+    governing cases, secondary, referred to phase A's prefault voltage at 0°."""
+    from relayset.export.comtrade import Case, _slug
+
+    out = []
+    for p in solver.governing(end):
+        c = p.case
+        ref = np.exp(-1j * np.angle(p.v_pre[0]))
+        vt, ct = basis.vt_ratio / ref, basis.ct_ratio / ref
+        out.append(Case(
+            f"{basis.stem}-case-{c.zone}-{_slug(c.remote)}-infeed-{'in' if c.infeed else 'out'}",
+            p.v_pre / vt, p.i_pre / ct, p.v / vt, p.i / ct, None, "governing case",
+            f"{c.zone} set from it: {c.loop} of {c.fault_type} at {c.remote}, infeed "
+            f"{'in' if c.infeed else 'out'}, {c.source_case}", c.to_dict()))
+    return out
+
+
+#: How a teed end's governing cases are formed (the test-point file's manifest).
+FORMED_FROM = ("the network's phasors at the relay: the bolted remote-terminal fault each "
+               "zone is set from (zone 1: nearest terminal, infeed out, smallest apparent "
+               "impedance; zone 2: farthest, infeed in, largest) solved again on the teed "
+               "solver, prefault (no load) and fault")
+
+
+def shot_and_case_files(results, out_dir, *, sample_rate_hz: float = 4000.0,
+                        duration_s: float = 0.5) -> list:
+    """The test points (CSV, JSON) and COMTRADE cases of every relay end of a teed line,
+    formed, not written, as :func:`relayset.export.testshots.shot_and_case_files`."""
+    from pathlib import Path
+
+    from relayset import io
+    from relayset.export import comtrade
+    from relayset.export.testshots import shots_csv, shots_json, test_shots
+
+    out_dir = Path(out_dir)
+    settings = end_settings(results)
+    solver = TeedCaseSolver(results)
+    outputs = []
+    for basis, st, end in zip(end_bases(results, settings), settings, results.teed.ends,
+                              strict=True):
+        shots = test_shots(st, basis)
+        outputs.append(("test points", out_dir / f"{basis.stem}-test-points.csv",
+                        shots_csv(shots, basis.phase_labels)))
+        cases = comtrade.shot_cases(shots, basis) + governing_cases(results, end, basis,
+                                                                    solver)
+        doc = shots_json(shots, basis, results)
+        doc["comtrade"] = comtrade.manifest(cases, basis, sample_rate_hz=sample_rate_hz,
+                                            duration_s=duration_s)
+        doc["comtrade"]["governing_cases_formed_from"] = FORMED_FROM
+        outputs.append(("test points", out_dir / f"{basis.stem}-test-points.json",
+                        io.to_json(doc).encode()))
+        folder = out_dir / "comtrade" / basis.stem
+        for name, data in comtrade.render(cases, basis, sample_rate_hz=sample_rate_hz,
+                                          duration_s=duration_s):
+            outputs.append(("COMTRADE", folder / name, data))
+    return outputs
