@@ -126,7 +126,8 @@ def profile_attachment(results) -> tuple[str, bytes] | None:
     from relayset.export.teed import end_settings
     from relayset.inputs.profile import study_profile
 
-    ends = end_settings(results)  # a teed line's ends too
+    # a teed line's ends where its results carry their settable values
+    ends = end_settings(results, own_only=True)
     if not ends or ends[0].settable is None:
         return None
     rel = (results.input or {}).get("relay") or {}

@@ -38,15 +38,19 @@ class CaseNotReproducedError(InternalError):
     """A teed end's governing case could not be found again at the reported impedance."""
 
 
-def end_settings(results) -> list:
+def end_settings(results, *, own_only: bool = False) -> list:
     """The :class:`~relayset.results.settings.SettingsResult` of every relay end: a
-    two-ended study's ``settings``; a teed line's, one per end (see the module text)."""
+    two-ended study's ``settings``; a teed line's, one per end (see the module text).
+    ``own_only``: a teed end whose results carry none is left out (not formed here)."""
     if results.teed is None:
         return list(results.settings or ())
     out = []
     for e in results.teed.ends:
         st = getattr(e, "settings", None)  # the results' own, where they carry it
-        out.append(st if st is not None else _mho_settings(results, e))
+        if st is None and not own_only:
+            st = _mho_settings(results, e)
+        if st is not None:
+            out.append(st)
     return out
 
 
