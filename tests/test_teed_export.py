@@ -68,7 +68,11 @@ def test_setting_files_per_end_validate_and_carry_the_teed_zones(exported):
         doc = json.loads((out / f"WV-TEE-1_revA_{e.end}_settings.json").read_text())
         jsonschema.Draft202012Validator(schema).validate(doc)
         assert doc["relay_end"] == e.end and doc["results_sha256"] == digest
-        assert doc["verdict"] == "verified"
+        # the verdict is the teed verification's; zones put on the profile's steps after it
+        # say so (until the teed results carry their own settable values)
+        own = getattr(e, "settings", None) is not None
+        assert doc["verdict"] == ("verified" if own else
+                                  "verified (the zones before the relay profile's steps)")
         assert doc["ct_ratio"] == 120.0 and doc["vt_ratio"] == 1200.0
         vals = {r["id"]: r for r in doc["settings"]}
         # read from the results, not set again: the zones' secondary reaches

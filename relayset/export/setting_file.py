@@ -51,6 +51,9 @@ def setting_records(results, results_text: str) -> list[dict[str, Any]]:
     ident = results.study
     verdict = (results.teed.verification if results.teed is not None else
                None if results.verification is None else results.verification.verdict)
+    if results.teed is not None and len(end_settings(results, own_only=True)) < len(ends):
+        # the zones were put on the profile's steps here, after the verification
+        verdict = f"{verdict} (the zones before the relay profile's steps)"
     from relayset.inputs.study_file import parse_study
 
     study = parse_study(results.input, source=str(results.source_file))
