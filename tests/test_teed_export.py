@@ -75,11 +75,17 @@ def test_setting_files_per_end_validate_and_carry_the_teed_zones(exported):
                                   "verified (the zones before the relay profile's steps)")
         assert doc["ct_ratio"] == 120.0 and doc["vt_ratio"] == 1200.0
         vals = {r["id"]: r for r in doc["settings"]}
-        # read from the results, not set again: the zones' secondary reaches
-        assert vals["zone1.reach"]["ideal"] == pytest.approx(abs(e.zone1_secondary_ohm),
-                                                             rel=1e-12)
-        assert vals["zone2.reach"]["ideal"] == pytest.approx(abs(e.zone2_secondary_ohm),
-                                                             rel=1e-12)
+        # read from the results, not set again: their own settable values where they carry
+        # them, else the zones' secondary reaches as the values' ideal
+        if own:
+            assert doc["settings"] == [{**v.to_dict(), "value": v.settable,
+                                        "secondary": v.settable}
+                                       for v in e.settings.settable.values]
+        else:
+            assert vals["zone1.reach"]["ideal"] == pytest.approx(
+                abs(e.zone1_secondary_ohm), rel=1e-12)
+            assert vals["zone2.reach"]["ideal"] == pytest.approx(
+                abs(e.zone2_secondary_ohm), rel=1e-12)
         assert vals["zone1.reach"]["settable"] <= vals["zone1.reach"]["ideal"]
         assert vals["zone2.reach"]["settable"] >= vals["zone2.reach"]["ideal"]
         rows = list(csv.DictReader(io.StringIO(
