@@ -182,19 +182,19 @@ def test_varistor_state_current_is_what_its_impedance_lets_through(tmp_path, lev
 
 
 def test_notes_say_what_the_phasor_model_of_the_banks_leaves_out():
-    # Reviewer's finding: the reach study and the verification notes must say that the
-    # varistor state is one operating point with the same impedance in every phase (an
-    # unbalanced fault makes the varistors of the faulted phases alone conduct), and that
+    # Reviewer's finding: the reach study and the verification notes must say what the
+    # varistor state is (per fault type, each phase at its own current: in an unbalanced
+    # fault only the faulted phases' varistors conduct), and that
     # the fundamental-frequency phasors leave out the subsynchronous transient of a
     # compensated line, the known cause of zone 1 transient overreach there (common
     # practice, no source).
     res = _demo_reach()
     notes = " ".join(res.reach_study.series_capacitors["notes"])
-    for words in ("same impedance in every phase", "subsynchronous"):
+    for words in ("only the faulted phases' varistors conduct", "subsynchronous"):
         assert words in notes, words
     ver = pipeline.run(DEMO, settings=True).verification
     vnotes = " ".join(ver.notes)
-    for words in ("same impedance in every phase", "subsynchronous"):
+    for words in ("only the faulted phases' varistors conduct", "subsynchronous"):
         assert words in vnotes, words
 
 
