@@ -190,3 +190,26 @@ def test_bad_cable_refinement_is_one_line(capsys, tmp_path, variant, edit, words
     for w in words:
         assert w in err, err
     assert not out.exists()
+
+
+@pytest.mark.parametrize("towers", [True, False])
+def test_cable_only_line_is_refused_saying_why(capsys, tmp_path, variant, towers):
+    # A line of cable sections only is not modelled yet (the line model is built on an
+    # overhead cross-section): one line, exit 2, nothing written, and the refusal comes
+    # first (not a request for [towers] tables that could not help).
+    def edit(d):
+        d["line"]["length"] = "12 km"
+        d["line"]["sections"] = [
+            {"length": "6 km", "order": ["A", "B", "C"], "cable": "city_cable"},
+            {"length": "6 km", "order": ["B", "C", "A"], "cable": "city_cable"}]
+        if not towers:
+            d.pop("towers")
+
+    path = variant(DEMO, edit)
+    out = tmp_path / "out"
+    code = main(["report", str(path), "-o", str(out)])
+    err = capsys.readouterr().err.strip()
+    assert code == 2 and len(err.splitlines()) == 1, err
+    assert "line.sections" in err and "cable sections only is not modelled yet" in err, err
+    assert "overhead section's cross-section" in err
+    assert not out.exists()

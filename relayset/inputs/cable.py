@@ -353,12 +353,14 @@ def check_cables(study: Any, data: dict, fail: Callable[..., None]) -> None:
                  + suggest(sec.cable, cables), f"{field}.cable", sec.cable)
     if not used:
         return
+    if len(used) == len(sections):  # before asking for towers: none would help
+        fail("a line of cable sections only is not modelled yet: the line model is built on "
+             "an overhead section's cross-section, which this line does not have",
+             "line.sections")
+        return
     if not study.towers:
         fail("with cable sections, give the overhead sections' cross-sections as "
              "[towers.NAME] tables and a tower per overhead section", "towers")
-    if len(used) == len(sections):
-        fail("a line of cable sections only is not modelled: at least one section must be "
-             "overhead (tower = ...)", "line.sections")
     n_c = len(study.circuits)
     for name in dict.fromkeys(sections[s].cable for s in used):
         cable = cables[name]
