@@ -232,6 +232,14 @@ def test_study_sweep_uses_each_fault_types_phase_impedances():
     np.testing.assert_allclose(sw.v_s[1], ag.v_s[0], rtol=1e-12, atol=0)
     assert not np.allclose(basis.banks[0].varistor_z_ohm["AG"],
                            basis.banks[0].varistor_z_ohm["ABC"])
+    # the prefault state is the load flow's network (the cascade from with_state) for every
+    # fault type, as the replay of one case sees it
+    sw2 = solve_sweep(basis, "varistor", ln, s_s, s_r, fault_types=["AG", "BC"], **kw)
+    ref = network.solve_fault_sweep(ln, s_s, s_r, fault_types=["AG"], **kw)
+    for name in ("v_s_pre", "i_s_pre", "v_r_pre", "i_r_pre"):
+        np.testing.assert_allclose(getattr(sw2, name), getattr(ref, name), rtol=1e-12,
+                                   atol=0)
+    np.testing.assert_allclose(sw2.i_s[0], ag.i_s[0], rtol=1e-12, atol=0)
 
 
 def test_study_refuses_a_varistor_state_that_does_not_converge(monkeypatch, capsys, tmp_path):

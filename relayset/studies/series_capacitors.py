@@ -217,8 +217,9 @@ def solve_sweep(basis: CapacitorBasis | None, state: str, line: network.LineCasc
     """:func:`~relayset.physics.network.solve_fault_sweep` of ``line`` (a cascade from
     :func:`with_state`, or its circuits swapped) with the banks in ``state``: in the
     varistor state each fault type is solved with its own per-phase bank impedances and
-    the results are joined along the fault-type axis (the prefault quantities are those
-    of the first fault type's network; other states: one solve)."""
+    the results are joined along the fault-type axis; the prefault quantities are those of
+    ``line`` itself (the three-phase fault's elements: the load flow's network), for every
+    fault type alike (other states: one solve)."""
     fault_types = tuple(fault_types)
     if basis is None or state != "varistor" or not line.elements:
         return network.solve_fault_sweep(line, source_s, source_r, fault_types=fault_types,
@@ -230,13 +231,23 @@ def solve_sweep(basis: CapacitorBasis | None, state: str, line: network.LineCasc
             replace(e, z_ohm=new.z_ohm) for e, new in zip(line.elements, els, strict=True)))
         parts.append(network.solve_fault_sweep(ln, source_s, source_r, fault_types=[ft],
                                                **kw))
-    if len(parts) == 1:
-        return parts[0]
+    # The prefault state is the network of ``line`` (the three-phase fault's elements, the
+    # load flow's network, as the replay of one case sees it), whatever the fault types.
+    pre = next((p for p, ft in zip(parts, fault_types, strict=True) if ft == "ABC"), None)
+    if pre is None:
+        m0 = np.atleast_1d(np.asarray(kw["m"], dtype=float))[:1]
+        zb = kw.get("z_branch_ohm")
+        pre = network.solve_fault_sweep(
+            line, source_s, source_r, fault_types=fault_types[:1],
+            **(kw | {"m": m0, "outputs": (),
+                     "z_branch_ohm": None if zb is None else np.asarray(zb)[:1]}))
     names = ("v_s", "i_s", "i_s_parallel", "v_r", "i_r", "i_r_parallel", "v_f", "i_fault",
              "i_f_from_s", "i_f_from_r")
     joined = {k: np.concatenate([getattr(p, k) for p in parts])
               for k in names if getattr(parts[0], k) is not None}
-    return replace(parts[0], fault_types=fault_types, **joined)
+    prefault = {k: getattr(pre, k) for k in ("v_s_pre", "i_s_pre", "i_s_parallel_pre",
+                                             "v_r_pre", "i_r_pre", "emf_s_v", "emf_r_v")}
+    return replace(parts[0], fault_types=fault_types, **joined, **prefault)
 
 
 def _where(bank) -> str:
