@@ -307,3 +307,17 @@ def test_strongly_compensated_bank_converges_through_the_network(tmp_path):
         want = np.array(bank.varistor_i_a[ft])
         err = min(np.max(np.abs(s - want)) for s in sides)
         assert err <= 1e-5 * bank.i_protective_a, (ft, err)
+
+
+def test_json_names_fault_types_in_the_studys_phase_labels():
+    # The results JSON names fault types as everywhere else (the study's labels, "L1-G"),
+    # the phases in the order of the labels; an A-to-ground fault: only phase A conducts.
+    *_, basis = _demo_basis()
+    (bank,) = basis.banks
+    per = basis.to_dict()["banks"][0]["varistor_state"]["per_fault_type"]
+    assert set(per) == {"L1-G", "L2-G", "L3-G", "L1-L2", "L2-L3", "L3-L1", "L1-L2-G",
+                        "L2-L3-G", "L3-L1-G", "L1-L2-L3"}
+    ag = per["L1-G"]
+    assert ag["phase_varistor"] == ["conducting", "not_conducting", "not_conducting"]
+    assert ag["phase_current_a"] == list(bank.varistor_i_a["AG"])
+    assert ag["phase_impedance_ohm"][1] == [0.0, -bank.x_c_ohm]

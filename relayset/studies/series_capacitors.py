@@ -111,10 +111,17 @@ class Bank:
             return np.array(self.varistor_z_ohm[fault_type], dtype=complex)
         return np.full(3, {"in_service": -1j * self.x_c_ohm, "bypassed": 0j}[state])
 
-    def to_dict(self) -> dict[str, Any]:
-        """The bank as the results JSON writes it."""
+    def to_dict(self, labels: tuple[str, str, str] = ("A", "B", "C")) -> dict[str, Any]:
+        """The bank as the results JSON writes it: each fault type under its name in the
+        study's phase ``labels`` (e.g. "L1-G"), its phases in the order of the labels."""
+        from relayset.results.reach import fault_label
         from relayset.results.serialize import cplx
 
+        per_type = {fault_label(ft, labels): {
+            "phase_current_a": list(self.varistor_i_a[ft]),
+            "phase_impedance_ohm": [cplx(z) for z in zs],
+            "phase_varistor": list(self.varistor_status[ft])}
+            for ft, zs in self.varistor_z_ohm.items()}
         return {"name": self.name, "place": self.where, "at_fraction": self.at,
                 "reactance_ohm": self.x_c_ohm, "compensation_pct": self.compensation_pct,
                 "protective_level_current_a": self.i_protective_a,
@@ -123,11 +130,7 @@ class Bank:
                                    "current_pu_of_protective_level":
                                        self.i_close_in_a / self.i_protective_a,
                                    "impedance_ohm": cplx(self.z_varistor_ohm),
-                                   "per_fault_type": {
-                                       ft: {"phase_current_a": list(self.varistor_i_a[ft]),
-                                            "phase_impedance_ohm": [cplx(z) for z in zs],
-                                            "phase_varistor": list(self.varistor_status[ft])}
-                                       for ft, zs in self.varistor_z_ohm.items()}}}
+                                   "per_fault_type": per_type}}
 
 
 @dataclass(frozen=True)
@@ -161,6 +164,8 @@ class CapacitorBasis:
     #: the refusal of the varistor state (its operating point did not converge), raised
     #: where that state is solved, after the study's own checks of the banks
     varistor_error: InputError | None = None
+    #: the protected circuit's phase labels (how the JSON names fault types)
+    phase_labels: tuple[str, str, str] = ("A", "B", "C")
 
     def elements(self, n: int, state: str, fault_type: str = "ABC"
                  ) -> tuple[network.SeriesElement, ...]:
@@ -178,7 +183,7 @@ class CapacitorBasis:
         """The banks, states, Z1 with and without them and the inversion checks (JSON)."""
         from relayset.results.serialize import cplx
 
-        return {"banks": [b.to_dict() for b in self.banks],
+        return {"banks": [b.to_dict(self.phase_labels) for b in self.banks],
                 "states": {s: STATE_WORDS[s] for s in self.states},
                 "line_x1_ohm": self.x_line1_ohm,
                 "z1_line_ohm": cplx(self.z1_line_ohm),
@@ -302,7 +307,8 @@ def capacitor_basis(study, geo, params, line: network.LineCascade, src: dict,
         MODEL_LIMITS,
         *_per_phase_notes(basis, geo.phase_labels[0]),
     )
-    return replace(basis, z1_compensated_ohm=z_comp, inversions=inv, notes=notes)
+    return replace(basis, z1_compensated_ohm=z_comp, inversions=inv, notes=notes,
+                   phase_labels=tuple(geo.phase_labels[0]))
 
 
 def _per_phase_notes(basis: CapacitorBasis, labels) -> tuple[str, ...]:
