@@ -54,7 +54,7 @@ CASES = [
     ("only cable sections",
      lambda d: [s.update(cable="city_cable") or s.pop("tower", None)
                 for s in d["line"]["sections"]],
-     ["line.sections", "at least one section must be overhead"]),
+     ["line.sections", "cable sections only is not modelled yet"]),
 ]
 
 

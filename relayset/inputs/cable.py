@@ -25,8 +25,8 @@ from relayset.inputs.schema import KeyRuleError, spec
 #: (common practice, no source).
 MAX_DEPTH_M = 10.0
 
-#: Resistivity at 20 degC [ohm m] and its temperature coefficient [1/K]: IEC 60287-1-1,
-#: Table 1 (from memory).
+#: Resistivity at 20 degC [ohm m] and its temperature coefficient at 20 degC [1/K]:
+#: IEC 60287-1-1, Table 1 (values from memory); rho(T) = rho_20 (1 + alpha (T - 20)).
 MATERIALS: dict[str, tuple[float, float]] = {
     "copper": (1.7241e-8, 3.93e-3),
     "aluminium": (2.8264e-8, 4.03e-3),
@@ -106,6 +106,25 @@ def _res_per_length(v: Any) -> float:
 
 _Radius = _length(le=0.2)
 
+#: Longest plausible minor section of a cross-bonded cable [m] (some hundred metres to a
+#: few km between joint bays; common practice, no source).
+MAX_MINOR_SECTION_M = 5e3
+
+
+def _minor_sections(v: Any) -> tuple[float, float, float]:
+    """The three minor sections of a major section, e.g. ["480 m", "500 m", "520 m"]."""
+    if not isinstance(v, list) or len(v) != 3:
+        raise ValueError("must be a list of the three minor sections' lengths of a major "
+                         "section, like [\"480 m\", \"500 m\", \"520 m\"]")
+    out = []
+    for x in v:
+        q = units.parse_real(x, "length")
+        if not 0 < q <= MAX_MINOR_SECTION_M:
+            raise ValueError(f"each minor section must be above 0 m and at most "
+                             f"{MAX_MINOR_SECTION_M / 1e3:g} km (plausible range)")
+        out.append(q)
+    return tuple(out)
+
 
 def _offset(v: Any) -> float:
     x = units.parse_real(v, "length")
@@ -143,7 +162,10 @@ class Cable:
     core_cross_section: float | None = spec(_area, None)
     core_radius: float | None = spec(_Radius, None)
     core_dc_resistance: float | None = spec(_res_per_length, None)  #: at 20 degC
-    operating_temperature: float = spec(_temperature, 20.0)
+    operating_temperature: float = spec(_temperature, 20.0)  #: the core's [degC]
+    #: the sheath's (screen's) temperature [degC]; default the core's operating temperature
+    #: (an upper bound: the heat flows outwards from the core through the sheath)
+    sheath_temperature: float | None = spec(_temperature, None)
     #: The insulation proper (between the semiconducting screens); when given, its
     #: permittivity is corrected for the screens (Gustavsen et al. 2005).
     insulation_inner_radius: float | None = spec(_Radius, None)
@@ -152,6 +174,7 @@ class Cable:
     sheath_inner_radius: float = spec(_Radius)
     sheath_outer_radius: float = spec(_Radius)
     sheath_material: str | None = spec(schema.one_of(*SHEATH_MATERIALS), None)
+    #: or the sheath's resistivity at its temperature (taken as given, not corrected)
     sheath_resistivity: float | None = spec(_resistivity, None)
     jacket_outer_radius: float = spec(_Radius)
     #: Polyethylene oversheath about 2.3 (common practice, no source).
@@ -164,6 +187,9 @@ class Cable:
     #: single-point bonding: the earth continuity conductor that carries the return current
     earth_continuity_conductor: ContinuityConductorData | None = spec(
         schema.table(ContinuityConductorData), None)
+    #: cross-bonding: the lengths of the three minor sections of each major section, in
+    #: order (default three equal ones: the ideal cross-bonding)
+    minor_sections: tuple[float, float, float] | None = spec(_minor_sections, None)
 
     def _check(self) -> None:
         if self.core_radius is None and self.core_cross_section is None:
@@ -195,6 +221,9 @@ class Cable:
             raise KeyRuleError("earth_continuity_conductor", "goes with single-point bonding "
                                "(with both-ends or cross-bonding the sheaths carry the "
                                "return current)")
+        if self.minor_sections is not None and self.bonding != "cross_bonded":
+            raise KeyRuleError("minor_sections", "go with cross-bonding (bonding = "
+                               "\"cross_bonded\")")
         top = self.depth - (s / math.sqrt(3) if self.formation == "trefoil" else 0.0)
         if top - self.jacket_outer_radius <= 0:
             raise KeyRuleError("depth", "the cables would stick out of the ground (the "
@@ -228,11 +257,14 @@ class CableSection:
     position_names: tuple[str, str, str]
     notes: tuple[str, ...]
     ecc: Any = None  #: relayset.physics.cable.ContinuityConductor, or None
+    #: cross-bonding: the three minor sections' lengths [m] (None: three equal ones)
+    minor_sections_m: tuple[float, float, float] | None = None
 
     @property
     def return_paths_key(self) -> str:
         """The key of :data:`relayset.physics.cable.RETURN_PATHS` for this cable."""
-        return self.bonding + ("_ecc" if self.ecc is not None else "")
+        return self.bonding + ("_ecc" if self.ecc is not None else
+                               "_minor" if self.minor_sections_m is not None else "")
 
 
 def resolve(name: str, cable: Cable, n_circuits: int) -> CableSection:
@@ -249,10 +281,22 @@ def resolve(name: str, cable: Cable, n_circuits: int) -> CableSection:
     elif cable.core_cross_section is not None:
         rho20 = rho20 * math.pi * r1 * r1 / cable.core_cross_section
     rho_core = rho20 * (1 + alpha * (cable.operating_temperature - 20.0))
+    t_sheath = (cable.sheath_temperature if cable.sheath_temperature is not None
+                else cable.operating_temperature)
     if cable.sheath_resistivity is not None:
         rho_sheath = cable.sheath_resistivity
+        notes.append(f"Cable {name}: the sheath's resistivity as given "
+                     f"({cable.sheath_resistivity:.4g} ohm*m, taken at its temperature).")
     else:
-        rho_sheath = MATERIALS[cable.sheath_material][0]
+        s20, s_alpha = MATERIALS[cable.sheath_material]
+        rho_sheath = s20 * (1 + s_alpha * (t_sheath - 20.0))
+        notes.append(
+            f"Cable {name}: core at {cable.operating_temperature:g} degC, {cable.sheath_material} "
+            f"sheath at {t_sheath:g} degC"
+            + (" (the core's temperature: an upper bound, no sheath_temperature given)"
+               if cable.sheath_temperature is None else "")
+            + "; resistivities rho_20 (1 + alpha (T - 20)) with IEC 60287-1-1 Table 1 "
+            "(values from memory).")
     eps = cable.insulation_permittivity
     if cable.insulation_inner_radius is not None:
         # The semiconducting screens: the same capacitance between core and sheath with the
@@ -276,9 +320,15 @@ def resolve(name: str, cable: Cable, n_circuits: int) -> CableSection:
         notes.append(f"Cable {name}: earth continuity conductor {1e6 * e.cross_section:g} mm2 "
                      f"{e.material}, a solid round conductor at 20 degC, earthed at both "
                      "ends.")
+    if cable.minor_sections is not None:
+        ms = ", ".join(f"{x:g} m" for x in cable.minor_sections)
+        notes.append(f"Cable {name}: cross-bonded with minor sections of {ms}: each major "
+                     "section the cascade of its three minor sections with the sheaths "
+                     "rotated at each joint (the sheath of one position continuing in the "
+                     "next position of the formation's order), every major section alike.")
     return CableSection(name, design, cable.formation, cable.spacing_m, cable.depth,
                         cable.bonding, n_circuits, cable.circuit_spacing or 0.0, names,
-                        tuple(notes), ecc)
+                        tuple(notes), ecc, cable.minor_sections)
 
 
 def check_cables(study: Any, data: dict, fail: Callable[..., None]) -> None:
@@ -303,12 +353,14 @@ def check_cables(study: Any, data: dict, fail: Callable[..., None]) -> None:
                  + suggest(sec.cable, cables), f"{field}.cable", sec.cable)
     if not used:
         return
+    if len(used) == len(sections):  # before asking for towers: none would help
+        fail("a line of cable sections only is not modelled yet: the line model is built on "
+             "an overhead section's cross-section, which this line does not have",
+             "line.sections")
+        return
     if not study.towers:
         fail("with cable sections, give the overhead sections' cross-sections as "
              "[towers.NAME] tables and a tower per overhead section", "towers")
-    if len(used) == len(sections):
-        fail("a line of cable sections only is not modelled: at least one section must be "
-             "overhead (tower = ...)", "line.sections")
     n_c = len(study.circuits)
     for name in dict.fromkeys(sections[s].cable for s in used):
         cable = cables[name]
@@ -320,6 +372,13 @@ def check_cables(study: Any, data: dict, fail: Callable[..., None]) -> None:
         if n_c == 1 and cable.circuit_spacing is not None:
             fail("goes only with a double-circuit line", f"{field}.circuit_spacing",
                  raw.get("circuit_spacing"))
+        if cable.minor_sections is not None:
+            laid = math.fsum(sections[s].length for s in used if sections[s].cable == name)
+            major = math.fsum(cable.minor_sections)
+            if major > laid * (1 + 1e-9):
+                fail(f"the major section ({major:g} m, the sum of the minor sections) is "
+                     f"longer than the cable's sections in the line ({laid:g} m)",
+                     f"{field}.minor_sections", raw.get("minor_sections"))
         e = cable.earth_continuity_conductor
         if e is not None:  # laid beside the cables, not through one
             from relayset.physics.cable import cable_positions
@@ -387,8 +446,8 @@ def constructions(study: Any, names: tuple[str, ...]
             f"numerically over homogeneous earth of the study's resistivity{upper}); shunt "
             "admittance of the insulation with the sheaths at earth potential; the core a "
             "solid round conductor (skin effect of a solid core, no proximity effect); the "
-            "core's resistivity at its operating temperature, the sheath's at 20 degC (a warm "
-            "sheath's higher resistance raises R0 of sheath-return bondings by some %).")
+            "core's and the sheath's resistivities at their temperatures (a warm sheath's "
+            "higher resistance raises R0 of sheath-return bondings).")
     from relayset.physics.cable import RETURN_PATHS
 
     for cs in resolved:

@@ -19,7 +19,11 @@ overhead section's:
   the sheaths rotated at each cross-bonding point and earthed at the major-section ends. Over
   a major section each sheath circuit runs once through every position of its circuit, so its
   impedances are the averages over the three positions; the sheath circuits are then
-  eliminated by Kron reduction (return through the sheath circuits and the earth).
+  eliminated by Kron reduction (return through the sheath circuits and the earth). With
+  unequal minor sections of given lengths the major section is the cascade of its three
+  minor sections, the sheaths rotated at each joint (:func:`cross_bonded_cascade`): their
+  series impedances in the sheath circuits' variables add, each minor section weighted by
+  its length; equal lengths give the ideal average.
 
 References
 ----------
@@ -62,6 +66,10 @@ RETURN_PATHS: dict[str, str] = {
     "cross_bonded": "the cross-bonded sheath circuits (ideal cross-bonding: three equal minor "
                     "sections, sheaths earthed at the major-section ends, earthing resistances "
                     "neglected) in parallel with the earth",
+    "cross_bonded_minor": "the cross-bonded sheath circuits (the three minor sections of the "
+                          "given lengths cascaded with the sheath rotations, sheaths earthed "
+                          "at the major-section ends, earthing resistances neglected) in "
+                          "parallel with the earth",
 }
 
 
@@ -402,13 +410,64 @@ def cross_bonded_average(z: np.ndarray, n_circuits: int) -> np.ndarray:
     return out
 
 
-def bonded_core_matrices(z: np.ndarray, y: np.ndarray, bonding: str, n_circuits: int
-                         ) -> tuple[np.ndarray, np.ndarray]:
+def cross_bonded_cascade(z: np.ndarray, n_circuits: int, minor_lengths_m) -> np.ndarray:
+    r"""The cores and the sheath circuits of a cross-bonded major section made of three
+    minor sections of given lengths, per unit length of the major section [ohm/m].
+
+    In minor section s (length :math:`\ell_s`) sheath circuit k of a circuit lies in
+    position :math:`(k + s) \bmod 3` (the sheath of position p continues in position
+    p + 1 after each joint; the cores stay in place). With :math:`T_s` that permutation
+    of the sheaths, the minor section's matrix in the circuits' variables is
+    :math:`T_s^{\mathsf T} Z T_s`, and the series impedances of the minor sections, which
+    carry the same circuit currents one after the other, add:
+
+    .. math::
+
+        \bar Z = \frac{1}{\sum_s \ell_s}\sum_s \ell_s\, T_s^{\mathsf T} Z\, T_s
+
+    Exact for the series impedance; the shunt admittance inside a major section (a few
+    hundred metres to a few km, against a wavelength of some thousand km) is left to the
+    cable's shunt model, as for the ideal average (:func:`cross_bonded_average`, to which
+    equal lengths reduce).
+
+    Parameters
+    ----------
+    z : (2n, 2n) complex ndarray
+        Cores then sheaths [ohm/m], ``n = 3 n_circuits``.
+    n_circuits : int
+        Number of three-phase circuits.
+    minor_lengths_m : sequence of 3 float
+        The minor sections' lengths in order [m], > 0.
+
+    Returns
+    -------
+    (2n, 2n) complex ndarray
+        The cores, then the sheath circuits [ohm/m].
+    """
+    n = 3 * n_circuits
+    w = np.asarray(minor_lengths_m, dtype=float)
+    if w.shape != (3,) or not np.all(w > 0):
+        raise ValueError("three positive minor-section lengths")
+    w = w / w.sum()
+    out = np.zeros_like(z, dtype=complex)
+    for s in range(3):
+        # conductor order of minor section s in the circuits' variables: the cores, then
+        # sheath circuit k at position (k + s) mod 3 of its circuit
+        idx = np.concatenate([np.arange(n), n + np.array(
+            [3 * (k // 3) + (k % 3 + s) % 3 for k in range(n)])])
+        out += w[s] * z[np.ix_(idx, idx)]
+    return out
+
+
+def bonded_core_matrices(z: np.ndarray, y: np.ndarray, bonding: str, n_circuits: int,
+                         minor_lengths_m=None) -> tuple[np.ndarray, np.ndarray]:
     """The cores' series impedance [ohm/m] and shunt admittance [S/m] for a sheath bonding.
 
     ``both_ends``: Kron reduction of the sheaths (zero sheath voltage);
     ``single_point``: the core submatrix (zero sheath current); ``cross_bonded``: Kron
-    reduction of the averaged sheath circuits (:func:`cross_bonded_average`). The shunt
+    reduction of the averaged sheath circuits (:func:`cross_bonded_average`; with
+    ``minor_lengths_m``, the cascade of unequal minor sections,
+    :func:`cross_bonded_cascade`). The shunt
     admittance holds the sheaths at earth potential for every bonding (the standing sheath
     voltage of single-point and cross-bonding is a few hundred volts at most at load
     current: common practice, no source), so it is the core submatrix of ``y``.
@@ -428,7 +487,8 @@ def bonded_core_matrices(z: np.ndarray, y: np.ndarray, bonding: str, n_circuits:
     elif bonding == "single_point":
         zc = z[:n, :n].copy()
     elif bonding == "cross_bonded":
-        zc = kron_reduce(cross_bonded_average(z, n_circuits), n)
+        zc = kron_reduce(cross_bonded_average(z, n_circuits) if minor_lengths_m is None
+                         else cross_bonded_cascade(z, n_circuits, minor_lengths_m), n)
     else:
         raise ValueError(f"unknown bonding {bonding}")
     yc = y[:n, :n].copy()
@@ -478,18 +538,21 @@ def cable_section_matrices(design: CableDesign, formation: str, spacing_m: float
                            depth_m: float, bonding: str, frequency_hz: float,
                            resistivity_ohm_m: float, n_circuits: int = 1,
                            circuit_spacing_m: float = 0.0,
-                           ecc: ContinuityConductor | None = None
-                           ) -> tuple[np.ndarray, np.ndarray]:
+                           ecc: ContinuityConductor | None = None,
+                           minor_lengths_m=None) -> tuple[np.ndarray, np.ndarray]:
     """Series impedance [ohm/m] and shunt admittance [S/m] of a cable section by position.
 
     The cores in position order (:func:`cable_positions`), sheaths eliminated by their
     bonding (:func:`bonded_core_matrices`): the ``(3 n_circuits)``-square matrices that an
     overhead section's tower gives. ``ecc`` (single-point bonding only): an earth
-    continuity conductor (:func:`with_continuity_conductor`).
+    continuity conductor (:func:`with_continuity_conductor`). ``minor_lengths_m``
+    (cross-bonding only): the three minor sections' lengths [m] (None: equal).
     """
+    if minor_lengths_m is not None and bonding != "cross_bonded":
+        raise ValueError("minor sections go with cross-bonding")
     x, d, _ = cable_positions(formation, spacing_m, depth_m, n_circuits, circuit_spacing_m)
     z, y = primitive_matrices(design, x, d, frequency_hz, resistivity_ohm_m)
-    zc, yc = bonded_core_matrices(z, y, bonding, n_circuits)
+    zc, yc = bonded_core_matrices(z, y, bonding, n_circuits, minor_lengths_m)
     if ecc is not None:
         if bonding != "single_point":
             raise ValueError("an earth continuity conductor goes with single-point bonding")

@@ -81,7 +81,7 @@ def construction_matrices(geo: LineGeometry, k: int) -> tuple[np.ndarray, np.nda
     return cable_section_matrices(
         cable.design, cable.formation, cable.spacing_m, cable.depth_m, cable.bonding,
         geo.frequency_hz, geo.resistivity_ohm_m, cable.n_circuits, cable.circuit_spacing_m,
-        cable.ecc)
+        cable.ecc, cable.minor_sections_m)
 
 
 def _cable_summaries(geo: LineGeometry, z_towers, y_towers) -> tuple[CableSummary, ...]:

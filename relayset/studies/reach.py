@@ -37,7 +37,12 @@ from relayset.results.serialize import cplx
 from relayset.settings.zone1 import compensated_zone1_pct, recommended_zone1_pct
 from relayset.studies.geometry import LineGeometry
 from relayset.studies.parameters import plan_sections, section_stack
-from relayset.studies.series_capacitors import capacitor_basis, describe_state, with_state
+from relayset.studies.series_capacitors import (
+    capacitor_basis,
+    describe_state,
+    solve_sweep,
+    with_state,
+)
 
 LOOPS = measurement.LOOPS
 
@@ -244,8 +249,9 @@ def run_reach_study(
                 emf = _emfs_for_power_flows(study, line, src, names, ends[0], scales, state,
                                             geo.v_nominal_v, corridor)
                 for start in range(0, m.size, m_chunk):
-                    sw = network.solve_fault_sweep(
-                        line, src[names[0]], src[names[1]], v_nominal_v=geo.v_nominal_v,
+                    sw = solve_sweep(
+                        caps, cap, line, src[names[0]], src[names[1]],
+                        v_nominal_v=geo.v_nominal_v,
                         fault_types=rs.fault_types, m=m[start:start + m_chunk],
                         r_fault_ohm=rf, r_phase_ohm=rs.phase_fault_resistance,
                         source_scale=scales, transfer_angle_rad=angles,

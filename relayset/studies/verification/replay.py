@@ -39,6 +39,7 @@ from relayset.physics.faults import FAULT_TYPES
 from relayset.results.reach import fault_label, loop_label
 from relayset.results.settings import SettingsResult
 from relayset.results.verification import VerificationCase
+from relayset.studies.series_capacitors import solve_sweep
 
 #: Relative agreement of the re-solved loop impedance with the verification's [1]: the
 #: same solver on a batch of one (floating-point rounding only).
@@ -239,8 +240,9 @@ class CaseSolver:
                         e = load_emfs(self._envelope, ln, src, names, relay_end, sc,
                                       emf_state, v_nom, corridor)
                         emf = (e[0], e[1])
-                    sw = network.solve_fault_sweep(
-                        ln, s_s, s_r, v_nominal_v=v_nom, fault_types=(ft,),
+                    sw = solve_sweep(
+                        self._caps, case.capacitor_state or "", ln, s_s, s_r,
+                        v_nominal_v=v_nom, fault_types=(ft,),
                         m=np.array([m]), r_fault_ohm=np.array([case.r_fault_ohm]),
                         r_phase_ohm=np.array([case.r_phase_ohm]), source_scale=sc,
                         transfer_angle_rad=np.zeros(1), parallel_state=solved, emf_v=emf,

@@ -25,7 +25,7 @@ from relayset.physics import network
 from relayset.results.parameters import LineParameters
 from relayset.studies.geometry import LineGeometry
 from relayset.studies.reach import build_source, emfs_for_flows_at, line_cascade
-from relayset.studies.series_capacitors import capacitor_basis, with_state
+from relayset.studies.series_capacitors import capacitor_basis, solve_sweep, with_state
 from relayset.studies.verification.envelope import SEQUENTIAL_M, Envelope, FaultGroup
 
 #: Per-case results the relay model reads (both ends, both circuits, the currents into the
@@ -319,8 +319,8 @@ def simulate(study: Study, geo: LineGeometry, params_by_rho: dict[float, LinePar
                     for g in (groups if not open_at else
                               [g for g in groups if g.name != "phase"]):
                         try:
-                            sw = network.solve_fault_sweep(
-                                ln, s_s, s_r, v_nominal_v=geo.v_nominal_v,
+                            sw = solve_sweep(
+                                caps, cap, ln, s_s, s_r, v_nominal_v=geo.v_nominal_v,
                                 fault_types=g.fault_types, m=np.asarray(m_job),
                                 r_fault_ohm=g.rf_pairs[:, 0], r_phase_ohm=g.rf_pairs[:, 1],
                                 source_scale=scales, transfer_angle_rad=np.zeros(1),
@@ -411,8 +411,8 @@ def _branch_runs(study, geo, params_by_rho, env, names, src, configs, groups, re
                 emf_t = (emf[0], emf[1])
             for g in (groups if state == "in_service" else (bolted,)):
                 try:
-                    sw = network.solve_fault_sweep(
-                        line, s_s, s_r, v_nominal_v=geo.v_nominal_v,
+                    sw = solve_sweep(
+                        caps, cap, line, s_s, s_r, v_nominal_v=geo.v_nominal_v,
                         fault_types=g.fault_types, m=m, r_fault_ohm=g.rf_pairs[:, 0],
                         r_phase_ohm=g.rf_pairs[:, 1], source_scale=scales,
                         transfer_angle_rad=np.zeros(1), parallel_state=state, emf_v=emf_t,
