@@ -1,16 +1,17 @@
 """Shared corridors: the rules of a ``[[neighbours]]`` table and its stretch along the line.
 
-A neighbouring line runs beside the protected line over one stretch of its route, with its
-own buses and sources. On that stretch its conductors hang on the corridor's cross-section
-(positions from the protected line's tower centre line) and are mutually coupled with the
-protected line; outside it they are not there at all. relayset models it as circuit 2 of
-the six-conductor fault solver (:class:`relayset.physics.network.NeighbourEnd`): coupled
-6x6 matrices over the shared stretch, zero-impedance connectors elsewhere, and its routes
+A neighbouring line runs beside the protected line (one or two circuits) over one stretch
+of its route, with its own buses and sources. On that stretch its conductors hang on the
+corridor's cross-section (positions from the protected line's tower centre line) and are
+mutually coupled with the protected line and with every other neighbour there; outside it
+they are not there at all. relayset models each neighbour as one more circuit of the fault
+solver after the protected line's (:class:`relayset.physics.network.NeighbourEnd`): coupled
+matrices over the shared stretches, zero-impedance connectors elsewhere, and its routes
 outside the corridor lumped into its terminals.
 
 This module holds what the file says (checked here, one line per defect) in SI:
 :func:`check_neighbours` (called by :func:`relayset.inputs.study_file.check_study`) and
-:func:`corridor_of` (the neighbour's stretch, buses and routes).
+:func:`corridors_of` (each neighbour's stretch, buses and routes).
 """
 
 from __future__ import annotations
@@ -42,6 +43,7 @@ class Corridor:
     route_z0_ohm_per_m: complex | None
     sources: dict[str, SourceData]  #: its own buses' sources
     table: Neighbour  #: the table as read (positions, shield wires)
+    index: int = 0  #: its place in [[neighbours]] (field names neighbours[index])
 
     @property
     def shared_length_m(self) -> float:
@@ -54,19 +56,26 @@ def _sections(study: Study) -> list[float]:
     return [s.length for s in secs] if secs else [study.line.length]
 
 
-def corridor_of(study: Study) -> Corridor | None:
-    """The study's neighbouring line (None without one); the file was checked on reading."""
-    if not study.neighbours:
-        return None
-    nb = study.neighbours[0]
-    start, end = _stretch(study, 0)
-    end = min(end, study.line.length)  # within the rounding the check allows
+def corridors_of(study: Study) -> tuple[Corridor, ...]:
+    """The study's neighbouring lines, in the file's order; the file was checked on
+    reading."""
     ends = study.ends
-    return Corridor(
-        name=nb.name, start_m=float(start), end_m=float(end), buses=nb.buses,
-        on_line_bus=(nb.buses[0] == ends[0], nb.buses[1] == ends[1]),
-        route_lengths_m=nb.route_lengths, route_z1_ohm_per_m=nb.route_z1,
-        route_z0_ohm_per_m=nb.route_z0, sources=dict(nb.sources), table=nb)
+    out = []
+    for j, nb in enumerate(study.neighbours):
+        start, end = _stretch(study, j)
+        end = min(end, study.line.length)  # within the rounding the check allows
+        out.append(Corridor(
+            name=nb.name, start_m=float(start), end_m=float(end), buses=nb.buses,
+            on_line_bus=(nb.buses[0] == ends[0], nb.buses[1] == ends[1]),
+            route_lengths_m=nb.route_lengths, route_z1_ohm_per_m=nb.route_z1,
+            route_z0_ohm_per_m=nb.route_z0, sources=dict(nb.sources), table=nb, index=j))
+    return tuple(out)
+
+
+def corridor_of(study: Study) -> Corridor | None:
+    """The study's first neighbouring line (None without one)."""
+    cors = corridors_of(study)
+    return cors[0] if cors else None
 
 
 def _shared_sections(study: Study, j: int) -> list[int]:
@@ -110,9 +119,10 @@ def check_neighbours(study: Study, data: dict, fail: Callable[..., None]) -> Non
         def raw(*path: Any, j=j) -> Any:
             return _raw(data, "neighbours", j, *path)
 
-        if len(study.circuits) != 1:
-            fail("a neighbouring line is modelled beside a single-circuit line only (six "
-                 "conductors in all); this line has two circuits", f"{at}.name", nb.name)
+        for k, other in enumerate(study.neighbours[:j]):
+            if other.name == nb.name:
+                fail(f"is the name of neighbours[{k}] too: each neighbouring line is named "
+                     "once (its states are reported by name)", f"{at}.name", nb.name)
         lengths = _sections(study)
         if nb.sections is not None:
             for k, s in enumerate(nb.sections):
@@ -134,8 +144,8 @@ def check_neighbours(study: Study, data: dict, fail: Callable[..., None]) -> Non
                      "the line", f"{at}.length", raw("length"))
         # Its conductors must hang somewhere else than the protected line's (on the towers
         # of the stretch it shares).
-        own = [(f"circuits[0].positions[{k}]", p) for k, p in
-               enumerate(study.circuits[0].positions)]
+        own = [(f"circuits[{c}].positions[{k}]", p) for c, circ in enumerate(study.circuits)
+               for k, p in enumerate(circ.positions)]
         secs = study.line.sections or ()
         for k in _shared_sections(study, j):
             if secs[k].cable is not None:
@@ -154,6 +164,19 @@ def check_neighbours(study: Study, data: dict, fail: Callable[..., None]) -> Non
                          "the neighbour's positions on the corridor's cross-section, from "
                          "the protected line's tower centre line", f"{at}.positions[{k}].x",
                          raw("positions", k, "x"))
+        # ... and elsewhere than another neighbour's where their stretches overlap.
+        a0, a1 = _stretch(study, j)
+        for i, other in enumerate(study.neighbours[:j]):
+            b0, b1 = _stretch(study, i)
+            if min(a1, b1) - max(a0, b0) <= 1e-9 * study.line.length:
+                continue
+            for k, p in enumerate(nb.positions):
+                for kk, q in enumerate(other.positions):
+                    if math.hypot(p.x - q.x, p.mean_height_m - q.mean_height_m) < COINCIDENT_M:
+                        fail(f"coincides with neighbours[{i}].positions[{kk}], where both "
+                             "neighbours run beside the line; give each its own place on "
+                             "the corridor's cross-section", f"{at}.positions[{k}].x",
+                             raw("positions", k, "x"))
         # Buses: each end on the protected line's bus at that side or on a bus of its own.
         b0, b1 = nb.buses
         if b0 == b1:

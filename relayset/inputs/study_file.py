@@ -743,6 +743,12 @@ RouteLength = _quantity("length", ge=0, le=3e6, show=("km", 1e3))
 ZPerLength = _complex_quantity("resistance_per_length", min_abs=1e-7, max_abs=0.1)
 
 
+#: Most neighbouring lines of one study: each is one more circuit of the fault solver, and
+#: its states multiply the reach study's and the verification's solves (see
+#: relayset.studies.corridor.neighbour_combinations).
+MAX_NEIGHBOURS = 4
+
+
 @_table
 class Neighbour:
     """``[[neighbours]]``: another line beside this one over part of its route (a shared
@@ -823,7 +829,7 @@ class Study:
                                                  factory=FaultResistanceData)
     deviations: tuple[Deviation, ...] = spec(ListOf(table(Deviation), what="deviations"), ())
     neighbours: tuple[Neighbour, ...] = spec(ListOf(
-        table(Neighbour), max_items=1, what="neighbouring lines"), ())
+        table(Neighbour), max_items=MAX_NEIGHBOURS, what="neighbouring lines"), ())
     #: series capacitor banks in the line (relayset.inputs.series_capacitor)
     series_capacitors: tuple[SeriesCapacitor, ...] = spec(ListOf(
         table(SeriesCapacitor), max_items=MAX_SERIES_CAPACITORS, what="banks"), ())
