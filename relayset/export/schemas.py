@@ -47,7 +47,8 @@ def _neighbours() -> dict[str, Any]:
     from relayset.inputs.study_file import MAX_NEIGHBOURS, Neighbour
 
     return {"type": "array", "maxItems": MAX_NEIGHBOURS, "items": {
-        "type": "object", "required": ["name", "positions", "buses"],
+        "type": "object", "required": ["name"],
+        "anyOf": [{"required": ["positions", "buses"]}, {"required": ["study"]}],
         "properties": {**_tables(Neighbour),
                        "positions": {"type": "array", "minItems": 3, "maxItems": 3,
                                      "items": {"type": "object"}},

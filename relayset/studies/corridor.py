@@ -290,6 +290,9 @@ def neighbour_ends(study, params, source: str) -> tuple[
                                       nbp.route_z0_ohm_per_m * ln)
             if nbp.on_line_bus[k]:
                 pair.append(network.NeighbourEnd(z, on_line_bus=True))
+            elif cor.file is not None:  # its own study file's source (messages name it)
+                pair.append(network.NeighbourEnd(z, source_from_data(
+                    study, cor.sources[bus], f"sources.{bus}", cor.file.path)))
             else:
                 pair.append(network.NeighbourEnd(z, source_from_data(
                     study, cor.sources[bus], f"neighbours[{j}].sources.{bus}", source)))

@@ -97,8 +97,8 @@ def _conductor_props(study: Study, name: str, source: str) -> dict:
     return props
 
 
-def build_geometry(study: Study, source: str = "<study>") -> LineGeometry:
-    """Place every wire, resolve conductor data and check the geometry and the section plan."""
+def _conductor_resolver(study: Study, source: str):
+    """The conductor data of a [conductor_types] name of ``study``, resolved once."""
     f_hz = study.system.frequency
     resolved: dict[str, cond.ConductorData] = {}
 
@@ -117,6 +117,13 @@ def build_geometry(study: Study, source: str = "<study>") -> LineGeometry:
             )
         return resolved[name]
 
+    return conductor
+
+
+def build_geometry(study: Study, source: str = "<study>") -> LineGeometry:
+    """Place every wire, resolve conductor data and check the geometry and the section plan."""
+    f_hz = study.system.frequency
+    conductor = _conductor_resolver(study, source)
     assumptions = [
         "Conductor height is the average over the span, h - 2/3 * sag (parabolic sag).",
         _earth_assumption(study.system),
@@ -278,7 +285,18 @@ def _neighbour_assumption(corridor) -> str:
             "series impedances (their shunt capacitance neglected) and couple with nothing; "
             "its own buses' EMFs are those of the protected line's sources at the same side "
             "(it carries load the same way) and its sources keep their impedance in every "
-            "source case.")
+            "source case." + _neighbour_file_note(corridor.table))
+
+
+def _neighbour_file_note(nb) -> str:
+    """Where a neighbour given by its own study file came from (provenance)."""
+    f = nb.file
+    if f is None:
+        return ""
+    place = (f"its tower centre line {nb.offset:g} m from this line's" if nb.offset
+             else "on the shared towers (x as in that file)")
+    return (f" Its conductors, cross-section and sources are read from {nb.study} (SHA-256 "
+            f"{f.sha256}), {place}, its phases as that file's first section places them.")
 
 
 def _place_wires(study: Study, circuits, shield_wires, shield_field: str, conductor,
@@ -338,12 +356,18 @@ def _place_neighbour(study: Study, corridor, tower_wires, section_towers, conduc
                      source: str, n_c: int = 1, placed=()) -> tuple[Wire, ...]:
     """A neighbouring line's wires on the corridor's cross-section, checked above ground
     and clear of the protected line's wires on every tower of its shared stretch, and of
-    the wires of the neighbours ``placed`` before it where their stretches overlap."""
+    the wires of the neighbours ``placed`` before it where their stretches overlap. A
+    neighbour from its own study file takes that file's conductors (its messages name that
+    file and its fields)."""
+    main_source = source
     nb = corridor.table
     j = corridor.index
+    f = nb.file  # its own study file: its conductors and fields are that file's
+    if f is not None:
+        conductor, source = _conductor_resolver(f.study, f.path), f.path
     out: list[Wire] = []
     for k, pos in enumerate(nb.positions):
-        field = f"neighbours[{j}].positions[{k}]"
+        field = f"neighbours[{j}].positions[{k}]" if f is None else f.position_fields[k]
         data = conductor(pos.conductor, f"{field}.conductor")
         offsets = np.zeros((1, 2))
         if pos.bundle is not None and pos.bundle.count > 1:
@@ -355,7 +379,7 @@ def _place_neighbour(study: Study, corridor, tower_wires, section_towers, conduc
                             f"neighbour {nb.name}, phase {'ABC'[k]}"
                             + (f", subconductor {s + 1}" if len(offsets) > 1 else ""), field))
     for k, sw in enumerate(nb.shield_wires):
-        field = f"neighbours[{j}].shield_wires[{k}]"
+        field = f"neighbours[{j}].shield_wires[{k}]" if f is None else f"shield_wires[{k}]"
         data = conductor(sw.conductor, f"{field}.conductor")
         out.append(Wire(sw.x, sw.mean_height_m, data, "shield", 1000 * (j + 1) + k,
                         f"neighbour {nb.name}, shield wire {sw.name or k + 1}", field,
@@ -376,6 +400,12 @@ def _place_neighbour(study: Study, corridor, tower_wires, section_towers, conduc
             for b in [*tower_wires[t], *beside, *out[i + 1:]]:
                 d = math.hypot(a.x_m - b.x_m, a.y_m - b.y_m)
                 if d <= a.conductor.radius_m + b.conductor.radius_m + _MIN_CLEARANCE_M:
+                    if f is not None and b not in out:  # its place is this file's offset
+                        key = "offset" if nb.offset is not None else "study"
+                        raise InputError(
+                            f"places {a.label} ({f.path}: {a.field}) over {b.label} "
+                            f"({b.field}); centres {d:.3f} m apart", field=f"neighbours[{j}]."
+                            f"{key}", value=corridor.raw_place, source=main_source)
                     raise InputError(f"overlaps {b.label} ({b.field}); centres {d:.3f} m apart",
                                      field=a.field, value=a.label, source=source)
     return tuple(out)
