@@ -109,6 +109,7 @@ LINES = {"double+1": DOUBLE_ONE, "single+2": SINGLE_TWO, "double+2": DOUBLE_TWO}
 ENDS = [
     (NeighbourEnd(ROUTE_X, SRC_X), NeighbourEnd(ROUTE_Y, SRC_Y)),  # buses of its own
     (NeighbourEnd(ROUTE_Y, on_line_bus=True), NeighbourEnd(ROUTE_X)),  # on S, open at R
+    (NeighbourEnd(ZERO), NeighbourEnd(ROUTE_X, on_line_bus=True)),  # open at S, on R
 ]
 
 
@@ -144,7 +145,9 @@ def test_multi_circuit_sweep_equals_reference(key, par, nb_states, shunt, fault_
     # largest voltage or current, as in test_network.
     circ, shared = LINES[key]
     line = cascade(circ, shared, shunt)
-    nbs = tuple(ENDS[j % 2] for j in range(len(nb_states)))
+    # each kind of terminal for each neighbour, in turn over the cases
+    k = CASES.index((key, par, nb_states, shunt, fault_circuit))
+    nbs = tuple(ENDS[(j + k) % len(ENDS)] for j in range(len(nb_states)))
     rng = np.random.default_rng(7 + len(CASES) % 5 + fault_circuit + 3 * shunt
                                 + len(par) + sum(map(len, nb_states)))
     m = np.concatenate([[0.0, 0.2, 0.7, 1.0], rng.uniform(0, 1, 2)])
@@ -235,9 +238,9 @@ def test_neighbour_order_does_not_matter():
     p = [0, 1, 2, 6, 7, 8, 3, 4, 5]
     swapped = LineCascade(line.z_ohm_per_m[:, p][:, :, p], LENGTHS,
                           line.y_s_per_m[:, p][:, :, p])
-    a = solve_fault_sweep(line, SRC_S, SRC_R, neighbours=ENDS,
+    a = solve_fault_sweep(line, SRC_S, SRC_R, neighbours=ENDS[:2],
                           neighbour_states=("earthed", "in_service"), **KW)
-    b = solve_fault_sweep(swapped, SRC_S, SRC_R, neighbours=ENDS[::-1],
+    b = solve_fault_sweep(swapped, SRC_S, SRC_R, neighbours=ENDS[1::-1],
                           neighbour_states=("in_service", "earthed"), **KW)
     _same(a, b, ("v_s", "i_s", "v_r", "i_r", "v_f", "i_fault"))
 
