@@ -100,6 +100,8 @@ def solve_fault_single(
     z_branch_ohm: np.ndarray | None = None,
     neighbour: tuple | None = None,
     fault_circuit: int = 1,
+    neighbours: tuple | None = None,
+    neighbour_states: tuple | None = None,
 ) -> FaultCase:
     """Solve one fault case by plain modified nodal analysis [3]_ (reference for tests).
 
@@ -117,13 +119,28 @@ def solve_fault_single(
     2 is a line on buses of its own, stamped as a coupled route branch (V_from - V_to =
     Z I) from its bus (the line's bus, a bus of its own behind its source with the EMF of
     the line's source at that end, or ground when earthed) to the line's end nodes;
-    ``fault_circuit`` 2 faults circuit 2.
+    ``fault_circuit`` 2 faults circuit 2. ``neighbours`` (pairs of ends) and
+    ``neighbour_states``: any number of neighbours, the last circuits of the line (after
+    the protected line's one or two), each stamped that way in its own state; the line
+    has n = 3k conductors. ``fault_circuit`` c faults circuit c (1-based).
 
     Returns
     -------
     FaultCase
     """
-    _check_state(line, parallel_state, None, open_end=True)
+    if neighbour is not None:  # the older form: circuit 2 of six, in parallel_state
+        neighbours, neighbour_states = (neighbour,), (parallel_state,)
+        parallel_state = "in_service"
+    neighbours = tuple(neighbours or ())
+    neighbour_states = tuple(neighbour_states or ("in_service",) * len(neighbours))
+    n_circ = line.n_conductors // 3
+    has_par = n_circ - len(neighbours) == 2
+    if not has_par and n_circ != len(neighbours) + 1:
+        raise InputError("one pair of ends per neighbour", field="neighbours")
+    if not has_par and parallel_state != "in_service":
+        raise InputError("no parallel circuit", field="parallel_state", value=parallel_state)
+    if n_circ <= 2:
+        _check_state(line, parallel_state, None, open_end=True)
     _check_sources(source_s, source_r, None)
     m_arr = _check_locations(m, None)
     if m_arr.size != 1:
@@ -171,12 +188,12 @@ def solve_fault_single(
     bus_s, bus_r = n_line, n_line + 3
     n_nodes = n_line + 6 + (3 if z_branch_ohm is not None else 0)
     branch_nodes = [n_line + 6 + c for c in range(3)]
-    nb_bus = {}  # end -> first node of the neighbour's own bus
-    if neighbour is not None:
-        for end, nb in enumerate(neighbour):
-            if (parallel_state == "in_service" and not nb.on_line_bus
-                    and nb.source is not None):
-                nb_bus[end] = n_nodes
+    first_nb = 2 if has_par else 1  # 0-based circuit of the first neighbour
+    nb_bus = {}  # (end, neighbour) -> first node of that neighbour's own bus
+    for jn, (ends_j, st_j) in enumerate(zip(neighbours, neighbour_states, strict=True)):
+        for end, nb in enumerate(ends_j):
+            if st_j == "in_service" and not nb.on_line_bus and nb.source is not None:
+                nb_bus[end, jn] = n_nodes
                 n_nodes += 3
 
     def node(j: int, c: int) -> int:
@@ -185,7 +202,7 @@ def solve_fault_single(
     # Branches: (from node or -1 for ground, to node or -1, impedance or None, emf)
     # "Ammeter" branch: V_to - V_from = 0. Source branch: V_bus + Zs I = E, I into bus.
     branches: list[tuple[str, list[int], list[int]]] = []
-    ct = {"s1": [], "s2": [], "r1": [], "r2": []}
+    ct = {f"{e}{c}": [] for e in "sr" for c in range(1, n_circ + 1)}
     last = n_pos - 1
 
     def add_ammeter(key: str, frm: list[int], to: list[int]) -> None:
@@ -204,20 +221,22 @@ def solve_fault_single(
         routes.append((len(branches), np.asarray(z_route, dtype=complex)))
         add_ammeter(key, frm, to)
 
-    if n == 6 and neighbour is not None:
-        for end, (key, j) in enumerate((("s2", 0), ("r2", last))):
-            nb = neighbour[end]
-            to = [node(j, 3 + c) for c in range(3)]
+    for jn, (ends_j, st_j) in enumerate(zip(neighbours, neighbour_states, strict=True)):
+        cn = first_nb + jn  # 0-based circuit
+        for end, j in enumerate((0, last)):
+            nb = ends_j[end]
+            key = f"{'sr'[end]}{cn + 1}"
+            to = [node(j, 3 * cn + c) for c in range(3)]
             line_bus = (bus_s, bus_r)[end]
-            if parallel_state == "in_service" and nb.on_line_bus:
+            if st_j == "in_service" and nb.on_line_bus:
                 add_route(key, [line_bus + c for c in range(3)], to, nb.z_route_ohm)
-            elif end in nb_bus:
-                add_route(key, [nb_bus[end] + c for c in range(3)], to, nb.z_route_ohm)
-            elif parallel_state == "earthed":
+            elif (end, jn) in nb_bus:
+                add_route(key, [nb_bus[end, jn] + c for c in range(3)], to, nb.z_route_ohm)
+            elif st_j == "earthed":
                 add_route(key, [-1] * 3, to, nb.z_route_ohm)
-            elif end == 0 and y is None:  # floating, series only: tie it (no current path)
-                add_ammeter(key, [-1] * 3, to)
-    elif n == 6:
+            elif st_j == "isolated" and end == 0 and y is None:
+                add_ammeter(key, [-1] * 3, to)  # floating, series only: no current path
+    if has_par:
         if parallel_state in ("in_service", "faulted_open_at_s", "faulted_open_at_r"):
             add_ammeter("s2", [bus_s + c for c in range(3)], [node(0, 3 + c) for c in range(3)])
             add_ammeter("r2", [bus_r + c for c in range(3)],
@@ -231,8 +250,9 @@ def solve_fault_single(
     for bus, source, k, emf in ((bus_s, source_s, 0, e_s), (bus_r, source_r, 1, e_r)):
         if source is not None:
             src.append((bus, source.phase_matrix(scale[k]), emf))
-        if k in nb_bus:  # the neighbour's own source: not scaled, the same EMF
-            src.append((nb_bus[k], neighbour[k].source.phase_matrix(), emf))
+        for jn, ends_j in enumerate(neighbours):  # its own source: not scaled, same EMF
+            if (k, jn) in nb_bus:
+                src.append((nb_bus[k, jn], ends_j[k].source.phase_matrix(), emf))
     n_unk = n_nodes + n_amm + 3 * len(src) + 3
     mat = np.zeros((n_unk, n_unk), dtype=complex)
     rhs = np.zeros(n_unk, dtype=complex)
@@ -287,14 +307,14 @@ def solve_fault_single(
     volt = sol[:n_nodes]
 
     def current(key: str) -> np.ndarray:
-        idx = ct[key]
+        idx = ct.get(key)
         return sol[[n_nodes + i for i in idx]] if idx else np.zeros(3, dtype=complex)
 
     def seg_currents(j: int) -> np.ndarray:
         idx = [node(j, c) for c in range(n)] + [node(j + 1, c) for c in range(n)]
         return seg_y[j] @ volt[idx]  # into the segment at its S end (:n) and R end (n:)
 
-    end_s, end_r = ("s1", "r1") if fault_circuit == 1 else ("s2", "r2")
+    end_s, end_r = f"s{fault_circuit}", f"r{fault_circuit}"
     i_from_s = -seg_currents(j_f - 1)[n + off:n + off + 3] if j_f > 0 else current(end_s)
     i_from_r = -seg_currents(j_f)[off:off + 3] if j_f < last else current(end_r)
     v_s, v_r = volt[bus_s:bus_s + 3], volt[bus_r:bus_r + 3]

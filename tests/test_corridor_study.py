@@ -197,19 +197,10 @@ def test_bad_neighbour_is_one_line(change, message):
     assert message in text, text
 
 
-def test_double_circuit_with_neighbour_is_refused():
-    data = tables(DEMO / "elsford_fallowby_230kv_double.toml")
-    data["neighbours"] = [dict(tables()["neighbours"][0],
-                               buses=[data["study"]["from_substation"],
-                                      data["study"]["to_substation"]],
-                               sources={}, sections=[0])]
-    with pytest.raises(InputError, match="single-circuit line only"):
-        parse_study(tomllib.loads(dump_toml(data)), "t.toml")
-
-
 def test_study_schema_covers_the_neighbour_table():
     # Checked with the registry's jsonschema (Draft 2020-12 validator): the demo with a
-    # neighbour validates; a misspelt key in [[neighbours]] and a second neighbour do not.
+    # neighbour validates; a misspelt key in [[neighbours]] and more neighbours than
+    # MAX_NEIGHBOURS do not.
     import jsonschema
 
     from relayset.export.schemas import study_schema
@@ -222,10 +213,14 @@ def test_study_schema_covers_the_neighbour_table():
     bad["neighbours"][0]["route_lenghts"] = ["1 km", "2 km"]
     with pytest.raises(jsonschema.ValidationError):
         jsonschema.Draft202012Validator(schema).validate(bad)
-    two = json_ready(tables())
-    two["neighbours"] *= 2
+    from relayset.inputs.study_file import MAX_NEIGHBOURS
+
+    many = json_ready(tables())
+    many["neighbours"] *= MAX_NEIGHBOURS
+    jsonschema.Draft202012Validator(schema).validate(many)
+    many["neighbours"] *= 2
     with pytest.raises(jsonschema.ValidationError):
-        jsonschema.Draft202012Validator(schema).validate(two)
+        jsonschema.Draft202012Validator(schema).validate(many)
 
 
 def json_ready(data):

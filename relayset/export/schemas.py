@@ -42,12 +42,13 @@ def study_schema() -> dict[str, Any]:
 
 
 def _neighbours() -> dict[str, Any]:
-    """``[[neighbours]]``: one neighbouring line in a shared corridor (its keys; the values
-    are checked by relayset)."""
-    from relayset.inputs.study_file import Neighbour
+    """``[[neighbours]]``: the neighbouring lines in shared corridors (their keys; the
+    values are checked by relayset)."""
+    from relayset.inputs.study_file import MAX_NEIGHBOURS, Neighbour
 
-    return {"type": "array", "maxItems": 1, "items": {
-        "type": "object", "required": ["name", "positions", "buses"],
+    return {"type": "array", "maxItems": MAX_NEIGHBOURS, "items": {
+        "type": "object", "required": ["name"],
+        "anyOf": [{"required": ["positions", "buses"]}, {"required": ["study"]}],
         "properties": {**_tables(Neighbour),
                        "positions": {"type": "array", "minItems": 3, "maxItems": 3,
                                      "items": {"type": "object"}},

@@ -10,6 +10,7 @@ fields of one table together are its ``_check`` method, rules across tables
 
 from __future__ import annotations
 
+import dataclasses
 import datetime as dt
 import math
 import re
@@ -740,7 +741,14 @@ class Deviation:
 
 
 RouteLength = _quantity("length", ge=0, le=3e6, show=("km", 1e3))
+NeighbourOffset = _quantity("length", ge=-1000.0, le=1000.0)
 ZPerLength = _complex_quantity("resistance_per_length", min_abs=1e-7, max_abs=0.1)
+
+
+#: Most neighbouring lines of one study: each is one more circuit of the fault solver, and
+#: its states multiply the reach study's and the verification's solves (see
+#: relayset.studies.corridor.neighbour_combinations).
+MAX_NEIGHBOURS = 4
 
 
 @_table
@@ -750,8 +758,8 @@ class Neighbour:
 
     name: str = spec(_text(200, min_len=1))
     #: its three phases (A, B, C in this order) on the corridor's cross-section, x from the
-    #: protected line's tower centre line
-    positions: tuple[Position, ...] = spec(ListOf(table(Position), _three_positions))
+    #: protected line's tower centre line (or from its own study file: ``study``)
+    positions: tuple[Position, ...] = spec(ListOf(table(Position), _three_positions), ())
     shield_wires: tuple[ShieldWire, ...] = spec(ListOf(
         table(ShieldWire), max_items=limits.MAX_SHIELD_WIRES, what="shield wires"), ())
     #: the protected line's sections it runs beside (as numbered in line.sections[k]) ...
@@ -761,7 +769,9 @@ class Neighbour:
     start: float | None = spec(RouteLength, None)
     length: float | None = spec(LineLength, None)
     #: its bus beside the from-substation's side and beside the to-substation's side
-    buses: tuple[str, str] = spec(TupleOf(_text(100, min_len=1), _text(100, min_len=1)))
+    #: (default with ``study``: that file's from- and to-substation)
+    buses: tuple[str, str] = spec(TupleOf(_text(100, min_len=1), _text(100, min_len=1)),
+                                  None)
     #: its route outside the corridor at each end (to each bus)
     route_lengths: tuple[float, float] = spec(TupleOf(RouteLength, RouteLength), (0.0, 0.0))
     #: Z1 and Z0 per length of those routes (default: its own, from the corridor)
@@ -769,8 +779,29 @@ class Neighbour:
     route_z0: complex | None = spec(ZPerLength, None)
     #: the sources of its own buses (not needed for a bus of the protected line)
     sources: dict[str, SourceData] = spec(MapOf(table(SourceData), _text(100)), factory=dict)
+    #: its own study file (a path relative to this file's folder), giving its conductors,
+    #: cross-section and sources instead of positions, shield_wires and sources
+    study: str | None = spec(_path_text, None)
+    #: with ``study``: its tower centre line's distance from this line's, added to the x of
+    #: its file's positions (default 0 m: on the shared towers, x as in its file)
+    offset: float | None = spec(NeighbourOffset, None)
+    #: that file as read (relayset.inputs.corridor.NeighbourFile; set on reading, not a key)
+    file: Any = dataclasses.field(default=None, compare=False, repr=False)
 
     def _check(self) -> None:
+        if self.study is not None:
+            for key in ("positions", "shield_wires", "sources"):
+                if getattr(self, key):
+                    raise KeyRuleError(key, "comes from its study file (study): give one or "
+                                       "the other")
+        else:
+            if not self.positions:
+                raise ValueError("give its three positions, or its own study file as study")
+            if self.buses is None:
+                raise ValueError("give its two buses (buses), or its own study file as study")
+            if self.offset is not None:
+                raise KeyRuleError("offset", "goes with study (its own study file's "
+                                   "cross-section)")
         if self.sections is None and self.start is None:
             raise ValueError("give the sections it runs beside, or start and length")
         if self.sections is not None and (self.start is not None or self.length is not None):
@@ -823,7 +854,7 @@ class Study:
                                                  factory=FaultResistanceData)
     deviations: tuple[Deviation, ...] = spec(ListOf(table(Deviation), what="deviations"), ())
     neighbours: tuple[Neighbour, ...] = spec(ListOf(
-        table(Neighbour), max_items=1, what="neighbouring lines"), ())
+        table(Neighbour), max_items=MAX_NEIGHBOURS, what="neighbouring lines"), ())
     #: series capacitor banks in the line (relayset.inputs.series_capacitor)
     series_capacitors: tuple[SeriesCapacitor, ...] = spec(ListOf(
         table(SeriesCapacitor), max_items=MAX_SERIES_CAPACITORS, what="banks"), ())
@@ -986,6 +1017,11 @@ def parse_study(data: dict, source: str = "<study>") -> Study:
     if study.schema_ != SCHEMA:
         raise InputError(f"unsupported schema; this version reads {quote(SCHEMA)}",
                          field="schema", value=study.schema_, source=source)
+    if any(nb.study is not None for nb in study.neighbours):
+        # a neighbour's own study file: read (hostile until then) before the rules
+        from relayset.inputs.corridor import read_neighbour_files
+
+        study = read_neighbour_files(study, data, source)
     check_study(study, data, source)
     return study
 

@@ -3,8 +3,11 @@ r"""Phase-domain short-circuit solver for a two-ended, single- or double-circuit
 The network is bus S -- protected line -- bus R. Each bus has a Thevenin source (balanced
 EMF behind a balanced 3x3 phase impedance built from Z1 and Z0) or no source (open end).
 The line is a cascade of sections, each given as a series impedance matrix per metre (and
-optionally a shunt admittance matrix per metre), already in phase order. With six
-conductors, conductors 0-2 are circuit 1 (the faulted one) and 3-5 are circuit 2.
+optionally a shunt admittance matrix per metre), already in phase order. With n = 3k
+conductors, conductors 0-2 are circuit 1 (the protected one), 3-5 circuit 2 and so on:
+circuit 2 is the parallel circuit of a double-circuit line, and every circuit after the
+protected line's is a neighbouring line on buses of its own (a shared corridor,
+:class:`NeighbourEnd`; without a parallel circuit the first neighbour is circuit 2).
 
 Method
 ------
@@ -21,7 +24,8 @@ stay finite for zero length, faults at m = 0 and m = 1 need no special case.
 
 Each line end obeys n linear terminal equations :math:`G_v V + G_i I = g` (source
 :math:`V + Z_s I = E`, open end :math:`I = 0`, earthed end :math:`V = 0`, both circuits
-on one bus :math:`V_1 = V_2`). With the chain matrices these become equations in the
+on one bus :math:`V_1 = V_2`, a neighbour's route to a bus :math:`V_1 - V_j = Z_{route}
+I_j`). With the chain matrices these become equations in the
 voltages and currents at the fault point; together with Kirchhoff's current law there
 they give a 3n x 3n linear system per (location, source case). One batched solve yields
 the prefault state for every load case and the response to a unit fault current injected
@@ -71,7 +75,9 @@ __all__ = [
 ]
 
 PARALLEL_STATES: tuple[str, ...] = ("in_service", "earthed", "isolated")
-#: Sequential clearing (six-conductor lines, fault solver only): both circuits in service
+#: Most circuits in one cascade (the protected line's one or two and its neighbours).
+MAX_CIRCUITS = 8
+#: Sequential clearing (double-circuit lines, fault solver only): both circuits in service
 #: but the faulted circuit 1 open at bus S, or at bus R (its breaker there has tripped);
 #: circuit 2 stays on both buses. Circuit 1's current at the open end is zero.
 OPEN_END_STATES: tuple[str, ...] = ("faulted_open_at_s", "faulted_open_at_r")
@@ -271,8 +277,8 @@ class LineCascade:
     Parameters
     ----------
     z_ohm_per_m : (S, n, n) complex array
-        Series impedance matrix of each section [ohm/m]; n = 3 (A, B, C) or n = 6
-        (circuit 1 A, B, C then circuit 2 A, B, C). Symmetric (reciprocal line).
+        Series impedance matrix of each section [ohm/m]; n = 3k: circuit 1 A, B, C, then
+        circuit 2 A, B, C and so on (see the module notes). Symmetric (reciprocal line).
     length_m : (S,) float array
         Section lengths [m], > 0, in order from bus S to bus R.
     y_s_per_m : (S, n, n) complex array, optional
@@ -290,9 +296,11 @@ class LineCascade:
         z = np.array(self.z_ohm_per_m, dtype=complex)
         if z.ndim == 2:
             z = z[None]
-        if z.ndim != 3 or z.shape[1] != z.shape[2] or z.shape[1] not in (3, 6):
+        if (z.ndim != 3 or z.shape[1] != z.shape[2] or z.shape[1] % 3
+                or not 3 <= z.shape[1] <= 3 * MAX_CIRCUITS):
             raise InputError(
-                "series impedance must have shape (sections, n, n) with n = 3 or 6",
+                "series impedance must have shape (sections, n, n) with n = 3k conductors "
+                f"(k circuits, 1 to {MAX_CIRCUITS})",
                 field="z_ohm_per_m",
                 value=z.shape,
             )
@@ -331,7 +339,7 @@ class LineCascade:
 
     @property
     def n_conductors(self) -> int:
-        """Number of phase conductors n (3 or 6)."""
+        """Number of phase conductors n (3k for k circuits)."""
         return int(self.z_ohm_per_m.shape[1])
 
     @property
@@ -524,17 +532,19 @@ def _emfs(
     return e_s, e_r
 
 
-def _vt_line_side(line: LineCascade, t: np.ndarray, n: int, m: np.ndarray) -> None:
+def _vt_line_side(line: LineCascade, t: np.ndarray, n: int, m: np.ndarray,
+                  idx: np.ndarray) -> None:
     """Rows of the end voltages moved to the line side of a bus element whose relay VT is
     there (in place on the result rows ``t``, unknowns ``x = [V_F, I_L, I_R]``). For a
     fault beyond the element the current into the line flows through it first:
     :math:`V_{line} = V_{bus} - Z_e I`. For a fault at the bus (between the current
     transformer and the element) the element carries the current from the line into the
-    fault: :math:`V_{line} = V_F + Z_e I_{R}` at S (:math:`V_F + Z_e I_{L}` at R)."""
+    fault: :math:`V_{line} = V_F + Z_e I_{R}` at S (:math:`V_F + Z_e I_{L}` at R). ``idx``:
+    the conductors solved."""
     for el in line.elements:
         if not el.vt_line_side:
             continue
-        ze = el.z_ohm[:n, :n]
+        ze = el.z_ohm[np.ix_(idx, idx)]
         at_s = el.at == 0.0
         v0, i0 = (0, n) if at_s else (2 * n, 3 * n)
         bus = (m == 0.0) if at_s else (m == 1.0)
@@ -545,14 +555,15 @@ def _vt_line_side(line: LineCascade, t: np.ndarray, n: int, m: np.ndarray) -> No
         t[bus, v0:v0 + n, c0:c0 + n] = ze
 
 
-def _line_matrices(line: LineCascade, parallel_state: str) -> tuple[np.ndarray, np.ndarray | None]:
-    """Series/shunt matrices actually solved. Series-only with circuit 2 isolated: circuit 2
-    carries no current (no closed path) and its floating voltages are of no interest, so
-    it is dropped."""
-    z, y = line.z_ohm_per_m, line.y_s_per_m
-    if line.n_conductors == 6 and parallel_state == "isolated" and y is None:
-        return z[:, :3, :3], None
-    return z, y
+def _kept_circuits(line: LineCascade, states: Sequence[str], faulted: int) -> list[int]:
+    """The circuits actually solved (0-based), ``states`` the state of each circuit after
+    the first. Series-only, an isolated circuit other than the faulted one carries no
+    current (no closed path: no charging, both ends open) and its floating voltages are of
+    no interest, so it is dropped (exact: its zero current induces nothing)."""
+    if line.y_s_per_m is not None:
+        return list(range(len(states) + 1))
+    return [0] + [c + 1 for c, st in enumerate(states)
+                  if st != "isolated" or c + 1 == faulted]
 
 
 # --------------------------------------------------------------------------------------
@@ -567,87 +578,128 @@ def _terminal(
     emf: np.ndarray,
     z_ref: float,
     neighbour: NeighbourEnd | None = None,
+    *,
+    circuits: Sequence[tuple[str, NeighbourEnd | None]] | None = None,
 ) -> tuple[np.ndarray, np.ndarray]:
     """Terminal equations ``G @ [V; I] = g`` at one line end.
 
     Parameters: z_src (K, 3, 3) or None (open end), emf (K, L, 3). Returns G (K, n, 2n)
     and g (K, L, n). Current-only rows are multiplied by ``z_ref`` [ohm] so that every row
-    is in volts (better pivoting). ``state`` "open" (six conductors): circuit 1's breaker
-    at this end is open (I1 = 0) and circuit 2 alone is on the bus. ``neighbour`` (six
-    conductors): circuit 2 is a neighbouring line on its own buses (see
-    :class:`NeighbourEnd`), ``state`` its state.
+    is in volts (better pivoting).
+
+    ``circuits`` gives, for every circuit after circuit 1 (n/3 - 1 of them), its state and
+    its :class:`NeighbourEnd` at this end (None: the parallel circuit, on this bus when in
+    service). ``state`` "open": circuit 1's breaker at this end is open (I1 = 0) and the
+    parallel circuit alone is on the bus. Without ``circuits`` (the older form): six
+    conductors take circuit 2 as the parallel circuit in ``state``, or as ``neighbour``
+    in ``state`` where one is given.
     """
+    if circuits is None:
+        if n == 3:
+            circuits = ()
+        elif neighbour is not None:
+            circuits, state = ((state, neighbour),), "in_service"
+        else:
+            circuits = (("in_service" if state == "open" else state, None),)
     n_k, n_l = emf.shape[:2]
     g_mat = np.zeros((n_k, n, 2 * n), dtype=complex)
     g_vec = np.zeros((n_k, n_l, n), dtype=complex)
     eye = np.eye(3)
-    c1 = slice(0, 3)  # rows and columns of circuit 1
-    if n == 6 and neighbour is not None:
-        return _neighbour_terminal(g_mat, g_vec, state, z_src, emf, z_ref, neighbour)
-    if n == 6 and state == "open":
-        g_mat[:, c1, 6:9] = z_ref * eye  # I1 = 0: the faulted circuit's breaker is open
-        if z_src is None:
-            g_mat[:, 3:, 9:12] = z_ref * eye  # I2 = 0
-        else:
-            g_mat[:, 3:, 3:6] = eye  # V2 + Zs I2 = E
-            g_mat[:, 3:, 9:12] = z_src
-            g_vec[..., 3:] = emf
-        return g_mat, g_vec
-    if n == 6 and state == "in_service":
-        g_mat[:, 3:, 0:3] = eye  # V1 - V2 = 0: both circuits on the bus
-        g_mat[:, 3:, 3:6] = -eye
-        if z_src is None:
-            g_mat[:, c1, 6:9] = z_ref * eye  # I1 + I2 = 0
-            g_mat[:, c1, 9:12] = z_ref * eye
-        else:
-            g_mat[:, c1, 0:3] = eye  # V1 + Zs (I1 + I2) = E
-            g_mat[:, c1, 6:9] = z_src
-            g_mat[:, c1, 9:12] = z_src
-            g_vec[..., c1] = emf
-        return g_mat, g_vec
-    if z_src is None:
-        g_mat[:, c1, n:n + 3] = z_ref * eye
-    else:
-        g_mat[:, c1, 0:3] = eye
-        g_mat[:, c1, n:n + 3] = z_src
-        g_vec[..., c1] = emf
-    if n == 6:
-        if state == "earthed":
-            g_mat[:, 3:, 3:6] = eye  # V2 = 0
-        else:
-            g_mat[:, 3:, 9:12] = z_ref * eye  # isolated: I2 = 0
+
+    def v(c: int) -> slice:  # columns of circuit c's voltages (0-based circuit)
+        return slice(3 * c, 3 * c + 3)
+
+    def i(c: int) -> slice:  # columns of its currents
+        return slice(n + 3 * c, n + 3 * c + 3)
+
+    # Circuits on the bus itself (circuit 1 unless its breaker is open, the parallel
+    # circuit in service) and neighbours tied to it through their routes.
+    on_bus = [0] if state != "open" else []
+    tied = []
+    for c, (st, nb) in enumerate(circuits, start=1):
+        if nb is None and st == "in_service":
+            on_bus.append(c)
+        elif nb is not None and nb.on_line_bus and st == "in_service":
+            tied.append(c)
+    ref = on_bus[0]
+    if z_src is None:  # no source: the currents into the bus sum to zero
+        for c in on_bus + tied:
+            g_mat[:, v(ref), i(c)] = z_ref * eye
+    else:  # V_bus + Zs (sum of I) = E
+        g_mat[:, v(ref), v(ref)] = eye
+        for c in on_bus + tied:
+            g_mat[:, v(ref), i(c)] = z_src
+        g_vec[..., v(ref)] = emf
+    if state == "open":
+        g_mat[:, v(0), i(0)] = z_ref * eye  # I1 = 0: the faulted circuit's breaker is open
+    for c in on_bus[1:]:  # V_bus - V_c = 0
+        g_mat[:, v(c), v(ref)] = eye
+        g_mat[:, v(c), v(c)] = -eye
+    for c, (st, nb) in enumerate(circuits, start=1):
+        if c in on_bus:
+            continue
+        if c in tied:  # V_bus - V_c - Z_route I_c = 0
+            g_mat[:, v(c), v(ref)] = eye
+            g_mat[:, v(c), v(c)] = -eye
+            g_mat[:, v(c), i(c)] = -nb.z_route_ohm
+        elif nb is None:  # the parallel circuit out: earthed V = 0, isolated I = 0
+            if st == "earthed":
+                g_mat[:, v(c), v(c)] = eye
+            else:
+                g_mat[:, v(c), i(c)] = z_ref * eye
+        elif st == "earthed":  # earthed at its own terminals, beyond its route
+            g_mat[:, v(c), v(c)] = eye
+            g_mat[:, v(c), i(c)] = nb.z_route_ohm
+        elif st == "in_service" and nb.source is not None:  # V + (Z_route + Zs') I = E
+            g_mat[:, v(c), v(c)] = eye
+            g_mat[:, v(c), i(c)] = nb.z_route_ohm + nb.source.phase_matrix()
+            g_vec[..., v(c)] = emf
+        else:  # isolated, or an open end
+            g_mat[:, v(c), i(c)] = z_ref * eye
     return g_mat, g_vec
 
 
-def _neighbour_terminal(g_mat, g_vec, state, z_src, emf, z_ref, nb: NeighbourEnd):
-    """Rows of :func:`_terminal` where circuit 2 is a neighbouring line (its own buses)."""
-    eye = np.eye(3)
-    zr = nb.z_route_ohm
-    tie = nb.on_line_bus and state == "in_service"  # both circuits on this bus
-    if z_src is None:
-        g_mat[:, :3, 6:9] = z_ref * eye  # I1 (+ I2) = 0: no source on the bus
-        if tie:
-            g_mat[:, :3, 9:12] = z_ref * eye
-    else:
-        g_mat[:, :3, 0:3] = eye  # V1 + Zs (I1 [+ I2]) = E
-        g_mat[:, :3, 6:9] = z_src
-        if tie:
-            g_mat[:, :3, 9:12] = z_src
-        g_vec[..., :3] = emf
-    if tie:  # the bus voltage V1 = V2 + Z_route I2
-        g_mat[:, 3:, 0:3] = eye
-        g_mat[:, 3:, 3:6] = -eye
-        g_mat[:, 3:, 9:12] = -zr
-    elif state == "earthed":  # earthed at its own terminals, beyond its route
-        g_mat[:, 3:, 3:6] = eye
-        g_mat[:, 3:, 9:12] = zr
-    elif state == "in_service" and nb.source is not None:  # V2 + (Z_route + Zs') I2 = E
-        g_mat[:, 3:, 3:6] = eye
-        g_mat[:, 3:, 9:12] = zr + nb.source.phase_matrix()
-        g_vec[..., 3:] = emf
-    else:  # isolated, or an open end
-        g_mat[:, 3:, 9:12] = z_ref * eye
-    return g_mat, g_vec
+def _circuit_states(
+    line: LineCascade,
+    parallel_state: str,
+    neighbour: tuple[NeighbourEnd, NeighbourEnd] | None,
+    neighbours: Sequence[tuple[NeighbourEnd, NeighbourEnd]] | None,
+    neighbour_states: Sequence[str] | None,
+    fn: Mapping[str, str] | None,
+) -> tuple[str, list[tuple[str, tuple[NeighbourEnd, NeighbourEnd] | None]]]:
+    """The state of circuit 1 (in service, or open at one end) and, per later circuit, its
+    state and its ends (None: the parallel circuit), from the solver's arguments."""
+    k = len(line.z_ohm_per_m[0]) // 3
+    if neighbour is not None:  # the older form: circuit 2 of six is the neighbour
+        if neighbours is not None:
+            raise InputError("give neighbour or neighbours, not both",
+                             field=_name("neighbour", fn))
+        if k != 2 or len(neighbour) != 2 or parallel_state not in PARALLEL_STATES:
+            raise InputError("a neighbouring line is circuit 2 of a six-conductor cascade, "
+                             "in one of the states " + ", ".join(PARALLEL_STATES),
+                             field=_name("neighbour", fn), value=parallel_state)
+        neighbours, neighbour_states, parallel_state = (neighbour,), (parallel_state,), \
+            "in_service"
+    nbs = tuple(neighbours or ())
+    sts = tuple(neighbour_states or ("in_service",) * len(nbs))
+    n_par = k - 1 - len(nbs)
+    if n_par not in (0, 1) or len(sts) != len(nbs) or any(len(e) != 2 for e in nbs):
+        raise InputError(f"{k} circuit(s): the protected line's one or two and one pair of "
+                         "ends and one state per neighbouring line",
+                         field=_name("neighbours", fn), value=len(nbs))
+    for st in sts:
+        if st not in PARALLEL_STATES:
+            raise InputError("unknown neighbour state; use one of "
+                             + ", ".join(PARALLEL_STATES) + suggest(str(st), PARALLEL_STATES),
+                             field=_name("neighbour_states", fn), value=st)
+    if n_par == 0 and parallel_state != "in_service":
+        raise InputError("a single-circuit line has no parallel circuit; leave the state at "
+                         "its default", field=_name("parallel_state", fn),
+                         value=parallel_state)
+    first = parallel_state if parallel_state in OPEN_END_STATES else "in_service"
+    par = "in_service" if parallel_state in OPEN_END_STATES else parallel_state
+    later: list = [(par, None)] * n_par + list(zip(sts, nbs, strict=True))
+    return first, later
 
 
 def solve_fault_sweep(
@@ -669,6 +721,8 @@ def solve_fault_sweep(
     z_branch_ohm: np.ndarray | None = None,
     neighbour: tuple[NeighbourEnd, NeighbourEnd] | None = None,
     fault_circuit: int = 1,
+    neighbours: Sequence[tuple[NeighbourEnd, NeighbourEnd]] | None = None,
+    neighbour_states: Sequence[str] | None = None,
 ) -> FaultSweep:
     """Solve every combination of fault type, location, resistance, source and load case.
 
@@ -696,7 +750,8 @@ def solve_fault_sweep(
         Load cases: angle by which the S EMF leads the R EMF [rad] (positive: power flows
         S to R). Both EMFs have the nominal magnitude.
     parallel_state : str
-        Circuit 2 state (six-conductor lines only): one of :data:`PARALLEL_STATES`, or
+        The parallel circuit's state (double-circuit lines only): one of
+        :data:`PARALLEL_STATES`, or
         one of :data:`OPEN_END_STATES` (sequential clearing: both circuits in service,
         the faulted circuit 1 open at one end). The EMFs are then those given (e.g. of the
         load flow with both circuits closed): the sources do not change while a breaker
@@ -719,13 +774,19 @@ def solve_fault_sweep(
         constraints see the Thevenin matrix :math:`Z_{th} + Z_b`. ``v_f`` stays the line
         point's voltage; ``i_fault`` is the branch current into the fault.
     neighbour : (NeighbourEnd, NeighbourEnd), optional
-        Six conductors only: circuit 2 is a neighbouring line on its own buses (a shared
-        corridor), at the S end and at the R end of the cascade; ``parallel_state`` is
-        its state (:data:`PARALLEL_STATES`). The relay quantities stay circuit 1's.
+        Six conductors only (the older form of ``neighbours``): circuit 2 is a neighbouring
+        line on its own buses (a shared corridor), at the S end and at the R end of the
+        cascade; ``parallel_state`` is its state (:data:`PARALLEL_STATES`).
     fault_circuit : int
-        1 (default) or 2: the circuit faulted at ``m`` (2: circuit 2 in service, e.g. a
+        The circuit faulted at ``m``, 1 (default) to n/3 (a later one: in service, e.g. a
         neighbouring line's fault, external to the protected circuit 1). ``v_f``,
-        ``i_f_from_s`` and ``i_f_from_r`` are then circuit 2's.
+        ``i_f_from_s`` and ``i_f_from_r`` are then that circuit's.
+    neighbours : sequence of (NeighbourEnd, NeighbourEnd), optional
+        The neighbouring lines (shared corridors), one pair of ends (S, R) each: the last
+        circuits of the cascade in this order, after the protected line's one or two.
+        The relay quantities stay circuit 1's; ``i_*_parallel`` are circuit 2's.
+    neighbour_states : sequence of str, optional
+        The state of each neighbour (:data:`PARALLEL_STATES`; default all in service).
 
     Returns
     -------
@@ -733,7 +794,11 @@ def solve_fault_sweep(
         Arrays with axes (fault_type, m, r_fault, source_case, load_case, phase).
     """
     fn = field_names
-    _check_state(line, parallel_state, fn, open_end=True)
+    known = PARALLEL_STATES + OPEN_END_STATES
+    if parallel_state not in known:
+        _check_state(line, parallel_state, fn, open_end=True)
+    first, later = _circuit_states(line, parallel_state, neighbour, neighbours,
+                                   neighbour_states, fn)
     _check_sources(source_s, source_r, fn)
     ftypes = tuple(fault_types)
     if not ftypes:
@@ -750,18 +815,20 @@ def solve_fault_sweep(
     scale = _check_scale(source_scale, fn)
     e_s, e_r = _emfs(v_nominal_v, transfer_angle_rad, emf_v, scale.shape[0], fn)
     z_b = None if z_branch_ohm is None else _check_branch(z_branch_ohm, m.size, fn)
-    if neighbour is not None and (line.n_conductors != 6 or len(neighbour) != 2
-                                  or parallel_state not in PARALLEL_STATES):
-        raise InputError("a neighbouring line is circuit 2 of a six-conductor cascade, in "
-                         "one of the states " + ", ".join(PARALLEL_STATES),
-                         field=_name("neighbour", fn), value=parallel_state)
-    if fault_circuit not in (1, 2) or (fault_circuit == 2 and (
-            line.n_conductors != 6 or parallel_state != "in_service")):
-        raise InputError("the faulted circuit is 1, or 2 of a six-conductor line in service",
-                         field=_name("fault_circuit", fn), value=fault_circuit)
+    n_circ = len(later) + 1
+    if (not isinstance(fault_circuit, (int, np.integer)) or not 1 <= fault_circuit <= n_circ
+            or (fault_circuit > 1 and later[fault_circuit - 2][0] != "in_service")):
+        raise InputError(f"the faulted circuit is 1, or another of the {n_circ} circuits "
+                         "in service", field=_name("fault_circuit", fn), value=fault_circuit)
 
-    z, y = _line_matrices(line, parallel_state)
+    kept = _kept_circuits(line, [st for st, _nb in later], fault_circuit - 1)
+    idx = np.array([3 * c + p for c in kept for p in range(3)])
+    z, y = line.z_ohm_per_m, line.y_s_per_m
+    if len(kept) < n_circ:
+        z = z[:, idx[:, None], idx[None, :]]
     n = z.shape[-1]
+    circuits = [later[c - 1] for c in kept[1:]]
+    pos = {c: 3 * k for k, c in enumerate(kept)}  # first row of each kept circuit
     n_m, n_k, n_l = m.size, scale.shape[0], e_s.shape[1]
     z_ref = float(np.max(np.abs(line.z_total_ohm)))
 
@@ -769,20 +836,21 @@ def solve_fault_sweep(
     if line.elements:
         phi_l, phi_r = element_fault_chain_products(
             z, y, line.length_m, m, np.array([e.at for e in line.elements]),
-            np.array([e.z_ohm[:n, :n] for e in line.elements]))
+            np.array([e.z_ohm[np.ix_(idx, idx)] for e in line.elements]))
     else:
         phi_l, phi_r = fault_chain_products(z, y, line.length_m, m)
     zs = None if source_s is None else source_s.phase_matrix(scale[:, 0])
     zr = None if source_r is None else source_r.phase_matrix(scale[:, 1])
     # Sequential clearing: the open end's terminal is "open", the other end in service.
-    st_l = st_r = parallel_state
-    if parallel_state in OPEN_END_STATES:
-        st_l, st_r = (("open", "in_service") if parallel_state == OPEN_END_STATES[0]
+    st_l = st_r = "in_service"
+    if first in OPEN_END_STATES:
+        st_l, st_r = (("open", "in_service") if first == OPEN_END_STATES[0]
                       else ("in_service", "open"))
-    nb_l, nb_r = neighbour if neighbour is not None else (None, None)
-    g_l, b_l = _terminal(n, st_l, zs, _balanced(e_s), z_ref, nb_l)
-    g_r, b_r = _terminal(n, st_r, zr, _balanced(e_r), z_ref, nb_r)
-    off = 3 * (fault_circuit - 1)  # the faulted circuit's first conductor
+    g_l, b_l = _terminal(n, st_l, zs, _balanced(e_s), z_ref, circuits=[
+        (st, None if nb is None else nb[0]) for st, nb in circuits])
+    g_r, b_r = _terminal(n, st_r, zr, _balanced(e_r), z_ref, circuits=[
+        (st, None if nb is None else nb[1]) for st, nb in circuits])
+    off = pos[fault_circuit - 1]  # the faulted circuit's first conductor
 
     # System in x = [V_F, I_L, I_R] (3n) for each (m, source case).
     w_l = g_l[None] @ phi_l[:, None]  # (M, K, n, 2n): terminal rows in fault-point terms
@@ -813,7 +881,7 @@ def solve_fault_sweep(
     t[:, 3 * n:4 * n, 0:n] = phi_r[:, n:, :n]
     t[:, 3 * n:4 * n, 2 * n:] = phi_r[:, n:, n:]
     t[:, 4 * n:, :] = np.eye(3 * n)
-    _vt_line_side(line, t, n, m)
+    _vt_line_side(line, t, n, m, idx)
     # The bus voltage is circuit 1's end voltage, but circuit 2's where circuit 1 is open.
     bus_s, bus_r = 3 * (st_l == "open"), 3 * (st_r == "open")
     starts = {"v_s": bus_s, "i_s": n, "i_s_parallel": n + 3, "v_r": 2 * n + bus_r,
@@ -821,7 +889,9 @@ def solve_fault_sweep(
               "i_r_parallel": 3 * n + 3, "v_f": 4 * n + off, "i_f_from_s": 5 * n + off,
               "i_f_from_r": 6 * n + off}
     wanted = _check_outputs(outputs, fn)
-    blocks = [k for k in starts if k in wanted and (n == 6 or not k.endswith("parallel"))]
+    # circuit 2's currents where it is solved (zeros where it was dropped or absent)
+    two = 1 in kept
+    blocks = [k for k in starts if k in wanted and (two or not k.endswith("parallel"))]
     rows = np.concatenate([np.arange(4 * n + off, 4 * n + off + 3)]
                           + [np.arange(starts[k], starts[k] + 3) for k in blocks])
     out = t[:, None, rows] @ x  # (M, K, 3 + 3B, L + 3)
@@ -897,8 +967,8 @@ def solve_fault_sweep(
         v_s_pre=np.ascontiguousarray(pre0[..., bus_s:bus_s + 3]),
         i_s_pre=np.ascontiguousarray(pre0[..., n:n + 3]),
         i_s_parallel_pre=(
-            np.ascontiguousarray(pre0[..., n + 3:2 * n])
-            if n == 6 else np.zeros((*pre0.shape[:-1], 3), dtype=complex)
+            np.ascontiguousarray(pre0[..., n + 3:n + 6])
+            if two else np.zeros((*pre0.shape[:-1], 3), dtype=complex)
         ),
         v_r_pre=np.ascontiguousarray(pre_r[..., bus_r:bus_r + 3]),
         i_r_pre=np.ascontiguousarray(pre_r[..., n:n + 3]),

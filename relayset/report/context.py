@@ -366,6 +366,8 @@ def _parameters(d: dict[str, Any], u: dict[str, Any]) -> dict[str, Any]:
         "assumptions": list(p["assumptions"]),
         "cables": _cables(p, u),
         "neighbour": _neighbour(p.get("neighbour"), u),
+        "neighbours": [_neighbour(nb, u) for nb in p.get("neighbours")
+                       or ([p["neighbour"]] if p.get("neighbour") else [])],
     }
 
 
@@ -456,8 +458,9 @@ def _reach(d: dict[str, Any]) -> dict[str, Any] | None:
                 loops.append({"loop": lp["loop"],
                               "worst": [_worst(lp[key]) for key, _ in WORST_KEYS]})
             title = ARRANGEMENT_TEXT.get(a["arrangement"], a["arrangement"])
-            if a.get("neighbour_state"):
-                title += f", neighbour {a['neighbour_state'].replace('_', ' ')}"
+            if a.get("neighbour_state"):  # one neighbour's bare state, or named states
+                ns = a["neighbour_state"].replace("_", " ")
+                title += f", {ns}" if ns.startswith("neighbour") else f", neighbour {ns}"
             if e["k0m_set"] is not None:
                 title += (", with mutual compensation" if a["mutual_compensation"]
                           else ", without mutual compensation")

@@ -1,4 +1,4 @@
-"""Results of a shared corridor: the neighbouring line's coupling with the protected line."""
+"""Results of shared corridors: each neighbouring line's coupling with the protected line."""
 
 from __future__ import annotations
 
@@ -67,3 +67,18 @@ class NeighbourParameters:
             "z_by_position_ohm_per_km": [matrix(z, PER_KM)
                                          for z in self.z_by_position_ohm_per_m],
         }
+
+
+@dataclass(frozen=True)
+class CorridorParameters:
+    """Every neighbouring line of the study and the corridor's matrices.
+
+    ``joint`` holds, per (tower index, neighbours present beside it), the series impedance
+    [ohm/m] and shunt admittance [S/m] matrices by position of the protected line's
+    positions and then every neighbour's phases A, B, C in the study's order (rows and
+    columns of a neighbour not present zero): the cascade's pieces
+    (:func:`relayset.studies.corridor.corridor_cascade`).
+    """
+
+    neighbours: tuple[NeighbourParameters, ...]
+    joint: dict[tuple[int, tuple[int, ...]], tuple[np.ndarray, np.ndarray]]

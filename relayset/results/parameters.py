@@ -216,6 +216,9 @@ class LineParameters:
     #: (:class:`relayset.results.corridor.NeighbourParameters`), or None.
     neighbour: Any = None
     cables: tuple[CableSummary, ...] = ()  #: the cable sections' constructions
+    #: Every neighbouring line and the corridor's matrices
+    #: (:class:`relayset.results.corridor.CorridorParameters`; ``neighbour`` is its first).
+    corridor: Any = None
 
     def cable_at(self, k: int) -> CableSummary | None:
         """The cable of tower index ``k`` (None: an overhead tower)."""
@@ -295,5 +298,7 @@ class LineParameters:
             "assumptions": list(self.assumptions),
             "wires": [w.to_dict() for w in self.wires],
             **({} if self.neighbour is None else {"neighbour": self.neighbour.to_dict()}),
+            **({"neighbours": [nb.to_dict() for nb in self.corridor.neighbours]}
+               if self.corridor is not None and len(self.corridor.neighbours) > 1 else {}),
             **({"cables": [c.to_dict() for c in self.cables]} if self.cables else {}),
         }

@@ -59,9 +59,12 @@ class LineGeometry:
     #: cables come after the overhead towers, with no wires.
     tower_cables: tuple = ()
     #: A neighbouring line in a shared corridor (``[[neighbours]]``): its stretch, buses and
-    #: routes, and its wires on the corridor's cross-section (phases in groups 3, 4, 5).
+    #: routes (the first; ``corridors`` all of them), and their wires on the corridor's
+    #: cross-section (neighbour j's phases in groups 3 (n_circuits + j) + 0, 1, 2, its
+    #: shield wires in groups 1000 (j + 1) + k).
     corridor: Any = None
     corridor_wires: tuple[Wire, ...] = ()
+    corridors: tuple[Any, ...] = ()
 
 
 def _conductor_props(study: Study, name: str, source: str) -> dict:
@@ -94,8 +97,8 @@ def _conductor_props(study: Study, name: str, source: str) -> dict:
     return props
 
 
-def build_geometry(study: Study, source: str = "<study>") -> LineGeometry:
-    """Place every wire, resolve conductor data and check the geometry and the section plan."""
+def _conductor_resolver(study: Study, source: str):
+    """The conductor data of a [conductor_types] name of ``study``, resolved once."""
     f_hz = study.system.frequency
     resolved: dict[str, cond.ConductorData] = {}
 
@@ -114,6 +117,13 @@ def build_geometry(study: Study, source: str = "<study>") -> LineGeometry:
             )
         return resolved[name]
 
+    return conductor
+
+
+def build_geometry(study: Study, source: str = "<study>") -> LineGeometry:
+    """Place every wire, resolve conductor data and check the geometry and the section plan."""
+    f_hz = study.system.frequency
+    conductor = _conductor_resolver(study, source)
     assumptions = [
         "Conductor height is the average over the span, h - 2/3 * sag (parabolic sag).",
         _earth_assumption(study.system),
@@ -226,26 +236,24 @@ def build_geometry(study: Study, source: str = "<study>") -> LineGeometry:
             orders_l.append(tuple(order))
         lengths, orders = tuple(lengths_l), tuple(orders_l)
 
-    corridor, corridor_wires = None, ()
+    corridor, corridor_wires, corridors = None, (), ()
     if study.neighbours:
-        from relayset.inputs.corridor import corridor_of
+        from relayset.inputs.corridor import corridors_of
 
-        corridor = corridor_of(study)
-        corridor_wires = _place_neighbour(study, corridor, tower_wires, section_towers,
-                                          conductor, source)
-        assumptions.append(
-            f"Neighbouring line {corridor.name} beside the line from "
-            f"{corridor.start_m / 1e3:g} km to {corridor.end_m / 1e3:g} km (shared "
-            f"{corridor.shared_length_m / 1e3:g} km): mutually coupled over that stretch "
-            "only, its phases not transposed there; its routes outside the corridor are "
-            "series impedances (their shunt capacitance neglected) and couple with nothing; "
-            "its own buses' EMFs are those of the protected line's sources at the same side "
-            "(it carries load the same way) and its sources keep their impedance in every "
-            "source case.")
+        corridors = corridors_of(study)
+        nb_placed: list = []
+        for corridor in corridors:
+            nb_placed.append((corridor, _place_neighbour(
+                study, corridor, tower_wires, section_towers, conductor, source, n_c,
+                nb_placed)))
+            assumptions.append(_neighbour_assumption(corridor))
+        corridor = corridors[0]
+        corridor_wires = tuple(w for _c, ws in nb_placed for w in ws)
 
     return LineGeometry(
         corridor=corridor,
         corridor_wires=corridor_wires,
+        corridors=corridors,
         wires=tuple(wires),
         n_circuits=n_c,
         position_names=tuple(position_names),
@@ -266,6 +274,29 @@ def build_geometry(study: Study, source: str = "<study>") -> LineGeometry:
         section_towers=section_towers,
         tower_cables=(None,) * len(tower_names) + cables if cables else (),
     )
+
+
+def _neighbour_assumption(corridor) -> str:
+    """What the model takes for a neighbouring line (one sentence)."""
+    return (f"Neighbouring line {corridor.name} beside the line from "
+            f"{corridor.start_m / 1e3:g} km to {corridor.end_m / 1e3:g} km (shared "
+            f"{corridor.shared_length_m / 1e3:g} km): mutually coupled over that stretch "
+            "only, its phases not transposed there; its routes outside the corridor are "
+            "series impedances (their shunt capacitance neglected) and couple with nothing; "
+            "its own buses' EMFs are those of the protected line's sources at the same side "
+            "(it carries load the same way) and its sources keep their impedance in every "
+            "source case." + _neighbour_file_note(corridor.table))
+
+
+def _neighbour_file_note(nb) -> str:
+    """Where a neighbour given by its own study file came from (provenance)."""
+    f = nb.file
+    if f is None:
+        return ""
+    place = (f"its tower centre line {nb.offset:g} m from this line's" if nb.offset
+             else "on the shared towers (x as in that file)")
+    return (f" Its conductors, cross-section and sources are read from {nb.study} (SHA-256 "
+            f"{f.sha256}), {place}, its phases as that file's first section places them.")
 
 
 def _place_wires(study: Study, circuits, shield_wires, shield_field: str, conductor,
@@ -322,26 +353,35 @@ def _place_wires(study: Study, circuits, shield_wires, shield_field: str, conduc
 
 
 def _place_neighbour(study: Study, corridor, tower_wires, section_towers, conductor,
-                     source: str) -> tuple[Wire, ...]:
-    """The neighbouring line's wires on the corridor's cross-section, checked above ground
-    and clear of the protected line's wires on every tower of the shared stretch."""
+                     source: str, n_c: int = 1, placed=()) -> tuple[Wire, ...]:
+    """A neighbouring line's wires on the corridor's cross-section, checked above ground
+    and clear of the protected line's wires on every tower of its shared stretch, and of
+    the wires of the neighbours ``placed`` before it where their stretches overlap. A
+    neighbour from its own study file takes that file's conductors (its messages name that
+    file and its fields)."""
+    main_source = source
     nb = corridor.table
+    j = corridor.index
+    f = nb.file  # its own study file: its conductors and fields are that file's
+    if f is not None:
+        conductor, source = _conductor_resolver(f.study, f.path), f.path
     out: list[Wire] = []
     for k, pos in enumerate(nb.positions):
-        field = f"neighbours[0].positions[{k}]"
+        field = f"neighbours[{j}].positions[{k}]" if f is None else f.position_fields[k]
         data = conductor(pos.conductor, f"{field}.conductor")
         offsets = np.zeros((1, 2))
         if pos.bundle is not None and pos.bundle.count > 1:
             offsets = bundle_offsets_m(pos.bundle.count, pos.bundle.spacing,
                                        pos.bundle.orientation)
         for s, (dx, dy) in enumerate(offsets):
-            out.append(Wire(pos.x + dx, pos.mean_height_m + dy, data, "phase", 3 + k,
+            out.append(Wire(pos.x + dx, pos.mean_height_m + dy, data, "phase",
+                            3 * (n_c + j) + k,
                             f"neighbour {nb.name}, phase {'ABC'[k]}"
                             + (f", subconductor {s + 1}" if len(offsets) > 1 else ""), field))
     for k, sw in enumerate(nb.shield_wires):
-        field = f"neighbours[0].shield_wires[{k}]"
+        field = f"neighbours[{j}].shield_wires[{k}]" if f is None else f"shield_wires[{k}]"
         data = conductor(sw.conductor, f"{field}.conductor")
-        out.append(Wire(sw.x, sw.mean_height_m, data, "shield", 100 + k,
+        out.append(Wire(sw.x, sw.mean_height_m, data, "shield", 1000 * (j + 1) + k,
                         f"neighbour {nb.name}, shield wire {sw.name or k + 1}", field,
                         sw.grounding))
     towers = sorted({section_towers[k] for k in shared_sections(corridor, study)}
@@ -351,11 +391,21 @@ def _place_neighbour(study: Study, corridor, tower_wires, section_towers, conduc
             raise InputError("conductor would be at or below ground (mean height = height - "
                              "2/3 sag must exceed the conductor radius)",
                              field=w.field, value=f"mean height {w.y_m:.3f} m", source=source)
+    tol = 1e-9 * sum(s.length for s in study.line.sections or ()) or 1e-6
+    beside = [w for other, ws in placed
+              if min(other.end_m, corridor.end_m) - max(other.start_m, corridor.start_m) > tol
+              for w in ws]
     for t in towers:  # clear of the protected line's wires and of each other
         for i, a in enumerate(out):
-            for b in [*tower_wires[t], *out[i + 1:]]:
+            for b in [*tower_wires[t], *beside, *out[i + 1:]]:
                 d = math.hypot(a.x_m - b.x_m, a.y_m - b.y_m)
                 if d <= a.conductor.radius_m + b.conductor.radius_m + _MIN_CLEARANCE_M:
+                    if f is not None and b not in out:  # its place is this file's offset
+                        key = "offset" if nb.offset is not None else "study"
+                        raise InputError(
+                            f"places {a.label} ({f.path}: {a.field}) over {b.label} "
+                            f"({b.field}); centres {d:.3f} m apart", field=f"neighbours[{j}]."
+                            f"{key}", value=corridor.raw_place, source=main_source)
                     raise InputError(f"overlaps {b.label} ({b.field}); centres {d:.3f} m apart",
                                      field=a.field, value=a.label, source=source)
     return tuple(out)

@@ -245,12 +245,13 @@ def compute_parameters(geo: LineGeometry) -> LineParameters:
     k0m = None
     if n_c == 2 and plan.z0m_ohm_per_m is not None:
         k0m = plan.z0m_ohm_per_m / (3 * circuits[0].z1_ohm_per_m)
-    neighbour = None
-    if geo.corridor is not None:  # a shared corridor: the neighbour's coupling
+    neighbour = corridor = None
+    if geo.corridor is not None:  # shared corridors: the neighbours' coupling
         from relayset.studies.corridor import neighbour_parameters
 
-        neighbour = neighbour_parameters(geo, z_towers or (z_pos,), y_towers or (y_pos,),
-                                         circuits[0].z1_ohm, circuits[0].z0_ohm)
+        corridor = neighbour_parameters(geo, z_towers or (z_pos,), y_towers or (y_pos,),
+                                        circuits[0].z1_ohm, circuits[0].z0_ohm)
+        neighbour = corridor.neighbours[0]
     labels = geo.phase_labels
     cables = _cable_summaries(geo, z_towers, y_towers)
     section_orders = tuple(
@@ -279,6 +280,7 @@ def compute_parameters(geo: LineGeometry) -> LineParameters:
         circuits=tuple(circuits),
         k0m=k0m,
         neighbour=neighbour,
+        corridor=corridor,
         assumptions=geo.assumptions + tuple(n for c in conductors for n in c.notes),
         wires=tuple(
             WirePosition(w.role, w.label,

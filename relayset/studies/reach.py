@@ -197,15 +197,17 @@ def run_reach_study(
                              and _same_cascade(lines[k], line)), key)
     per_arrangement = (len(rs.fault_types) * m.size * rf.size * scales.shape[0] * angles.size
                        * len(cap_states))
-    # A shared corridor: the neighbour's states are a state axis (every arrangement with it
-    # in service, the actual plan also with it out, earthed and isolated).
+    # Shared corridors: the neighbours' states are a state axis (every arrangement with
+    # them in service, the actual plan also in their other states: corridor_states).
     corridor = params.neighbour is not None
-    nb_ends = None
+    nb_ends, cor_states = None, {}
     if corridor:
-        from relayset.studies.corridor import NEIGHBOUR_STATES, neighbour_ends
+        from relayset.studies.corridor import corridor_states, neighbour_ends
 
         nb_ends = neighbour_ends(study, params, source)
-    n_distinct = len(set(same_as.values())) + (len(NEIGHBOUR_STATES) - 1 if corridor else 0)
+        cor_states = {c.label: c for c in corridor_states(
+            geo, parallel if n_c == 2 else None)}
+    n_distinct = len(set(same_as.values())) + max(len(cor_states) - 1, 0)
     per_location = per_arrangement // m.size // len(cap_states)
     if per_location > MAX_CASES_PER_LOCATION:  # one location is the smallest chunk
         raise InputError(
@@ -218,11 +220,12 @@ def run_reach_study(
             f"at most {MAX_CASES:,}: use a coarser step or fewer resistances or cases",
             field="reach_study.location_step_pct", value=rs.location_step_pct, source=source)
     labels = geo.phase_labels[0]
-    variants = [(k, False, parallel) for k in plans]
+    base = next(iter(cor_states)) if corridor else parallel  # every circuit as set
+    variants = [(k, False, base) for k in plans]
     if n_c == 2 and parallel == "in_service" and rs.mutual_compensation:
-        variants = [(k, True, parallel) for k in plans] + [("actual_plan", False, parallel)]
-    if corridor:
-        variants += [("actual_plan", False, st) for st in NEIGHBOUR_STATES[1:]]
+        variants = [(k, True, base) for k in plans] + [("actual_plan", False, base)]
+    if corridor:  # the relay's own arrangement (mutual compensation as it is set)
+        variants += [("actual_plan", variants[0][1], st) for st in list(cor_states)[1:]]
     # One condenser per (end, distinct arrangement, mutual compensation); the sweep runs in
     # chunks of locations so that memory stays bounded, each chunk condensed and dropped.
     condensers: dict[tuple[str, str, bool, str], _Condenser] = {}
@@ -246,8 +249,10 @@ def run_reach_study(
         for k_c, cap in enumerate(cap_states):
             line = with_state(lines[key], caps, cap)
             try:
-                emf = _emfs_for_power_flows(study, line, src, names, ends[0], scales, state,
-                                            geo.v_nominal_v, corridor)
+                cs = cor_states.get(state)
+                p_state = state if cs is None else cs.parallel
+                emf = _emfs_for_power_flows(study, line, src, names, ends[0], scales, p_state,
+                                            geo.v_nominal_v, n_c if corridor else 0)
                 for start in range(0, m.size, m_chunk):
                     sw = solve_sweep(
                         caps, cap, line, src[names[0]], src[names[1]],
@@ -255,8 +260,9 @@ def run_reach_study(
                         fault_types=rs.fault_types, m=m[start:start + m_chunk],
                         r_fault_ohm=rf, r_phase_ohm=rs.phase_fault_resistance,
                         source_scale=scales, transfer_angle_rad=angles,
-                        parallel_state=state, emf_v=emf, field_names=field_names,
-                        outputs=outputs, neighbour=nb_ends)
+                        emf_v=emf, field_names=field_names, outputs=outputs,
+                        **({"parallel_state": state} if cs is None
+                           else cs.solver_args(nb_ends)))
                     for (_end, k, _mutual, st), cond in condensers.items():
                         if k == key and st == state:
                             cond.add(sw, start, k_c)
@@ -279,10 +285,12 @@ def run_reach_study(
             res = condensers[(end_name, same_as[key], mutual, state)].result(
                 key, same_as[key], angles_rad[same_as[key], state], rs, labels, ords, lens,
                 names_by_section)
-            arrs.append(replace(res, neighbour_state=state) if corridor else res)
+            arrs.append(replace(res, neighbour_state=cor_states[state].reach_label)
+                        if corridor else res)
         actual = arrs[0]
-        if corridor:  # the neighbour's worst state governs zone 1
-            actual = max((a for a in arrs if a.arrangement == "actual_plan"),
+        if corridor:  # the neighbours' worst state governs zone 1
+            actual = max((a for a in arrs if a.arrangement == "actual_plan"
+                          and a.mutual_compensation == actual.mutual_compensation),
                          key=lambda a: a.worst_bolted_overreach_at_remote_bus_pct)
         worst = actual.worst_bolted_overreach_at_remote_bus_pct
         rec = recommended_zone1_pct(worst, budget, zone1_max_pct, zone1_margin_pct)
@@ -321,15 +329,16 @@ def run_reach_study(
                          "load cases (transfer angles) have no effect there and repeat.")
     neighbour = None
     if corridor:
-        nbp = params.neighbour
-        notes.append(
-            f"Shared corridor: {nbp.name} beside the line over {nbp.shared_length_m / 1e3:g} "
-            "km, mutually coupled there only; the actual plan solved with it in service, out "
-            "and earthed at its terminals, and out and isolated (the worst of the three "
-            "governs zone 1). The relay is not given its residual current (it ends on "
-            "other buses): no mutual compensation for it.")
-        neighbour = {"name": nbp.name, "shared_length_km": nbp.shared_length_m / 1e3,
-                     "states": list(NEIGHBOUR_STATES)}
+        from relayset.studies.corridor import corridor_notes
+
+        notes.append(corridor_notes(params.corridor, "reach", n_c == 2))
+        nbs = params.corridor.neighbours
+        neighbour = {"name": nbs[0].name, "shared_length_km": nbs[0].shared_length_m / 1e3,
+                     "states": [c.reach_label for c in cor_states.values()]}
+        if len(nbs) > 1:
+            neighbour["neighbours"] = [{"name": nb.name,
+                                        "shared_length_km": nb.shared_length_m / 1e3}
+                                       for nb in nbs]
     if caps is not None:
         notes += list(caps.notes)
         notes.append(
@@ -399,18 +408,21 @@ def _emfs_for_power_flows(study, line, src, names, relay_end, scales, parallel, 
 
 
 def emfs_for_flows_at(line, src, names, end, p_w, q_var, scales, parallel, v_nom,
-                      corridor: bool = False):
+                      corridor: int = 0):
     """EMFs (e_s, e_r) of both sources for powers P + jQ [W, var] into the line at ``end``.
 
     The positive-sequence load flow of :func:`relayset.physics.loadflow.emfs_for_load`
     fixes that end's voltage at nominal; seen from the far end the line is reversed.
-    ``corridor``: circuit 2 is a neighbouring line on its own buses, left out of the load
-    flow (:func:`relayset.studies.corridor.protected_part`).
+    ``corridor``: the number of the protected line's circuits (1, 2; True is 1) when the
+    circuits after them are neighbouring lines on their own buses, left out of the load
+    flow (:func:`relayset.studies.corridor.protected_part`); 0: no neighbour.
     """
     if corridor:
         from relayset.studies.corridor import protected_part
 
-        line, parallel = protected_part(line), "in_service"
+        line = protected_part(line, int(corridor))
+        if int(corridor) == 1:
+            parallel = "in_service"
     if end == names[0]:
         return loadflow.emfs_for_load(line, src[names[0]], src[names[1]], v_nominal_v=v_nom,
                                      p_w=p_w, q_var=q_var, source_scale=scales,

@@ -279,9 +279,10 @@ def verify_end(sim: Simulation, end: str, st: SettingsResult, *, study: Study,
             # parallel-circuit fault, but on other buses (no mutual compensation).
             v = relay_view(run, at_s, st.k0.k0, k0m, model, line_angle=theta)
             sc = zone_scale(v, z1, theta, zl, model)
+            what = ("neighbouring line" if len(sim.neighbour_names) <= 1 else
+                    f"neighbouring line {sim.neighbour_names[run.neighbour]}")
             acc["z1_nb"].add((sc.scale - 1) * 100, np.ones(sc.scale.shape, dtype=bool), t,
-                             _describe(v, sc.which, labels, "neighbouring line", rfp),
-                             sc.insensitive)
+                             _describe(v, sc.which, labels, what, rfp), sc.insensitive)
         else:
             # Sequential clearing: the parallel circuit's breaker at one end already open.
             seq = bool(run.open_at)
@@ -328,9 +329,12 @@ def verify_end(sim: Simulation, end: str, st: SettingsResult, *, study: Study,
     if acc["z1_nb"].n_run:
         checks.append(_finish(
             "zone1", "no_operation_for_neighbouring_line_faults",
-            "zone 1 does not operate for any fault on the neighbouring line of the shared "
-            f"corridor (along the shared stretch, the neighbour in service) with {t:g} % "
-            "margin", acc["z1_nb"], t,
+            ("zone 1 does not operate for any fault on the neighbouring line of the shared "
+             f"corridor (along the shared stretch, the neighbour in service) with {t:g} % "
+             "margin" if len(sim.neighbour_names) <= 1 else
+             "zone 1 does not operate for any fault on the neighbouring lines of the shared "
+             f"corridors (each along its shared stretch, every line in service) with {t:g} % "
+             "margin"), acc["z1_nb"], t,
             "shorten zone 1 (the relay cannot be given the neighbour's residual current)"))
     if acc["z1_seq"].n_run:
         seq = acc["z1_seq"]
@@ -496,21 +500,13 @@ def verification_grid(st_by_end: dict[str, SettingsResult], names, tolerance_pct
     return unique_sorted(np.clip(np.array(m), 0.0, 1.0))
 
 
-def _corridor_notes(geo: LineGeometry) -> tuple[str, ...]:
-    """What the verification did with a neighbouring line in a shared corridor."""
-    cor = geo.corridor
-    if cor is None:
+def _corridor_notes(geo: LineGeometry, params: LineParameters) -> tuple[str, ...]:
+    """What the verification did with the neighbouring lines of shared corridors."""
+    if geo.corridor is None:
         return ()
-    from relayset.studies.corridor import NEIGHBOUR_FAULT_POINTS
+    from relayset.studies.corridor import corridor_notes
 
-    pts = ", ".join(f"{100 * x:g}" for x in NEIGHBOUR_FAULT_POINTS)
-    return (
-        f"Shared corridor: {cor.name} beside the line from {cor.start_m / 1e3:g} km to "
-        f"{cor.end_m / 1e3:g} km, mutually coupled there only; every check is judged with it "
-        "in service, out and earthed at its terminals, and out and isolated. Faults on it "
-        f"(every type and fault resistance, in service) at {pts} % of the shared stretch are "
-        "external faults: zone 1 must not operate. The relay is not given its residual "
-        "current (it ends on other buses), so there is no mutual compensation for it.",)
+    return (corridor_notes(params.corridor, "verification", geo.n_circuits == 2),)
 
 
 def check_tolerance(tolerance_pct: float, source: str) -> float:
@@ -663,7 +659,7 @@ def verify_settings(study: Study, geo: LineGeometry, params_by_rho: dict[float, 
         "from the simulated remote-bus faults, and by the simulated faults along the "
         "adjacent lines.",
         *_branch_notes(study, source),
-        *_corridor_notes(geo),
+        *_corridor_notes(geo, next(iter(params_by_rho.values()))),
         f"Verification tolerance {t:g} % (the study's error budget).",
         scheme.describe(_philosophy(philosophy, zone2_adjacent_zone1_pct)),
         *_resistive_basis(study, geo, settings_by_end),

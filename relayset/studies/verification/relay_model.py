@@ -200,7 +200,9 @@ def view(run: Run, at_s: bool, k0: complex, k0m: complex | None, model: RelayMod
     if m_index is not None:
         v, i, ip, m = v[:, m_index], i[:, m_index], ip[:, m_index], m[m_index]
     # Out of service the parallel circuit's CTs carry no current (isolated from the bus).
-    use_m = k0m is not None and run.state == "in_service"
+    # (beside neighbouring lines the state also names theirs: "..., parallel in_service")
+    use_m = k0m is not None and (run.state == "in_service"
+                                 or run.state.endswith(", parallel in_service"))
     meant = _meant(model, sw.fault_types)
     res = i.sum(axis=-1)
     res_p = ip.sum(axis=-1) if use_m else None

@@ -151,12 +151,17 @@ class CaseSolver:
         x = case.location_pct / 100
         m = x if at_s else 1.0 - x
         state = "in_service" if case.parallel_state == "none" else case.parallel_state
-        state = state.removeprefix("neighbour ")  # a shared corridor's neighbour's state
+        if self.geo.corridor is not None:  # the corridor's state: the parallel circuit's
+            from relayset.studies.corridor import state_by_label
+
+            state = state_by_label(self.geo, state).parallel
         what = case.faulted
         if what == "protected line":
             return [("protected", line, state, "", False, m, None, ())]
-        if what == "neighbouring line":  # a fault on the neighbour (circuit 2)
-            return [("neighbour", line, state, "", False, m, None, ())]
+        if what.startswith("neighbouring line"):  # a fault on a neighbour (its circuit)
+            return [("neighbour", line, state, "", False, m, None, (), j)
+                    for j, c in enumerate(self.geo.corridors)
+                    if what in ("neighbouring line", f"neighbouring line {c.name}")]
         if what == "behind the relay":
             return [("protected", line, state, "", True, 0.0 if at_s else 1.0, None, ())]
         if what.startswith("parallel circuit"):
@@ -219,6 +224,12 @@ class CaseSolver:
         rho = float(case.earth_resistivity_ohm_m)
         line, nb_ends = self._line(rho, case.capacitor_state or "")
         corridor = nb_ends is not None
+        nb_kw = {}
+        if corridor:  # the case's state of every neighbour (by its label)
+            from relayset.studies.corridor import neighbour_circuit, state_by_label
+
+            cstate = state_by_label(geo, case.parallel_state)
+            nb_kw = {"neighbours": nb_ends, "neighbour_states": cstate.neighbours}
         src = self._sources
         relay_end = study.relay.end if study.relay and study.relay.end in names else names[0]
         mutual = geo.n_circuits == 2 and study.reach_study.mutual_compensation
@@ -230,7 +241,7 @@ class CaseSolver:
         for s_s, s_r, scales, labels_k, loaded in source_configs(study, names, src):
             for k in [k for k, nm in enumerate(labels_k) if nm == case.source_case]:
                 sc = scales[k:k + 1]
-                for faulted, ln, solved, open_at, behind, m, z_b, info in self._jobs(
+                for faulted, ln, solved, open_at, behind, m, z_b, info, *j_nb in self._jobs(
                         case, at_s, line):
                     if open_at and (s_s is None or s_r is None):
                         continue
@@ -238,7 +249,7 @@ class CaseSolver:
                     emf = None
                     if loaded:
                         e = load_emfs(self._envelope, ln, src, names, relay_end, sc,
-                                      emf_state, v_nom, corridor)
+                                      emf_state, v_nom, geo.n_circuits if corridor else 0)
                         emf = (e[0], e[1])
                     sw = solve_sweep(
                         self._caps, case.capacitor_state or "", ln, s_s, s_r,
@@ -246,8 +257,8 @@ class CaseSolver:
                         m=np.array([m]), r_fault_ohm=np.array([case.r_fault_ohm]),
                         r_phase_ohm=np.array([case.r_phase_ohm]), source_scale=sc,
                         transfer_angle_rad=np.zeros(1), parallel_state=solved, emf_v=emf,
-                        outputs=OUTPUTS, z_branch_ohm=z_b, neighbour=nb_ends,
-                        fault_circuit=2 if faulted == "neighbour" else 1)
+                        outputs=OUTPUTS, z_branch_ohm=z_b, **nb_kw,
+                        fault_circuit=neighbour_circuit(geo, j_nb[0]) if j_nb else 1)
                     run = Run(sw, faulted, case.parallel_state, labels_k, rho,
                               (s_s is not None, s_r is not None), open_at=open_at,
                               branch=info, cap_state=case.capacitor_state or "")
@@ -271,15 +282,15 @@ class CaseSolver:
         v, i, ip = (a[0, 0, 0, 0, li] for a in relay_quantities(run, at_s, behind=behind))
         emf = (sw.emf_s_v[:, li:li + 1], sw.emf_r_v[:, li:li + 1])
         v_pre, i_pre, ip_pre = self._prefault(line, s_s, s_r, sc, emf, emf_state, at_s,
-                                              nb_ends)
-        if emf_state != "in_service" or corridor:
-            # parallel circuit out (no current in its CTs), or a neighbouring line (its
-            # currents are at other substations)
+                                              nb_kw)
+        if emf_state != "in_service" or (corridor and geo.n_circuits == 1):
+            # parallel circuit out (no current in its CTs), or a neighbouring line as
+            # circuit 2 (its currents are at other substations)
             ip, ip_pre = np.zeros(3, complex), np.zeros(3, complex)
         return CasePhasors(v_pre, i_pre, ip_pre, np.array(v), np.array(i), np.array(ip), z,
                            complex(emf[0][0, 0]), complex(emf[1][0, 0]))
 
-    def _prefault(self, line, s_s, s_r, sc, emf, state: str, at_s: bool, nb_ends=None):
+    def _prefault(self, line, s_s, s_r, sc, emf, state: str, at_s: bool, nb_kw=None):
         """Prefault (V, I, I parallel) at the relay end of the healthy network with the
         case's EMFs; the parallel circuit at R from the line with the circuits swapped
         (the solver gives circuit 2's prefault current at S only)."""
@@ -289,13 +300,13 @@ class CaseSolver:
             return network.solve_fault_sweep(
                 ln, s_s, s_r, v_nominal_v=self.geo.v_nominal_v, fault_types=("AG",),
                 m=np.array([0.5]), r_fault_ohm=np.array([0.0]), source_scale=sc,
-                parallel_state=state, emf_v=emf, outputs=(), neighbour=nb_ends)
+                parallel_state=state, emf_v=emf, outputs=(), **(nb_kw or {}))
 
         sw = pre(line)
         if at_s:
             return sw.v_s_pre[0, 0], sw.i_s_pre[0, 0], sw.i_s_parallel_pre[0, 0]
         ip = (pre(swap_circuits(line)).i_r_pre[0, 0]
-              if line.n_conductors == 6 and nb_ends is None else np.zeros(3, complex))
+              if self.geo.n_circuits == 2 else np.zeros(3, complex))
         return sw.v_r_pre[0, 0], sw.i_r_pre[0, 0], ip
 
 

@@ -60,6 +60,8 @@ class Run:
     #: Series capacitor state of every bank ("" for a line without banks), see
     #: :mod:`relayset.studies.series_capacitors`.
     cap_state: str = ""
+    #: Faulted "neighbour": which neighbouring line (index into ``[[neighbours]]``).
+    neighbour: int = -1
 
     @property
     def n_cases(self) -> int:
@@ -88,6 +90,8 @@ class Simulation:
     #: Series capacitor states solved (empty without banks) and the banks' basis.
     capacitor_states: tuple[str, ...] = ()
     capacitors: dict | None = None
+    #: The neighbouring lines' names (shared corridors; ``Run.neighbour`` indexes them).
+    neighbour_names: tuple[str, ...] = ()
 
     @property
     def n_cases(self) -> int:
@@ -184,8 +188,9 @@ def source_configs(study: Study, names, src):
 
 
 def swap_circuits(line: network.LineCascade) -> network.LineCascade:
-    """The same line with circuit 2 first, so that the solver faults the parallel circuit."""
-    p = [3, 4, 5, 0, 1, 2]
+    """The same line with circuit 2 first, so that the solver faults the parallel circuit
+    (the circuits after them, neighbouring lines, stay where they are)."""
+    p = [3, 4, 5, 0, 1, 2, *range(6, line.n_conductors)]
     z = line.z_ohm_per_m[:, p][:, :, p]
     y = None if line.y_s_per_m is None else line.y_s_per_m[:, p][:, :, p]
     els = tuple(network.SeriesElement(e.at, e.z_ohm[p][:, p], e.vt_line_side)
@@ -194,7 +199,7 @@ def swap_circuits(line: network.LineCascade) -> network.LineCascade:
 
 
 def load_emfs(env: Envelope, line, src, names, relay_end, scales, state,
-              v_nom: float, corridor: bool = False) -> np.ndarray:
+              v_nom: float, corridor: int = 0) -> np.ndarray:
     """(2, K, L) phase-A EMFs of both sources for every load case of the envelope: the
     listed cases (transfer angles, or power flows at the relay end), then the maximum load
     exported at each end in turn (the other end then imports it), through the load flow."""
@@ -241,11 +246,12 @@ def simulate(study: Study, geo: LineGeometry, params_by_rho: dict[float, LinePar
         remote bus; :mod:`.branches`), at the study's earth resistivity, both circuits in
         service.
 
-    With a neighbouring line in a shared corridor (``[[neighbours]]``) its states take the
-    parallel circuit's place (run state "neighbour in_service" and so on), and with
-    ``parallel`` its faults are solved as faults on circuit 2 along the shared stretch
-    (faulted "neighbour", external to the protected line; see
-    :mod:`relayset.studies.corridor`).
+    With neighbouring lines in shared corridors (``[[neighbours]]``) the states are
+    :func:`relayset.studies.corridor.corridor_states` (run state "neighbour in_service"
+    and so on, with the parallel circuit's state on a double circuit), and with
+    ``parallel`` each neighbour's faults are solved along its shared stretch, every circuit
+    in service (faulted "neighbour", external to the protected line; ``Run.neighbour``
+    says which).
     measure : callable, optional
         Applied to each run as it is solved (e.g. keep what the relays see and drop the
         phase quantities, :class:`relayset.studies.verification.relay_model.Measure`).
@@ -260,14 +266,16 @@ def simulate(study: Study, geo: LineGeometry, params_by_rho: dict[float, LinePar
     states = network.PARALLEL_STATES if n_c == 2 else ("in_service",)
     mutual = n_c == 2 and rs.mutual_compensation
     corridor = geo.corridor is not None
+    cor_n = n_c if corridor else 0  # the load flow's protected circuits
     if corridor:
         from relayset.studies.corridor import (
-            NEIGHBOUR_STATES,
+            corridor_states,
+            neighbour_circuit,
             neighbour_ends,
             neighbour_fault_locations,
         )
 
-        states = NEIGHBOUR_STATES
+        states = corridor_states(geo)
     relay_end = study.relay.end if study.relay and study.relay.end in names else names[0]
     configs = source_configs(study, names, src)
     groups = env.groups(tuple(network.FAULT_TYPES))
@@ -278,16 +286,23 @@ def simulate(study: Study, geo: LineGeometry, params_by_rho: dict[float, LinePar
     cap_states = caps.states if caps is not None else ("",)
     for rho, params in params_by_rho.items():
         nb_ends = neighbour_ends(study, params, source) if corridor else None
-        # one level: parallel-circuit (or neighbour) state x capacitor state
-        for state, cap in ((s, c) for s in states for c in cap_states):
+        # one level: parallel-circuit (or neighbours') state x capacitor state
+        for cstate, cap in ((s, c) for s in states for c in cap_states):
+            # a corridor's state: the parallel circuit's and the neighbours' (the solver's
+            # keywords), named by its label
+            state = cstate.parallel if corridor else cstate
+            all_in = cstate.all_in_service if corridor else state == "in_service"
+            nb_kw = cstate.solver_args(nb_ends) if corridor else {}
+            run_state = cstate.label if corridor else _state_name(state, n_c, False)
             line = with_state(line_cascade(geo, params, "actual_plan", rs.shunt_capacitance),
                               caps, cap)
             jobs = []
             if protected:
                 jobs.append(("protected", line, state, "", m))
-            if parallel and corridor and state == "in_service":
-                jobs.append(("neighbour", line, state, "", neighbour_fault_locations(geo, m)))
-            if parallel and n_c == 2 and state == "in_service":
+            if parallel and corridor and all_in:
+                jobs += [("neighbour", line, state, "", neighbour_fault_locations(geo, m, j),
+                          neighbour_circuit(geo, j)) for j in range(len(geo.corridors))]
+            if parallel and n_c == 2 and all_in:
                 swapped = swap_circuits(line)
                 jobs.append(("parallel", swapped, state, "", m))
                 if sequential:
@@ -295,7 +310,7 @@ def simulate(study: Study, geo: LineGeometry, params_by_rho: dict[float, LinePar
                              for open_state, bus in zip(network.OPEN_END_STATES, names,
                                                         strict=True)]
             emfs: dict = {}  # per (line, configuration): sequential clearing reuses them
-            for faulted, ln, solved_state, open_at, m_job in jobs:
+            for faulted, ln, solved_state, open_at, m_job, *fc in jobs:
                 for c, (s_s, s_r, scales, labels, loaded) in enumerate(configs):
                     if open_at and (s_s is None or s_r is None):
                         # Sequential clearing needs both sources: with one out, the
@@ -306,7 +321,7 @@ def simulate(study: Study, geo: LineGeometry, params_by_rho: dict[float, LinePar
                         if (id(ln), c) not in emfs:
                             emfs[id(ln), c] = load_emfs(env, ln, src, names, relay_end,
                                                         scales, state, geo.v_nominal_v,
-                                                        corridor)
+                                                        cor_n)
                         emf = emfs[id(ln), c]
                         d = np.degrees(np.abs(np.angle(emf[0] / emf[1])))
                         max_angle = max(max_angle, float(np.max(d)))
@@ -324,14 +339,15 @@ def simulate(study: Study, geo: LineGeometry, params_by_rho: dict[float, LinePar
                                 fault_types=g.fault_types, m=np.asarray(m_job),
                                 r_fault_ohm=g.rf_pairs[:, 0], r_phase_ohm=g.rf_pairs[:, 1],
                                 source_scale=scales, transfer_angle_rad=np.zeros(1),
-                                parallel_state=solved_state, emf_v=emf_t, outputs=OUTPUTS,
-                                neighbour=nb_ends,
-                                fault_circuit=2 if faulted == "neighbour" else 1)
+                                emf_v=emf_t, outputs=OUTPUTS,
+                                fault_circuit=fc[0] if fc else 1,
+                                **{**nb_kw, "parallel_state": solved_state})
                         except InputError as exc:
                             raise exc.located(source=source) from None
-                        run = Run(sw, faulted, _state_name(state, n_c, corridor), labels,
+                        run = Run(sw, faulted, run_state, labels,
                                   rho, (s_s is not None, s_r is not None), g.name,
-                                  open_at=open_at, cap_state=cap)
+                                  open_at=open_at, cap_state=cap,
+                                  neighbour=fc[0] - n_c - 1 if fc else -1)
                         runs.append(run if measure is None else measure(run))
                     all_names += [n for n in labels if n not in all_names]
     if branches and protected:
@@ -340,11 +356,13 @@ def simulate(study: Study, geo: LineGeometry, params_by_rho: dict[float, LinePar
                                  relay_end, source, measure, caps, cap)
     return Simulation(names, geo.phase_labels[0], tuple(runs), n_c, mutual,
                       tuple(all_names),
-                      tuple(_state_name(s, n_c, corridor) for s in states)
+                      tuple(s.label if corridor else _state_name(s, n_c, False)
+                            for s in states)
                       if n_c == 2 or corridor else ("none",),
                       tuple(sorted(params_by_rho)), max_angle,
                       capacitor_states=tuple(c for c in cap_states if c),
-                      capacitors=None if caps is None else caps.to_dict())
+                      capacitors=None if caps is None else caps.to_dict(),
+                      neighbour_names=tuple(c.name for c in geo.corridors))
 
 
 def _capacitors(study, geo, params_by_rho, src, source):
@@ -398,28 +416,32 @@ def _branch_runs(study, geo, params_by_rho, env, names, src, configs, groups, re
     states = network.PARALLEL_STATES if geo.n_circuits == 2 else ("in_service",)
     corridor = geo.corridor is not None
     nb_ends = None
-    if corridor:  # the neighbour's states as the parallel circuit's
-        from relayset.studies.corridor import NEIGHBOUR_STATES, neighbour_ends
+    if corridor:  # the corridor's states (the parallel circuit's and the neighbours')
+        from relayset.studies.corridor import corridor_states, neighbour_ends
 
-        states, nb_ends = NEIGHBOUR_STATES, neighbour_ends(study, params, source)
-    for state in states:
+        states, nb_ends = corridor_states(geo), neighbour_ends(study, params, source)
+    for cstate in states:
+        state = cstate.parallel if corridor else cstate
+        all_in = cstate.all_in_service if corridor else state == "in_service"
+        nb_kw = cstate.solver_args(nb_ends) if corridor else {"parallel_state": state}
         for s_s, s_r, scales, labels, loaded in configs:
             emf_t = None
             if loaded:
                 emf = load_emfs(env, line, src, names, relay_end, scales, state,
-                                geo.v_nominal_v, corridor)
+                                geo.v_nominal_v, geo.n_circuits if corridor else 0)
                 emf_t = (emf[0], emf[1])
-            for g in (groups if state == "in_service" else (bolted,)):
+            for g in (groups if all_in else (bolted,)):
                 try:
                     sw = solve_sweep(
                         caps, cap, line, s_s, s_r, v_nominal_v=geo.v_nominal_v,
                         fault_types=g.fault_types, m=m, r_fault_ohm=g.rf_pairs[:, 0],
                         r_phase_ohm=g.rf_pairs[:, 1], source_scale=scales,
-                        transfer_angle_rad=np.zeros(1), parallel_state=state, emf_v=emf_t,
-                        outputs=OUTPUTS, z_branch_ohm=z_b, neighbour=nb_ends)
+                        transfer_angle_rad=np.zeros(1), emf_v=emf_t,
+                        outputs=OUTPUTS, z_branch_ohm=z_b, **nb_kw)
                 except InputError as exc:
                     raise exc.located(source=source) from None
-                run = Run(sw, "branch", _state_name(state, geo.n_circuits, corridor), labels,
+                run = Run(sw, "branch", cstate.label if corridor
+                          else _state_name(state, geo.n_circuits, False), labels,
                           rho, (s_s is not None, s_r is not None), g.name, branch=info,
                           cap_state=cap)
                 out.append(run if measure is None else measure(run))
