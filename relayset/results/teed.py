@@ -6,7 +6,7 @@ from dataclasses import dataclass
 from typing import Any
 
 from relayset.results.serialize import cplx
-from relayset.results.settings import Check
+from relayset.results.settings import Check, SettingsResult
 
 
 @dataclass(frozen=True)
@@ -23,11 +23,14 @@ class TeedApparent:
     max_ohm: float
     min_case: str  #: fault type, loop and source case of the smallest
     max_case: str
+    min_z_ohm: complex = 0j  #: the apparent impedance of the smallest case [ohm]
+    max_z_ohm: complex = 0j  #: and of the largest [ohm]
 
     def to_dict(self) -> dict[str, Any]:
         return {"remote": self.remote, "infeed": self.infeed, "min_ohm": self.min_ohm,
                 "max_ohm": self.max_ohm, "min_case": self.min_case,
-                "max_case": self.max_case}
+                "max_case": self.max_case, "min_z_ohm": cplx(self.min_z_ohm),
+                "max_z_ohm": cplx(self.max_z_ohm)}
 
 
 @dataclass(frozen=True)
@@ -47,6 +50,11 @@ class TeedEndSettings:
     zone2_secondary_ohm: complex = 0j
     #: the fault simulation's (relayset.studies.verification.teed)
     verification_checks: tuple[Check, ...] = ()
+    #: zone 1 and zone 2 as set, the characteristic of each (mho or quadrilateral, the
+    #: philosophy's shape), k0, the load check and, with a relay profile, the settable
+    #: values: the two-ended settings' results type (their zones' own checks are in
+    #: ``checks``, ids prefixed by the zone)
+    settings: SettingsResult | None = None
 
     @property
     def all_checks(self) -> tuple[Check, ...]:
@@ -62,7 +70,8 @@ class TeedEndSettings:
                 "zone1_ohm": cplx(self.zone1_ohm), "zone1_rule": self.zone1_rule,
                 "zone2_ohm": cplx(self.zone2_ohm), "zone2_rule": self.zone2_rule,
                 "checks": [_check(c) for c in self.checks],
-                "verification_checks": [_check(c) for c in self.verification_checks]}
+                "verification_checks": [_check(c) for c in self.verification_checks]} | (
+                    {} if self.settings is None else {"settings": self.settings.to_dict()})
 
 
 def _check(c: Check) -> dict[str, Any]:

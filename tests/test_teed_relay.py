@@ -1,0 +1,192 @@
+"""The relay side of a three-terminal (teed) line: the philosophy's zone shape, relay
+profiles, accepted deviations and the R-X diagram (relayset.settings.teed,
+relayset.studies.teed, relayset.studies.verification.teed, relayset.report.teed).
+
+Independent checks: the loop impedance of a three-phase bolted fault on a balanced line
+without shunt capacitance is the series impedance between the relay and the fault
+(Kirchhoff's voltage law), tested against a quadrilateral whose half-planes are written out
+by hand here; Warrington's arc formula (A. R. van C. Warrington, "Reactance relays
+negligibly affected by arc impedance", Electrical World, 1931: R = 8750 (s + 3 v t) / I^1.4,
+s in feet) for the resistive reach; a relay profile's step applied by hand.
+"""
+
+from __future__ import annotations
+
+import cmath
+import math
+from dataclasses import dataclass
+
+import numpy as np
+import pytest
+from test_teed import SOURCES, V_NOM, _balanced_leg
+from test_teed_study import TEED_TOML
+
+from relayset.physics.characteristic import Quadrilateral
+from relayset.physics.teed import TeedLine
+
+Z1_KM = (0.05 + 0.40j) / 1e3  # [ohm/m], the balanced legs of tests/test_teed.py
+
+
+@dataclass(frozen=True)
+class _Quad:
+    """A forward quadrilateral zone as the relay model reads a zone (``characteristic``,
+    ``direction``), for both kinds of loop."""
+
+    x_reach: float
+    r_right: float
+    r_left: float
+    direction: str = "forward"
+
+    def characteristic(self, ground: bool, line_angle_rad: float) -> Quadrilateral:
+        return Quadrilateral(self.x_reach, self.r_right, line_angle_rad,
+                             r_left_ohm=self.r_left, direction=self.direction)
+
+
+def _inside_by_hand(z: complex, x_reach: float, r_right: float, r_left: float,
+                    theta: float) -> bool:
+    """The quadrilateral's four half-planes written out (IEEE Std C37.113-2015's shape:
+    reactance line X <= X_reach, blinders parallel to the line angle through (R_right, 0)
+    and (-R_left, 0), directional line through the origin perpendicular to the line
+    angle)."""
+    r, x = z.real, z.imag
+    return (x <= x_reach
+            and r * math.sin(theta) - x * math.cos(theta) <= r_right * math.sin(theta)
+            and -r * math.sin(theta) + x * math.cos(theta) <= r_left * math.sin(theta)
+            and r * math.cos(theta) + x * math.sin(theta) >= 0)
+
+
+@pytest.mark.parametrize("side", [+1, -1])
+def test_quadrilateral_zone2_verification_against_the_polygon_by_hand(side):
+    """A balanced teed line, the third terminal open (no infeed): three-phase bolted faults
+    are measured at the relay as the series impedance to the fault (Kirchhoff), so on the
+    line's own angle (82.9 deg). The relay's blinders are set at 70 deg, so these points
+    lie left of the blinder direction; the farthest one (bus R) needs a left blinder offset
+    of X/tan(70 deg) - R. Zone 2 with its left blinder 0.1 % wider covers every leg; 0.1 %
+    narrower, the fault at R falls outside the polygon (hand half-planes agree) and the
+    verification says zone 2 does not reach it."""
+    from relayset.studies.verification.relay_model import RelayModel
+    from relayset.studies.verification.teed import verify_teed
+
+    ls, lr, lt = 25e3, 35e3, 15e3
+    line = TeedLine((_balanced_leg(ls), _balanced_leg(lr), _balanced_leg(lt)))
+    theta = math.radians(70.0)
+    z_far = Z1_KM * (ls + lr)  # the relay at S sees bus R here (T open: no infeed)
+    need_left = z_far.imag / math.tan(theta) - z_far.real
+    r_left = need_left * (1 + side * 1e-3)
+    x_reach = 2 * z_far.imag
+    assert _inside_by_hand(z_far, x_reach, 30.0, r_left, theta) is (side > 0)
+    zone2 = _Quad(x_reach, 30.0, r_left)
+    zone1 = _Quad(0.5 * (Z1_KM * ls).imag, 30.0, 30.0)
+    res = verify_teed(
+        [("earth", line)], (SOURCES[0], SOURCES[1], None), (0,), {0: (zone1, zone2)},
+        v_nominal_v=V_NOM, fault_types=["ABC"], r_fault_ohm=[0.0],
+        source_scale=np.array([1.0]), case_names=("nominal",), k0=0j,
+        line_angle_rad=theta, z_line_ohm=abs(z_far), models={0: RelayModel()},
+        buses=("S", "R", "T"))[0]
+    chk = {c.check_id: c for c in res.checks}["zone2_covers_all_legs"]
+    assert chk.passed is (side > 0), chk.detail
+    if side < 0:
+        assert res.zone2_internal_scale == math.inf and "at R," in chk.detail
+    else:  # inside: the reach scale is the reactance line's, X / X_reach (hand: 0.5)
+        assert res.zone2_internal_scale == pytest.approx(0.5, rel=1e-9)
+
+
+def test_quadrilateral_zone1_remote_terminal_against_the_reactance_line_by_hand():
+    """Zone 1 must stay out of the remote terminals: the nearest one seen without infeed
+    (bus T, at Z1 (ls + lt), Kirchhoff) has the reach scale X / X_reach of the reactance
+    line; at 0.8 of its X the scale is 1/0.8, at 1.01 of it zone 1 operates."""
+    from relayset.studies.verification.relay_model import RelayModel
+    from relayset.studies.verification.teed import verify_teed
+
+    ls, lr, lt = 25e3, 35e3, 15e3
+    line = TeedLine((_balanced_leg(ls), _balanced_leg(lr), _balanced_leg(lt)))
+    theta = float(np.angle(Z1_KM))
+    near = Z1_KM * (ls + lt)
+    kw = dict(v_nominal_v=V_NOM, fault_types=["ABC"], r_fault_ohm=[0.0],
+              source_scale=np.array([1.0]), case_names=("nominal",), k0=0j,
+              line_angle_rad=theta, z_line_ohm=abs(Z1_KM) * (ls + lr),
+              models={0: RelayModel()}, buses=("S", "R", "T"))
+    zone2 = _Quad(3 * near.imag, 5.0, 5.0)
+    for factor, ok in ((0.8, True), (1.01, False)):
+        assert _inside_by_hand(near, factor * near.imag, 5.0, 5.0, theta) is not ok
+        res = verify_teed([("earth", line)], (SOURCES[0], None, SOURCES[2]), (0,),
+                          {0: (_Quad(factor * near.imag, 5.0, 5.0), zone2)}, **kw)[0]
+        chk = {c.check_id: c for c in res.checks}["zone1_no_remote_terminal_trip"]
+        assert chk.passed is ok
+        assert res.zone1_remote_scale == pytest.approx(1 / factor, rel=1e-9)
+
+
+QUAD_PHILOSOPHY = '[characteristic]\nshape = "quadrilateral"\n'
+
+
+def _study(tmp_path, text: str = TEED_TOML, philosophy: str | None = QUAD_PHILOSOPHY):
+    if philosophy is not None:
+        (tmp_path / "quad.toml").write_text(philosophy, encoding="utf-8")
+        text = text.replace('to_substation = "Velmar"\n',
+                            'to_substation = "Velmar"\nphilosophy = "quad.toml"\n', 1)
+    path = tmp_path / "teed.toml"
+    path.write_text(text, encoding="utf-8")
+    return path
+
+
+@pytest.fixture(scope="module")
+def quad_result(tmp_path_factory):
+    from relayset.studies import pipeline
+    from relayset.studies.teed import run_teed
+
+    return run_teed(pipeline.load(_study(tmp_path_factory.mktemp("quad"))))
+
+
+def test_a_quadrilateral_philosophy_gives_quadrilateral_teed_zones(quad_result):
+    """The philosophy's shape is used (before: mho circles whatever the philosophy said),
+    through the one characteristic object, and the verification says it simulated them."""
+    for e in quad_result.ends:
+        for z in e.settings.zones:
+            assert z.shape == "quadrilateral"
+            ch = z.characteristic(True, cmath.phase(quad_result.z1_set_ohm))
+            assert isinstance(ch, Quadrilateral)
+            assert ch.region()["kind"] == "polygon"
+            # the reach point on the line angle lies on the reactance line (X = Im Zt)
+            assert z.x_reach_primary_ohm == pytest.approx(z.reach_primary_ohm.imag, rel=1e-12)
+        ids = [c.check_id for c in e.checks]
+        assert "zone1_resistive_load_limit" in ids and "zone2_load_encroachment" in ids
+    text = " ".join(quad_result.assumptions)
+    assert "quadrilateral shapes" not in text and "mho or quadrilateral" in text
+
+
+def test_teed_zone1_blinder_is_the_two_ended_arc_rule_by_hand(quad_result):
+    """Zone 1's ground-loop blinder: (1 + margin) (R_arc + R_footing) / |1 + k0|, the arc
+    by Warrington's formula (no wind, defaults: margin 20 %, footing 10 ohm, ground arc
+    0.01 m per kV) at the phase-to-phase current of a fault at the farthest remote terminal
+    fed from the relay end alone, I = V / |2 (Zs + Z_path)|; the phase-loop blinder
+    (1 + margin) R_arc / 2 with the phase spacing (5 m) as arc length."""
+    legs = [z1 for _, z1, _ in quad_result.legs]
+    zs = {"Wrenfold": 1.5 + 12j, "Velmar": 2.5 + 18j, "Oakrest": 4 + 30j}
+    k0 = quad_result.k0_set
+    for x, e in enumerate(quad_result.ends):
+        path = legs[x] + max((legs[y] for y in range(3) if y != x), key=abs)
+        i_arc = V_NOM / abs(2 * (zs[e.end] + path))
+        warrington = 8750 / 0.3048  # ohm A^1.4 per metre (8750 per foot)
+        r_g = 1.2 * (warrington * 1.32 / i_arc ** 1.4 + 10.0) / abs(1 + k0)
+        r_ph = 1.2 * warrington * 5.0 / i_arc ** 1.4 / 2
+        z1 = e.settings.zone("zone1")
+        assert z1.r_reach_ground_primary_ohm == pytest.approx(r_g, rel=1e-9)
+        assert z1.r_reach_phase_primary_ohm == pytest.approx(r_ph, rel=1e-9)
+
+
+def test_quadrilateral_zone2_holds_the_remote_terminals_with_infeed(quad_result):
+    """Zone 2's blinders are widened (both sides) to hold every bolted remote-terminal
+    fault as the infeed turns it: the reach study's extreme cases lie inside zone 2 by the
+    hand half-planes (each with its loop's blinders), and the verification finds every
+    bolted fault on the legs inside zone 2."""
+    theta = cmath.phase(quad_result.z1_set_ohm)
+    for e in quad_result.ends:
+        chk = {c.check_id: c for c in e.verification_checks}["zone2_covers_all_legs"]
+        assert chk.passed, chk.detail
+        z2 = e.settings.zone("zone2")
+        for a in e.apparent:
+            for z, case in ((a.min_z_ohm, a.min_case), (a.max_z_ohm, a.max_case)):
+                loop = case.split("loop ")[1].split(",")[0]
+                q = z2.characteristic(loop.endswith("G"), theta)
+                assert _inside_by_hand(z, q.x_reach_ohm, q.r_reach_ohm, q.r_left, theta), (
+                    e.end, a, z)
