@@ -190,3 +190,115 @@ def test_quadrilateral_zone2_holds_the_remote_terminals_with_infeed(quad_result)
                 q = z2.characteristic(loop.endswith("G"), theta)
                 assert _inside_by_hand(z, q.x_reach_ohm, q.r_reach_ohm, q.r_left, theta), (
                     e.end, a, z)
+
+
+# --------------------------------------------------------------------- relay profiles
+def _profile(tmp_path, edit: tuple[str, str] | None = None) -> str:
+    """The shipped generic quadrilateral profile (1 A, steps 0.01 ohm), edited."""
+    from relayset.inputs.profile import shipped_profiles
+
+    text = shipped_profiles()["generic_quadrilateral_1a"].read_text(encoding="utf-8")
+    if edit is not None:
+        assert edit[0] in text
+        text = text.replace(*edit, 1)
+    (tmp_path / "prof.toml").write_text(text, encoding="utf-8")
+    return TEED_TOML.replace('vt_ratio = "132000/110 V"\n',
+                             'vt_ratio = "132000/110 V"\nprofile = "prof.toml"\n', 1)
+
+
+def _run(path):
+    from relayset.studies import pipeline
+    from relayset.studies.teed import run_teed
+
+    return run_teed(pipeline.load(path))
+
+
+def test_teed_zones_on_the_profile_steps_by_hand(tmp_path, quad_result):
+    """Each end's settable values: the ideal secondary value (primary x CT ratio / VT
+    ratio = 600/1200 here) rounded to the profile's 0.01 ohm step by hand, zone 1's reach
+    down, zone 2's up, blinders down (settings.settable.ROUNDING); the zone as set (and so
+    the verification) carries the settable value back in primary ohms."""
+    res = _run(_study(tmp_path, _profile(tmp_path)))
+    f = 600 / (132000 / 110)
+    for ideal, e in zip(quad_result.ends, res.ends, strict=True):
+        st = e.settings
+        assert st.settable is not None and st.settable.profile_name.startswith("Generic")
+        for zone, how in (("zone1", math.floor), ("zone2", math.ceil)):
+            x_ideal = ideal.settings.zone(zone).x_reach_primary_ohm * f
+            by_hand = how(round(x_ideal / 0.01, 6)) * 0.01
+            z = st.zone(zone)
+            assert z.x_reach_secondary_ohm == pytest.approx(by_hand, abs=1e-12)
+            assert z.x_reach_primary_ohm == pytest.approx(by_hand / f, rel=1e-12)
+            r_ideal = ideal.settings.zone(zone).r_reach_ground_primary_ohm * f
+            assert z.r_reach_ground_secondary_ohm == pytest.approx(
+                math.floor(round(r_ideal / 0.01, 6)) * 0.01, abs=1e-12)
+            v = st.settable.value(f"{zone}.reach")
+            assert v.ideal == pytest.approx(x_ideal, rel=1e-12)
+            assert v.settable == z.x_reach_secondary_ohm
+        ids = {c.check_id: c for c in e.checks}
+        assert ids["zone1_within_profile_range"].passed
+        assert ids["zone2_within_profile_range"].passed
+
+
+def test_a_value_outside_the_profile_range_fails_its_check(tmp_path):
+    """Zone 2's reach above the profile's range: a failed ``zone2_within_profile_range``
+    naming the range (never clamped), and the verdict says failed checks."""
+    text = _profile(tmp_path, ('label = "Zone 2 reactance reach"\nmin = 0.05\nmax = 250',
+                               'label = "Zone 2 reactance reach"\nmin = 0.05\nmax = 5'))
+    res = _run(_study(tmp_path, text))
+    for e in res.ends:
+        c = {c.check_id: c for c in e.checks}["zone2_within_profile_range"]
+        assert not c.passed and "outside the range 0.05 to 5" in c.detail
+        assert e.settings.zone("zone2").x_reach_secondary_ohm > 5  # not clamped
+    assert res.verification == "failed checks"
+
+
+def test_the_verification_judges_the_settable_zone(tmp_path):
+    """A coarse zone 1 reach step (1 ohm secondary, rounded down) against the profile's
+    own 0.01 ohm step (k0 rounded alike in both): the verification's smallest zone 1 reach
+    scale over the remote-terminal faults grows by the ratio of the two settable reactance
+    reaches (the scale of a point inside the blinders is X / X_reach,
+    relayset.physics.characteristic.Quadrilateral)."""
+    import re
+
+    fine = _run(_study(tmp_path, _profile(tmp_path)))
+    text = _profile(tmp_path, ('label = "Zone 1 reactance reach"\nmin = 0.05\nmax = 250\n'
+                               'step = 0.01',
+                               'label = "Zone 1 reactance reach"\nmin = 1\nmax = 250\n'
+                               'step = 1'))
+    res = _run(_study(tmp_path, text))
+
+    def scale(e):
+        c = {c.check_id: c for c in e.verification_checks}["zone1_no_remote_terminal_trip"]
+        return float(re.search(r"smallest reach scale ([0-9.]+)", c.detail).group(1))
+
+    for ideal, e in zip(fine.ends, res.ends, strict=True):
+        ratio = (ideal.settings.zone("zone1").x_reach_primary_ohm
+                 / e.settings.zone("zone1").x_reach_primary_ohm)
+        assert ratio > 1.005  # the step moved the reach
+        assert scale(e) == pytest.approx(scale(ideal) * ratio, rel=2e-3)
+
+
+def test_teed_report_with_a_profile_embeds_it_and_verify_recomputes(tmp_path, capsys):
+    """The report of a teed study on a relay profile prints each end's settable values,
+    embeds the profile (its SHA-256 the one each end's settable values record), and
+    `relayset verify` recomputes the study from the embedded files: it matches."""
+    pytest.importorskip("pypdf")
+    import json
+
+    from relayset.cli import main
+
+    path = _study(tmp_path, TEED_TOML.replace(
+        'vt_ratio = "132000/110 V"\n',
+        'vt_ratio = "132000/110 V"\nprofile = "generic_quadrilateral_1a"\n', 1))
+    out = tmp_path / "rep"
+    assert main(["report", str(path), "-o", str(out)]) in (0, 3)
+    capsys.readouterr()
+    html = next(out.glob("*.html")).read_text("utf-8")
+    assert "Settable values on the relay profile" in html and "zone2.resistive_ground" in html
+    d = json.loads(next(out.glob("*.json")).read_text("utf-8"))
+    hashes = {e["settings"]["settable"]["profile"]["sha256"] for e in d["teed"]["ends"]}
+    assert len(hashes) == 1
+    assert main(["verify", str(next(out.glob("*.pdf")))]) == 0
+    text = capsys.readouterr().out
+    assert "MATCHES" in text and hashes.pop() in text

@@ -135,11 +135,6 @@ BAD = [
                                      'at = "Velmar"\ncompensation_pct = 30\n'
                                      'protective_level = 2.2\nrated_current = "1 kA"\n\n[load]'),
      ['series_capacitors[0].name = "bank"', "overhead sections only"]),
-    # no settable values for a teed line (a report would embed no profile to verify with)
-    ("teed line on a relay profile",
-     ('vt_ratio = "132000/110 V"',
-      'vt_ratio = "132000/110 V"\nprofile = "generic_quadrilateral_1a"'),
-     ['relay.profile = "generic_quadrilateral_1a"', "relay profile's steps"]),
 ]
 
 

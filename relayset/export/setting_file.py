@@ -122,7 +122,9 @@ def profile_attachment(results) -> tuple[str, bytes] | None:
     """
     from relayset.inputs.profile import study_profile
 
-    ends = results.settings or ()
+    teed = getattr(results, "teed", None)  # a teed line's ends carry their own settings
+    ends = results.settings or tuple(e.settings for e in (teed.ends if teed else ())
+                                     if e.settings is not None)
     if not ends or ends[0].settable is None:
         return None
     rel = (results.input or {}).get("relay") or {}
@@ -137,8 +139,12 @@ def profile_attachment(results) -> tuple[str, bytes] | None:
 
 def embedded_setting_files(results, results_text: str, doc_id: str
                            ) -> list[tuple[str, bytes]]:
-    """(name, bytes) of each relay end's setting file (JSON) for a report's attachments."""
+    """(name, bytes) of each relay end's setting file (JSON) for a report's attachments
+    (none yet for a three-terminal line: setting files are two-ended)."""
     from relayset import io
+
+    if getattr(results, "teed", None) is not None:
+        return []
 
     return [(f"{end_stem(doc_id, d['relay_end'])}.json", io.to_json(d).encode("utf-8"))
             for d in setting_records(results, results_text)]

@@ -64,10 +64,6 @@ def check_tee(study: Any, data: dict, fail: Callable[..., None]) -> None:
     if len(study.circuits) != 1:
         fail("a tee is modelled on a single-circuit line only (this line has two circuits)",
              "tee", None)
-    if study.relay.profile is not None:  # settable values are two-ended (settings/settable)
-        fail("a three-terminal line's zones are not put on a relay profile's steps "
-             "(settable values and setting files are for two-ended lines): remove it",
-             "relay.profile", study.relay.profile)
     length = study.line.length
     raw_d = _raw(data, "tee", "distance")
     if not tee.distance < length:
