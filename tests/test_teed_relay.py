@@ -302,3 +302,85 @@ def test_teed_report_with_a_profile_embeds_it_and_verify_recomputes(tmp_path, ca
     assert main(["verify", str(next(out.glob("*.pdf")))]) == 0
     text = capsys.readouterr().out
     assert "MATCHES" in text and hashes.pop() in text
+
+
+# ----------------------------------------------------------------- accepted deviations
+NEXT_LINE = '''
+[[adjacent_lines]]
+name = "Velmar - Ixworth 132 kV"
+z1 = "2 + 6j ohm"
+bus = "Velmar"
+'''
+
+
+def _deviation(check: str, end: str) -> str:
+    return (f'\n[[deviations]]\ncheck = "{check}"\nend = "{end}"\n'
+            'reason = "zone 2 is time graded with the next zone 2 by the protection study"\n'
+            'accepted_by = "A. Mbeki"\ndate = 2026-12-01\n')
+
+
+# The checks the short next line fails (a zone 2 that must reach Velmar with infeed
+# overlaps its zone 1), by end: the setting rule's and the simulation's.
+FAILING = {end: ("zone2.short_of_next_zone1", "zone2.stays_short_of_next_zone1")
+           for end in ("Wrenfold", "Oakrest")}
+
+
+def _settings(tmp_path, capsys, extra: str):
+    from relayset.cli import main
+
+    path = tmp_path / "dev.toml"
+    path.write_text(TEED_TOML + NEXT_LINE + extra, encoding="utf-8")
+    out_json = tmp_path / "dev.json"
+    code = main(["settings", str(path), "--json", str(out_json)])
+    cap = capsys.readouterr()
+    return code, cap, out_json
+
+
+def test_accepted_deviations_change_the_teed_verdict(tmp_path, capsys):
+    """The two-ended rule (relayset.studies.verification.deviations): a failed check the
+    study accepts is listed with who and why and not counted; every failure accepted gives
+    "verified with accepted deviations" and exit 0; one left open keeps "failed checks"
+    and exit 3, with the one count of failed checks one per open check."""
+    import json
+
+    from relayset.report.failures import failed_checks
+
+    code, _, out = _settings(tmp_path, capsys, "")
+    d = json.loads(out.read_text("utf-8"))
+    assert code == 3 and d["teed"]["verification"] == "failed checks"
+    assert len(failed_checks(d)) == 4
+    every = "".join(_deviation(c, e) for e, cs in FAILING.items() for c in cs)
+    code, cap, out = _settings(tmp_path, capsys, every)
+    d = json.loads(out.read_text("utf-8"))
+    assert code == 0, cap.err
+    assert d["teed"]["verification"] == "verified with accepted deviations"
+    assert failed_checks(d) == []
+    assert {(a["end"], a["check"]) for a in d["teed"]["accepted_deviations"]} == {
+        (e, c) for e, cs in FAILING.items() for c in cs}
+    assert "accepted as a deviation (zone2.short_of_next_zone1) by A. Mbeki" in cap.out
+    # one of the four left open
+    some = "".join(_deviation(c, e) for e, cs in FAILING.items() for c in cs
+                   if (e, c) != ("Oakrest", "zone2.stays_short_of_next_zone1"))
+    code, _, out = _settings(tmp_path, capsys, some)
+    d = json.loads(out.read_text("utf-8"))
+    assert code == 3 and d["teed"]["verification"] == "failed checks"
+    assert [(f.end, f.check_id) for f in failed_checks(d)] == [
+        ("Oakrest", "zone2_stays_short_of_next_zone1")]
+
+
+@pytest.mark.parametrize("check, end, words", [
+    ("zone1.reaches_tee", "Wrenfold", ["names no failing check", "passed at Wrenfold"]),
+    ("zone2.short_of_next_zone", "Wrenfold",
+     ["is no check of the verification or the settings at Wrenfold",
+      "zone2.short_of_next_zone1"]),
+])
+def test_a_deviation_that_accepts_nothing_is_refused(tmp_path, capsys, check, end, words):
+    """A stale or mistyped acceptance must not cover a later failure: one line naming the
+    file, the field and the value, exit 2, nothing written."""
+    code, cap, out = _settings(tmp_path, capsys, _deviation(check, end))
+    err = cap.err.strip()
+    assert code == 2 and len(err.splitlines()) == 1 and "Traceback" not in err
+    assert f'deviations[0].check = "{check}"' in err
+    for w in words:
+        assert w in err, err
+    assert not out.exists()

@@ -69,8 +69,13 @@ def teed_summary(res: TeedStudyResult, source: str) -> str:
                     for w in e.settings.warnings]
         for c in e.all_checks:
             mark = "n/j " if not c.judged else "pass" if c.passed else "FAIL"
+            acc = None if c.passed else res.accepted(e.end, c.check_id)
             out.append(f"  [{mark}] {c.check_id}: "
-                       f"{visible_text(c.detail)}")
+                       f"{visible_text(c.detail)}"
+                       + ("" if acc is None else
+                          f" [accepted as a deviation ({acc.check}) by "
+                          f"{visible_text(acc.accepted_by)}, {acc.date}: "
+                          f"{visible_text(acc.reason)}]"))
     out.append("Assumptions:")
     out += [f"  - {a}" for a in res.assumptions]
     out.append(f"Verdict: {res.verification}")
@@ -109,10 +114,19 @@ def teed_context(d: dict[str, Any], raw: dict[str, Any], u: dict[str, Any]
     else:
         third = "no source: the branch ends open"
 
-    def check(c: dict[str, Any]) -> dict[str, Any]:
+    from relayset.results.teed import deviation_name
+
+    accepted = {(str(a.get("end")), str(a.get("check"))): a
+                for a in t.get("accepted_deviations", []) or []}
+
+    def check(c: dict[str, Any], end: str) -> dict[str, Any]:
+        a = None if c["passed"] else accepted.get((end, deviation_name(str(c["check_id"]))))
         return {"id": str(c["check_id"]), "passed": bool(c["passed"]),
                 "judged": bool(c.get("judged", True)),
-                "detail": _ohm_text(str(c["detail"]))}
+                "detail": _ohm_text(str(c["detail"])),
+                "accepted": None if a is None else
+                f"accepted as a deviation ({a['check']}) by {a['accepted_by']}, {a['date']}: "
+                f"{a['reason']}"}
 
     def zone(label: str, pri: Any, sec: Any, rule: str) -> dict[str, str]:
         return {"label": label, "pri": num(abs(_complex(pri)), P["ohm"]),
@@ -137,8 +151,8 @@ def teed_context(d: dict[str, Any], raw: dict[str, Any], u: dict[str, Any]
                            e["zone1_rule"]),
                       zone(ZONE_LABELS["zone2"], e["zone2_ohm"], e["zone2_secondary_ohm"],
                            e["zone2_rule"])],
-            "checks": [check(c) for c in e["checks"]],
-            "verification_checks": [check(c) for c in e["verification_checks"]],
+            "checks": [check(c, str(e["end"])) for c in e["checks"]],
+            "verification_checks": [check(c, str(e["end"])) for c in e["verification_checks"]],
             "failed_checks": [f for f in failures if f.end == str(e["end"])],
             **_zone_parts(e.get("settings"), _zone, _settable, num, P),
         })

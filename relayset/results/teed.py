@@ -7,6 +7,15 @@ from typing import Any
 
 from relayset.results.serialize import cplx
 from relayset.results.settings import Check, SettingsResult
+from relayset.results.verification import AcceptedDeviation
+
+
+def deviation_name(check_id: str) -> str:
+    """How ``[[deviations]]`` names a teed check, "zone.check_id" like a two-ended one: the
+    check's zone (the first word of its id) and the rest of the id,
+    ``zone2_short_of_next_zone1`` -> ``zone2.short_of_next_zone1``."""
+    zone, _, rest = check_id.partition("_")
+    return f"{zone}.{rest}"
 
 
 @dataclass(frozen=True)
@@ -93,9 +102,18 @@ class TeedStudyResult:
     #: per leg (from, to, third substation to the tee): (length [m], Z1 [ohm], Z0 [ohm]),
     #: sequence impedances of the leg's series matrix as built (Fortescue)
     legs: tuple[tuple[float, complex, complex], ...]
-    #: "verified" or "failed checks" (relayset.results.verification.VERDICTS), over the
-    #: setting rules' and the fault simulation's checks of every end
+    #: "verified", "verified with accepted deviations" or "failed checks"
+    #: (relayset.results.verification.VERDICTS), over the setting rules' and the fault
+    #: simulation's checks of every end
     verification: str
+    #: failed checks the study accepts (``[[deviations]]``, named by
+    #: :func:`deviation_name`): not counted as failed
+    deviations: tuple[AcceptedDeviation, ...] = ()
+
+    def accepted(self, end: str, check_id: str) -> AcceptedDeviation | None:
+        """The accepted deviation of a failed check at ``end`` (None: not accepted)."""
+        name = deviation_name(check_id)
+        return next((a for a in self.deviations if a.end == end and a.check == name), None)
 
     def to_dict(self) -> dict[str, Any]:
         return {"buses": list(self.buses), "tee_distance_m": self.tee_distance_m,
@@ -103,4 +121,5 @@ class TeedStudyResult:
                 "k0_set": cplx(self.k0_set), "ends": [e.to_dict() for e in self.ends],
                 "legs": [{"bus": b, "length_m": ln, "z1_ohm": cplx(z1), "z0_ohm": cplx(z0)}
                          for b, (ln, z1, z0) in zip(self.buses, self.legs, strict=True)],
-                "assumptions": list(self.assumptions), "verification": self.verification}
+                "assumptions": list(self.assumptions), "verification": self.verification,
+                "accepted_deviations": [a.to_dict() for a in self.deviations]}

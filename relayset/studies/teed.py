@@ -30,7 +30,12 @@ from relayset.physics.teed import ENDS, GroundedTransformer, TeedLine, solve_tee
 from relayset.results.parameters import LineParameters
 from relayset.results.relay import RelayBasis
 from relayset.results.settings import SettingsResult
-from relayset.results.teed import TeedApparent, TeedEndSettings, TeedStudyResult
+from relayset.results.teed import (
+    TeedApparent,
+    TeedEndSettings,
+    TeedStudyResult,
+    deviation_name,
+)
 from relayset.settings.inputs import SettingsInputs
 from relayset.settings.resistive import arc_current
 from relayset.settings.teed import (
@@ -349,11 +354,36 @@ def run_teed_study(study: Study, geo: LineGeometry, params: LineParameters,
         **envelope)
     results = [dataclasses.replace(e, verification_checks=sim[x].checks)
                for e, x in zip(results, judged, strict=True)]
-    failed = sum(not c.passed for e in results for c in e.all_checks)
+    accepted = teed_deviations(study, results, source)
+    names = {(a.end, a.check) for a in accepted}
+    failed = sum(not c.passed and (e.end, deviation_name(c.check_id)) not in names
+                 for e in results for c in e.all_checks)
+    from relayset.studies.verification.deviations import verdict
+
     return TeedStudyResult(
         buses=buses, tee_distance_m=study.tee.distance, branch_length_m=study.tee.length,
         z1_set_ohm=relay.z1_set_ohm, k0_set=k0, ends=tuple(results),
         assumptions=(*ASSUMPTIONS, VERIFIED),
         legs=tuple((leg.total_length_m, complex(to_sequence(leg.z_total_ohm)[1, 1]),
                     complex(to_sequence(leg.z_total_ohm)[0, 0])) for leg in line.legs),
-        verification="failed checks" if failed else "verified")
+        verification="failed checks" if failed else verdict((), accepted)[0],
+        deviations=accepted)
+
+
+def teed_deviations(study: Study, ends, source: str) -> tuple:
+    """The study's ``[[deviations]]`` applied to the teed checks by the two-ended rule
+    (:func:`relayset.studies.verification.deviations.apply_deviations`): each must name a
+    check that failed at a relay end of this run ("zone.check_id",
+    :func:`relayset.results.teed.deviation_name`), or the study is refused in one line."""
+    from relayset.results.verification import EndVerification
+    from relayset.studies.verification.deviations import apply_deviations
+
+    checks: dict[str, dict[str, bool]] = {}
+    for e in ends:
+        own = checks.setdefault(e.end, {})
+        for c in e.all_checks:
+            if c.judged:  # a check that was not carried out is never a deviation
+                name = deviation_name(c.check_id)
+                own[name] = own.get(name, True) and c.passed
+    return apply_deviations(study, [EndVerification(e.end, (), None, None) for e in ends],
+                            source, checks)[1]
