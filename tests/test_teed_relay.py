@@ -384,3 +384,76 @@ def test_a_deviation_that_accepts_nothing_is_refused(tmp_path, capsys, check, en
     for w in words:
         assert w in err, err
     assert not out.exists()
+
+
+# --------------------------------------------------------------------- R-X diagram
+def _html_report(path) -> tuple[str, dict]:
+    """The report's HTML and results JSON (the PDF step left out: the pages are HTML)."""
+    import json
+
+    from relayset.report import build
+
+    r = build.report_for_study(path, pdf_renderer=lambda html, files, when: b"%PDF-")
+    return r.html, json.loads(r.json)
+
+
+@pytest.mark.parametrize("philosophy", [QUAD_PHILOSOPHY, None], ids=["quad", "mho"])
+def test_teed_rx_diagram_draws_each_ends_zones_and_remote_terminals(tmp_path, philosophy):
+    """One R-X diagram per relay end: zone 1 and zone 2 as set (a quadrilateral drawn per
+    loop kind, a mho circle once), read back through the figure's own tick labels equal to
+    the zone's region in the results (the characteristic as set); and the apparent
+    impedances of the remote terminals, two remote terminals x infeed in/out x smallest
+    and largest, at their place (filled: infeed in)."""
+    from test_report import SVG_NS, _axis, _numbers, _role, _svgs
+
+    html, d = _html_report(_study(tmp_path, philosophy=philosophy))
+    figs = _svgs(html)
+    theta = cmath.phase(complex(*d["teed"]["z1_set_ohm"]))
+    assert len([k for k in figs if k.startswith("R-X diagram")]) == 3
+    for e in d["teed"]["ends"]:
+        root = figs[f"R-X diagram, relay at {e['end']}"]
+        ar, kr = _axis(_role(root, "ticks-r"), "x")
+        ax, kx = _axis(_role(root, "ticks-x"), "y")
+        tol = 0.015 / abs(kr)
+        zones = e["settings"]["zones"]
+        drawn = [el for el in root.iter() if el.get("data-zone")]
+        quad = philosophy is not None
+        assert sorted(el.get("data-zone") for el in drawn) == (
+            ["zone1", "zone1", "zone2", "zone2"] if quad else ["zone1", "zone2"])
+        for el in drawn:
+            for loops in el.get("data-loops").split():
+                g = zones[el.get("data-zone")]["region_primary_ohm"][loops]
+                if quad:
+                    xy = np.array(_numbers(el.get("d"))).reshape(-1, 2)
+                    ohm = np.column_stack([(xy[:, 0] - ar) / kr, (xy[:, 1] - ax) / kx])
+                    np.testing.assert_allclose(ohm, g["vertices"], rtol=0, atol=tol)
+                    # the corners are the polygon's by hand: on its boundary lines
+                    z = ohm[:, 0] + 1j * ohm[:, 1]
+                    q = Quadrilateral(zones[el.get("data-zone")]["x_reach_primary_ohm"],
+                                      1.0, theta)  # only its reactance line is used
+                    assert np.any(np.isclose(z.imag, q.x_reach_ohm, atol=tol))
+                else:
+                    assert el.tag == SVG_NS + "circle"
+                    np.testing.assert_allclose(float(el.get("r")) / kr, g["radius"],
+                                               rtol=0, atol=tol)
+        marks = [p for p in _role(root, "points").iter(SVG_NS + "path")]
+        want = [(complex(*a[k]), a["infeed"]) for a in e["apparent"]
+                for k in ("min_z_ohm", "max_z_ohm")]
+        assert len(marks) == len(want) == 8
+        for p, (z, infeed) in zip(marks, want, strict=True):
+            x, y = _numbers(p.get("d"))[:2]  # the square's corner, 2.8 units off centre
+            got = complex((x + 2.8 - ar) / kr, (y + 2.8 - ax) / kx)
+            assert abs(got - z) <= 2 * tol
+            assert (p.get("fill") == "#000") is infeed
+
+
+def test_teed_report_marks_accepted_deviations(tmp_path):
+    """An accepted teed check is printed "FAIL, accepted" with who accepted it and why,
+    and the report's verdict is "verified with accepted deviations"."""
+    path = tmp_path / "dev.toml"
+    every = "".join(_deviation(c, e) for e, cs in FAILING.items() for c in cs)
+    path.write_text(TEED_TOML + NEXT_LINE + every, encoding="utf-8")
+    html, d = _html_report(path)
+    assert d["teed"]["verification"] == "verified with accepted deviations"
+    assert html.count("FAIL, accepted") == 4 and "by A. Mbeki, 2026-12-01" in html
+    assert "VERIFIED WITH ACCEPTED DEVIATIONS" in html.upper()

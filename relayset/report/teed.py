@@ -155,6 +155,7 @@ def teed_context(d: dict[str, Any], raw: dict[str, Any], u: dict[str, Any]
             "verification_checks": [check(c, str(e["end"])) for c in e["verification_checks"]],
             "failed_checks": [f for f in failures if f.end == str(e["end"])],
             **_zone_parts(e.get("settings"), _zone, _settable, num, P),
+            "rx": rx_figure(e),
         })
     return {
         "buses": buses, "third": third,
@@ -194,3 +195,28 @@ def _zone_parts(st: dict[str, Any] | None, zone, settable, num, P) -> dict[str, 
                  "r_limit": num(load["r_limit_primary_ohm"], P["ohm"]),
                  "arc_current": num(st["arc_current_a"], 0)},
     }
+
+
+def rx_figure(e: dict[str, Any]) -> str | None:
+    """The R-X diagram of one teed end (results JSON ``teed.ends[]``), drawn by the
+    two-ended report's :func:`relayset.report.plots.rx_svg`: the end's zones as set (each
+    through its characteristic's region), the relay's Z1, the load region, and the
+    apparent impedances of the remote terminals, bolted faults, smallest and largest along
+    the line angle with the infeed out (open squares) and in (filled); None for results
+    written before the zones carried their characteristics."""
+    st = e.get("settings")
+    if not st:
+        return None
+    from relayset.report.plots import rx_svg
+    from relayset.settings.context import ZONE_LABELS
+
+    zones = {name: dict(z, label=ZONE_LABELS.get(name, name))
+             for name, z in st["zones"].items()}
+    points = []
+    for a in e["apparent"]:
+        for which, key, case in (("smallest", "min_z_ohm", "min_case"),
+                                 ("largest", "max_z_ohm", "max_case")):
+            if a.get(key) is not None:
+                points.append((f"{a['remote']}, infeed {'in' if a['infeed'] else 'out'}, "
+                               f"{which} ({a[case]})", complex(*a[key]), bool(a["infeed"])))
+    return rx_svg({"settings_dict": {**st, "zones": zones}}, None, points)
