@@ -457,3 +457,18 @@ def test_teed_report_marks_accepted_deviations(tmp_path):
     assert d["teed"]["verification"] == "verified with accepted deviations"
     assert html.count("FAIL, accepted") == 4 and "by A. Mbeki, 2026-12-01" in html
     assert "VERIFIED WITH ACCEPTED DEVIATIONS" in html.upper()
+
+
+def test_teed_settings_need_a_load_table(tmp_path, capsys):
+    """The zones' load checks (and a quadrilateral's load limit) need [load], as the
+    two-ended settings do: one line, exit 2, nothing written."""
+    from relayset.cli import main
+
+    path = tmp_path / "noload.toml"
+    path.write_text(TEED_TOML[:TEED_TOML.index("[load]")], encoding="utf-8")
+    out = tmp_path / "x.json"
+    assert main(["settings", str(path), "--json", str(out)]) == 2
+    err = capsys.readouterr().err.strip()
+    assert len(err.splitlines()) == 1 and "Traceback" not in err
+    assert f"{path}: load: settings need a [load] table" in err
+    assert not out.exists()
