@@ -12,6 +12,7 @@ invented ones of tests/test_network.py.
 from __future__ import annotations
 
 import math
+from dataclasses import dataclass
 
 import numpy as np
 import pytest
@@ -19,6 +20,7 @@ from numpy.testing import assert_allclose
 from test_network import C_ABC_NF_KM, Z_ABC_KM
 
 from relayset.errors import InputError
+from relayset.physics.characteristic import Mho
 from relayset.physics.faults import FAULT_TYPES, fault_constraints
 from relayset.physics.network import LineCascade, Source, solve_fault_sweep
 from relayset.physics.sequence import balanced_phase_matrix, fortescue_matrix
@@ -280,6 +282,18 @@ def test_grounded_transformer_changes_no_three_phase_fault():
     assert np.max(np.abs(with_tr.i["S"][1] - open_t.i["S"][1])) > 1e-3 * scale
 
 
+@dataclass(frozen=True)
+class _Mho:
+    """A forward mho zone at the line angle as the relay model reads a zone (its
+    ``characteristic`` and ``direction``, as a ZoneSetting gives them)."""
+
+    reach_ohm: float
+    direction: str = "forward"
+
+    def characteristic(self, ground: bool, line_angle_rad: float) -> Mho:
+        return Mho(self.reach_ohm, line_angle_rad, self.direction)
+
+
 def test_simulated_zones_on_a_balanced_line():
     """The verification's reach scales on a balanced line, three-phase bolted faults: the
     relay at S measures Z_S + Z_Y for a fault at bus Y with the third source out (the infeed
@@ -300,11 +314,13 @@ def test_simulated_zones_on_a_balanced_line():
               source_scale=np.array([1.0]), case_names=("nominal",), k0=0j,
               line_angle_rad=theta, z_line_ohm=abs(z1) * (ls + lr),
               models={0: RelayModel()}, buses=("S", "R", "T"))
-    good = verify_teed([("earth", line)], SOURCES, (0,), {0: (0.8 * near, 3 * near)}, **kw)[0]
+    good = verify_teed([("earth", line)], SOURCES, (0,),
+                       {0: (_Mho(0.8 * near), _Mho(3 * near))}, **kw)[0]
     assert good.zone1_remote_scale == pytest.approx(1 / 0.8, rel=1e-9)
     assert all(c.passed for c in good.checks)
     assert 0 < good.zone1_coverage_pct < 100
-    bad = verify_teed([("earth", line)], SOURCES, (0,), {0: (1.05 * near, 1.1 * near)}, **kw)[0]
+    bad = verify_teed([("earth", line)], SOURCES, (0,),
+                      {0: (_Mho(1.05 * near), _Mho(1.1 * near))}, **kw)[0]
     chk = {c.check_id: c for c in bad.checks}
     assert not chk["zone1_no_remote_terminal_trip"].passed
     assert "overreaches a remote terminal" in chk["zone1_no_remote_terminal_trip"].detail
@@ -348,7 +364,8 @@ def test_simulated_zone2_against_the_next_zone1(factor, passes):
     z_adj = z1 * 20e3
     limit = abs(z1 * (ls + lr) + 0.8 * z_adj)
     res = verify_teed(
-        [("earth", line)], SOURCES, (0,), {0: (0.5 * abs(z1) * (ls + lt), factor * limit)},
+        [("earth", line)], SOURCES, (0,),
+        {0: (_Mho(0.5 * abs(z1) * (ls + lt)), _Mho(factor * limit))},
         v_nominal_v=V_NOM, fault_types=["ABC"], r_fault_ohm=[0.0],
         source_scale=np.array([1.0]), case_names=("nominal",), k0=0j,
         line_angle_rad=float(np.angle(z1)), z_line_ohm=abs(z1) * (ls + lr),
@@ -389,7 +406,7 @@ def test_verification_judges_every_line_it_is_given():
               source_scale=np.array([1.0]), case_names=("nominal",), k0=0j,
               line_angle_rad=float(np.angle(z1)), z_line_ohm=abs(z1) * 60e3,
               models={0: RelayModel()}, buses=("S", "R", "T"))
-    zones = {0: (0.8 * abs(z1) * 40e3, 3 * abs(z1) * 60e3)}
+    zones = {0: (_Mho(0.8 * abs(z1) * 40e3), _Mho(3 * abs(z1) * 60e3))}
     alone = verify_teed([("earth 100 ohm*m", base)], SOURCES, (0,), zones, **kw)[0]
     both = verify_teed([("earth 100 ohm*m", base), ("earth 30 ohm*m", short)], SOURCES,
                        (0,), zones, **kw)[0]

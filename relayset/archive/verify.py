@@ -180,6 +180,9 @@ def _recorded_profile_hashes(results: dict) -> list[str]:
     """The profile SHA-256 each relay end of the results JSON records (hostile JSON)."""
     st = results.get("settings")
     ends = st.get("ends") if isinstance(st, dict) else None
+    teed = results.get("teed")  # a three-terminal line: each end's own settings
+    if ends is None and isinstance(teed, dict) and isinstance(teed.get("ends"), list):
+        ends = [e.get("settings") for e in teed["ends"] if isinstance(e, dict)]
     out = []
     for e in ends if isinstance(ends, list) else []:
         sv = e.get("settable") if isinstance(e, dict) else None

@@ -226,7 +226,9 @@ def _teed_results() -> dict[str, Any]:
             "properties": {"buses": {"type": "array", "items": _STR, "minItems": 3,
                                      "maxItems": 3},
                            "ends": {"type": "array", "items": end},
-                           "verification": {"enum": ["verified", "failed checks"]}}}
+                           "verification": {"enum": ["verified",
+                                                     "verified with accepted deviations",
+                                                     "failed checks"]}}}
 
 
 def settings_file_schema() -> dict[str, Any]:

@@ -51,9 +51,6 @@ def setting_records(results, results_text: str) -> list[dict[str, Any]]:
     ident = results.study
     verdict = (results.teed.verification if results.teed is not None else
                None if results.verification is None else results.verification.verdict)
-    if results.teed is not None and len(end_settings(results, own_only=True)) < len(ends):
-        # the zones were put on the profile's steps here, after the verification
-        verdict = f"{verdict} (the zones before the relay profile's steps)"
     from relayset.inputs.study_file import parse_study
 
     study = parse_study(results.input, source=str(results.source_file))
@@ -129,8 +126,7 @@ def profile_attachment(results) -> tuple[str, bytes] | None:
     from relayset.export.teed import end_settings
     from relayset.inputs.profile import study_profile
 
-    # a teed line's ends where its results carry their settable values
-    ends = end_settings(results, own_only=True)
+    ends = end_settings(results)  # a teed line's ends too
     if not ends or ends[0].settable is None:
         return None
     rel = (results.input or {}).get("relay") or {}

@@ -3,10 +3,8 @@ the test points and the COMTRADE cases, the governing ones solved on the teed so
 
 The zones of each end are read from the results as they are
 (:class:`relayset.results.teed.TeedEndSettings`: its ``settings``, the two-ended settings'
-results type with the zones' characteristics and the relay profile's settable values,
-where the results carry it; else its zone 1 and zone 2 reaches as mho circles at the line
-angle, put on the relay profile's steps by the one rounding rule,
-:func:`relayset.settings.settable.settable_settings`). Nothing here sets a zone.
+results type with the zones' characteristics and the relay profile's settable values).
+Nothing here sets a zone.
 
 Governing cases of a teed end are the cases its two zones are set from
 (:mod:`relayset.studies.teed`): zone 1's, the bolted fault at the nearest remote terminal
@@ -38,78 +36,16 @@ class CaseNotReproducedError(InternalError):
     """A teed end's governing case could not be found again at the reported impedance."""
 
 
-def end_settings(results, *, own_only: bool = False) -> list:
+def end_settings(results) -> list:
     """The :class:`~relayset.results.settings.SettingsResult` of every relay end: a
-    two-ended study's ``settings``; a teed line's, one per end (see the module text).
-    ``own_only``: a teed end whose results carry none is left out (not formed here)."""
+    two-ended study's ``settings``; a teed line's, one per end, as its results carry them
+    (:class:`relayset.results.teed.TeedEndSettings`)."""
     if results.teed is None:
         return list(results.settings or ())
-    out = []
-    for e in results.teed.ends:
-        st = getattr(e, "settings", None)  # the results' own, where they carry it
-        if st is None and not own_only:
-            st = _mho_settings(results, e)
-        if st is not None:
-            out.append(st)
+    out = [e.settings for e in results.teed.ends]
+    if any(st is None for st in out):  # every teed end is set with its zones' shapes
+        raise InternalError("a teed relay end's results carry no zone settings")
     return out
-
-
-def _mho_settings(results, e):
-    """A teed end's zone 1 and zone 2 as the results give them (reaches along the line
-    angle, mho circles at it), in the settings' results type, on the relay profile's steps
-    where the study names one."""
-    from relayset.inputs.profile import study_profile
-    from relayset.inputs.study_file import parse_study
-    from relayset.results.parameters import K0
-    from relayset.results.settings import LoadCheck, SettingsResult, SourceEnd, ZoneSetting
-    from relayset.studies.reach import build_source
-    from relayset.studies.settings import study_philosophy
-
-    src = str(results.source_file)
-    study = parse_study(results.input, source=src)
-    philosophy = study_philosophy(study, src)
-    t = results.teed
-    ct, vt = study.relay.ratios(e.end)
-    factor = ct / vt
-    z1 = complex(t.z1_set_ohm)
-    theta = cmath.phase(z1)
-    zones = []
-    for name, reach, rule, delay in (
-            ("zone1", e.zone1_ohm, e.zone1_rule, philosophy.zone1.delay_s),
-            ("zone2", e.zone2_ohm, e.zone2_rule, philosophy.zone2.delay_s)):
-        d = abs(complex(reach))
-        zones.append(ZoneSetting(
-            zone=name, direction="forward", rule=rule, reach_primary_ohm=complex(reach),
-            reach_secondary_ohm=complex(reach) * factor, reach_pct=100 * d / abs(z1),
-            delay_s=delay, shape="mho", infeed_factor=None, char_angle_rad=theta,
-            mho_diameter_primary_ohm=d, mho_diameter_secondary_ohm=d * factor,
-            x_reach_primary_ohm=None, x_reach_secondary_ohm=None,
-            r_reach_phase_primary_ohm=None, r_reach_phase_secondary_ohm=None,
-            r_reach_ground_primary_ohm=None, r_reach_ground_secondary_ohm=None,
-            arc_resistance_phase_ohm=None, arc_resistance_ground_ohm=None,
-            load_reach_pct_of_min=math.nan))
-    k = complex(t.k0_set)
-    z0 = z1 * (1 + 3 * k)
-    s = build_source(study, e.end, src)
-    others = [b for b in t.buses if b != e.end]
-    st = SettingsResult(
-        end=e.end, remote_end=" and ".join(others), line_z1_primary_ohm=z1,
-        line_z1_secondary_ohm=z1 * factor, line_angle_rad=theta,
-        length_m=float(results.parameters.length_m), secondary_factor=factor,
-        zones=tuple(zones),
-        k0=K0(k0=k, kr=float((z0.real - z1.real) / (3 * z1.real)),
-              kx=float((z0.imag - z1.imag) / (3 * z1.imag)), z0_over_z1=1 + 3 * k),
-        k0m=None, load=LoadCheck(math.nan, math.nan, math.nan, math.nan, None),
-        sources=() if s is None else (SourceEnd(e.end, s.z1_ohm, math.nan, ""),),
-        arc_current_a=None)
-    profile = study_profile(study.relay.profile, src)
-    if profile is None:
-        return st
-    from relayset.settings.settable import settable_settings
-
-    primary = study.relay.ct_primary_a(e.end)
-    return settable_settings(st, profile, study.relay.min_operating_current,
-                             None if primary is None else primary / ct)
 
 
 def end_bases(results, settings: list) -> list:

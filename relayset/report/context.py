@@ -753,72 +753,11 @@ def _relay_model(rm: dict[str, Any] | None) -> list[tuple[str, list[tuple[str, s
 
 
 def _teed(d: dict[str, Any], raw: dict[str, Any], u: dict[str, Any]) -> dict[str, Any] | None:
-    """A three-terminal line (results ``teed``, relayset.studies.teed): the legs, the tee,
-    per relay end the apparent impedances of the remote terminals, zone 1 and zone 2 with
-    their rules, the checks and the verdict; None for a two-ended line."""
-    t = d.get("teed")
-    if t is None:
-        return None
-    from relayset.report.failures import failed_checks
+    """A three-terminal line's part of the report (:func:`relayset.report.teed.teed_context`);
+    None for a two-ended line."""
+    from relayset.report.teed import teed_context
 
-    P = PRECISION
-    buses = [str(b) for b in t["buses"]]
-    tee_in = raw.get("tee") if isinstance(raw.get("tee"), dict) else {}
-    sources = raw.get("sources") if isinstance(raw.get("sources"), dict) else {}
-    if tee_in.get("grounded_transformer_z0") is not None:
-        third = ("a grounded-star transformer only (a zero-sequence source, Z0 = "
-                 f"{tee_in['grounded_transformer_z0']})")
-    elif buses[2] in sources:
-        third = "a source ([sources] above)"
-    else:
-        third = "no source: the branch ends open"
-
-    def check(c: dict[str, Any]) -> dict[str, Any]:
-        return {"id": str(c["check_id"]), "passed": bool(c["passed"]),
-                "judged": bool(c.get("judged", True)),
-                "detail": _ohm_text(str(c["detail"]))}
-
-    def zone(label: str, pri: Any, sec: Any, rule: str) -> dict[str, str]:
-        return {"label": label, "pri": num(abs(_complex(pri)), P["ohm"]),
-                "sec": num(abs(_complex(sec)), P["ohm"]),
-                "angle": num(math.degrees(cmath.phase(_complex(pri))), P["deg"]),
-                "rule": _ohm_text(rule)}
-
-    from relayset.settings.context import ZONE_LABELS
-
-    failures = failed_checks(d)
-    ends = []
-    for e in t["ends"]:
-        ends.append({
-            "end": str(e["end"]),
-            "tee": num(e["tee_ohm"], P["ohm"]),
-            "apparent": [{"remote": str(a["remote"]), "infeed": "in" if a["infeed"] else "out",
-                          "min": num(a["min_ohm"], P["ohm"]), "max": num(a["max_ohm"], P["ohm"]),
-                          "min_case": str(a["min_case"]), "max_case": str(a["max_case"])}
-                         for a in e["apparent"]],
-            "zone1_pct": num(e["zone1_pct"], 1),
-            "zones": [zone(ZONE_LABELS["zone1"], e["zone1_ohm"], e["zone1_secondary_ohm"],
-                           e["zone1_rule"]),
-                      zone(ZONE_LABELS["zone2"], e["zone2_ohm"], e["zone2_secondary_ohm"],
-                           e["zone2_rule"])],
-            "checks": [check(c) for c in e["checks"]],
-            "verification_checks": [check(c) for c in e["verification_checks"]],
-            "failed_checks": [f for f in failures if f.end == str(e["end"])],
-        })
-    return {
-        "buses": buses, "third": third,
-        "tee_distance": num(t["tee_distance_m"] / 1e3 * u["km"], P["len"]),
-        "branch_length": num(t["branch_length_m"] / 1e3 * u["km"], P["len"]),
-        "z1_set": cnum(t["z1_set_ohm"], P["ohm"]), "z1_set_polar": pnum(t["z1_set_ohm"], P["ohm"]),
-        "k0_set": pnum(t["k0_set"], P["pu"]),
-        "legs": [{"bus": str(leg["bus"]),
-                  "length": num(leg["length_m"] / 1e3 * u["km"], P["len"]),
-                  "z1": cnum(leg["z1_ohm"], P["ohm"]), "z0": cnum(leg["z0_ohm"], P["ohm"])}
-                 for leg in t["legs"]],
-        "ends": ends,
-        "assumptions": [_ohm_text(str(a)) for a in t["assumptions"]],
-        "verdict": str(t["verification"]),
-    }
+    return teed_context(d, raw, u)
 
 
 def _verification(r) -> dict[str, Any]:

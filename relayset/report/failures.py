@@ -12,7 +12,8 @@ A failed check is a check that did not pass, of either kind, counted per relay e
 
 A three-terminal line (results ``teed.ends[]``) counts the same two kinds: its setting
 rules' ``checks`` and its fault simulation's ``verification_checks`` that did not pass; the
-zone is the one the check's id begins with (``zone1_...``, ``zone2_...``).
+zone is the one the check's id begins with (``zone1_...``, ``zone2_...``); one the study
+accepts (``teed.accepted_deviations``, named ``zone.rest_of_the_id``) is not counted.
 """
 
 from __future__ import annotations
@@ -49,11 +50,18 @@ def failed_checks(d: dict[str, Any]) -> list[FailedCheck]:
                             "verification")
                 for c in end.get("checks", []) or []
                 if c.get("result") == "FAIL" and not c.get("accepted_deviation")]
-    for end in (d.get("teed") or {}).get("ends", []) or []:
+    teed = d.get("teed") or {}
+    from relayset.results.teed import deviation_name
+
+    accepted |= {(str(x.get("end")), str(x.get("check")))
+                 for x in teed.get("accepted_deviations", []) or []}
+    for end in teed.get("ends", []) or []:
         for key, kind in (("checks", "setting rule"), ("verification_checks", "verification")):
             out += [FailedCheck(str(end.get("end")), str(c.get("check_id")).split("_")[0],
                                 str(c.get("check_id")), kind)
-                    for c in end.get(key, []) or [] if c.get("passed") is False]
+                    for c in end.get(key, []) or [] if c.get("passed") is False
+                    and (str(end.get("end")), deviation_name(str(c.get("check_id"))))
+                    not in accepted]
     return out
 
 

@@ -12,6 +12,7 @@ from __future__ import annotations
 
 import cmath
 import math
+from collections.abc import Sequence
 from typing import Any
 
 from relayset.report.svg import (
@@ -338,9 +339,12 @@ def _governing_cases(verification: dict[str, Any] | None, end: str) -> list[dict
     return out
 
 
-def rx_svg(end: dict[str, Any], verification: dict[str, Any] | None = None) -> str:
+def rx_svg(end: dict[str, Any], verification: dict[str, Any] | None = None,
+           points: Sequence[tuple[str, complex, bool]] = ()) -> str:
     """R-X diagram (primary ohms) of one relay end: zones as set, line replica, load region
-    (both power directions) and the verification's governing fault cases."""
+    (both power directions), the verification's governing fault cases and ``points``
+    (label, impedance [ohm], filled marker), lettered a, b, ... and listed in the legend
+    (a teed line's remote terminals as the relay sees them)."""
     s = end["settings_dict"]
     zl = complex(*s["line"]["z1_primary_ohm"])
     # (kind, geometry, style, legend label, data attributes naming the zone and its loops)
@@ -360,6 +364,7 @@ def rx_svg(end: dict[str, Any], verification: dict[str, Any] | None = None) -> s
                 shapes.append((kind, geo, _zone_style(k, width), f"{z['label']}, {lab}",
                                {"data_zone": name, "data_loops": key}))
                 pts += frame
+    pts += [z for _, z, _ in points]
     cases = _governing_cases(verification, s["end"])
     zmin = s["load"]["z_min_primary_ohm"]
     phi = math.radians(s["load"]["load_angle_max_deg"])
@@ -388,6 +393,9 @@ def rx_svg(end: dict[str, Any], verification: dict[str, Any] | None = None) -> s
     X = Axis(lo_x, hi_x, top + ph, top)
     n_legend = len(shapes) + 2 + (1 if cases else 0)
     case_lines = [_case_lines(n, c) for n, c in enumerate(cases, 1)]
+    case_lines += [_wrap(f"{_letter(k)}  Z = {_n(z.real, 1)} "
+                         f"{'+' if z.imag >= 0 else MINUS} j{_n(abs(z.imag), 1)} Ω: {label}")
+                   for k, (label, z, _) in enumerate(points)]
     legend_rows = math.ceil(n_legend / 2) + sum(len(x) for x in case_lines)
     height = top + ph + 38 + legend_rows * ROW + 6
     svg = Svg(height, f"R-X diagram, relay at {s['end']}")
@@ -453,6 +461,14 @@ def rx_svg(end: dict[str, Any], verification: dict[str, Any] | None = None) -> s
                  stroke_width="0.9", fill="#fff" if c["result"] != "FAIL" else "#000")
         svg.text(cx + 5, cy - 4, str(n), FS_SMALL, fill="#000", font_weight="bold")
     svg.close()
+    # Points: lettered squares (inside the frame: the frame holds them).
+    svg.open("g", fill="#000", data_role="points")
+    for k, (_, z, filled) in enumerate(points):
+        cx, cy = pt(z)
+        svg.path(marker_path("s", [(cx, cy)], 2.8), stroke="#000", stroke_width="0.9",
+                 fill="#000" if filled else "#fff")
+        svg.text(cx + 5, cy + 11, _letter(k), FS_SMALL, fill="#000", font_weight="bold")
+    svg.close()
     # Legend, two entries a row, then the governing cases (one or two rows each).
     entries = [(label, style) for _, _, style, label, _ in shapes]
     y = top + ph + 40
@@ -487,6 +503,24 @@ def rx_svg(end: dict[str, Any], verification: dict[str, Any] | None = None) -> s
 
 #: Height of a legend row [user units].
 ROW = 15.0
+
+
+def _wrap(text: str, width: float = 556.0) -> list[str]:
+    """A legend entry in as many lines as it needs, broken after commas or spaces."""
+    lines, line = [], ""
+    for word in text.split(" "):
+        trial = f"{line} {word}" if line else word
+        if line and text_width(trial, FS_SMALL) > width:
+            lines.append(line)
+            line = word
+        else:
+            line = trial
+    return [*lines, line]
+
+
+def _letter(k: int) -> str:
+    """The label of the k-th point of an R-X diagram: a, b, ..., z, aa, ab, ..."""
+    return (_letter(k // 26 - 1) if k >= 26 else "") + chr(ord("a") + k % 26)
 
 
 def _case_lines(n: int, c: dict[str, Any]) -> list[str]:

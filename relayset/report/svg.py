@@ -13,6 +13,8 @@ import math
 from collections.abc import Iterable, Sequence
 from xml.sax.saxutils import escape, quoteattr
 
+_QUOTE = {'"': "&quot;"}
+
 #: Width of every figure in user units; the CSS scales it to the text width.
 WIDTH = 640.0
 #: Average advance of a DejaVu Sans glyph as a fraction of the font size (for label boxes).
@@ -119,15 +121,16 @@ class Svg:
 
     def add(self, tag: str, text: str | None = None, **attrs) -> None:
         """An element; ``attr_name`` becomes ``attr-name``; None values are left out."""
-        a = "".join(f" {k.rstrip('_').replace('_', '-')}={quoteattr(str(v))}"
+        a = "".join(f" {k.rstrip('_').replace('_', '-')}={quoteattr(str(v), _QUOTE)}"
                     for k, v in attrs.items() if v is not None)
         if text is None:
             self.parts.append(f"<{tag}{a}/>")
         else:
-            self.parts.append(f"<{tag}{a}>{escape(text)}</{tag}>")
+            # quotes too: user text (substation names) is never markup-like in the page
+            self.parts.append(f"<{tag}{a}>{escape(text, _QUOTE)}</{tag}>")
 
     def open(self, tag: str = "g", **attrs) -> None:
-        a = "".join(f" {k.rstrip('_').replace('_', '-')}={quoteattr(str(v))}"
+        a = "".join(f" {k.rstrip('_').replace('_', '-')}={quoteattr(str(v), _QUOTE)}"
                     for k, v in attrs.items() if v is not None)
         self.parts.append(f"<{tag}{a}>")
 
@@ -154,7 +157,7 @@ class Svg:
     def render(self) -> str:
         head = (f'<svg xmlns="http://www.w3.org/2000/svg" viewBox="0 0 {f(self.width)} '
                 f'{f(self.height)}" width="{f(self.width)}" height="{f(self.height)}" '
-                f'role="img" aria-label={quoteattr(self.label)} '
+                f'role="img" aria-label={quoteattr(self.label, _QUOTE)} '
                 f'font-family="DejaVu Sans, sans-serif" fill="none" stroke="none">')
         return head + "".join(self.parts) + "</svg>"
 

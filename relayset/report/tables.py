@@ -12,8 +12,8 @@ from relayset.settings.context import ZONE_LABELS
 
 
 def teed_rows(e: TeedEndSettings) -> list[tuple[str, float | str, str]]:
-    """One relay end of a three-terminal line: its mho zone 1 and zone 2 at the line angle
-    as (name, value, unit) rows, the names of :func:`settings_rows`."""
+    """One relay end of a three-terminal line: its zone 1 and zone 2 (reach on the line
+    angle, shape) as (name, value, unit) rows, the names of :func:`settings_rows`."""
     rows: list[tuple[str, float | str, str]] = []
     for zone, pri, sec in (("zone1", e.zone1_ohm, e.zone1_secondary_ohm),
                            ("zone2", e.zone2_ohm, e.zone2_secondary_ohm)):
@@ -21,7 +21,8 @@ def teed_rows(e: TeedEndSettings) -> list[tuple[str, float | str, str]]:
         rows += [(f"{n} reach, primary", abs(pri), "Ω"),
                  (f"{n} reach, secondary", abs(sec), "Ω"),
                  (f"{n} reach angle", math.degrees(cmath.phase(pri)), "°"),
-                 (f"{n} shape", "mho", "")]
+                 (f"{n} shape", "mho" if e.settings is None else e.settings.zone(zone).shape,
+                  "")]
     return rows
 
 

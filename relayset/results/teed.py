@@ -6,7 +6,16 @@ from dataclasses import dataclass
 from typing import Any
 
 from relayset.results.serialize import cplx
-from relayset.results.settings import Check
+from relayset.results.settings import Check, SettingsResult
+from relayset.results.verification import AcceptedDeviation
+
+
+def deviation_name(check_id: str) -> str:
+    """How ``[[deviations]]`` names a teed check, "zone.check_id" like a two-ended one: the
+    check's zone (the first word of its id) and the rest of the id,
+    ``zone2_short_of_next_zone1`` -> ``zone2.short_of_next_zone1``."""
+    zone, _, rest = check_id.partition("_")
+    return f"{zone}.{rest}"
 
 
 @dataclass(frozen=True)
@@ -23,11 +32,14 @@ class TeedApparent:
     max_ohm: float
     min_case: str  #: fault type, loop and source case of the smallest
     max_case: str
+    min_z_ohm: complex = 0j  #: the apparent impedance of the smallest case [ohm]
+    max_z_ohm: complex = 0j  #: and of the largest [ohm]
 
     def to_dict(self) -> dict[str, Any]:
         return {"remote": self.remote, "infeed": self.infeed, "min_ohm": self.min_ohm,
                 "max_ohm": self.max_ohm, "min_case": self.min_case,
-                "max_case": self.max_case}
+                "max_case": self.max_case, "min_z_ohm": cplx(self.min_z_ohm),
+                "max_z_ohm": cplx(self.max_z_ohm)}
 
 
 @dataclass(frozen=True)
@@ -47,6 +59,11 @@ class TeedEndSettings:
     zone2_secondary_ohm: complex = 0j
     #: the fault simulation's (relayset.studies.verification.teed)
     verification_checks: tuple[Check, ...] = ()
+    #: zone 1 and zone 2 as set, the characteristic of each (mho or quadrilateral, the
+    #: philosophy's shape), k0, the load check and, with a relay profile, the settable
+    #: values: the two-ended settings' results type (their zones' own checks are in
+    #: ``checks``, ids prefixed by the zone)
+    settings: SettingsResult | None = None
 
     @property
     def all_checks(self) -> tuple[Check, ...]:
@@ -62,7 +79,8 @@ class TeedEndSettings:
                 "zone1_ohm": cplx(self.zone1_ohm), "zone1_rule": self.zone1_rule,
                 "zone2_ohm": cplx(self.zone2_ohm), "zone2_rule": self.zone2_rule,
                 "checks": [_check(c) for c in self.checks],
-                "verification_checks": [_check(c) for c in self.verification_checks]}
+                "verification_checks": [_check(c) for c in self.verification_checks]} | (
+                    {} if self.settings is None else {"settings": self.settings.to_dict()})
 
 
 def _check(c: Check) -> dict[str, Any]:
@@ -84,9 +102,18 @@ class TeedStudyResult:
     #: per leg (from, to, third substation to the tee): (length [m], Z1 [ohm], Z0 [ohm]),
     #: sequence impedances of the leg's series matrix as built (Fortescue)
     legs: tuple[tuple[float, complex, complex], ...]
-    #: "verified" or "failed checks" (relayset.results.verification.VERDICTS), over the
-    #: setting rules' and the fault simulation's checks of every end
+    #: "verified", "verified with accepted deviations" or "failed checks"
+    #: (relayset.results.verification.VERDICTS), over the setting rules' and the fault
+    #: simulation's checks of every end
     verification: str
+    #: failed checks the study accepts (``[[deviations]]``, named by
+    #: :func:`deviation_name`): not counted as failed
+    deviations: tuple[AcceptedDeviation, ...] = ()
+
+    def accepted(self, end: str, check_id: str) -> AcceptedDeviation | None:
+        """The accepted deviation of a failed check at ``end`` (None: not accepted)."""
+        name = deviation_name(check_id)
+        return next((a for a in self.deviations if a.end == end and a.check == name), None)
 
     def to_dict(self) -> dict[str, Any]:
         return {"buses": list(self.buses), "tee_distance_m": self.tee_distance_m,
@@ -94,4 +121,5 @@ class TeedStudyResult:
                 "k0_set": cplx(self.k0_set), "ends": [e.to_dict() for e in self.ends],
                 "legs": [{"bus": b, "length_m": ln, "z1_ohm": cplx(z1), "z0_ohm": cplx(z0)}
                          for b, (ln, z1, z0) in zip(self.buses, self.legs, strict=True)],
-                "assumptions": list(self.assumptions), "verification": self.verification}
+                "assumptions": list(self.assumptions), "verification": self.verification,
+                "accepted_deviations": [a.to_dict() for a in self.deviations]}

@@ -34,7 +34,7 @@ from __future__ import annotations
 
 import cmath
 import math
-from dataclasses import replace
+from dataclasses import dataclass, replace
 from typing import Any
 
 import numpy as np
@@ -67,6 +67,216 @@ def _reach_over_load(char: Characteristic, phi_max: float) -> np.ndarray:
     points (mho diameter, quadrilateral corners) that fall inside them."""
     extra = [char.angle_rad] if isinstance(char, Mho) else np.angle(char.outline())
     return char.reach_along(load_rays(phi_max, extra))
+
+
+@dataclass(frozen=True)
+class ShapeBasis:
+    """What every zone's characteristic at one relay end is formed from (SI): the line
+    angle, the mho diameter angle, the k0 the relay is set with, the minimum load impedance
+    and largest load angle, and for quadrilaterals the resistive limit from load and the arc
+    current."""
+
+    theta: float  #: line angle [rad]
+    char_angle: float  #: forward mho diameter angle [rad]
+    k0: complex  #: residual compensation the relay is set with [1]
+    z_load: float  #: minimum load impedance [ohm]
+    load_angle_max: float  #: largest load angle [rad]
+    quad: bool  #: quadrilateral (True) or mho zones
+    r_limit: float | None  #: resistive limit from load [ohm] (quadrilateral), else None
+    arc_current_a: float | None  #: current through the fault arc [A], None without one
+
+
+def shape_basis(i: SettingsInputs, ph: Philosophy, k0: complex) -> ShapeBasis:
+    """The :class:`ShapeBasis` of the relay of ``i`` under ``ph`` with residual
+    compensation ``k0`` (the module notes give the rules).
+
+    Raises
+    ------
+    InputError
+        Data a quadrilateral needs is missing, or the load angle leaves no room for a
+        resistive blinder.
+    """
+    theta = cmath.phase(i.z1_line_ohm)
+    z_load = float(zp.min_load_impedance_ohm(i.v_min_pu * i.v_nominal_ll_v, i.s_max_va))
+    phi = i.load_angle_max_rad
+    # Quadrilateral data.
+    quad = ph.characteristic.shape == "quadrilateral"
+    arc_i = arc_current(i)
+    r_limit = None
+    if quad:
+        for name in ("arc_length_phase_m", "arc_length_ground_m"):
+            if getattr(i, name) is None:
+                raise InputError("is needed for a quadrilateral characteristic", field=name,
+                                 source=_SOURCE)
+        if arc_i is None:
+            raise InputError(
+                "is needed for a quadrilateral characteristic (or give source_z1_relay_ohm)",
+                field="arc_current_a", source=_SOURCE,
+            )
+        # Blinder parallel to the line angle through the load point at the largest angle.
+        r_limit = ph.resistive.load_limit_pct / 100 * z_load * (
+            math.cos(phi) - math.sin(phi) / math.tan(theta)
+        )
+        if r_limit <= 0:
+            raise InputError(
+                f"leaves no room for a resistive blinder (the load angle reaches the line angle "
+                f"{math.degrees(theta):.4g} deg)",
+                field="load_angle_max_rad", value=f"{math.degrees(phi):g} deg", source=_SOURCE,
+            )
+    if ph.characteristic.mho_angle_deg == "line":
+        char_angle = theta
+    else:
+        char_angle = math.radians(float(ph.characteristic.mho_angle_deg))
+    return ShapeBasis(theta, char_angle, k0, z_load, phi, quad, r_limit, arc_i)
+
+
+def form_zone(w: RuleContext, b: ShapeBasis, zone: str, target: complex, rule: str,
+              delay: float, k: complex | None, checks: list[Check],
+              left_need: tuple[float, float] | None = None) -> ZoneSetting:
+    """One zone's characteristic through its target (the module notes' conventions): a
+    mho circle, or a quadrilateral with its resistive reach from the arc (and tower footing)
+    resistance, widened where the simulation asks and cut at the load limit; then its
+    reach over the load ranges. Appends to ``checks`` and warns through ``w``.
+
+    Parameters
+    ----------
+    target : complex
+        The impedance the zone must just reach [ohm].
+    delay : float
+        The zone's time delay [s] (the arc's wind stretch lasts as long).
+    k : complex, optional
+        Infeed factor the target was formed with [1] (reported).
+    left_need : (float, float), optional
+        Left blinder offsets (phase, ground loops) the zone must hold [ohm] (a teed line's
+        infeed turns apparent impedances either way); the left blinder reaches that far
+        times the resistive margin, load permitting. None: the arc basis.
+    """
+    i, ph = w.inputs, w.ph
+    theta, char_angle, k0 = b.theta, b.char_angle, b.k0
+    z_load, phi, quad, r_limit, arc_i = b.z_load, b.load_angle_max, b.quad, b.r_limit, \
+        b.arc_current_a
+    enc_pct = ph.load.encroachment_limit_pct
+
+    def sec(x: Any) -> Any:
+        z = zp.secondary_ohm(x, i.ct_ratio, i.vt_ratio)
+        return complex(z) if isinstance(x, complex) else float(z)
+
+    label = ZONE_LABELS[zone]
+    forward = zone != "reverse"
+    direction = "forward" if forward else "reverse"
+    mho: dict[str, Any] = dict(char_angle_rad=None, mho_diameter_primary_ohm=None,
+                               mho_diameter_secondary_ohm=None)
+    qd: dict[str, Any] = dict(
+        x_reach_primary_ohm=None, x_reach_secondary_ohm=None,
+        r_reach_phase_primary_ohm=None, r_reach_phase_secondary_ohm=None,
+        r_reach_ground_primary_ohm=None, r_reach_ground_secondary_ohm=None,
+        arc_resistance_phase_ohm=None, arc_resistance_ground_ohm=None,
+    )
+    # The fault resistance a zone must see (Warrington's arc, plus tower footing to
+    # ground) is the same for every shape: a quadrilateral's blinders are set from it, a
+    # mho zone is only tested against it (its circle decides its resistive coverage).
+    rs = ph.resistive
+    t_arc = delay if rs.arc_time_s == "zone_delay" else float(rs.arc_time_s)
+    ra_ph = ra_g = None  # a mho zone without arc data (no source behind it) has none
+    if arc_i is not None and i.arc_length_phase_m is not None:
+        ra_ph = float(zp.warrington_arc_resistance_ohm(
+            arc_i, i.arc_length_phase_m, rs.wind_speed_m_per_s, t_arc))
+    if arc_i is not None and i.arc_length_ground_m is not None:
+        ra_g = float(zp.warrington_arc_resistance_ohm(
+            arc_i, i.arc_length_ground_m, rs.wind_speed_m_per_s, t_arc))
+    if not quad:
+        ang = char_angle if forward else math.remainder(char_angle + math.pi, 2 * math.pi)
+        d = float(zp.mho_diameter_for_point_ohm(target, ang))
+        mho.update(char_angle_rad=ang, mho_diameter_primary_ohm=d,
+                   mho_diameter_secondary_ohm=sec(d))
+        qd.update(arc_resistance_phase_ohm=ra_ph, arc_resistance_ground_ohm=ra_g)
+    else:
+        m = 1 + rs.margin_pct / 100
+        r_ph = m * ra_ph / 2
+        r_g = m * (ra_g + i.tower_footing_ohm) / abs(1 + k0)
+        # The left blinder keeps the arc basis: remote infeed, which the widening below
+        # answers, moves the apparent fault resistance to the right only, and a wide
+        # left blinder would admit load-like impedances of faults behind the relay.
+        left = (min(r_ph, r_limit), min(r_g, r_limit))
+        if left_need is not None:
+            left = tuple(min(max(a, m * n), r_limit) for a, n in zip(left, left_need,
+                                                                      strict=True))
+        if i.resistive_need_ohm and zone in i.resistive_need_ohm:
+            # Remote infeed into the fault resistance, from the fault simulation.
+            need_ph, need_g = i.resistive_need_ohm[zone]
+            r_ph, r_g = max(r_ph, m * need_ph), max(r_g, m * need_g)
+        tilt, widen = i.zone1_shape if zone == "zone1" else (0.0, 1.0)
+        if widen > 1:
+            # Widened as far as the simulated remote-bus faults allow, never past load.
+            r_ph, r_g = (max(r, min(widen * r, r_limit)) for r in (r_ph, r_g))
+            checks.append(Check(
+                "resistive_reach_widened_by_simulation", True,
+                f"resistive reach {widen:g} × the arc basis (load limit "
+                f"{r_limit:.4g} Ω): the widest blinder that leaves the worst simulated "
+                "fault at the remote bus where the arc basis had it"))
+        cut = max(r_ph, r_g) > r_limit
+        checks.append(Check(
+            "resistive_load_limit", not cut,
+            f"resistive reach needed (arc and footing): phase {r_ph:.4g} Ω, ground "
+            f"{r_g:.4g} Ω; set: phase {min(r_ph, r_limit):.4g} Ω, ground "
+            f"{min(r_g, r_limit):.4g} Ω; load limit {r_limit:.4g} Ω (primary)",
+        ))
+        if cut:
+            w.warn(
+                f"{zone}_resistive_reach_limited_by_load",
+                f"{label}: resistive reach cut to {r_limit:.4g} Ω primary "
+                f"({ph.resistive.load_limit_pct:g} % of the minimum load resistance); "
+                f"the arc and footing resistance needs phase {r_ph:.4g} Ω, ground "
+                f"{r_g:.4g} Ω",
+                "accept less resistive coverage, or use load-encroachment blocking or a "
+                "pilot scheme for high-resistance faults",
+            )
+            r_ph, r_g = min(r_ph, r_limit), min(r_g, r_limit)
+        # Zone 1's reactance line is tilted (chosen from the simulated remote-bus
+        # faults) and passes through the target; the other zones' are horizontal.
+        if tilt:
+            checks.append(Check(
+                "reactance_line_tilt_from_simulation", True,
+                f"reactance line tilted {math.degrees(tilt):g}° down toward +R: the "
+                "smallest tilt that keeps the worst simulated fault at the remote bus "
+                "within 0.5 % of the line of its best reach scale"))
+        x = tilted_x_reach(target if forward else -target, tilt)
+        qd.update(
+            r_left_phase_primary_ohm=left[0] if left[0] != r_ph else None,
+            r_left_ground_primary_ohm=left[1] if left[1] != r_g else None,
+            reactance_tilt_rad=tilt,
+            directional_angle_rad=-math.radians(DIRECTIONAL_LINE_BELOW_R_DEG),
+            x_reach_primary_ohm=x, x_reach_secondary_ohm=sec(x),
+            r_reach_phase_primary_ohm=r_ph, r_reach_phase_secondary_ohm=sec(r_ph),
+            r_reach_ground_primary_ohm=r_g, r_reach_ground_secondary_ohm=sec(r_g),
+            arc_resistance_phase_ohm=ra_ph, arc_resistance_ground_ohm=ra_g,
+        )
+    zset = ZoneSetting(
+        zone=zone, direction=direction, rule=rule,
+        reach_primary_ohm=complex(target), reach_secondary_ohm=sec(complex(target)),
+        reach_pct=abs(target) / abs(i.z1_line_ohm) * 100, delay_s=delay,
+        shape=ph.characteristic.shape, infeed_factor=k, **mho, **qd,
+        load_reach_pct_of_min=math.nan,
+    )
+    # Largest reach over the load ranges, phase and ground characteristics as set.
+    reach_load = np.concatenate([_reach_over_load(zset.characteristic(g, theta), phi)
+                                 for g in (False, True)])
+    load_pct = float(np.max(reach_load)) / z_load * 100
+    # A blinder cut to the load limit lands exactly on it; allow for rounding.
+    enc_ok = load_pct <= enc_pct * (1 + 1e-9)
+    checks.append(Check(
+        "load_encroachment", enc_ok,
+        f"reach along the load angles is {load_pct:.4g} % of the minimum load impedance "
+        f"(limit {enc_pct:g} %)",
+    ))
+    if not enc_ok:
+        w.warn(
+            f"{zone}_load_encroachment",
+            f"{label} reaches {load_pct:.4g} % of the minimum load impedance "
+            f"{z_load:.4g} Ω along the load angles (limit {enc_pct:g} %)",
+            "reduce the reach, use a quadrilateral or a load-encroachment blinder",
+        )
+    return replace(zset, load_reach_pct_of_min=load_pct, checks=tuple(checks))
 
 
 def compute_settings(
@@ -149,34 +359,8 @@ def compute_settings(
             "consider a pilot scheme or line differential protection, and a shorter zone 1",
         )
 
-    # Quadrilateral data.
-    quad = ph.characteristic.shape == "quadrilateral"
-    arc_i = arc_current(i)
-    r_limit = None
-    if quad:
-        for name in ("arc_length_phase_m", "arc_length_ground_m"):
-            if getattr(i, name) is None:
-                raise InputError("is needed for a quadrilateral characteristic", field=name,
-                                 source=_SOURCE)
-        if arc_i is None:
-            raise InputError(
-                "is needed for a quadrilateral characteristic (or give source_z1_relay_ohm)",
-                field="arc_current_a", source=_SOURCE,
-            )
-        # Blinder parallel to the line angle through the load point at the largest angle.
-        r_limit = ph.resistive.load_limit_pct / 100 * z_load * (
-            math.cos(phi) - math.sin(phi) / math.tan(theta)
-        )
-        if r_limit <= 0:
-            raise InputError(
-                f"leaves no room for a resistive blinder (the load angle reaches the line angle "
-                f"{math.degrees(theta):.4g} deg)",
-                field="load_angle_max_rad", value=f"{math.degrees(phi):g} deg", source=_SOURCE,
-            )
-    if ph.characteristic.mho_angle_deg == "line":
-        char_angle = theta
-    else:
-        char_angle = math.radians(float(ph.characteristic.mho_angle_deg))
+    b = shape_basis(i, ph, k0)
+    r_limit, arc_i = b.r_limit, b.arc_current_a
 
     # Zone targets.
     t1, rule1, checks1 = zone1_target(w)
@@ -190,121 +374,7 @@ def compute_settings(
         ("reverse", tr, ruler, ph.reverse.delay_s, None, []),
     ]
 
-    built: list[ZoneSetting] = []
-    for zone, target, rule, delay, k, checks in specs:
-        label = ZONE_LABELS[zone]
-        forward = zone != "reverse"
-        direction = "forward" if forward else "reverse"
-        mho: dict[str, Any] = dict(char_angle_rad=None, mho_diameter_primary_ohm=None,
-                                   mho_diameter_secondary_ohm=None)
-        qd: dict[str, Any] = dict(
-            x_reach_primary_ohm=None, x_reach_secondary_ohm=None,
-            r_reach_phase_primary_ohm=None, r_reach_phase_secondary_ohm=None,
-            r_reach_ground_primary_ohm=None, r_reach_ground_secondary_ohm=None,
-            arc_resistance_phase_ohm=None, arc_resistance_ground_ohm=None,
-        )
-        # The fault resistance a zone must see (Warrington's arc, plus tower footing to
-        # ground) is the same for every shape: a quadrilateral's blinders are set from it, a
-        # mho zone is only tested against it (its circle decides its resistive coverage).
-        rs = ph.resistive
-        t_arc = delay if rs.arc_time_s == "zone_delay" else float(rs.arc_time_s)
-        ra_ph = ra_g = None  # a mho zone without arc data (no source behind it) has none
-        if arc_i is not None and i.arc_length_phase_m is not None:
-            ra_ph = float(zp.warrington_arc_resistance_ohm(
-                arc_i, i.arc_length_phase_m, rs.wind_speed_m_per_s, t_arc))
-        if arc_i is not None and i.arc_length_ground_m is not None:
-            ra_g = float(zp.warrington_arc_resistance_ohm(
-                arc_i, i.arc_length_ground_m, rs.wind_speed_m_per_s, t_arc))
-        if not quad:
-            ang = char_angle if forward else math.remainder(char_angle + math.pi, 2 * math.pi)
-            d = float(zp.mho_diameter_for_point_ohm(target, ang))
-            mho.update(char_angle_rad=ang, mho_diameter_primary_ohm=d,
-                       mho_diameter_secondary_ohm=sec(d))
-            qd.update(arc_resistance_phase_ohm=ra_ph, arc_resistance_ground_ohm=ra_g)
-        else:
-            m = 1 + rs.margin_pct / 100
-            r_ph = m * ra_ph / 2
-            r_g = m * (ra_g + i.tower_footing_ohm) / abs(1 + k0)
-            # The left blinder keeps the arc basis: remote infeed, which the widening below
-            # answers, moves the apparent fault resistance to the right only, and a wide
-            # left blinder would admit load-like impedances of faults behind the relay.
-            left = (min(r_ph, r_limit), min(r_g, r_limit))
-            if i.resistive_need_ohm and zone in i.resistive_need_ohm:
-                # Remote infeed into the fault resistance, from the fault simulation.
-                need_ph, need_g = i.resistive_need_ohm[zone]
-                r_ph, r_g = max(r_ph, m * need_ph), max(r_g, m * need_g)
-            tilt, widen = i.zone1_shape if zone == "zone1" else (0.0, 1.0)
-            if widen > 1:
-                # Widened as far as the simulated remote-bus faults allow, never past load.
-                r_ph, r_g = (max(r, min(widen * r, r_limit)) for r in (r_ph, r_g))
-                checks.append(Check(
-                    "resistive_reach_widened_by_simulation", True,
-                    f"resistive reach {widen:g} × the arc basis (load limit "
-                    f"{r_limit:.4g} Ω): the widest blinder that leaves the worst simulated "
-                    "fault at the remote bus where the arc basis had it"))
-            cut = max(r_ph, r_g) > r_limit
-            checks.append(Check(
-                "resistive_load_limit", not cut,
-                f"resistive reach needed (arc and footing): phase {r_ph:.4g} Ω, ground "
-                f"{r_g:.4g} Ω; set: phase {min(r_ph, r_limit):.4g} Ω, ground "
-                f"{min(r_g, r_limit):.4g} Ω; load limit {r_limit:.4g} Ω (primary)",
-            ))
-            if cut:
-                w.warn(
-                    f"{zone}_resistive_reach_limited_by_load",
-                    f"{label}: resistive reach cut to {r_limit:.4g} Ω primary "
-                    f"({ph.resistive.load_limit_pct:g} % of the minimum load resistance); "
-                    f"the arc and footing resistance needs phase {r_ph:.4g} Ω, ground "
-                    f"{r_g:.4g} Ω",
-                    "accept less resistive coverage, or use load-encroachment blocking or a "
-                    "pilot scheme for high-resistance faults",
-                )
-                r_ph, r_g = min(r_ph, r_limit), min(r_g, r_limit)
-            # Zone 1's reactance line is tilted (chosen from the simulated remote-bus
-            # faults) and passes through the target; the other zones' are horizontal.
-            if tilt:
-                checks.append(Check(
-                    "reactance_line_tilt_from_simulation", True,
-                    f"reactance line tilted {math.degrees(tilt):g}° down toward +R: the "
-                    "smallest tilt that keeps the worst simulated fault at the remote bus "
-                    "within 0.5 % of the line of its best reach scale"))
-            x = tilted_x_reach(target if forward else -target, tilt)
-            qd.update(
-                r_left_phase_primary_ohm=left[0] if left[0] < r_ph else None,
-                r_left_ground_primary_ohm=left[1] if left[1] < r_g else None,
-                reactance_tilt_rad=tilt,
-                directional_angle_rad=-math.radians(DIRECTIONAL_LINE_BELOW_R_DEG),
-                x_reach_primary_ohm=x, x_reach_secondary_ohm=sec(x),
-                r_reach_phase_primary_ohm=r_ph, r_reach_phase_secondary_ohm=sec(r_ph),
-                r_reach_ground_primary_ohm=r_g, r_reach_ground_secondary_ohm=sec(r_g),
-                arc_resistance_phase_ohm=ra_ph, arc_resistance_ground_ohm=ra_g,
-            )
-        zset = ZoneSetting(
-            zone=zone, direction=direction, rule=rule,
-            reach_primary_ohm=complex(target), reach_secondary_ohm=sec(complex(target)),
-            reach_pct=abs(target) / abs(zl) * 100, delay_s=delay,
-            shape=ph.characteristic.shape, infeed_factor=k, **mho, **qd,
-            load_reach_pct_of_min=math.nan,
-        )
-        # Largest reach over the load ranges, phase and ground characteristics as set.
-        reach_load = np.concatenate([_reach_over_load(zset.characteristic(g, theta), phi)
-                                     for g in (False, True)])
-        load_pct = float(np.max(reach_load)) / z_load * 100
-        # A blinder cut to the load limit lands exactly on it; allow for rounding.
-        enc_ok = load_pct <= enc_pct * (1 + 1e-9)
-        checks.append(Check(
-            "load_encroachment", enc_ok,
-            f"reach along the load angles is {load_pct:.4g} % of the minimum load impedance "
-            f"(limit {enc_pct:g} %)",
-        ))
-        if not enc_ok:
-            w.warn(
-                f"{zone}_load_encroachment",
-                f"{label} reaches {load_pct:.4g} % of the minimum load impedance "
-                f"{z_load:.4g} Ω along the load angles (limit {enc_pct:g} %)",
-                "reduce the reach, use a quadrilateral or a load-encroachment blinder",
-            )
-        built.append(replace(zset, load_reach_pct_of_min=load_pct, checks=tuple(checks)))
+    built = [form_zone(w, b, *spec) for spec in specs]
 
     zs = {z.zone: z for z in built}
     # Zone 2 against the adjacent line's zone 1, without infeed (the furthest zone 2 reaches),

@@ -21,19 +21,35 @@ import numpy as np
 
 from relayset.errors import InputError
 from relayset.inputs.philosophy import Philosophy
-from relayset.inputs.study_file import Study, check_reach_inputs
+from relayset.inputs.profile import study_profile
+from relayset.inputs.study_file import Study, check_settings_inputs
 from relayset.physics import measurement
 from relayset.physics.network import Source
 from relayset.physics.sequence import to_sequence
 from relayset.physics.teed import ENDS, GroundedTransformer, TeedLine, solve_teed_sweep
-from relayset.physics.zones import secondary_ohm
 from relayset.results.parameters import LineParameters
 from relayset.results.relay import RelayBasis
-from relayset.results.teed import TeedApparent, TeedEndSettings, TeedStudyResult
-from relayset.settings.teed import teed_checks, teed_zone1_ohm, teed_zone1_pct, teed_zone2_ohm
+from relayset.results.settings import SettingsResult
+from relayset.results.teed import (
+    TeedApparent,
+    TeedEndSettings,
+    TeedStudyResult,
+    deviation_name,
+)
+from relayset.settings.inputs import SettingsInputs
+from relayset.settings.resistive import arc_current
+from relayset.settings.teed import (
+    teed_checks,
+    teed_zone1_ohm,
+    teed_zone1_pct,
+    teed_zone2_ohm,
+    teed_zone_settings,
+    zone_checks,
+)
 from relayset.studies.geometry import LineGeometry, build_geometry
 from relayset.studies.parameters import compute_parameters
 from relayset.studies.reach import build_source, line_cascade
+from relayset.studies.settings import _in_study_terms, arc_lengths
 
 ASSUMPTIONS = (
     "Three-terminal line: bolted faults at each remote terminal (on the line side of its "
@@ -61,15 +77,21 @@ def run_teed(loaded) -> TeedStudyResult:
 
 #: How the zones are verified (stated with the results).
 VERIFIED = ("Verified by fault simulation on the teed solver with the relay model of the "
-            "two-ended verification (relayset.studies.verification.teed): mho zones at the "
-            "line angle; every infeed state (all sources in, each source out, each two out), "
+            "two-ended verification (relayset.studies.verification.teed): the zones as set "
+            "(the philosophy's shape, mho or quadrilateral, through the characteristic "
+            "each zone is drawn with; on the relay profile's steps where the study names "
+            "one); every infeed state (all sources in, each source out, each two out), "
             "the source cases above (each bus strong, nominal or weak independently), the "
             "reach study's fault types and resistances; faults along the three "
             "legs (5 % steps), at each remote terminal and along the lines beyond it that "
             "name their bus (Z0 = 3 Z1 where none is given); the earth-resistivity range "
             "(the relay keeps its k0); load: the first bus leading the others by each "
-            "transfer angle of [load]. Not simulated: power-flow load cases, setting steps, "
-            "quadrilateral shapes.")
+            "transfer angle of [load]. A quadrilateral zone 2's blinders hold every bolted "
+            "remote-terminal fault of these cases (the infeed turns them off the line angle), "
+            "times the resistive margin, load permitting; a quadrilateral zone 1 is not "
+            "tilted or shortened by the simulated resistive faults as on a two-ended line "
+            "(where remote infeed into the fault resistance makes it overreach, its check "
+            "fails and says so). Not simulated: power-flow load cases.")
 
 
 def teed_line(study: Study, geo: LineGeometry, params: LineParameters, shunt: bool,
@@ -125,6 +147,54 @@ def teed_source_cases(study: Study, buses: tuple[str, str, str],
     return np.array(scales, dtype=float), tuple(names)
 
 
+def _end_settings(study: Study, relay: RelayBasis, philosophy: Philosophy, circ, arcs,
+                  x: int, buses: tuple[str, str, str], length_m: float, source: str,
+                  zone1: tuple[complex, str], zone2: tuple[complex, str], z_path: complex,
+                  zone2_need: tuple[tuple[float, float], tuple[float, float]],
+                  profile) -> SettingsResult:
+    """Zone 1 and zone 2 of the relay at ``buses[x]`` with their characteristics
+    (:func:`relayset.settings.teed.teed_zone_settings`), on the relay profile's steps where
+    the study names one (:func:`relayset.settings.settable.settable_settings`).
+    ``z_path`` is the Z1 to the farthest remote terminal [ohm]: the arc current of the
+    resistive reach is the two-ended rule's (:func:`relayset.settings.resistive.arc_current`,
+    phase-to-phase fault fed from the relay end alone) on that path. ``zone2_need`` holds
+    the (right, left) blinder offsets of the phase and the ground loops [ohm] the bolted
+    remote-terminal faults need
+    (:func:`relayset.studies.verification.teed.terminal_blinder_needs`): a quadrilateral
+    zone 2 is widened to them by the two-ended rule (``SettingsInputs.resistive_need_ohm``,
+    the left blinder alike)."""
+    end = buses[x]
+    src = build_source(study, end, source)
+    ct, vt = study.relay.ratios(end)
+    fr = study.fault_resistance
+    try:
+        inputs = SettingsInputs(
+            end=end, remote_end=" and ".join(b for k, b in enumerate(buses) if k != x),
+            z1_line_ohm=relay.z1_set_ohm, z0_line_ohm=circ.z0_ohm, k0=relay.k0_set,
+            k0_line=circ.k0.k0, length_m=length_m, ct_ratio=ct, vt_ratio=vt,
+            v_nominal_ll_v=study.system.nominal_voltage,
+            s_max_va=study.load.max_apparent_power, v_min_pu=study.load.min_voltage,
+            load_angle_max_rad=study.load.load_angle_max,
+            source_z1_relay_ohm=None if src is None else src.z1_ohm,
+            arc_length_phase_m=arcs.phase_m, arc_length_ground_m=arcs.ground_m,
+            tower_footing_ohm=fr.tower_footing_resistance,
+            resistive_need_ohm={"zone2": (zone2_need[0][0], zone2_need[1][0])})
+        if src is not None:
+            inputs = dataclasses.replace(inputs, arc_current_a=arc_current(
+                dataclasses.replace(inputs, z1_line_ohm=z_path)))
+        st = teed_zone_settings(inputs, philosophy, zone1, zone2,
+                                (zone2_need[0][1], zone2_need[1][1]))
+    except InputError as exc:
+        raise _in_study_terms(exc, source) from None
+    if profile is None:
+        return st
+    from relayset.settings.settable import settable_settings
+
+    primary = study.relay.ct_primary_a(end)
+    return settable_settings(st, profile, study.relay.min_operating_current,
+                             None if primary is None else primary / ct)
+
+
 def _along(z: np.ndarray, theta: float) -> np.ndarray:
     return (z * complex(math.cos(theta), -math.sin(theta))).real
 
@@ -133,7 +203,8 @@ def run_teed_study(study: Study, geo: LineGeometry, params: LineParameters,
                    relay: RelayBasis, philosophy: Philosophy, *, source: str
                    ) -> TeedStudyResult:
     """Apparent impedances and zone 1/zone 2 of every relay end of a teed line."""
-    check_reach_inputs(study, source)
+    check_settings_inputs(study, source)
+    profile = study_profile(study.relay.profile, source)  # read before the work
     rs = study.reach_study
     buses = (*study.ends, study.tee.substation)
     line = teed_line(study, geo, params, rs.shunt_capacitance, source)
@@ -147,8 +218,8 @@ def run_teed_study(study: Study, geo: LineGeometry, params: LineParameters,
     ftypes = rs.fault_types
     fn = {"source_scale": "reach_study.source_cases", "fault_types": "reach_study.fault_types"}
 
-    # (relay end x, remote y, infeed) -> (min, max, min case, max case)
-    seen: dict[tuple[int, int, bool], tuple[float, float, str, str]] = {}
+    # (relay end x, remote y, infeed) -> (min, max, min case, max case, min Z, max Z)
+    seen: dict[tuple[int, int, bool], tuple] = {}
     for y in range(3):
         for out in (None, *[z for z in range(3) if z != y]):
             t = list(terms)
@@ -164,25 +235,58 @@ def run_teed_study(study: Study, geo: LineGeometry, params: LineParameters,
                     continue
                 infeed = out is None
                 loops = measurement.loop_impedances(sw.v[ENDS[x]], sw.i[ENDS[x]], k0)
-                best = [math.inf, -math.inf, "", ""]
+                best = [math.inf, -math.inf, "", "", 0j, 0j]
                 for f, ft in enumerate(ftypes):
                     for lp in measurement.loops_for_fault(ft):
-                        a = _along(loops[lp][f, 0, 0, :, 0], theta)  # over source cases
+                        zs = loops[lp][f, 0, 0, :, 0]  # over source cases
+                        a = _along(zs, theta)
                         for k, val in enumerate(a):
                             if not math.isfinite(val):
                                 continue
                             label = f"fault {ft}, loop {lp}, source case {case_names[k]}"
                             if val < best[0]:
-                                best[0], best[2] = float(val), label
+                                best[0], best[2], best[4] = float(val), label, complex(zs[k])
                             if val > best[1]:
-                                best[1], best[3] = float(val), label
+                                best[1], best[3], best[5] = float(val), label, complex(zs[k])
                 seen[x, y, infeed] = tuple(best)
 
-    zones: dict[int, tuple[float, float]] = {}
+    # Fault simulation of the zones (imported here: the reach alone needs none of it).
+    from relayset.studies.verification.checks import relay_model_at
+    from relayset.studies.verification.closing import study_at_resistivity
+    from relayset.studies.verification.envelope import resistivities
+    from relayset.studies.verification.teed import terminal_blinder_needs, verify_teed
+
+    lines = []
+    for r in resistivities(study)[0]:  # the relay keeps its k0 while the line's moves
+        if float(r) == float(study.system.earth_resistivity):
+            lines.append((f"earth {r:g} ohm*m", line))
+            continue
+        st = study_at_resistivity(study, r)
+        g = build_geometry(st, source)
+        lines.append((f"earth {r:g} ohm*m",
+                      teed_line(st, g, compute_parameters(g), rs.shunt_capacitance, source)))
+    # Load: bus S leads R and T by each transfer angle of [load] (none: no load).
+    angles = study.load.transfer_angles if study.load is not None else (0.0,)
+    e = v_nom / math.sqrt(3)
+    emf = (np.array([cmath.rect(e, a) for a in angles]), np.full(len(angles), e + 0j),
+           np.full(len(angles), e + 0j))
+    loads = tuple(f"{buses[0]} leading by {math.degrees(a):g} deg" for a in angles)
+    judged = tuple(x for x in range(3) if buses[x] in relay.ends)
+    models = {x: relay_model_at(study, buses[x]) for x in judged}
+    envelope = dict(v_nominal_v=v_nom, fault_types=ftypes, source_scale=scales,
+                    case_names=case_names, line_angle_rad=theta,
+                    z_line_ohm=abs(relay.z1_set_ohm), models=models, buses=buses, emf_v=emf)
+    # a quadrilateral zone 2 holds the bolted remote-terminal faults as the infeed turns them
+    need = (terminal_blinder_needs(lines, terms, judged, k0=k0, **envelope)
+            if philosophy.characteristic.shape == "quadrilateral" else {})
+    zones: dict[int, tuple] = {}  # end -> (zone 1, zone 2) ZoneSettings as set
     budget = study.error_budget.total_pct
     z1ph = philosophy.zone1
     pct1 = teed_zone1_pct(budget, z1ph.reach_pct, z1ph.min_margin_pct)
     unit = cmath.rect(1.0, theta)
+    circ = params.circuits[0]
+    arcs = arc_lengths(study, geo)
+    z1_legs = [complex(to_sequence(leg.z_total_ohm)[1, 1]) for leg in line.legs]
     results = []
     for x in range(3):
         if buses[x] not in relay.ends:
@@ -199,71 +303,76 @@ def run_teed_study(study: Study, geo: LineGeometry, params: LineParameters,
         far, y_far = max(with_inf)
         z1_ohm = teed_zone1_ohm(near, pct1)
         z2_ohm = teed_zone2_ohm(far, philosophy.zone2.reach_pct)
-        leg_z1 = complex(to_sequence(line.legs[x].z_total_ohm)[1, 1])
-        tee_ohm = float(_along(np.array(leg_z1), theta))
+        tee_ohm = float(_along(np.array(z1_legs[x]), theta))
         next_z1 = []
         for y in remotes:
             for adj in study.adjacent_lines:
                 if adj.bus == buses[y] and adj.z1 is not None and (x, y, False) in seen:
                     reach = philosophy.zone2.adjacent_zone1_pct / 100 * abs(adj.z1)
                     next_z1.append((buses[y], adj.name, seen[x, y, False][0] + reach))
-        zones[x] = (z1_ohm, z2_ohm)
-        ratios = study.relay.ratios(buses[x])  # CT, VT of the relay at this end
+        st = _end_settings(
+            study, relay, philosophy, circ, arcs, x, buses, geo.length_m, source,
+            (z1_ohm * unit, f"{pct1:g} % of the apparent impedance of the nearest remote "
+             f"terminal {buses[y_near]} with the infeed out ({near:.4g} ohm)"),
+            (z2_ohm * unit, f"{max(philosophy.zone2.reach_pct, 100.0):g} % of the apparent "
+             f"impedance of the farthest remote terminal {buses[y_far]} with the infeed in "
+             f"({far:.4g} ohm)"),
+            # the arc current: the two-ended rule on the path to the farthest terminal
+            z1_legs[x] + max((z1_legs[y] for y in remotes), key=abs),
+            tuple(need.get((x, g), (0.0, 0.0)) for g in (False, True)), profile)
+        own, st = zone_checks(st)
+        z1, z2 = st.zone("zone1"), st.zone("zone2")
+        zones[x] = (z1, z2)
         results.append(TeedEndSettings(
             end=buses[x], apparent=apparent, tee_ohm=tee_ohm, zone1_pct=pct1,
-            zone1_ohm=z1_ohm * unit,
-            zone1_rule=(f"{pct1:g} % of the apparent impedance of the nearest remote "
-                        f"terminal {buses[y_near]} with the infeed out ({near:.4g} ohm)"),
-            zone2_ohm=z2_ohm * unit,
-            zone2_rule=(f"{max(philosophy.zone2.reach_pct, 100.0):g} % of the apparent "
-                        f"impedance of the farthest remote terminal {buses[y_far]} with the "
-                        f"infeed in ({far:.4g} ohm)"),
-            checks=teed_checks(z1_ohm, z2_ohm, tee_ohm,
+            zone1_ohm=z1.reach_primary_ohm, zone1_rule=z1.rule,
+            zone2_ohm=z2.reach_primary_ohm, zone2_rule=z2.rule,
+            checks=teed_checks(abs(z1.reach_primary_ohm), abs(z2.reach_primary_ohm), tee_ohm,
                                next_z1 if philosophy.zone2.grading == "short_of_adjacent_zone1"
-                               else None),
-            zone1_secondary_ohm=complex(secondary_ohm(z1_ohm * unit, *ratios)),
-            zone2_secondary_ohm=complex(secondary_ohm(z2_ohm * unit, *ratios))))
-    # Fault simulation of the zones (imported here: the reach alone needs none of it).
-    from relayset.studies.verification.checks import relay_model_at
-    from relayset.studies.verification.closing import study_at_resistivity
-    from relayset.studies.verification.envelope import resistivities
-    from relayset.studies.verification.teed import verify_teed
-
-    judged = tuple(x for x in range(3) if buses[x] in relay.ends)
-    lines = []
-    for r in resistivities(study)[0]:  # the relay keeps its k0 while the line's moves
-        if float(r) == float(study.system.earth_resistivity):
-            lines.append((f"earth {r:g} ohm*m", line))
-            continue
-        st = study_at_resistivity(study, r)
-        g = build_geometry(st, source)
-        lines.append((f"earth {r:g} ohm*m",
-                      teed_line(st, g, compute_parameters(g), rs.shunt_capacitance, source)))
-    # Load: bus S leads R and T by each transfer angle of [load] (none: no load).
-    angles = study.load.transfer_angles if study.load is not None else (0.0,)
-    e = v_nom / math.sqrt(3)
-    emf = (np.array([cmath.rect(e, a) for a in angles]), np.full(len(angles), e + 0j),
-           np.full(len(angles), e + 0j))
-    loads = tuple(f"{buses[0]} leading by {math.degrees(a):g} deg" for a in angles)
+                               else None) + own,
+            zone1_secondary_ohm=z1.reach_secondary_ohm,
+            zone2_secondary_ohm=z2.reach_secondary_ohm, settings=st))
     sim = verify_teed(
-        lines, terms, judged, zones, v_nominal_v=v_nom, fault_types=ftypes,
-        emf_v=emf, load_names=loads,
-        r_fault_ohm=rs.fault_resistances, source_scale=scales,
-        case_names=case_names, k0=k0, line_angle_rad=theta,
-        z_line_ohm=abs(relay.z1_set_ohm),
-        models={x: relay_model_at(study, buses[x]) for x in judged}, buses=buses,
+        lines, terms, judged, zones, load_names=loads, r_fault_ohm=rs.fault_resistances,
+        k0=k0, k0_by_end={x: e.settings.k0.k0 for x, e in zip(judged, results, strict=True)},
         beyond={y: [(a.name, a.z1, a.z0 if a.z0 is not None else 3 * a.z1)
                     for a in study.adjacent_lines if a.bus == buses[y] and a.z1 is not None]
                 for y in range(3)},
         next_zone1_pct=(philosophy.zone2.adjacent_zone1_pct
-                        if philosophy.zone2.grading == "short_of_adjacent_zone1" else None))
+                        if philosophy.zone2.grading == "short_of_adjacent_zone1" else None),
+        **envelope)
     results = [dataclasses.replace(e, verification_checks=sim[x].checks)
                for e, x in zip(results, judged, strict=True)]
-    failed = sum(not c.passed for e in results for c in e.all_checks)
+    accepted = teed_deviations(study, results, source)
+    names = {(a.end, a.check) for a in accepted}
+    failed = sum(not c.passed and (e.end, deviation_name(c.check_id)) not in names
+                 for e in results for c in e.all_checks)
+    from relayset.studies.verification.deviations import verdict
+
     return TeedStudyResult(
         buses=buses, tee_distance_m=study.tee.distance, branch_length_m=study.tee.length,
         z1_set_ohm=relay.z1_set_ohm, k0_set=k0, ends=tuple(results),
         assumptions=(*ASSUMPTIONS, VERIFIED),
         legs=tuple((leg.total_length_m, complex(to_sequence(leg.z_total_ohm)[1, 1]),
                     complex(to_sequence(leg.z_total_ohm)[0, 0])) for leg in line.legs),
-        verification="failed checks" if failed else "verified")
+        verification="failed checks" if failed else verdict((), accepted)[0],
+        deviations=accepted)
+
+
+def teed_deviations(study: Study, ends, source: str) -> tuple:
+    """The study's ``[[deviations]]`` applied to the teed checks by the two-ended rule
+    (:func:`relayset.studies.verification.deviations.apply_deviations`): each must name a
+    check that failed at a relay end of this run ("zone.check_id",
+    :func:`relayset.results.teed.deviation_name`), or the study is refused in one line."""
+    from relayset.results.verification import EndVerification
+    from relayset.studies.verification.deviations import apply_deviations
+
+    checks: dict[str, dict[str, bool]] = {}
+    for e in ends:
+        own = checks.setdefault(e.end, {})
+        for c in e.all_checks:
+            if c.judged:  # a check that was not carried out is never a deviation
+                name = deviation_name(c.check_id)
+                own[name] = own.get(name, True) and c.passed
+    return apply_deviations(study, [EndVerification(e.end, (), None, None) for e in ends],
+                            source, checks)[1]

@@ -1,7 +1,9 @@
 """Fault simulation of a three-terminal (teed) line's zone 1 and zone 2.
 
-The settings of :mod:`relayset.studies.teed` (mho circles at the line angle, reaches from
-:mod:`relayset.settings.teed`) are judged by the relay model of the two-ended
+The settings of :mod:`relayset.studies.teed` (zone 1 and zone 2 as set: the
+:class:`~relayset.results.settings.ZoneSetting` of each, its characteristic the
+philosophy's shape, mho or quadrilateral, on a relay profile's steps where the study names
+one; reaches from :mod:`relayset.settings.teed`) are judged by the relay model of the two-ended
 verification (:mod:`.relay_model`: loops released by phase selection, release currents,
 directional elements, close-in faults) on faults solved by the teed solver
 (:mod:`relayset.physics.teed`), with every infeed state (all sources in, each terminal's
@@ -25,12 +27,19 @@ from dataclasses import dataclass
 
 import numpy as np
 
-from relayset.physics.characteristic import Mho
 from relayset.physics.network import FaultSweep, Source
 from relayset.physics.sequence import balanced_phase_matrix
 from relayset.physics.teed import ENDS, TeedLine, TeedSweep, solve_teed_sweep
-from relayset.results.settings import Check
-from relayset.studies.verification.relay_model import LOOPS, RelayModel, Run, view, zone_scale
+from relayset.results.settings import Check, ZoneSetting
+from relayset.studies.verification.relay_model import (
+    GROUND,
+    LOOPS,
+    Z_SMALL,
+    RelayModel,
+    Run,
+    view,
+    zone_scale,
+)
 
 #: Fault locations along each leg, fraction from its bus to the tee [1].
 LEG_LOCATIONS = np.linspace(0.0, 1.0, 21)
@@ -44,18 +53,6 @@ class TeedVerdict:
     zone1_remote_scale: float  #: smallest zone 1 reach scale, remote-terminal faults [1]
     zone2_internal_scale: float  #: largest zone 2 reach scale, bolted faults on the legs [1]
     zone1_coverage_pct: float  #: share of bolted faults on the legs zone 1 trips [%]
-
-
-@dataclass(frozen=True)
-class MhoZone:
-    """A forward mho zone of given reach along the line angle, as the relay model reads a
-    zone (``characteristic`` and ``direction``)."""
-
-    reach_ohm: float
-    direction: str = "forward"
-
-    def characteristic(self, ground: bool, line_angle_rad: float) -> Mho:
-        return Mho(self.reach_ohm, line_angle_rad, self.direction)
 
 
 def _as_run(sw: TeedSweep, end: str, case_names: tuple[str, ...]) -> Run:
@@ -73,9 +70,70 @@ def _as_run(sw: TeedSweep, end: str, case_names: tuple[str, ...]) -> Run:
     return Run(fs, "protected", "none", case_names, 0.0, (True, True))
 
 
+#: The infeed states: the terminals disconnected (none; each one; each two, the relay's
+#: own source then feeding alone).
+STATES = ((), (0,), (1,), (2,), (0, 1), (0, 2), (1, 2))
+
+
+def _states(lines, terminals, buses):
+    """(earth label, line, open terminals, terminals, state label) of every network."""
+    for (earth, line), out in itertools.product(lines, STATES):
+        if any(terminals[k] is None for k in out):
+            continue  # already open: the same network as a smaller state
+        terms = [None if k in out else t for k, t in enumerate(terminals)]
+        if not any(isinstance(t, Source) for t in terms):
+            continue
+        yield earth, line, out, terms, ("all sources in" if not out else "no source at "
+                                        + " and ".join(buses[k] for k in out)) + f", {earth}"
+
+
+def terminal_blinder_needs(
+    lines: Sequence[tuple[str, TeedLine]], terminals, relay_ends: tuple[int, ...],
+    *, v_nominal_v: float, fault_types, source_scale: np.ndarray,
+    case_names: tuple[str, ...], k0: complex, line_angle_rad: float, z_line_ohm: float,
+    models: dict[int, RelayModel], buses: tuple[str, str, str],
+    emf_v: tuple[np.ndarray, np.ndarray, np.ndarray] | None = None,
+) -> dict[tuple[int, bool], tuple[float, float]]:
+    """Right and left blinder offsets (:func:`relayset.settings.teed.blinder_offset_ohm`,
+    the left one of -Z) [ohm] that hold every bolted fault at each remote terminal as the
+    relay at each end measures it, per (end, ground loops): over the verification's networks
+    (every infeed state and earth resistivity), source and load cases, the meant loops the
+    relay releases, forward. The third terminal's infeed turns these impedances off the line
+    angle, either way, so a quadrilateral zone 2 set from the arc alone would miss them;
+    this is the teed line's counterpart of the two-ended closing's resistive need
+    (:mod:`.closing`)."""
+    from relayset.settings.teed import blinder_offset_ohm
+
+    need: dict[tuple[int, bool], tuple[float, float]] = {}
+    for _, line, out, terms, _ in _states(lines, terminals, buses):
+        for y in range(3):
+            sw = solve_teed_sweep(line, terms, v_nominal_v=v_nominal_v, fault_leg=ENDS[y],
+                                  fault_types=fault_types, m=[0.0], r_fault_ohm=[0.0],
+                                  source_scale=source_scale, emf_v=emf_v)
+            for x in relay_ends:
+                if x in out or x == y:
+                    continue
+                vw = view(_as_run(sw, ENDS[x], case_names), True, k0, None, models[x],
+                          line_angle=line_angle_rad)
+                for loop in LOOPS:
+                    idx = vw.meant[loop]
+                    if not idx:
+                        continue
+                    z = vw.loops[loop]
+                    z = z[vw.forward[idx] & vw.released[loop][idx]
+                          & (np.abs(z) >= Z_SMALL * z_line_ohm)]
+                    if z.size:
+                        g = loop in GROUND
+                        off = blinder_offset_ohm(z, line_angle_rad)
+                        right, left = need.get((x, g), (0.0, 0.0))
+                        need[x, g] = (max(right, float(np.max(off))),
+                                      max(left, float(np.max(-off))))
+    return need
+
+
 def verify_teed(
     lines: Sequence[tuple[str, TeedLine]], terminals, relay_ends: tuple[int, ...],
-    zones: dict[int, tuple[float, float]],
+    zones: dict[int, tuple[ZoneSetting, ZoneSetting]],
     *, v_nominal_v: float, fault_types, r_fault_ohm, source_scale: np.ndarray,
     case_names: tuple[str, ...], k0: complex, line_angle_rad: float, z_line_ohm: float,
     models: dict[int, RelayModel], buses: tuple[str, str, str],
@@ -83,23 +141,23 @@ def verify_teed(
     next_zone1_pct: float | None = None,
     emf_v: tuple[np.ndarray, np.ndarray, np.ndarray] | None = None,
     load_names: tuple[str, ...] = ("no load",),
+    k0_by_end: dict[int, complex] | None = None,
 ) -> dict[int, TeedVerdict]:
     """Checks and their numbers per relay end (index into :data:`~relayset.physics.teed.ENDS`).
 
     ``lines`` holds the line at each earth resistivity, with a label; ``emf_v`` the
     phase-A EMFs of the load cases, per terminal (L,), named by ``load_names``.
-    ``zones[x]`` is (zone 1, zone 2) reach along the line angle [ohm] at end x and
-    ``models[x]`` the relay model there. ``beyond[y]`` lists the lines leaving bus y
-    (name, Z1, Z0 [ohm]); faults along them (a series branch from the bus, carrying the
-    fault current only) are judged by the relays at the other ends: zone 1 must stay out,
-    and with ``next_zone1_pct`` (zone 2 graded short of the next zone 1) zone 2 must not
-    operate from that share of each line on. The relay at bus y itself looks behind for
-    them and is not judged.
+    ``zones[x]`` is (zone 1, zone 2) at end x as set (each tested through its
+    ``characteristic``, the one object of :mod:`relayset.physics.characteristic`),
+    ``models[x]`` the relay model there and ``k0_by_end[x]`` the k0 it is set with
+    (default ``k0``: a relay profile's steps may round it). ``beyond[y]`` lists the lines
+    leaving bus y (name, Z1, Z0 [ohm]); faults along them (a series branch from the bus,
+    carrying the fault current only) are judged by the relays at the other ends: zone 1
+    must stay out, and with ``next_zone1_pct`` (zone 2 graded short of the next zone 1)
+    zone 2 must not operate from that share of each line on. The relay at bus y itself
+    looks behind for them and is not judged.
     """
     rf = np.unique(np.concatenate([[0.0], np.asarray(r_fault_ohm, dtype=float)]))
-    # Infeed states: the terminals disconnected (none; each one; each two, the relay's own
-    # source then feeding alone).
-    states = [(), (0,), (1,), (2,), (0, 1), (0, 2), (1, 2)]
     worst1 = {x: (math.inf, "") for x in relay_ends}  # smallest zone 1 scale, remote bus
     worst2 = {x: (0.0, "") for x in relay_ends}  # largest zone 2 scale, bolted internal
     cover = {x: [0, 0] for x in relay_ends}  # zone 1 trips, cases
@@ -107,16 +165,10 @@ def verify_teed(
     beyond = beyond or {}
     p_next = None if next_zone1_pct is None else next_zone1_pct / 100.0
     fracs = np.unique(np.array([0.25, 0.5, 1.0] + ([p_next] if p_next else [])))
-    zone_1 = {x: MhoZone(zones[x][0]) for x in relay_ends}
-    zone_2 = {x: MhoZone(zones[x][1]) for x in relay_ends}
-    for (earth, line), out in itertools.product(lines, states):
-        if any(terminals[k] is None for k in out):
-            continue  # already open: the same network as a smaller state
-        terms = [None if k in out else t for k, t in enumerate(terminals)]
-        if not any(isinstance(t, Source) for t in terms):
-            continue
-        state = ("all sources in" if not out else
-                 "no source at " + " and ".join(buses[k] for k in out)) + f", {earth}"
+    zone_1 = {x: zones[x][0] for x in relay_ends}
+    zone_2 = {x: zones[x][1] for x in relay_ends}
+    k0s = {x: (k0_by_end or {}).get(x, k0) for x in relay_ends}
+    for _, line, out, terms, state in _states(lines, terminals, buses):
         for leg in range(3):
             sw = solve_teed_sweep(line, terms, v_nominal_v=v_nominal_v, fault_leg=ENDS[leg],
                                   fault_types=fault_types, m=LEG_LOCATIONS, r_fault_ohm=rf,
@@ -125,7 +177,7 @@ def verify_teed(
                 if x in out:
                     continue  # the relay's own source out: not this relay's case
                 model = models[x]
-                vw = view(_as_run(sw, ENDS[x], case_names), True, k0, None, model,
+                vw = view(_as_run(sw, ENDS[x], case_names), True, k0s[x], None, model,
                           line_angle=line_angle_rad)
 
                 def label(idx, loop, leg=leg, state=state, sw=sw):
@@ -163,7 +215,7 @@ def verify_teed(
                 if x in out or x == y:
                     continue
                 model = models[x]
-                vw = view(_as_run(sw, ENDS[x], case_names), True, k0, None, model,
+                vw = view(_as_run(sw, ENDS[x], case_names), True, k0s[x], None, model,
                           line_angle=line_angle_rad)
 
                 def blabel(idx, loop, y=y, state=state, where=where, sw=sw):
