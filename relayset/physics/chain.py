@@ -33,7 +33,9 @@ References
 
 from __future__ import annotations
 
+import hashlib
 import math
+from collections import OrderedDict
 
 import numpy as np
 
@@ -271,6 +273,45 @@ def fault_chain_products(
     """
     length_m = np.asarray(length_m, dtype=float)
     m = np.asarray(m, dtype=float)
+    key = _digest(z, y, length_m, m)
+    hit = _PRODUCTS.get(key)
+    if hit is None:
+        hit = tuple(_frozen(a) for a in _fault_chain_products(z, y, length_m, m))
+        _PRODUCTS[key] = hit
+        while len(_PRODUCTS) > PRODUCTS_CACHED:
+            _PRODUCTS.popitem(last=False)
+    else:
+        _PRODUCTS.move_to_end(key)
+    return hit
+
+
+#: How many results of :func:`fault_chain_products` are kept: the verification solves the
+#: same line at the same fault locations once per state of a series element, source case
+#: group or fault type, and the products depend on none of them.
+PRODUCTS_CACHED = 32
+_PRODUCTS: OrderedDict[bytes, tuple[np.ndarray, np.ndarray]] = OrderedDict()
+
+
+def _digest(*arrays: np.ndarray | None) -> bytes:
+    h = hashlib.blake2b(digest_size=20)
+    for a in arrays:
+        if a is None:
+            h.update(b"none")
+            continue
+        a = np.ascontiguousarray(a)
+        h.update(f"{a.dtype.str}{a.shape}".encode())
+        h.update(a.tobytes())
+    return h.digest()
+
+
+def _frozen(a: np.ndarray) -> np.ndarray:
+    a.flags.writeable = False  # shared between callers: read-only
+    return a
+
+
+def _fault_chain_products(z: np.ndarray, y: np.ndarray | None, length_m: np.ndarray,
+                          m: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
+    """:func:`fault_chain_products` computed (no cache)."""
     n_sec, n = length_m.size, z.shape[-1]
     block = max(1, SPLIT_BLOCK_PARTS // n_sec)
     phi_s = np.empty((m.size, 2 * n, 2 * n), dtype=complex)
