@@ -134,7 +134,7 @@ BAD = [
     ("tee with a series capacitor", ("[load]", '[[series_capacitors]]\nname = "bank"\n'
                                      'at = "Velmar"\ncompensation_pct = 30\n'
                                      'protective_level = 2.2\nrated_current = "1 kA"\n\n[load]'),
-     ['series_capacitors[0].name = "bank"', "overhead sections only"]),
+     ['series_capacitors[0].name = "bank"', "series capacitors"]),
     # no settable values for a teed line (a report would embed no profile to verify with)
     ("teed line on a relay profile",
      ('vt_ratio = "132000/110 V"',

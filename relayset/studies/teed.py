@@ -23,7 +23,7 @@ from relayset.errors import InputError
 from relayset.inputs.philosophy import Philosophy
 from relayset.inputs.study_file import Study, check_reach_inputs
 from relayset.physics import measurement
-from relayset.physics.network import Source
+from relayset.physics.network import LineCascade, Source
 from relayset.physics.sequence import to_sequence
 from relayset.physics.teed import ENDS, GroundedTransformer, TeedLine, solve_teed_sweep
 from relayset.physics.zones import secondary_ohm
@@ -89,15 +89,25 @@ def teed_line(study: Study, geo: LineGeometry, params: LineParameters, shunt: bo
     geometry and phase orders read as the line's)."""
     tee = study.tee
     main = line_cascade(geo, params, "actual_plan", shunt)
+    sections = tee.sections
+    # The geometry places the wires of an overhead section; a branch of cable sections
+    # only gets the line's first overhead section appended, dropped from its cascade.
+    anchor = () if any(sec.cable is None for sec in sections) else tuple(
+        sec for sec in study.line.sections if sec.cable is None)[:1]
     branch_study = dataclasses.replace(
         study, tee=None,
-        line=dataclasses.replace(study.line, length=tee.length, sections=tee.sections))
+        line=dataclasses.replace(study.line, sections=(*sections, *anchor),
+                                 length=math.fsum(sec.length for sec in (*sections, *anchor))))
     try:
         geo_b = build_geometry(branch_study, source)
     except InputError as exc:  # the branch's sections are named as written in [tee]
         raise InputError(exc.rule, field=exc.field.replace("line.sections", "tee.sections"),
                          value=exc.value, source=exc.source) from None
     branch = line_cascade(geo_b, compute_parameters(geo_b), "actual_plan", shunt)
+    if anchor:
+        n = len(sections)
+        branch = LineCascade(branch.z_ohm_per_m[:n], branch.length_m[:n],
+                             None if branch.y_s_per_m is None else branch.y_s_per_m[:n])
     return TeedLine.from_line(main, tee.distance, branch)
 
 

@@ -1,0 +1,317 @@
+"""A tee on more kinds of line: cable sections on the line and on the branch.
+
+The study is invented (a 132 kV single circuit on lattice towers with a cable into one
+end, tapped by a branch partly or wholly in cable). Checks:
+
+- the teed solver on the study's legs (overhead and cable sections, shunt admittance)
+  against the independent per-case nodal solution of tests/test_teed.py (nodal admittance
+  of each uniform segment by eigendecomposition, tests/reference_solver.py; modified nodal
+  analysis, Ho, Ruehli and Brennan 1975), to 1e-8;
+- a branch written as an overhead section and a cable section: its leg is the cascade of
+  the tower's matrices (the line's own parameters) and the cable's matrices (computed
+  here from the cable table by relayset.physics.cable, itself checked against published
+  data in tests/test_cable_physics.py), each section's chain matrix the matrix
+  exponential of [[0, Z l], [Y l, 0]] (Paul, Analysis of Multiconductor Transmission
+  Lines, 2nd ed., ch. 7) by scipy.linalg.expm, multiplied by hand;
+- a branch of 1 mm to no source gives the two-ended line's measurements (Kirchhoff: an
+  open stub of no length carries no current), the two-ended solver checked against the
+  nodal reference in tests/test_network.py;
+- bad input on the branch's cable sections: one line, exit 2, nothing written.
+"""
+
+from __future__ import annotations
+
+import math
+
+import numpy as np
+import pytest
+from numpy.testing import assert_allclose
+from test_teed import nodal
+
+from relayset.cli import main
+from relayset.physics.faults import FAULT_TYPES
+from relayset.physics.network import solve_fault_sweep
+from relayset.physics.teed import ENDS, solve_teed_sweep
+
+V_NOM = 132e3
+
+CABLE_TOML = '''
+schema = "relayset-study/1"
+
+[study]
+line_id = "HX-TEE-C1"
+title = "Harwick - Ostmere 132 kV with a cabled tee to Linden Lane"
+from_substation = "Harwick"
+to_substation = "Ostmere"
+
+[system]
+nominal_voltage = "132 kV"
+frequency = "50 Hz"
+earth_resistivity = "100 ohm*m"
+
+[conductor_types.phase]
+code = "243-AL1/39-ST1A"
+operating_temperature = "75 degC"
+
+[conductor_types.earth]
+dc_resistance_20c = "0.43 ohm/km"
+outside_diameter = "11.7 mm"
+gmr = "4.3 mm"
+ac_dc_ratio = 1.0
+
+[[circuits]]
+name = "1"
+phase_labels = ["A", "B", "C"]
+
+[towers.lattice]
+positions."1" = [
+  { name = "left",   x = "-5.0 m", height = "21 m", sag = "6 m", conductor = "phase" },
+  { name = "middle", x = "0.0 m",  height = "21 m", sag = "6 m", conductor = "phase" },
+  { name = "right",  x = "5.0 m",  height = "21 m", sag = "6 m", conductor = "phase" },
+]
+shield_wires = [
+  { name = "E1", x = "0 m", height = "28 m", sag = "5 m", conductor = "earth" },
+]
+
+[cables.xlpe]
+core_material = "aluminium"
+core_cross_section = "800 mm2"
+core_radius = "16.9 mm"
+core_dc_resistance = "0.0367 ohm/km"
+operating_temperature = "65 degC"
+insulation_inner_radius = "18.4 mm"
+insulation_outer_radius = "36.4 mm"
+insulation_permittivity = 2.5
+sheath_inner_radius = "37.6 mm"
+sheath_outer_radius = "38.4 mm"
+sheath_material = "copper"
+jacket_outer_radius = "42.4 mm"
+jacket_permittivity = 2.3
+depth = "1.2 m"
+formation = "trefoil"
+bonding = "both_ends"
+
+[line]
+length = "43 km"
+sections = [
+  { length = "13 km", order = ["A", "B", "C"], tower = "lattice" },
+  { length = "13 km", order = ["C", "A", "B"], tower = "lattice" },
+  { length = "14 km", order = ["B", "C", "A"], tower = "lattice" },
+  { length = "3 km",  order = ["A", "B", "C"], cable = "xlpe" },
+]
+
+[tee]
+distance = "17 km"
+substation = "Linden Lane"
+sections = [
+  { length = "6 km", order = ["A", "B", "C"], tower = "lattice" },
+  { length = "2.5 km", order = ["B", "C", "A"], cable = "xlpe" },
+]
+
+[relay]
+end = "all"
+ct_ratio = "600/1 A"
+vt_ratio = "132000/110 V"
+
+[reach_study]
+shunt_capacitance = true
+
+[sources.Harwick]
+z1 = "1.5 + 12j ohm"
+z0 = "2.0 + 20j ohm"
+
+[sources.Ostmere]
+z1 = "2.5 + 18j ohm"
+z0 = "3.0 + 28j ohm"
+
+[sources."Linden Lane"]
+z1 = "4 + 30j ohm"
+z0 = "5 + 40j ohm"
+
+[load]
+max_apparent_power = "120 MVA"
+'''
+
+BRANCH = '''sections = [
+  { length = "6 km", order = ["A", "B", "C"], tower = "lattice" },
+  { length = "2.5 km", order = ["B", "C", "A"], cable = "xlpe" },
+]'''
+
+
+def _loaded(text: str):
+    from relayset.studies import pipeline
+
+    return pipeline.load_bytes(text.encode(), "teedc.toml")
+
+
+def _legs(text: str, shunt: bool = True):
+    from relayset.studies.geometry import build_geometry
+    from relayset.studies.parameters import compute_parameters
+    from relayset.studies.teed import teed_line, teed_terminals
+
+    study = _loaded(text).study
+    geo = build_geometry(study)
+    params = compute_parameters(geo)
+    return study, geo, params, teed_line(study, geo, params, shunt, ""), teed_terminals(
+        study, "")
+
+
+def _chain_by_hand(z, y, length):
+    """Chain matrix of one uniform section, exp([[0, Z l], [Y l, 0]]) (Paul, ch. 7)."""
+    from scipy.linalg import expm
+
+    n = z.shape[0]
+    a = np.zeros((2 * n, 2 * n), dtype=complex)
+    a[:n, n:] = z * length
+    a[n:, :n] = y * length
+    return expm(a)
+
+
+def test_branch_of_an_overhead_and_a_cable_section_is_their_cascade():
+    from relayset.inputs.cable import constructions
+    from relayset.physics import transposition
+    from relayset.physics.cable import cable_section_matrices
+
+    study, geo, params, line, _ = _legs(CABLE_TOML)
+    leg_t = line.legs[2]  # from Linden Lane to the tee: the cable first
+    assert_allclose(leg_t.length_m, [2.5e3, 6e3], rtol=0, atol=1e-9)
+    z_t, y_t = params.tower_matrices()
+    k_lat = geo.tower_names.index("lattice")
+    (_, (cab,), _) = constructions(study, ("xlpe",))
+    z_c, y_c = cable_section_matrices(
+        cab.design, cab.formation, cab.spacing_m, cab.depth_m, cab.bonding, 50.0, 100.0,
+        cab.n_circuits, cab.circuit_spacing_m, cab.ecc)
+    bca = [1, 2, 0]  # order B, C, A at the positions: phase p sits at position order.index(p)
+    pos = [bca.index(p) for p in range(3)]
+    z_cab = z_c[np.ix_(pos, pos)]
+    y_cab = y_c[np.ix_(pos, pos)]
+    assert_allclose(z_cab, transposition.to_phase_order(z_c, bca), rtol=1e-12, atol=0)
+    # by hand: bus T -> cable -> overhead -> tee
+    want = (_chain_by_hand(z_cab, y_cab, 2.5e3)
+            @ _chain_by_hand(z_t[k_lat], y_t[k_lat], 6e3))
+    got = (_chain_by_hand(leg_t.z_ohm_per_m[0], leg_t.y_s_per_m[0], leg_t.length_m[0])
+           @ _chain_by_hand(leg_t.z_ohm_per_m[1], leg_t.y_s_per_m[1], leg_t.length_m[1]))
+    assert_allclose(got, want, rtol=1e-10, atol=1e-12)
+    # the cable's series impedance is a cable's, not the tower's (tens of times less X1)
+    x1 = lambda z: (np.trace(z) / 3 - (z.sum() - np.trace(z)) / 6).imag  # noqa: E731
+    assert x1(leg_t.z_ohm_per_m[0]) < 0.5 * x1(leg_t.z_ohm_per_m[1])
+
+
+def test_branch_of_cable_sections_only():
+    """A branch wholly in cable (a common city tap): the leg is the cable's sections."""
+    text = CABLE_TOML.replace(BRANCH, '''sections = [
+  { length = "1.5 km", order = ["A", "B", "C"], cable = "xlpe" },
+  { length = "1.5 km", order = ["C", "A", "B"], cable = "xlpe" },
+]''')
+    _, _, _, line, _ = _legs(text)
+    _, _, _, ref, _ = _legs(CABLE_TOML)
+    leg_t = line.legs[2]
+    assert_allclose(leg_t.length_m, [1.5e3, 1.5e3], rtol=0, atol=1e-9)
+    # the A, B, C cable of the branch (last section from the tee) is the same cable as the
+    # line's last section (A, B, C at Ostmere, first section of leg R)
+    assert_allclose(leg_t.z_ohm_per_m[1], line.legs[1].z_ohm_per_m[0], rtol=1e-12, atol=0)
+    assert_allclose(leg_t.y_s_per_m[1], line.legs[1].y_s_per_m[0], rtol=1e-12, atol=0)
+    assert_allclose(line.legs[0].z_ohm_per_m, ref.legs[0].z_ohm_per_m, rtol=1e-12, atol=0)
+
+
+@pytest.mark.parametrize("leg", ENDS)
+def test_teed_line_with_cables_equals_nodal_reference(leg):
+    _, _, _, line, terms = _legs(CABLE_TOML)
+    emfs = tuple(V_NOM / math.sqrt(3) * np.exp(1j * np.radians(a)) for a in (8.0, 0.0, -4.0))
+    m = np.array([0.0, 0.4, 0.95, 1.0])
+    ftypes = ("AG", "BC", "CAG", "ABC")
+    sw = solve_teed_sweep(line, terms, v_nominal_v=V_NOM, fault_leg=leg, fault_types=ftypes,
+                          m=m, r_fault_ohm=[0.0, 6.0], emf_v=tuple(np.array([e]) for e in emfs))
+    for fi, ft in enumerate(ftypes):
+        for mi, mm in enumerate(m):
+            for ri, rf in enumerate((0.0, 6.0)):
+                ref, i_f = nodal(line, terms, emfs, leg, mm, ft, rf, 0.0)
+                scale = np.max(np.abs(i_f))
+                for end in ENDS:
+                    assert_allclose(sw.v[end][fi, mi, ri, 0, 0], ref[end][0], rtol=1e-8,
+                                    atol=1e-8 * V_NOM)
+                    assert_allclose(sw.i[end][fi, mi, ri, 0, 0], ref[end][1], rtol=1e-8,
+                                    atol=1e-8 * scale)
+
+
+def test_tiny_branch_without_source_is_the_two_ended_line_with_its_cable():
+    from relayset.studies.reach import build_source, line_cascade
+
+    text = CABLE_TOML.replace(BRANCH, '''sections = [
+  { length = "1 mm", order = ["A", "B", "C"], cable = "xlpe" },
+]''').replace('[sources."Linden Lane"]\nz1 = "4 + 30j ohm"\nz0 = "5 + 40j ohm"\n', '')
+    study, geo, params, line, terms = _legs(text)
+    assert terms[2] is None
+    full = line_cascade(geo, params, "actual_plan", True)
+    assert full.z_ohm_per_m.shape[0] == 4  # the line's cable section is in the cascade
+    tee = 17e3
+    m_leg = np.array([0.0, 0.5, 1.0])
+    for leg, d in (("S", tee), ("R", 43e3 - tee)):
+        m_line = m_leg * d / 43e3 if leg == "S" else 1 - m_leg * d / 43e3
+        sw = solve_teed_sweep(line, terms, v_nominal_v=V_NOM, fault_leg=leg,
+                              fault_types=FAULT_TYPES, m=m_leg, r_fault_ohm=[0.0, 5.0])
+        ref = solve_fault_sweep(full, build_source(study, "Harwick", ""),
+                                build_source(study, "Ostmere", ""), v_nominal_v=V_NOM,
+                                fault_types=FAULT_TYPES, m=m_line, r_fault_ohm=[0.0, 5.0])
+        scale = np.max(np.abs(ref.i_fault))
+        assert_allclose(sw.v["S"], ref.v_s, rtol=1e-7, atol=1e-7 * V_NOM)
+        assert_allclose(sw.i["S"], ref.i_s, rtol=1e-7, atol=1e-7 * scale)
+        assert_allclose(sw.i["R"], ref.i_r, rtol=1e-7, atol=1e-7 * scale)
+        assert np.max(np.abs(sw.i["T"])) < 1e-6 * scale
+
+
+def test_settings_of_a_teed_line_with_cables(tmp_path, capsys):
+    path = tmp_path / "teedc.toml"
+    path.write_text(CABLE_TOML, encoding="utf-8")
+    out = tmp_path / "out.json"
+    code = main(["settings", str(path), "--json", str(out)])
+    err = capsys.readouterr().err
+    assert code in (0, 1), err  # 1: failed checks, stated
+    assert out.exists()
+
+
+BAD = [
+    ("unknown cable", ('cable = "xlpe" },\n]\n\n[relay]', 'cable = "xple" },\n]\n\n[relay]'),
+     ["tee.sections[1].cable = \"xple\"", "names no cable"]),
+    ("tower and cable", ('{ length = "2.5 km", order = ["B", "C", "A"], cable',
+                         '{ length = "2.5 km", order = ["B", "C", "A"], tower = "lattice", '
+                         'cable'),
+     ["tee.sections[1].cable = \"xlpe\"", "either overhead or cable"]),
+    ("circuit spacing on one circuit", ('bonding = "both_ends"',
+                                        'bonding = "both_ends"\ncircuit_spacing = "1 m"'),
+     ["cables.xlpe.circuit_spacing", "double-circuit"]),
+]
+
+
+@pytest.mark.parametrize("case", BAD, ids=[c[0] for c in BAD])
+def test_bad_branch_cable_input_is_one_line_and_exit_2(tmp_path, capsys, case):
+    _, (old, new), words = case
+    text = CABLE_TOML
+    if case[0] == "circuit spacing on one circuit":  # the cable on the branch only
+        text = text.replace('  { length = "3 km",  order = ["A", "B", "C"], cable = "xlpe" },\n',
+                            '').replace('length = "43 km"', 'length = "40 km"')
+    assert old in text
+    path = tmp_path / "bad.toml"
+    path.write_text(text.replace(old, new, 1), encoding="utf-8")
+    out_json = tmp_path / "out.json"
+    code = main(["params", str(path), "--json", str(out_json)])
+    err = capsys.readouterr().err.strip()
+    assert code == 2 and len(err.splitlines()) == 1, err
+    assert "Traceback" not in err and str(path) in err
+    for w in words:
+        assert w in err, err
+    assert not out_json.exists()
+
+
+def test_branch_cable_without_towers_is_refused(tmp_path, capsys):
+    from test_teed_study import TEED_TOML
+
+    text = TEED_TOML.replace('{ length = "7 km", order = ["B", "C", "A"] }',
+                             '{ length = "7 km", order = ["B", "C", "A"], cable = "x" }')
+    assert text != TEED_TOML
+    path = tmp_path / "bad.toml"
+    path.write_text(text, encoding="utf-8")
+    code = main(["params", str(path)])
+    err = capsys.readouterr().err.strip()
+    assert code == 2 and len(err.splitlines()) == 1, err
+    assert "cable" in err
