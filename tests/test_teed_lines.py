@@ -315,3 +315,174 @@ def test_branch_cable_without_towers_is_refused(tmp_path, capsys):
     err = capsys.readouterr().err.strip()
     assert code == 2 and len(err.splitlines()) == 1, err
     assert "cable" in err
+
+
+# --- Task: a tee on a double-circuit line (circuit 1 tapped, circuit 2 untapped) ----------
+
+def _double_teed(shunt: bool, coupled: bool = True):
+    """A double-circuit line S-R (invented matrices of tests/test_network.py, the phases
+    of circuit 1 rotated section by section) tapped on circuit 1 at 32 km by a 14 km
+    single-circuit branch."""
+    from test_network import C_12_NF_KM, C_ABC_NF_KM, OMEGA, Z_12_KM, Z_ABC_KM
+
+    from relayset.physics.network import LineCascade
+    from relayset.physics.teed import TeedLine
+
+    k = 1.0 if coupled else 0.0
+    perms = [[0, 1, 2], [1, 2, 0], [2, 0, 1]]
+    zs, ys = [], []
+    for p in perms:
+        q = [*p, 3, 4, 5]
+        z = np.block([[Z_ABC_KM, k * Z_12_KM], [k * Z_12_KM.T, Z_ABC_KM[::-1, ::-1]]]) / 1e3
+        c = np.block([[C_ABC_NF_KM, k * C_12_NF_KM],
+                      [k * C_12_NF_KM.T, C_ABC_NF_KM[::-1, ::-1]]])
+        zs.append(z[np.ix_(q, q)])
+        ys.append(1j * OMEGA * c[np.ix_(q, q)] * 1e-12)
+    main = LineCascade(np.stack(zs), np.array([20e3, 25e3, 30e3]),
+                       np.stack(ys) if shunt else None)
+    zb = Z_ABC_KM[np.ix_(perms[2], perms[2])] / 1e3
+    yb = 1j * OMEGA * C_ABC_NF_KM[np.ix_(perms[2], perms[2])] * 1e-12
+    branch = LineCascade(np.stack([zb, Z_ABC_KM / 1e3]), np.array([6e3, 8e3]),
+                         np.stack([yb, 1j * OMEGA * C_ABC_NF_KM * 1e-12]) if shunt else None)
+    return main, branch, TeedLine.from_line(main, 32e3, branch)
+
+
+def _dc_sources():
+    from relayset.physics.network import Source
+
+    return (Source(1.2 + 12j, 2.0 + 18j), Source(2.5 + 20j, 4.0 + 35j),
+            Source(4.0 + 30j, 6.0 + 40j))
+
+
+DC_EMFS = tuple(V_NOM / math.sqrt(3) * np.exp(1j * np.radians(a)) for a in (10.0, 0.0, -5.0))
+
+
+def _legs_of(line):
+    return tuple((leg.z_ohm_per_m, leg.y_s_per_m, leg.length_m) for leg in line.legs)
+
+
+DC_CASES = [(s, st) for s in (False, True) for st in ("in_service", "earthed", "isolated")]
+
+
+@pytest.mark.parametrize(("shunt", "state"), DC_CASES, ids=[f"{s}-{t}" for s, t in DC_CASES])
+@pytest.mark.parametrize("leg", ENDS)
+def test_double_circuit_tee_equals_nodal_reference(shunt, state, leg):
+    """Independent check: tests/reference_solver.solve_teed_single (modified nodal
+    analysis, Ho, Ruehli and Brennan 1975; segment admittances by eigendecomposition),
+    sharing no chain matrix, terminal equation or superposition with the solver."""
+    from reference_solver import solve_teed_single
+
+    _, _, line = _double_teed(shunt)
+    terms = _dc_sources()
+    m = np.array([0.0, 0.45, 1.0])
+    ftypes = ("AG", "BC", "BCG", "ABC")
+    rf, rp = np.array([0.0, 8.0]), np.array([0.0, 1.5])
+    sw = solve_teed_sweep(line, terms, v_nominal_v=V_NOM, fault_leg=leg, fault_types=ftypes,
+                          m=m, r_fault_ohm=rf, r_phase_ohm=rp, parallel_state=state,
+                          emf_v=tuple(np.array([e]) for e in DC_EMFS))
+    for fi, ft in enumerate(ftypes):
+        for mi, mm in enumerate(m):
+            for ri in range(2):
+                ref = solve_teed_single(_legs_of(line), terms, DC_EMFS, fault_leg=leg,
+                                        m=float(mm), fault_type=ft, r_fault_ohm=rf[ri],
+                                        r_phase_ohm=rp[ri], parallel_state=state)
+                scale = np.max(np.abs(ref.i_fault))
+                for end in ENDS:
+                    assert_allclose(sw.v[end][fi, mi, ri, 0, 0], ref.v[end], rtol=1e-8,
+                                    atol=1e-8 * V_NOM)
+                    assert_allclose(sw.i[end][fi, mi, ri, 0, 0], ref.i[end], rtol=1e-8,
+                                    atol=1e-8 * scale)
+                    assert_allclose(sw.i_parallel[end][fi, mi, ri, 0, 0], ref.i_parallel[end],
+                                    rtol=1e-8, atol=1e-8 * scale)
+                assert_allclose(sw.i_fault[fi, mi, ri, 0, 0], ref.i_fault, rtol=1e-8,
+                                atol=1e-8 * scale)
+
+
+@pytest.mark.parametrize("leg", ["S", "R"])
+def test_fault_on_the_untapped_circuit_and_a_transformer_equal_nodal_reference(leg):
+    """Circuit 2 faulted (in service), and a grounded-star transformer at T with an open
+    end at R (prefault and fault), against the nodal reference."""
+    from relayset.physics.teed import GroundedTransformer
+
+    from reference_solver import solve_teed_single
+
+    _, _, line = _double_teed(True)
+    src = _dc_sources()
+    for terms, tz, fc in (((src[0], src[1], src[2]), {}, 2),
+                          ((src[0], None, GroundedTransformer(3.0 + 25j)),
+                           {"T": 3.0 + 25j}, 1),
+                          ((GroundedTransformer(2.0 + 20j), src[1], src[2]),
+                           {"S": 2.0 + 20j}, 1)):
+        sw = solve_teed_sweep(line, terms, v_nominal_v=V_NOM, fault_leg=leg,
+                              fault_types=("AG", "CAG"), m=np.array([0.3]), r_fault_ohm=[2.0],
+                              fault_circuit=fc, emf_v=tuple(np.array([e]) for e in DC_EMFS))
+        for fi, ft in enumerate(("AG", "CAG")):
+            ref = solve_teed_single(_legs_of(line), terms, DC_EMFS, fault_leg=leg, m=0.3,
+                                    fault_type=ft, r_fault_ohm=2.0, fault_circuit=fc,
+                                    transformer_z0=tz)
+            scale = np.max(np.abs(ref.i_fault))
+            for end in ENDS:
+                assert_allclose(sw.v[end][fi, 0, 0, 0, 0], ref.v[end], rtol=1e-8,
+                                atol=1e-8 * V_NOM)
+                assert_allclose(sw.i[end][fi, 0, 0, 0, 0], ref.i[end], rtol=1e-8,
+                                atol=1e-8 * scale)
+                assert_allclose(sw.i_parallel[end][fi, 0, 0, 0, 0], ref.i_parallel[end],
+                                rtol=1e-8, atol=1e-8 * scale)
+
+
+@pytest.mark.parametrize("state", ["earthed", "isolated"])
+@pytest.mark.parametrize("shunt", [False, True])
+def test_uncoupled_parallel_circuit_out_is_the_single_circuit(state, shunt):
+    """Identity: circuit 2 out of service and not coupled (far away) changes nothing on
+    circuit 1 (Kirchhoff: it carries no current into circuit 1's network)."""
+    from relayset.physics.network import LineCascade
+    from relayset.physics.teed import TeedLine
+
+    main, branch, line = _double_teed(shunt, coupled=False)
+    single = TeedLine.from_line(
+        LineCascade(main.z_ohm_per_m[:, :3, :3], main.length_m,
+                    None if main.y_s_per_m is None else main.y_s_per_m[:, :3, :3]),
+        32e3, branch)
+    terms = _dc_sources()
+    kw = dict(v_nominal_v=V_NOM, fault_types=FAULT_TYPES, m=np.array([0.0, 0.6, 1.0]),
+              r_fault_ohm=[0.0, 4.0], emf_v=tuple(np.array([e]) for e in DC_EMFS))
+    for leg in ENDS:
+        a = solve_teed_sweep(line, terms, fault_leg=leg, parallel_state=state, **kw)
+        b = solve_teed_sweep(single, terms, fault_leg=leg, **kw)
+        scale = np.max(np.abs(b.i_fault))
+        for end in ENDS:
+            assert_allclose(a.v[end], b.v[end], rtol=1e-9, atol=1e-9 * V_NOM)
+            assert_allclose(a.i[end], b.i[end], rtol=1e-9, atol=1e-9 * scale)
+
+
+def test_coupled_parallel_circuit_isolated_series_only_is_the_single_circuit():
+    """Identity: series-only, circuit 2 isolated carries no current, so its mutual
+    coupling induces nothing on circuit 1 (Z I with I2 = 0)."""
+    from relayset.physics.network import LineCascade
+    from relayset.physics.teed import TeedLine
+
+    main, branch, line = _double_teed(False)
+    single = TeedLine.from_line(LineCascade(main.z_ohm_per_m[:, :3, :3], main.length_m),
+                                32e3, branch)
+    kw = dict(v_nominal_v=V_NOM, fault_types=("AG", "BC"), m=np.array([0.5]),
+              r_fault_ohm=[0.0], emf_v=tuple(np.array([e]) for e in DC_EMFS))
+    a = solve_teed_sweep(line, _dc_sources(), fault_leg="R", parallel_state="isolated", **kw)
+    b = solve_teed_sweep(single, _dc_sources(), fault_leg="R", **kw)
+    assert_allclose(a.i["S"], b.i["S"], rtol=1e-10, atol=1e-6)
+    # and in service it does matter: the parallel path carries current
+    c = solve_teed_sweep(line, _dc_sources(), fault_leg="R", **kw)
+    assert np.max(np.abs(c.i_parallel["S"])) > 10.0
+    assert np.max(np.abs(c.i["S"] - b.i["S"])) > 10.0
+
+
+def test_double_circuit_tee_bad_input():
+    from relayset.errors import InputError
+
+    _, _, line = _double_teed(False)
+    with pytest.raises(InputError, match="faulted circuit"):
+        solve_teed_sweep(line, _dc_sources(), v_nominal_v=V_NOM, fault_leg="T",
+                         fault_types=["AG"], m=[0.5], r_fault_ohm=[0.0], fault_circuit=2)
+    with pytest.raises(InputError, match="parallel circuit state"):
+        solve_teed_sweep(line, _dc_sources(), v_nominal_v=V_NOM, fault_leg="S",
+                         fault_types=["AG"], m=[0.5], r_fault_ohm=[0.0],
+                         parallel_state="gone")

@@ -69,6 +69,7 @@ from relayset.physics.network import (
     _balanced,
     _check_branch,
     _check_locations,
+    _check_state,
     _name,
     _terminal,
 )
@@ -104,13 +105,15 @@ Terminal = Source | GroundedTransformer | None
 
 @dataclass(frozen=True, eq=False)
 class TeedLine:
-    """The three legs of a teed single-circuit line, each from its bus to the tee.
+    """The three legs of a teed line, each from its bus to the tee.
 
     Parameters
     ----------
     legs : tuple of three LineCascade
-        Legs from bus S, bus R and bus T to the tee, three conductors each, sections in
-        order from the bus.
+        Legs from bus S, bus R and bus T to the tee, sections in order from the bus. The
+        legs from S and R carry three conductors, or six on a double-circuit line
+        (circuit 1 A, B, C, then circuit 2): circuit 1 is tapped at the tee, circuit 2
+        runs through it untapped. The branch (from T) carries three.
     """
 
     legs: tuple[LineCascade, LineCascade, LineCascade]
@@ -119,26 +122,30 @@ class TeedLine:
         legs = tuple(self.legs)
         if len(legs) != 3:
             raise InputError("a teed line has three legs", field="legs", value=len(legs))
-        for leg in legs:
-            if leg.n_conductors != 3:
-                raise InputError(
-                    "a three-terminal line is modelled for a single circuit only; a double "
-                    "circuit with a tee is not supported", field="legs",
-                    value=leg.n_conductors)
+        n_s, n_r, n_t = (leg.n_conductors for leg in legs)
+        if n_s != n_r or n_t != 3:
+            raise InputError(
+                "a teed line's legs from bus S and bus R carry the same circuits (one, or "
+                "two with the untapped parallel circuit) and the branch one circuit",
+                field="legs", value=[n_s, n_r, n_t])
         object.__setattr__(self, "legs", legs)
+
+    @property
+    def n_conductors(self) -> int:
+        """Conductors of the legs from bus S and bus R: 3, or 6 with the parallel circuit."""
+        return self.legs[0].n_conductors
 
     @classmethod
     def from_line(cls, line: LineCascade, tee_m: float, branch: LineCascade) -> TeedLine:
         """Split a line S -> R at ``tee_m`` [m] from bus S; ``branch`` runs tee -> bus T.
 
         The S leg keeps the sections up to the tee; the R leg is the rest in reverse order
-        (from bus R); the branch is reversed to run from bus T.
+        (from bus R); the branch is reversed to run from bus T. A double-circuit line (six
+        conductors) is tapped on circuit 1; circuit 2 runs through the tee.
         """
-        if line.n_conductors != 3 or branch.n_conductors != 3:
-            raise InputError(
-                "a three-terminal line is modelled for a single circuit only; a double "
-                "circuit with a tee is not supported", field="tee",
-                value=max(line.n_conductors, branch.n_conductors))
+        if branch.n_conductors != 3:
+            raise InputError("the branch of a teed line carries one circuit (three "
+                             "conductors)", field="tee", value=branch.n_conductors)
         total = line.total_length_m
         if not (0 < tee_m < total):
             raise InputError("the tee must lie inside the line", field="tee", value=tee_m)
@@ -178,16 +185,33 @@ class TeedSweep:
     i_fault: np.ndarray
     v_pre: dict[str, np.ndarray]  #: (K, L, 3) prefault bus voltages per end
     i_pre: dict[str, np.ndarray]  #: (K, L, 3) prefault currents per end
+    #: circuit 2 currents into the line at S and R (zeros at T and on a single circuit)
+    i_parallel: dict[str, np.ndarray] | None = None
+    i_parallel_pre: dict[str, np.ndarray] | None = None  #: (K, L, 3) their prefault values
+    parallel_state: str = "in_service"  #: circuit 2's state (network.PARALLEL_STATES)
+    fault_circuit: int = 1  #: the faulted circuit (2: the untapped parallel circuit)
 
 
-def _transformer_terminal(n_k: int, n_l: int, z0: complex, z_ref: float
-                          ) -> tuple[np.ndarray, np.ndarray]:
-    """Terminal equations of a grounded-star transformer (see the module text)."""
+def _transformer_terminal(n: int, state: str, n_k: int, n_l: int, z0: complex,
+                          z_ref: float) -> tuple[np.ndarray, np.ndarray]:
+    """Terminal equations of a grounded-star transformer (see the module text); on six
+    conductors circuit 2 is on the same bus (in service), earthed or isolated there."""
     p0 = np.full((3, 3), 1.0 / 3.0)
-    g = np.zeros((n_k, 3, 6), dtype=complex)
-    g[:, :, :3] = p0
-    g[:, :, 3:] = z0 * p0 + z_ref * (np.eye(3) - p0)
-    return g, np.zeros((n_k, n_l, 3), dtype=complex)
+    zt = z0 * p0 + z_ref * (np.eye(3) - p0)
+    g = np.zeros((n_k, n, 2 * n), dtype=complex)
+    g[:, :3, :3] = p0
+    g[:, :3, n:n + 3] = zt
+    if n == 6:
+        eye = np.eye(3)
+        if state == "in_service":  # V1 = V2 and the transformer takes I1 + I2
+            g[:, :3, 9:12] = zt
+            g[:, 3:, 0:3] = eye
+            g[:, 3:, 3:6] = -eye
+        elif state == "earthed":
+            g[:, 3:, 3:6] = eye
+        else:
+            g[:, 3:, 9:12] = z_ref * eye
+    return g, np.zeros((n_k, n_l, n), dtype=complex)
 
 
 def _check_scale3(scale: np.ndarray | float, fn: Mapping[str, str] | None) -> np.ndarray:
@@ -224,6 +248,12 @@ def _check_emfs(v_nominal_v: float, emf_v: Sequence[np.ndarray] | None, n_k: int
     return np.broadcast_to(e, (3, n_k, e.shape[2])).copy()
 
 
+def _incidence(n: int, n_u: int) -> np.ndarray:
+    """(n, n_u) map from the tee's node voltages (circuit 1, then circuit 2 running
+    through) to a leg's conductors there."""
+    return np.eye(n, n_u)
+
+
 def solve_teed_sweep(
     line: TeedLine,
     sources: Sequence[Terminal],
@@ -238,6 +268,8 @@ def solve_teed_sweep(
     emf_v: Sequence[np.ndarray] | None = None,
     field_names: Mapping[str, str] | None = None,
     z_branch_ohm: np.ndarray | None = None,
+    parallel_state: str = "in_service",
+    fault_circuit: int = 1,
 ) -> TeedSweep:
     """Solve every fault type, location on one leg, resistance, source and load case.
 
@@ -271,6 +303,14 @@ def solve_teed_sweep(
         line leaving the bus at m = 0, carrying the fault current only), exactly as in
         :func:`relayset.physics.network.solve_fault_sweep`: the fault constraints see
         :math:`Z_{th} + Z_b`; ``v_f`` stays the leg point's voltage.
+    parallel_state : str
+        Double-circuit line only: the untapped circuit 2, one of
+        :data:`~relayset.physics.network.PARALLEL_STATES`: in service (on the same buses
+        S and R as circuit 1), out and earthed at both ends, or out and isolated, exactly
+        as :func:`relayset.physics.network.solve_fault_sweep` takes it.
+    fault_circuit : int
+        1 (default) or 2: the circuit faulted at ``m`` (2: the parallel circuit in
+        service, on leg S or R; ``v_f`` and ``i_fault`` are then circuit 2's).
 
     Returns
     -------
@@ -288,6 +328,12 @@ def solve_teed_sweep(
         raise InputError(f"unknown leg; use one of {', '.join(ENDS)}"
                          + suggest(str(fault_leg), ENDS), field=_name("fault_leg", fn),
                          value=fault_leg)
+    _check_state(line.legs[0], parallel_state, fn)
+    if fault_circuit not in (1, 2) or (fault_circuit == 2 and (
+            line.n_conductors != 6 or parallel_state != "in_service" or fault_leg == "T")):
+        raise InputError("the faulted circuit is 1, or 2 of a double-circuit line in service "
+                         "on the leg from S or R", field=_name("fault_circuit", fn),
+                         value=fault_circuit)
     ftypes = tuple(fault_types)
     if not ftypes:
         raise InputError("give one fault type at least", field=_name("fault_types", fn))
@@ -307,70 +353,105 @@ def solve_teed_sweep(
     z_b = None if z_branch_ohm is None else _check_branch(z_branch_ohm, n_m, fn)
     z_ref = max(float(np.max(np.abs(leg.z_total_ohm))) for leg in line.legs)
 
+    # Series-only with circuit 2 isolated: it carries no current and floats (no closed
+    # path); it is dropped, as network._line_matrices does.
+    legs = [(leg.z_ohm_per_m, leg.y_s_per_m, leg.length_m) for leg in line.legs]
+    state = parallel_state
+    if line.n_conductors == 6 and state == "isolated" and all(y is None for _, y, _ in legs):
+        legs = [(z[:, :3, :3], y, ln) for z, y, ln in legs]
+        state = "in_service"
+    ns = [z.shape[-1] for z, _, _ in legs]
+    n_u = max(ns)  # tee nodes: circuit 1, and circuit 2 running through
+
     g_mat, g_vec = [], []
     for k, term in enumerate(terms):
         if isinstance(term, GroundedTransformer):
-            g, b = _transformer_terminal(n_k, n_l, term.z0_ohm, z_ref)
+            g, b = _transformer_terminal(ns[k], state, n_k, n_l, term.z0_ohm, z_ref)
         else:
             zs = None if term is None else term.phase_matrix(scale[:, k])
-            g, b = _terminal(3, "in_service", zs, _balanced(emf[k]), z_ref)
+            g, b = _terminal(ns[k], state, zs, _balanced(emf[k]), z_ref)
         g_mat.append(g)
         g_vec.append(b)
 
     f = ENDS.index(fault_leg)
     h1, h2 = (k for k in range(3) if k != f)
-    leg_f = line.legs[f]
-    phi_a, phi_b = fault_chain_products(leg_f.z_ohm_per_m, leg_f.y_s_per_m,
-                                        leg_f.length_m, m)  # bus -> F, tee -> F
-    phi_h = [chain_products(line.legs[h].z_ohm_per_m, line.legs[h].y_s_per_m,
-                            line.legs[h].length_m[None], reverse=False)[0] for h in (h1, h2)]
+    z_f, y_f, l_f = legs[f]
+    phi_a, phi_b = fault_chain_products(z_f, y_f, l_f, m)  # bus -> F, tee -> F
+    phi_h = [chain_products(legs[h][0], legs[h][1], legs[h][2][None], reverse=False)[0]
+             for h in (h1, h2)]
 
-    # x = [V_F, I_a, I_b, I_1, I_2]; rows: terminal f, terminals h1, h2, KCL tee, KCL F.
-    eye = np.eye(3)
-    w_f = g_mat[f][None] @ phi_a[:, None]  # (M, K, 3, 6)
-    a = np.zeros((n_m, n_k, 15, 15), dtype=complex)
-    a[..., 0:3, 0:3] = w_f[..., :3]
-    a[..., 0:3, 3:6] = w_f[..., 3:]
+    # x = [V_F, I_a, I_b (n_f each), U (n_u), I_1 (n_1), I_2 (n_2)]; rows: terminal f,
+    # terminals h1, h2, tee voltage of leg f, KCL at the tee, KCL at F.
+    nf, n1, n2 = ns[f], ns[h1], ns[h2]
+    c_a, c_b, c_u = nf, 2 * nf, 3 * nf
+    c_h = (c_u + n_u, c_u + n_u + n1)
+    n_x = c_u + n_u + n1 + n2
+    r_h = (nf, nf + n1)
+    r_tv = nf + n1 + n2
+    r_kcl = r_tv + nf
+    r_f = r_kcl + n_u
+    inc = {k: _incidence(ns[k], n_u) for k in range(3)}
+    w_f = g_mat[f][None] @ phi_a[:, None]  # (M, K, nf, 2nf)
+    a = np.zeros((n_m, n_k, n_x, n_x), dtype=complex)
+    a[..., 0:nf, 0:nf] = w_f[..., :nf]
+    a[..., 0:nf, c_a:c_b] = w_f[..., nf:]
     for r, (h, ph) in enumerate(zip((h1, h2), phi_h, strict=True)):
-        w_h = g_mat[h] @ ph  # (K, 3, 6)
-        rows = slice(3 + 3 * r, 6 + 3 * r)
-        # V_T = Phi_b11 V_F + Phi_b12 I_b
-        a[..., rows, 0:3] = w_h[None, :, :, :3] @ phi_b[:, None, :3, :3]
-        a[..., rows, 6:9] = w_h[None, :, :, :3] @ phi_b[:, None, :3, 3:]
-        a[..., rows, 9 + 3 * r:12 + 3 * r] = w_h[None, :, :, 3:]
-    a[..., 9:12, 0:3] = -z_ref * phi_b[:, None, 3:, :3]  # I_1 + I_2 - I_Tf = 0
-    a[..., 9:12, 6:9] = -z_ref * phi_b[:, None, 3:, 3:]
-    a[..., 9:12, 9:12] = z_ref * eye
-    a[..., 9:12, 12:15] = z_ref * eye
-    a[..., 12:15, 3:6] = z_ref * eye  # I_a + I_b = I_inj
-    a[..., 12:15, 6:9] = z_ref * eye
-    rhs = np.zeros((n_m, n_k, 15, n_l + 3), dtype=complex)
-    rhs[..., 0:3, :n_l] = np.swapaxes(g_vec[f], -1, -2)[None]
-    rhs[..., 3:6, :n_l] = np.swapaxes(g_vec[h1], -1, -2)[None]
-    rhs[..., 6:9, :n_l] = np.swapaxes(g_vec[h2], -1, -2)[None]
-    rhs[..., 12:15, n_l:] = z_ref * eye
-    x = np.linalg.solve(a, rhs)  # (M, K, 15, L + 3)
+        nh = ns[h]
+        w_h = g_mat[h] @ ph  # (K, nh, 2nh): [V; I] at the tee end of leg h
+        rows = slice(r_h[r], r_h[r] + nh)
+        a[..., rows, c_u:c_u + n_u] = (w_h[..., :nh] @ inc[h])[None]
+        a[..., rows, c_h[r]:c_h[r] + nh] = w_h[None, ..., nh:]
+    # tee voltage: Phi_b11 V_F + Phi_b12 I_b - C_f U = 0
+    rows = slice(r_tv, r_tv + nf)
+    a[..., rows, 0:nf] = phi_b[:, None, :nf, :nf]
+    a[..., rows, c_b:c_u] = phi_b[:, None, :nf, nf:]
+    a[..., rows, c_u:c_u + n_u] = -inc[f]
+    # KCL at the tee: C_1^T I_1 + C_2^T I_2 - C_f^T I_Tf = 0, I_Tf = Phi_b21 V_F + Phi_b22 I_b
+    rows = slice(r_kcl, r_kcl + n_u)
+    a[..., rows, 0:nf] = -z_ref * (inc[f].T @ phi_b[:, nf:, :nf])[:, None]
+    a[..., rows, c_b:c_u] = -z_ref * (inc[f].T @ phi_b[:, nf:, nf:])[:, None]
+    for r, h in enumerate((h1, h2)):
+        a[..., rows, c_h[r]:c_h[r] + ns[h]] = z_ref * inc[h].T
+    # KCL at F: I_a + I_b = I_inj
+    a[..., r_f:r_f + nf, c_a:c_b] = z_ref * np.eye(nf)
+    a[..., r_f:r_f + nf, c_b:c_u] = z_ref * np.eye(nf)
+    off = 3 * (fault_circuit - 1)  # the faulted circuit's first conductor
+    rhs = np.zeros((n_m, n_k, n_x, n_l + 3), dtype=complex)
+    rhs[..., 0:nf, :n_l] = np.swapaxes(g_vec[f], -1, -2)[None]
+    rhs[..., r_h[0]:r_h[0] + n1, :n_l] = np.swapaxes(g_vec[h1], -1, -2)[None]
+    rhs[..., r_h[1]:r_h[1] + n2, :n_l] = np.swapaxes(g_vec[h2], -1, -2)[None]
+    rhs[..., r_f + off:r_f + off + 3, n_l:] = z_ref * np.eye(3)
+    x = np.linalg.solve(a, rhs)  # (M, K, n_x, L + 3)
 
-    # Output rows: V_F, then (V, I) at the buses of f, h1, h2.
-    t = np.zeros((n_m, 21, 15), dtype=complex)
-    t[:, 0:3, 0:3] = eye
-    t[:, 3:9, 0:3] = phi_a[:, :, :3]
-    t[:, 3:9, 3:6] = phi_a[:, :, 3:]
-    for r, ph in enumerate(phi_h):
-        rows = slice(9 + 6 * r, 15 + 6 * r)
-        t[:, rows, 0:3] = ph[None, :, :3] @ phi_b[:, :3, :3]
-        t[:, rows, 6:9] = ph[None, :, :3] @ phi_b[:, :3, 3:]
-        t[:, rows, 9 + 3 * r:12 + 3 * r] = ph[None, :, 3:]
-    out = t[:, None] @ x  # (M, K, 21, L + 3)
+    # Output rows: V_F (the faulted circuit), then per bus of f, h1, h2 its voltage
+    # (circuit 1's), circuit 1's current and circuit 2's (zeros on three conductors).
+    n_out = 3 + 27
+    t = np.zeros((n_m, n_out, n_x), dtype=complex)
+    t[:, 0:3, off:off + 3] = np.eye(3)
+
+    def put(r0: int, phi: np.ndarray, cols_v, cols_i, n: int) -> None:
+        """Rows r0.. of T from [V; I] = phi @ [v; i] at a bus (phi (..., 2n, 2n))."""
+        for q, (lo, hi) in enumerate(((0, 3), (n, n + 3), (n + 3, n + 6))):
+            if hi > 2 * n:
+                continue  # no circuit 2 on this leg: its current stays zero
+            for cols, blk in ((cols_v, phi[..., lo:hi, :n]), (cols_i, phi[..., lo:hi, n:])):
+                c, mat = cols
+                t[:, r0 + 3 * q:r0 + 3 * q + 3, c] = blk @ mat if mat is not None else blk
+
+    put(3, phi_a, (slice(0, nf), None), (slice(c_a, c_b), None), nf)
+    for r, (h, ph) in enumerate(zip((h1, h2), phi_h, strict=True)):
+        put(12 + 9 * r, ph[None], (slice(c_u, c_u + n_u), inc[h]),
+            (slice(c_h[r], c_h[r] + ns[h]), None), ns[h])
+    out = t[:, None] @ x  # (M, K, n_out, L + 3)
 
     # Cases laid out (M, Rf, K, L); phase axes first for fault_currents.
     z_th = -np.transpose(out[..., 0:3, n_l:], (2, 3, 0, 1))[:, :, :, None, :, None]
     if z_b is not None:  # the fault beyond a series branch (see the parameters)
         z_th = z_th + np.transpose(z_b, (1, 2, 0))[:, :, :, None, None, None]
     v_pre_f = np.transpose(out[..., 0:3, :n_l], (2, 0, 1, 3))[:, :, None]  # (3, M, 1, K, L)
-    pre = np.transpose(out[..., :n_l], (0, 1, 3, 2))[:, None]  # (M, 1, K, L, 21)
-    sens = np.transpose(out[..., n_l:], (3, 0, 1, 2))[:, :, None, :, None, :]  # (j,M,1,K,1,21)
-    res = np.empty((len(ftypes), n_m, rf.size, n_k, n_l, 21), dtype=complex)
+    pre = np.transpose(out[..., :n_l], (0, 1, 3, 2))[:, None]  # (M, 1, K, L, n_out)
+    sens = np.transpose(out[..., n_l:], (3, 0, 1, 2))[:, :, None, :, None, :]
+    res = np.empty((len(ftypes), n_m, rf.size, n_k, n_l, n_out), dtype=complex)
     i_fault = np.zeros((len(ftypes), n_m, rf.size, n_k, n_l, 3), dtype=complex)
     rf_b, rp_b = rf[None, :, None, None], rp[None, :, None, None]
     for fi, ft in enumerate(ftypes):
@@ -389,16 +470,19 @@ def solve_teed_sweep(
         res[fi] = acc
 
     order = (f, h1, h2)
-    v, i, v_pre, i_pre = {}, {}, {}, {}
-    pre0 = np.transpose(out[0, :, :, :n_l], (0, 2, 1))  # (K, L, 21)
+    v, i, v_pre, i_pre, i_par, i_par_pre = {}, {}, {}, {}, {}, {}
+    pre0 = np.transpose(out[0, :, :, :n_l], (0, 2, 1))  # (K, L, n_out)
     for r, k in enumerate(order):
-        rv, ri = 3 + 6 * r, 6 + 6 * r
+        rv = 3 + 9 * r
         v[ENDS[k]] = res[..., rv:rv + 3]
-        i[ENDS[k]] = res[..., ri:ri + 3]
+        i[ENDS[k]] = res[..., rv + 3:rv + 6]
+        i_par[ENDS[k]] = res[..., rv + 6:rv + 9]
         v_pre[ENDS[k]] = np.ascontiguousarray(pre0[..., rv:rv + 3])
-        i_pre[ENDS[k]] = np.ascontiguousarray(pre0[..., ri:ri + 3])
+        i_pre[ENDS[k]] = np.ascontiguousarray(pre0[..., rv + 3:rv + 6])
+        i_par_pre[ENDS[k]] = np.ascontiguousarray(pre0[..., rv + 6:rv + 9])
     return TeedSweep(
         fault_types=ftypes, fault_leg=fault_leg, m=m, r_fault_ohm=rf, r_phase_ohm=rp,
         source_scale=scale, emf_v=emf, v=v, i=i, v_f=res[..., 0:3], i_fault=i_fault,
-        v_pre=v_pre, i_pre=i_pre,
+        v_pre=v_pre, i_pre=i_pre, i_parallel=i_par, i_parallel_pre=i_par_pre,
+        parallel_state=parallel_state, fault_circuit=fault_circuit,
     )
