@@ -486,3 +486,121 @@ def test_double_circuit_tee_bad_input():
         solve_teed_sweep(line, _dc_sources(), v_nominal_v=V_NOM, fault_leg="S",
                          fault_types=["AG"], m=[0.5], r_fault_ohm=[0.0],
                          parallel_state="gone")
+
+
+def _double_study_text() -> str:
+    """tests/test_teed_study.py's teed line with a second circuit above the first on the
+    same towers (untapped), the branch on circuit 1 alone."""
+    from test_teed_study import TEED_TOML
+
+    text = TEED_TOML.replace('[[shield_wires]]', '''[[circuits]]
+name = "2"
+positions = [
+  { name = "l2", x = "-5.0 m", height = "31 m", sag = "6 m", conductor = "phase" },
+  { name = "m2", x = "0.0 m",  height = "31 m", sag = "6 m", conductor = "phase" },
+  { name = "r2", x = "5.0 m",  height = "31 m", sag = "6 m", conductor = "phase" },
+]
+
+[[shield_wires]]''').replace('height = "28 m"', 'height = "38 m"')
+    line = text[text.index("[line]"):text.index("[tee]")]
+    new = line
+    for o in ('["A", "B", "C"]', '["C", "A", "B"]', '["B", "C", "A"]'):
+        new = new.replace(f"order = {o} }}", f'order = {{ "1" = {o}, "2" = {o} }} }}')
+    return text.replace(line, new)
+
+
+def _single_study_text() -> str:
+    """The same line without circuit 2 (the shield wire as high as above)."""
+    from test_teed_study import TEED_TOML
+
+    return TEED_TOML.replace('height = "28 m"', 'height = "38 m"')
+
+
+def test_double_circuit_study_legs_and_the_absent_parallel_circuit():
+    """Study level: the legs from the ends carry six conductors and the branch three; the
+    circuit-1 blocks and the branch are those of the same line without circuit 2 (Kron
+    reduction keeps a phase block whatever other phase wires there are; the branch has
+    no circuit 2), so with circuit 2 isolated and series-only (no current in it, so no
+    coupling) the teed solution equals the single-circuit one."""
+    _, _, _, dline, dterms = _legs(_double_study_text(), shunt=False)
+    _, _, _, sline, sterms = _legs(_single_study_text(), shunt=False)
+    assert [leg.n_conductors for leg in dline.legs] == [6, 6, 3]
+    assert [leg.n_conductors for leg in sline.legs] == [3, 3, 3]
+    for d, s in zip(dline.legs[:2], sline.legs[:2], strict=True):
+        assert_allclose(d.z_ohm_per_m[:, :3, :3], s.z_ohm_per_m, rtol=1e-12, atol=0)
+        assert_allclose(d.length_m, s.length_m, rtol=1e-12, atol=0)
+    assert_allclose(dline.legs[2].z_ohm_per_m, sline.legs[2].z_ohm_per_m, rtol=1e-12, atol=0)
+    kw = dict(v_nominal_v=V_NOM, fault_types=FAULT_TYPES, m=np.array([0.0, 0.5, 1.0]),
+              r_fault_ohm=[0.0, 5.0])
+    for leg in ENDS:
+        a = solve_teed_sweep(dline, dterms, fault_leg=leg, parallel_state="isolated", **kw)
+        b = solve_teed_sweep(sline, sterms, fault_leg=leg, **kw)
+        scale = np.max(np.abs(b.i_fault))
+        for end in ENDS:
+            assert_allclose(a.i[end], b.i[end], rtol=1e-9, atol=1e-9 * scale)
+            assert_allclose(a.v[end], b.v[end], rtol=1e-9, atol=1e-9 * V_NOM)
+
+
+@pytest.mark.parametrize("state", ["in_service", "earthed", "isolated"])
+def test_double_circuit_study_equals_nodal_reference(state):
+    from reference_solver import solve_teed_single
+
+    _, _, _, line, terms = _legs(_double_study_text(), shunt=True)
+    emfs = tuple(V_NOM / math.sqrt(3) * np.exp(1j * np.radians(a)) for a in (6.0, 0.0, -3.0))
+    for leg in ENDS:
+        sw = solve_teed_sweep(line, terms, v_nominal_v=V_NOM, fault_leg=leg,
+                              fault_types=("AG", "BC"), m=np.array([0.7]),
+                              r_fault_ohm=[3.0], parallel_state=state,
+                              emf_v=tuple(np.array([e]) for e in emfs))
+        for fi, ft in enumerate(("AG", "BC")):
+            ref = solve_teed_single(_legs_of(line), terms, emfs, fault_leg=leg, m=0.7,
+                                    fault_type=ft, r_fault_ohm=3.0, parallel_state=state)
+            scale = np.max(np.abs(ref.i_fault))
+            for end in ENDS:
+                assert_allclose(sw.i[end][fi, 0, 0, 0, 0], ref.i[end], rtol=1e-8,
+                                atol=1e-8 * scale)
+                assert_allclose(sw.v[end][fi, 0, 0, 0, 0], ref.v[end], rtol=1e-8,
+                                atol=1e-8 * V_NOM)
+
+
+def test_double_circuit_teed_settings_cover_every_parallel_state(monkeypatch):
+    from test_teed_study import _run
+
+    import relayset.studies.teed as st
+    import relayset.studies.verification.teed as vt
+
+    solved = {"reach": set(), "verification": set()}
+
+    def spy(where, real):
+        def solve(*a, **kw):
+            solved[where].add(kw.get("parallel_state", "in_service"))
+            return real(*a, **kw)
+        return solve
+
+    monkeypatch.setattr(st, "solve_teed_sweep", spy("reach", st.solve_teed_sweep))
+    monkeypatch.setattr(vt, "solve_teed_sweep", spy("verification", vt.solve_teed_sweep))
+    res = _run(_double_study_text())
+    assert solved["reach"] == solved["verification"] == {"in_service", "earthed", "isolated"}
+    labels = [a.min_case for e in res.ends for a in e.apparent]
+    labels += [a.max_case for e in res.ends for a in e.apparent]
+    assert all("parallel circuit" in lab for lab in labels)
+    # zone 1 short of the nearest remote terminal over every state: at least as short as
+    # with the parallel circuit in service alone
+    checks = {c.check_id: c for e in res.ends for c in e.verification_checks}
+    assert "zone1_no_remote_terminal_trip" in checks
+    text = " ".join(c.detail for e in res.ends for c in e.verification_checks)
+    assert "parallel circuit" in text
+
+
+def test_branch_order_of_the_untapped_circuit_is_refused(tmp_path, capsys):
+    text = _double_study_text().replace(
+        '{ length = "7 km", order = ["B", "C", "A"] }',
+        '{ length = "7 km", order = { "1" = ["B", "C", "A"], "2" = ["A", "B", "C"] } }')
+    path = tmp_path / "bad.toml"
+    path.write_text(text, encoding="utf-8")
+    out = tmp_path / "o.json"
+    code = main(["params", str(path), "--json", str(out)])
+    err = capsys.readouterr().err.strip()
+    assert code == 2 and len(err.splitlines()) == 1, err
+    assert "tee.sections[1].order.2" in err and "tapped circuit" in err, err
+    assert not out.exists()

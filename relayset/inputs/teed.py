@@ -13,10 +13,12 @@
 
 The third substation's source is ``[sources."Third"]`` like the other buses'; without it
 (and without ``grounded_transformer_z0``) the branch ends open. ``[relay] end`` may name
-the third substation, or ``"all"`` for relays at all three ends. A tee is modelled on a
-single-circuit line only. This module declares the table and checks it against the rest of
-the study (:func:`check_tee`, called from
-:func:`relayset.inputs.study_file.check_study`).
+the third substation, or ``"all"`` for relays at all three ends. On a double-circuit line
+the first circuit of ``[[circuits]]`` (the protected one) is tapped and the second runs
+through the tee untapped; the branch carries the tapped circuit only (its sections' orders
+name it, on the named towers with the second circuit's positions empty). This module
+declares the table and checks it against the rest of the study (:func:`check_tee`, called
+from :func:`relayset.inputs.study_file.check_study`).
 """
 
 from __future__ import annotations
@@ -61,9 +63,6 @@ def check_tee(study: Any, data: dict, fail: Callable[..., None]) -> None:
     """Rules of ``[tee]`` against the rest of the study (``fail(rule, field, value)``)."""
     tee = study.tee
     ends = study.ends
-    if len(study.circuits) != 1:
-        fail("a tee is modelled on a single-circuit line only (this line has two circuits)",
-             "tee", None)
     if study.relay.profile is not None:  # settable values are two-ended (settings/settable)
         fail("a three-terminal line's zones are not put on a relay profile's steps "
              "(settable values and setting files are for two-ended lines): remove it",
@@ -86,11 +85,17 @@ def check_tee(study: Any, data: dict, fail: Callable[..., None]) -> None:
                  "tee.grounded_transformer_z0 (a grounded transformer only), not both",
                  "tee.grounded_transformer_z0", _raw(data, "tee", "grounded_transformer_z0"))
     names = [c.name for c in study.circuits]
+    teed = names[0]  # the protected circuit is tapped; a parallel circuit runs through
     for s, sec in enumerate(tee.sections):
         field = f"tee.sections[{s}]"
         for key in sec.order if isinstance(sec.order, dict) else ():
             if key not in names:
                 fail("names no circuit" + suggest(key, names), f"{field}.order.{toml_key(key)}",
+                     _raw(data, "tee", "sections", s, "order", key))
+            elif key != teed:
+                fail(f"the branch carries the tapped circuit {quote(teed)} only (circuit "
+                     f"{quote(key)} runs through the tee): give the order of {quote(teed)}",
+                     f"{field}.order.{toml_key(key)}",
                      _raw(data, "tee", "sections", s, "order", key))
         if sec.cable is not None:  # a cable section (relayset.inputs.cable)
             _check_branch_cable(study, sec, field, fail)
@@ -134,10 +139,13 @@ def _check_branch_cable_tables(study: Any, data: dict, fail: Callable[..., None]
                   and sec.cable not in on_line and sec.tower is None)
     if not extra or not study.towers:
         return
-    # The line's sections and the branch's cables: one overhead section at least, so only
-    # the tables' own rules can fail (each field names its [cables.NAME]).
-    line = dataclasses.replace(study.line, sections=(*(study.line.sections or ()), *extra))
-    check_cables(dataclasses.replace(study, line=line), data, fail)
+    # The line's overhead sections and the branch's cables (one overhead section at
+    # least, so only the tables' own rules can fail, each field naming its [cables.NAME]),
+    # on the branch's one circuit.
+    overhead = tuple(sec for sec in study.line.sections or () if sec.cable is None)
+    line = dataclasses.replace(study.line, sections=(*overhead, *extra))
+    check_cables(dataclasses.replace(study, line=line, circuits=study.circuits[:1]), data,
+                 fail)
 
 
 def buses(study: Any) -> tuple[str, ...]:

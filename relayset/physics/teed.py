@@ -64,6 +64,7 @@ from relayset.errors import InputError, suggest
 from relayset.physics.chain import chain_products, fault_chain_products, split_lengths
 from relayset.physics.faults import check_fault_type, check_resistance, fault_currents
 from relayset.physics.network import (
+    PARALLEL_STATES,
     LineCascade,
     Source,
     _balanced,
@@ -74,7 +75,8 @@ from relayset.physics.network import (
     _terminal,
 )
 
-__all__ = ["ENDS", "GroundedTransformer", "TeedLine", "TeedSweep", "solve_teed_sweep"]
+__all__ = ["ENDS", "GroundedTransformer", "TeedLine", "TeedSweep", "parallel_label",
+           "parallel_states", "solve_teed_sweep"]
 
 #: The three line ends (buses), in the order of every per-end axis.
 ENDS: tuple[str, ...] = ("S", "R", "T")
@@ -246,6 +248,19 @@ def _check_emfs(v_nominal_v: float, emf_v: Sequence[np.ndarray] | None, n_k: int
         raise InputError("EMFs must be finite, shape (load,) or (source cases, load)",
                          field=_name("emf_v", fn), value=e.shape)
     return np.broadcast_to(e, (3, n_k, e.shape[2])).copy()
+
+
+def parallel_states(line: TeedLine) -> tuple[str, ...]:
+    """The states of the untapped parallel circuit to solve: every one of
+    :data:`~relayset.physics.network.PARALLEL_STATES` on a double-circuit line, only
+    "in_service" (none) on a single circuit."""
+    return PARALLEL_STATES if line.n_conductors == 6 else ("in_service",)
+
+
+def parallel_label(line: TeedLine, state: str) -> str:
+    """``", parallel circuit STATE"`` of a double-circuit line's case label (empty on a
+    single circuit)."""
+    return "" if line.n_conductors != 6 else f", parallel circuit {state.replace('_', ' ')}"
 
 
 def _incidence(n: int, n_u: int) -> np.ndarray:

@@ -25,7 +25,14 @@ from relayset.inputs.study_file import Study, check_reach_inputs
 from relayset.physics import measurement
 from relayset.physics.network import LineCascade, Source
 from relayset.physics.sequence import to_sequence
-from relayset.physics.teed import ENDS, GroundedTransformer, TeedLine, solve_teed_sweep
+from relayset.physics.teed import (
+    ENDS,
+    GroundedTransformer,
+    TeedLine,
+    parallel_label,
+    parallel_states,
+    solve_teed_sweep,
+)
 from relayset.physics.zones import secondary_ohm
 from relayset.results.parameters import LineParameters
 from relayset.results.relay import RelayBasis
@@ -86,16 +93,21 @@ VERIFIED = ("Verified by fault simulation on the teed solver with the relay mode
 def teed_line(study: Study, geo: LineGeometry, params: LineParameters, shunt: bool,
               source: str) -> TeedLine:
     """The study's line split at the tee, with the branch from its own sections (its tower
-    geometry and phase orders read as the line's)."""
+    geometry and phase orders read as the line's). On a double-circuit line the legs from
+    the two ends carry both circuits (circuit 2 runs through the tee untapped) and the
+    branch carries circuit 1 alone: its towers' wires without circuit 2's positions."""
     tee = study.tee
     main = line_cascade(geo, params, "actual_plan", shunt)
     sections = tee.sections
+    teed = study.circuits[0]
     # The geometry places the wires of an overhead section; a branch of cable sections
     # only gets the line's first overhead section appended, dropped from its cascade.
     anchor = () if any(sec.cable is None for sec in sections) else tuple(
-        sec for sec in study.line.sections if sec.cable is None)[:1]
+        dataclasses.replace(sec, order=sec.order[teed.name])
+        if isinstance(sec.order, dict) else sec
+        for sec in study.line.sections if sec.cable is None)[:1]
     branch_study = dataclasses.replace(
-        study, tee=None,
+        study, tee=None, circuits=(teed,),
         line=dataclasses.replace(study.line, sections=(*sections, *anchor),
                                  length=math.fsum(sec.length for sec in (*sections, *anchor))))
     try:
@@ -177,22 +189,25 @@ def run_teed_study(study: Study, geo: LineGeometry, params: LineParameters,
                 t[out] = None
             if not any(isinstance(s, Source) for s in t):
                 continue
-            sw = solve_teed_sweep(line, t, v_nominal_v=v_nom, fault_leg=ENDS[y],
-                                  fault_types=ftypes, m=[0.0], r_fault_ohm=[0.0],
-                                  source_scale=scales, field_names=fn)
+            sws = [(ps, solve_teed_sweep(line, t, v_nominal_v=v_nom, fault_leg=ENDS[y],
+                                         fault_types=ftypes, m=[0.0], r_fault_ohm=[0.0],
+                                         source_scale=scales, field_names=fn,
+                                         parallel_state=ps))
+                   for ps in parallel_states(line)]  # a double circuit: each state
             for x in range(3):
                 if x == y or (out is not None and out == x) or buses[x] not in relay.ends:
                     continue
                 infeed = out is None
-                loops = measurement.loop_impedances(sw.v[ENDS[x]], sw.i[ENDS[x]], k0)
                 best = [math.inf, -math.inf, "", ""]
-                for f, ft in enumerate(ftypes):
+                for (ps, sw), (f, ft) in itertools.product(sws, enumerate(ftypes)):
+                    loops = measurement.loop_impedances(sw.v[ENDS[x]], sw.i[ENDS[x]], k0)
                     for lp in measurement.loops_for_fault(ft):
                         a = _along(loops[lp][f, 0, 0, :, 0], theta)  # over source cases
                         for k, val in enumerate(a):
                             if not math.isfinite(val):
                                 continue
-                            label = f"fault {ft}, loop {lp}, source case {case_names[k]}"
+                            label = (f"fault {ft}, loop {lp}, source case {case_names[k]}"
+                                     + parallel_label(line, ps))
                             if val < best[0]:
                                 best[0], best[2] = float(val), label
                             if val > best[1]:
@@ -220,7 +235,7 @@ def run_teed_study(study: Study, geo: LineGeometry, params: LineParameters,
         far, y_far = max(with_inf)
         z1_ohm = teed_zone1_ohm(near, pct1)
         z2_ohm = teed_zone2_ohm(far, philosophy.zone2.reach_pct)
-        leg_z1 = complex(to_sequence(line.legs[x].z_total_ohm)[1, 1])
+        leg_z1 = complex(to_sequence(line.legs[x].z_total_ohm[:3, :3])[1, 1])
         tee_ohm = float(_along(np.array(leg_z1), theta))
         next_z1 = []
         for y in remotes:
@@ -285,6 +300,6 @@ def run_teed_study(study: Study, geo: LineGeometry, params: LineParameters,
         buses=buses, tee_distance_m=study.tee.distance, branch_length_m=study.tee.length,
         z1_set_ohm=relay.z1_set_ohm, k0_set=k0, ends=tuple(results),
         assumptions=(*ASSUMPTIONS, VERIFIED),
-        legs=tuple((leg.total_length_m, complex(to_sequence(leg.z_total_ohm)[1, 1]),
-                    complex(to_sequence(leg.z_total_ohm)[0, 0])) for leg in line.legs),
+        legs=tuple((leg.total_length_m, complex(to_sequence(leg.z_total_ohm[:3, :3])[1, 1]),
+                    complex(to_sequence(leg.z_total_ohm[:3, :3])[0, 0])) for leg in line.legs),
         verification="failed checks" if failed else "verified")

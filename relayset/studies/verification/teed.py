@@ -5,7 +5,9 @@ The settings of :mod:`relayset.studies.teed` (mho circles at the line angle, rea
 verification (:mod:`.relay_model`: loops released by phase selection, release currents,
 directional elements, close-in faults) on faults solved by the teed solver
 (:mod:`relayset.physics.teed`), with every infeed state (all sources in, each terminal's
-source out, each two out) and the reach study's source cases, fault types and resistances:
+source out, each two out), on a double-circuit line each state of the untapped parallel
+circuit (in service, out and earthed, out and isolated), and the reach study's source
+cases, fault types and resistances:
 
 - zone 1 must not operate for any fault at either remote terminal (on the line side of its
   current transformer) or along the lines beyond it (``[[adjacent_lines]]`` with their bus);
@@ -28,7 +30,14 @@ import numpy as np
 from relayset.physics.characteristic import Mho
 from relayset.physics.network import FaultSweep, Source
 from relayset.physics.sequence import balanced_phase_matrix
-from relayset.physics.teed import ENDS, TeedLine, TeedSweep, solve_teed_sweep
+from relayset.physics.teed import (
+    ENDS,
+    TeedLine,
+    TeedSweep,
+    parallel_label,
+    parallel_states,
+    solve_teed_sweep,
+)
 from relayset.results.settings import Check
 from relayset.studies.verification.relay_model import LOOPS, RelayModel, Run, view, zone_scale
 
@@ -61,15 +70,14 @@ class MhoZone:
 def _as_run(sw: TeedSweep, end: str, case_names: tuple[str, ...]) -> Run:
     """The teed sweep as the relay at ``end`` sees it, in the two-ended run's shape (that
     end in the place of bus S), for :func:`.relay_model.view`."""
-    zeros = np.zeros_like(sw.i[end])
     k = sw.emf_v.shape[1]
     fs = FaultSweep(
         fault_types=sw.fault_types, m=sw.m, r_fault_ohm=sw.r_fault_ohm,
         r_phase_ohm=sw.r_phase_ohm, source_scale=np.ones((k, 2)), emf_s_v=sw.emf_v[0],
         emf_r_v=sw.emf_v[1], parallel_state="in_service", v_s=sw.v[end], i_s=sw.i[end],
-        i_s_parallel=zeros, v_r=None, i_r=None, i_r_parallel=None, v_f=sw.v_f,
+        i_s_parallel=sw.i_parallel[end], v_r=None, i_r=None, i_r_parallel=None, v_f=sw.v_f,
         i_fault=sw.i_fault, i_f_from_s=None, i_f_from_r=None, v_s_pre=sw.v_pre[end],
-        i_s_pre=sw.i_pre[end], i_s_parallel_pre=np.zeros_like(sw.i_pre[end]))
+        i_s_pre=sw.i_pre[end], i_s_parallel_pre=sw.i_parallel_pre[end])
     return Run(fs, "protected", "none", case_names, 0.0, (True, True))
 
 
@@ -109,7 +117,9 @@ def verify_teed(
     fracs = np.unique(np.array([0.25, 0.5, 1.0] + ([p_next] if p_next else [])))
     zone_1 = {x: MhoZone(zones[x][0]) for x in relay_ends}
     zone_2 = {x: MhoZone(zones[x][1]) for x in relay_ends}
-    for (earth, line), out in itertools.product(lines, states):
+    runs = [(earth, line, out, ps) for (earth, line), out in itertools.product(lines, states)
+            for ps in parallel_states(line)]  # a double circuit: each parallel state
+    for earth, line, out, ps in runs:
         if any(terminals[k] is None for k in out):
             continue  # already open: the same network as a smaller state
         terms = [None if k in out else t for k, t in enumerate(terminals)]
@@ -117,10 +127,12 @@ def verify_teed(
             continue
         state = ("all sources in" if not out else
                  "no source at " + " and ".join(buses[k] for k in out)) + f", {earth}"
+        state += parallel_label(line, ps)
         for leg in range(3):
             sw = solve_teed_sweep(line, terms, v_nominal_v=v_nominal_v, fault_leg=ENDS[leg],
                                   fault_types=fault_types, m=LEG_LOCATIONS, r_fault_ohm=rf,
-                                  source_scale=source_scale, emf_v=emf_v)
+                                  source_scale=source_scale, emf_v=emf_v,
+                                  parallel_state=ps)
             for x in relay_ends:
                 if x in out:
                     continue  # the relay's own source out: not this relay's case
@@ -158,7 +170,7 @@ def verify_teed(
             sw = solve_teed_sweep(line, terms, v_nominal_v=v_nominal_v, fault_leg=ENDS[y],
                                   fault_types=fault_types, m=np.zeros(len(where)),
                                   r_fault_ohm=rf, source_scale=source_scale, z_branch_ohm=z_b,
-                                  emf_v=emf_v)
+                                  emf_v=emf_v, parallel_state=ps)
             for x in relay_ends:
                 if x in out or x == y:
                     continue
