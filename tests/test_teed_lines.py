@@ -379,7 +379,7 @@ def test_double_circuit_tee_equals_nodal_reference(shunt, state, leg):
     rf, rp = np.array([0.0, 8.0]), np.array([0.0, 1.5])
     sw = solve_teed_sweep(line, terms, v_nominal_v=V_NOM, fault_leg=leg, fault_types=ftypes,
                           m=m, r_fault_ohm=rf, r_phase_ohm=rp, parallel_state=state,
-                          emf_v=tuple(np.array([e]) for e in DC_EMFS))
+                          emf_v=tuple(np.array([e]) for e in DC_EMFS), parallel_currents=True)
     for fi, ft in enumerate(ftypes):
         for mi, mm in enumerate(m):
             for ri in range(2):
@@ -415,7 +415,8 @@ def test_fault_on_the_untapped_circuit_and_a_transformer_equal_nodal_reference(l
                            {"S": 2.0 + 20j}, 1)):
         sw = solve_teed_sweep(line, terms, v_nominal_v=V_NOM, fault_leg=leg,
                               fault_types=("AG", "CAG"), m=np.array([0.3]), r_fault_ohm=[2.0],
-                              fault_circuit=fc, emf_v=tuple(np.array([e]) for e in DC_EMFS))
+                              fault_circuit=fc, emf_v=tuple(np.array([e]) for e in DC_EMFS),
+                              parallel_currents=True)
         for fi, ft in enumerate(("AG", "CAG")):
             ref = solve_teed_single(_legs_of(line), terms, DC_EMFS, fault_leg=leg, m=0.3,
                                     fault_type=ft, r_fault_ohm=2.0, fault_circuit=fc,
@@ -470,8 +471,11 @@ def test_coupled_parallel_circuit_isolated_series_only_is_the_single_circuit():
     b = solve_teed_sweep(single, _dc_sources(), fault_leg="R", **kw)
     assert_allclose(a.i["S"], b.i["S"], rtol=1e-10, atol=1e-6)
     # and in service it does matter: the parallel path carries current
-    c = solve_teed_sweep(line, _dc_sources(), fault_leg="R", **kw)
+    c = solve_teed_sweep(line, _dc_sources(), fault_leg="R", parallel_currents=True, **kw)
     assert np.max(np.abs(c.i_parallel["S"])) > 10.0
+    d = solve_teed_sweep(line, _dc_sources(), fault_leg="R", **kw)  # the same without them
+    assert d.i_parallel is None
+    assert_allclose(d.i["S"], c.i["S"], rtol=1e-12, atol=0)
     assert np.max(np.abs(c.i["S"] - b.i["S"])) > 10.0
 
 

@@ -1,8 +1,12 @@
-r"""Phase-domain short-circuit solver for a three-terminal (teed) single-circuit line.
+r"""Phase-domain short-circuit solver for a three-terminal (teed) line.
 
 The network is three legs meeting at a tee point: bus S -- tee, bus R -- tee and
-bus T -- tee. Each leg is a :class:`~relayset.physics.network.LineCascade` of three
-conductors with its sections ordered from its bus towards the tee. Each bus has a
+bus T -- tee. Each leg is a :class:`~relayset.physics.network.LineCascade` with its
+sections (overhead or cable) ordered from its bus towards the tee. The branch (leg T)
+carries three conductors; the legs from S and R three, or six on a double-circuit line:
+circuit 1 is tapped at the tee, circuit 2 runs through it untapped between the buses S
+and R, in service (on the same buses as circuit 1), out and earthed at both ends, or out
+and isolated (:data:`~relayset.physics.network.PARALLEL_STATES`). Each bus has a
 Thevenin source (:class:`~relayset.physics.network.Source`), no source (open end) or a
 grounded-star transformer (:class:`GroundedTransformer`, a zero-sequence source only).
 
@@ -14,35 +18,41 @@ Every leg part is represented by its chain matrix [1]_
           \begin{bmatrix}V_x\\I_x\end{bmatrix},\qquad
           \Phi = \exp\begin{bmatrix}0 & Z\ell\\ Y\ell & 0\end{bmatrix}
 
-from :mod:`relayset.physics.chain`. Each bus obeys three terminal equations
+from :mod:`relayset.physics.chain`. Each bus obeys terminal equations
 :math:`G_v V + G_i I = g` (I into the leg), written as in
-:mod:`relayset.physics.network` (source :math:`V + Z_s I = E`, open end :math:`I = 0`);
-a grounded-star transformer of zero-sequence impedance :math:`Z_0` passes no positive- or
-negative-sequence current and :math:`V_0 + Z_0 I_0 = 0`, i.e. with the zero-sequence
-projector :math:`P_0 = \tfrac13\mathbf 1\mathbf 1^T`
+:mod:`relayset.physics.network` (source :math:`V + Z_s I = E`, open end :math:`I = 0`,
+and circuit 2's state); a grounded-star transformer of zero-sequence impedance
+:math:`Z_0` passes no positive- or negative-sequence current and
+:math:`V_0 + Z_0 I_0 = 0`, i.e. with the zero-sequence projector
+:math:`P_0 = \tfrac13\mathbf 1\mathbf 1^T`
 
 .. math:: P_0 V + \left(Z_0 P_0 + z_{ref}(I - P_0)\right) I = 0.
 
-The faulted leg f is split at the fault point F: :math:`\Phi_a` runs from its bus to F,
-:math:`\Phi_b` from the tee to F. The two healthy legs h run whole from their buses to
-the tee (:math:`\Phi_h`). With the unknowns :math:`V_F`, the currents :math:`I_a`,
-:math:`I_b` flowing into F from the bus side and from the tee side, and the currents
-:math:`I_h` arriving at the tee from each healthy leg, the tee voltage and the current
-leaving the tee into the faulted leg are
-:math:`[V_T; I_{Tf}] = \Phi_b [V_F; I_b]`, and
+The tee's node voltages U are circuit 1's and, on a double circuit, circuit 2's; a leg's
+conductors at the tee are :math:`C_k U` (:math:`C_k` the first :math:`n_k` rows of the
+identity). A healthy leg h runs whole from its bus to the tee (:math:`\Phi_h`); its
+terminal equations :math:`G_h \Phi_h [C_h U; I_h] = g_h` give the current it delivers to
+the tee, :math:`I_h = a_h + B_h U`, so KCL at the tee gives the current leaving the tee
+into the faulted leg f, :math:`C_f^T I_{Tf} = Y U + J` with
+:math:`Y = \sum_h C_h^T B_h`, :math:`J = \sum_h C_h^T a_h` (per source case). With the
+branch faulted on a double circuit, circuit 2's tee nodes carry no other current:
+:math:`Y_{21} V_T + Y_{22} U_2 + J_2 = 0` eliminates :math:`U_2` (a Schur complement).
+The faulted leg is then a two-ended line with the terminal
+:math:`I_{Tf} - Y_t V_T = J_t` at its tee end, split at the fault point F
+(:math:`\Phi_a` from its bus to F, :math:`\Phi_b` from the tee to F):
 
 .. math::
-    G_f \Phi_a \begin{bmatrix}V_F\\I_a\end{bmatrix} &= g_f, \qquad
-    G_h \Phi_h \begin{bmatrix}V_T\\I_h\end{bmatrix} = g_h \quad (h = 1, 2),\\
-    I_1 + I_2 &= I_{Tf} \quad\text{(KCL at the tee, voltage continuity by } V_T),
-    \qquad I_a + I_b = I_{inj}\quad\text{(KCL at F)}.
+    G_f \Phi_a \begin{bmatrix}V_F\\I_a\end{bmatrix} = g_f, \qquad
+    [-Y_t,\ 1]\, \Phi_b \begin{bmatrix}V_F\\I_b\end{bmatrix} = J_t, \qquad
+    I_a + I_b = I_{inj}\quad\text{(KCL at F)}.
 
-One batched 15 x 15 solve per (location, source case) gives the prefault state of every
-load case (:math:`I_{inj} = 0`) and the response to a unit current into each fault phase,
-hence the Thevenin matrix :math:`Z_{th}` at F; every fault type and resistance then
-follows from :func:`relayset.physics.faults.fault_currents` and superposition, as in
-:func:`relayset.physics.network.solve_fault_sweep`. A double-circuit line with a tee is
-refused.
+One batched solve of :math:`3 n_f` unknowns per (location, source case) gives the
+prefault state of every load case (:math:`I_{inj} = 0`) and the response to a unit
+current into each fault phase, hence the Thevenin matrix :math:`Z_{th}` at F; every fault
+type and resistance then follows from :func:`relayset.physics.faults.fault_currents` and
+superposition, as in :func:`relayset.physics.network.solve_fault_sweep`. Series-only with
+circuit 2 isolated, circuit 2 carries no current and floats: it is dropped, as
+:func:`relayset.physics.network.solve_fault_sweep` does.
 
 References
 ----------
@@ -285,6 +295,7 @@ def solve_teed_sweep(
     z_branch_ohm: np.ndarray | None = None,
     parallel_state: str = "in_service",
     fault_circuit: int = 1,
+    parallel_currents: bool = False,
 ) -> TeedSweep:
     """Solve every fault type, location on one leg, resistance, source and load case.
 
@@ -326,6 +337,10 @@ def solve_teed_sweep(
     fault_circuit : int
         1 (default) or 2: the circuit faulted at ``m`` (2: the parallel circuit in
         service, on leg S or R; ``v_f`` and ``i_fault`` are then circuit 2's).
+    parallel_currents : bool
+        Form circuit 2's currents at S and R per case (``i_parallel``, e.g. for mutual
+        compensation); otherwise ``i_parallel`` is None (its prefault values are always
+        formed).
 
     Returns
     -------
@@ -386,87 +401,102 @@ def solve_teed_sweep(
             zs = None if term is None else term.phase_matrix(scale[:, k])
             g, b = _terminal(ns[k], state, zs, _balanced(emf[k]), z_ref)
         g_mat.append(g)
-        g_vec.append(b)
+        g_vec.append(np.swapaxes(b, -1, -2))  # (K, n, L)
 
     f = ENDS.index(fault_leg)
     h1, h2 = (k for k in range(3) if k != f)
+    nf = ns[f]
     z_f, y_f, l_f = legs[f]
     phi_a, phi_b = fault_chain_products(z_f, y_f, l_f, m)  # bus -> F, tee -> F
-    phi_h = [chain_products(legs[h][0], legs[h][1], legs[h][2][None], reverse=False)[0]
-             for h in (h1, h2)]
-
-    # x = [V_F, I_a, I_b (n_f each), U (n_u), I_1 (n_1), I_2 (n_2)]; rows: terminal f,
-    # terminals h1, h2, tee voltage of leg f, KCL at the tee, KCL at F.
-    nf, n1, n2 = ns[f], ns[h1], ns[h2]
-    c_a, c_b, c_u = nf, 2 * nf, 3 * nf
-    c_h = (c_u + n_u, c_u + n_u + n1)
-    n_x = c_u + n_u + n1 + n2
-    r_h = (nf, nf + n1)
-    r_tv = nf + n1 + n2
-    r_kcl = r_tv + nf
-    r_f = r_kcl + n_u
     inc = {k: _incidence(ns[k], n_u) for k in range(3)}
-    w_f = g_mat[f][None] @ phi_a[:, None]  # (M, K, nf, 2nf)
-    a = np.zeros((n_m, n_k, n_x, n_x), dtype=complex)
-    a[..., 0:nf, 0:nf] = w_f[..., :nf]
-    a[..., 0:nf, c_a:c_b] = w_f[..., nf:]
-    for r, (h, ph) in enumerate(zip((h1, h2), phi_h, strict=True)):
+    cols = n_l + 3  # load cases, then a unit current into each fault phase
+
+    # The healthy legs with their terminals, seen from the tee (per source case only):
+    # W_V C_h U + W_I I_h = g_h gives I_h = a_h + B_h U, and KCL at the tee the current
+    # into the faulted leg, C_f^T I_Tf = Y U + J.
+    y_u = np.zeros((n_k, n_u, n_u), dtype=complex)
+    j_u = np.zeros((n_k, n_u, cols), dtype=complex)
+    healthy = []
+    for h in (h1, h2):
         nh = ns[h]
-        w_h = g_mat[h] @ ph  # (K, nh, 2nh): [V; I] at the tee end of leg h
-        rows = slice(r_h[r], r_h[r] + nh)
-        a[..., rows, c_u:c_u + n_u] = (w_h[..., :nh] @ inc[h])[None]
-        a[..., rows, c_h[r]:c_h[r] + nh] = w_h[None, ..., nh:]
-    # tee voltage: Phi_b11 V_F + Phi_b12 I_b - C_f U = 0
-    rows = slice(r_tv, r_tv + nf)
-    a[..., rows, 0:nf] = phi_b[:, None, :nf, :nf]
-    a[..., rows, c_b:c_u] = phi_b[:, None, :nf, nf:]
-    a[..., rows, c_u:c_u + n_u] = -inc[f]
-    # KCL at the tee: C_1^T I_1 + C_2^T I_2 - C_f^T I_Tf = 0, I_Tf = Phi_b21 V_F + Phi_b22 I_b
-    rows = slice(r_kcl, r_kcl + n_u)
-    a[..., rows, 0:nf] = -z_ref * (inc[f].T @ phi_b[:, nf:, :nf])[:, None]
-    a[..., rows, c_b:c_u] = -z_ref * (inc[f].T @ phi_b[:, nf:, nf:])[:, None]
-    for r, h in enumerate((h1, h2)):
-        a[..., rows, c_h[r]:c_h[r] + ns[h]] = z_ref * inc[h].T
-    # KCL at F: I_a + I_b = I_inj
-    a[..., r_f:r_f + nf, c_a:c_b] = z_ref * np.eye(nf)
-    a[..., r_f:r_f + nf, c_b:c_u] = z_ref * np.eye(nf)
+        phi = chain_products(legs[h][0], legs[h][1], legs[h][2][None], reverse=False)[0]
+        w = g_mat[h] @ phi  # (K, nh, 2nh)
+        rhs = np.zeros((n_k, nh, n_u + cols), dtype=complex)
+        rhs[..., :n_u] = -w[..., :nh] @ inc[h]
+        rhs[..., n_u:n_u + n_l] = g_vec[h]
+        sol = np.linalg.solve(w[..., nh:], rhs)
+        b_h, a_h = sol[..., :n_u], sol[..., n_u:]
+        y_u += inc[h].T @ b_h
+        j_u += inc[h].T @ a_h
+        # bus quantities of leg h: [V; I] = Phi_h [C_h U; a_h + B_h U] = P_h U + q_h
+        p_h = phi[:, :nh] @ inc[h] + phi[:, nh:] @ b_h
+        q_h = phi[:, nh:] @ a_h
+        healthy.append((nh, p_h, q_h))
+    # Circuit 2 at the tee (the branch faulted): KCL there, Y21 V_T + Y22 U2 + J2 = 0.
+    d_u = np.zeros((n_k, n_u, nf), dtype=complex)  # U = D V_T + e
+    d_u[:, :nf] = np.eye(nf)
+    e_u = np.zeros((n_k, n_u, cols), dtype=complex)
+    y_t, j_t = y_u[:, :nf, :nf], j_u[:, :nf]
+    if n_u > nf:
+        s2 = np.linalg.solve(y_u[:, nf:, nf:],
+                             np.concatenate([y_u[:, nf:, :nf], j_u[:, nf:]], axis=-1))
+        d_u[:, nf:] = -s2[..., :nf]
+        e_u[:, nf:] = -s2[..., nf:]
+        y_t = y_t - y_u[:, :nf, nf:] @ s2[..., :nf]
+        j_t = j_t - y_u[:, :nf, nf:] @ s2[..., nf:]
+
+    # The faulted leg as a two-ended line: x = [V_F, I_a, I_b]; rows: its bus terminal,
+    # the tee (I_Tf - Y_t V_T = J_t, in volts), KCL at F.
+    w_f = g_mat[f][None] @ phi_a[:, None]  # (M, K, nf, 2nf)
+    g_t = np.concatenate([-z_ref * y_t, np.broadcast_to(z_ref * np.eye(nf), y_t.shape)],
+                         axis=-1)  # (K, nf, 2nf)
+    w_t = g_t[None] @ phi_b[:, None]
+    a = np.zeros((n_m, n_k, 3 * nf, 3 * nf), dtype=complex)
+    a[..., :nf, :nf] = w_f[..., :nf]
+    a[..., :nf, nf:2 * nf] = w_f[..., nf:]
+    a[..., nf:2 * nf, :nf] = w_t[..., :nf]
+    a[..., nf:2 * nf, 2 * nf:] = w_t[..., nf:]
+    a[..., 2 * nf:, nf:2 * nf] = z_ref * np.eye(nf)
+    a[..., 2 * nf:, 2 * nf:] = z_ref * np.eye(nf)
     off = 3 * (fault_circuit - 1)  # the faulted circuit's first conductor
-    rhs = np.zeros((n_m, n_k, n_x, n_l + 3), dtype=complex)
-    rhs[..., 0:nf, :n_l] = np.swapaxes(g_vec[f], -1, -2)[None]
-    rhs[..., r_h[0]:r_h[0] + n1, :n_l] = np.swapaxes(g_vec[h1], -1, -2)[None]
-    rhs[..., r_h[1]:r_h[1] + n2, :n_l] = np.swapaxes(g_vec[h2], -1, -2)[None]
-    rhs[..., r_f + off:r_f + off + 3, n_l:] = z_ref * np.eye(3)
-    x = np.linalg.solve(a, rhs)  # (M, K, n_x, L + 3)
+    rhs = np.zeros((n_m, n_k, 3 * nf, cols), dtype=complex)
+    rhs[..., :nf, :n_l] = g_vec[f][None]
+    rhs[..., nf:2 * nf, :] = z_ref * j_t[None]
+    rhs[..., 2 * nf + off:2 * nf + off + 3, n_l:] = z_ref * np.eye(3)
+    x = np.linalg.solve(a, rhs)  # (M, K, 3nf, L + 3)
 
     # Output rows: V_F (the faulted circuit), then per bus of f, h1, h2 its voltage
-    # (circuit 1's), circuit 1's current and circuit 2's (zeros on three conductors).
-    n_out = 3 + 27
-    t = np.zeros((n_m, n_out, n_x), dtype=complex)
-    t[:, 0:3, off:off + 3] = np.eye(3)
-
-    def put(r0: int, phi: np.ndarray, cols_v, cols_i, n: int) -> None:
-        """Rows r0.. of T from [V; I] = phi @ [v; i] at a bus (phi (..., 2n, 2n))."""
-        for q, (lo, hi) in enumerate(((0, 3), (n, n + 3), (n + 3, n + 6))):
-            if hi > 2 * n:
-                continue  # no circuit 2 on this leg: its current stays zero
-            for cols, blk in ((cols_v, phi[..., lo:hi, :n]), (cols_i, phi[..., lo:hi, n:])):
-                c, mat = cols
-                t[:, r0 + 3 * q:r0 + 3 * q + 3, c] = blk @ mat if mat is not None else blk
-
-    put(3, phi_a, (slice(0, nf), None), (slice(c_a, c_b), None), nf)
-    for r, (h, ph) in enumerate(zip((h1, h2), phi_h, strict=True)):
-        put(12 + 9 * r, ph[None], (slice(c_u, c_u + n_u), inc[h]),
-            (slice(c_h[r], c_h[r] + ns[h]), None), ns[h])
-    out = t[:, None] @ x  # (M, K, n_out, L + 3)
+    # (circuit 1's), circuit 1's current and, on a double circuit, circuit 2's.
+    n_c2 = 3 if n_u == 6 else 0
+    per = 6 + n_c2  # the prefault state has them all; per case they are optional
+    n_out = 3 + 3 * per
+    out = np.empty((n_m, n_k, n_out, cols), dtype=complex)
+    out[:, :, 0:3] = x[:, :, off:off + 3]
+    sel_f = [*range(3), *range(nf, nf + 3 + (n_c2 if nf == 6 else 0))]
+    bus_f = phi_a[:, None, sel_f] @ x[:, :, :2 * nf]
+    out[:, :, 3:3 + len(sel_f)] = bus_f
+    out[:, :, 3 + len(sel_f):3 + per] = 0.0
+    v_t = phi_b[:, None, :nf] @ np.concatenate([x[:, :, :nf], x[:, :, 2 * nf:]], axis=2)
+    u = d_u[None] @ v_t + e_u[None]  # (M, K, n_u, L + 3)
+    for r, (nh, p_h, q_h) in enumerate(healthy):
+        sel = [*range(3), *range(nh, nh + 3 + (n_c2 if nh == 6 else 0))]
+        r0 = 3 + per * (r + 1)
+        out[:, :, r0:r0 + len(sel)] = p_h[None, :, sel] @ u + q_h[None, :, sel]
+        out[:, :, r0 + len(sel):r0 + per] = 0.0
 
     # Cases laid out (M, Rf, K, L); phase axes first for fault_currents.
     z_th = -np.transpose(out[..., 0:3, n_l:], (2, 3, 0, 1))[:, :, :, None, :, None]
     if z_b is not None:  # the fault beyond a series branch (see the parameters)
         z_th = z_th + np.transpose(z_b, (1, 2, 0))[:, :, :, None, None, None]
     v_pre_f = np.transpose(out[..., 0:3, :n_l], (2, 0, 1, 3))[:, :, None]  # (3, M, 1, K, L)
-    pre = np.transpose(out[..., :n_l], (0, 1, 3, 2))[:, None]  # (M, 1, K, L, n_out)
+    pre0 = np.transpose(out[0, :, :, :n_l], (0, 2, 1))  # (K, L, n_out)
+    per_case = per if parallel_currents else 6
+    keep = [*range(3), *(3 + per * r + c for r in range(3) for c in range(per_case))]
+    out = out[:, :, keep]  # the rows formed per case
+    n_row = len(keep)
+    pre = np.transpose(out[..., :n_l], (0, 1, 3, 2))[:, None]  # (M, 1, K, L, n_row)
     sens = np.transpose(out[..., n_l:], (3, 0, 1, 2))[:, :, None, :, None, :]
-    res = np.empty((len(ftypes), n_m, rf.size, n_k, n_l, n_out), dtype=complex)
+    res = np.empty((len(ftypes), n_m, rf.size, n_k, n_l, n_row), dtype=complex)
     i_fault = np.zeros((len(ftypes), n_m, rf.size, n_k, n_l, 3), dtype=complex)
     rf_b, rp_b = rf[None, :, None, None], rp[None, :, None, None]
     for fi, ft in enumerate(ftypes):
@@ -486,18 +516,22 @@ def solve_teed_sweep(
 
     order = (f, h1, h2)
     v, i, v_pre, i_pre, i_par, i_par_pre = {}, {}, {}, {}, {}, {}
-    pre0 = np.transpose(out[0, :, :, :n_l], (0, 2, 1))  # (K, L, n_out)
+    zero = np.zeros((), dtype=complex)
     for r, k in enumerate(order):
-        rv = 3 + 9 * r
-        v[ENDS[k]] = res[..., rv:rv + 3]
-        i[ENDS[k]] = res[..., rv + 3:rv + 6]
-        i_par[ENDS[k]] = res[..., rv + 6:rv + 9]
+        rv, rc = 3 + per * r, 3 + per_case * r
+        v[ENDS[k]] = res[..., rc:rc + 3]
+        i[ENDS[k]] = res[..., rc + 3:rc + 6]
         v_pre[ENDS[k]] = np.ascontiguousarray(pre0[..., rv:rv + 3])
         i_pre[ENDS[k]] = np.ascontiguousarray(pre0[..., rv + 3:rv + 6])
-        i_par_pre[ENDS[k]] = np.ascontiguousarray(pre0[..., rv + 6:rv + 9])
+        # no circuit 2: read-only zero views, no memory
+        i_par[ENDS[k]] = (res[..., rc + 6:rc + 9] if per_case == 9
+                          else np.broadcast_to(zero, i[ENDS[k]].shape))
+        i_par_pre[ENDS[k]] = (np.ascontiguousarray(pre0[..., rv + 6:rv + 9]) if n_c2
+                              else np.broadcast_to(zero, i_pre[ENDS[k]].shape))
     return TeedSweep(
         fault_types=ftypes, fault_leg=fault_leg, m=m, r_fault_ohm=rf, r_phase_ohm=rp,
         source_scale=scale, emf_v=emf, v=v, i=i, v_f=res[..., 0:3], i_fault=i_fault,
-        v_pre=v_pre, i_pre=i_pre, i_parallel=i_par, i_parallel_pre=i_par_pre,
+        v_pre=v_pre, i_pre=i_pre, i_parallel=i_par if parallel_currents else None,
+        i_parallel_pre=i_par_pre,
         parallel_state=parallel_state, fault_circuit=fault_circuit,
     )

@@ -70,14 +70,15 @@ class MhoZone:
 def _as_run(sw: TeedSweep, end: str, case_names: tuple[str, ...]) -> Run:
     """The teed sweep as the relay at ``end`` sees it, in the two-ended run's shape (that
     end in the place of bus S), for :func:`.relay_model.view`."""
+    zeros = np.zeros_like(sw.i[end])
     k = sw.emf_v.shape[1]
     fs = FaultSweep(
         fault_types=sw.fault_types, m=sw.m, r_fault_ohm=sw.r_fault_ohm,
         r_phase_ohm=sw.r_phase_ohm, source_scale=np.ones((k, 2)), emf_s_v=sw.emf_v[0],
         emf_r_v=sw.emf_v[1], parallel_state="in_service", v_s=sw.v[end], i_s=sw.i[end],
-        i_s_parallel=sw.i_parallel[end], v_r=None, i_r=None, i_r_parallel=None, v_f=sw.v_f,
+        i_s_parallel=zeros, v_r=None, i_r=None, i_r_parallel=None, v_f=sw.v_f,
         i_fault=sw.i_fault, i_f_from_s=None, i_f_from_r=None, v_s_pre=sw.v_pre[end],
-        i_s_pre=sw.i_pre[end], i_s_parallel_pre=sw.i_parallel_pre[end])
+        i_s_pre=sw.i_pre[end], i_s_parallel_pre=np.zeros_like(sw.i_pre[end]))
     return Run(fs, "protected", "none", case_names, 0.0, (True, True))
 
 
