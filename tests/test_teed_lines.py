@@ -575,9 +575,12 @@ def test_double_circuit_teed_settings_cover_every_parallel_state(monkeypatch):
 
     solved = {"reach": set(), "verification": set()}
 
+    currents = set()
+
     def spy(where, real):
         def solve(*a, **kw):
             solved[where].add(kw.get("parallel_state", "in_service"))
+            currents.add(kw.get("parallel_currents", False))
             return real(*a, **kw)
         return solve
 
@@ -585,6 +588,7 @@ def test_double_circuit_teed_settings_cover_every_parallel_state(monkeypatch):
     monkeypatch.setattr(vt, "solve_teed_sweep", spy("verification", vt.solve_teed_sweep))
     res = _run(_double_study_text())
     assert solved["reach"] == solved["verification"] == {"in_service", "earthed", "isolated"}
+    assert currents == {True}  # mutual compensation (the default): circuit 2's currents
     labels = [a.min_case for e in res.ends for a in e.apparent]
     labels += [a.max_case for e in res.ends for a in e.apparent]
     assert all("parallel circuit" in lab for lab in labels)
@@ -594,6 +598,17 @@ def test_double_circuit_teed_settings_cover_every_parallel_state(monkeypatch):
     assert "zone1_no_remote_terminal_trip" in checks
     text = " ".join(c.detail for e in res.ends for c in e.verification_checks)
     assert "parallel circuit" in text
+    # the relays' mutual compensation (on by default) changes what they measure and how
+    # the zones are judged; off, the same study measures with k0 alone
+    monkeypatch.undo()
+    off = _run(_double_study_text().replace("[load]", "[reach_study]\nmutual_compensation = "
+                                            "false\n\n[load]"))
+    text_off = " ".join(c.detail for e in off.ends for c in e.verification_checks)
+    assert text_off != text
+    assert any(a.startswith("Double-circuit line: circuit 1 is tapped") and "k0m" in a
+               for a in res.assumptions)
+    assert any("k0 only" in a for a in off.assumptions)
+    assert all("mutual" not in a.min_case + a.max_case for e in off.ends for a in e.apparent)
 
 
 def test_branch_order_of_the_untapped_circuit_is_refused(tmp_path, capsys):
@@ -608,3 +623,31 @@ def test_branch_order_of_the_untapped_circuit_is_refused(tmp_path, capsys):
     assert code == 2 and len(err.splitlines()) == 1, err
     assert "tee.sections[1].order.2" in err and "tapped circuit" in err, err
     assert not out.exists()
+
+
+def test_mutual_compensation_of_the_relays_on_a_teed_double_circuit():
+    """With the parallel circuit in service the relays at S and R also measure with k0m
+    (compensated ground loop V / (I_p + k0 I_res + k0m I_res,parallel), the standard
+    relay equation, e.g. Ziegler, Numerical Distance Protection, 4th ed., 2011, ch. 3);
+    out of service, and at the third terminal (no parallel circuit there), k0 only."""
+    from relayset.studies.teed import teed_loop_sets
+
+    _, _, _, line, terms = _legs(_double_study_text(), shunt=False)
+    k0, k0m = 0.6 + 0.05j, 0.4 - 0.02j
+    sws = [(ps, solve_teed_sweep(line, terms, v_nominal_v=V_NOM, fault_leg="R",
+                                 fault_types=("AG",), m=[0.0], r_fault_ohm=[0.0],
+                                 parallel_state=ps, parallel_currents=True))
+           for ps in ("in_service", "earthed")]
+    sets = teed_loop_sets(sws, "S", k0, k0m)
+    assert [(ps, how) for ps, how, _ in sets] == [
+        ("in_service", ""), ("in_service", ", mutual compensation"), ("earthed", "")]
+    sw = sws[0][1]
+    v, i, ip = sw.v["S"][0, 0, 0, 0, 0], sw.i["S"][0, 0, 0, 0, 0], sw.i_parallel["S"][0, 0, 0,
+                                                                                     0, 0]
+    want = v[0] / (i[0] + k0 * i.sum() + k0m * ip.sum())
+    assert abs(ip.sum()) > 10.0
+    assert_allclose(sets[1][2]["AG"][0, 0, 0, 0, 0], want, rtol=1e-12, atol=0)
+    assert_allclose(sets[0][2]["AG"][0, 0, 0, 0, 0], v[0] / (i[0] + k0 * i.sum()), rtol=1e-12,
+                    atol=0)
+    assert len(teed_loop_sets(sws, "T", k0, k0m)) == 2  # no parallel circuit at T
+    assert len(teed_loop_sets(sws, "S", k0, None)) == 2  # relays without k0m

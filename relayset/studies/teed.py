@@ -123,6 +123,51 @@ def teed_line(study: Study, geo: LineGeometry, params: LineParameters, shunt: bo
     return TeedLine.from_line(main, tee.distance, branch)
 
 
+def teed_line_notes(study: Study) -> tuple[str, ...]:
+    """What :func:`teed_line` assumed beyond the line's own parameters: the untapped
+    parallel circuit of a double-circuit line, and the branch's cables."""
+    notes = []
+    if len(study.circuits) == 2:
+        c1, c2 = (c.name for c in study.circuits)
+        a, b = study.ends
+        notes.append(
+            f"Double-circuit line: circuit {c1} is tapped at the tee; circuit {c2} runs "
+            f"through it untapped between {a} and {b}, on their buses in service, and is "
+            "taken in each of its states (in service, out and earthed at both ends, out and "
+            "isolated) in the reach study and the verification; the branch carries circuit "
+            f"{c1} alone, on its towers without circuit {c2}'s wires. "
+            + (f"The relays at {a} and {b} measure with k0 and also with k0m while the "
+               "parallel circuit is in service (both count: its supervision may block "
+               f"it); the relay at {study.tee.substation} has no parallel circuit."
+               if study.reach_study.mutual_compensation else
+               "The relays measure with k0 only (no mutual compensation)."))
+    on_line = {sec.cable for sec in study.line.sections or ()}
+    names = tuple(dict.fromkeys(sec.cable for sec in study.tee.sections
+                                if sec.cable is not None and sec.cable not in on_line))
+    if names:
+        from relayset.inputs.cable import constructions
+
+        one = dataclasses.replace(study, circuits=study.circuits[:1])
+        notes += [f"Branch to {study.tee.substation}: {n}" if n[:1].isupper() else n
+                  for n in constructions(one, names)[2]]
+    return tuple(notes)
+
+
+def teed_loop_sets(sweeps, end: str, k0: complex, k0m: complex | None) -> list:
+    """(parallel state, label, loop impedances) the relay at ``end`` measures in each
+    ``(state, sweep)``: with k0; and, at an end of a double circuit (S or R) with its
+    parallel circuit in service and the relays' k0m (``None``: not used), with mutual
+    compensation too (its supervision may block it, so both count)."""
+    out = []
+    for ps, sw in sweeps:
+        v, i = sw.v[end], sw.i[end]
+        out.append((ps, "", measurement.loop_impedances(v, i, k0)))
+        if k0m is not None and ps == "in_service" and end != ENDS[2] and sw.i_parallel:
+            out.append((ps, ", mutual compensation", measurement.loop_impedances(
+                v, i, k0, i_parallel=sw.i_parallel[end], k0m=k0m)))
+    return out
+
+
 def teed_terminals(study: Study, source: str) -> tuple:
     """The terminals at the from, to and third substation (Source, transformer or None)."""
     buses = (*study.ends, study.tee.substation)
@@ -177,6 +222,7 @@ def run_teed_study(study: Study, geo: LineGeometry, params: LineParameters,
     v_nom = study.system.nominal_voltage
     theta = cmath.phase(relay.z1_set_ohm)
     k0 = relay.k0_set
+    k0m = relay.k0m_set if rs.mutual_compensation else None  # a double circuit's relays
     ftypes = rs.fault_types
     fn = {"source_scale": "reach_study.source_cases", "fault_types": "reach_study.fault_types"}
 
@@ -192,22 +238,23 @@ def run_teed_study(study: Study, geo: LineGeometry, params: LineParameters,
             sws = [(ps, solve_teed_sweep(line, t, v_nominal_v=v_nom, fault_leg=ENDS[y],
                                          fault_types=ftypes, m=[0.0], r_fault_ohm=[0.0],
                                          source_scale=scales, field_names=fn,
-                                         parallel_state=ps))
+                                         parallel_state=ps,
+                                         parallel_currents=k0m is not None))
                    for ps in parallel_states(line)]  # a double circuit: each state
             for x in range(3):
                 if x == y or (out is not None and out == x) or buses[x] not in relay.ends:
                     continue
                 infeed = out is None
                 best = [math.inf, -math.inf, "", ""]
-                for (ps, sw), (f, ft) in itertools.product(sws, enumerate(ftypes)):
-                    loops = measurement.loop_impedances(sw.v[ENDS[x]], sw.i[ENDS[x]], k0)
+                for (ps, how, loops), (f, ft) in itertools.product(
+                        teed_loop_sets(sws, ENDS[x], k0, k0m), enumerate(ftypes)):
                     for lp in measurement.loops_for_fault(ft):
                         a = _along(loops[lp][f, 0, 0, :, 0], theta)  # over source cases
                         for k, val in enumerate(a):
                             if not math.isfinite(val):
                                 continue
                             label = (f"fault {ft}, loop {lp}, source case {case_names[k]}"
-                                     + parallel_label(line, ps))
+                                     + parallel_label(line, ps) + how)
                             if val < best[0]:
                                 best[0], best[2] = float(val), label
                             if val > best[1]:
@@ -285,7 +332,7 @@ def run_teed_study(study: Study, geo: LineGeometry, params: LineParameters,
         lines, terms, judged, zones, v_nominal_v=v_nom, fault_types=ftypes,
         emf_v=emf, load_names=loads,
         r_fault_ohm=rs.fault_resistances, source_scale=scales,
-        case_names=case_names, k0=k0, line_angle_rad=theta,
+        case_names=case_names, k0=k0, k0m=k0m, line_angle_rad=theta,
         z_line_ohm=abs(relay.z1_set_ohm),
         models={x: relay_model_at(study, buses[x]) for x in judged}, buses=buses,
         beyond={y: [(a.name, a.z1, a.z0 if a.z0 is not None else 3 * a.z1)
@@ -299,7 +346,7 @@ def run_teed_study(study: Study, geo: LineGeometry, params: LineParameters,
     return TeedStudyResult(
         buses=buses, tee_distance_m=study.tee.distance, branch_length_m=study.tee.length,
         z1_set_ohm=relay.z1_set_ohm, k0_set=k0, ends=tuple(results),
-        assumptions=(*ASSUMPTIONS, VERIFIED),
+        assumptions=(*ASSUMPTIONS, VERIFIED, *teed_line_notes(study)),
         legs=tuple((leg.total_length_m, complex(to_sequence(leg.z_total_ohm[:3, :3])[1, 1]),
                     complex(to_sequence(leg.z_total_ohm[:3, :3])[0, 0])) for leg in line.legs),
         verification="failed checks" if failed else "verified")

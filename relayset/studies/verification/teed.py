@@ -67,10 +67,12 @@ class MhoZone:
         return Mho(self.reach_ohm, line_angle_rad, self.direction)
 
 
-def _as_run(sw: TeedSweep, end: str, case_names: tuple[str, ...]) -> Run:
+def _as_run(sw: TeedSweep, end: str, case_names: tuple[str, ...], state: str = "none"
+            ) -> Run:
     """The teed sweep as the relay at ``end`` sees it, in the two-ended run's shape (that
-    end in the place of bus S), for :func:`.relay_model.view`."""
-    zeros = np.zeros_like(sw.i[end])
+    end in the place of bus S), for :func:`.relay_model.view`; ``state`` the parallel
+    circuit's (a double circuit), "none" on a single circuit."""
+    zeros = np.zeros_like(sw.i[end]) if sw.i_parallel is None else sw.i_parallel[end]
     k = sw.emf_v.shape[1]
     fs = FaultSweep(
         fault_types=sw.fault_types, m=sw.m, r_fault_ohm=sw.r_fault_ohm,
@@ -79,7 +81,7 @@ def _as_run(sw: TeedSweep, end: str, case_names: tuple[str, ...]) -> Run:
         i_s_parallel=zeros, v_r=None, i_r=None, i_r_parallel=None, v_f=sw.v_f,
         i_fault=sw.i_fault, i_f_from_s=None, i_f_from_r=None, v_s_pre=sw.v_pre[end],
         i_s_pre=sw.i_pre[end], i_s_parallel_pre=np.zeros_like(sw.i_pre[end]))
-    return Run(fs, "protected", "none", case_names, 0.0, (True, True))
+    return Run(fs, "protected", state, case_names, 0.0, (True, True))
 
 
 def verify_teed(
@@ -87,6 +89,7 @@ def verify_teed(
     zones: dict[int, tuple[float, float]],
     *, v_nominal_v: float, fault_types, r_fault_ohm, source_scale: np.ndarray,
     case_names: tuple[str, ...], k0: complex, line_angle_rad: float, z_line_ohm: float,
+    k0m: complex | None = None,
     models: dict[int, RelayModel], buses: tuple[str, str, str],
     beyond: dict[int, list[tuple[str, complex, complex]]] | None = None,
     next_zone1_pct: float | None = None,
@@ -129,17 +132,19 @@ def verify_teed(
         state = ("all sources in" if not out else
                  "no source at " + " and ".join(buses[k] for k in out)) + f", {earth}"
         state += parallel_label(line, ps)
+        run_state = ps if line.n_conductors == 6 else "none"  # k0m: in service only
         for leg in range(3):
             sw = solve_teed_sweep(line, terms, v_nominal_v=v_nominal_v, fault_leg=ENDS[leg],
                                   fault_types=fault_types, m=LEG_LOCATIONS, r_fault_ohm=rf,
                                   source_scale=source_scale, emf_v=emf_v,
-                                  parallel_state=ps)
+                                  parallel_state=ps,
+                                  parallel_currents=k0m is not None)
             for x in relay_ends:
                 if x in out:
                     continue  # the relay's own source out: not this relay's case
                 model = models[x]
-                vw = view(_as_run(sw, ENDS[x], case_names), True, k0, None, model,
-                          line_angle=line_angle_rad)
+                vw = view(_as_run(sw, ENDS[x], case_names, run_state), True, k0,
+                          k0m if x != 2 else None, model, line_angle=line_angle_rad)
 
                 def label(idx, loop, leg=leg, state=state, sw=sw):
                     f, mi, ri, k, ld = idx
@@ -171,13 +176,14 @@ def verify_teed(
             sw = solve_teed_sweep(line, terms, v_nominal_v=v_nominal_v, fault_leg=ENDS[y],
                                   fault_types=fault_types, m=np.zeros(len(where)),
                                   r_fault_ohm=rf, source_scale=source_scale, z_branch_ohm=z_b,
-                                  emf_v=emf_v, parallel_state=ps)
+                                  emf_v=emf_v, parallel_state=ps,
+                                  parallel_currents=k0m is not None)
             for x in relay_ends:
                 if x in out or x == y:
                     continue
                 model = models[x]
-                vw = view(_as_run(sw, ENDS[x], case_names), True, k0, None, model,
-                          line_angle=line_angle_rad)
+                vw = view(_as_run(sw, ENDS[x], case_names, run_state), True, k0,
+                          k0m if x != 2 else None, model, line_angle=line_angle_rad)
 
                 def blabel(idx, loop, y=y, state=state, where=where, sw=sw):
                     f, mi, ri, k, ld = idx
