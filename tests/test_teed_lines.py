@@ -651,3 +651,59 @@ def test_mutual_compensation_of_the_relays_on_a_teed_double_circuit():
                     atol=0)
     assert len(teed_loop_sets(sws, "T", k0, k0m)) == 2  # no parallel circuit at T
     assert len(teed_loop_sets(sws, "S", k0, None)) == 2  # relays without k0m
+
+
+def _double_cable_text() -> str:
+    """CABLE_TOML with a second circuit on the lattice towers and in the line's cable
+    trench (1 m apart); the branch (overhead and cable) carries circuit 1."""
+    t = CABLE_TOML.replace('''[[circuits]]
+name = "1"
+phase_labels = ["A", "B", "C"]
+''', '''[[circuits]]
+name = "1"
+phase_labels = ["A", "B", "C"]
+
+[[circuits]]
+name = "2"
+''').replace('conductor = "phase" },\n]\nshield', '''conductor = "phase" },
+]
+positions."2" = [
+  { name = "l2", x = "-5.0 m", height = "30 m", sag = "6 m", conductor = "phase" },
+  { name = "m2", x = "0.0 m",  height = "30 m", sag = "6 m", conductor = "phase" },
+  { name = "r2", x = "5.0 m",  height = "30 m", sag = "6 m", conductor = "phase" },
+]
+shield''').replace('height = "28 m", sag = "5 m"', 'height = "37 m", sag = "5 m"').replace(
+        'bonding = "both_ends"', 'bonding = "both_ends"\ncircuit_spacing = "1 m"')
+    line = t[t.index("[line]"):t.index("[tee]")]
+    new = line
+    for o in ('["A", "B", "C"]', '["C", "A", "B"]', '["B", "C", "A"]'):
+        new = new.replace(f"order = {o},", f'order = {{ "1" = {o}, "2" = {o} }},')
+    return t.replace(line, new)
+
+
+@pytest.mark.parametrize("state", ["in_service", "earthed"])
+def test_double_circuit_with_cables_equals_nodal_reference(state):
+    """Cable sections of both circuits on the line (6 x 6, sheaths eliminated) and of
+    circuit 1 on the branch, against the nodal reference."""
+    from reference_solver import solve_teed_single
+
+    _, _, _, line, terms = _legs(_double_cable_text(), shunt=True)
+    assert [leg.n_conductors for leg in line.legs] == [6, 6, 3]
+    assert line.legs[1].length_m[0] == pytest.approx(3e3)  # Ostmere's cable first
+    emfs = tuple(V_NOM / math.sqrt(3) * np.exp(1j * np.radians(a)) for a in (6.0, 0.0, -3.0))
+    for leg, mm in (("R", 0.05), ("T", 0.1), ("S", 0.8)):
+        sw = solve_teed_sweep(line, terms, v_nominal_v=V_NOM, fault_leg=leg,
+                              fault_types=("AG", "ABC"), m=np.array([mm]), r_fault_ohm=[1.0],
+                              parallel_state=state, parallel_currents=True,
+                              emf_v=tuple(np.array([e]) for e in emfs))
+        for fi, ft in enumerate(("AG", "ABC")):
+            ref = solve_teed_single(_legs_of(line), terms, emfs, fault_leg=leg, m=mm,
+                                    fault_type=ft, r_fault_ohm=1.0, parallel_state=state)
+            scale = np.max(np.abs(ref.i_fault))
+            for end in ENDS:
+                assert_allclose(sw.i[end][fi, 0, 0, 0, 0], ref.i[end], rtol=1e-8,
+                                atol=1e-8 * scale)
+                assert_allclose(sw.i_parallel[end][fi, 0, 0, 0, 0], ref.i_parallel[end],
+                                rtol=1e-8, atol=1e-8 * scale)
+                assert_allclose(sw.v[end][fi, 0, 0, 0, 0], ref.v[end], rtol=1e-8,
+                                atol=1e-8 * V_NOM)
