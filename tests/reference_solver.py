@@ -351,6 +351,7 @@ def solve_teed_single(
     parallel_state: str = "in_service",
     fault_circuit: int = 1,
     transformer_z0: dict | None = None,
+    elements: tuple = ((), (), ()),
 ) -> TeedCase:
     """One fault on a teed line by plain modified nodal analysis [1]_ (reference for tests).
 
@@ -366,7 +367,11 @@ def solve_teed_single(
     phase A, positive sequence), or None (open; with ``transformer_z0[end]`` a
     grounded-star transformer, admittance P0/Z0 to ground). The fault: current unknowns
     leaving the faulted circuit's nodes at ``m`` of the faulted leg from its bus, with the
-    exact fault constraints.
+    exact fault constraints. ``elements`` per leg: (distance from its bus [m], impedance
+    matrix (n, n) [ohm], VT on the line side) of lumped series elements, each stamped as
+    a branch V_a - V_b = Z_e I between its bus-side and far-side nodes (a fault at its
+    place sits on the bus side; the relay's voltage of a VT on the line side of an element
+    at the bus is the far-side node's).
     """
     from relayset.physics.sequence import fortescue_matrix
 
@@ -384,25 +389,36 @@ def solve_teed_single(
 
     bus = {e: new(3) for e in ends}
     tee = new(6 if two else 3)
-    leg_nodes, leg_parts = [], []
+    leg_nodes, leg_parts, lumped, vt_nodes = [], [], [], {}
     f_leg = ends.index(fault_leg)
     f_nodes = None
     for k, (z, y, lengths) in enumerate(legs):
         n = n_of[k]
         edges = np.concatenate([[0.0], np.cumsum(lengths)])
+        tol = _SNAP_REL * edges[-1]
         cuts = list(edges)
         x_f = m * edges[-1]
-        if k == f_leg and all(abs(x_f - e) > _SNAP_REL * edges[-1] for e in edges):
-            cuts = sorted([*cuts, x_f])
+        for x in ([x_f] if k == f_leg else []) + [el[0] for el in elements[k]]:
+            if all(abs(x - c) > tol for c in cuts):
+                cuts = sorted([*cuts, x])
+        # node sets per boundary: the bus side and the far side (apart at an element)
         nodes = [new(n) for _ in cuts[:-1]] + [tee[:n]]  # the last boundary is the tee
+        far = list(nodes)
+        for x, z_e, vt_line in elements[k]:
+            j = int(np.argmin([abs(c - x) for c in cuts]))
+            far[j] = new(n)
+            lumped.append((nodes[j], far[j], np.asarray(z_e, dtype=complex)))
+            if vt_line and j == 0:
+                vt_nodes[ends[k]] = far[j][:3]
         parts = []
         for j in range(len(cuts) - 1):
             sec = int(np.searchsorted(edges, 0.5 * (cuts[j] + cuts[j + 1])) - 1)
-            parts.append(_segment_nodal(z[sec], None if y is None else y[sec],
-                                        cuts[j + 1] - cuts[j]))
+            parts.append((far[j], nodes[j + 1],
+                          _segment_nodal(z[sec], None if y is None else y[sec],
+                                         cuts[j + 1] - cuts[j])))
         leg_nodes.append(nodes)
         leg_parts.append(parts)
-        if k == f_leg:
+        if k == f_leg:  # a fault at an element's place: on its bus side
             j = int(np.argmin([abs(c - x_f) for c in cuts]))
             off = 3 * (fault_circuit - 1)
             f_nodes = nodes[j][off:off + 3]
@@ -421,14 +437,23 @@ def solve_teed_single(
                     branches.append((None, end_nodes[3 + c]))
     isolated_tie = (two and parallel_state == "isolated"
                     and all(y is None for _, y, _ in legs))
-    size = n_nodes + len(branches) + 3 + (3 if isolated_tie else 0)
+    n_lumped = sum(len(a) for a, _, _ in lumped)
+    size = n_nodes + len(branches) + 3 + (3 if isolated_tie else 0) + n_lumped
     mat = np.zeros((size, size), dtype=complex)
     rhs = np.zeros(size, dtype=complex)
     for k in range(3):
-        nodes = leg_nodes[k]
-        for j, yy in enumerate(leg_parts[k]):
-            ids = nodes[j] + nodes[j + 1]
+        for a_ids, b_ids, yy in leg_parts[k]:
+            ids = a_ids + b_ids
             mat[np.ix_(ids, ids)] += yy
+    col = size - n_lumped
+    for a_ids, b_ids, z_e in lumped:  # V_a - V_b - Z_e I = 0, I from a to b
+        cols = list(range(col, col + len(a_ids)))
+        col += len(a_ids)
+        mat[np.ix_(cols, a_ids)] += np.eye(len(a_ids))
+        mat[np.ix_(cols, b_ids)] -= np.eye(len(a_ids))
+        mat[np.ix_(cols, cols)] -= z_e
+        mat[np.ix_(a_ids, cols)] += np.eye(len(a_ids))
+        mat[np.ix_(b_ids, cols)] -= np.eye(len(a_ids))
     a_pos = fortescue_matrix()[:, 1]
     for k, e in enumerate(ends):
         term = terminals[k]
@@ -462,7 +487,7 @@ def solve_teed_single(
     sol = np.linalg.solve(mat, rhs)
     v, i, i_par = {}, {}, {}
     for k, e in enumerate(ends):
-        v[e] = sol[bus[e]]
+        v[e] = sol[vt_nodes[e]] if e in vt_nodes else sol[bus[e]]  # the relay's VT
         cur = [sol[n_nodes + q] for q, (_, b_node) in enumerate(branches)
                if b_node in leg_nodes[k][0]]
         i[e] = np.array(cur[:3])

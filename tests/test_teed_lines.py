@@ -707,3 +707,82 @@ def test_double_circuit_with_cables_equals_nodal_reference(state):
                                 rtol=1e-8, atol=1e-8 * scale)
                 assert_allclose(sw.v[end][fi, 0, 0, 0, 0], ref.v[end], rtol=1e-8,
                                 atol=1e-8 * V_NOM)
+
+
+# --- Series elements (capacitor banks) in the legs: the solver only (studies refuse them)
+
+def _banked(shunt: bool, double: bool):
+    """The invented teed line with a bank at bus S (relay VT on its line side) and one
+    mid-way on the R side: -j 12 ohm and -j 9 ohm in circuit 1's phases."""
+    from relayset.physics.network import LineCascade, SeriesElement
+    from relayset.physics.teed import TeedLine
+
+    main, branch, _ = _double_teed(shunt)
+    n = 6 if double else 3
+    if not double:
+        main = LineCascade(main.z_ohm_per_m[:, :3, :3], main.length_m,
+                           None if main.y_s_per_m is None else main.y_s_per_m[:, :3, :3])
+
+    def bank(x_c):
+        z = np.zeros((n, n), dtype=complex)
+        z[:3, :3] = -1j * x_c * np.eye(3)
+        return z
+
+    total = 75e3
+    main = LineCascade(main.z_ohm_per_m, main.length_m, main.y_s_per_m,
+                       (SeriesElement(0.0, bank(12.0), True),
+                        SeriesElement(55e3 / total, bank(9.0))))
+    line = TeedLine.from_line(main, 32e3, branch)
+    # per leg: (distance from its bus [m], Z_e, VT on the line side)
+    where = (((0.0, bank(12.0), True),), ((20e3, bank(9.0), False),), ())
+    return line, where
+
+
+BANK_CASES = [(False, "in_service"), (True, "in_service"), (True, "earthed"),
+              (True, "isolated")]
+
+
+@pytest.mark.parametrize(("double", "state"), BANK_CASES,
+                         ids=[f"{d}-{s}" for d, s in BANK_CASES])
+@pytest.mark.parametrize("leg", ENDS)
+def test_series_banks_in_the_legs_equal_nodal_reference(double, state, leg):
+    """Lumped banks in the legs (chain matrix [[1, Z_e], [0, 1]]) against the nodal
+    reference's series branches; faults at the bus behind a bank (between the CT and the
+    bank), just beyond it and at the mid-line bank's place (its bus side)."""
+    from reference_solver import solve_teed_single
+
+    line, where = _banked(True, double)
+    assert [len(leg_.elements) for leg_ in line.legs] == [1, 1, 0]
+    assert line.legs[1].elements[0].at == pytest.approx(20e3 / 43e3)
+    terms = _dc_sources()
+    m = {"S": [0.0, 1e-6, 0.5], "R": [0.0, 20e3 / 43e3, 0.9], "T": [0.3, 1.0]}[leg]
+    sw = solve_teed_sweep(line, terms, v_nominal_v=V_NOM, fault_leg=leg,
+                          fault_types=("AG", "BC", "ABC"), m=np.array(m), r_fault_ohm=[0.5],
+                          parallel_state=state if double else "in_service",
+                          parallel_currents=True, emf_v=tuple(np.array([e]) for e in DC_EMFS))
+    for fi, ft in enumerate(("AG", "BC", "ABC")):
+        for mi, mm in enumerate(m):
+            ref = solve_teed_single(_legs_of(line), terms, DC_EMFS, fault_leg=leg, m=mm,
+                                    fault_type=ft, r_fault_ohm=0.5,
+                                    parallel_state=state if double else "in_service",
+                                    elements=where)
+            scale = np.max(np.abs(ref.i_fault))
+            for end in ENDS:
+                assert_allclose(sw.v[end][fi, mi, 0, 0, 0], ref.v[end], rtol=1e-8,
+                                atol=1e-8 * V_NOM)
+                assert_allclose(sw.i[end][fi, mi, 0, 0, 0], ref.i[end], rtol=1e-8,
+                                atol=1e-8 * scale)
+                assert_allclose(sw.i_parallel[end][fi, mi, 0, 0, 0], ref.i_parallel[end],
+                                rtol=1e-8, atol=1e-8 * scale)
+
+
+def test_a_bank_at_the_tee_is_refused():
+    from relayset.errors import InputError
+    from relayset.physics.network import LineCascade, SeriesElement
+    from relayset.physics.teed import TeedLine
+
+    main, branch, _ = _double_teed(False)
+    bad = LineCascade(main.z_ohm_per_m, main.length_m, None,
+                      (SeriesElement(32e3 / 75e3, np.zeros((6, 6))),))
+    with pytest.raises(InputError, match="at the tee"):
+        TeedLine.from_line(bad, 32e3, branch)

@@ -52,7 +52,12 @@ current into each fault phase, hence the Thevenin matrix :math:`Z_{th}` at F; ev
 type and resistance then follows from :func:`relayset.physics.faults.fault_currents` and
 superposition, as in :func:`relayset.physics.network.solve_fault_sweep`. Series-only with
 circuit 2 isolated, circuit 2 carries no current and floats: it is dropped, as
-:func:`relayset.physics.network.solve_fault_sweep` does.
+:func:`relayset.physics.network.solve_fault_sweep` does. Lumped series elements of a leg
+(:class:`~relayset.physics.network.SeriesElement`, e.g. capacitor banks; ``from_line``
+places the line's on the leg they sit on) enter its chain matrices as
+:math:`[[1, Z_e], [0, 1]]` (:func:`relayset.physics.chain.element_fault_chain_products`),
+and a relay VT on the line side of an element at its bus reads the line-side voltage,
+both as in the two-ended solver.
 
 References
 ----------
@@ -71,11 +76,16 @@ from dataclasses import dataclass
 import numpy as np
 
 from relayset.errors import InputError, suggest
-from relayset.physics.chain import chain_products, fault_chain_products, split_lengths
+from relayset.physics.chain import (
+    element_fault_chain_products,
+    fault_chain_products,
+    split_lengths,
+)
 from relayset.physics.faults import check_fault_type, check_resistance, fault_currents
 from relayset.physics.network import (
     PARALLEL_STATES,
     LineCascade,
+    SeriesElement,
     Source,
     _balanced,
     _check_branch,
@@ -164,13 +174,27 @@ class TeedLine:
         left, right = split_lengths(line.length_m, np.array([tee_m / total]))
         y = line.y_s_per_m
         ls, rs = np.flatnonzero(left[0] > 0), np.flatnonzero(right[0] > 0)[::-1]
+        # Lumped series elements (banks) go to the leg they sit on, placed from its bus.
+        el_s, el_r = [], []
+        for el in line.elements:
+            x = el.at * total
+            if math.isclose(x, tee_m, rel_tol=1e-12, abs_tol=1e-9):
+                raise InputError("a series element exactly at the tee belongs to no leg: "
+                                 "place it on one side", field="elements", value=el.at)
+            if x < tee_m:
+                el_s.append(SeriesElement(x / tee_m, el.z_ohm, el.vt_line_side))
+            else:
+                el_r.append(SeriesElement((total - x) / (total - tee_m), el.z_ohm,
+                                          el.vt_line_side))
         leg_s = LineCascade(line.z_ohm_per_m[ls], left[0, ls],
-                            None if y is None else y[ls])
+                            None if y is None else y[ls], tuple(el_s))
         leg_r = LineCascade(line.z_ohm_per_m[rs], right[0, rs],
-                            None if y is None else y[rs])
+                            None if y is None else y[rs], tuple(el_r))
         yb = branch.y_s_per_m
         leg_t = LineCascade(branch.z_ohm_per_m[::-1], branch.length_m[::-1],
-                            None if yb is None else yb[::-1])
+                            None if yb is None else yb[::-1],
+                            tuple(SeriesElement(1.0 - el.at, el.z_ohm, el.vt_line_side)
+                                  for el in branch.elements))
         return cls((leg_s, leg_r, leg_t))
 
 
@@ -271,6 +295,38 @@ def parallel_label(line: TeedLine, state: str) -> str:
     """``", parallel circuit STATE"`` of a double-circuit line's case label (empty on a
     single circuit)."""
     return "" if line.n_conductors != 6 else f", parallel circuit {state.replace('_', ' ')}"
+
+
+def _leg_chains(z, y, length_m, m, elements) -> tuple[np.ndarray, np.ndarray]:
+    """Chain matrices of a leg from its bus to each location m and from the tee to it,
+    its lumped elements included (:func:`~relayset.physics.chain.element_fault_chain_products`:
+    a fault at m = 0 lies on the bus side of an element at the bus)."""
+    if not elements:
+        return fault_chain_products(z, y, length_m, m)
+    return element_fault_chain_products(z, y, length_m, m,
+                                        np.array([e.at for e in elements]),
+                                        np.array([e.z_ohm for e in elements]))
+
+
+def _vt_line_side(out, x, elems, order, nf, per, m) -> None:
+    """The bus voltage rows of ``out`` moved to the line side of an element at a leg's bus
+    whose relay VT is there (in place), as :func:`relayset.physics.network.solve_fault_sweep`
+    does: :math:`V_{line} = V_{bus} - Z_e I` with I the currents of the leg's conductors
+    into it; for a fault at that bus (m = 0 of the faulted leg, between the current
+    transformer and the element) the element carries the current from the line side into
+    the fault: :math:`V_{line} = V_F + Z_e I_b`."""
+    for r, k in enumerate(order):
+        for el in elems[k]:
+            if not (el.vt_line_side and el.at == 0.0):
+                continue
+            n = el.z_ohm.shape[0]
+            ze = el.z_ohm[:3]  # circuit 1's rows (the relay's voltages)
+            rv = 3 + per * r
+            cur = out[:, :, rv + 3:rv + 3 + n]  # I1 (and I2) at the bus, into the leg
+            bus = (m == 0.0) if r == 0 else np.zeros(m.shape, dtype=bool)
+            out[~bus, :, rv:rv + 3] -= ze @ cur[~bus]
+            if np.any(bus):
+                out[bus, :, rv:rv + 3] = x[bus][:, :, 0:3] + ze @ x[bus][:, :, 2 * nf:3 * nf]
 
 
 def _incidence(n: int, n_u: int) -> np.ndarray:
@@ -386,9 +442,12 @@ def solve_teed_sweep(
     # Series-only with circuit 2 isolated: it carries no current and floats (no closed
     # path); it is dropped, as network._line_matrices does.
     legs = [(leg.z_ohm_per_m, leg.y_s_per_m, leg.length_m) for leg in line.legs]
+    elems = [leg.elements for leg in line.legs]
     state = parallel_state
     if line.n_conductors == 6 and state == "isolated" and all(y is None for _, y, _ in legs):
         legs = [(z[:, :3, :3], y, ln) for z, y, ln in legs]
+        elems = [tuple(SeriesElement(e.at, e.z_ohm[:3, :3], e.vt_line_side) for e in es)
+                 for es in elems]
         state = "in_service"
     ns = [z.shape[-1] for z, _, _ in legs]
     n_u = max(ns)  # tee nodes: circuit 1, and circuit 2 running through
@@ -407,7 +466,7 @@ def solve_teed_sweep(
     h1, h2 = (k for k in range(3) if k != f)
     nf = ns[f]
     z_f, y_f, l_f = legs[f]
-    phi_a, phi_b = fault_chain_products(z_f, y_f, l_f, m)  # bus -> F, tee -> F
+    phi_a, phi_b = _leg_chains(z_f, y_f, l_f, m, elems[f])  # bus -> F, tee -> F
     inc = {k: _incidence(ns[k], n_u) for k in range(3)}
     cols = n_l + 3  # load cases, then a unit current into each fault phase
 
@@ -419,7 +478,7 @@ def solve_teed_sweep(
     healthy = []
     for h in (h1, h2):
         nh = ns[h]
-        phi = chain_products(legs[h][0], legs[h][1], legs[h][2][None], reverse=False)[0]
+        phi = _leg_chains(*legs[h], np.array([1.0]), elems[h])[0][0]  # bus -> tee
         w = g_mat[h] @ phi  # (K, nh, 2nh)
         rhs = np.zeros((n_k, nh, n_u + cols), dtype=complex)
         rhs[..., :n_u] = -w[..., :nh] @ inc[h]
@@ -483,6 +542,7 @@ def solve_teed_sweep(
         r0 = 3 + per * (r + 1)
         out[:, :, r0:r0 + len(sel)] = p_h[None, :, sel] @ u + q_h[None, :, sel]
         out[:, :, r0 + len(sel):r0 + per] = 0.0
+    _vt_line_side(out, x, elems, (f, h1, h2), nf, per, m)
 
     # Cases laid out (M, Rf, K, L); phase axes first for fault_currents.
     z_th = -np.transpose(out[..., 0:3, n_l:], (2, 3, 0, 1))[:, :, :, None, :, None]
