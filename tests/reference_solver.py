@@ -339,3 +339,177 @@ def solve_fault_single(
         i_f_from_s=i_from_s,
         i_f_from_r=i_from_r,
     )
+
+
+# --------------------------------------------------------------------------------------
+# Three-terminal (teed) line, one or two circuits (reference for tests/test_teed_lines.py)
+# --------------------------------------------------------------------------------------
+
+
+@dataclass(frozen=True, eq=False)
+class TeedCase:
+    """Results of :func:`solve_teed_single` per end name ("S", "R", "T"): the bus voltage,
+    circuit 1's current into the line and circuit 2's (zeros where there is none), each a
+    (3,) complex array [V or A]; and the fault currents (3,) [A]."""
+
+    v: dict
+    i: dict
+    i_parallel: dict
+    i_fault: np.ndarray
+
+
+def solve_teed_single(
+    legs: tuple,
+    terminals: tuple,
+    emf_v: tuple[complex, complex, complex],
+    *,
+    fault_leg: str,
+    m: float,
+    fault_type: str,
+    r_fault_ohm: float,
+    r_phase_ohm: float = 0.0,
+    parallel_state: str = "in_service",
+    fault_circuit: int = 1,
+    transformer_z0: dict | None = None,
+    elements: tuple = ((), (), ()),
+) -> TeedCase:
+    """One fault on a teed line by plain modified nodal analysis [1]_ (reference for tests).
+
+    ``legs``: three (z (S, n, n) [ohm/m], y (S, n, n) [S/m] or None, lengths (S,) [m]),
+    from bus S, R and T to the tee, sections in order from the bus; n = 6 on the S and R
+    legs of a double-circuit line (circuit 1, then circuit 2), 3 on the branch. Nodes:
+    the three buses, every conductor at every section boundary and at the fault point,
+    the tee (circuit 1 shared by the three legs, circuit 2 by the legs from S and R only).
+    Zero-impedance branches between each bus and its leg's end carry the relay currents
+    (circuit 1, and circuit 2 in service; circuit 2 earthed: a branch to ground at both
+    ends; isolated: nothing, and series-only a tie to ground at the S end, which closes
+    no current path). ``terminals``: a Source (its Norton equivalent, EMF ``emf_v`` of
+    phase A, positive sequence), or None (open; with ``transformer_z0[end]`` a
+    grounded-star transformer, admittance P0/Z0 to ground). The fault: current unknowns
+    leaving the faulted circuit's nodes at ``m`` of the faulted leg from its bus, with the
+    exact fault constraints. ``elements`` per leg: (distance from its bus [m], impedance
+    matrix (n, n) [ohm], VT on the line side) of lumped series elements, each stamped as
+    a branch V_a - V_b = Z_e I between its bus-side and far-side nodes (a fault at its
+    place sits on the bus side; the relay's voltage of a VT on the line side of an element
+    at the bus is the far-side node's).
+    """
+    from relayset.physics.sequence import fortescue_matrix
+
+    ends = ("S", "R", "T")
+    transformer_z0 = transformer_z0 or {}
+    n_of = [z.shape[-1] for z, _, _ in legs]
+    two = max(n_of) == 6
+    count = 0
+
+    def new(k: int) -> list[int]:
+        nonlocal count
+        out = list(range(count, count + k))
+        count += k
+        return out
+
+    bus = {e: new(3) for e in ends}
+    tee = new(6 if two else 3)
+    leg_nodes, leg_parts, lumped, vt_nodes = [], [], [], {}
+    f_leg = ends.index(fault_leg)
+    f_nodes = None
+    for k, (z, y, lengths) in enumerate(legs):
+        n = n_of[k]
+        edges = np.concatenate([[0.0], np.cumsum(lengths)])
+        tol = _SNAP_REL * edges[-1]
+        cuts = list(edges)
+        x_f = m * edges[-1]
+        for x in ([x_f] if k == f_leg else []) + [el[0] for el in elements[k]]:
+            if all(abs(x - c) > tol for c in cuts):
+                cuts = sorted([*cuts, x])
+        # node sets per boundary: the bus side and the far side (apart at an element)
+        nodes = [new(n) for _ in cuts[:-1]] + [tee[:n]]  # the last boundary is the tee
+        far = list(nodes)
+        for x, z_e, vt_line in elements[k]:
+            j = int(np.argmin([abs(c - x) for c in cuts]))
+            far[j] = new(n)
+            lumped.append((nodes[j], far[j], np.asarray(z_e, dtype=complex)))
+            if vt_line and j == 0:
+                vt_nodes[ends[k]] = far[j][:3]
+        parts = []
+        for j in range(len(cuts) - 1):
+            sec = int(np.searchsorted(edges, 0.5 * (cuts[j] + cuts[j + 1])) - 1)
+            parts.append((far[j], nodes[j + 1],
+                          _segment_nodal(z[sec], None if y is None else y[sec],
+                                         cuts[j + 1] - cuts[j])))
+        leg_nodes.append(nodes)
+        leg_parts.append(parts)
+        if k == f_leg:  # a fault at an element's place: on its bus side
+            j = int(np.argmin([abs(c - x_f) for c in cuts]))
+            off = 3 * (fault_circuit - 1)
+            f_nodes = nodes[j][off:off + 3]
+    n_nodes = count
+    # Zero-impedance branches: (from node or None for ground, to node), current to "to".
+    branches = []
+    for k, e in enumerate(ends):
+        end_nodes = leg_nodes[k][0]
+        for c in range(3):
+            branches.append((bus[e][c], end_nodes[c]))
+        if n_of[k] == 6:
+            for c in range(3):
+                if parallel_state == "in_service":
+                    branches.append((bus[e][c], end_nodes[3 + c]))
+                elif parallel_state == "earthed":
+                    branches.append((None, end_nodes[3 + c]))
+    isolated_tie = (two and parallel_state == "isolated"
+                    and all(y is None for _, y, _ in legs))
+    n_lumped = sum(len(a) for a, _, _ in lumped)
+    size = n_nodes + len(branches) + 3 + (3 if isolated_tie else 0) + n_lumped
+    mat = np.zeros((size, size), dtype=complex)
+    rhs = np.zeros(size, dtype=complex)
+    for k in range(3):
+        for a_ids, b_ids, yy in leg_parts[k]:
+            ids = a_ids + b_ids
+            mat[np.ix_(ids, ids)] += yy
+    col = size - n_lumped
+    for a_ids, b_ids, z_e in lumped:  # V_a - V_b - Z_e I = 0, I from a to b
+        cols = list(range(col, col + len(a_ids)))
+        col += len(a_ids)
+        mat[np.ix_(cols, a_ids)] += np.eye(len(a_ids))
+        mat[np.ix_(cols, b_ids)] -= np.eye(len(a_ids))
+        mat[np.ix_(cols, cols)] -= z_e
+        mat[np.ix_(a_ids, cols)] += np.eye(len(a_ids))
+        mat[np.ix_(b_ids, cols)] -= np.eye(len(a_ids))
+    a_pos = fortescue_matrix()[:, 1]
+    for k, e in enumerate(ends):
+        term = terminals[k]
+        b = bus[e]
+        if isinstance(term, Source):
+            ys = np.linalg.inv(term.phase_matrix())
+            mat[np.ix_(b, b)] += ys
+            rhs[b] += ys @ (emf_v[k] * a_pos)
+        elif e in transformer_z0:
+            mat[np.ix_(b, b)] += np.full((3, 3), 1.0 / 3.0) / transformer_z0[e]
+    for q, (a_node, b_node) in enumerate(branches):
+        col = n_nodes + q
+        # V_b - V_a = 0; the current leaves a (the bus or ground) and enters b
+        mat[col, b_node] += 1.0
+        mat[b_node, col] -= 1.0  # KCL at b: the current enters b (stamped as a source)
+        if a_node is not None:
+            mat[col, a_node] -= 1.0
+            mat[a_node, col] += 1.0
+    fc = n_nodes + len(branches)
+    p_v, p_i = fault_constraints(fault_type, r_fault_ohm, r_phase_ohm)
+    for c in range(3):
+        mat[f_nodes[c], fc + c] += 1.0  # the fault current leaves the node
+    mat[np.ix_(range(fc, fc + 3), f_nodes)] = p_v
+    mat[fc:fc + 3, fc:fc + 3] = p_i
+    if isolated_tie:  # circuit 2 floats: tie it to ground at the S end (no current path)
+        s_end = leg_nodes[0][0]
+        for c in range(3):
+            col = fc + 3 + c
+            mat[col, s_end[3 + c]] = 1.0
+            mat[s_end[3 + c], col] = -1.0
+    sol = np.linalg.solve(mat, rhs)
+    v, i, i_par = {}, {}, {}
+    for k, e in enumerate(ends):
+        v[e] = sol[vt_nodes[e]] if e in vt_nodes else sol[bus[e]]  # the relay's VT
+        cur = [sol[n_nodes + q] for q, (_, b_node) in enumerate(branches)
+               if b_node in leg_nodes[k][0]]
+        i[e] = np.array(cur[:3])
+        i_par[e] = np.array(cur[3:6]) if len(cur) == 6 else np.zeros(3, dtype=complex)
+    return TeedCase(v, i, i_par, sol[fc:fc + 3])

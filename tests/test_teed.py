@@ -218,7 +218,7 @@ def test_zero_length_open_tee_leg_gives_two_ended_result(shunt):
 
 
 def test_bad_input_is_refused():
-    with pytest.raises(InputError, match="single circuit"):
+    with pytest.raises(InputError, match="same circuits"):
         z6 = np.kron(np.eye(2), Z_ABC_KM / 1e3) + 1e-6
         TeedLine((LineCascade(z6, [1e3]), cascade([1e3], False), cascade([1e3], False)))
     full = cascade([30e3, 12e3], False)

@@ -134,7 +134,7 @@ BAD = [
     ("tee with a series capacitor", ("[load]", '[[series_capacitors]]\nname = "bank"\n'
                                      'at = "Velmar"\ncompensation_pct = 30\n'
                                      'protective_level = 2.2\nrated_current = "1 kA"\n\n[load]'),
-     ['series_capacitors[0].name = "bank"', "overhead sections only"]),
+     ['series_capacitors[0].name = "bank"', "series capacitors"]),
 ]
 
 
@@ -159,7 +159,9 @@ def test_bad_tee_input_is_one_line_and_exit_2(tmp_path, capsys, case):
     assert not out_json.exists()
 
 
-def test_tee_on_a_double_circuit_is_refused(tmp_path, capsys):
+def test_tee_branch_naming_the_untapped_circuit_is_refused(tmp_path, capsys):
+    """A tee on a double-circuit line taps circuit 1 (tests/test_teed_lines.py); a branch
+    section giving circuit 2 an order is refused."""
     second = TEED_TOML.replace('[[shield_wires]]', '''[[circuits]]
 name = "2"
 positions = [
@@ -178,7 +180,7 @@ positions = [
     code = main(["params", str(write(tmp_path, second))])
     err = capsys.readouterr().err.strip()
     assert code == 2 and len(err.splitlines()) == 1, err
-    assert "tee:" in err and "single-circuit line only" in err
+    assert "tee.sections[0].order.2" in err and "tapped circuit" in err, err
 
 
 def test_schema_covers_the_tee_table(capsys):

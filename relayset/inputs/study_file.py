@@ -1175,17 +1175,12 @@ def check_study(study: Study, data: dict, source: str) -> None:
 
         check_neighbours(study, data, fail)
     check_series_capacitors(study, data, fail)
-    if study.tee is not None:  # the teed solver takes overhead sections, nothing else yet
+    if study.tee is not None:  # the teed solver takes overhead and cable sections
         others = [(f"{what}[0].name", getattr(study, what)[0].name)
                   for what in ("neighbours", "series_capacitors") if getattr(study, what)]
-        others += [(f"line.sections[{k}].cable", sec.cable)
-                   for k, sec in enumerate(study.line.sections or ()) if sec.cable]
-        others += [(f"tee.sections[{k}].cable", sec.cable)
-                   for k, sec in enumerate(study.tee.sections or ())
-                   if getattr(sec, "cable", None)]
         if others:
-            fail("a three-terminal line ([tee]) is modelled with overhead sections only, "
-                 "without a neighbouring line or series capacitors", *others[0])
+            fail("a three-terminal line ([tee]) is modelled without a neighbouring line or "
+                 "series capacitors", *others[0])
     if study.neighbours and study.series_capacitors:
         fail("a shared corridor ([[neighbours]]) and series capacitors are not modelled "
              "together: give the compensated line without its neighbour, or the corridor "

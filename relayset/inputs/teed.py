@@ -7,16 +7,18 @@
     substation = "Third"            # the substation at the branch's far end
     sections = [                    # the branch, from the tee to the third substation,
       { length = "9 km", order = ["A", "B", "C"] },  # written as the line's sections
-    ]
+    ]                               # (with [towers.NAME] tables: tower = or cable = each)
     # grounded_transformer_z0 = "1 + 12j ohm"  # the third substation has only a
     #                                          # grounded-star transformer (no source)
 
 The third substation's source is ``[sources."Third"]`` like the other buses'; without it
 (and without ``grounded_transformer_z0``) the branch ends open. ``[relay] end`` may name
-the third substation, or ``"all"`` for relays at all three ends. A tee is modelled on a
-single-circuit line only. This module declares the table and checks it against the rest of
-the study (:func:`check_tee`, called from
-:func:`relayset.inputs.study_file.check_study`).
+the third substation, or ``"all"`` for relays at all three ends. On a double-circuit line
+the first circuit of ``[[circuits]]`` (the protected one) is tapped and the second runs
+through the tee untapped; the branch carries the tapped circuit only (its sections' orders
+name it, on the named towers with the second circuit's positions empty). This module
+declares the table and checks it against the rest of the study (:func:`check_tee`, called
+from :func:`relayset.inputs.study_file.check_study`).
 """
 
 from __future__ import annotations
@@ -61,9 +63,6 @@ def check_tee(study: Any, data: dict, fail: Callable[..., None]) -> None:
     """Rules of ``[tee]`` against the rest of the study (``fail(rule, field, value)``)."""
     tee = study.tee
     ends = study.ends
-    if len(study.circuits) != 1:
-        fail("a tee is modelled on a single-circuit line only (this line has two circuits)",
-             "tee", None)
     length = study.line.length
     raw_d = _raw(data, "tee", "distance")
     if not tee.distance < length:
@@ -82,12 +81,21 @@ def check_tee(study: Any, data: dict, fail: Callable[..., None]) -> None:
                  "tee.grounded_transformer_z0 (a grounded transformer only), not both",
                  "tee.grounded_transformer_z0", _raw(data, "tee", "grounded_transformer_z0"))
     names = [c.name for c in study.circuits]
+    teed = names[0]  # the protected circuit is tapped; a parallel circuit runs through
     for s, sec in enumerate(tee.sections):
         field = f"tee.sections[{s}]"
         for key in sec.order if isinstance(sec.order, dict) else ():
             if key not in names:
                 fail("names no circuit" + suggest(key, names), f"{field}.order.{toml_key(key)}",
                      _raw(data, "tee", "sections", s, "order", key))
+            elif key != teed:
+                fail(f"the branch carries the tapped circuit {quote(teed)} only (circuit "
+                     f"{quote(key)} runs through the tee): give the order of {quote(teed)}",
+                     f"{field}.order.{toml_key(key)}",
+                     _raw(data, "tee", "sections", s, "order", key))
+        if sec.cable is not None:  # a cable section (relayset.inputs.cable)
+            _check_branch_cable(study, sec, field, fail)
+            continue
         if study.towers and sec.tower is None:
             fail("is required: the study has [towers.NAME] tables (towers: "
                  + ", ".join(study.towers) + ")", f"{field}.tower")
@@ -95,6 +103,45 @@ def check_tee(study: Any, data: dict, fail: Callable[..., None]) -> None:
             known = ", ".join(study.towers) or "none"
             fail(f"names no tower of [towers] (towers: {known})"
                  + suggest(sec.tower, study.towers), f"{field}.tower", sec.tower)
+    _check_branch_cable_tables(study, data, fail)
+
+
+def _check_branch_cable(study: Any, sec: Any, field: str, fail: Callable[..., None]) -> None:
+    """A branch section on a cable: the rules of the line's cable sections
+    (:func:`relayset.inputs.cable.check_cables`), named as written in ``[tee]``."""
+    cables = study.cables
+    if sec.tower is not None:
+        fail("a section is either overhead or cable: give tower or cable, not both",
+             f"{field}.cable", sec.cable)
+    if sec.cable not in cables:
+        fail("names no cable of [cables]" + (" (cables: " + ", ".join(cables) + ")"
+                                             if cables else ": the study has none")
+             + suggest(sec.cable, cables), f"{field}.cable", sec.cable)
+    if not study.towers:  # without them the branch's wires would stand in for the cable
+        fail("with cable sections, give the overhead sections' cross-sections as "
+             "[towers.NAME] tables and a tower per overhead section", "towers")
+
+
+def _check_branch_cable_tables(study: Any, data: dict, fail: Callable[..., None]) -> None:
+    """The ``[cables.NAME]`` rules (circuit spacing, earth continuity conductor) of cables
+    laid on the branch only: those of the line's cables are checked with the line."""
+    import dataclasses
+
+    from relayset.inputs.cable import check_cables
+
+    on_line = {sec.cable for sec in study.line.sections or () if sec.cable is not None}
+    extra = tuple(sec for sec in study.tee.sections
+                  if sec.cable is not None and sec.cable in study.cables
+                  and sec.cable not in on_line and sec.tower is None)
+    if not extra or not study.towers:
+        return
+    # The line's overhead sections and the branch's cables (one overhead section at
+    # least, so only the tables' own rules can fail, each field naming its [cables.NAME]),
+    # on the branch's one circuit.
+    overhead = tuple(sec for sec in study.line.sections or () if sec.cable is None)
+    line = dataclasses.replace(study.line, sections=(*overhead, *extra))
+    check_cables(dataclasses.replace(study, line=line, circuits=study.circuits[:1]), data,
+                 fail)
 
 
 def buses(study: Any) -> tuple[str, ...]:

@@ -24,9 +24,16 @@ from relayset.inputs.philosophy import Philosophy
 from relayset.inputs.profile import study_profile
 from relayset.inputs.study_file import Study, check_settings_inputs
 from relayset.physics import measurement
-from relayset.physics.network import Source
+from relayset.physics.network import LineCascade, Source
 from relayset.physics.sequence import to_sequence
-from relayset.physics.teed import ENDS, GroundedTransformer, TeedLine, solve_teed_sweep
+from relayset.physics.teed import (
+    ENDS,
+    GroundedTransformer,
+    TeedLine,
+    parallel_label,
+    parallel_states,
+    solve_teed_sweep,
+)
 from relayset.results.parameters import LineParameters
 from relayset.results.relay import RelayBasis
 from relayset.results.settings import SettingsResult
@@ -97,19 +104,81 @@ VERIFIED = ("Verified by fault simulation on the teed solver with the relay mode
 def teed_line(study: Study, geo: LineGeometry, params: LineParameters, shunt: bool,
               source: str) -> TeedLine:
     """The study's line split at the tee, with the branch from its own sections (its tower
-    geometry and phase orders read as the line's)."""
+    geometry and phase orders read as the line's). On a double-circuit line the legs from
+    the two ends carry both circuits (circuit 2 runs through the tee untapped) and the
+    branch carries circuit 1 alone: its towers' wires without circuit 2's positions."""
     tee = study.tee
     main = line_cascade(geo, params, "actual_plan", shunt)
+    sections = tee.sections
+    teed = study.circuits[0]
+    # The geometry places the wires of an overhead section; a branch of cable sections
+    # only gets the line's first overhead section appended, dropped from its cascade.
+    anchor = () if any(sec.cable is None for sec in sections) else tuple(
+        dataclasses.replace(sec, order=sec.order[teed.name])
+        if isinstance(sec.order, dict) else sec
+        for sec in study.line.sections if sec.cable is None)[:1]
     branch_study = dataclasses.replace(
-        study, tee=None,
-        line=dataclasses.replace(study.line, length=tee.length, sections=tee.sections))
+        study, tee=None, circuits=(teed,),
+        line=dataclasses.replace(study.line, sections=(*sections, *anchor),
+                                 length=math.fsum(sec.length for sec in (*sections, *anchor))))
     try:
         geo_b = build_geometry(branch_study, source)
     except InputError as exc:  # the branch's sections are named as written in [tee]
         raise InputError(exc.rule, field=exc.field.replace("line.sections", "tee.sections"),
                          value=exc.value, source=exc.source) from None
     branch = line_cascade(geo_b, compute_parameters(geo_b), "actual_plan", shunt)
+    if anchor:
+        n = len(sections)
+        branch = LineCascade(branch.z_ohm_per_m[:n], branch.length_m[:n],
+                             None if branch.y_s_per_m is None else branch.y_s_per_m[:n])
     return TeedLine.from_line(main, tee.distance, branch)
+
+
+def teed_line_notes(study: Study) -> tuple[str, ...]:
+    """What :func:`teed_line` assumed beyond the line's own parameters: the untapped
+    parallel circuit of a double-circuit line, and the branch's cables."""
+    notes = []
+    if len(study.circuits) == 2:
+        c1, c2 = (c.name for c in study.circuits)
+        a, b = study.ends
+        notes.append(
+            f"Double-circuit line: circuit {c1} is tapped at the tee; circuit {c2} runs "
+            f"through it untapped between {a} and {b}, on their buses in service, and is "
+            "taken in each of its states (in service, out and earthed at both ends, out and "
+            "isolated; reach_study.parallel_circuit does not narrow them) in the reach "
+            "study and the verification; the branch carries circuit "
+            f"{c1} alone, on its towers without circuit {c2}'s wires. Faults on circuit "
+            f"{c2} itself are not simulated. "
+            + (f"The relays at {a} and {b} measure with k0 and also with k0m while the "
+               "parallel circuit is in service (both count: its supervision may block "
+               f"it); the relay at {study.tee.substation} has no parallel circuit."
+               if study.reach_study.mutual_compensation else
+               "The relays measure with k0 only (no mutual compensation)."))
+    on_line = {sec.cable for sec in study.line.sections or ()}
+    names = tuple(dict.fromkeys(sec.cable for sec in study.tee.sections
+                                if sec.cable is not None and sec.cable not in on_line))
+    if names:
+        from relayset.inputs.cable import constructions
+
+        one = dataclasses.replace(study, circuits=study.circuits[:1])
+        notes += [f"Branch to {study.tee.substation}: {n}" if n[:1].isupper() else n
+                  for n in constructions(one, names)[2]]
+    return tuple(notes)
+
+
+def teed_loop_sets(sweeps, end: str, k0: complex, k0m: complex | None) -> list:
+    """(parallel state, label, loop impedances) the relay at ``end`` measures in each
+    ``(state, sweep)``: with k0; and, at an end of a double circuit (S or R) with its
+    parallel circuit in service and the relays' k0m (``None``: not used), with mutual
+    compensation too (its supervision may block it, so both count)."""
+    out = []
+    for ps, sw in sweeps:
+        v, i = sw.v[end], sw.i[end]
+        out.append((ps, "", measurement.loop_impedances(v, i, k0)))
+        if k0m is not None and ps == "in_service" and end != ENDS[2] and sw.i_parallel:
+            out.append((ps, ", mutual compensation", measurement.loop_impedances(
+                v, i, k0, i_parallel=sw.i_parallel[end], k0m=k0m)))
+    return out
 
 
 def teed_terminals(study: Study, source: str) -> tuple:
@@ -215,6 +284,7 @@ def run_teed_study(study: Study, geo: LineGeometry, params: LineParameters,
     v_nom = study.system.nominal_voltage
     theta = cmath.phase(relay.z1_set_ohm)
     k0 = relay.k0_set
+    k0m = relay.k0m_set if rs.mutual_compensation else None  # a double circuit's relays
     ftypes = rs.fault_types
     fn = {"source_scale": "reach_study.source_cases", "fault_types": "reach_study.fault_types"}
 
@@ -227,23 +297,27 @@ def run_teed_study(study: Study, geo: LineGeometry, params: LineParameters,
                 t[out] = None
             if not any(isinstance(s, Source) for s in t):
                 continue
-            sw = solve_teed_sweep(line, t, v_nominal_v=v_nom, fault_leg=ENDS[y],
-                                  fault_types=ftypes, m=[0.0], r_fault_ohm=[0.0],
-                                  source_scale=scales, field_names=fn)
+            sws = [(ps, solve_teed_sweep(line, t, v_nominal_v=v_nom, fault_leg=ENDS[y],
+                                         fault_types=ftypes, m=[0.0], r_fault_ohm=[0.0],
+                                         source_scale=scales, field_names=fn,
+                                         parallel_state=ps,
+                                         parallel_currents=k0m is not None))
+                   for ps in parallel_states(line)]  # a double circuit: each state
             for x in range(3):
                 if x == y or (out is not None and out == x) or buses[x] not in relay.ends:
                     continue
                 infeed = out is None
-                loops = measurement.loop_impedances(sw.v[ENDS[x]], sw.i[ENDS[x]], k0)
                 best = [math.inf, -math.inf, "", "", 0j, 0j]
-                for f, ft in enumerate(ftypes):
+                for (ps, how, loops), (f, ft) in itertools.product(
+                        teed_loop_sets(sws, ENDS[x], k0, k0m), enumerate(ftypes)):
                     for lp in measurement.loops_for_fault(ft):
                         zs = loops[lp][f, 0, 0, :, 0]  # over source cases
                         a = _along(zs, theta)
                         for k, val in enumerate(a):
                             if not math.isfinite(val):
                                 continue
-                            label = f"fault {ft}, loop {lp}, source case {case_names[k]}"
+                            label = (f"fault {ft}, loop {lp}, source case {case_names[k]}"
+                                     + parallel_label(line, ps) + how)
                             if val < best[0]:
                                 best[0], best[2], best[4] = float(val), label, complex(zs[k])
                             if val > best[1]:
@@ -277,7 +351,7 @@ def run_teed_study(study: Study, geo: LineGeometry, params: LineParameters,
                     case_names=case_names, line_angle_rad=theta,
                     z_line_ohm=abs(relay.z1_set_ohm), models=models, buses=buses, emf_v=emf)
     # a quadrilateral zone 2 holds the bolted remote-terminal faults as the infeed turns them
-    need = (terminal_blinder_needs(lines, terms, judged, k0=k0, **envelope)
+    need = (terminal_blinder_needs(lines, terms, judged, k0=k0, k0m=k0m, **envelope)
             if philosophy.characteristic.shape == "quadrilateral" else {})
     zones: dict[int, tuple] = {}  # end -> (zone 1, zone 2) ZoneSettings as set
     budget = study.error_budget.total_pct
@@ -286,7 +360,7 @@ def run_teed_study(study: Study, geo: LineGeometry, params: LineParameters,
     unit = cmath.rect(1.0, theta)
     circ = params.circuits[0]
     arcs = arc_lengths(study, geo)
-    z1_legs = [complex(to_sequence(leg.z_total_ohm)[1, 1]) for leg in line.legs]
+    z1_legs = [complex(to_sequence(leg.z_total_ohm[:3, :3])[1, 1]) for leg in line.legs]
     results = []
     for x in range(3):
         if buses[x] not in relay.ends:
@@ -334,7 +408,8 @@ def run_teed_study(study: Study, geo: LineGeometry, params: LineParameters,
             zone2_secondary_ohm=z2.reach_secondary_ohm, settings=st))
     sim = verify_teed(
         lines, terms, judged, zones, load_names=loads, r_fault_ohm=rs.fault_resistances,
-        k0=k0, k0_by_end={x: e.settings.k0.k0 for x, e in zip(judged, results, strict=True)},
+        k0=k0, k0m=k0m,
+        k0_by_end={x: e.settings.k0.k0 for x, e in zip(judged, results, strict=True)},
         beyond={y: [(a.name, a.z1, a.z0 if a.z0 is not None else 3 * a.z1)
                     for a in study.adjacent_lines if a.bus == buses[y] and a.z1 is not None]
                 for y in range(3)},
@@ -352,9 +427,9 @@ def run_teed_study(study: Study, geo: LineGeometry, params: LineParameters,
     return TeedStudyResult(
         buses=buses, tee_distance_m=study.tee.distance, branch_length_m=study.tee.length,
         z1_set_ohm=relay.z1_set_ohm, k0_set=k0, ends=tuple(results),
-        assumptions=(*ASSUMPTIONS, VERIFIED),
-        legs=tuple((leg.total_length_m, complex(to_sequence(leg.z_total_ohm)[1, 1]),
-                    complex(to_sequence(leg.z_total_ohm)[0, 0])) for leg in line.legs),
+        assumptions=(*ASSUMPTIONS, VERIFIED, *teed_line_notes(study)),
+        legs=tuple((leg.total_length_m, complex(to_sequence(leg.z_total_ohm[:3, :3])[1, 1]),
+                    complex(to_sequence(leg.z_total_ohm[:3, :3])[0, 0])) for leg in line.legs),
         verification="failed checks" if failed else verdict((), accepted)[0],
         deviations=accepted)
 

@@ -7,7 +7,9 @@ one; reaches from :mod:`relayset.settings.teed`) are judged by the relay model o
 verification (:mod:`.relay_model`: loops released by phase selection, release currents,
 directional elements, close-in faults) on faults solved by the teed solver
 (:mod:`relayset.physics.teed`), with every infeed state (all sources in, each terminal's
-source out, each two out) and the reach study's source cases, fault types and resistances:
+source out, each two out), on a double-circuit line each state of the untapped parallel
+circuit (in service, out and earthed, out and isolated), and the reach study's source
+cases, fault types and resistances:
 
 - zone 1 must not operate for any fault at either remote terminal (on the line side of its
   current transformer) or along the lines beyond it (``[[adjacent_lines]]`` with their bus);
@@ -29,7 +31,14 @@ import numpy as np
 
 from relayset.physics.network import FaultSweep, Source
 from relayset.physics.sequence import balanced_phase_matrix
-from relayset.physics.teed import ENDS, TeedLine, TeedSweep, solve_teed_sweep
+from relayset.physics.teed import (
+    ENDS,
+    TeedLine,
+    TeedSweep,
+    parallel_label,
+    parallel_states,
+    solve_teed_sweep,
+)
 from relayset.results.settings import Check, ZoneSetting
 from relayset.studies.verification.relay_model import (
     GROUND,
@@ -55,10 +64,12 @@ class TeedVerdict:
     zone1_coverage_pct: float  #: share of bolted faults on the legs zone 1 trips [%]
 
 
-def _as_run(sw: TeedSweep, end: str, case_names: tuple[str, ...]) -> Run:
+def _as_run(sw: TeedSweep, end: str, case_names: tuple[str, ...], state: str = "none"
+            ) -> Run:
     """The teed sweep as the relay at ``end`` sees it, in the two-ended run's shape (that
-    end in the place of bus S), for :func:`.relay_model.view`."""
-    zeros = np.zeros_like(sw.i[end])
+    end in the place of bus S), for :func:`.relay_model.view`; ``state`` the parallel
+    circuit's (a double circuit), "none" on a single circuit."""
+    zeros = np.zeros_like(sw.i[end]) if sw.i_parallel is None else sw.i_parallel[end]
     k = sw.emf_v.shape[1]
     fs = FaultSweep(
         fault_types=sw.fault_types, m=sw.m, r_fault_ohm=sw.r_fault_ohm,
@@ -67,7 +78,7 @@ def _as_run(sw: TeedSweep, end: str, case_names: tuple[str, ...]) -> Run:
         i_s_parallel=zeros, v_r=None, i_r=None, i_r_parallel=None, v_f=sw.v_f,
         i_fault=sw.i_fault, i_f_from_s=None, i_f_from_r=None, v_s_pre=sw.v_pre[end],
         i_s_pre=sw.i_pre[end], i_s_parallel_pre=np.zeros_like(sw.i_pre[end]))
-    return Run(fs, "protected", "none", case_names, 0.0, (True, True))
+    return Run(fs, "protected", state, case_names, 0.0, (True, True))
 
 
 #: The infeed states: the terminals disconnected (none; each one; each two, the relay's
@@ -76,15 +87,21 @@ STATES = ((), (0,), (1,), (2,), (0, 1), (0, 2), (1, 2))
 
 
 def _states(lines, terminals, buses):
-    """(earth label, line, open terminals, terminals, state label) of every network."""
+    """(earth label, line, open terminals, terminals, state label, parallel state, the
+    parallel state as the relay model reads it) of every network: a double circuit's
+    parallel circuit in each of its states."""
     for (earth, line), out in itertools.product(lines, STATES):
         if any(terminals[k] is None for k in out):
             continue  # already open: the same network as a smaller state
         terms = [None if k in out else t for k, t in enumerate(terminals)]
         if not any(isinstance(t, Source) for t in terms):
             continue
-        yield earth, line, out, terms, ("all sources in" if not out else "no source at "
-                                        + " and ".join(buses[k] for k in out)) + f", {earth}"
+        label = ("all sources in" if not out else "no source at "
+                 + " and ".join(buses[k] for k in out)) + f", {earth}"
+        for ps in parallel_states(line):
+            run_state = ps if line.n_conductors == 6 else "none"  # k0m: in service only
+            yield (earth, line, out, terms, label + parallel_label(line, ps), ps,
+                   run_state)
 
 
 def terminal_blinder_needs(
@@ -93,6 +110,7 @@ def terminal_blinder_needs(
     case_names: tuple[str, ...], k0: complex, line_angle_rad: float, z_line_ohm: float,
     models: dict[int, RelayModel], buses: tuple[str, str, str],
     emf_v: tuple[np.ndarray, np.ndarray, np.ndarray] | None = None,
+    k0m: complex | None = None,
 ) -> dict[tuple[int, bool], tuple[float, float]]:
     """Right and left blinder offsets (:func:`relayset.settings.teed.blinder_offset_ohm`,
     the left one of -Z) [ohm] that hold every bolted fault at each remote terminal as the
@@ -105,16 +123,17 @@ def terminal_blinder_needs(
     from relayset.settings.teed import blinder_offset_ohm
 
     need: dict[tuple[int, bool], tuple[float, float]] = {}
-    for _, line, out, terms, _ in _states(lines, terminals, buses):
+    for _, line, out, terms, _, ps, run_state in _states(lines, terminals, buses):
         for y in range(3):
             sw = solve_teed_sweep(line, terms, v_nominal_v=v_nominal_v, fault_leg=ENDS[y],
                                   fault_types=fault_types, m=[0.0], r_fault_ohm=[0.0],
-                                  source_scale=source_scale, emf_v=emf_v)
+                                  source_scale=source_scale, emf_v=emf_v,
+                                  parallel_state=ps, parallel_currents=k0m is not None)
             for x in relay_ends:
                 if x in out or x == y:
                     continue
-                vw = view(_as_run(sw, ENDS[x], case_names), True, k0, None, models[x],
-                          line_angle=line_angle_rad)
+                vw = view(_as_run(sw, ENDS[x], case_names, run_state), True, k0,
+                          k0m if x != 2 else None, models[x], line_angle=line_angle_rad)
                 for loop in LOOPS:
                     idx = vw.meant[loop]
                     if not idx:
@@ -136,6 +155,7 @@ def verify_teed(
     zones: dict[int, tuple[ZoneSetting, ZoneSetting]],
     *, v_nominal_v: float, fault_types, r_fault_ohm, source_scale: np.ndarray,
     case_names: tuple[str, ...], k0: complex, line_angle_rad: float, z_line_ohm: float,
+    k0m: complex | None = None,
     models: dict[int, RelayModel], buses: tuple[str, str, str],
     beyond: dict[int, list[tuple[str, complex, complex]]] | None = None,
     next_zone1_pct: float | None = None,
@@ -168,17 +188,19 @@ def verify_teed(
     zone_1 = {x: zones[x][0] for x in relay_ends}
     zone_2 = {x: zones[x][1] for x in relay_ends}
     k0s = {x: (k0_by_end or {}).get(x, k0) for x in relay_ends}
-    for _, line, out, terms, state in _states(lines, terminals, buses):
+    for _, line, out, terms, state, ps, run_state in _states(lines, terminals, buses):
         for leg in range(3):
             sw = solve_teed_sweep(line, terms, v_nominal_v=v_nominal_v, fault_leg=ENDS[leg],
                                   fault_types=fault_types, m=LEG_LOCATIONS, r_fault_ohm=rf,
-                                  source_scale=source_scale, emf_v=emf_v)
+                                  source_scale=source_scale, emf_v=emf_v,
+                                  parallel_state=ps,
+                                  parallel_currents=k0m is not None)
             for x in relay_ends:
                 if x in out:
                     continue  # the relay's own source out: not this relay's case
                 model = models[x]
-                vw = view(_as_run(sw, ENDS[x], case_names), True, k0s[x], None, model,
-                          line_angle=line_angle_rad)
+                vw = view(_as_run(sw, ENDS[x], case_names, run_state), True, k0s[x],
+                          k0m if x != 2 else None, model, line_angle=line_angle_rad)
 
                 def label(idx, loop, leg=leg, state=state, sw=sw):
                     f, mi, ri, k, ld = idx
@@ -210,13 +232,14 @@ def verify_teed(
             sw = solve_teed_sweep(line, terms, v_nominal_v=v_nominal_v, fault_leg=ENDS[y],
                                   fault_types=fault_types, m=np.zeros(len(where)),
                                   r_fault_ohm=rf, source_scale=source_scale, z_branch_ohm=z_b,
-                                  emf_v=emf_v)
+                                  emf_v=emf_v, parallel_state=ps,
+                                  parallel_currents=k0m is not None)
             for x in relay_ends:
                 if x in out or x == y:
                     continue
                 model = models[x]
-                vw = view(_as_run(sw, ENDS[x], case_names), True, k0s[x], None, model,
-                          line_angle=line_angle_rad)
+                vw = view(_as_run(sw, ENDS[x], case_names, run_state), True, k0s[x],
+                          k0m if x != 2 else None, model, line_angle=line_angle_rad)
 
                 def blabel(idx, loop, y=y, state=state, where=where, sw=sw):
                     f, mi, ri, k, ld = idx
