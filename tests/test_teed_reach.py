@@ -166,7 +166,7 @@ def test_ideal_line_sees_the_path_impedance_and_the_tee_at_the_leg():
         l_p = l_x + ideal.legs[y].total_length_m
         d = np.array([0.3 * l_x, l_x, l_x + 0.5 * (l_p - l_x), l_p])
         zl = _loops_along(ideal, terms, x, y, d, l_x, l_p, ftypes, scales, 132e3,
-                          relay.k0_set)
+                          relay.k0_set)[""]
         z_tee = _z1_from_bus(ideal.legs[x], np.array([l_x]))[0]
         for f, ft in enumerate(ftypes):
             for lp in measurement.loops_for_fault(ft):

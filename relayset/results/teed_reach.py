@@ -1,7 +1,9 @@
 """Results of the reach study of a three-terminal (teed) line (``relayset reach``).
 
 Per relay end, per remote terminal (the path from the relay through the tee to it) and
-per infeed state of the third terminal: what the loops meant for each fault type measure
+per infeed state of the third terminal (on a double-circuit line also per state of the
+untapped parallel circuit, and with the parallel circuit in service with and without the
+relay's mutual compensation): what the loops meant for each fault type measure
 for bolted faults along the path, and their reach errors, defined as the two-ended reach
 study's (:mod:`relayset.results.reach`) with the path in place of the line.
 """
@@ -25,6 +27,8 @@ class TeedWorstCase:
     location_pct: float  #: of the path from the relay end [%]
     distance_m: float  #: from the relay end along the path [m]
     leg: str  #: the faulted leg, named by its bus (the relay's own leg up to the tee)
+    #: the source case's name; on a double-circuit line followed by the parallel circuit's
+    #: state (", parallel circuit earthed") and ", mutual compensation" where measured so
     source_case: str
     apparent_ohm: complex  #: the loop's measured impedance, primary [ohm]
 
@@ -64,11 +68,18 @@ class TeedLoopSummary:
 
 @dataclass(frozen=True)
 class TeedPathReach:
-    """Faults along the path from one relay end to one remote terminal, one infeed state."""
+    """Faults along the path from one relay end to one remote terminal, one infeed state
+    (and on a double-circuit line one state of the parallel circuit and of the relay's
+    mutual compensation)."""
 
     remote: str  #: the remote terminal at the path's end
     third: str  #: the third terminal, whose infeed is in or out
     infeed: bool  #: the third terminal's source (or grounded transformer) in
+    #: the untapped parallel circuit of a double-circuit line: "in_service", "earthed" or
+    #: "isolated" (network.PARALLEL_STATES); None on a single circuit
+    parallel_circuit: str | None
+    #: the relay measures with k0m too (its parallel circuit in service)
+    mutual_compensation: bool
     length_m: float  #: relay end to tee to remote terminal [m]
     tee_location_pct: float  #: where the tee lies on the path [%]
     #: Z1 of the path, the sum of its legs' (ideally transposed: the diagonal of each
@@ -99,6 +110,8 @@ class TeedPathReach:
 
         return {
             "remote": self.remote, "third": self.third, "infeed": self.infeed,
+            "parallel_circuit": self.parallel_circuit,
+            "mutual_compensation": self.mutual_compensation,
             "length_km": self.length_m / 1e3, "tee_location_pct": self.tee_location_pct,
             "z1_path_ohm": cplx(self.z1_path_ohm),
             "worst_bolted_overreach_at_remote_terminal_pct":
@@ -136,18 +149,29 @@ class TeedEndReach:
     z1_set_ohm: complex
     k0_set: complex
     tee_ohm: complex  #: Z1 of the relay's own leg, bus to tee (ideally transposed) [ohm]
-    paths: tuple[TeedPathReach, ...]  #: per remote terminal, infeed in then out
+    #: per remote terminal, infeed in then out (on a double circuit per parallel state, in
+    #: service with k0 then with k0m, earthed, isolated)
+    paths: tuple[TeedPathReach, ...]
+    #: the mutual compensation the relay measures with while its parallel circuit is in
+    #: service (an end of a double circuit), None: none
+    k0m_set: complex | None = None
 
-    def path(self, remote: str, infeed: bool) -> TeedPathReach:
-        """The path to ``remote`` with the third terminal's infeed in or out."""
+    def path(self, remote: str, infeed: bool, parallel_circuit: str | None = None,
+             mutual_compensation: bool = False) -> TeedPathReach:
+        """The path to ``remote`` with the third terminal's infeed in or out (and, on a
+        double-circuit line, the parallel circuit's state and the mutual compensation)."""
         for p in self.paths:
-            if p.remote == remote and p.infeed == infeed:
+            if (p.remote == remote and p.infeed == infeed
+                    and p.parallel_circuit == parallel_circuit
+                    and p.mutual_compensation == mutual_compensation):
                 return p
-        raise KeyError((remote, infeed))
+        raise KeyError((remote, infeed, parallel_circuit, mutual_compensation))
 
     def to_dict(self) -> dict[str, Any]:
         return {"end": self.end, "z1_set_ohm": cplx(self.z1_set_ohm),
-                "k0_set": polar(self.k0_set), "tee_ohm": cplx(self.tee_ohm),
+                "k0_set": polar(self.k0_set),
+                "k0m_set": None if self.k0m_set is None else polar(self.k0m_set),
+                "tee_ohm": cplx(self.tee_ohm),
                 "paths": [p.to_dict() for p in self.paths]}
 
 
