@@ -194,3 +194,114 @@ def test_governing_case_files_carry_the_network_phasors(exported):
 
 def doc_phasors(d: dict) -> np.ndarray:
     return np.array([cmath.rect(m, math.radians(a)) for m, a in d.values()])
+
+
+# --- A tee on a double-circuit line (circuit 1 tapped, circuit 2 running through) ---------
+
+@pytest.fixture(scope="module")
+def exported_dc(tmp_path_factory):
+    from test_teed_lines import _double_study_text
+
+    folder = tmp_path_factory.mktemp("teed_dc")
+    path = folder / "dc.toml"
+    path.write_text(_double_study_text().replace(
+        'ct_ratio = "600/1 A"', 'ct_ratio = "600/5 A"\nprofile = "generic_mho_5a"'),
+        encoding="utf-8")
+    out = folder / "out"
+    code = main(["export", str(path), "-o", str(out)])
+    res = pipeline.run_loaded(pipeline.load(path), settings=True)
+    return code, out, res
+
+
+def test_double_circuit_governing_cases_name_the_state_and_carry_the_network_phasors(
+        exported_dc):
+    """The governing cases of a teed double circuit are found over the parallel circuit's
+    states, with k0m where the relays use it, as the teed settings take them: each measures
+    what the results report and names its state; its phasors, read back by the `comtrade`
+    package, against tests/reference_solver.solve_teed_single (modified nodal analysis:
+    no chain matrix, terminal equation or superposition of the teed solver) in that state,
+    the parallel circuit's residual current (the seventh channel at the double circuit's
+    ends) included; the governing loop from the read-back phasors by the relay equation
+    (k0m too where the case is measured with it)."""
+    from test_teed_lines import _legs_of
+
+    from relayset.inputs.study_file import parse_study
+    from relayset.studies.geometry import build_geometry
+    from relayset.studies.parameters import compute_parameters
+    from relayset.studies.teed import teed_line, teed_source_cases, teed_terminals
+
+    from reference_solver import solve_teed_single
+
+    code, out, res = exported_dc
+    assert code in (0, 3)  # written (3: the study's own verification fails checks), no
+    # internal error (1: a governing case not reproduced) nor refusal (2)
+    study = parse_study(res.input, source="dc.toml")
+    geo = build_geometry(study, "")
+    line = teed_line(study, geo, compute_parameters(geo), False, "")
+    buses = res.teed.buses
+    terms0 = teed_terminals(study, "")
+    scales, names = teed_source_cases(study, buses)
+    k0m = complex(res.relay.k0m_set)
+    labels = {"A": 0, "B": 1, "C": 2}
+    seen, states = 0, set()
+    for n, e in enumerate(res.teed.ends):
+        stem = f"WV-TEE-1_revA-end{n + 1}-{e.end}"
+        doc = json.loads((out / f"{stem}-test-points.json").read_text())
+        jsonschema.Draft202012Validator(schemas.test_points_schema()).validate(doc)
+        at_dc_end = e.end != buses[2]
+        assert ("IN parallel" in doc["comtrade"]["channels"]) is at_dc_end
+        k0 = complex(res.teed.k0_set)  # what the apparent impedances are measured with
+        for c in doc["comtrade"]["cases"]:
+            if c["kind"] != "governing case":
+                continue
+            case = c["verification_case"]
+            state, mutual = case["parallel_circuit"], case["mutual_compensation"]
+            states.add(state)
+            assert state.replace("_", " ") in c["description"]
+            assert not mutual or (at_dc_end and state == "in_service")
+            # what the results report for the zone it sets
+            told = [(a.max_ohm if case["infeed"] else a.min_ohm) for a in e.apparent
+                    if a.infeed == case["infeed"]]
+            want_along = max(told) if case["infeed"] else min(told)
+            assert case["along_line_angle_ohm"] == pytest.approx(want_along, rel=1e-9)
+            # the nodal reference in the case's state
+            x, y = buses.index(e.end), buses.index(case["remote"])
+            terms = list(terms0)
+            if not case["infeed"]:
+                terms[3 - x - y] = None
+            k = names.index(case["source_case"])
+            terms = [Source(t.z1_ohm * scales[k, b], t.z0_ohm * scales[k, b])
+                     if isinstance(t, Source) else t for b, t in enumerate(terms)]
+            ref = solve_teed_single(_legs_of(line), tuple(terms), (132e3 / math.sqrt(3),) * 3,
+                                    fault_leg=ENDS[y], m=0.0,
+                                    fault_type=case["fault_type"].replace("-", ""),
+                                    r_fault_ohm=0.0, parallel_state=state)
+            ct, vt = study.relay.ratios(e.end)
+            # series-only, no load: the prefault is the EMFs (phase A at 0 deg), no current
+            pv = doc_phasors(c["phasors_secondary"]["prefault_v"])
+            assert np.allclose(pv, 132e3 / math.sqrt(3) / vt
+                               * np.exp(-2j * np.pi / 3 * np.arange(3)), rtol=1e-9, atol=1e-9)
+            want = np.concatenate([ref.v[ENDS[x]] / vt, ref.i[ENDS[x]] / ct])
+            got = _phasors(out / "comtrade" / stem / f"{c['id']}.cfg", 50.0)
+            big = np.concatenate([np.full(3, np.abs(want[:3]).max()),
+                                  np.full(3, np.abs(want[3:]).max())])
+            tol = 0.005 * np.maximum(np.abs(want), 0.01 * big)
+            assert np.all(np.abs(got[:6] - want) <= tol), (c["id"], got, want)
+            if at_dc_end:
+                i_par = ref.i_parallel[ENDS[x]].sum() / ct
+                assert abs(got[6] - i_par) <= 0.005 * max(abs(i_par), 0.01 * big[3])
+            else:
+                assert got.size == 6
+            # the governing loop from the read-back phasors: the reported impedance
+            a, b = case["loop"].split("-")
+            v, i = got[:3], got[3:6]
+            if b == "G":
+                den = i[labels[a]] + k0 * i.sum() + (k0m * got[6] if mutual else 0)
+                z_sec = v[labels[a]] / den
+            else:
+                z_sec = (v[labels[a]] - v[labels[b]]) / (i[labels[a]] - i[labels[b]])
+            want_z = complex(*case["z_apparent_primary_ohm"])
+            assert abs(z_sec / doc["secondary_factor"] - want_z) <= 0.01 * abs(want_z)
+            seen += 1
+    assert seen == 6
+    assert len(states) >= 2  # the cases come from more than one state of circuit 2
