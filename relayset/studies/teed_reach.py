@@ -166,7 +166,8 @@ def run_teed_reach(study: Study, geo: LineGeometry, params: LineParameters,
     study, geo, params
         The validated study (with ``[tee]``), its geometry and its line parameters.
     relay : RelayBasis
-        The relay ends and the Z1 and k0 they are set with.
+        The relay ends and the Z1, k0 and (a double circuit's ends, where the reach study
+        uses mutual compensation) k0m they are set with.
     source : str
         The study file name, for error messages.
     """
