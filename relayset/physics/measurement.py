@@ -86,7 +86,8 @@ def loop_impedances(
     if i_parallel is not None:
         comp = comp + k0m * np.asarray(i_parallel, dtype=complex).sum(axis=-1)
     out: dict[str, np.ndarray] = {}
-    with np.errstate(divide="ignore", invalid="ignore"):
+    # a (near-)zero loop current gives inf/nan: the loop does not see the fault
+    with np.errstate(divide="ignore", invalid="ignore", over="ignore"):
         for p, name in enumerate(_GROUND_LOOPS):
             out[name] = v[..., p] / (i[..., p] + comp)
         for name, x, y in _PHASE_LOOPS:
