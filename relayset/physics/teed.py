@@ -568,11 +568,11 @@ def solve_teed_sweep(
                 field=_name("source_scale", fn), value=scale.tolist(),
             ) from None
         phases, _ground = check_fault_type(ft)
-        acc = np.broadcast_to(pre, res.shape[1:]).copy()
+        acc = res[fi]  # superposition formed in place (no copy)
+        acc[...] = pre
         for j in phases:
             i_fault[fi, ..., j] = cur[j]
             acc += sens[j] * cur[j][..., None]
-        res[fi] = acc
 
     order = (f, h1, h2)
     v, i, v_pre, i_pre, i_par, i_par_pre = {}, {}, {}, {}, {}, {}

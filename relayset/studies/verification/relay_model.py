@@ -104,7 +104,8 @@ class RelayModel:
 
 def _sequence(x: np.ndarray, k: int) -> np.ndarray:
     """Sequence component k (0, 1, 2) of phase phasors on the last axis (Fortescue)."""
-    return x @ _A_INV[k]
+    a = _A_INV[k]  # element-wise: a matmul with a 3-vector loops slowly over many cases
+    return x[..., 0] * a[0] + x[..., 1] * a[1] + x[..., 2] * a[2]
 
 
 def forward(v: np.ndarray, i: np.ndarray, v_pre: np.ndarray, fault_types, theta: float
