@@ -786,3 +786,26 @@ def test_a_bank_at_the_tee_is_refused():
                       (SeriesElement(32e3 / 75e3, np.zeros((6, 6))),))
     with pytest.raises(InputError, match="at the tee"):
         TeedLine.from_line(bad, 32e3, branch)
+
+
+def test_teed_double_circuit_ends_are_issued_with_the_k0m_they_measure_with():
+    """The relays at the double circuit's two ends are verified measuring with k0m (above):
+    their settings carry that k0m (the two-ended basis, Z0M / (3 Z1)) with the mutual
+    compensation supervision, the third terminal's relay none; without
+    ``reach_study.mutual_compensation`` no end has it."""
+    from relayset.studies import pipeline
+
+    text = _double_study_text()
+    res = pipeline.run_loaded(_loaded(text), settings=True)
+    ends = {e.end: e.settings for e in res.teed.ends}
+    s, r, t = res.teed.buses
+    assert res.relay.k0m_set is not None
+    for b in (s, r):
+        assert ends[b].k0m == res.relay.k0m_set
+        assert ends[b].mutual_supervision is not None
+    assert ends[t].k0m is None and ends[t].mutual_supervision is None
+    off = text.replace("[reach_study]", "[reach_study]\nmutual_compensation = false", 1)
+    if off == text:
+        off = text + "\n[reach_study]\nmutual_compensation = false\n"
+    res_off = pipeline.run_loaded(_loaded(off), settings=True)
+    assert all(e.settings.k0m is None for e in res_off.teed.ends)

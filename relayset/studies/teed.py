@@ -36,7 +36,7 @@ from relayset.physics.teed import (
 )
 from relayset.results.parameters import LineParameters
 from relayset.results.relay import RelayBasis
-from relayset.results.settings import SettingsResult
+from relayset.results.settings import MutualSupervision, SettingsResult
 from relayset.results.teed import (
     TeedApparent,
     TeedEndSettings,
@@ -247,12 +247,19 @@ def _end_settings(study: Study, relay: RelayBasis, philosophy: Philosophy, circ,
             source_z1_relay_ohm=None if src is None else src.z1_ohm,
             arc_length_phase_m=arcs.phase_m, arc_length_ground_m=arcs.ground_m,
             tower_footing_ohm=fr.tower_footing_resistance,
-            resistive_need_ohm={"zone2": (zone2_need[0][0], zone2_need[1][0])})
+            resistive_need_ohm={"zone2": (zone2_need[0][0], zone2_need[1][0])},
+            # the relays at the double circuit's two ends measure with k0m too (the one at
+            # the third substation has no parallel circuit)
+            k0m=(relay.k0m_set if x != 2 and len(study.circuits) == 2
+                 and study.reach_study.mutual_compensation else None))
         if src is not None:
             inputs = dataclasses.replace(inputs, arc_current_a=arc_current(
                 dataclasses.replace(inputs, z1_line_ohm=z_path)))
         st = teed_zone_settings(inputs, philosophy, zone1, zone2,
                                 (zone2_need[0][1], zone2_need[1][1]))
+        if st.k0m is not None:  # issued with k0m, as the verification's relay applies it
+            st = dataclasses.replace(st, mutual_supervision=MutualSupervision(
+                study.relay.mutual_compensation_supervision))
     except InputError as exc:
         raise _in_study_terms(exc, source) from None
     if profile is None:
