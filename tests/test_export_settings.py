@@ -321,3 +321,34 @@ def test_export_writes_all_or_nothing(tmp_path, capsys):
     err = capsys.readouterr().err.strip()
     assert len(err.splitlines()) == 1 and "Traceback" not in err, err
     assert sorted(p.name for p in out.iterdir()) == ["comtrade"]
+
+
+def test_every_left_blinder_the_profile_offers_is_in_the_file(tmp_path):
+    """A quadrilateral relay whose profile has left-blinder settings of its own keeps
+    whatever left blinder it had when the file leaves them out: the file gives every one
+    the profile offers, the left value where the zone's left blinder differs, else the
+    right one on the same step (outside-check finding: a symmetric zone's left blinders were
+    left out)."""
+    from numpy.testing import assert_allclose
+
+    from relayset.inputs.profile import study_profile
+
+    study = _demo(tmp_path, QUAD)
+    res = pipeline.run(study, settings=True)
+    prof = study_profile(PROFILE_OF[QUAD], str(study))
+    for st in res.settings:
+        ids = {v.setting_id: v for v in st.settable.values}
+        for z in st.zones:
+            if z.shape != "quadrilateral":
+                continue
+            for kind in ("phase", "ground"):
+                sid = f"{z.zone}.resistive_left_{kind}"
+                if sid not in prof.settings:
+                    continue
+                assert sid in ids, (st.end, sid)
+                left = getattr(z, f"r_left_{kind}_primary_ohm")
+                right = getattr(z, f"r_reach_{kind}_primary_ohm")
+                # the settable zone's left blinder is the value the file gives
+                assert_allclose(left * st.secondary_factor, ids[sid].settable, rtol=1e-12,
+                                atol=0)
+                assert left is not None and right is not None

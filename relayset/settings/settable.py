@@ -204,9 +204,14 @@ def _zone(z: ZoneSetting, r: _Rounder, profile: RelayProfile, tilt_needed: bool,
                                    z.r_reach_phase_primary_ohm),
                                   ("ground", z.r_left_ground_primary_ohm,
                                    z.r_reach_ground_primary_ohm)):
-            if left is not None and not math.isclose(left, right, rel_tol=1e-9):
-                v = r(f"{n}.resistive_left_{kind}", left * f,
-                      f"{what}'s left blinder (it differs from the right one)", ohm=True)
+            sid = f"{n}.resistive_left_{kind}"
+            differs = left is not None and not math.isclose(left, right, rel_tol=1e-9)
+            # a relay with a left blinder setting of its own is given it (equal to the right
+            # one where the zone is symmetric): a file without it leaves the relay's old one
+            if differs or sid in profile.settings:
+                v = r(sid, (left if left is not None else right) * f,
+                      f"{what}'s left blinder" + (" (it differs from the right one)"
+                                                  if differs else ""), ohm=True)
                 upd[f"r_left_{kind}_primary_ohm"] = v / f
         if profile.reactance_tilt or tilt_needed:
             if z.reactance_tilt_rad and not profile.reactance_tilt:
