@@ -2,7 +2,7 @@
 pyproject.toml) and so does every process, without importlib.metadata, which alone costs
 about 30 ms of start-up."""
 
-__version__ = "0.3.1"
+__version__ = "0.4.0"
 
 
 def relayset_version() -> str:

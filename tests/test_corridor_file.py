@@ -138,8 +138,11 @@ def _bad_cases():
         (b"x" * (MAX_FILE_BYTES + 1), {}, "wendlow.toml", "larger"),
         (deep, {}, "wendlow.toml", "nest"),
         ("schema = [unclosed\n", {}, "wendlow.toml", ""),
-        (changed(neighbours=[nb_table]), {}, "wendlow.toml",
-         "neighbours: a neighbour's study file may not name neighbouring lines"),
+        # named from this study, the field the user wrote (outside-check finding: the
+        # message named the other file's table, without the value)
+        (changed(neighbours=[nb_table]), {}, "main.toml",
+         'neighbours[0].study = "wendlow.toml": names a study file that lists neighbouring '
+         "lines of its own"),
         (changed(system=dict(good["system"], nominal_voltage="275 kV")), {}, "wendlow.toml",
          'system.nominal_voltage = "275 kV": differs from the protected line\'s'),
         (changed(conductor_types={"wphase": {"code": "NO-SUCH-CODE"},
@@ -157,7 +160,8 @@ def _bad_cases():
         (good, {"positions": nb_table["positions"]}, "main.toml",
          "neighbours[0].positions"),
         (good, {"offset": "35 m"}, "main.toml",
-         'neighbours[0].offset = "35 m": its position circuits[0].positions[0] of'),
+         'neighbours[0].offset = "35 m": its circuits[0].positions[0] coincides with the '
+         "protected line's conductor at"),
         (good, {"study": "main.toml"}, "main.toml",
          'neighbours[0].study = "main.toml": names this study file itself'),
         (good, {"study": "missing.toml"}, "main.toml",

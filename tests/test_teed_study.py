@@ -448,3 +448,23 @@ def test_both_on_a_teed_line_means_the_two_ends_of_the_line(tmp_path):
     assert study.relay_ends == ("Wrenfold", "Velmar")
     r = run_teed(pipeline.load_bytes(text.encode(), "teed.toml"))
     assert [e.end for e in r.ends] == ["Wrenfold", "Velmar"]
+
+
+def test_teed_cases_are_named_in_the_study_phase_labels():
+    """A study naming its phases R, S, T reads its teed cases in R, S, T, as every
+    two-ended output does (outside-check finding: the teed settings and verification printed
+    the internal A, B, C names, which invites a wrong mapping to the relay's phases)."""
+    import re
+
+    text = TEED_TOML.replace('name = "1"\n', 'name = "1"\nphase_labels = ["R", "S", "T"]\n', 1)
+    text = re.sub(r'order = \[([^\]]*)\]',
+                  lambda m: "order = [" + m.group(1).replace('"A"', '"R"').replace(
+                      '"B"', '"S"').replace('"C"', '"T"') + "]", text)
+    assert text.count('"R"') >= 3
+    res = _run(text)
+    words = [a.min_case for e in res.ends for a in e.apparent]
+    words += [c.detail for e in res.ends for c in e.all_checks]
+    joined = " ".join(words)
+    assert "loop R-G" in joined and "fault R-S" in joined
+    # no internal name (AG, BC, ABG, ...) as a fault type or loop
+    assert not re.search(r"\b(fault|loop) [ABC]{1,3}G?\b", joined), joined[:400]

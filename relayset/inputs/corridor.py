@@ -173,16 +173,15 @@ def check_neighbours(study: Study, data: dict, fail: Callable[..., None]) -> Non
             if nb.file is None:
                 return "", f"{at}.positions[{k}].x", raw("positions", k, "x")
             key = "offset" if nb.offset is not None else "study"
-            return (f"its position {nb.file.position_fields[k]} of {nb.file.path} ",
-                    f"{at}.{key}", raw(key))
+            return (f"its {nb.file.position_fields[k]} ", f"{at}.{key}", raw(key))
 
         for k, p in enumerate(nb.positions):
             for field, q in own:
                 if math.hypot(p.x - q.x, p.mean_height_m - q.mean_height_m) < COINCIDENT_M:
                     what, f_, v_ = where(k)
-                    fail(f"{what}coincides with the protected line's conductor at {field}; "
-                         "give the neighbour's positions on the corridor's cross-section, "
-                         "from the protected line's tower centre line", f_, v_)
+                    fail(f"{what}coincides with the protected line's conductor at {field}: place "
+                         "the neighbour on the cross-section, x from this line's centre "
+                         "line", f_, v_)
         # ... and elsewhere than another neighbour's where their stretches overlap.
         a0, a1 = _stretch(study, j)
         for i, other in enumerate(study.neighbours[:j]):
@@ -287,9 +286,10 @@ def read_neighbour_files(study: Study, data: dict, source: str) -> Study:
         raw = read_bytes(p)  # size limit first; messages name that file
         tables = loads_toml(raw, path)  # nesting depth, then TOML
         if isinstance(tables, dict) and tables.get("neighbours"):
-            fail("a neighbour's study file may not name neighbouring lines of its own (no "
-                 "recursion): give every neighbour in the protected line's study",
-                 "neighbours", None, path)
+            # named from this study (the field the user wrote), not from inside that file
+            fail("names a study file that lists neighbouring lines of its own: a neighbour's "
+                 "file may not (no recursion); give every neighbour in this study",
+                 f"{at}.study", nb.study)
         other = parse_study(tables, path)
         if len(other.circuits) != 1:
             fail("a neighbour's study file describes a single-circuit line (a neighbouring "

@@ -35,6 +35,7 @@ from relayset.physics.teed import (
     solve_teed_sweep,
 )
 from relayset.results.parameters import LineParameters
+from relayset.results.reach import fault_label, loop_label
 from relayset.results.relay import RelayBasis
 from relayset.results.settings import MutualSupervision, SettingsResult
 from relayset.results.teed import (
@@ -293,6 +294,7 @@ def run_teed_study(study: Study, geo: LineGeometry, params: LineParameters,
     k0 = relay.k0_set
     k0m = relay.k0m_set if rs.mutual_compensation else None  # a double circuit's relays
     ftypes = rs.fault_types
+    labels = tuple(study.circuits[0].phase_labels)  # cases named in the study's phases
     fn = {"source_scale": "reach_study.source_cases", "fault_types": "reach_study.fault_types"}
 
     # (relay end x, remote y, infeed) -> (min, max, min case, max case, min Z, max Z)
@@ -323,7 +325,8 @@ def run_teed_study(study: Study, geo: LineGeometry, params: LineParameters,
                         for k, val in enumerate(a):
                             if not math.isfinite(val):
                                 continue
-                            label = (f"fault {ft}, loop {lp}, source case {case_names[k]}"
+                            label = (f"fault {fault_label(ft, labels)}, loop "
+                                     f"{loop_label(lp, labels)}, source case {case_names[k]}"
                                      + parallel_label(line, ps) + how)
                             if val < best[0]:
                                 best[0], best[2], best[4] = float(val), label, complex(zs[k])
@@ -415,7 +418,7 @@ def run_teed_study(study: Study, geo: LineGeometry, params: LineParameters,
             zone2_secondary_ohm=z2.reach_secondary_ohm, settings=st))
     sim = verify_teed(
         lines, terms, judged, zones, load_names=loads, r_fault_ohm=rs.fault_resistances,
-        k0=k0, k0m=k0m,
+        k0=k0, k0m=k0m, phase_labels=labels,
         k0_by_end={x: e.settings.k0.k0 for x, e in zip(judged, results, strict=True)},
         beyond={y: [(a.name, a.z1, a.z0 if a.z0 is not None else 3 * a.z1)
                     for a in study.adjacent_lines if a.bus == buses[y] and a.z1 is not None]

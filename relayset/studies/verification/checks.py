@@ -144,6 +144,12 @@ def _finish(zone: str, check_id: str, requirement: str, acc: _Acc, required: flo
                             "" if passed else consider, acc.n_insensitive)
 
 
+#: Where a fault is declared reverse (current inversion), a longer reach does not help.
+_NO_REACH_HELPS = ("; no reach helps where the governing case is declared reverse by the "
+                   "directional element (e.g. current inversion at a series capacitor): "
+                   "there rely on the pilot scheme or other protection")
+
+
 def resistive_target(zone: ZoneSetting, tower_ohm: float) -> tuple[float, float]:
     """(R_g, R_ph) a zone must cover [ohm]: its arc plus tower footing to ground and its arc
     between phases, for every shape (a mho zone included: its circle must reach them too);
@@ -309,7 +315,7 @@ def verify_end(sim: Simulation, end: str, st: SettingsResult, *, study: Study,
                 f"({100 * r1 * (1 - t / 100):.4g} % of the line), fault resistance up to its "
                 "resistive target", acc["z1_int"], 0.0,
                 "lengthen zone 1's resistive reach (if load allows) or accept the shorter "
-                "coverage and rely on a pilot scheme"),
+                "coverage and rely on a pilot scheme" + _NO_REACH_HELPS),
         _finish("zone1", "no_operation_at_remote_bus",
                 f"zone 1 does not operate for any fault at the remote bus {other} (all "
                 "parallel-circuit states, sources, loads, fault resistances) with "
@@ -352,7 +358,7 @@ def verify_end(sim: Simulation, end: str, st: SettingsResult, *, study: Study,
         "margin (the error budget), fault resistance up to its resistive target",
         acc["z2_int"], t,
         "lengthen zone 2 until the worst underreach plus the error budget still covers the "
-        "remote bus"))
+        "remote bus" + _NO_REACH_HELPS))
     checks[-1] = _resistive_need(checks[-1], z2, theta, st)
     checks.append(_finish(
         "forward", "no_operation_behind",

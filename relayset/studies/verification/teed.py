@@ -39,6 +39,7 @@ from relayset.physics.teed import (
     parallel_states,
     solve_teed_sweep,
 )
+from relayset.results.reach import fault_label, loop_label
 from relayset.results.settings import Check, ZoneSetting
 from relayset.studies.verification.relay_model import (
     GROUND,
@@ -162,6 +163,7 @@ def verify_teed(
     emf_v: tuple[np.ndarray, np.ndarray, np.ndarray] | None = None,
     load_names: tuple[str, ...] = ("no load",),
     k0_by_end: dict[int, complex] | None = None,
+    phase_labels: tuple[str, str, str] = ("A", "B", "C"),
 ) -> dict[int, TeedVerdict]:
     """Checks and their numbers per relay end (index into :data:`~relayset.physics.teed.ENDS`).
 
@@ -169,6 +171,7 @@ def verify_teed(
     phase-A EMFs of the load cases, per terminal (L,), named by ``load_names``.
     ``zones[x]`` is (zone 1, zone 2) at end x as set (each tested through its
     ``characteristic``, the one object of :mod:`relayset.physics.characteristic`),
+    ``phase_labels`` name the phases in the cases' labels as the study does;
     ``models[x]`` the relay model there and ``k0_by_end[x]`` the k0 it is set with
     (default ``k0``: a relay profile's steps may round it). ``beyond[y]`` lists the lines
     leaving bus y (name, Z1, Z0 [ohm]); faults along them (a series branch from the bus,
@@ -204,7 +207,8 @@ def verify_teed(
 
                 def label(idx, loop, leg=leg, state=state, sw=sw):
                     f, mi, ri, k, ld = idx
-                    return (f"{sw.fault_types[f]} fault, loop {LOOPS[loop]}, "
+                    return (f"{fault_label(sw.fault_types[f], phase_labels)} fault, loop "
+                            f"{loop_label(LOOPS[loop], phase_labels)}, "
                             f"{_where(buses, leg, float(sw.m[mi]))}, Rf = {rf[ri]:g} ohm, "
                             f"source case {case_names[k]}, {load_names[ld]}, {state}")
 
@@ -244,7 +248,8 @@ def verify_teed(
                 def blabel(idx, loop, y=y, state=state, where=where, sw=sw):
                     f, mi, ri, k, ld = idx
                     name, frac = where[mi]
-                    return (f"{sw.fault_types[f]} fault, loop {LOOPS[loop]}, {100 * frac:.0f} "
+                    return (f"{fault_label(sw.fault_types[f], phase_labels)} fault, loop "
+                            f"{loop_label(LOOPS[loop], phase_labels)}, {100 * frac:.0f} "
                             f"% along '{name}' beyond {buses[y]}, Rf = {rf[ri]:g} ohm, "
                             f"source case {case_names[k]}, {load_names[ld]}, {state}")
 
