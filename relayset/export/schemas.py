@@ -193,10 +193,13 @@ def _teed_reach_results() -> dict[str, Any]:
                          "worst_untransposition_overreach_on_path_pct",
                          "worst_untransposition_underreach_on_path_pct",
                          "apparent_at_tee_ohm", "apparent_at_remote_terminal_ohm", "loops",
-                         "envelope"],
+                         "envelope", "parallel_circuit", "mutual_compensation"],
             "properties": {"remote": _STR, "third": _STR, "infeed": {"type": "boolean"},
+                           "parallel_circuit": {"type": ["string", "null"]},
+                           "mutual_compensation": {"type": "boolean"},
                            "loops": {"type": "array", "minItems": 6, "maxItems": 6}}}
-    end = {"type": "object", "required": ["end", "z1_set_ohm", "k0_set", "tee_ohm", "paths"],
+    end = {"type": "object",
+           "required": ["end", "z1_set_ohm", "k0_set", "k0m_set", "tee_ohm", "paths"],
            "properties": {"end": _STR, "paths": {"type": "array", "items": path}}}
     return {"type": ["object", "null"],
             "required": ["buses", "tee_distance_km", "branch_length_km", "fault_types",
