@@ -273,9 +273,7 @@ def shot_and_case_files(results, out_dir, *, sample_rate_hz: float = 4000.0,
     formed, not written, as :func:`relayset.export.testshots.shot_and_case_files`."""
     from pathlib import Path
 
-    from relayset import io
-    from relayset.export import comtrade
-    from relayset.export.testshots import shots_csv, shots_json, test_shots
+    from relayset.export.testshots import end_files
 
     out_dir = Path(out_dir)
     settings = end_settings(results)
@@ -283,19 +281,8 @@ def shot_and_case_files(results, out_dir, *, sample_rate_hz: float = 4000.0,
     outputs = []
     for basis, st, end in zip(end_bases(results, settings), settings, results.teed.ends,
                               strict=True):
-        shots = test_shots(st, basis)
-        outputs.append(("test points", out_dir / f"{basis.stem}-test-points.csv",
-                        shots_csv(shots, basis.phase_labels)))
-        cases = comtrade.shot_cases(shots, basis) + governing_cases(results, end, basis,
-                                                                    solver)
-        doc = shots_json(shots, basis, results)
-        doc["comtrade"] = comtrade.manifest(cases, basis, sample_rate_hz=sample_rate_hz,
-                                            duration_s=duration_s)
-        doc["comtrade"]["governing_cases_formed_from"] = FORMED_FROM
-        outputs.append(("test points", out_dir / f"{basis.stem}-test-points.json",
-                        io.to_json(doc).encode()))
-        folder = out_dir / "comtrade" / basis.stem
-        for name, data in comtrade.render(cases, basis, sample_rate_hz=sample_rate_hz,
-                                          duration_s=duration_s):
-            outputs.append(("COMTRADE", folder / name, data))
+        outputs += end_files(results, st, basis, out_dir,
+                             governing_cases(results, end, basis, solver),
+                             sample_rate_hz=sample_rate_hz, duration_s=duration_s,
+                             formed_from=FORMED_FROM)
     return outputs

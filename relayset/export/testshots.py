@@ -486,28 +486,43 @@ def shot_and_case_files(results, out_dir: Path, *, sample_rate_hz: float = 4000.
     list of (str, pathlib.Path, bytes)
         What each file is, where it goes, its bytes.
     """
-    from relayset import io
     from relayset.export import comtrade
 
     out_dir = Path(out_dir)
     outputs: list[tuple[str, Path, bytes]] = []
     solver = comtrade.case_solver(results)  # shared by the ends (line, sources, load flow)
     for basis, settings in zip(end_bases(results), results.settings or (), strict=True):
-        shots = test_shots(settings, basis)
-        outputs.append(("test points", out_dir / f"{basis.stem}-test-points.csv",
-                        shots_csv(shots, basis.phase_labels)))
-        cases = comtrade.shot_cases(shots, basis) + comtrade.governing_cases(
-            results, settings, basis, solver)
-        doc = shots_json(shots, basis, results)
-        doc["comtrade"] = comtrade.manifest(cases, basis, sample_rate_hz=sample_rate_hz,
-                                            duration_s=duration_s)
-        outputs.append(("test points", out_dir / f"{basis.stem}-test-points.json",
-                        io.to_json(doc).encode()))
-        folder = out_dir / "comtrade" / basis.stem
-        for name, data in comtrade.render(cases, basis, sample_rate_hz=sample_rate_hz,
-                                          duration_s=duration_s):
-            outputs.append(("COMTRADE", folder / name, data))
+        outputs += end_files(results, settings, basis, out_dir,
+                             comtrade.governing_cases(results, settings, basis, solver),
+                             sample_rate_hz=sample_rate_hz, duration_s=duration_s)
     return outputs
+
+
+def end_files(results, settings, basis, out_dir: Path, governing: list, *,
+              sample_rate_hz: float, duration_s: float, formed_from: str | None = None
+              ) -> list[tuple[str, Path, bytes]]:
+    """One relay end's test points (CSV, JSON) and COMTRADE cases, formed, not written:
+    the shots of ``settings``, then the ``governing`` cases (the two-ended verification's,
+    or a teed end's); ``formed_from`` says how those were formed, in the manifest."""
+    from relayset import io
+    from relayset.export import comtrade
+
+    shots = test_shots(settings, basis)
+    out = [("test points", out_dir / f"{basis.stem}-test-points.csv",
+            shots_csv(shots, basis.phase_labels))]
+    cases = comtrade.shot_cases(shots, basis) + governing
+    doc = shots_json(shots, basis, results)
+    doc["comtrade"] = comtrade.manifest(cases, basis, sample_rate_hz=sample_rate_hz,
+                                        duration_s=duration_s)
+    if formed_from is not None:
+        doc["comtrade"]["governing_cases_formed_from"] = formed_from
+    out.append(("test points", out_dir / f"{basis.stem}-test-points.json",
+                io.to_json(doc).encode()))
+    folder = out_dir / "comtrade" / basis.stem
+    out += [("COMTRADE", folder / name, data)
+            for name, data in comtrade.render(cases, basis, sample_rate_hz=sample_rate_hz,
+                                              duration_s=duration_s)]
+    return out
 
 
 def report_tables(results) -> list[dict[str, Any]]:

@@ -331,6 +331,20 @@ def resolve(name: str, cable: Cable, n_circuits: int) -> CableSection:
                         tuple(notes), ecc, cable.minor_sections)
 
 
+def check_cable_section(study: Any, sec: Any, field: str, fail: Callable[..., None]
+                        ) -> None:
+    """The rules of one section on a cable (the line's or a tee branch's), named as the
+    user wrote ``field``: overhead or cable, not both; a cable of ``[cables]``."""
+    cables = study.cables
+    if sec.tower is not None:
+        fail("a section is either overhead or cable: give tower or cable, not both",
+             f"{field}.cable", sec.cable)
+    if sec.cable not in cables:
+        fail("names no cable of [cables]" + (" (cables: " + ", ".join(cables) + ")"
+                                             if cables else ": the study has none")
+             + suggest(sec.cable, cables), f"{field}.cable", sec.cable)
+
+
 def check_cables(study: Any, data: dict, fail: Callable[..., None]) -> None:
     """The rules tying ``[cables.NAME]`` to the line: each section names exactly one of a
     tower and a cable, a cable of [cables]; with cable sections the overhead sections are on
@@ -342,15 +356,7 @@ def check_cables(study: Any, data: dict, fail: Callable[..., None]) -> None:
         if t in study.towers:
             fail("a cable and a tower must not share a name", f"cables.{toml_key(t)}")
     for s in used:
-        sec = sections[s]
-        field = f"line.sections[{s}]"
-        if sec.tower is not None:
-            fail("a section is either overhead or cable: give tower or cable, not both",
-                 f"{field}.cable", sec.cable)
-        if sec.cable not in cables:
-            fail("names no cable of [cables]" + (" (cables: " + ", ".join(cables) + ")"
-                                                 if cables else ": the study has none")
-                 + suggest(sec.cable, cables), f"{field}.cable", sec.cable)
+        check_cable_section(study, sections[s], f"line.sections[{s}]", fail)
     if not used:
         return
     if len(used) == len(sections):  # before asking for towers: none would help

@@ -82,12 +82,6 @@ def corridors_of(study: Study) -> tuple[Corridor, ...]:
     return tuple(out)
 
 
-def corridor_of(study: Study) -> Corridor | None:
-    """The study's first neighbouring line (None without one)."""
-    cors = corridors_of(study)
-    return cors[0] if cors else None
-
-
 def _shared_sections(study: Study, j: int) -> list[int]:
     """The indices of the sections neighbour ``j`` runs beside (its stretch already checked
     to lie on the line)."""

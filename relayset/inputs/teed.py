@@ -28,6 +28,7 @@ from typing import Any
 
 from relayset.errors import quote, suggest, toml_key
 from relayset.inputs import limits
+from relayset.inputs.cable import check_cable_section
 from relayset.inputs.schema import ListOf, spec, table
 from relayset.inputs.study_file import (
     ComplexOhm,
@@ -109,14 +110,7 @@ def check_tee(study: Any, data: dict, fail: Callable[..., None]) -> None:
 def _check_branch_cable(study: Any, sec: Any, field: str, fail: Callable[..., None]) -> None:
     """A branch section on a cable: the rules of the line's cable sections
     (:func:`relayset.inputs.cable.check_cables`), named as written in ``[tee]``."""
-    cables = study.cables
-    if sec.tower is not None:
-        fail("a section is either overhead or cable: give tower or cable, not both",
-             f"{field}.cable", sec.cable)
-    if sec.cable not in cables:
-        fail("names no cable of [cables]" + (" (cables: " + ", ".join(cables) + ")"
-                                             if cables else ": the study has none")
-             + suggest(sec.cable, cables), f"{field}.cable", sec.cable)
+    check_cable_section(study, sec, field, fail)
     if not study.towers:  # without them the branch's wires would stand in for the cable
         fail("with cable sections, give the overhead sections' cross-sections as "
              "[towers.NAME] tables and a tower per overhead section", "towers")
